@@ -1,0 +1,3 @@
+//! Readers and writers. Placeholder; filled by the io work.
+
+pub mod inspect;

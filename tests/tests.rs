@@ -1,0 +1,1 @@
+//! The one integration-test binary; each module covers one area.
