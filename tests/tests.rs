@@ -1,1 +1,14 @@
-//! The one integration-test binary; each module covers one area.
+//! The one integration-test binary; each module covers one area and owns `tests/<area>.rs`.
+
+mod common;
+
+mod cli;
+mod fit;
+mod io;
+mod kinematics;
+mod mock;
+mod pipeline;
+mod q2;
+mod ratio;
+mod resample;
+mod spectrum;
