@@ -1,0 +1,2 @@
+//! Benchmark placeholder; replaced by the read work.
+fn main() {}
