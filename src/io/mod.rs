@@ -42,11 +42,189 @@
 //! to the same data.
 
 pub mod inspect;
+mod table;
+mod threept;
+mod twopt;
 mod write;
 
+pub use threept::{read_threept, read_threept_from};
+pub use twopt::{read_twopt, read_twopt_from};
 pub use write::{write_threept, write_twopt};
 
-use crate::data::{ThreePointKey, TwoPointKey};
+use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
+use crate::error::{Error, Result};
+use std::path::Path;
+
+/// Choices of the caller of [`read_dataset`].
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct ReadOptions {
+    /// Keep only the configurations present in both tables (the others are listed in
+    /// [`Dataset::dropped_configs`]) instead of refusing tables that differ.
+    pub keep_common_configs: bool,
+}
+
+/// The two tables of an ensemble on a common list of configurations.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Dataset {
+    /// The two-point table.
+    pub twopt: TwoPointData,
+    /// The three-point table, if one was given.
+    pub threept: Option<ThreePointData>,
+    /// Configurations dropped because only one table had them (ascending).
+    pub dropped_configs: Vec<i64>,
+    /// What the reader did beyond plain reading (source averaging, dropped configurations),
+    /// one sentence each, for the run log.
+    pub notes: Vec<String>,
+}
+
+/// Read the two-point table and, optionally, the three-point table of one ensemble and check
+/// that they cover the same configurations (see [`ReadOptions`]).
+pub fn read_dataset(twopt: &Path, threept: Option<&Path>, opts: &ReadOptions) -> Result<Dataset> {
+    if threept == Some(Path::new("-")) && twopt == Path::new("-") {
+        return Err(Error::config(
+            "both tables are `-`: only one of them can come from standard input",
+        ));
+    }
+    let mut notes = Vec::new();
+    let (mut two, summary) = twopt::read_with_summary(twopt)?;
+    notes.push(read_note(
+        twopt,
+        &summary,
+        two.channels.len(),
+        two.configs.len(),
+    ));
+    notes.extend(source_note(twopt, &summary));
+    let Some(threept_path) = threept else {
+        return Ok(Dataset {
+            twopt: two,
+            threept: None,
+            dropped_configs: Vec::new(),
+            notes,
+        });
+    };
+    let (mut three, summary) = threept::read_with_summary(threept_path)?;
+    notes.push(read_note(
+        threept_path,
+        &summary,
+        three.channels.len(),
+        three.configs.len(),
+    ));
+    notes.extend(source_note(threept_path, &summary));
+    let mut dropped_configs = Vec::new();
+    if two.configs != three.configs {
+        let only_two = difference(&two.configs, &three.configs);
+        let only_three = difference(&three.configs, &two.configs);
+        let common = difference(&two.configs, &only_two);
+        let first = |v: &[i64]| {
+            v.first()
+                .map_or(String::new(), |c| format!(" (first: {c})"))
+        };
+        let what = format!(
+            "{} has {} configuration(s) missing from {}{}, and {} has {} missing from {}{}",
+            twopt.display(),
+            only_two.len(),
+            threept_path.display(),
+            first(&only_two),
+            threept_path.display(),
+            only_three.len(),
+            twopt.display(),
+            first(&only_three),
+        );
+        if !opts.keep_common_configs {
+            return Err(Error::Table {
+                path: threept_path.to_path_buf(),
+                message: format!(
+                    "the two tables cover different configurations: {what}; ask to keep only                      the {} common configurations to go on",
+                    common.len()
+                ),
+            });
+        }
+        if common.is_empty() {
+            return Err(Error::Table {
+                path: threept_path.to_path_buf(),
+                message: format!("the two tables have no configuration in common: {what}"),
+            });
+        }
+        two = TwoPointData {
+            channels: two
+                .channels
+                .iter()
+                .map(|(k, s)| (k.clone(), select_configs(s, &two.configs, &common)))
+                .collect(),
+            configs: common.clone(),
+        };
+        three = ThreePointData {
+            channels: three
+                .channels
+                .iter()
+                .map(|(k, s)| (k.clone(), select_configs(s, &three.configs, &common)))
+                .collect(),
+            configs: common,
+        };
+        dropped_configs = only_two;
+        dropped_configs.extend(only_three);
+        dropped_configs.sort_unstable();
+        notes.push(format!(
+            "kept the {} configurations common to both tables and dropped {}: {:?}",
+            two.configs.len(),
+            dropped_configs.len(),
+            dropped_configs
+        ));
+    }
+    Ok(Dataset {
+        twopt: two,
+        threept: Some(three),
+        dropped_configs,
+        notes,
+    })
+}
+
+fn read_note(path: &Path, s: &table::Summary, channels: usize, configs: usize) -> String {
+    format!(
+        "{}: read {} rows into {channels} channels on {configs} configurations",
+        path.display(),
+        s.rows
+    )
+}
+
+fn source_note(path: &Path, s: &table::Summary) -> Option<String> {
+    let (lo, hi) = s.sources?;
+    Some(if lo == hi {
+        format!(
+            "{}: averaged {lo} source(s) per configuration and data point",
+            path.display()
+        )
+    } else {
+        format!(
+            "{}: averaged between {lo} and {hi} sources per configuration and data point",
+            path.display()
+        )
+    })
+}
+
+/// Elements of ascending `a` not in ascending `b`.
+fn difference(a: &[i64], b: &[i64]) -> Vec<i64> {
+    a.iter()
+        .copied()
+        .filter(|c| b.binary_search(c).is_err())
+        .collect()
+}
+
+/// The columns of `s` (on `configs`) belonging to `keep` (an ascending subset of `configs`).
+fn select_configs(s: &Series, configs: &[i64], keep: &[i64]) -> Series {
+    let cols: Vec<usize> = keep
+        .iter()
+        .filter_map(|c| configs.binary_search(c).ok())
+        .collect();
+    let mut out = Series::zeros(s.n_t, cols.len());
+    for t in 0..s.n_t {
+        for (j, &i) in cols.iter().enumerate() {
+            out.re[t * cols.len() + j] = s.re[s.index(t, i)];
+            out.im[t * cols.len() + j] = s.im[s.index(t, i)];
+        }
+    }
+    out
+}
 
 /// A human-readable name of a two-point channel, for messages.
 pub fn describe_twopt(key: &TwoPointKey) -> String {
