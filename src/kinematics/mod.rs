@@ -13,9 +13,20 @@
 //! `Pi(Gamma_0, V_4) = sqrt((E+m)/(2E)) G_E`, `Pi(Gamma_k, V_j) = eps_jkl q_l G_M / N`,
 //! forward `Pi(Gamma_k, A_k) = i g_A`, `Pi(Gamma_0, S) = g_S`, `Pi(Gamma_3, T_12) = g_T`.
 
+mod decompose;
 mod dirac;
 mod factors;
+pub mod flavor;
 mod momentum;
+mod phase;
+mod setup;
+
+pub use decompose::{
+    decompose, ChannelValue, Decomposition, DecompositionSettings, DecompositionWeights,
+    ShellResult, SkippedShell,
+};
+pub use phase::Phase;
+pub use setup::{Dispersion, Energies, KinematicSetup};
 
 pub use factors::{coefficients, FormFactor, Hadron};
 pub use momentum::{
