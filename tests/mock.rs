@@ -551,3 +551,72 @@ fn demo_data_match_their_specs() {
         assert_eq!(truth, e.truth, "{name}: truth.yaml");
     }
 }
+
+// The noise grows as in methods.md §7: the two-point noise-to-signal at t = 7 over that at
+// t = 0 is exp(7 g), g = E_0 - 3 m_pi / 2 = 0.6 - 0.45 at rest (noisy.yaml); the three-point
+// noise is 0.1 e^{g_f (tsep - tau) + g_i tau} times the ground-state envelope. Sample standard
+// deviations of 4000 AR(1) samples are good to about 2 %; the tolerance is 6 %.
+#[test]
+fn noise_grows_as_specified() {
+    let e = run(&load("noisy.yaml"));
+    let sd = |v: &[f64]| {
+        let n = v.len() as f64;
+        let m = v.iter().sum::<f64>() / n;
+        (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
+    };
+    let s = c2(&e, [0, 0, 0]);
+    let relative = |t: usize| sd(s.re_at(t)) / mean(s, t, false);
+    assert_relative_eq!(relative(0), 0.05, max_relative = 0.06);
+    assert_relative_eq!(
+        relative(7) / relative(0),
+        (7.0 * 0.15f64).exp(),
+        max_relative = 0.06
+    );
+
+    let sink = e.truth.levels([0, 0, 0]).expect("sink levels");
+    let source = e.truth.levels([0, 0, -1]).expect("source levels");
+    let (ef, ei) = (sink.energies[0], source.energies[0]);
+    let (gf, gi) = (ef - 0.45, ei - 0.45);
+    let envelope =
+        (sink.amplitudes[0] * source.amplitudes[0]).sqrt() * (-ef * 2.0 - ei * 2.0).exp();
+    let want = 0.1 * (gf * 2.0 + gi * 2.0).exp() * envelope;
+    let key = c3_key(4, [0, 0, 0], [0, 0, 1], Current::V4, Projector::Unpol);
+    let c3 = &e.threept.channels[&key];
+    assert_relative_eq!(sd(c3.re_at(2)), want, max_relative = 0.06);
+    assert_relative_eq!(sd(c3.im_at(2)), want, max_relative = 0.06);
+}
+
+// Scalar and tensor currents through the forward check values of methods.md §5:
+// Pi(Gamma_0, S) = g_S and Pi(Gamma_3, T_12) = g_T at p_f = p_i = 0.
+#[test]
+fn scalar_and_tensor_forward_values() {
+    let text = fixture_text("two_state.yaml")
+        .replace(
+            "  GP: {model: pion_pole}\n",
+            "  GP: {model: pion_pole}\n  GS: {model: dipole, value_at_zero: 1.1, mass: 0.6}\n  GT: {model: dipole, value_at_zero: 0.95, mass: 0.7}\n",
+        )
+        .replace(
+            "  insertions:\n",
+            "  insertions:\n    - {currents: [S, T12], projectors: [unpol, pol3]}\n",
+        )
+        .replace(
+            "      - {pf: [0, 0, 0], q: [0, 0, 1]}\n",
+            "      - {pf: [0, 0, 0], q: [0, 0, 0]}\n      - {pf: [0, 0, 0], q: [0, 0, 1]}\n",
+        );
+    let e = run(&from_text(&text));
+    let at_rest = |c, p| {
+        e.truth
+            .matrix_element([0, 0, 0], [0, 0, 0], c, p)
+            .expect("generated")
+    };
+    assert_relative_eq!(
+        at_rest(Current::S, Projector::Unpol).re,
+        1.1,
+        max_relative = 1e-12
+    );
+    assert_relative_eq!(
+        at_rest(Current::T12, Projector::Pol(3)).re,
+        0.95,
+        max_relative = 1e-12
+    );
+}

@@ -544,6 +544,29 @@ impl MockSpec {
     /// what would be valid.
     pub fn validate(&self) -> std::result::Result<(), String> {
         let n_states = self.hadron.states.len();
+        // Also checked while reading YAML; repeated for specs built in code.
+        if !(1..=3).contains(&n_states) {
+            return Err(format!(
+                "hadron.states: expected 1 to 3 states, found {n_states}"
+            ));
+        }
+        let numbers = self
+            .hadron
+            .states
+            .iter()
+            .flat_map(|s| [s.mass.0, s.overlap.0]);
+        if numbers.clone().any(|x| !(x.is_finite() && x > 0.0))
+            || self
+                .hadron
+                .states
+                .windows(2)
+                .any(|w| w[1].mass.0 <= w[0].mass.0)
+        {
+            return Err(
+                "hadron.states: masses and overlaps must be positive, masses strictly increasing"
+                    .into(),
+            );
+        }
         let spin = self.hadron.kind;
         if self.hadron.periodic && spin == Hadron::Spin1Half {
             return Err("hadron.periodic: the periodic symmetric form is for spin 0 only".into());
