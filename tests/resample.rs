@@ -680,6 +680,36 @@ fn covariance_options_from_yaml() {
     let err = parse("kind: shrunk").expect_err("unknown kind");
     assert!(err.to_string().contains("shrinkage"), "{err}");
     assert!(parse("kind: full\ncut: 3").is_err());
+    // What is written can be read back (the run manifest records the options).
+    for kind in [
+        CovarianceKind::Full,
+        CovarianceKind::Diagonal,
+        shrink(ShrinkageTarget::Identity, Some(0.3)).kind,
+        shrink(ShrinkageTarget::Diagonal, None).kind,
+    ] {
+        let o = CovarianceOptions {
+            kind,
+            eigen_cut: Some(1e-3),
+        };
+        let text = serde_yaml_ng::to_string(&o).expect("serialise");
+        assert_eq!(parse(&text).expect(&text), o);
+        let json = serde_json::to_string(&o).expect("serialise");
+        assert_eq!(
+            serde_json::from_str::<CovarianceOptions>(&json).expect(&json),
+            o
+        );
+    }
+    // The JSON Schema lists the names a user may write.
+    let schema = serde_json::to_string(&schemars::schema_for!(CovarianceOptions)).expect("json");
+    for word in [
+        "\"full\"",
+        "\"shrinkage\"",
+        "\"identity\"",
+        "intensity",
+        "eigen_cut",
+    ] {
+        assert!(schema.contains(word), "{word} missing from {schema}");
+    }
 }
 
 // ---------------------------------------------------------------------------------------
