@@ -123,6 +123,16 @@ fn bootstrap_plan_is_reproducible() {
     let b = ResamplePlan::bootstrap(20, 50, 7);
     assert_eq!(a, b);
     assert_ne!(a, ResamplePlan::bootstrap(20, 50, 8));
+    assert_eq!(ResamplePlan::new(Scheme::Bootstrap, 20, 50, 7), a);
+    let j = ResamplePlan::new(Scheme::Jackknife, 20, 50, 7);
+    assert_eq!(
+        (j.scheme(), j.n_bins(), j.n_samples()),
+        (Scheme::Jackknife, 20, 20)
+    );
+    assert_eq!(
+        (a.scheme(), a.n_bins(), a.n_samples()),
+        (Scheme::Bootstrap, 20, 50)
+    );
     // Every bootstrap sample draws exactly N bins (definition of the bootstrap).
     if let ResamplePlan::Bootstrap { counts, .. } = &a {
         for row in counts.chunks(20) {
@@ -284,6 +294,14 @@ fn resampled_helpers() {
     assert_relative_eq!(m.samples[2], 2.3, max_relative = 1e-14);
     assert!(Resampled::mean_of(&[]).is_err());
     assert!(Resampled::mean_of(&[j.clone(), b.clone()]).is_err());
+    // Percentile interval = linear-interpolation quantiles (Hyndman & Fan, Am. Stat. 50 (1996)
+    // 361, type 7): numpy 2.4.6 np.percentile(x, [15.865, 84.135]) on these 11 values gives
+    // -0.136075 and 1.90675.
+    let x = vec![0.31, 1.7, -0.4, 2.2, 0.05, 0.9, 1.1, -1.3, 0.66, 0.42, 3.1];
+    let boot = Resampled::new(0.7, x, Scheme::Bootstrap);
+    let (lo, hi) = boot.percentile_interval(0.6827).expect("bootstrap");
+    assert_relative_eq!(lo, -0.136075, max_relative = 1e-12);
+    assert_relative_eq!(hi, 1.90675, max_relative = 1e-12);
     assert!(j.percentile_interval(0.68).is_err());
     assert!(b.percentile_interval(1.5).is_err());
     let s = j.summary();
@@ -587,6 +605,7 @@ fn eigenvalue_cut_raises_small_correlation_eigenvalues() {
     let v = correlated_pair(0.999, sa, sb);
     let full = estimate(&v, &CovarianceOptions::default()).expect("full");
     assert_relative_eq!(full.matrix[(0, 1)], 0.999 * sa * sb, max_relative = 1e-12);
+    assert_relative_eq!(v[0].correlation(&v[1]), 0.999, max_relative = 1e-12);
     assert_relative_eq!(full.condition_number, 1.999 / 0.001, max_relative = 1e-8);
     let opts = CovarianceOptions {
         kind: CovarianceKind::Full,

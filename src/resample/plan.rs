@@ -57,6 +57,15 @@ pub enum ResamplePlan {
 }
 
 impl ResamplePlan {
+    /// The plan for `scheme` on `n_bins` bins; `n_boot` and `seed` are used by the bootstrap
+    /// only.
+    pub fn new(scheme: Scheme, n_bins: usize, n_boot: usize, seed: u64) -> Self {
+        match scheme {
+            Scheme::Jackknife => ResamplePlan::jackknife(n_bins),
+            Scheme::Bootstrap => ResamplePlan::bootstrap(n_bins, n_boot, seed),
+        }
+    }
+
     /// Delete-one jackknife on `n` bins.
     pub fn jackknife(n: usize) -> Self {
         ResamplePlan::Jackknife { n }
