@@ -21,6 +21,6 @@ pub mod table;
 
 pub use html::{Block, Report, Section};
 pub use manifest::{InputFile, Manifest};
-pub use plot::{render_svg, Chart, Legend, ReferenceLine, Series, SeriesKind};
+pub use plot::{render_svg, write_svg, Chart, Legend, ReferenceLine, Series, SeriesKind};
 pub use rundir::RunDir;
 pub use table::{render_text, samples_table, value_error, write_csv, write_json, Cell, Table};
