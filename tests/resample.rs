@@ -885,7 +885,9 @@ proptest::proptest! {
         let value: f64 = vs.parse().expect("number");
         let unit = if decimals > 0 { 10f64.powi(-decimals) } else { 1.0 };
         let err = if decimals > 0 { units * unit } else { units };
-        proptest::prop_assert!((value - v).abs() <= 0.5 * unit.max(err / 10.0) * (1.0 + 1e-9));
+        // Half a last digit, plus the f64 resolution of |v| when the digits run out.
+        let slack = 0.5 * unit.max(err / 10.0) + 4.0 * v.abs() * f64::EPSILON;
+        proptest::prop_assert!((value - v).abs() <= slack, "{} vs {}", value, v);
         proptest::prop_assert!((err - e).abs() <= 0.05 * e + 1e-12, "{} vs {}", err, e);
     }
 }
