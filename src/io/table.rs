@@ -327,8 +327,6 @@ struct Channel {
 /// Collects rows into channels and checks the one-row-per-point rule.
 pub(crate) struct Accumulator {
     ids: HashMap<Vec<u8>, u32>,
-    last_key: Vec<u8>,
-    last_id: u32,
     channels: Vec<Channel>,
     cfg_ids: HashMap<i64, u32>,
     /// Configuration numbers in first-seen order.
@@ -359,8 +357,6 @@ impl Accumulator {
     pub fn new(with_source: bool) -> Self {
         Accumulator {
             ids: HashMap::new(),
-            last_key: Vec::new(),
-            last_id: u32::MAX,
             channels: Vec::new(),
             cfg_ids: HashMap::new(),
             configs: Vec::new(),
@@ -371,15 +367,8 @@ impl Accumulator {
     }
 
     /// The channel id of an encoded key, if known.
-    pub fn channel(&mut self, key: &[u8]) -> Option<u32> {
-        if self.last_id != u32::MAX && self.last_key == key {
-            return Some(self.last_id);
-        }
-        let id = *self.ids.get(key)?;
-        self.last_key.clear();
-        self.last_key.extend_from_slice(key);
-        self.last_id = id;
-        Some(id)
+    pub fn channel(&self, key: &[u8]) -> Option<u32> {
+        self.ids.get(key).copied()
     }
 
     /// Register a new channel under an encoded key; returns its id.
@@ -390,9 +379,6 @@ impl Accumulator {
             cells: Vec::new(),
             first_line: line,
         });
-        self.last_key.clear();
-        self.last_key.extend_from_slice(key);
-        self.last_id = id;
         id
     }
 
@@ -522,5 +508,36 @@ impl Accumulator {
                 sources: self.sources.as_ref().map(|_| (smin.min(smax), smax)),
             },
         })
+    }
+}
+
+/// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
+/// channel (the usual case in long tables) skips parsing its key fields again.
+#[derive(Default)]
+pub(crate) struct KeyCache {
+    current: Vec<u8>,
+    last: Vec<u8>,
+    valid: bool,
+}
+
+impl KeyCache {
+    /// Load the key columns `cols` of the current row; `true` when they are byte-identical to
+    /// those of the last remembered row.
+    pub fn same_as_last<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) -> bool {
+        self.current.clear();
+        for &k in cols {
+            let b = rd.raw(k);
+            // length-prefixed, so that different field splits never compare equal
+            self.current
+                .extend_from_slice(&(b.len() as u32).to_le_bytes());
+            self.current.extend_from_slice(b);
+        }
+        self.valid && self.current == self.last
+    }
+
+    /// Remember the key loaded by the last call of [`KeyCache::same_as_last`].
+    pub fn remember(&mut self) {
+        std::mem::swap(&mut self.current, &mut self.last);
+        self.valid = true;
     }
 }
