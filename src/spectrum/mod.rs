@@ -117,6 +117,8 @@ pub struct SpectrumResult {
     pub mass: Option<Resampled>,
     /// Dispersion check at every non-zero momentum (needs `l_extent` and `p = 0`).
     pub dispersion: Vec<DispersionRow>,
+    /// Variational analysis per momentum (only when `gevp` is set in the settings).
+    pub gevp: BTreeMap<Momentum, gevp::GevpSpectrum>,
     /// Everything a user should know (dropped windows, failed resample fits, small samples).
     pub warnings: Vec<String>,
 }
@@ -345,12 +347,40 @@ pub fn run(
     settings: &SpectrumSettings,
 ) -> Result<SpectrumResult> {
     check_settings(settings)?;
-    let channels = select_channels(data, settings.smear.as_deref())?;
     let mut warnings = Vec::new();
+    let mut gevp_out = BTreeMap::new();
+    if let Some(g) = &settings.gevp {
+        let mut by_momentum: BTreeMap<Momentum, Vec<(String, Vec<Resampled>)>> = BTreeMap::new();
+        for (key, series) in &data.channels {
+            if let Some(label) = key
+                .smear
+                .as_deref()
+                .filter(|l| gevp::split_label(l).is_some())
+            {
+                by_momentum
+                    .entry(key.momentum)
+                    .or_default()
+                    .push((label.to_string(), resample_series(series, plan)?));
+            }
+        }
+        for (p, channels) in by_momentum {
+            gevp_out.insert(p, gevp::analyse(p, &channels, g, settings, &mut warnings)?);
+        }
+    }
     let mut per_momentum = BTreeMap::new();
-    for (&p, series) in &channels {
-        let corr = resample_series(series, plan)?;
-        per_momentum.insert(p, fit_correlator(p, &corr, settings, &mut warnings)?);
+    if settings.gevp.is_some() && settings.smear.is_none() {
+        // The ground principal correlator stands in for a single channel.
+        for (p, g) in &gevp_out {
+            if let Some(Some(s)) = g.states.first() {
+                per_momentum.insert(*p, s.clone());
+            }
+        }
+    } else {
+        let channels = select_channels(data, settings.smear.as_deref())?;
+        for (&p, series) in &channels {
+            let corr = resample_series(series, plan)?;
+            per_momentum.insert(p, fit_correlator(p, &corr, settings, &mut warnings)?);
+        }
     }
     let mass = per_momentum
         .get(&[0, 0, 0])
@@ -381,6 +411,7 @@ pub fn run(
         per_momentum,
         mass,
         dispersion,
+        gevp: gevp_out,
         warnings,
     })
 }

@@ -94,7 +94,11 @@ pub struct SpectrumSettings {
     pub smear: Option<String>,
     /// Energies handed to later stages.
     pub energies: EnergySource,
-    /// Levenberg–Marquardt settings.
+    /// Variational analysis of correlator matrices (channels with `smear` labels `a-b`).
+    pub gevp: Option<GevpSettings>,
+    /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
+    /// error, and about half the iterations of the machine-precision defaults of
+    /// [`FitSettings`]).
     pub fit: FitSettings,
 }
 
@@ -111,7 +115,13 @@ impl Default for SpectrumSettings {
             twist: None,
             smear: None,
             energies: EnergySource::Fitted,
-            fit: FitSettings::default(),
+            gevp: None,
+            fit: FitSettings {
+                ftol: 1e-10,
+                xtol: 1e-10,
+                gtol: 1e-10,
+                ..FitSettings::default()
+            },
         }
     }
 }
