@@ -10,5 +10,6 @@ mod mock;
 mod pipeline;
 mod q2;
 mod ratio;
+mod report;
 mod resample;
 mod spectrum;
