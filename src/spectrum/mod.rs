@@ -40,10 +40,9 @@ pub use window::WindowFit;
 use crate::data::{Momentum, TwoPointData};
 use crate::error::{Error, Result};
 use crate::fit::Weights;
-use crate::resample::{ResamplePlan, Resampled};
+use crate::resample::{covariance, ResamplePlan, Resampled};
 use effective::{effective_mass, EffectiveMassKind};
 use model::{Form, MAX_STATES};
-use nalgebra::DMatrix;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use window::{fit_window, WindowSpec};
@@ -125,12 +124,6 @@ pub struct SpectrumResult {
 
 fn label(p: Momentum) -> String {
     format!("momentum ({},{},{})", p[0], p[1], p[2])
-}
-
-/// Covariance of resampled values (frozen for all resample fits of a window).
-fn covariance(values: &[Resampled]) -> DMatrix<f64> {
-    let d = values.len();
-    DMatrix::from_fn(d, d, |i, j| values[i].covariance(&values[j]))
 }
 
 fn check_settings(s: &SpectrumSettings) -> Result<()> {
@@ -266,12 +259,17 @@ pub fn fit_correlator(
     let mut fits = Vec::new();
     for t_min in settings.t_min.values().filter(|&t| t < t_max) {
         let window = &corr[t_min..=t_max];
-        let w = Weights::from_covariance(&covariance(window)).map_err(|e| {
+        let in_window = |e: Error| {
             Error::analysis(
                 "spectrum",
                 format!("{name}, window [{t_min}, {t_max}]: {e}"),
             )
-        })?;
+        };
+        let cov = covariance::estimate(window, &settings.covariance).map_err(in_window)?;
+        for w in &cov.warnings {
+            warnings.push(format!("{name}, window [{t_min}, {t_max}]: {w}"));
+        }
+        let w = Weights::from_covariance(&cov.matrix).map_err(in_window)?;
         for n_states in settings.n_states.values() {
             match fit_window(&spec, t_min, t_max, n_states, &w) {
                 Ok(f) => {

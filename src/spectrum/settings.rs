@@ -1,6 +1,7 @@
 //! Settings of the spectrum stage (the `spectrum:` block of a pipeline file).
 
 use crate::fit::{FitSettings, Prior};
+use crate::resample::covariance::CovarianceOptions;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
@@ -82,6 +83,9 @@ pub struct SpectrumSettings {
     pub n_states: IntRange,
     /// Priors of the fits.
     pub priors: PriorSettings,
+    /// How the covariance of each fit window is estimated from the resamples (once per
+    /// window, then frozen for every resample's fit).
+    pub covariance: CovarianceOptions,
     /// Symmetric periodic form `A (e^{-Et} + e^{-E(T-t)})` (mesons with periodic time).
     pub periodic: bool,
     /// Time extent `T`; default: the number of time slices in the data.
@@ -109,6 +113,7 @@ impl Default for SpectrumSettings {
             t_max: None,
             n_states: IntRange { from: 1, to: 2 },
             priors: PriorSettings::default(),
+            covariance: CovarianceOptions::default(),
             periodic: false,
             t_extent: None,
             l_extent: None,
