@@ -40,6 +40,7 @@ pub mod settings;
 pub mod summation;
 pub mod two_state;
 mod two_state_float;
+mod two_state_joint;
 
 pub use analyse::{analyse_all, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
