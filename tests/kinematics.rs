@@ -508,7 +508,11 @@ mod decomposition {
             .collect();
         let currents = [Current::V1, Current::V2, Current::V3, Current::V4];
         let exact = exact_channels(&st, &frames, &currents, &truth);
-        for weights in [DecompositionWeights::Diagonal, DecompositionWeights::Full] {
+        for weights in [
+            DecompositionWeights::Diagonal,
+            DecompositionWeights::Full,
+            DecompositionWeights::Shrinkage,
+        ] {
             let settings = DecompositionSettings {
                 weights,
                 ..Default::default()
@@ -572,7 +576,8 @@ mod decomposition {
         // over d points: the inverse is biased high by (N - 1)/(N - d - 2) (Hartlap, Simon &
         // Schneider, A&A 464 (2007) 399).
         let want = match settings.weights {
-            DecompositionWeights::Diagonal => 1.0,
+            // Uncorrelated noise: the Ledoit–Wolf intensity is near 1, i.e. near-diagonal weights.
+            DecompositionWeights::Diagonal | DecompositionWeights::Shrinkage => 1.0,
             DecompositionWeights::Full => (n_cfg as f64 - 1.0) / (n_cfg as f64 - rows as f64 - 2.0),
         };
         assert!(
