@@ -489,8 +489,15 @@ impl Accumulator {
         for &id in order {
             let chan = &self.channels[id as usize];
             let nt = n_t(id);
-            let mut re = Vec::with_capacity(nt * n_cfg);
-            let mut im = Vec::with_capacity(nt * n_cfg);
+            // Reserve only once the channel is known to reach its last time slice, so a
+            // corrupt time value cannot trigger a huge allocation before the gap is found.
+            let cap = if chan.cells.len() == nt {
+                nt * n_cfg
+            } else {
+                0
+            };
+            let mut re = Vec::with_capacity(cap);
+            let mut im = Vec::with_capacity(cap);
             for t in 0..nt {
                 let row = chan.cells.get(t).map_or(&[][..], |r| &r[..]);
                 for &(config, i) in &sorted {

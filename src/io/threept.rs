@@ -112,7 +112,7 @@ fn current_names() -> String {
         .join(", ")
 }
 
-fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePointData, Summary)> {
+pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePointData, Summary)> {
     let mut rd = TableReader::new(input, file, SCHEMA)?;
     let with_source = rd.index[SOURCE].is_some();
     let with_flavor = rd.index[FLAVOR].is_some();

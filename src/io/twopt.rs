@@ -71,7 +71,7 @@ pub(crate) fn read_with_summary(path: &Path) -> Result<(TwoPointData, Summary)> 
     read_inner(open(path)?, display_name(path))
 }
 
-fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointData, Summary)> {
+pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointData, Summary)> {
     let mut rd = TableReader::new(input, file, SCHEMA)?;
     let with_source = rd.index[SOURCE].is_some();
     let with_smear = rd.index[SMEAR].is_some();

@@ -87,5 +87,6 @@ pub fn average_channels(
         key: lead_key.clone(),
         points,
         negative_root,
+        n_bins: lead.n_bins,
     })
 }

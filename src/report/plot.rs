@@ -12,6 +12,7 @@ use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::ops::Range;
+use std::path::Path;
 
 /// The series palette: blue, vermillion, bluish green, reddish purple, orange, sky blue,
 /// dark grey (Okabe & Ito 2008 hues; their yellow is left out as too faint on white).
@@ -28,11 +29,13 @@ pub const PALETTE: [(u8, u8, u8); 7] = [
 const GREY: RGBColor = RGBColor(120, 120, 120);
 const FONT: &str = "sans-serif";
 
-/// Which corner of the plot area holds the legend.
+/// Where the legend goes.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub enum Legend {
-    /// Upper right (the default).
+    /// A column right of the plot, never covering data (the default).
     #[default]
+    Outside,
+    /// Inside the plot, upper right corner.
     UpperRight,
     /// Upper left.
     UpperLeft,
@@ -81,7 +84,7 @@ impl Default for Chart {
             log_y: false,
             x_range: None,
             y_range: None,
-            legend: Legend::UpperRight,
+            legend: Legend::Outside,
             size: (800, 500),
         }
     }
@@ -244,11 +247,24 @@ pub fn render_svg(chart: &Chart) -> Result<String> {
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, chart.size).into_drawing_area();
-        let drawn = if chart.log_y {
-            draw(chart, &root, xr, yr.log_scale())
-        } else {
-            draw(chart, &root, xr, yr)
-        };
+        let ends = (yr.start, yr.end);
+        let drawn = layout(chart, &root).and_then(|(body, side)| {
+            if let Some(side) = side {
+                draw_side_legend(chart, &side)?;
+            }
+            if chart.log_y {
+                let powers = yr.start < 0.01 || yr.end > 1000.0;
+                draw(chart, &body, xr, yr.clone().log_scale(), ends, &|v| {
+                    if powers {
+                        power_tick(v)
+                    } else {
+                        tick(v)
+                    }
+                })
+            } else {
+                draw(chart, &body, xr, yr.clone(), ends, &tick)
+            }
+        });
         drawn
             .and_then(|()| root.present())
             .map_err(|e| Error::analysis("report", format!("chart `{}`: {e}", chart.title)))?;
@@ -256,27 +272,107 @@ pub fn render_svg(chart: &Chart) -> Result<String> {
     Ok(buf)
 }
 
-type DrawResult = std::result::Result<(), DrawingAreaErrorKind<std::io::Error>>;
+/// Render `chart` and write the SVG to `path`.
+pub fn write_svg(chart: &Chart, path: &Path) -> Result<()> {
+    let svg = render_svg(chart)?;
+    std::fs::write(path, svg).map_err(|e| Error::io(path, e))
+}
+
+type DrawResult<T = ()> = std::result::Result<T, DrawingAreaErrorKind<std::io::Error>>;
+type Area<'a> = DrawingArea<SVGBackend<'a>, Shift>;
+
+/// White background, the title across the top, and (for [`Legend::Outside`] with labelled
+/// series) a legend column on the right: returns the plot area and the legend column.
+fn layout<'a>(chart: &Chart, root: &Area<'a>) -> DrawResult<(Area<'a>, Option<Area<'a>>)> {
+    root.fill(&WHITE)?;
+    let body = if chart.title.is_empty() {
+        root.clone()
+    } else {
+        root.titled(&chart.title, (FONT, 20))?
+    };
+    let labels: Vec<usize> = chart
+        .series
+        .iter()
+        .filter(|s| !s.label.is_empty())
+        .map(|s| s.label.chars().count())
+        .collect();
+    if chart.legend != Legend::Outside || labels.is_empty() {
+        return Ok((body, None));
+    }
+    // About 7 px per character of a 14 px sans-serif font, plus the glyph column.
+    let longest = labels.into_iter().max().unwrap_or(0) as i32;
+    let width = (52 + 7 * longest).min(chart.size.0 as i32 / 2);
+    let (plot, side) = body.split_horizontally(chart.size.0 as i32 - width);
+    Ok((plot, Some(side)))
+}
+
+/// The legend as a column beside the plot, entries in series order.
+fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
+    let style =
+        TextStyle::from((FONT, 14).into_font()).pos(plotters::style::text_anchor::Pos::new(
+            plotters::style::text_anchor::HPos::Left,
+            plotters::style::text_anchor::VPos::Center,
+        ));
+    let mut y = 24;
+    for s in chart.series.iter().filter(|s| !s.label.is_empty()) {
+        let c = colour_of(s.colour);
+        match &s.kind {
+            SeriesKind::Band { .. } => {
+                side.draw(&Rectangle::new(
+                    [(8, y - 6), (32, y + 6)],
+                    c.mix(0.35).filled(),
+                ))?;
+            }
+            SeriesKind::Line { dashed: false, .. } => {
+                side.draw(&PathElement::new(vec![(8, y), (32, y)], c.stroke_width(2)))?;
+            }
+            SeriesKind::Line { dashed: true, .. } => {
+                for x in [8, 19] {
+                    side.draw(&PathElement::new(
+                        vec![(x, y), (x + 7, y)],
+                        c.stroke_width(2),
+                    ))?;
+                }
+            }
+            SeriesKind::Points { .. } => {
+                side.draw(&PathElement::new(
+                    vec![(20, y - 8), (20, y + 8)],
+                    c.stroke_width(1),
+                ))?;
+                match s.colour % 4 {
+                    0 => side.draw(&circle(20, y, c))?,
+                    1 => side.draw(&square(20, y, c))?,
+                    2 => side.draw(&triangle(20, y, c))?,
+                    _ => side.draw(&diamond(20, y, c))?,
+                }
+            }
+        }
+        side.draw(&Text::new(s.label.clone(), (40, y), style.clone()))?;
+        y += 24;
+    }
+    Ok(())
+}
 
 fn draw<Y>(
     chart: &Chart,
-    root: &DrawingArea<SVGBackend<'_>, Shift>,
+    root: &Area<'_>,
     xr: Range<f64>,
     yr: Y,
+    y_ends: (f64, f64),
+    y_tick: &dyn Fn(f64) -> String,
 ) -> DrawResult
 where
     Y: AsRangedCoord<Value = f64>,
     Y::CoordDescType: ValueFormatter<f64>,
 {
-    root.fill(&WHITE)?;
     let (x0, x1) = (xr.start, xr.end);
     let (y_lo, y_hi) = (chart.y_floor(), f64::INFINITY);
+    let y_area = y_label_area(y_ends, chart.log_y, y_tick);
     let mut ctx = ChartBuilder::on(root)
-        .caption(&chart.title, (FONT, 20))
         .margin(12)
         .margin_right(24)
         .x_label_area_size(48)
-        .y_label_area_size(78)
+        .y_label_area_size(y_area)
         .build_cartesian_2d(xr, yr)?;
     ctx.configure_mesh()
         .x_desc(&chart.x_label)
@@ -284,7 +380,7 @@ where
         .x_labels(10)
         .y_labels(8)
         .x_label_formatter(&|v| tick(*v))
-        .y_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| y_tick(*v))
         .label_style((FONT, 14))
         .axis_desc_style((FONT, 16))
         .bold_line_style(RGBColor(225, 225, 225))
@@ -438,7 +534,7 @@ where
         Legend::UpperLeft => SeriesLabelPosition::UpperLeft,
         Legend::LowerRight => SeriesLabelPosition::LowerRight,
         Legend::LowerLeft => SeriesLabelPosition::LowerLeft,
-        Legend::Hidden => return Ok(()),
+        Legend::Outside | Legend::Hidden => return Ok(()),
     };
     if chart.series.iter().any(|s| !s.label.is_empty()) {
         ctx.configure_series_labels()
@@ -565,9 +661,85 @@ fn padded(v: &[f64], frac: f64, log: bool) -> Range<f64> {
     inv(lo - pad)..inv(hi + pad)
 }
 
-/// A tick label: up to 6 significant digits without trailing zeros; powers of ten and
-/// very small or large values in `1e-5` style.
+/// Width in pixels for the y tick labels and the rotated axis description: the longest
+/// likely tick label (ends and middle of the range rounded to a 1-2-5 step of about a
+/// tenth of it; powers of ten on a log axis) at the naive text metric of the SVG backend
+/// (0.7 em per character at 14 px), plus room for the description.
+fn y_label_area((lo, hi): (f64, f64), log: bool, y_tick: &dyn Fn(f64) -> String) -> u32 {
+    let samples: Vec<f64> = if log {
+        vec![
+            10f64.powf(lo.log10().floor()),
+            10f64.powf(hi.log10().ceil()),
+        ]
+    } else {
+        let raw = (hi - lo) / 10.0;
+        let mag = 10f64.powf(raw.log10().floor());
+        let step = [1.0, 2.0, 5.0, 10.0]
+            .into_iter()
+            .map(|m| m * mag)
+            .find(|&s| s >= raw)
+            .unwrap_or(10.0 * mag);
+        [lo, hi, 0.5 * (lo + hi), lo + step]
+            .into_iter()
+            .map(|v| (v / step).round() * step)
+            .collect()
+    };
+    let chars = samples
+        .iter()
+        .map(|&v| y_tick(v).chars().count())
+        .max()
+        .unwrap_or(4);
+    (40 + 8 * chars as u32).clamp(64, 160)
+}
+
+/// A tick label on a logarithmic axis: `10⁻³`, `2×10⁻⁵` (Unicode superscripts).
+fn power_tick(v: f64) -> String {
+    if !(v.is_finite() && v > 0.0) {
+        return tick(v);
+    }
+    let mut exp = v.log10().floor() as i32;
+    let mut mant = v / 10f64.powi(exp);
+    if mant >= 9.9995 {
+        mant /= 10.0;
+        exp += 1;
+    }
+    let sup: String = exp
+        .to_string()
+        .chars()
+        .map(|c| match c {
+            '-' => '⁻',
+            '0' => '⁰',
+            '1' => '¹',
+            '2' => '²',
+            '3' => '³',
+            '4' => '⁴',
+            '5' => '⁵',
+            '6' => '⁶',
+            '7' => '⁷',
+            '8' => '⁸',
+            _ => '⁹',
+        })
+        .collect();
+    if (mant - 1.0).abs() < 5e-4 {
+        format!("10{sup}")
+    } else {
+        let m = format!("{mant:.3}");
+        let m = m.trim_end_matches('0').trim_end_matches('.');
+        format!("{m}×10{sup}")
+    }
+}
+
+/// A tick label: up to 6 significant digits without trailing zeros, very small or large
+/// values in `1e-5` style, negative numbers with a typographic minus sign.
 fn tick(v: f64) -> String {
+    let s = plain_tick(v);
+    match s.strip_prefix('-') {
+        Some(rest) => format!("−{rest}"),
+        None => s,
+    }
+}
+
+fn plain_tick(v: f64) -> String {
     if v == 0.0 || !v.is_finite() {
         return if v == 0.0 { "0".into() } else { format!("{v}") };
     }
@@ -593,12 +765,23 @@ mod tests {
     #[test]
     fn tick_labels() {
         assert_eq!(tick(0.30000000000000004), "0.3");
-        assert_eq!(tick(-0.125), "-0.125");
+        assert_eq!(tick(-0.125), "−0.125");
+        assert_eq!(tick(-3.0), "−3");
         assert_eq!(tick(12.0), "12");
         assert_eq!(tick(0.0), "0");
         assert_eq!(tick(1e-5), "1e-5");
         assert_eq!(tick(2.5e-7), "2.5e-7");
+        assert_eq!(tick(-2.5e-7), "−2.5e-7");
         assert_eq!(tick(1e6), "1e6");
+    }
+
+    #[test]
+    fn power_tick_labels() {
+        assert_eq!(power_tick(1e-3), "10⁻³");
+        assert_eq!(power_tick(1.0), "10⁰");
+        assert_eq!(power_tick(2e-5), "2×10⁻⁵");
+        assert_eq!(power_tick(1e12), "10¹²");
+        assert_eq!(power_tick(0.09999999999), "10⁻¹");
     }
 
     #[test]

@@ -7,6 +7,9 @@
 //! - Jackknife: sample `j` is the mean with bin `j` left out. It is computed in O(N) from the
 //!   full mean, `x̄_(j) = x̄ - (x_j - x̄) / (N - 1)`, algebraically the leave-one-out sum
 //!   `(S - x_j) / (N - 1)` but free of the cancellation a large common offset would cause.
+//!   Samples are stored as absolute values, so the error they give is good to about
+//!   `ulp(x̄) (N-1) / (s sqrt(N))` relative (negligible unless the spread `s` is some 1e-8
+//!   of the mean or smaller).
 //! - Bootstrap: sample `k` draws `N` bins with replacement from its own ChaCha8 stream
 //!   (`seed`, stream `k`); the plan stores how often each bin is drawn. The draws therefore do
 //!   not depend on the number of threads or the order of evaluation.
