@@ -1,1 +1,171 @@
-//! Placeholder; filled by the ratio work.
+//! The three-point/two-point ratio and excited-state control (methods.md §3, §4).
+//!
+//! A three-point function decays with the energies of the states it connects and carries
+//! their unknown overlaps; the ratio of methods.md §3 cancels both, so that at large source–sink
+//! separation it tends to the matrix element `Pi(Gamma, O; p_f, p_i)`. At the separations a
+//! lattice can afford, excited states still contaminate it. This module builds the ratio per
+//! resample and extracts the matrix element three ways, reported side by side:
+//!
+//! - **plateau** ([`plateau`]): a correlated constant fit over `tau in [tau_cut, tsep - tau_cut]`
+//!   at each `tsep` (closed form `c = 1^T W y / 1^T W 1`);
+//! - **summation** ([`summation`]): `S(tsep) = sum_tau R` is linear in `tsep` with slope equal to
+//!   the matrix element up to `O(tsep e^{-Delta tsep})` (Maiani et al., Nucl. Phys. B 293 (1987)
+//!   420; Capitani et al., Phys. Rev. D 86 (2012) 074502);
+//! - **two-state** ([`two_state`]): the exact two-state form of the ratio with the two-point
+//!   gaps and amplitude ratios (fixed per resample, or floating with Gaussian priors).
+//!
+//! [`crosscheck`] compares them with the error of each difference taken from the resamples of
+//! the difference (the estimates share the same data and are correlated), and a
+//! [`settings::FinalMethod`] policy picks the number that feeds the decomposition. [`renorm`]
+//! applies `Z ± dZ` keeping the `Z` error as its own column; [`average`] averages equivalent
+//! channels (same kinematic factor up to sign) before any fit.
+//!
+//! Entry points: [`build::build_ratios`] (all channels) then [`analyse::analyse_channel`] per
+//! channel, or [`analyse::analyse_all`] for both steps. The output per channel is a
+//! [`ChannelResult`]: the ratio points, the plateau per `tsep`, the summation and two-state
+//! estimates (each a real/imaginary pair of [`Resampled`] values with its fit quality), the
+//! cross-check rows and the final estimate.
+//!
+//! Real and imaginary parts are fitted separately with the same (real) model: `C3` is complex,
+//! `C2` real, and the ratio's kinematic factor may be purely imaginary.
+
+pub mod analyse;
+pub mod average;
+pub mod build;
+pub mod crosscheck;
+mod lsq;
+pub mod plateau;
+pub mod renorm;
+pub mod settings;
+pub mod summation;
+pub mod two_state;
+mod two_state_float;
+
+pub use analyse::{analyse_all, analyse_channel, ChannelResult};
+pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
+pub use crosscheck::{CrossCheckRow, Flag};
+pub use plateau::PlateauFit;
+pub use renorm::{Renormalized, ZFactor, ZFactors};
+pub use settings::{FinalMethod, NegativeRootPolicy, RatioSettings, TwoStateVariant};
+pub use summation::SummationFit;
+pub use two_state::{TwoPointStates, TwoStateFit};
+
+use crate::data::{Current, Diagram, Momentum, Projector, ThreePointKey};
+use crate::resample::Resampled;
+use serde::Serialize;
+use std::fmt;
+
+/// The stage name used in [`crate::Error::Analysis`].
+pub(crate) const STAGE: &str = "ratio";
+
+/// A three-point channel without its source–sink separation: the unit of excited-state
+/// analysis (all `tsep` of one channel are fitted together).
+#[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+pub struct ChannelKey {
+    /// Sink momentum.
+    pub pf: Momentum,
+    /// Momentum injected by the current; the source momentum is `pf - q`.
+    pub q: Momentum,
+    /// The inserted current.
+    pub current: Current,
+    /// The spin projector.
+    pub projector: Projector,
+    /// Flavour label, if any.
+    pub flavor: Option<String>,
+    /// Diagram label, if any.
+    pub diagram: Option<Diagram>,
+}
+
+impl ChannelKey {
+    /// The channel of a three-point key (its `tsep` dropped).
+    pub fn of(key: &ThreePointKey) -> Self {
+        ChannelKey {
+            pf: key.pf,
+            q: key.q,
+            current: key.current,
+            projector: key.projector,
+            flavor: key.flavor.clone(),
+            diagram: key.diagram,
+        }
+    }
+
+    /// The three-point key of this channel at separation `tsep`.
+    pub fn at(&self, tsep: u32) -> ThreePointKey {
+        ThreePointKey {
+            tsep,
+            pf: self.pf,
+            q: self.q,
+            current: self.current,
+            projector: self.projector,
+            flavor: self.flavor.clone(),
+            diagram: self.diagram,
+        }
+    }
+
+    /// Source momentum `p_i = p_f - q`.
+    pub fn pi(&self) -> Momentum {
+        crate::data::sub(self.pf, self.q)
+    }
+}
+
+impl fmt::Display for ChannelKey {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "pf={:?} q={:?} {} {}",
+            self.pf, self.q, self.current, self.projector
+        )?;
+        if let Some(fl) = &self.flavor {
+            write!(f, " flavor={fl}")?;
+        }
+        if let Some(d) = &self.diagram {
+            write!(f, " diagram={d:?}")?;
+        }
+        Ok(())
+    }
+}
+
+/// A complex quantity as a pair of resampled real and imaginary parts.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReIm {
+    /// Real part.
+    pub re: Resampled,
+    /// Imaginary part.
+    pub im: Resampled,
+}
+
+impl ReIm {
+    /// Apply `f` to both parts.
+    pub fn map_parts(&self, f: impl Fn(&Resampled) -> Resampled) -> ReIm {
+        ReIm {
+            re: f(&self.re),
+            im: f(&self.im),
+        }
+    }
+}
+
+/// Quality of one correlated fit, evaluated on the central data.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct FitQuality {
+    /// Correlated chi-square (plus prior terms for prior-constrained fits).
+    pub chi2: f64,
+    /// Degrees of freedom (points minus parameters).
+    pub dof: i64,
+    /// p-value from the chi-square distribution with `dof` degrees of freedom (NaN, i.e.
+    /// undefined, when `dof <= 0`, as in [`crate::fit::p_value`]).
+    pub p_value: f64,
+}
+
+/// A fitted complex estimate: each part fitted separately, each with its fit quality.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReImFit {
+    /// The estimate.
+    pub value: ReIm,
+    /// Fit quality of the real part.
+    pub quality_re: FitQuality,
+    /// Fit quality of the imaginary part.
+    pub quality_im: FitQuality,
+    /// Warnings of the covariance estimates (too few resamples for the number of points,
+    /// poor conditioning), one line each.
+    pub warnings: Vec<String>,
+}

@@ -1,0 +1,219 @@
+//! Non-linear least squares by Levenberg–Marquardt (Moré's MINPACK variant, through the
+//! `levenberg-marquardt` crate) on whitened residuals plus prior residuals (methods.md §2).
+//!
+//! The residual vector handed to the solver is `[W (f(x) - y); (x_k - mean_k) / width_k]`, its
+//! Jacobian `[W J(x); diag(1 / width_k)]` with `J` the model's analytic Jacobian. Invalid input
+//! (wrong lengths, NaN, bad priors or settings) and solver failures come back as a
+//! non-converged [`FitReport`] with a message, never as a panic.
+
+use super::{check_priors, lstsq, p_value, FitReport, Model, Prior, Weights};
+use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
+use nalgebra::{DMatrix, DVector, Dyn, Owned};
+
+/// Solver settings (see the `levenberg-marquardt` crate / MINPACK `lmder` for their meaning).
+#[derive(
+    Clone, Copy, Debug, PartialEq, serde::Serialize, serde::Deserialize, schemars::JsonSchema,
+)]
+#[serde(default, deny_unknown_fields)]
+pub struct FitSettings {
+    /// Relative reduction of the sum of squares at which to stop.
+    pub ftol: f64,
+    /// Relative change of the parameters at which to stop.
+    pub xtol: f64,
+    /// Orthogonality of residuals and Jacobian columns at which to stop.
+    pub gtol: f64,
+    /// At most `patience * (n_params + 1)` residual evaluations.
+    pub patience: usize,
+    /// Initial step bound factor (MINPACK `factor`).
+    pub stepbound: f64,
+}
+
+impl Default for FitSettings {
+    /// Tolerances of 30 machine epsilons (the crate's defaults) and a patience of 400, tuned
+    /// on the NIST StRD problems in `tests/fit.rs`.
+    fn default() -> Self {
+        FitSettings {
+            ftol: 30.0 * f64::EPSILON,
+            xtol: 30.0 * f64::EPSILON,
+            gtol: 30.0 * f64::EPSILON,
+            patience: 400,
+            stepbound: 100.0,
+        }
+    }
+}
+
+impl FitSettings {
+    fn check(&self) -> Result<(), String> {
+        let ok = |x: f64| x.is_finite() && x >= 0.0;
+        if !ok(self.ftol) || !ok(self.xtol) || !ok(self.gtol) {
+            return Err(format!(
+                "fit tolerances must be finite and non-negative (ftol {}, xtol {}, gtol {})",
+                self.ftol, self.xtol, self.gtol
+            ));
+        }
+        if self.patience == 0 || !(self.stepbound > 0.0 && self.stepbound.is_finite()) {
+            return Err(format!(
+                "patience must be positive and stepbound positive (got {}, {})",
+                self.patience, self.stepbound
+            ));
+        }
+        Ok(())
+    }
+}
+
+struct Problem<'a> {
+    model: &'a dyn Model,
+    y: &'a [f64],
+    weights: &'a Weights,
+    priors: Vec<(usize, Prior)>,
+    x: DVector<f64>,
+}
+
+impl Problem<'_> {
+    fn n_rows(&self) -> usize {
+        self.y.len() + self.priors.len()
+    }
+}
+
+impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
+    type ResidualStorage = Owned<f64, Dyn>;
+    type JacobianStorage = Owned<f64, Dyn, Dyn>;
+    type ParameterStorage = Owned<f64, Dyn>;
+
+    fn set_params(&mut self, x: &DVector<f64>) {
+        self.x.copy_from(x);
+    }
+
+    fn params(&self) -> DVector<f64> {
+        self.x.clone()
+    }
+
+    fn residuals(&self) -> Option<DVector<f64>> {
+        let n = self.y.len();
+        let mut f = vec![0.0; n];
+        self.model.eval(self.x.as_slice(), &mut f);
+        for (fi, yi) in f.iter_mut().zip(self.y) {
+            *fi -= yi;
+        }
+        let mut r = DVector::zeros(self.n_rows());
+        self.weights.whiten(&f, &mut r.as_mut_slice()[..n]);
+        for (k, (j, p)) in self.priors.iter().enumerate() {
+            r[n + k] = (self.x[*j] - p.mean) / p.width;
+        }
+        r.iter().all(|v| v.is_finite()).then_some(r)
+    }
+
+    fn jacobian(&self) -> Option<DMatrix<f64>> {
+        let n = self.y.len();
+        let np = self.x.len();
+        let mut jm = DMatrix::zeros(n, np);
+        self.model.jacobian(self.x.as_slice(), &mut jm);
+        let wj = self.weights.whiten_matrix(&jm);
+        let mut j = DMatrix::zeros(self.n_rows(), np);
+        j.rows_mut(0, n).copy_from(&wj);
+        for (k, (col, p)) in self.priors.iter().enumerate() {
+            j[(n + k, *col)] = 1.0 / p.width;
+        }
+        j.iter().all(|v| v.is_finite()).then_some(j)
+    }
+}
+
+fn failed(start: &[f64], dof: i64, message: String) -> FitReport {
+    FitReport {
+        params: start.to_vec(),
+        chi2: f64::NAN,
+        dof,
+        p_value: f64::NAN,
+        converged: false,
+        iterations: 0,
+        message,
+        covariance: None,
+    }
+}
+
+/// Fit `model` to `y` with weights `w`, optional Gaussian priors (empty slice or one entry per
+/// parameter) and starting values `start`. Always returns a report; `converged == false`
+/// with a `message` says why a fit failed.
+pub fn fit(
+    model: &dyn Model,
+    y: &[f64],
+    w: &Weights,
+    priors: &[Option<Prior>],
+    start: &[f64],
+    settings: &FitSettings,
+) -> FitReport {
+    let np = model.n_params();
+    let n = model.n_points();
+    let dof = n as i64 - np as i64;
+    if y.len() != n || w.len() != n || start.len() != np {
+        return failed(
+            start,
+            dof,
+            format!(
+                "shape mismatch: model has {n} points and {np} parameters, got {} data, {} weights, {} starting values",
+                y.len(),
+                w.len(),
+                start.len()
+            ),
+        );
+    }
+    if let Err(m) = check_priors(priors, np).and_then(|_| settings.check()) {
+        return failed(start, dof, m);
+    }
+    if let Some(i) = y.iter().position(|v| !v.is_finite()) {
+        return failed(start, dof, format!("data point {i} is {}", y[i]));
+    }
+    if start.iter().any(|v| !v.is_finite()) {
+        return failed(start, dof, "starting values are not finite".into());
+    }
+    let priors: Vec<(usize, Prior)> = priors
+        .iter()
+        .enumerate()
+        .filter_map(|(k, p)| p.map(|p| (k, p)))
+        .collect();
+    if n + priors.len() < np {
+        return failed(
+            start,
+            dof,
+            format!(
+                "{n} data points and {} priors cannot determine {np} parameters",
+                priors.len()
+            ),
+        );
+    }
+    let problem = Problem {
+        model,
+        y,
+        weights: w,
+        priors,
+        x: DVector::from_column_slice(start),
+    };
+    let lm = LevenbergMarquardt::new()
+        .with_ftol(settings.ftol)
+        .with_xtol(settings.xtol)
+        .with_gtol(settings.gtol)
+        .with_patience(settings.patience)
+        .with_stepbound(settings.stepbound);
+    let (problem, report) = lm.minimize(problem);
+    let params: Vec<f64> = problem.x.iter().copied().collect();
+    let (chi2, covariance) = match (problem.residuals(), problem.jacobian()) {
+        (Some(r), Some(j)) => (r.norm_squared(), lstsq(&j, &r).map(|(_, cov)| cov)),
+        _ => (f64::NAN, None),
+    };
+    let converged = report.termination.was_successful() && chi2.is_finite();
+    let message = if converged {
+        String::new()
+    } else {
+        format!("Levenberg–Marquardt stopped: {:?}", report.termination)
+    };
+    FitReport {
+        params,
+        chi2,
+        dof,
+        p_value: p_value(chi2, dof),
+        converged,
+        iterations: report.number_of_evaluations,
+        message,
+        covariance,
+    }
+}

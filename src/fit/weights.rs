@@ -1,0 +1,196 @@
+//! Residual whitening from a data covariance (methods.md §2, correlated chi-square).
+//!
+//! `chi2 = r^T Cov^{-1} r = |W r|^2` with `W^T W = Cov^{-1}`. `W` is built from the Cholesky
+//! factor of the *correlation* matrix, `Cov = D R D`, `R = U U^T`: `W = U^{-1} D^{-1}`, which is
+//! lower triangular (the transpose of an upper-triangular Cholesky-type factor of `Cov^{-1}`).
+//! Working on the correlation matrix keeps the condition number meaningful for data whose
+//! variances span many orders of magnitude (two-point functions): a covariance is refused when
+//! its correlation matrix is not positive definite or is worse conditioned than
+//! [`Weights::MAX_CONDITION`] (common practice: never invert a singular matrix silently).
+
+use crate::error::{Error, Result};
+use nalgebra::DMatrix;
+
+/// Whitening of residuals: full (from a covariance) or diagonal (from errors).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Weights {
+    /// Lower-triangular whitening matrix `W` (`W^T W = Cov^{-1}`).
+    whitening: DMatrix<f64>,
+    /// Condition number of the correlation matrix (1 for diagonal weights).
+    condition: f64,
+}
+
+impl Weights {
+    /// Largest accepted condition number of the correlation matrix.
+    pub const MAX_CONDITION: f64 = 1e12;
+
+    /// Weights from a covariance matrix. Errors when the matrix is not square, not finite,
+    /// has a non-positive variance, is not positive definite, or its correlation matrix has a
+    /// condition number above [`Weights::MAX_CONDITION`]; the message states the condition
+    /// number.
+    pub fn from_covariance(cov: &DMatrix<f64>) -> Result<Weights> {
+        let n = cov.nrows();
+        if n == 0 || cov.ncols() != n {
+            return Err(Error::analysis(
+                "fit",
+                format!(
+                    "covariance is {}x{}; expected a non-empty square matrix",
+                    cov.nrows(),
+                    cov.ncols()
+                ),
+            ));
+        }
+        if cov.iter().any(|x| !x.is_finite()) {
+            return Err(Error::analysis(
+                "fit",
+                "covariance contains NaN or infinite entries",
+            ));
+        }
+        let d: Vec<f64> = (0..n).map(|i| cov[(i, i)]).collect();
+        if let Some(i) = d.iter().position(|&v| v <= 0.0) {
+            return Err(Error::analysis(
+                "fit",
+                format!(
+                    "covariance has variance {} at point {i}; expected positive variances",
+                    d[i]
+                ),
+            ));
+        }
+        let s: Vec<f64> = d.iter().map(|v| v.sqrt()).collect();
+        let corr = DMatrix::from_fn(n, n, |i, j| {
+            0.5 * (cov[(i, j)] + cov[(j, i)]) / (s[i] * s[j])
+        });
+        let eig = corr.clone().symmetric_eigen();
+        let lmax = eig.eigenvalues.max();
+        let lmin = eig.eigenvalues.min();
+        let condition = if lmin > 0.0 {
+            lmax / lmin
+        } else {
+            f64::INFINITY
+        };
+        if condition.is_nan() || condition > Self::MAX_CONDITION {
+            return Err(Error::analysis(
+                "fit",
+                format!(
+                    "covariance is singular or not positive definite: condition number of the \
+                     correlation matrix {condition:.3e} (smallest eigenvalue {lmin:.3e}); accepted \
+                     up to {:.0e} — use shrinkage, an eigenvalue cut or diagonal weights",
+                    Self::MAX_CONDITION
+                ),
+            ));
+        }
+        let chol = corr.cholesky().ok_or_else(|| {
+            Error::analysis(
+                "fit",
+                format!(
+                    "Cholesky factorisation of the correlation matrix failed (condition number {condition:.3e})"
+                ),
+            )
+        })?;
+        let u = chol.l();
+        let mut w = u
+            .solve_lower_triangular(&DMatrix::identity(n, n))
+            .ok_or_else(|| {
+                Error::analysis("fit", "triangular inverse of the Cholesky factor failed")
+            })?;
+        for j in 0..n {
+            for i in 0..n {
+                w[(i, j)] /= s[j];
+            }
+        }
+        Ok(Weights {
+            whitening: w,
+            condition,
+        })
+    }
+
+    /// Uncorrelated weights from one standard deviation per point. Non-positive or
+    /// non-finite sigmas make every residual of that point NaN, which the fitters report.
+    pub fn diagonal(sigmas: &[f64]) -> Weights {
+        let n = sigmas.len();
+        let mut w = DMatrix::zeros(n, n);
+        for (i, s) in sigmas.iter().enumerate() {
+            w[(i, i)] = if *s > 0.0 && s.is_finite() {
+                1.0 / s
+            } else {
+                f64::NAN
+            };
+        }
+        Weights {
+            whitening: w,
+            condition: 1.0,
+        }
+    }
+
+    /// Unit weights (ordinary least squares) on `n` points.
+    pub fn unit(n: usize) -> Weights {
+        Weights::diagonal(&vec![1.0; n])
+    }
+
+    /// Number of data points.
+    pub fn len(&self) -> usize {
+        self.whitening.nrows()
+    }
+
+    /// True for zero points.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Condition number of the correlation matrix (1 for diagonal weights).
+    pub fn condition_number(&self) -> f64 {
+        self.condition
+    }
+
+    /// The whitening matrix `W` (`W^T W = Cov^{-1}`).
+    pub fn matrix(&self) -> &DMatrix<f64> {
+        &self.whitening
+    }
+
+    /// `out = W r` (lower-triangular product).
+    pub fn whiten(&self, r: &[f64], out: &mut [f64]) {
+        for (i, o) in out.iter_mut().enumerate().take(self.len()) {
+            *o = r
+                .iter()
+                .take(i + 1)
+                .enumerate()
+                .map(|(j, rj)| self.whitening[(i, j)] * rj)
+                .sum();
+        }
+    }
+
+    /// `W A` for a matrix with `len()` rows.
+    pub fn whiten_matrix(&self, a: &DMatrix<f64>) -> DMatrix<f64> {
+        &self.whitening * a
+    }
+
+    /// `chi2 = |W r|^2`.
+    pub fn chi2(&self, r: &[f64]) -> f64 {
+        let mut w = vec![0.0; r.len()];
+        self.whiten(r, &mut w);
+        w.iter().map(|x| x * x).sum()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn whitening_reproduces_inverse_covariance() {
+        // Identity W^T W = Cov^{-1} (definition of whitening).
+        let cov =
+            DMatrix::from_row_slice(3, 3, &[4.0, 1.2, 0.003, 1.2, 9.0, 0.02, 0.003, 0.02, 1e-4]);
+        let w = Weights::from_covariance(&cov).unwrap();
+        let prod = w.matrix().transpose() * w.matrix() * &cov;
+        assert_relative_eq!(prod, DMatrix::identity(3, 3), epsilon = 1e-9);
+    }
+
+    #[test]
+    fn singular_covariance_is_an_error_naming_the_condition_number() {
+        let cov = DMatrix::from_row_slice(2, 2, &[1.0, 1.0, 1.0, 1.0]);
+        let e = Weights::from_covariance(&cov).unwrap_err().to_string();
+        assert!(e.contains("condition number"), "{e}");
+    }
+}

@@ -1,0 +1,526 @@
+//! Shared machinery of the CSV readers: header mapping, field parsing with precise error
+//! locations, and the accumulator that interns channels and configurations, averages
+//! sources, detects duplicates and checks completeness.
+
+use crate::error::{Error, Location, Result};
+use std::collections::{HashMap, HashSet};
+use std::io::Read;
+use std::path::{Path, PathBuf};
+
+/// One column of a table schema.
+pub(crate) struct Column {
+    /// Header name.
+    pub name: &'static str,
+    /// Whether the table must have it.
+    pub required: bool,
+}
+
+/// The display name of an input: the path, or `<stdin>` for `-`.
+pub(crate) fn display_name(path: &Path) -> PathBuf {
+    if path == Path::new("-") {
+        PathBuf::from("<stdin>")
+    } else {
+        path.to_path_buf()
+    }
+}
+
+/// Open a path for reading, `-` meaning standard input.
+pub(crate) fn open(path: &Path) -> Result<Box<dyn Read>> {
+    if path == Path::new("-") {
+        Ok(Box::new(std::io::stdin()))
+    } else {
+        let f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        Ok(Box::new(f))
+    }
+}
+
+/// A CSV reader over `input` plus the header mapped onto `schema`.
+pub(crate) struct TableReader<R: Read> {
+    csv: csv::Reader<R>,
+    file: PathBuf,
+    /// For each schema column, its 0-based index in the records, if present.
+    pub index: Vec<Option<usize>>,
+    n_fields: usize,
+    /// The current record.
+    pub record: csv::ByteRecord,
+    /// 1-based line of the current record.
+    pub line: u64,
+}
+
+impl<R: Read> TableReader<R> {
+    /// Read the header and map it onto `schema`.
+    pub fn new(input: R, file: PathBuf, schema: &[Column]) -> Result<Self> {
+        let mut csv = csv::ReaderBuilder::new()
+            .has_headers(false)
+            .flexible(true)
+            .buffer_capacity(1 << 18)
+            .from_reader(input);
+        let mut header = csv::ByteRecord::new();
+        let got = csv
+            .read_byte_record(&mut header)
+            .map_err(|e| csv_error(&file, e))?;
+        if !got {
+            return Err(Error::Table {
+                path: file,
+                message: format!(
+                    "the file is empty; expected a header line with the columns {}",
+                    schema_list(schema)
+                ),
+            });
+        }
+        let mut index = vec![None; schema.len()];
+        for (i, raw) in header.iter().enumerate() {
+            let raw = if i == 0 {
+                raw.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(raw)
+            } else {
+                raw
+            };
+            let name = String::from_utf8_lossy(raw);
+            let loc = Location {
+                file: file.clone(),
+                line: 1,
+                column: Some(i as u64 + 1),
+                field: Some(name.to_string()),
+            };
+            let Some(k) = schema.iter().position(|c| c.name == name) else {
+                return Err(Error::Data {
+                    location: loc,
+                    message: format!(
+                        "unknown column `{name}`; allowed columns are {}",
+                        schema_list(schema)
+                    ),
+                });
+            };
+            if index[k].is_some() {
+                return Err(Error::Data {
+                    location: loc,
+                    message: format!("column `{name}` appears twice in the header"),
+                });
+            }
+            index[k] = Some(i);
+        }
+        if let Some(k) = (0..schema.len()).find(|&k| schema[k].required && index[k].is_none()) {
+            return Err(Error::Data {
+                location: Location {
+                    file: file.clone(),
+                    line: 1,
+                    column: None,
+                    field: Some(schema[k].name.to_string()),
+                },
+                message: format!(
+                    "required column `{}` is missing; the header must name {}",
+                    schema[k].name,
+                    required_list(schema)
+                ),
+            });
+        }
+        Ok(TableReader {
+            csv,
+            file,
+            index,
+            n_fields: header.len(),
+            record: csv::ByteRecord::new(),
+            line: 1,
+        })
+    }
+
+    /// The file name used in messages.
+    pub fn file(&self) -> &Path {
+        &self.file
+    }
+
+    /// Advance to the next record; `false` at the end of the input.
+    pub fn next(&mut self) -> Result<bool> {
+        let got = self
+            .csv
+            .read_byte_record(&mut self.record)
+            .map_err(|e| csv_error(&self.file, e))?;
+        if !got {
+            return Ok(false);
+        }
+        self.line = self.record.position().map_or(self.line + 1, |p| p.line());
+        if self.record.len() != self.n_fields {
+            return Err(Error::Data {
+                location: self.row_location(),
+                message: format!(
+                    "row has {} fields, the header has {}",
+                    self.record.len(),
+                    self.n_fields
+                ),
+            });
+        }
+        Ok(true)
+    }
+
+    /// Location of the whole current row.
+    pub fn row_location(&self) -> Location {
+        Location {
+            file: self.file.clone(),
+            line: self.line,
+            column: None,
+            field: None,
+        }
+    }
+
+    /// Location of schema column `k` in the current row.
+    pub fn location(&self, k: usize, name: &str) -> Location {
+        Location {
+            file: self.file.clone(),
+            line: self.line,
+            column: self.index[k].map(|i| i as u64 + 1),
+            field: Some(name.to_string()),
+        }
+    }
+
+    /// Raw bytes of schema column `k` (empty when the column is absent).
+    pub fn raw(&self, k: usize) -> &[u8] {
+        match self.index[k] {
+            Some(i) => self.record.get(i).unwrap_or(b""),
+            None => b"",
+        }
+    }
+
+    fn field_error(&self, k: usize, schema: &[Column], expected: &str) -> Error {
+        let name = schema[k].name;
+        Error::Data {
+            location: self.location(k, name),
+            message: format!(
+                "cannot read `{}` as {expected}",
+                String::from_utf8_lossy(self.raw(k))
+            ),
+        }
+    }
+
+    /// Schema column `k` as an integer.
+    pub fn int(&self, k: usize, schema: &[Column]) -> Result<i64> {
+        parse_int(self.raw(k)).ok_or_else(|| self.field_error(k, schema, "an integer"))
+    }
+
+    /// Schema column `k` as a time value in `0..=MAX_TIME`.
+    pub fn time(&self, k: usize, schema: &[Column]) -> Result<u32> {
+        let v = self.int(k, schema)?;
+        if v < 0 || v > i64::from(super::MAX_TIME) {
+            return Err(Error::Data {
+                location: self.location(k, schema[k].name),
+                message: format!(
+                    "`{}` = {v} is out of range; expected 0 <= {} <= {}",
+                    schema[k].name,
+                    schema[k].name,
+                    super::MAX_TIME
+                ),
+            });
+        }
+        Ok(v as u32)
+    }
+
+    /// Schema column `k` as a momentum component.
+    pub fn mom(&self, k: usize, schema: &[Column]) -> Result<i32> {
+        let v = self.int(k, schema)?;
+        i32::try_from(v)
+            .map_err(|_| self.field_error(k, schema, "a momentum component (32-bit integer)"))
+    }
+
+    /// Schema column `k` as a finite float.
+    pub fn float(&self, k: usize, schema: &[Column]) -> Result<f64> {
+        let raw = self.raw(k);
+        let v: f64 = std::str::from_utf8(raw)
+            .ok()
+            .and_then(|s| s.parse().ok())
+            .ok_or_else(|| self.field_error(k, schema, "a number"))?;
+        if !v.is_finite() {
+            return Err(Error::Data {
+                location: self.location(k, schema[k].name),
+                message: format!(
+                    "non-finite value `{}`; the format allows finite numbers only",
+                    String::from_utf8_lossy(raw)
+                ),
+            });
+        }
+        Ok(v)
+    }
+
+    /// Schema column `k` as text (must be UTF-8).
+    pub fn text(&self, k: usize, schema: &[Column]) -> Result<&str> {
+        std::str::from_utf8(self.raw(k)).map_err(|_| self.field_error(k, schema, "UTF-8 text"))
+    }
+}
+
+/// Parse an optionally signed decimal integer without allocating; `None` on anything else.
+fn parse_int(b: &[u8]) -> Option<i64> {
+    let (neg, digits) = match b.first() {
+        Some(b'-') => (true, &b[1..]),
+        Some(b'+') => (false, &b[1..]),
+        _ => (false, b),
+    };
+    if digits.is_empty() {
+        return None;
+    }
+    let mut v: i64 = 0;
+    for &c in digits {
+        if !c.is_ascii_digit() {
+            return None;
+        }
+        let d = i64::from(c - b'0');
+        v = v.checked_mul(10)?;
+        v = if neg {
+            v.checked_sub(d)?
+        } else {
+            v.checked_add(d)?
+        };
+    }
+    Some(v)
+}
+
+fn schema_list(schema: &[Column]) -> String {
+    schema
+        .iter()
+        .map(|c| {
+            if c.required {
+                c.name.to_string()
+            } else {
+                format!("{} (optional)", c.name)
+            }
+        })
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+fn required_list(schema: &[Column]) -> String {
+    schema
+        .iter()
+        .filter(|c| c.required)
+        .map(|c| c.name)
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+fn csv_error(file: &Path, e: csv::Error) -> Error {
+    let line = e.position().map_or(0, |p| p.line());
+    match e.into_kind() {
+        csv::ErrorKind::Io(io) => Error::io(file, io),
+        other => Error::Data {
+            location: Location {
+                file: file.to_path_buf(),
+                line,
+                column: None,
+                field: None,
+            },
+            message: format!("malformed CSV: {other:?}"),
+        },
+    }
+}
+
+/// Sum of the rows seen for one (channel, time, configuration).
+#[derive(Clone, Copy, Default)]
+struct Cell {
+    re: f64,
+    im: f64,
+    count: u32,
+}
+
+/// Cells of one channel: `cells[t][cfg]`, configurations in first-seen order.
+struct Channel {
+    cells: Vec<Vec<Cell>>,
+    first_line: u64,
+}
+
+/// Collects rows into channels and checks the one-row-per-point rule.
+pub(crate) struct Accumulator {
+    ids: HashMap<Vec<u8>, u32>,
+    last_key: Vec<u8>,
+    last_id: u32,
+    channels: Vec<Channel>,
+    cfg_ids: HashMap<i64, u32>,
+    /// Configuration numbers in first-seen order.
+    configs: Vec<i64>,
+    last_cfg: u32,
+    /// `(channel, t, cfg, source)` seen, when the table has a `source` column.
+    sources: Option<HashSet<(u32, u32, u32, i64)>>,
+    rows: u64,
+}
+
+/// What became of the rows: source averaging and counts.
+pub(crate) struct Summary {
+    /// Number of data rows read.
+    pub rows: u64,
+    /// Smallest and largest number of sources averaged into one value.
+    pub sources: Option<(u32, u32)>,
+}
+
+/// A completed channel: its values in ascending configuration order.
+pub(crate) struct Finished {
+    pub configs: Vec<i64>,
+    /// Per channel id: `(re, im)` time-major, configurations contiguous.
+    pub values: Vec<(Vec<f64>, Vec<f64>)>,
+    pub summary: Summary,
+}
+
+impl Accumulator {
+    pub fn new(with_source: bool) -> Self {
+        Accumulator {
+            ids: HashMap::new(),
+            last_key: Vec::new(),
+            last_id: u32::MAX,
+            channels: Vec::new(),
+            cfg_ids: HashMap::new(),
+            configs: Vec::new(),
+            last_cfg: 0,
+            sources: with_source.then(HashSet::new),
+            rows: 0,
+        }
+    }
+
+    /// The channel id of an encoded key, if known.
+    pub fn channel(&mut self, key: &[u8]) -> Option<u32> {
+        if self.last_id != u32::MAX && self.last_key == key {
+            return Some(self.last_id);
+        }
+        let id = *self.ids.get(key)?;
+        self.last_key.clear();
+        self.last_key.extend_from_slice(key);
+        self.last_id = id;
+        Some(id)
+    }
+
+    /// Register a new channel under an encoded key; returns its id.
+    pub fn add_channel(&mut self, key: &[u8], line: u64) -> u32 {
+        let id = self.channels.len() as u32;
+        self.ids.insert(key.to_vec(), id);
+        self.channels.push(Channel {
+            cells: Vec::new(),
+            first_line: line,
+        });
+        self.last_key.clear();
+        self.last_key.extend_from_slice(key);
+        self.last_id = id;
+        id
+    }
+
+    /// Number of channels registered.
+    pub fn n_channels(&self) -> usize {
+        self.channels.len()
+    }
+
+    fn config_index(&mut self, config: i64) -> u32 {
+        let n = self.configs.len() as u32;
+        // Tables are usually written with configurations cycling in a fixed order.
+        for guess in [self.last_cfg, self.last_cfg + 1, 0] {
+            if guess < n && self.configs[guess as usize] == config {
+                self.last_cfg = guess;
+                return guess;
+            }
+        }
+        let idx = *self.cfg_ids.entry(config).or_insert(n);
+        if idx == n {
+            self.configs.push(config);
+        }
+        self.last_cfg = idx;
+        idx
+    }
+
+    /// Add one row. `describe` names the data point in a duplicate message.
+    #[allow(clippy::too_many_arguments)]
+    pub fn add(
+        &mut self,
+        id: u32,
+        t: u32,
+        config: i64,
+        source: Option<i64>,
+        re: f64,
+        im: f64,
+        location: impl FnOnce() -> Location,
+        describe: impl FnOnce() -> String,
+    ) -> Result<()> {
+        self.rows += 1;
+        let cfg = self.config_index(config);
+        let chan = &mut self.channels[id as usize];
+        let t_us = t as usize;
+        if chan.cells.len() <= t_us {
+            chan.cells.resize_with(t_us + 1, Vec::new);
+        }
+        let row = &mut chan.cells[t_us];
+        if row.len() <= cfg as usize {
+            row.resize(cfg as usize + 1, Cell::default());
+        }
+        let cell = &mut row[cfg as usize];
+        let duplicate = match (&mut self.sources, source) {
+            (Some(seen), Some(s)) => !seen.insert((id, t, cfg, s)),
+            _ => cell.count > 0,
+        };
+        if duplicate {
+            let what = match source {
+                Some(s) => format!(" and source {s}"),
+                None => String::new(),
+            };
+            return Err(Error::Data {
+                location: location(),
+                message: format!(
+                    "duplicate row: {} at configuration {config}{what} was already given",
+                    describe()
+                ),
+            });
+        }
+        cell.re += re;
+        cell.im += im;
+        cell.count += 1;
+        Ok(())
+    }
+
+    /// Check completeness and average. `order` lists channel ids in key order, `n_t` gives
+    /// each channel's number of time slices, `missing` builds the error for the first gap
+    /// `(channel, t, config, first line of the channel)`.
+    pub fn finish(
+        self,
+        order: &[u32],
+        n_t: impl Fn(u32) -> usize,
+        missing: impl Fn(u32, usize, i64, u64) -> Error,
+    ) -> Result<Finished> {
+        let mut sorted: Vec<(i64, usize)> = self
+            .configs
+            .iter()
+            .enumerate()
+            .map(|(i, &c)| (c, i))
+            .collect();
+        sorted.sort_unstable();
+        let n_cfg = sorted.len();
+        let mut values: Vec<(Vec<f64>, Vec<f64>)> =
+            vec![(Vec::new(), Vec::new()); self.channels.len()];
+        let (mut smin, mut smax) = (u32::MAX, 0u32);
+        for &id in order {
+            let chan = &self.channels[id as usize];
+            let nt = n_t(id);
+            // Reserve only once the channel is known to reach its last time slice, so a
+            // corrupt time value cannot trigger a huge allocation before the gap is found.
+            let cap = if chan.cells.len() == nt {
+                nt * n_cfg
+            } else {
+                0
+            };
+            let mut re = Vec::with_capacity(cap);
+            let mut im = Vec::with_capacity(cap);
+            for t in 0..nt {
+                let row = chan.cells.get(t).map_or(&[][..], |r| &r[..]);
+                for &(config, i) in &sorted {
+                    let cell = row.get(i).copied().unwrap_or_default();
+                    if cell.count == 0 {
+                        return Err(missing(id, t, config, chan.first_line));
+                    }
+                    smin = smin.min(cell.count);
+                    smax = smax.max(cell.count);
+                    let n = f64::from(cell.count);
+                    re.push(cell.re / n);
+                    im.push(cell.im / n);
+                }
+            }
+            values[id as usize] = (re, im);
+        }
+        Ok(Finished {
+            configs: sorted.into_iter().map(|(c, _)| c).collect(),
+            values,
+            summary: Summary {
+                rows: self.rows,
+                sources: self.sources.as_ref().map(|_| (smin.min(smax), smax)),
+            },
+        })
+    }
+}

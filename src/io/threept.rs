@@ -1,0 +1,260 @@
+//! The three-point table reader (data-format.md, "Three-point table").
+//!
+//! Time-axis rule: each channel (one `tsep`) has every insertion time `tau = 0..=tsep` for
+//! every configuration; `tau` outside `[0, tsep]` is an error at its row.
+
+use super::table::{display_name, open, Accumulator, Column, Summary, TableReader};
+use crate::data::{Current, Diagram, Projector, Series, ThreePointData, ThreePointKey};
+use crate::error::{Error, Result};
+use std::collections::BTreeMap;
+use std::io::Read;
+use std::path::{Path, PathBuf};
+
+const CONFIG: usize = 0;
+const TSEP: usize = 1;
+const TAU: usize = 2;
+const PFX: usize = 3;
+const QX: usize = 6;
+const CURRENT: usize = 9;
+const PROJECTOR: usize = 10;
+const RE: usize = 11;
+const IM: usize = 12;
+const FLAVOR: usize = 13;
+const DIAGRAM: usize = 14;
+const SOURCE: usize = 15;
+
+const SCHEMA: &[Column] = &[
+    Column {
+        name: "config",
+        required: true,
+    },
+    Column {
+        name: "tsep",
+        required: true,
+    },
+    Column {
+        name: "tau",
+        required: true,
+    },
+    Column {
+        name: "pfx",
+        required: true,
+    },
+    Column {
+        name: "pfy",
+        required: true,
+    },
+    Column {
+        name: "pfz",
+        required: true,
+    },
+    Column {
+        name: "qx",
+        required: true,
+    },
+    Column {
+        name: "qy",
+        required: true,
+    },
+    Column {
+        name: "qz",
+        required: true,
+    },
+    Column {
+        name: "current",
+        required: true,
+    },
+    Column {
+        name: "projector",
+        required: true,
+    },
+    Column {
+        name: "re",
+        required: true,
+    },
+    Column {
+        name: "im",
+        required: true,
+    },
+    Column {
+        name: "flavor",
+        required: false,
+    },
+    Column {
+        name: "diagram",
+        required: false,
+    },
+    Column {
+        name: "source",
+        required: false,
+    },
+];
+
+/// Read a three-point table from a file (`-` for standard input).
+pub fn read_threept(path: &Path) -> Result<ThreePointData> {
+    Ok(read_with_summary(path)?.0)
+}
+
+/// Read a three-point table from any reader; `name` is used in messages.
+pub fn read_threept_from<R: Read>(input: R, name: &Path) -> Result<ThreePointData> {
+    Ok(read_inner(input, name.to_path_buf())?.0)
+}
+
+pub(crate) fn read_with_summary(path: &Path) -> Result<(ThreePointData, Summary)> {
+    read_inner(open(path)?, display_name(path))
+}
+
+fn current_names() -> String {
+    Current::ALL
+        .iter()
+        .map(|c| c.name())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePointData, Summary)> {
+    let mut rd = TableReader::new(input, file, SCHEMA)?;
+    let with_source = rd.index[SOURCE].is_some();
+    let with_flavor = rd.index[FLAVOR].is_some();
+    let with_diagram = rd.index[DIAGRAM].is_some();
+    let mut acc = Accumulator::new(with_source);
+    let mut keys: Vec<ThreePointKey> = Vec::new();
+    let mut enc: Vec<u8> = Vec::with_capacity(64);
+    while rd.next()? {
+        let config = rd.int(CONFIG, SCHEMA)?;
+        let tsep = rd.time(TSEP, SCHEMA)?;
+        let tau = rd.time(TAU, SCHEMA)?;
+        if tau > tsep {
+            return Err(Error::Data {
+                location: rd.location(TAU, "tau"),
+                message: format!("tau = {tau} lies outside [0, tsep] = [0, {tsep}]"),
+            });
+        }
+        let mut pf = [0i32; 3];
+        let mut q = [0i32; 3];
+        for i in 0..3 {
+            pf[i] = rd.mom(PFX + i, SCHEMA)?;
+            q[i] = rd.mom(QX + i, SCHEMA)?;
+        }
+        let name = rd.text(CURRENT, SCHEMA)?;
+        let current = Current::parse(name).ok_or_else(|| Error::Data {
+            location: rd.location(CURRENT, "current"),
+            message: format!(
+                "unknown current `{name}`; expected one of {}",
+                current_names()
+            ),
+        })?;
+        let name = rd.text(PROJECTOR, SCHEMA)?;
+        let projector = Projector::parse(name).ok_or_else(|| Error::Data {
+            location: rd.location(PROJECTOR, "projector"),
+            message: format!(
+                "unknown projector `{name}`; expected one of unpol, pol1, pol2, pol3, none"
+            ),
+        })?;
+        let re = rd.float(RE, SCHEMA)?;
+        let im = rd.float(IM, SCHEMA)?;
+        let source = if with_source {
+            Some(rd.int(SOURCE, SCHEMA)?)
+        } else {
+            None
+        };
+        let diagram = if with_diagram {
+            match rd.raw(DIAGRAM) {
+                b"" => None,
+                b"connected" => Some(Diagram::Connected),
+                b"disconnected" => Some(Diagram::Disconnected),
+                other => {
+                    return Err(Error::Data {
+                        location: rd.location(DIAGRAM, "diagram"),
+                        message: format!(
+                            "unknown diagram `{}`; expected connected, disconnected or an \
+                             empty field",
+                            String::from_utf8_lossy(other)
+                        ),
+                    })
+                }
+            }
+        } else {
+            None
+        };
+        let flavor = if with_flavor {
+            rd.text(FLAVOR, SCHEMA)?
+        } else {
+            ""
+        };
+        enc.clear();
+        enc.extend_from_slice(&tsep.to_le_bytes());
+        for p in pf.iter().chain(q.iter()) {
+            enc.extend_from_slice(&p.to_le_bytes());
+        }
+        enc.push(current as u8);
+        enc.extend_from_slice(projector.name().as_bytes());
+        enc.push(match diagram {
+            None => 0,
+            Some(Diagram::Connected) => 1,
+            Some(Diagram::Disconnected) => 2,
+        });
+        enc.extend_from_slice(flavor.as_bytes());
+        let id = match acc.channel(&enc) {
+            Some(id) => id,
+            None => {
+                keys.push(ThreePointKey {
+                    tsep,
+                    pf,
+                    q,
+                    current,
+                    projector,
+                    flavor: (!flavor.is_empty()).then(|| flavor.to_string()),
+                    diagram,
+                });
+                acc.add_channel(&enc, rd.line)
+            }
+        };
+        let k = &keys[id as usize];
+        acc.add(
+            id,
+            tau,
+            config,
+            source,
+            re,
+            im,
+            || rd.row_location(),
+            || format!("three-point {} tau={tau}", super::describe_threept(k)),
+        )?;
+    }
+    let file = rd.file().to_path_buf();
+    if keys.is_empty() {
+        return Err(Error::Table {
+            path: file,
+            message: "the table has a header but no data rows".into(),
+        });
+    }
+    let mut order: Vec<u32> = (0..acc.n_channels() as u32).collect();
+    order.sort_by(|&a, &b| keys[a as usize].cmp(&keys[b as usize]));
+    let n_t = |id: u32| keys[id as usize].tsep as usize + 1;
+    let done = acc.finish(&order, n_t, |id, tau, config, line| Error::Table {
+        path: file.clone(),
+        message: format!(
+            "missing row: three-point {} tau={tau} has no value for configuration {config} \
+             (channel first seen at line {line}); every channel needs tau = 0..=tsep for \
+             every configuration",
+            super::describe_threept(&keys[id as usize])
+        ),
+    })?;
+    let n_cfg = done.configs.len();
+    let channels: BTreeMap<ThreePointKey, Series> = keys
+        .into_iter()
+        .zip(done.values)
+        .map(|(k, (re, im))| {
+            let n_t = k.tsep as usize + 1;
+            (k, Series { n_cfg, n_t, re, im })
+        })
+        .collect();
+    Ok((
+        ThreePointData {
+            configs: done.configs,
+            channels,
+        },
+        done.summary,
+    ))
+}

@@ -1,0 +1,166 @@
+//! The two-point table reader (data-format.md, "Two-point table").
+//!
+//! Time-axis rule: `T = max t + 1` over the whole table, and every channel must have every
+//! `t = 0..T-1` for every configuration.
+
+use super::table::{display_name, open, Accumulator, Column, Summary, TableReader};
+use crate::data::{Series, TwoPointData, TwoPointKey};
+use crate::error::{Error, Result};
+use std::collections::BTreeMap;
+use std::io::Read;
+use std::path::{Path, PathBuf};
+
+const CONFIG: usize = 0;
+const PX: usize = 1;
+const T: usize = 4;
+const RE: usize = 5;
+const IM: usize = 6;
+const SOURCE: usize = 7;
+const SMEAR: usize = 8;
+
+const SCHEMA: &[Column] = &[
+    Column {
+        name: "config",
+        required: true,
+    },
+    Column {
+        name: "px",
+        required: true,
+    },
+    Column {
+        name: "py",
+        required: true,
+    },
+    Column {
+        name: "pz",
+        required: true,
+    },
+    Column {
+        name: "t",
+        required: true,
+    },
+    Column {
+        name: "re",
+        required: true,
+    },
+    Column {
+        name: "im",
+        required: true,
+    },
+    Column {
+        name: "source",
+        required: false,
+    },
+    Column {
+        name: "smear",
+        required: false,
+    },
+];
+
+/// Read a two-point table from a file (`-` for standard input).
+pub fn read_twopt(path: &Path) -> Result<TwoPointData> {
+    Ok(read_with_summary(path)?.0)
+}
+
+/// Read a two-point table from any reader; `name` is used in messages.
+pub fn read_twopt_from<R: Read>(input: R, name: &Path) -> Result<TwoPointData> {
+    Ok(read_inner(input, name.to_path_buf())?.0)
+}
+
+pub(crate) fn read_with_summary(path: &Path) -> Result<(TwoPointData, Summary)> {
+    read_inner(open(path)?, display_name(path))
+}
+
+pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointData, Summary)> {
+    let mut rd = TableReader::new(input, file, SCHEMA)?;
+    let with_source = rd.index[SOURCE].is_some();
+    let with_smear = rd.index[SMEAR].is_some();
+    let mut acc = Accumulator::new(with_source);
+    let mut keys: Vec<TwoPointKey> = Vec::new();
+    let mut enc: Vec<u8> = Vec::with_capacity(64);
+    let mut max_t: Option<u32> = None;
+    while rd.next()? {
+        let config = rd.int(CONFIG, SCHEMA)?;
+        let mut momentum = [0i32; 3];
+        for (i, p) in momentum.iter_mut().enumerate() {
+            *p = rd.mom(PX + i, SCHEMA)?;
+        }
+        let t = rd.time(T, SCHEMA)?;
+        let re = rd.float(RE, SCHEMA)?;
+        let im = rd.float(IM, SCHEMA)?;
+        let source = if with_source {
+            Some(rd.int(SOURCE, SCHEMA)?)
+        } else {
+            None
+        };
+        enc.clear();
+        for p in momentum {
+            enc.extend_from_slice(&p.to_le_bytes());
+        }
+        let smear = if with_smear {
+            rd.text(SMEAR, SCHEMA)?
+        } else {
+            ""
+        };
+        enc.extend_from_slice(smear.as_bytes());
+        let id = match acc.channel(&enc) {
+            Some(id) => id,
+            None => {
+                keys.push(TwoPointKey {
+                    momentum,
+                    smear: (!smear.is_empty()).then(|| smear.to_string()),
+                });
+                acc.add_channel(&enc, rd.line)
+            }
+        };
+        max_t = max_t.max(Some(t));
+        let k = &keys[id as usize];
+        acc.add(
+            id,
+            t,
+            config,
+            source,
+            re,
+            im,
+            || rd.row_location(),
+            || format!("two-point {} t={t}", super::describe_twopt(k)),
+        )?;
+    }
+    let file = rd.file().to_path_buf();
+    let Some(max_t) = max_t else {
+        return Err(Error::Table {
+            path: file,
+            message: "the table has a header but no data rows".into(),
+        });
+    };
+    let n_t = max_t as usize + 1;
+    let mut order: Vec<u32> = (0..acc.n_channels() as u32).collect();
+    order.sort_by(|&a, &b| keys[a as usize].cmp(&keys[b as usize]));
+    let done = acc.finish(
+        &order,
+        |_| n_t,
+        |id, t, config, line| Error::Table {
+            path: file.clone(),
+            message: format!(
+                "missing row: two-point {} t={t} has no value for configuration {config} \
+                 (channel first seen at line {line}); every channel needs t = 0..{} \
+                 (T = max t + 1) for every configuration",
+                super::describe_twopt(&keys[id as usize]),
+                n_t - 1
+            ),
+        },
+    )?;
+    let n_cfg = done.configs.len();
+    let channels: BTreeMap<TwoPointKey, Series> = keys
+        .into_iter()
+        .zip(done.values)
+        .map(|(k, (re, im))| (k, Series { n_cfg, n_t, re, im }))
+        .collect();
+    Ok((
+        TwoPointData {
+            configs: done.configs,
+            channels,
+        },
+        done.summary,
+    ))
+}

@@ -1,0 +1,436 @@
+//! Form-factor decomposition: from the ratio plateaus of many channels to form factors per
+//! Q² shell, by weighted least squares per resample (methods.md §5).
+//!
+//! Within a shell (equal `|n_f|², |n_i|², |n_q|²` without twists, equal Q² within a tolerance
+//! with twists) and a current kind, every channel gives `Pi_c = sum_k K_ck G_k` with complex
+//! `K` from [`coefficients`]. Real and imaginary parts whose coefficients do not all vanish are
+//! stacked into a real linear system, whitened by the data covariance (its diagonal or the
+//! full matrix, estimated once from the resamples and held fixed, common practice), and solved
+//! by SVD on the central value and on every resample. Channels whose coefficients all vanish
+//! are dropped and counted; form factors that no channel of the shell constrains are left out
+//! of that shell.
+
+use super::factors::{coefficients, FormFactor};
+use super::momentum::q2_to_gev2;
+use super::phase::Phase;
+use super::setup::{at, KinematicSetup};
+use crate::data::{norm2, sub, Current, CurrentKind, Momentum, Projector};
+use crate::resample::{covariance_of, Resampled};
+use crate::{Error, Result};
+use nalgebra::{Cholesky, Complex, DMatrix, DVector};
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+/// The large-time ratio of one channel for one excited-state method: a complex number given
+/// as two resampled values.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelValue {
+    /// Sink momentum (integer).
+    pub pf: Momentum,
+    /// Momentum transfer (integer); the source momentum is `pf - q`.
+    pub q: Momentum,
+    /// The inserted current.
+    pub current: Current,
+    /// The spin projector.
+    pub projector: Projector,
+    /// Real part.
+    pub re: Resampled,
+    /// Imaginary part.
+    pub im: Resampled,
+}
+
+impl ChannelValue {
+    /// A readable channel name for messages.
+    pub fn label(&self) -> String {
+        format!(
+            "pf={:?} q={:?} {} {}",
+            self.pf, self.q, self.current, self.projector
+        )
+    }
+}
+
+/// How the stacked channel values are weighted.
+#[derive(
+    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum DecompositionWeights {
+    /// Inverse resampled variances of each real/imaginary part.
+    #[default]
+    Diagonal,
+    /// The full covariance of all stacked parts, estimated from the resamples.
+    Full,
+}
+
+/// User settings of the decomposition.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct DecompositionSettings {
+    /// Weights of the least-squares solve.
+    #[serde(default)]
+    pub weights: DecompositionWeights,
+    /// With twisted boundary conditions: channels whose Q² (lattice units, central value)
+    /// differ by at most this much form one shell.
+    #[serde(default = "default_q2_tolerance")]
+    pub q2_tolerance: f64,
+    /// Phase convention per current (`V1`, ..., `T34`): a complex unit (`1`, `-1`, `i`, `-i`)
+    /// multiplying that current's data. Currents not listed keep phase 1.
+    #[serde(default)]
+    pub phases: BTreeMap<String, Phase>,
+}
+
+fn default_q2_tolerance() -> f64 {
+    1e-6
+}
+
+impl Default for DecompositionSettings {
+    fn default() -> Self {
+        DecompositionSettings {
+            weights: DecompositionWeights::default(),
+            q2_tolerance: default_q2_tolerance(),
+            phases: BTreeMap::new(),
+        }
+    }
+}
+
+/// The form factors of one Q² shell and one current kind.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ShellResult {
+    /// The shell, e.g. `nf2=0 ni2=1 nq2=1` or `Q2=0.1234` with twists.
+    pub label: String,
+    /// Current kind of the channels.
+    pub kind: CurrentKind,
+    /// Q² in lattice units (mean over the shell's channels, per resample).
+    pub q2: Resampled,
+    /// Q² in GeV², when the lattice spacing is known.
+    pub q2_gev2: Option<Resampled>,
+    /// The solved form factors.
+    pub form_factors: Vec<(FormFactor, Resampled)>,
+    /// Channels used.
+    pub n_channels: usize,
+    /// Channels dropped because all their coefficients vanish.
+    pub n_dropped: usize,
+    /// Real equations minus form factors.
+    pub dof: usize,
+    /// `chi2 / dof` of the central solve; `None` when `dof = 0`.
+    pub chi2_dof: Option<f64>,
+    /// Condition number of the whitened coefficient matrix (central value).
+    pub condition: f64,
+}
+
+/// A shell that could not be solved, and why.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct SkippedShell {
+    /// The shell.
+    pub label: String,
+    /// Current kind of the channels.
+    pub kind: CurrentKind,
+    /// What went wrong.
+    pub reason: String,
+}
+
+/// All shells of one decomposition.
+#[derive(Clone, Debug, Default, PartialEq, Serialize)]
+pub struct Decomposition {
+    /// Solved shells, ordered by current kind and Q².
+    pub shells: Vec<ShellResult>,
+    /// Shells that could not be solved (reported, not fatal).
+    pub skipped: Vec<SkippedShell>,
+}
+
+/// Decompose the channel values of one excited-state method into form factors per Q² shell.
+///
+/// Errors are returned for inconsistent input (sample counts, unknown phase keys, missing
+/// energies); a shell that cannot be solved (too few equations, zero variance, singular
+/// system) is listed in [`Decomposition::skipped`] and the others carry on.
+pub fn decompose(
+    channels: &[ChannelValue],
+    setup: &KinematicSetup,
+    settings: &DecompositionSettings,
+) -> Result<Decomposition> {
+    let n = setup.validate()?;
+    let phases = parse_phases(&settings.phases)?;
+    for c in channels {
+        for part in [&c.re, &c.im] {
+            if part.len() != n || part.scheme != setup.mass.scheme {
+                return Err(Error::analysis(
+                    "kinematics",
+                    format!(
+                        "channel {} has {} samples ({:?}), the mass has {n} ({:?})",
+                        c.label(),
+                        part.len(),
+                        part.scheme,
+                        setup.mass.scheme
+                    ),
+                ));
+            }
+        }
+    }
+    let mut out = Decomposition::default();
+    for (label, kind, members) in shells(channels, setup, settings.q2_tolerance)? {
+        match solve_shell(&members, kind, setup, settings.weights, &phases, n) {
+            Ok(Some(mut r)) => {
+                r.label = label;
+                out.shells.push(r);
+            }
+            Ok(None) => {}
+            Err(reason) => out.skipped.push(SkippedShell {
+                label,
+                kind,
+                reason,
+            }),
+        }
+    }
+    Ok(out)
+}
+
+fn parse_phases(phases: &BTreeMap<String, Phase>) -> Result<BTreeMap<Current, Complex<f64>>> {
+    phases
+        .iter()
+        .map(|(name, p)| {
+            Current::parse(name).map(|c| (c, p.value())).ok_or_else(|| {
+                Error::config(format!(
+                    "decomposition phases: `{name}` is not a current; expected one of V1..V4, A1..A4, S, P, T12..T34"
+                ))
+            })
+        })
+        .collect()
+}
+
+type Shell<'a> = (String, CurrentKind, Vec<&'a ChannelValue>);
+
+/// Group channels into Q² shells per current kind, in a deterministic order.
+fn shells<'a>(
+    channels: &'a [ChannelValue],
+    setup: &KinematicSetup,
+    tol: f64,
+) -> Result<Vec<Shell<'a>>> {
+    if !setup.is_twisted() {
+        let mut map: BTreeMap<(CurrentKind, i32, i32, i32), Vec<&ChannelValue>> = BTreeMap::new();
+        for c in channels {
+            let key = (
+                c.current.kind(),
+                norm2(c.pf),
+                norm2(sub(c.pf, c.q)),
+                norm2(c.q),
+            );
+            map.entry(key).or_default().push(c);
+        }
+        return Ok(map
+            .into_iter()
+            .map(|((kind, f, i, q), v)| (format!("nf2={f} ni2={i} nq2={q}"), kind, v))
+            .collect());
+    }
+    let mut keyed = channels
+        .iter()
+        .map(|c| {
+            let k = setup.on_shell(c.pf, c.q, None)?;
+            Ok((c.current.kind(), super::q_squared(&k), c))
+        })
+        .collect::<Result<Vec<_>>>()?;
+    keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.total_cmp(&b.1)));
+    let mut out: Vec<Shell<'a>> = Vec::new();
+    let mut start = f64::NAN;
+    for (kind, q2, c) in keyed {
+        match out.last_mut() {
+            Some(last) if last.1 == kind && (q2 - start).abs() <= tol => last.2.push(c),
+            _ => {
+                start = q2;
+                out.push((format!("Q2={q2:.6}"), kind, vec![c]));
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// One real equation: channel index and real (false) or imaginary (true) part.
+type Row = (usize, bool);
+
+/// Solve one shell. `Ok(None)` when the kind has no form factors for this hadron.
+fn solve_shell(
+    members: &[&ChannelValue],
+    kind: CurrentKind,
+    setup: &KinematicSetup,
+    weights: DecompositionWeights,
+    phases: &BTreeMap<Current, Complex<f64>>,
+    n: usize,
+) -> std::result::Result<Option<ShellResult>, String> {
+    let all = FormFactor::of(setup.hadron, kind);
+    if all.is_empty() {
+        return Ok(None);
+    }
+    let coeffs =
+        |c: &ChannelValue, s: Option<usize>| -> std::result::Result<Vec<Complex<f64>>, String> {
+            let k = setup.on_shell(c.pf, c.q, s).map_err(|e| e.to_string())?;
+            let list = coefficients(setup.hadron, c.projector, c.current, &k);
+            Ok(if list.is_empty() {
+                vec![Complex::new(0.0, 0.0); all.len()]
+            } else {
+                list.into_iter().map(|(_, v)| v).collect()
+            })
+        };
+    // Structure from the central kinematics: which parts carry information, which form
+    // factors are constrained at all.
+    let mut rows: Vec<Row> = Vec::new();
+    let mut used: Vec<usize> = Vec::new();
+    let mut active = vec![false; all.len()];
+    for (ci, c) in members.iter().enumerate() {
+        let k = coeffs(c, None)?;
+        let mut kept = false;
+        for imag in [false, true] {
+            let part = |z: &Complex<f64>| if imag { z.im } else { z.re };
+            if k.iter().any(|z| part(z) != 0.0) {
+                rows.push((ci, imag));
+                kept = true;
+                for (a, z) in active.iter_mut().zip(&k) {
+                    *a |= part(z) != 0.0;
+                }
+            }
+        }
+        if kept {
+            used.push(ci);
+        }
+    }
+    let n_dropped = members.len() - used.len();
+    let unknowns: Vec<usize> = (0..all.len()).filter(|&j| active[j]).collect();
+    if unknowns.is_empty() {
+        return Err(format!(
+            "all {} channels have vanishing coefficients",
+            members.len()
+        ));
+    }
+    if rows.len() < unknowns.len() {
+        return Err(format!(
+            "{} real equations for {} form factors: add channels (other projectors or momenta)",
+            rows.len(),
+            unknowns.len()
+        ));
+    }
+    // Data with the phase convention applied, one resampled value per row.
+    let data: Vec<Resampled> = rows
+        .iter()
+        .map(|&(ci, imag)| {
+            let c = members[ci];
+            let ph = phases
+                .get(&c.current)
+                .copied()
+                .unwrap_or(Complex::new(1.0, 0.0));
+            c.re.zip_map(&c.im, |re, im| {
+                let z = ph * Complex::new(re, im);
+                if imag {
+                    z.im
+                } else {
+                    z.re
+                }
+            })
+        })
+        .collect();
+    let chol = whitening(&data, &rows, members, weights)?;
+    let solve = |s: Option<usize>| -> std::result::Result<(DVector<f64>, f64, f64), String> {
+        let mut k = DMatrix::zeros(rows.len(), unknowns.len());
+        let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
+        for &ci in &used {
+            cache.insert(ci, coeffs(members[ci], s)?);
+        }
+        for (r, &(ci, imag)) in rows.iter().enumerate() {
+            let kc = &cache[&ci];
+            for (col, &j) in unknowns.iter().enumerate() {
+                k[(r, col)] = if imag { kc[j].im } else { kc[j].re };
+            }
+        }
+        let y = DVector::from_iterator(rows.len(), data.iter().map(|d| at(d, s)));
+        let a = chol
+            .solve_lower_triangular(&k)
+            .ok_or("singular weight matrix")?;
+        let b = chol
+            .solve_lower_triangular(&y)
+            .ok_or("singular weight matrix")?;
+        let svd = a.clone().svd(true, true);
+        let smax = svd.singular_values.max();
+        let smin = svd.singular_values.min();
+        if smin.is_nan() || smin <= smax * 1e-12 {
+            return Err(
+                "the coefficient matrix is singular: the channels do not separate the form factors"
+                    .into(),
+            );
+        }
+        let g = svd.solve(&b, 0.0).map_err(|e| e.to_string())?;
+        let chi2 = (&a * &g - &b).norm_squared();
+        Ok((g, chi2, smax / smin))
+    };
+    let (g0, chi2, condition) = solve(None)?;
+    let mut samples = vec![Vec::with_capacity(n); unknowns.len()];
+    for s in 0..n {
+        let (g, _, _) = solve(Some(s))?;
+        for (col, v) in samples.iter_mut().enumerate() {
+            v.push(g[col]);
+        }
+    }
+    let scheme = setup.mass.scheme;
+    let form_factors = unknowns
+        .iter()
+        .zip(samples)
+        .enumerate()
+        .map(|(col, (&j, smp))| (all[j], Resampled::new(g0[col], smp, scheme)))
+        .collect();
+    let q2s = used
+        .iter()
+        .map(|&ci| {
+            setup
+                .q2(members[ci].pf, members[ci].q)
+                .map_err(|e| e.to_string())
+        })
+        .collect::<std::result::Result<Vec<_>, _>>()?;
+    let refs: Vec<&Resampled> = q2s.iter().collect();
+    let q2 = Resampled::combine(&refs, |v| v.iter().sum::<f64>() / v.len() as f64);
+    let dof = rows.len() - unknowns.len();
+    Ok(Some(ShellResult {
+        label: String::new(),
+        kind,
+        q2_gev2: setup.spacing_fm.map(|a| q2.map(|x| q2_to_gev2(x, a))),
+        q2,
+        form_factors,
+        n_channels: used.len(),
+        n_dropped,
+        dof,
+        chi2_dof: (dof > 0).then(|| chi2 / dof as f64),
+        condition,
+    }))
+}
+
+/// Lower-triangular factor `L` of the data covariance `C = L L^T` (diagonal or full).
+fn whitening(
+    data: &[Resampled],
+    rows: &[Row],
+    members: &[&ChannelValue],
+    weights: DecompositionWeights,
+) -> std::result::Result<DMatrix<f64>, String> {
+    let m = data.len();
+    for (d, &(ci, imag)) in data.iter().zip(rows) {
+        let v = d.variance();
+        if !(v > 0.0 && v.is_finite()) {
+            return Err(format!(
+                "channel {} ({} part) has variance {v}; positive finite variance expected",
+                members[ci].label(),
+                if imag { "imaginary" } else { "real" }
+            ));
+        }
+    }
+    match weights {
+        DecompositionWeights::Diagonal => Ok(DMatrix::from_diagonal(&DVector::from_iterator(
+            m,
+            data.iter().map(|d| d.error()),
+        ))),
+        DecompositionWeights::Full => {
+            let cov = DMatrix::from_fn(m, m, |i, j| {
+                covariance_of(&data[i].samples, &data[j].samples, data[i].scheme)
+            });
+            Cholesky::new(cov).map(|c| c.l()).ok_or_else(|| {
+                format!(
+                    "the covariance of the {m} stacked parts is not positive definite ({} samples); use diagonal weights",
+                    data[0].len()
+                )
+            })
+        }
+    }
+}

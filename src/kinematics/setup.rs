@@ -1,0 +1,152 @@
+//! Per-resample on-shell kinematics of a channel: lattice momenta with twists, energies from
+//! the two-point fits or from a dispersion relation (the user's choice, methods.md §5), Q².
+
+use super::momentum::{
+    continuum_energy, lattice_dispersion_energy, lattice_momentum, q_squared, OnShell,
+};
+use super::Hadron;
+use crate::data::{sub, Momentum};
+use crate::resample::Resampled;
+use crate::{Error, Result};
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+/// Which dispersion relation turns a mass and a momentum into an energy.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
+#[serde(rename_all = "lowercase")]
+pub enum Dispersion {
+    /// `E² = m² + p²`.
+    Continuum,
+    /// `sinh²(E/2) = sinh²(m/2) + sum_i sin²(p_i/2)`.
+    Lattice,
+}
+
+impl Dispersion {
+    /// The energy of a hadron of `mass` at momentum `p` (lattice units).
+    pub fn energy(self, mass: f64, p: [f64; 3]) -> f64 {
+        match self {
+            Dispersion::Continuum => continuum_energy(mass, p),
+            Dispersion::Lattice => lattice_dispersion_energy(mass, p),
+        }
+    }
+}
+
+/// Where the energies of sink and source come from.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Energies {
+    /// Fitted energies per integer momentum, one resampled value each (from the two-point stage).
+    Fitted(BTreeMap<Momentum, Resampled>),
+    /// The dispersion relation applied to the mass, per resample.
+    Dispersion(Dispersion),
+}
+
+/// Everything needed to turn a channel's integer momenta into on-shell kinematics, per resample.
+#[derive(Clone, Debug, PartialEq)]
+pub struct KinematicSetup {
+    /// Spin of the hadron.
+    pub hadron: Hadron,
+    /// Spatial lattice extent `L`.
+    pub l: usize,
+    /// Twist angles (radians) of the sink momentum, per direction.
+    pub twist_sink: [f64; 3],
+    /// Twist angles (radians) of the source momentum, per direction.
+    pub twist_source: [f64; 3],
+    /// Hadron mass in lattice units (from the zero-momentum two-point fit).
+    pub mass: Resampled,
+    /// Source of the energies.
+    pub energies: Energies,
+    /// Lattice spacing in fm, for GeV² output; `None` keeps lattice units only.
+    pub spacing_fm: Option<f64>,
+}
+
+/// Value of `r` at sample `s`, or the central value for `None`.
+pub(crate) fn at(r: &Resampled, s: Option<usize>) -> f64 {
+    s.map_or(r.central, |i| r.samples[i])
+}
+
+impl KinematicSetup {
+    /// True when any twist angle is non-zero (Q² shells are then formed by value).
+    pub fn is_twisted(&self) -> bool {
+        self.twist_sink
+            .iter()
+            .chain(&self.twist_source)
+            .any(|t| *t != 0.0)
+    }
+
+    /// Check that the setup can serve `n_samples` resamples; returns the number of samples.
+    pub fn validate(&self) -> Result<usize> {
+        let n = self.mass.len();
+        if self.l == 0 {
+            return Err(Error::config(
+                "kinematics: the spatial extent L must be positive",
+            ));
+        }
+        if !self.mass.is_finite() || self.mass.central <= 0.0 {
+            return Err(Error::analysis(
+                "kinematics",
+                format!(
+                    "the hadron mass must be positive and finite, got {}",
+                    self.mass.central
+                ),
+            ));
+        }
+        if let Energies::Fitted(map) = &self.energies {
+            if self.twist_sink != self.twist_source {
+                return Err(Error::config(
+                    "kinematics: fitted energies are keyed by integer momentum, so sink and source \
+                     twists must be equal; use a dispersion relation with different twists",
+                ));
+            }
+            for (p, e) in map {
+                if e.len() != n || e.scheme != self.mass.scheme {
+                    return Err(Error::analysis(
+                        "kinematics",
+                        format!(
+                            "fitted energy at momentum {p:?} has {} samples ({:?}), the mass has {n} ({:?})",
+                            e.len(),
+                            e.scheme,
+                            self.mass.scheme
+                        ),
+                    ));
+                }
+            }
+        }
+        Ok(n)
+    }
+
+    fn energy(&self, n: Momentum, p: [f64; 3], s: Option<usize>) -> Result<f64> {
+        match &self.energies {
+            Energies::Fitted(map) => map.get(&n).map(|e| at(e, s)).ok_or_else(|| {
+                Error::analysis(
+                    "kinematics",
+                    format!("no fitted energy for momentum {n:?}; fit the two-point function there or use a dispersion relation"),
+                )
+            }),
+            Energies::Dispersion(d) => Ok(d.energy(at(&self.mass, s), p)),
+        }
+    }
+
+    /// On-shell kinematics of a channel with sink momentum `pf` and momentum transfer `q`
+    /// (integer, source `pf - q`), at sample `s` (`None`: central value).
+    pub fn on_shell(&self, pf: Momentum, q: Momentum, s: Option<usize>) -> Result<OnShell> {
+        let ni = sub(pf, q);
+        let pfv = lattice_momentum(pf, self.l, self.twist_sink);
+        let piv = lattice_momentum(ni, self.l, self.twist_source);
+        Ok(OnShell {
+            mass: at(&self.mass, s),
+            pf: pfv,
+            pi: piv,
+            ef: self.energy(pf, pfv, s)?,
+            ei: self.energy(ni, piv, s)?,
+        })
+    }
+
+    /// Q² of a channel in lattice units, per resample.
+    pub fn q2(&self, pf: Momentum, q: Momentum) -> Result<Resampled> {
+        let central = q_squared(&self.on_shell(pf, q, None)?);
+        let samples = (0..self.mass.len())
+            .map(|s| self.on_shell(pf, q, Some(s)).map(|k| q_squared(&k)))
+            .collect::<Result<Vec<f64>>>()?;
+        Ok(Resampled::new(central, samples, self.mass.scheme))
+    }
+}

@@ -1,0 +1,276 @@
+//! Construction of the ratio of methods.md §3 per resample.
+//!
+//! The resampled means of `C3` (real and imaginary parts) and of the real two-point functions at
+//! `p_f` and `p_i = p_f - q` are formed first; the non-linear ratio
+//!
+//! ```text
+//! R(tsep, tau) = C3(tsep, tau) / C2_f(tsep)
+//!              * sqrt( C2_i(tsep - tau) C2_f(tau) C2_f(tsep) / (C2_f(tsep - tau) C2_i(tau) C2_i(tsep)) )
+//! ```
+//!
+//! is then evaluated on the central value and on every sample. For `p_f = p_i` the root is 1
+//! exactly and `R = C3 / C2(tsep)`. A negative product under the root is handled by
+//! [`NegativeRootPolicy`] and counted per channel; a non-finite ratio (a two-point function
+//! that is zero) is an error naming the channel.
+
+use super::lsq::CovarianceSetup;
+use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
+use crate::data::{Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
+use crate::resample::{ResamplePlan, Resampled};
+use crate::{Error, Result};
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// The ratio at one `(tsep, tau)`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct RatioPoint {
+    /// Source–sink separation.
+    pub tsep: u32,
+    /// Insertion time, `0 <= tau <= tsep`.
+    pub tau: u32,
+    /// Real and imaginary parts of the ratio.
+    pub value: ReIm,
+}
+
+/// How often the product under the root was negative in one channel.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize)]
+pub struct NegativeRootCount {
+    /// Values (central or samples, summed over all points) with a negative product.
+    pub samples: usize,
+    /// `(tsep, tau)` points with at least one negative value.
+    pub points_affected: usize,
+    /// Points dropped under [`NegativeRootPolicy::DropPoint`].
+    pub points_dropped: usize,
+}
+
+/// The ratio of one channel at every `tsep` and `tau` it has.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ChannelRatio {
+    /// The channel.
+    pub key: ChannelKey,
+    /// Ratio points ordered by `(tsep, tau)`, contact points included.
+    pub points: Vec<RatioPoint>,
+    /// Negative-root diagnostics.
+    pub negative_root: NegativeRootCount,
+    /// Number of independent bins the resamples were drawn from (for covariance estimates).
+    pub n_bins: usize,
+}
+
+impl ChannelRatio {
+    /// The separations present, ascending.
+    pub fn tseps(&self) -> Vec<u32> {
+        let mut t: Vec<u32> = self.points.iter().map(|p| p.tsep).collect();
+        t.dedup();
+        t
+    }
+
+    /// The points of separation `tsep` with `tau_cut <= tau <= tsep - tau_cut`.
+    pub fn fit_points(&self, tsep: u32, tau_cut: u32) -> Vec<&RatioPoint> {
+        self.points
+            .iter()
+            .filter(|p| p.tsep == tsep && p.tau >= tau_cut && p.tau + tau_cut <= p.tsep)
+            .collect()
+    }
+
+    /// The covariance setup of fits to this channel's points.
+    pub(crate) fn covariance<'a>(&self, settings: &'a RatioSettings) -> CovarianceSetup<'a> {
+        CovarianceSetup {
+            options: &settings.covariance,
+            n_bins: self.n_bins,
+        }
+    }
+}
+
+/// Build the ratio of every channel of `c3` from binned data. `c2` must hold the two-point
+/// function at every sink and source momentum (with interpolator
+/// `settings.two_point_smear`), on the same bins as `c3`.
+pub fn build_ratios(
+    c3: &ThreePointData,
+    c2: &TwoPointData,
+    plan: &ResamplePlan,
+    settings: &RatioSettings,
+) -> Result<BTreeMap<ChannelKey, ChannelRatio>> {
+    let n_bins = plan.n_bins();
+    if c3.configs.len() != n_bins || c2.configs.len() != n_bins {
+        return Err(Error::analysis(
+            STAGE,
+            format!(
+                "the resample plan expects {n_bins} bins but the three-point data have {} and the \
+                 two-point data {}; bin both tables with the plan's bin size",
+                c3.configs.len(),
+                c2.configs.len()
+            ),
+        ));
+    }
+    if c3.configs != c2.configs {
+        return Err(Error::analysis(
+            STAGE,
+            "the three-point and two-point data are on different configurations (or bins); \
+             both must share the same list",
+        ));
+    }
+    let mut two_point = TwoPointMeans::new(c2, plan, settings.two_point_smear.clone());
+    let mut out: BTreeMap<ChannelKey, ChannelRatio> = BTreeMap::new();
+    for (key3, series) in &c3.channels {
+        let key = ChannelKey::of(key3);
+        let tsep = key3.tsep;
+        check_series(series, n_bins, tsep, &key)?;
+        two_point.load(key.pf, tsep, &key)?;
+        two_point.load(key.pi(), tsep, &key)?;
+        let c2f = two_point.means(key.pf);
+        let c2i = two_point.means(key.pi());
+        let entry = out.entry(key.clone()).or_insert_with(|| ChannelRatio {
+            key: key.clone(),
+            points: Vec::new(),
+            negative_root: NegativeRootCount::default(),
+            n_bins,
+        });
+        for tau in 0..=tsep {
+            let t = tau as usize;
+            let ts = tsep as usize;
+            let c3re = plan.mean(series.re_at(t));
+            let c3im = plan.mean(series.im_at(t));
+            let product = Resampled::combine(
+                &[
+                    &c2i[ts - t],
+                    &c2f[t],
+                    &c2f[ts],
+                    &c2f[ts - t],
+                    &c2i[t],
+                    &c2i[ts],
+                ],
+                |x| (x[0] * x[1] * x[2]) / (x[3] * x[4] * x[5]),
+            );
+            let negatives = usize::from(product.central < 0.0)
+                + product.samples.iter().filter(|&&x| x < 0.0).count();
+            if negatives > 0 {
+                entry.negative_root.samples += negatives;
+                entry.negative_root.points_affected += 1;
+                if settings.negative_root == NegativeRootPolicy::DropPoint && product.central < 0.0
+                {
+                    entry.negative_root.points_dropped += 1;
+                    continue;
+                }
+            }
+            let factor = Resampled::combine(&[&product, &c2f[ts]], |x| x[0].abs().sqrt() / x[1]);
+            let value = ReIm {
+                re: &c3re * &factor,
+                im: &c3im * &factor,
+            };
+            if !value.re.is_finite() || !value.im.is_finite() {
+                return Err(Error::analysis(
+                    STAGE,
+                    format!(
+                        "channel {key}, tsep {tsep}, tau {tau}: the ratio is not finite (a \
+                         two-point function at p_f={:?} or p_i={:?} is zero or not finite)",
+                        key.pf,
+                        key.pi()
+                    ),
+                ));
+            }
+            entry.points.push(RatioPoint { tsep, tau, value });
+        }
+    }
+    for ratio in out.values_mut() {
+        ratio.points.sort_by_key(|p| (p.tsep, p.tau));
+    }
+    Ok(out)
+}
+
+fn check_series(series: &Series, n_bins: usize, tsep: u32, key: &ChannelKey) -> Result<()> {
+    if series.n_cfg != n_bins || series.re.len() != series.n_t * n_bins {
+        return Err(Error::analysis(
+            STAGE,
+            format!(
+                "channel {key}, tsep {tsep}: the series has {} configurations and {} values; \
+                 expected {n_bins} bins per insertion time",
+                series.n_cfg,
+                series.re.len()
+            ),
+        ));
+    }
+    if series.n_t != tsep as usize + 1 || series.im.len() != series.re.len() {
+        return Err(Error::analysis(
+            STAGE,
+            format!(
+                "channel {key}, tsep {tsep}: the series has {} insertion times; expected tau = \
+                 0..={tsep} ({} values): tau outside [0, tsep] is unphysical",
+                series.n_t,
+                tsep + 1
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Resampled means of the two-point functions, computed once per momentum.
+struct TwoPointMeans<'a> {
+    c2: &'a TwoPointData,
+    plan: &'a ResamplePlan,
+    smear: Option<String>,
+    cache: BTreeMap<Momentum, Vec<Resampled>>,
+}
+
+impl<'a> TwoPointMeans<'a> {
+    fn new(c2: &'a TwoPointData, plan: &'a ResamplePlan, smear: Option<String>) -> Self {
+        TwoPointMeans {
+            c2,
+            plan,
+            smear,
+            cache: BTreeMap::new(),
+        }
+    }
+
+    /// The two-point means at momentum `p` (after a successful [`Self::load`]).
+    fn means(&self, p: Momentum) -> &[Resampled] {
+        self.cache.get(&p).map_or(&[], Vec::as_slice)
+    }
+
+    /// Compute the two-point means at momentum `p` and check that they reach `tsep`.
+    fn load(&mut self, p: Momentum, tsep: u32, channel: &ChannelKey) -> Result<()> {
+        if !self.cache.contains_key(&p) {
+            let key = TwoPointKey {
+                momentum: p,
+                smear: self.smear.clone(),
+            };
+            let series = self.c2.channels.get(&key).ok_or_else(|| {
+                Error::analysis(
+                    STAGE,
+                    format!(
+                        "channel {channel}: no two-point function at momentum {p:?} (interpolator \
+                         {}); the ratio needs C2 at p_f={:?} and p_i=p_f-q={:?}",
+                        self.smear.as_deref().unwrap_or("none"),
+                        channel.pf,
+                        channel.pi()
+                    ),
+                )
+            })?;
+            if series.n_cfg != self.plan.n_bins() || series.re.len() != series.n_t * series.n_cfg {
+                return Err(Error::analysis(
+                    STAGE,
+                    format!(
+                        "two-point function at momentum {p:?}: {} configurations, expected {} bins",
+                        series.n_cfg,
+                        self.plan.n_bins()
+                    ),
+                ));
+            }
+            let means = (0..series.n_t)
+                .map(|t| self.plan.mean(series.re_at(t)))
+                .collect();
+            self.cache.insert(p, means);
+        }
+        let n_t = self.means(p).len();
+        if n_t <= tsep as usize {
+            return Err(Error::analysis(
+                STAGE,
+                format!(
+                    "channel {channel}, tsep {tsep}: the two-point function at momentum {p:?} has \
+                     only {} time slices; the ratio needs t = 0..={tsep}",
+                    n_t
+                ),
+            ));
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,236 @@
+//! Two-state fit of the ratio, joint over all `tsep` and `tau` (methods.md §4).
+//!
+//! With `C2 = A_0 e^{-E_0 t} (1 + a e^{-Delta t})` at the source (`i`) and sink (`f`) momenta
+//! and the three-point function's ground-state term times
+//! `1 + b_i e^{-Delta_i tau} + b_f e^{-Delta_f (tsep - tau)} + b_if e^{-Delta_i tau - Delta_f (tsep - tau)}`,
+//! the ratio is exactly
+//!
+//! ```text
+//! R = [M + c_i e^{-Delta_i tau} + c_f e^{-Delta_f (tsep - tau)} + c_if e^{-Delta_i tau - Delta_f (tsep - tau)}] * F2
+//! F2 = 1/(1 + a_f e^{-Delta_f tsep})
+//!      * sqrt( (1 + a_i e^{-Delta_i (tsep - tau)}) (1 + a_f e^{-Delta_f tau}) (1 + a_f e^{-Delta_f tsep})
+//!            / ((1 + a_f e^{-Delta_f (tsep - tau)}) (1 + a_i e^{-Delta_i tau}) (1 + a_i e^{-Delta_i tsep})) )
+//! ```
+//!
+//! With `a` and `Delta` taken per resample from the two-point stage, the fit is linear in
+//! `(M, c_i, c_f, c_if)` and solved in closed form per resample with the covariance frozen.
+//! For `p_f = p_i` with identical interpolators `c_i = c_f` is enforced (one parameter).
+//! The floating-gap variant lives in the private module `two_state_float`.
+
+use super::lsq::fit_re_im;
+use super::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
+use crate::data::Momentum;
+use crate::resample::Resampled;
+use crate::{Error, Result};
+use nalgebra::DMatrix;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// Excited-state parameters of the two-point function at one momentum, per resample, as the
+/// spectrum stage delivers them (the pipeline fills this from the spectrum output).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct TwoPointStates {
+    /// Ground-state energy `E_0` (carried for reports; the ratio fit needs only `a` and `Delta`).
+    pub energy: Resampled,
+    /// Amplitude ratio `a = A_1 / A_0`.
+    pub amp_ratio: Resampled,
+    /// Gap `Delta = E_1 - E_0` (positive).
+    pub gap: Resampled,
+}
+
+/// Gaps fitted by the floating-gap variant.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct FittedGaps {
+    /// `Delta_i` at the source momentum.
+    pub source: Resampled,
+    /// `Delta_f` at the sink momentum.
+    pub sink: Resampled,
+}
+
+/// The two-state estimate of one channel.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct TwoStateFit {
+    /// The matrix element `M` with the fit quality.
+    pub m: ReImFit,
+    /// Source-side excited-state coefficient `c_i`.
+    pub c_i: ReIm,
+    /// Sink-side coefficient `c_f` (equal to `c_i` when `symmetric`).
+    pub c_f: ReIm,
+    /// Excited-to-excited coefficient `c_if`.
+    pub c_if: ReIm,
+    /// Whether `c_i = c_f` was enforced (`p_f = p_i`, identical interpolators).
+    pub symmetric: bool,
+    /// The separations used.
+    pub tseps: Vec<u32>,
+    /// Number of `(tsep, tau)` points fitted.
+    pub n_points: usize,
+    /// Fitted gaps (floating-gap variant only).
+    pub gaps: Option<FittedGaps>,
+}
+
+/// The two-point parameters of one fit at one resample (`None` = central value).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Gaps {
+    pub a_i: f64,
+    pub d_i: f64,
+    pub a_f: f64,
+    pub d_f: f64,
+}
+
+/// `F2(tsep, tau)` of the module documentation.
+pub(crate) fn f2(tsep: f64, tau: f64, g: Gaps) -> f64 {
+    let ci = |t: f64| 1.0 + g.a_i * (-g.d_i * t).exp();
+    let cf = |t: f64| 1.0 + g.a_f * (-g.d_f * t).exp();
+    let root = (ci(tsep - tau) * cf(tau) * cf(tsep)) / (cf(tsep - tau) * ci(tau) * ci(tsep));
+    root.abs().sqrt() / cf(tsep)
+}
+
+/// The fitted points and the two-point inputs of one channel.
+pub(crate) struct Setup<'a> {
+    pub points: Vec<&'a RatioPoint>,
+    pub tseps: Vec<u32>,
+    pub source: &'a TwoPointStates,
+    pub sink: &'a TwoPointStates,
+    pub symmetric: bool,
+}
+
+impl<'a> Setup<'a> {
+    pub fn new(
+        ratio: &'a ChannelRatio,
+        states: &'a BTreeMap<Momentum, TwoPointStates>,
+        settings: &RatioSettings,
+    ) -> Result<Self> {
+        let key = &ratio.key;
+        let lookup = |p: Momentum, side: &str| {
+            states.get(&p).ok_or_else(|| {
+                Error::analysis(
+                    STAGE,
+                    format!(
+                        "two-state fit of channel {key}: no two-point excited-state parameters \
+                         at the {side} momentum {p:?}"
+                    ),
+                )
+            })
+        };
+        let source = lookup(key.pi(), "source")?;
+        let sink = lookup(key.pf, "sink")?;
+        let n = ratio.points.first().map_or(0, |p| p.value.re.len());
+        for s in [source, sink] {
+            for (name, r) in [("amplitude ratio", &s.amp_ratio), ("gap", &s.gap)] {
+                if r.len() != n || !r.is_finite() {
+                    return Err(Error::analysis(
+                        STAGE,
+                        format!(
+                            "two-state fit of channel {key}: the two-point {name} has {} samples \
+                             (or non-finite values); the ratio has {n}",
+                            r.len()
+                        ),
+                    ));
+                }
+            }
+        }
+        let mut points = Vec::new();
+        let mut tseps = Vec::new();
+        for tsep in ratio.tseps() {
+            if tsep < settings.two_state_tsep_min {
+                continue;
+            }
+            let p = ratio.fit_points(tsep, settings.tau_cut);
+            if !p.is_empty() {
+                tseps.push(tsep);
+                points.extend(p);
+            }
+        }
+        Ok(Setup {
+            points,
+            tseps,
+            source,
+            sink,
+            symmetric: key.pf == key.pi() && settings.identical_interpolators,
+        })
+    }
+
+    /// The two-point parameters at resample `s` (`None` = central).
+    pub fn gaps(&self, s: Option<usize>) -> Gaps {
+        let at = |r: &Resampled| s.map_or(r.central, |k| r.samples[k]);
+        Gaps {
+            a_i: at(&self.source.amp_ratio),
+            d_i: at(&self.source.gap),
+            a_f: at(&self.sink.amp_ratio),
+            d_f: at(&self.sink.gap),
+        }
+    }
+
+    /// Design matrix of the linear parameters for gaps `g`: columns `F2 * (1, e_i, e_f, e_i e_f)`,
+    /// or `F2 * (1, e_i + e_f, e_i e_f)` when symmetric.
+    pub fn design(&self, g: Gaps) -> DMatrix<f64> {
+        let k = if self.symmetric { 3 } else { 4 };
+        let mut x = DMatrix::zeros(self.points.len(), k);
+        for (row, p) in self.points.iter().enumerate() {
+            let (tsep, tau) = (p.tsep as f64, p.tau as f64);
+            let f = f2(tsep, tau, g);
+            let ei = (-g.d_i * tau).exp();
+            let ef = (-g.d_f * (tsep - tau)).exp();
+            x[(row, 0)] = f;
+            if self.symmetric {
+                x[(row, 1)] = f * (ei + ef);
+                x[(row, 2)] = f * ei * ef;
+            } else {
+                x[(row, 1)] = f * ei;
+                x[(row, 2)] = f * ef;
+                x[(row, 3)] = f * ei * ef;
+            }
+        }
+        x
+    }
+}
+
+/// Two-state fit of `ratio` with the gaps and amplitude ratios of `states` fixed per resample.
+pub fn two_state_fixed(
+    ratio: &ChannelRatio,
+    states: &BTreeMap<Momentum, TwoPointStates>,
+    settings: &RatioSettings,
+) -> Result<TwoStateFit> {
+    let setup = Setup::new(ratio, states, settings)?;
+    let what = format!("two-state fit of channel {}", ratio.key);
+    let values: Vec<&ReIm> = setup.points.iter().map(|p| &p.value).collect();
+    let (params, m) = fit_re_im(
+        &values,
+        |s| setup.design(setup.gaps(s)),
+        ratio.covariance(settings),
+        &what,
+    )?;
+    let mut it = params.into_iter().skip(1);
+    let missing = || Error::analysis(STAGE, format!("{what}: missing parameters"));
+    let c_i = it.next().ok_or_else(missing)?;
+    let c_f = if setup.symmetric {
+        c_i.clone()
+    } else {
+        it.next().ok_or_else(missing)?
+    };
+    let c_if = it.next().ok_or_else(missing)?;
+    Ok(TwoStateFit {
+        m,
+        c_i,
+        c_f,
+        c_if,
+        symmetric: setup.symmetric,
+        tseps: setup.tseps,
+        n_points: setup.points.len(),
+        gaps: None,
+    })
+}
+
+/// The two-state fit in the variant `settings.two_state` asks for.
+pub fn two_state(
+    ratio: &ChannelRatio,
+    states: &BTreeMap<Momentum, TwoPointStates>,
+    settings: &RatioSettings,
+) -> Result<TwoStateFit> {
+    match settings.two_state {
+        super::TwoStateVariant::FixedGaps => two_state_fixed(ratio, states, settings),
+        super::TwoStateVariant::FloatingGaps { prior_width_factor } => {
+            super::two_state_float::two_state_floating(ratio, states, settings, prior_width_factor)
+        }
+    }
+}

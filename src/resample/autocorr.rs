@@ -1,0 +1,250 @@
+//! Autocorrelation in Monte Carlo time: the integrated autocorrelation time by the Gamma
+//! method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143), and the
+//! error of the mean versus bin size (a binning study).
+//!
+//! For a chain `x_1..x_N` with mean `x̄`:
+//! - autocorrelation function `Γ(t) = 1/(N-t) Σ_{i=1}^{N-t} (x_i - x̄)(x_{i+t} - x̄)` and its
+//!   normalised form `ρ(t) = Γ(t)/Γ(0)` (Wolff eq. 31);
+//! - `τ_int(W) = 1/2 + Σ_{t=1}^{W} ρ(t)`;
+//! - automatic window (Wolff eq. 52): with `τ(W) = S / ln((2τ_int(W)+1)/(2τ_int(W)-1))`
+//!   (a tiny `τ` when `τ_int(W) <= 1/2`), `W` is the first window where
+//!   `g(W) = exp(-W/τ(W)) - τ(W)/sqrt(W N)` becomes negative; `S` (default 1.5) measures how
+//!   long the slowest mode is assumed to be relative to `τ_int`;
+//! - bias correction (Wolff eq. 49): `Γ(t) += C_F/N` with `C_F = Γ(0) + 2 Σ_{t=1}^{W} Γ(t)`,
+//!   after which `C_F`, `τ_int = C_F / (2Γ(0))` and the error of the mean `sqrt(C_F/N)` are
+//!   recomputed;
+//! - error of `τ_int` (Wolff eq. 42, Madras–Sokal): `τ_int sqrt(4 (W + 1/2 - τ_int) / N)`.
+//!
+//! An AR(1) chain `x_i = ρ x_{i-1} + ε_i` has `ρ(t) = ρ^t` and `τ_int = (1+ρ)/(2(1-ρ))`.
+//!
+//! NIST's lag-1 "sample autocorrelation coefficient" divides `Σ_{i≥2}(y_i-ȳ)(y_{i-1}-ȳ)` by
+//! `Σ(y_i-ȳ)²` (both sums unnormalised), so it equals `(N-1)/N ρ(1)` in the convention above;
+//! [`sample_autocorrelation`] computes that convention.
+
+use super::binning::bin_values;
+use super::value::stable_mean;
+use crate::{Error, Result};
+use serde::{Deserialize, Serialize};
+
+/// Wolff's recommended default for the windowing factor `S`.
+pub const DEFAULT_S: f64 = 1.5;
+
+/// Fewest values the Gamma method accepts.
+pub const MIN_LENGTH: usize = 10;
+
+/// Result of the Gamma method for the mean of one chain.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct AutocorrResult {
+    /// Mean of the chain.
+    pub mean: f64,
+    /// Error of the mean including autocorrelation, `sqrt(C_F / N)`.
+    pub error: f64,
+    /// Integrated autocorrelation time (bias corrected); `1/2` for independent data.
+    pub tau_int: f64,
+    /// Statistical error of `tau_int`.
+    pub tau_int_error: f64,
+    /// The summation window `W` chosen.
+    pub window: usize,
+    /// Length of the chain.
+    pub n: usize,
+    /// Conditions that make the result less trustworthy (window not found, chain short
+    /// compared with `tau_int`).
+    pub warnings: Vec<String>,
+}
+
+/// One point of a binning study.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct BinningPoint {
+    /// Configurations per bin.
+    pub bin_size: usize,
+    /// Naive error of the mean of the bins, `s_bins / sqrt(n_bins)`.
+    pub error: f64,
+}
+
+fn check_chain(x: &[f64]) -> Result<f64> {
+    if x.len() < MIN_LENGTH {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!(
+                "a chain of {} values is too short; at least {MIN_LENGTH} are needed",
+                x.len()
+            ),
+        ));
+    }
+    if let Some(i) = x.iter().position(|v| !v.is_finite()) {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!("value {i} of the chain is not finite ({})", x[i]),
+        ));
+    }
+    Ok(stable_mean(x))
+}
+
+/// Deviations from the mean, and `Γ(t)` from them with the `1/(N-t)` normalisation.
+fn deviations(x: &[f64], mean: f64) -> Vec<f64> {
+    x.iter().map(|v| v - mean).collect()
+}
+
+fn gamma_at(dev: &[f64], t: usize) -> f64 {
+    let n = dev.len();
+    let s: f64 = dev[..n - t].iter().zip(&dev[t..]).map(|(a, b)| a * b).sum();
+    s / (n - t) as f64
+}
+
+/// Normalised autocorrelation function `ρ(t) = Γ(t)/Γ(0)`, `t = 0..=max_lag` (capped at
+/// `N-1`), with Wolff's `1/(N-t)` normalisation of `Γ`. Errors for a chain shorter than
+/// [`MIN_LENGTH`], with non-finite values, or constant.
+pub fn rho(x: &[f64], max_lag: usize) -> Result<Vec<f64>> {
+    let dev = deviations(x, check_chain(x)?);
+    let g0 = gamma_at(&dev, 0);
+    if g0 <= 0.0 {
+        return Err(constant_chain());
+    }
+    Ok((0..=max_lag.min(x.len() - 1))
+        .map(|t| gamma_at(&dev, t) / g0)
+        .collect())
+}
+
+/// The sample autocorrelation coefficient at `lag` in the NIST / Box–Jenkins convention,
+/// `Σ_{i>lag}(y_i-ȳ)(y_{i-lag}-ȳ) / Σ_i(y_i-ȳ)²`. Errors for non-finite values, a constant
+/// chain, or `lag >= N`.
+pub fn sample_autocorrelation(x: &[f64], lag: usize) -> Result<f64> {
+    if let Some(i) = x.iter().position(|v| !v.is_finite()) {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!("value {i} of the chain is not finite ({})", x[i]),
+        ));
+    }
+    if lag >= x.len() {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!(
+                "lag {lag} is not shorter than the chain ({} values)",
+                x.len()
+            ),
+        ));
+    }
+    let dev = deviations(x, stable_mean(x));
+    let den: f64 = dev.iter().map(|d| d * d).sum();
+    if den <= 0.0 {
+        return Err(constant_chain());
+    }
+    let num: f64 = dev[lag..].iter().zip(&dev).map(|(a, b)| a * b).sum();
+    Ok(num / den)
+}
+
+fn constant_chain() -> Error {
+    Error::analysis(
+        "autocorrelation",
+        "the chain is constant; its autocorrelation is undefined (and its error zero)",
+    )
+}
+
+/// Wolff's Gamma method for the mean of the chain `x` with windowing factor `s`
+/// ([`DEFAULT_S`] = 1.5). Errors for a chain shorter than [`MIN_LENGTH`], with non-finite
+/// values, constant, for `s <= 0`, or when the summed autocorrelation is not positive (a
+/// strongly anticorrelated chain). When no window is found up to `N/2` the largest is used and
+/// a warning says so.
+pub fn gamma_method(x: &[f64], s: f64) -> Result<AutocorrResult> {
+    if !(s > 0.0 && s.is_finite()) {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!("windowing factor S = {s}; expected a positive number (default 1.5)"),
+        ));
+    }
+    let mean = check_chain(x)?;
+    let n = x.len();
+    let nf = n as f64;
+    let w_max = n / 2;
+    let dev = deviations(x, mean);
+    // Γ(t) is computed lag by lag, only up to the window (O(N W), not O(N²)).
+    let mut g = vec![gamma_at(&dev, 0)];
+    if g[0] <= 0.0 {
+        return Err(constant_chain());
+    }
+
+    let mut warnings = Vec::new();
+    let mut window = None;
+    let mut tau_int = 0.5;
+    for w in 1..=w_max {
+        let gw = gamma_at(&dev, w);
+        g.push(gw);
+        tau_int += gw / g[0];
+        let tau = if tau_int > 0.5 {
+            s / ((2.0 * tau_int + 1.0) / (2.0 * tau_int - 1.0)).ln()
+        } else {
+            1e-6
+        };
+        let gw_crit = (-(w as f64) / tau).exp() - tau / (w as f64 * nf).sqrt();
+        if gw_crit < 0.0 {
+            window = Some(w);
+            break;
+        }
+    }
+    let window = match window {
+        Some(w) => w,
+        None => {
+            warnings.push(format!(
+                "no summation window found up to N/2 = {w_max}: the chain is too short for its \
+                 autocorrelation time; tau_int is a lower bound"
+            ));
+            w_max
+        }
+    };
+
+    let c_f = |g: &[f64]| g[0] + 2.0 * g[1..=window].iter().sum::<f64>();
+    let bias = c_f(&g) / nf;
+    for v in g.iter_mut().take(window + 1) {
+        *v += bias;
+    }
+    let cf = c_f(&g);
+    if cf.is_nan() || cf <= 0.0 {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!(
+                "the summed autocorrelation C_F = {cf:.3e} is not positive (a strongly \
+                 anticorrelated chain); the Gamma method gives no error"
+            ),
+        ));
+    }
+    let tau_int = cf / (2.0 * g[0]);
+    let tau_int_error = tau_int * (4.0 * (window as f64 + 0.5 - tau_int).max(0.0) / nf).sqrt();
+    if nf < 100.0 * tau_int {
+        warnings.push(format!(
+            "the chain has {n} values, fewer than 100 tau_int = {:.0}; the error estimate is \
+             unreliable",
+            100.0 * tau_int
+        ));
+    }
+    Ok(AutocorrResult {
+        mean,
+        error: (cf / nf).sqrt(),
+        tau_int,
+        tau_int_error,
+        window,
+        n,
+        warnings,
+    })
+}
+
+/// Error of the mean versus bin size, `b = 1..=max_bin`, stopping before fewer than two bins
+/// remain: the naive error of the bin means, `s_bins / sqrt(n_bins)` (`s` with denominator
+/// `n_bins - 1`). For a chain with autocorrelation it rises with `b` and levels off at the
+/// true error, about `sqrt(2 tau_int)` times the `b = 1` value.
+pub fn binning_study(x: &[f64], max_bin: usize) -> Vec<BinningPoint> {
+    (1..=max_bin)
+        .map_while(|b| {
+            let bins = bin_values(x, b);
+            let m = bins.len();
+            if m < 2 {
+                return None;
+            }
+            let mean = stable_mean(&bins);
+            let var = bins.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (m as f64 - 1.0);
+            Some(BinningPoint {
+                bin_size: b,
+                error: (var / m as f64).sqrt(),
+            })
+        })
+        .collect()
+}

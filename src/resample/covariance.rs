@@ -1,0 +1,500 @@
+//! Covariance of a vector of resampled values, for correlated fits (methods.md §2).
+//!
+//! The covariance is estimated once from the resamples and held fixed (common practice).
+//! Each value `i` contributes one deviation per sample, rescaled so that the deviations act
+//! like per-configuration deviations of the data:
+//! - jackknife: `y_ki = (N-1)(x_ki - x̄_i)` (for a mean, exactly `-(a_ki - ā_i)` of the bin
+//!   data), and `C = Σ_k y_k y_kᵀ / (N (N-1))`, the jackknife covariance;
+//! - bootstrap: `y_ki = x_ki - x̄_i` and `C = Σ_k y_k y_kᵀ / (B-1)`.
+//!
+//! `C` has the scale of [`Resampled::variance`]: its diagonal is the squared errors.
+//!
+//! Kinds ([`CovarianceKind`]):
+//! - `full`: `C`.
+//! - `diagonal`: `diag(C)` (uncorrelated weights).
+//! - `shrinkage`: `(1-λ) C + λ F`, with the Ledoit–Wolf intensity (Ledoit & Wolf, J.
+//!   Multivariate Anal. 88 (2004) 365) or a fixed `λ`. Let `S = (1/n) Σ_k y_k y_kᵀ`.
+//!   - target `diagonal` (default, common practice in lattice fits): the correlation matrix is
+//!     shrunk toward the identity, i.e. `F = diag(C)` and every off-diagonal element is scaled
+//!     by `1-λ`. With standardised deviations `z_ki = y_ki / sqrt(S_ii)`, `r = (1/n) Σ z zᵀ`,
+//!     the intensity is `λ = Σ_{i≠j} Var(r_ij) / Σ_{i≠j} r_ij²` with
+//!     `Var(r_ij) = (1/n²) Σ_k (z_ki z_kj - r_ij)²` (Ledoit–Wolf's estimator of the noise
+//!     of each element, applied to the correlation matrix; the "target D" of Schäfer &
+//!     Strimmer, Stat. Appl. Genet. Mol. Biol. 4 (2005) 32), clipped to [0, 1].
+//!   - target `identity`: Ledoit & Wolf 2004 as published, `F = μ I` with `μ = tr(C)/d`,
+//!     `λ = min(b̄², δ²)/δ²`, `δ² = ‖S - μ_S I‖²`, `b̄² = (1/n²) Σ_k ‖y_k y_kᵀ - S‖²`
+//!     (Frobenius norms). This is what `sklearn.covariance.LedoitWolf` computes.
+//!
+//! For bootstrap samples drawn from `N` bins, [`estimate_with_bins`] takes `N`: the noise
+//! terms (`Var(r_ij)`, `b̄²`) are then scaled by `B/N`, because the noise of a covariance
+//! estimated from `N` bins does not shrink with the number `B` of bootstrap draws.
+//!
+//! Eigenvalue cut (`eigen_cut = Some(c)`, `0 < c < 1`): the eigenvalues of the correlation
+//! matrix (the covariance scaled to unit diagonal) below `c λ_max` are raised to `c λ_max`,
+//! keeping the eigenvectors; the matrix is scaled back with the original errors. Raising
+//! (rather than dropping) makes the poorly determined directions less trusted, never more.
+//!
+//! Small samples (Hartlap, Simon & Schneider, Astron. Astrophys. 464 (2007) 399): the inverse
+//! of a covariance estimated from `N` samples of `d` values is biased high by `(N-1)/(N-d-2)`;
+//! [`hartlap_factor`] gives the correction factor `(N-d-2)/(N-1)`. A warning is added when
+//! `N < 5 d`. A singular or badly conditioned matrix is reported in `warnings` and
+//! [`CovarianceEstimate::inverse`] refuses it: nothing is inverted silently.
+
+use super::value::{Resampled, Scheme};
+use crate::{Error, Result};
+use nalgebra::{DMatrix, SymmetricEigen};
+use schemars::gen::SchemaGenerator;
+use schemars::schema::{InstanceType, Schema, SchemaObject};
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+/// Condition number of the correlation matrix above which a warning is given.
+pub const WARN_CONDITION: f64 = 1e8;
+/// Condition number of the correlation matrix above which [`CovarianceEstimate::inverse`]
+/// refuses to invert.
+pub const MAX_CONDITION: f64 = 1e13;
+
+/// What a shrinkage estimate shrinks toward.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "lowercase")]
+pub enum ShrinkageTarget {
+    /// The diagonal of the covariance: the correlation matrix is shrunk toward the identity.
+    #[default]
+    Diagonal,
+    /// The scaled identity `μ I`, `μ = tr(C)/d` (Ledoit & Wolf 2004 as published).
+    Identity,
+}
+
+/// Which covariance to use. In YAML: `full`, `diagonal`, `shrinkage` (diagonal target,
+/// Ledoit–Wolf intensity) or `{shrinkage: {target: identity, intensity: 0.3}}`.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Deserialize)]
+#[serde(try_from = "KindRepr")]
+pub enum CovarianceKind {
+    /// The full covariance of the resamples.
+    #[default]
+    Full,
+    /// Only the variances (uncorrelated weights).
+    Diagonal,
+    /// Shrinkage toward `target`.
+    Shrinkage {
+        /// What to shrink toward.
+        target: ShrinkageTarget,
+        /// `None`: the Ledoit–Wolf optimal intensity; `Some(λ)`, `0 <= λ <= 1`: fixed.
+        intensity: Option<f64>,
+    },
+}
+
+/// The YAML forms of [`CovarianceKind`]: a bare name, or `{shrinkage: {...}}`.
+#[derive(Deserialize, JsonSchema)]
+#[serde(untagged)]
+enum KindRepr {
+    /// `full`, `diagonal` or `shrinkage` (diagonal target, Ledoit–Wolf intensity).
+    #[schemars(schema_with = "kind_name_schema")]
+    Name(String),
+    /// `{shrinkage: {target: diagonal|identity, intensity: 0..1}}`.
+    Tagged(TaggedKind),
+}
+
+/// A kind with settings.
+#[derive(Deserialize, JsonSchema)]
+#[serde(rename_all = "lowercase")]
+enum TaggedKind {
+    /// The full covariance.
+    Full,
+    /// Only the variances.
+    Diagonal,
+    /// Shrinkage with explicit settings.
+    Shrinkage(ShrinkageSpec),
+}
+
+/// Settings of a shrinkage covariance.
+#[derive(Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+struct ShrinkageSpec {
+    /// What to shrink toward (default `diagonal`).
+    #[serde(default)]
+    target: ShrinkageTarget,
+    /// Fixed intensity from 0 to 1; omit for the Ledoit–Wolf optimum.
+    #[serde(default)]
+    intensity: Option<f64>,
+}
+
+fn kind_name_schema(_: &mut SchemaGenerator) -> Schema {
+    SchemaObject {
+        instance_type: Some(InstanceType::String.into()),
+        enum_values: Some(vec!["full".into(), "diagonal".into(), "shrinkage".into()]),
+        ..Default::default()
+    }
+    .into()
+}
+
+/// Written in the form it is read: `full`, `diagonal`, `{shrinkage: {target, intensity}}`.
+impl Serialize for CovarianceKind {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        match *self {
+            CovarianceKind::Full => s.serialize_str("full"),
+            CovarianceKind::Diagonal => s.serialize_str("diagonal"),
+            CovarianceKind::Shrinkage { target, intensity } => {
+                let mut m = s.serialize_map(Some(1))?;
+                m.serialize_entry("shrinkage", &ShrinkageSpec { target, intensity })?;
+                m.end()
+            }
+        }
+    }
+}
+
+impl JsonSchema for CovarianceKind {
+    fn schema_name() -> String {
+        "CovarianceKind".to_string()
+    }
+    fn json_schema(gen: &mut SchemaGenerator) -> Schema {
+        KindRepr::json_schema(gen)
+    }
+}
+
+impl TryFrom<KindRepr> for CovarianceKind {
+    type Error = String;
+    fn try_from(r: KindRepr) -> std::result::Result<Self, String> {
+        let shrink = |s: ShrinkageSpec| CovarianceKind::Shrinkage {
+            target: s.target,
+            intensity: s.intensity,
+        };
+        match r {
+            KindRepr::Name(n) => match n.as_str() {
+                "full" => Ok(CovarianceKind::Full),
+                "diagonal" => Ok(CovarianceKind::Diagonal),
+                "shrinkage" => Ok(shrink(ShrinkageSpec {
+                    target: ShrinkageTarget::Diagonal,
+                    intensity: None,
+                })),
+                other => Err(format!(
+                    "unknown covariance kind `{other}`; expected `full`, `diagonal` or \
+                     `shrinkage` (or `{{shrinkage: {{target: diagonal|identity, intensity: \
+                     0..1}}}}`)"
+                )),
+            },
+            KindRepr::Tagged(TaggedKind::Full) => Ok(CovarianceKind::Full),
+            KindRepr::Tagged(TaggedKind::Diagonal) => Ok(CovarianceKind::Diagonal),
+            KindRepr::Tagged(TaggedKind::Shrinkage(s)) => Ok(shrink(s)),
+        }
+    }
+}
+
+/// How to estimate a covariance (a pipeline YAML block).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(default, deny_unknown_fields)]
+pub struct CovarianceOptions {
+    /// Full, diagonal or shrinkage.
+    pub kind: CovarianceKind,
+    /// Raise correlation-matrix eigenvalues below `eigen_cut * λ_max` to that floor.
+    pub eigen_cut: Option<f64>,
+}
+
+/// An estimated covariance with the diagnostics a fit report needs.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CovarianceEstimate {
+    /// The `d × d` covariance, on the scale of the squared errors.
+    pub matrix: DMatrix<f64>,
+    /// Condition number (largest / smallest eigenvalue) of the correlation matrix, i.e. the
+    /// covariance scaled to unit diagonal; infinite when singular.
+    pub condition_number: f64,
+    /// The shrinkage intensity used, for shrinkage estimates.
+    pub shrinkage: Option<f64>,
+    /// Number of eigenvalues raised by the eigenvalue cut.
+    pub n_eigen_cut: usize,
+    /// Everything a user should know before trusting the inverse.
+    pub warnings: Vec<String>,
+}
+
+impl CovarianceEstimate {
+    /// The inverse covariance, refused (with the reason) when the matrix is not positive
+    /// definite or its correlation matrix has condition number above [`MAX_CONDITION`].
+    pub fn inverse(&self) -> Result<DMatrix<f64>> {
+        if self.condition_number.is_nan() || self.condition_number > MAX_CONDITION {
+            return Err(Error::analysis(
+                "covariance",
+                format!(
+                    "the covariance is singular or too badly conditioned to invert (condition \
+                     number {:.3e} of the correlation matrix, limit {MAX_CONDITION:.0e}); use an \
+                     eigenvalue cut, shrinkage, a diagonal covariance, or fewer points",
+                    self.condition_number
+                ),
+            ));
+        }
+        match self.matrix.clone().cholesky() {
+            Some(c) => Ok(c.inverse()),
+            None => Err(Error::analysis(
+                "covariance",
+                "the covariance is not positive definite; use an eigenvalue cut or shrinkage",
+            )),
+        }
+    }
+}
+
+/// Hartlap et al. (2007) factor `(n - d - 2)/(n - 1)` that removes the bias of the inverse of
+/// a covariance estimated from `n` samples of `d` values (multiply the inverse by it);
+/// `None` when `n <= d + 2`, where no unbiased inverse exists.
+pub fn hartlap_factor(n: usize, d: usize) -> Option<f64> {
+    if n > d + 2 {
+        Some((n - d - 2) as f64 / (n - 1) as f64)
+    } else {
+        None
+    }
+}
+
+/// Estimate the covariance of `values` (all from one resample plan). For bootstrap values,
+/// the samples are treated as independent observations; prefer [`estimate_with_bins`], which
+/// knows the number of bins they were drawn from.
+pub fn estimate(values: &[Resampled], opts: &CovarianceOptions) -> Result<CovarianceEstimate> {
+    let n = values.first().map_or(0, Resampled::len);
+    estimate_with_bins(values, opts, n)
+}
+
+/// Estimate the covariance of `values`, resampled from `n_bins` independent bins
+/// (`plan.n_bins()`). For a jackknife `n_bins` must equal the number of samples.
+pub fn estimate_with_bins(
+    values: &[Resampled],
+    opts: &CovarianceOptions,
+    n_bins: usize,
+) -> Result<CovarianceEstimate> {
+    Resampled::check_compatible(values, "covariance")?;
+    let d = values.len();
+    let n = values[0].len();
+    let scheme = values[0].scheme;
+    if n < 2 {
+        return Err(Error::analysis(
+            "covariance",
+            format!("{n} sample(s); a covariance needs at least 2"),
+        ));
+    }
+    if scheme == Scheme::Jackknife && n_bins != n {
+        return Err(Error::analysis(
+            "covariance",
+            format!("jackknife with {n} samples cannot come from {n_bins} bins"),
+        ));
+    }
+    if n_bins < 2 {
+        return Err(Error::analysis(
+            "covariance",
+            format!("{n_bins} bin(s); a covariance needs at least 2"),
+        ));
+    }
+    if let Some(i) = values.iter().position(|v| !v.is_finite()) {
+        return Err(Error::analysis(
+            "covariance",
+            format!("value {i} has a non-finite central value or sample"),
+        ));
+    }
+    if let Some(c) = opts.eigen_cut {
+        if !(c > 0.0 && c < 1.0) {
+            return Err(Error::analysis(
+                "covariance",
+                format!("eigen_cut = {c}; expected a number between 0 and 1 (e.g. 1e-3)"),
+            ));
+        }
+    }
+
+    let y = deviations(values);
+    let norm = match scheme {
+        Scheme::Jackknife => 1.0 / (n as f64 * (n as f64 - 1.0)),
+        Scheme::Bootstrap => 1.0 / (n as f64 - 1.0),
+    };
+    let full = y.transpose() * &y * norm;
+    if let Some(i) = (0..d).find(|&i| full[(i, i)] <= 0.0) {
+        return Err(Error::analysis(
+            "covariance",
+            format!("value {i} does not fluctuate (zero variance); it cannot be weighted in a fit"),
+        ));
+    }
+    // Noise terms are averages over n samples; for bootstrap they stand for n_bins bins.
+    let noise_scale = n as f64 / n_bins as f64;
+
+    let mut warnings = Vec::new();
+    let (mut matrix, shrinkage) = match opts.kind {
+        CovarianceKind::Full => (full, None),
+        CovarianceKind::Diagonal => (DMatrix::from_diagonal(&full.diagonal()), None),
+        CovarianceKind::Shrinkage { target, intensity } => {
+            let lambda = match intensity {
+                Some(l) if (0.0..=1.0).contains(&l) => l,
+                Some(l) => {
+                    return Err(Error::analysis(
+                        "covariance",
+                        format!("shrinkage intensity {l}; expected a number from 0 to 1"),
+                    ))
+                }
+                None => match target {
+                    ShrinkageTarget::Diagonal => diagonal_target_intensity(&y, noise_scale),
+                    ShrinkageTarget::Identity => identity_target_intensity(&y, noise_scale),
+                },
+            };
+            let m = match target {
+                ShrinkageTarget::Diagonal => {
+                    let mut m = full.clone() * (1.0 - lambda);
+                    m.set_diagonal(&full.diagonal());
+                    m
+                }
+                ShrinkageTarget::Identity => {
+                    let mu = full.trace() / d as f64;
+                    full * (1.0 - lambda) + DMatrix::identity(d, d) * (lambda * mu)
+                }
+            };
+            (m, Some(lambda))
+        }
+    };
+
+    let mut n_eigen_cut = 0;
+    if let Some(c) = opts.eigen_cut {
+        let (m, k) = eigen_floor(&matrix, c);
+        matrix = m;
+        n_eigen_cut = k;
+    }
+
+    let condition_number = correlation_condition(&matrix);
+    if condition_number.is_nan() || condition_number > MAX_CONDITION {
+        warnings.push(format!(
+            "the covariance is singular or nearly so (condition number {condition_number:.3e} of \
+             the correlation matrix); it will not be inverted — use an eigenvalue cut, shrinkage \
+             or a diagonal covariance"
+        ));
+    } else if condition_number > WARN_CONDITION {
+        warnings.push(format!(
+            "the covariance is badly conditioned (condition number {condition_number:.3e} of the \
+             correlation matrix); consider an eigenvalue cut or shrinkage"
+        ));
+    }
+    let uses_correlations = !matches!(opts.kind, CovarianceKind::Diagonal);
+    if uses_correlations && n_bins < 5 * d {
+        let bias = match hartlap_factor(n_bins, d) {
+            Some(h) => format!("biased high by about {:.2} times", 1.0 / h),
+            None => "not even unbiasedly estimable (N <= d + 2)".to_string(),
+        };
+        warnings.push(format!(
+            "{n_bins} independent samples for {d} correlated values: the inverse covariance is \
+             {bias} (Hartlap et al. 2007); consider shrinkage, a diagonal covariance or fewer \
+             points"
+        ));
+    }
+    Ok(CovarianceEstimate {
+        matrix,
+        condition_number,
+        shrinkage,
+        n_eigen_cut,
+        warnings,
+    })
+}
+
+/// Deviation matrix `y` (`n × d`): per-configuration-like deviations of every sample.
+fn deviations(values: &[Resampled]) -> DMatrix<f64> {
+    let n = values[0].len();
+    let jack = values[0].scheme == Scheme::Jackknife;
+    let scale = if jack { n as f64 - 1.0 } else { 1.0 };
+    let means: Vec<f64> = values.iter().map(Resampled::sample_mean).collect();
+    DMatrix::from_fn(n, values.len(), |k, i| {
+        (values[i].samples[k] - means[i]) * scale
+    })
+}
+
+/// Ledoit–Wolf intensity for shrinking the correlation matrix toward the identity.
+fn diagonal_target_intensity(y: &DMatrix<f64>, noise_scale: f64) -> f64 {
+    let (n, d) = y.shape();
+    let nf = n as f64;
+    let sd: Vec<f64> = (0..d)
+        .map(|i| (y.column(i).norm_squared() / nf).sqrt())
+        .collect();
+    let z = DMatrix::from_fn(n, d, |k, i| y[(k, i)] / sd[i]);
+    let r = z.transpose() * &z / nf;
+    let (mut noise, mut signal) = (0.0, 0.0);
+    for i in 0..d {
+        for j in 0..d {
+            if i == j {
+                continue;
+            }
+            let var: f64 = (0..n)
+                .map(|k| (z[(k, i)] * z[(k, j)] - r[(i, j)]).powi(2))
+                .sum::<f64>()
+                / (nf * nf);
+            noise += var * noise_scale;
+            signal += r[(i, j)].powi(2);
+        }
+    }
+    ratio_intensity(noise, signal)
+}
+
+/// Ledoit–Wolf (2004) intensity for shrinking toward the scaled identity.
+fn identity_target_intensity(y: &DMatrix<f64>, noise_scale: f64) -> f64 {
+    let (n, d) = y.shape();
+    let nf = n as f64;
+    let s = y.transpose() * y / nf;
+    let mu = s.trace() / d as f64;
+    let delta2 = (&s - DMatrix::identity(d, d) * mu).norm_squared();
+    let mut b2 = 0.0;
+    for k in 0..n {
+        let row = y.row(k);
+        for i in 0..d {
+            for j in 0..d {
+                b2 += (row[i] * row[j] - s[(i, j)]).powi(2);
+            }
+        }
+    }
+    b2 *= noise_scale / (nf * nf);
+    ratio_intensity(b2.min(delta2), delta2)
+}
+
+/// `noise / signal` clipped to [0, 1]; no signal to keep means full shrinkage.
+fn ratio_intensity(noise: f64, signal: f64) -> f64 {
+    if signal > 0.0 {
+        (noise / signal).clamp(0.0, 1.0)
+    } else if noise > 0.0 {
+        1.0
+    } else {
+        0.0
+    }
+}
+
+/// `D^{-1/2} m D^{-1/2}` and the diagonal scale `D^{1/2}`.
+fn to_correlation(m: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
+    let sd: Vec<f64> = m.diagonal().iter().map(|v| v.sqrt()).collect();
+    let r = DMatrix::from_fn(m.nrows(), m.ncols(), |i, j| m[(i, j)] / (sd[i] * sd[j]));
+    (r, sd)
+}
+
+/// Raise correlation-matrix eigenvalues below `cut * λ_max` to that floor; returns the new
+/// covariance and how many eigenvalues were raised.
+fn eigen_floor(m: &DMatrix<f64>, cut: f64) -> (DMatrix<f64>, usize) {
+    let (r, sd) = to_correlation(m);
+    let eig = SymmetricEigen::new(r);
+    let max = eig.eigenvalues.max();
+    let floor = cut * max;
+    let mut count = 0;
+    let raised = eig.eigenvalues.map(|l| {
+        if l < floor {
+            count += 1;
+            floor
+        } else {
+            l
+        }
+    });
+    let r2 = &eig.eigenvectors * DMatrix::from_diagonal(&raised) * eig.eigenvectors.transpose();
+    let out = DMatrix::from_fn(m.nrows(), m.ncols(), |i, j| {
+        let v = if i == j {
+            r2[(i, i)]
+        } else {
+            0.5 * (r2[(i, j)] + r2[(j, i)])
+        };
+        v * sd[i] * sd[j]
+    });
+    (out, count)
+}
+
+/// Condition number of the correlation matrix of `m` (infinite when not positive definite).
+fn correlation_condition(m: &DMatrix<f64>) -> f64 {
+    let (r, _) = to_correlation(m);
+    let eig = SymmetricEigen::new(r);
+    let (min, max) = (eig.eigenvalues.min(), eig.eigenvalues.max());
+    if min > 0.0 && max.is_finite() {
+        max / min
+    } else {
+        f64::INFINITY
+    }
+}

@@ -1,0 +1,416 @@
+//! The resampled value: a full-ensemble estimate plus one value per jackknife or bootstrap
+//! sample, with the error formulas of each scheme (Efron & Tibshirani, *An Introduction to
+//! the Bootstrap*, 1993, ch. 6 and 11).
+//!
+//! With `N` samples `x_k`, sample mean `x̄ = (1/N) Σ x_k` and central value `c`:
+//! - jackknife (delete-one on bins): `σ² = (N-1)/N Σ (x_k - x̄)²`, covariance alike,
+//!   bias-corrected estimate `N c - (N-1) x̄`;
+//! - bootstrap: `σ² = 1/(N-1) Σ (x_k - x̄)²`, bias-corrected estimate `2 c - x̄`, and the
+//!   percentile interval from the sorted samples.
+//!
+//! [`fmt_value_error`] prints `value(error)` with the error to two significant digits in units
+//! of the last printed digit of the value (common practice), e.g. `0.9234(56)`.
+
+use crate::{Error, Result};
+use serde::{Deserialize, Serialize};
+use std::fmt;
+use std::ops::{Add, Div, Mul, Neg, Sub};
+
+/// Which resampling scheme produced the samples; it fixes the error formula.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Scheme {
+    /// Delete-one jackknife: `sigma^2 = (N-1)/N sum (x_j - xbar)^2`.
+    Jackknife,
+    /// Bootstrap: `sigma^2 = 1/(B-1) sum (x_b - xbar)^2`.
+    Bootstrap,
+}
+
+impl fmt::Display for Scheme {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(match self {
+            Scheme::Jackknife => "jackknife",
+            Scheme::Bootstrap => "bootstrap",
+        })
+    }
+}
+
+/// A quantity with its resamples: the full-ensemble estimate and one value per resample.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Resampled {
+    /// Estimate on the full ensemble.
+    pub central: f64,
+    /// One value per jackknife or bootstrap sample.
+    pub samples: Vec<f64>,
+    /// The scheme, which fixes the error formula.
+    pub scheme: Scheme,
+}
+
+/// The numbers a table or report prints for one resampled value.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Summary {
+    /// Full-ensemble estimate.
+    pub central: f64,
+    /// Statistical error (scheme-appropriate standard deviation).
+    pub error: f64,
+    /// Bias-corrected estimate (see [`Resampled::bias_corrected`]).
+    pub bias_corrected: f64,
+    /// Mean of the samples.
+    pub sample_mean: f64,
+    /// Number of samples.
+    pub n_samples: usize,
+    /// The scheme.
+    pub scheme: Scheme,
+}
+
+impl Resampled {
+    /// A value from its parts.
+    pub fn new(central: f64, samples: Vec<f64>, scheme: Scheme) -> Self {
+        Resampled {
+            central,
+            samples,
+            scheme,
+        }
+    }
+
+    /// An exact number (no fluctuation) with `n` samples under `scheme`.
+    pub fn constant(value: f64, n: usize, scheme: Scheme) -> Self {
+        Resampled::new(value, vec![value; n], scheme)
+    }
+
+    /// Number of samples.
+    pub fn len(&self) -> usize {
+        self.samples.len()
+    }
+
+    /// True when there are no samples.
+    pub fn is_empty(&self) -> bool {
+        self.samples.is_empty()
+    }
+
+    /// Mean of the samples (NaN when there are none).
+    pub fn sample_mean(&self) -> f64 {
+        if self.samples.is_empty() {
+            return f64::NAN;
+        }
+        stable_mean(&self.samples)
+    }
+
+    /// Statistical error (standard deviation appropriate to the scheme).
+    pub fn error(&self) -> f64 {
+        self.variance().sqrt()
+    }
+
+    /// Variance appropriate to the scheme (NaN with fewer than two samples).
+    pub fn variance(&self) -> f64 {
+        covariance_of(&self.samples, &self.samples, self.scheme)
+    }
+
+    /// Covariance with another value of the same scheme and length (NaN when the lengths
+    /// differ or there are fewer than two samples).
+    pub fn covariance(&self, other: &Resampled) -> f64 {
+        covariance_of(&self.samples, &other.samples, self.scheme)
+    }
+
+    /// Correlation coefficient with another value of the same scheme and length.
+    pub fn correlation(&self, other: &Resampled) -> f64 {
+        self.covariance(other) / (self.variance() * other.variance()).sqrt()
+    }
+
+    /// Bias-corrected estimate: `N c - (N-1) mean` (jackknife), `2 c - mean` (bootstrap).
+    pub fn bias_corrected(&self) -> f64 {
+        let n = self.samples.len() as f64;
+        match self.scheme {
+            Scheme::Jackknife => n * self.central - (n - 1.0) * self.sample_mean(),
+            Scheme::Bootstrap => 2.0 * self.central - self.sample_mean(),
+        }
+    }
+
+    /// Estimated bias of the central value: `central - bias_corrected()`, i.e.
+    /// `(N-1)(mean - c)` (jackknife) or `mean - c` (bootstrap).
+    pub fn bias(&self) -> f64 {
+        self.central - self.bias_corrected()
+    }
+
+    /// Central value, error, bias-corrected value and sample count in one record.
+    pub fn summary(&self) -> Summary {
+        Summary {
+            central: self.central,
+            error: self.error(),
+            bias_corrected: self.bias_corrected(),
+            sample_mean: self.sample_mean(),
+            n_samples: self.samples.len(),
+            scheme: self.scheme,
+        }
+    }
+
+    /// Bootstrap percentile interval holding the central fraction `level` of the samples
+    /// (e.g. 0.6827 for a one-sigma interval), by linear interpolation between order
+    /// statistics. Errors for a jackknife value (its samples are not a sampling
+    /// distribution), for `level` outside (0, 1), or for non-finite samples.
+    pub fn percentile_interval(&self, level: f64) -> Result<(f64, f64)> {
+        if self.scheme != Scheme::Bootstrap {
+            return Err(Error::analysis(
+                "resample",
+                "a percentile interval needs bootstrap samples; jackknife samples are not a \
+                 sampling distribution (use the error instead)",
+            ));
+        }
+        if !(level > 0.0 && level < 1.0) {
+            return Err(Error::analysis(
+                "resample",
+                format!("percentile interval level {level} must lie strictly between 0 and 1"),
+            ));
+        }
+        if self.samples.len() < 2 || !self.samples.iter().all(|x| x.is_finite()) {
+            return Err(Error::analysis(
+                "resample",
+                "a percentile interval needs at least two finite bootstrap samples",
+            ));
+        }
+        let mut s = self.samples.clone();
+        s.sort_by(f64::total_cmp);
+        let q = |p: f64| {
+            let pos = p * (s.len() - 1) as f64;
+            let lo = pos.floor() as usize;
+            let hi = (lo + 1).min(s.len() - 1);
+            s[lo] + (pos - lo as f64) * (s[hi] - s[lo])
+        };
+        let tail = (1.0 - level) / 2.0;
+        Ok((q(tail), q(1.0 - tail)))
+    }
+
+    /// Apply `f` to the central value and to every sample.
+    pub fn map(&self, f: impl Fn(f64) -> f64) -> Resampled {
+        Resampled::new(
+            f(self.central),
+            self.samples.iter().map(|&x| f(x)).collect(),
+            self.scheme,
+        )
+    }
+
+    /// Combine two values sample by sample.
+    pub fn zip_map(&self, other: &Resampled, f: impl Fn(f64, f64) -> f64) -> Resampled {
+        debug_assert_eq!(self.samples.len(), other.samples.len());
+        Resampled::new(
+            f(self.central, other.central),
+            self.samples
+                .iter()
+                .zip(&other.samples)
+                .map(|(&a, &b)| f(a, b))
+                .collect(),
+            self.scheme,
+        )
+    }
+
+    /// Combine any number of values sample by sample: `f` receives the i-th value of each.
+    /// All inputs must share a scheme and length; `values` must not be empty.
+    pub fn combine(values: &[&Resampled], f: impl Fn(&[f64]) -> f64) -> Resampled {
+        let first = values[0];
+        let mut buf = vec![0.0; values.len()];
+        for (b, v) in buf.iter_mut().zip(values) {
+            *b = v.central;
+        }
+        let central = f(&buf);
+        let samples = (0..first.samples.len())
+            .map(|s| {
+                for (b, v) in buf.iter_mut().zip(values) {
+                    *b = v.samples[s];
+                }
+                f(&buf)
+            })
+            .collect();
+        Resampled::new(central, samples, first.scheme)
+    }
+
+    /// Check that `values` is non-empty and shares one scheme and sample count; `what` names
+    /// the values in the error message.
+    pub fn check_compatible(values: &[Resampled], what: &str) -> Result<()> {
+        let Some(first) = values.first() else {
+            return Err(Error::analysis(
+                "resample",
+                format!("{what}: no values given"),
+            ));
+        };
+        for (i, v) in values.iter().enumerate() {
+            if v.scheme != first.scheme || v.samples.len() != first.samples.len() {
+                return Err(Error::analysis(
+                    "resample",
+                    format!(
+                        "{what}: value {i} has {} {} samples but value 0 has {} {} samples; \
+                         all must come from the same resample plan",
+                        v.samples.len(),
+                        v.scheme,
+                        first.samples.len(),
+                        first.scheme
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// The plain average of several values, sample by sample (e.g. over equivalent momenta).
+    /// Errors when `values` is empty or the values do not share a scheme and sample count.
+    pub fn mean_of(values: &[Resampled]) -> Result<Resampled> {
+        Resampled::check_compatible(values, "average of resampled values")?;
+        let refs: Vec<&Resampled> = values.iter().collect();
+        let n = values.len() as f64;
+        Ok(Resampled::combine(&refs, |x| x.iter().sum::<f64>() / n))
+    }
+
+    /// True when the central value and every sample are finite.
+    pub fn is_finite(&self) -> bool {
+        self.central.is_finite() && self.samples.iter().all(|x| x.is_finite())
+    }
+
+    /// Square root, sample by sample.
+    pub fn sqrt(&self) -> Resampled {
+        self.map(f64::sqrt)
+    }
+    /// Natural logarithm, sample by sample.
+    pub fn ln(&self) -> Resampled {
+        self.map(f64::ln)
+    }
+    /// Exponential, sample by sample.
+    pub fn exp(&self) -> Resampled {
+        self.map(f64::exp)
+    }
+    /// Integer power, sample by sample.
+    pub fn powi(&self, n: i32) -> Resampled {
+        self.map(|x| x.powi(n))
+    }
+    /// Real power, sample by sample.
+    pub fn powf(&self, e: f64) -> Resampled {
+        self.map(|x| x.powf(e))
+    }
+    /// Absolute value, sample by sample.
+    pub fn abs(&self) -> Resampled {
+        self.map(f64::abs)
+    }
+}
+
+/// `central(error)`, e.g. `0.9234(56)`; see [`fmt_value_error`].
+impl fmt::Display for Resampled {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&fmt_value_error(self.central, self.error()))
+    }
+}
+
+/// Mean computed in two passes (mean, then the mean of the residuals added back), which
+/// keeps full precision for data with a large common offset.
+pub(crate) fn stable_mean(x: &[f64]) -> f64 {
+    let n = x.len() as f64;
+    let m = x.iter().sum::<f64>() / n;
+    m + x.iter().map(|v| v - m).sum::<f64>() / n
+}
+
+/// Covariance of two sample vectors under `scheme` (NaN when the lengths differ or there
+/// are fewer than two samples).
+pub fn covariance_of(a: &[f64], b: &[f64], scheme: Scheme) -> f64 {
+    let n = a.len();
+    if n < 2 || b.len() != n {
+        return f64::NAN;
+    }
+    let ma = stable_mean(a);
+    let mb = stable_mean(b);
+    let s: f64 = a.iter().zip(b).map(|(x, y)| (x - ma) * (y - mb)).sum();
+    match scheme {
+        Scheme::Jackknife => s * (n as f64 - 1.0) / n as f64,
+        Scheme::Bootstrap => s / (n as f64 - 1.0),
+    }
+}
+
+/// `value(error)` with the error rounded to two significant digits and written in units of
+/// the last digit of the value: `fmt_value_error(0.92341, 0.00563) == "0.9234(56)"`,
+/// `fmt_value_error(12.345, 1.2) == "12.3(12)"`, `fmt_value_error(12344.0, 123.0) ==
+/// "12340(120)"`. A zero error prints as `value(0)`; a non-finite value or error prints both
+/// plainly, e.g. `1.5(NaN)`.
+pub fn fmt_value_error(value: f64, error: f64) -> String {
+    let e = error.abs();
+    if !value.is_finite() || !e.is_finite() {
+        return format!("{value}({e})");
+    }
+    if e == 0.0 {
+        return format!("{value}(0)");
+    }
+    // Decimal places that leave two significant digits of the error.
+    let mut decimals = 1 - e.log10().floor() as i32;
+    let mut units = (e * 10f64.powi(decimals)).round();
+    if units >= 100.0 {
+        // Rounding carried into a third digit (e.g. 0.0996 -> 100): one place fewer.
+        decimals -= 1;
+        units = (e * 10f64.powi(decimals)).round();
+    }
+    if decimals >= 0 {
+        format!("{value:.prec$}({units:.0})", prec = decimals as usize)
+    } else {
+        let scale = 10f64.powi(-decimals);
+        let v = (value / scale).round() * scale;
+        format!("{v:.0}({:.0})", units * scale)
+    }
+}
+
+macro_rules! binop {
+    ($tr:ident, $m:ident, $op:tt) => {
+        impl $tr<&Resampled> for &Resampled {
+            type Output = Resampled;
+            fn $m(self, rhs: &Resampled) -> Resampled {
+                self.zip_map(rhs, |a, b| a $op b)
+            }
+        }
+        impl $tr<Resampled> for Resampled {
+            type Output = Resampled;
+            fn $m(self, rhs: Resampled) -> Resampled {
+                (&self).$m(&rhs)
+            }
+        }
+        impl $tr<&Resampled> for Resampled {
+            type Output = Resampled;
+            fn $m(self, rhs: &Resampled) -> Resampled {
+                (&self).$m(rhs)
+            }
+        }
+        impl $tr<f64> for &Resampled {
+            type Output = Resampled;
+            fn $m(self, rhs: f64) -> Resampled {
+                self.map(|a| a $op rhs)
+            }
+        }
+        impl $tr<f64> for Resampled {
+            type Output = Resampled;
+            fn $m(self, rhs: f64) -> Resampled {
+                (&self).$m(rhs)
+            }
+        }
+        impl $tr<&Resampled> for f64 {
+            type Output = Resampled;
+            fn $m(self, rhs: &Resampled) -> Resampled {
+                rhs.map(|b| self $op b)
+            }
+        }
+        impl $tr<Resampled> for f64 {
+            type Output = Resampled;
+            fn $m(self, rhs: Resampled) -> Resampled {
+                rhs.map(|b| self $op b)
+            }
+        }
+    };
+}
+binop!(Add, add, +);
+binop!(Sub, sub, -);
+binop!(Mul, mul, *);
+binop!(Div, div, /);
+
+impl Neg for &Resampled {
+    type Output = Resampled;
+    fn neg(self) -> Resampled {
+        self.map(|x| -x)
+    }
+}
+impl Neg for Resampled {
+    type Output = Resampled;
+    fn neg(self) -> Resampled {
+        self.map(|x| -x)
+    }
+}
