@@ -314,6 +314,14 @@ fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
             plotters::style::text_anchor::HPos::Left,
             plotters::style::text_anchor::VPos::Center,
         ));
+    // 24 px per entry, closer when many entries would run off the bottom.
+    let entries = chart
+        .series
+        .iter()
+        .filter(|s| !s.label.is_empty())
+        .count()
+        .max(1) as i32;
+    let step = ((chart.size.1 as i32 - 60) / entries).clamp(12, 24);
     let mut y = 24;
     for s in chart.series.iter().filter(|s| !s.label.is_empty()) {
         let c = colour_of(s.colour);
@@ -349,7 +357,7 @@ fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
             }
         }
         side.draw(&Text::new(s.label.clone(), (40, y), style.clone()))?;
-        y += 24;
+        y += step;
     }
     Ok(())
 }
