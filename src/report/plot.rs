@@ -7,6 +7,7 @@
 //! Design", 2008), with marker shapes cycling as well, so series stay distinguishable in
 //! greyscale print.
 
+use super::table::{significant, trim_zeros};
 use crate::error::{Error, Result};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::coord::Shift;
@@ -313,6 +314,14 @@ fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
             plotters::style::text_anchor::HPos::Left,
             plotters::style::text_anchor::VPos::Center,
         ));
+    // 24 px per entry, closer when many entries would run off the bottom.
+    let entries = chart
+        .series
+        .iter()
+        .filter(|s| !s.label.is_empty())
+        .count()
+        .max(1) as i32;
+    let step = ((chart.size.1 as i32 - 60) / entries).clamp(12, 24);
     let mut y = 24;
     for s in chart.series.iter().filter(|s| !s.label.is_empty()) {
         let c = colour_of(s.colour);
@@ -348,7 +357,7 @@ fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
             }
         }
         side.draw(&Text::new(s.label.clone(), (40, y), style.clone()))?;
-        y += 24;
+        y += step;
     }
     Ok(())
 }
@@ -775,22 +784,13 @@ fn tick(v: f64) -> String {
 }
 
 fn plain_tick(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return if v == 0.0 { "0".into() } else { format!("{v}") };
+    if v == 0.0 {
+        return "0".into();
     }
-    let a = v.abs();
-    if !(1e-3..1e5).contains(&a) {
-        let s = format!("{v:.3e}");
-        let (m, e) = s.split_once('e').unwrap_or((&s, "0"));
-        let m = m.trim_end_matches('0').trim_end_matches('.');
-        return format!("{m}e{e}");
+    if v.is_finite() && !(1e-3..1e5).contains(&v.abs()) {
+        return trim_zeros(&format!("{v:.3e}"));
     }
-    let s = super::table::significant(v, 6);
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
+    trim_zeros(&significant(v, 6))
 }
 
 #[cfg(test)]
