@@ -30,6 +30,11 @@ fn two_state_fit(c: &mut Criterion) {
     g.bench_function("two_state_15_points", |b| {
         b.iter(|| nonlinear::fit(&model, black_box(&y), &w, &[], &start, &settings))
     });
+    // The tolerances the spectrum stage uses by default.
+    let stage = SpectrumSettings::default().fit;
+    g.bench_function("two_state_15_points_stage_tolerances", |b| {
+        b.iter(|| nonlinear::fit(&model, black_box(&y), &w, &[], &start, &stage))
+    });
     g.finish();
 }
 
