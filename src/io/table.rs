@@ -515,29 +515,41 @@ impl Accumulator {
 /// channel (the usual case in long tables) skips parsing its key fields again.
 #[derive(Default)]
 pub(crate) struct KeyCache {
-    current: Vec<u8>,
+    /// Length-prefixed key fields of the remembered row (so different field splits never
+    /// compare equal).
     last: Vec<u8>,
     valid: bool,
 }
 
 impl KeyCache {
-    /// Load the key columns `cols` of the current row; `true` when they are byte-identical to
-    /// those of the last remembered row.
-    pub fn same_as_last<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) -> bool {
-        self.current.clear();
+    /// Whether the key columns `cols` of the current row are byte-identical to those of the
+    /// remembered row. Compares in place, without copying.
+    pub fn same_as_last<R: Read>(&self, rd: &TableReader<R>, cols: &[usize]) -> bool {
+        if !self.valid {
+            return false;
+        }
+        let mut rest = &self.last[..];
         for &k in cols {
             let b = rd.raw(k);
-            // length-prefixed, so that different field splits never compare equal
-            self.current
-                .extend_from_slice(&(b.len() as u32).to_le_bytes());
-            self.current.extend_from_slice(b);
+            let Some((len, tail)) = rest.split_first_chunk::<4>() else {
+                return false;
+            };
+            if u32::from_le_bytes(*len) as usize != b.len() || !tail.starts_with(b) {
+                return false;
+            }
+            rest = &tail[b.len()..];
         }
-        self.valid && self.current == self.last
+        rest.is_empty()
     }
 
-    /// Remember the key loaded by the last call of [`KeyCache::same_as_last`].
-    pub fn remember(&mut self) {
-        std::mem::swap(&mut self.current, &mut self.last);
+    /// Remember the key columns `cols` of the current row.
+    pub fn remember<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) {
+        self.last.clear();
+        for &k in cols {
+            let b = rd.raw(k);
+            self.last.extend_from_slice(&(b.len() as u32).to_le_bytes());
+            self.last.extend_from_slice(b);
+        }
         self.valid = true;
     }
 }

@@ -150,7 +150,7 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
                     with_flavor,
                     with_diagram,
                 )?;
-                cache.remember();
+                cache.remember(&rd, &KEY_COLUMNS);
                 last = Some(id);
                 id
             }

@@ -90,7 +90,7 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
             Some(id) if same => id,
             _ => {
                 let id = channel_id(&rd, &mut acc, &mut keys, &mut enc, with_smear)?;
-                cache.remember();
+                cache.remember(&rd, &KEY_COLUMNS);
                 last = Some(id);
                 id
             }
