@@ -111,10 +111,10 @@ fn out_of_range_values_quote_their_key() {
         e.contains("p.yaml:21:10") && e.contains("tau_cut < tsep/2"),
         "{e}"
     );
-    let p = edited(dir.path(), |t| t.replace("G_E: {", "G_EE: {"));
+    let p = edited(dir.path(), |t| t.replace("GE: {", "GX: {"));
     let e = load_err(&p, &[]);
     assert!(
-        e.contains("p.yaml:28:5") && e.contains("did you mean `G_E`?"),
+        e.contains("p.yaml:28:5") && e.contains("did you mean `GE`?"),
         "{e}"
     );
 }
@@ -133,4 +133,44 @@ fn wrong_type_and_missing_file_are_reported() {
         e.contains("p.yaml:11:3") && e.contains("nowhere.csv") && e.contains("does not exist"),
         "{e}"
     );
+}
+
+#[test]
+fn typos_inside_embedded_stage_settings_are_found() {
+    let dir = tempdir();
+    // a misspelt key two levels inside the ratio stage's settings, in the map form of the schema
+    let p = edited(dir.path(), |t| {
+        t.replace(
+            "  tau_cut: 1\n",
+            "  tau_cut: 1\n  two_state: {floating_gaps: {prior_width_factr: 2}}\n",
+        )
+    });
+    let e = load_err(&p, &[]);
+    assert!(e.contains("p.yaml:25:31"), "{e}");
+    assert!(e.contains("did you mean `prior_width_factor`?"), "{e}");
+    // the correct spelling in map form is accepted
+    let p = edited(dir.path(), |t| {
+        t.replace(
+            "  tau_cut: 1\n",
+            "  tau_cut: 1\n  two_state: {floating_gaps: {prior_width_factor: 2}}\n",
+        )
+    });
+    let plan = pipeline::load(&p, &[]).unwrap();
+    assert_eq!(
+        plan.spec.excited_states.fits.two_state,
+        formfactory::ratio::TwoStateVariant::FloatingGaps {
+            prior_width_factor: 2.0
+        }
+    );
+    // a wrong type inside the embedded settings names the key, not just the section
+    let e = load_err(
+        &fixture("pipeline/minimal.yaml"),
+        &["excited_states.tau_cut=x"],
+    );
+    assert!(e.contains("`excited_states.tau_cut`: invalid type"), "{e}");
+    let e = load_err(
+        &fixture("pipeline/minimal.yaml"),
+        &["decomposition.weight=full"],
+    );
+    assert!(e.contains("did you mean `weights`?"), "{e}");
 }

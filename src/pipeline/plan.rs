@@ -3,9 +3,12 @@
 //! name looked up; an error quotes the YAML line and column of the offending key (or the
 //! `--set` argument that set it) and says what would be valid.
 
-use super::spec::{Hadron, Method, PipelineSpec, ResamplingMethod, Stage};
+use super::spec::{Method, PipelineSpec, ResamplingMethod, Stage};
 use super::yaml::{self, Positions};
-use crate::data::Current;
+use crate::data::{Current, CurrentKind};
+use crate::kinematics::DecompositionSettings;
+use crate::kinematics::{FormFactor, Hadron};
+use crate::ratio::{FinalMethod, RatioSettings};
 use crate::{Error, Result};
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
@@ -58,22 +61,34 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     let text = String::from_utf8(bytes.clone())
         .map_err(|_| Error::config(format!("{}: the file is not UTF-8 text", path.display())))?;
     let mut positions = Positions::scan(path, &text);
+    let mut value: serde_yaml_ng::Value =
+        serde_yaml_ng::from_str(&text).map_err(|e| yaml::translate(&e, &positions))?;
+    if value.is_null() {
+        value = serde_yaml_ng::Value::Mapping(Default::default());
+    }
+    for s in sets {
+        let key = yaml::apply_set(&mut value, s)?;
+        positions.record_set(&key, s);
+    }
+    yaml::check_embedded::<RatioSettings>(&value, "excited_states", &["methods"], &positions)?;
+    yaml::check_embedded::<DecompositionSettings>(
+        &value,
+        "decomposition",
+        &["enabled", "energies", "dispersion", "twist"],
+        &positions,
+    )?;
     let spec: PipelineSpec = if sets.is_empty() {
         serde_yaml_ng::from_str(&text).map_err(|e| yaml::translate(&e, &positions))?
     } else {
-        let mut value: serde_yaml_ng::Value =
-            serde_yaml_ng::from_str(&text).map_err(|e| yaml::translate(&e, &positions))?;
-        if value.is_null() {
-            value = serde_yaml_ng::Value::Mapping(Default::default());
-        }
-        for s in sets {
-            let key = yaml::apply_set(&mut value, s)?;
-            positions.record_set(&key, s);
-        }
         let merged = serde_yaml_ng::to_string(&value)
             .map_err(|e| Error::config(format!("cannot apply --set overrides: {e}")))?;
         serde_yaml_ng::from_str(&merged).map_err(|e| yaml::translate(&e, &positions))?
     };
+    // Sections that embed a stage's settings (flattened) cannot refuse unknown keys while
+    // parsing; every key that does not survive the round trip through the typed spec is one.
+    let resolved = serde_yaml_ng::to_value(&spec)
+        .map_err(|e| Error::config(format!("cannot represent the resolved settings: {e}")))?;
+    yaml::check_known_keys(&value, &resolved, "", &positions)?;
     let base = path.parent().unwrap_or(Path::new("")).to_path_buf();
     let resolve = |p: &Path| -> PathBuf {
         if p.is_absolute() {
@@ -124,10 +139,26 @@ fn last_stage(spec: &PipelineSpec) -> Stage {
 }
 
 /// Form factors that the decomposition can produce for a hadron.
-pub fn form_factor_names(hadron: Hadron) -> &'static [&'static str] {
-    match hadron {
-        Hadron::Spin0 => &["F"],
-        Hadron::Spin1half => &["G_E", "G_M", "G_A", "G_P", "g_S", "g_T", "G_5"],
+pub fn form_factors_of(hadron: Hadron) -> Vec<FormFactor> {
+    let mut out = Vec::new();
+    for kind in [
+        CurrentKind::Vector,
+        CurrentKind::Axial,
+        CurrentKind::Scalar,
+        CurrentKind::Pseudoscalar,
+        CurrentKind::Tensor,
+    ] {
+        out.extend_from_slice(FormFactor::of(hadron, kind));
+    }
+    out
+}
+
+/// The excited-state method behind a final-method policy.
+pub fn method_of(f: FinalMethod) -> Method {
+    match f {
+        FinalMethod::TwoState => Method::TwoState,
+        FinalMethod::Summation => Method::Summation,
+        FinalMethod::PlateauLargestTsep => Method::Plateau,
     }
 }
 
@@ -230,8 +261,8 @@ fn validate(plan: &Plan) -> Result<()> {
             );
         }
         for (i, &t) in tseps.iter().enumerate() {
-            if 2 * s.excited_states.tau_cut >= t {
-                return err(&format!("ratio.tsep[{i}]"), format!("tsep = {t} leaves no insertion point with tau_cut = {}: expected tau_cut < tsep/2", s.excited_states.tau_cut));
+            if 2 * s.excited_states.fits.tau_cut >= t {
+                return err(&format!("ratio.tsep[{i}]"), format!("tsep = {t} leaves no insertion point with tau_cut = {}: expected tau_cut < tsep/2", s.excited_states.fits.tau_cut));
             }
         }
     }
@@ -244,25 +275,18 @@ fn validate(plan: &Plan) -> Result<()> {
     if x.methods.is_empty() {
         return err(
             "excited_states.methods",
-            "no excited-state method chosen: expected some of plateau, summation, two-state".into(),
+            "no excited-state method chosen: expected some of plateau, summation, two_state".into(),
         );
     }
-    if !x.methods.contains(&x.final_method) {
+    let final_method = method_of(x.fits.final_method);
+    if !x.methods.contains(&final_method) {
         return err(
-            "excited_states.final",
+            "excited_states.final_method",
             format!(
-                "the final method `{}` is not among the methods run ({})",
-                x.final_method.name(),
-                x.methods
-                    .iter()
-                    .map(|m| m.name())
-                    .collect::<Vec<_>>()
-                    .join(", ")
+                "the final method `{:?}` is not among the methods run ({:?})",
+                x.fits.final_method, x.methods
             ),
         );
-    }
-    if x.methods.contains(&Method::TwoState) && sp.n_states < 2 && plan.runs(Stage::Ratio) {
-        return err("spectrum.n_states", "the two-state ratio fit needs the excited-state gap: set spectrum.n_states to 2 or more, or drop two-state from excited_states.methods".into());
     }
     let z = &s.renormalization;
     for (name, f) in [
@@ -273,18 +297,18 @@ fn validate(plan: &Plan) -> Result<()> {
         ("tensor", z.tensor),
     ] {
         if let Some(f) = f {
-            if !(f.z.is_finite() && f.z > 0.0) {
+            if !(f.value.is_finite() && f.value > 0.0) {
                 return err(
-                    &format!("renormalization.{name}.Z"),
-                    format!("Z = {} is not valid: expected a positive number", f.z),
+                    &format!("renormalization.{name}.value"),
+                    format!("Z = {} is not valid: expected a positive number", f.value),
                 );
             }
-            if !(f.dz.is_finite() && f.dz >= 0.0) {
+            if !(f.error.is_finite() && f.error >= 0.0) {
                 return err(
-                    &format!("renormalization.{name}.dZ"),
+                    &format!("renormalization.{name}.error"),
                     format!(
                         "dZ = {} is not valid: expected zero or a positive number",
-                        f.dz
+                        f.error
                     ),
                 );
             }
@@ -299,30 +323,38 @@ fn validate(plan: &Plan) -> Result<()> {
             );
         }
     }
-    for name in d.phase.keys() {
-        check_current(plan, &format!("decomposition.phase.{name}"), name)?;
+    for name in d.solve.phases.keys() {
+        check_current(plan, &format!("decomposition.phases.{name}"), name)?;
     }
-    if let Some(f) = &d.flavor {
-        let ok = f
-            .split(['-', '+'])
-            .all(|p| !p.is_empty() && p.chars().all(char::is_alphanumeric));
-        if !ok {
-            return err("decomposition.flavor", format!("`{f}` is not a flavour combination: expected labels of the `flavor` column joined by `-` or `+`, e.g. `u-d`"));
+    if !(d.solve.q2_tolerance.is_finite() && d.solve.q2_tolerance >= 0.0) {
+        return err(
+            "decomposition.q2_tolerance",
+            format!(
+                "q2_tolerance = {} is not valid: expected zero or a positive number",
+                d.solve.q2_tolerance
+            ),
+        );
+    }
+    if let Some(f) = &s.ratio.flavor {
+        if f.terms.is_empty() {
+            return err(
+                "ratio.flavor.terms",
+                format!("the flavour combination `{}` has no terms", f.label),
+            );
         }
     }
-    let valid = form_factor_names(e.hadron);
-    for (name, q) in &s.q2_fits.form_factors {
+    let valid = form_factors_of(e.hadron);
+    let valid_names: Vec<&str> = valid.iter().map(|f| f.name()).collect();
+    for (ff, q) in &s.q2_fits.form_factors {
+        let name = ff.name();
         let key = format!("q2_fits.form_factors.{name}");
-        if !valid.contains(&name.as_str()) {
+        if !valid.contains(ff) {
             let spin = match e.hadron {
                 Hadron::Spin0 => "spin-0",
-                Hadron::Spin1half => "spin-1/2",
+                Hadron::Spin1Half => "spin-1/2",
             };
             let mut m = format!("`{name}` is not a form factor of a {spin} hadron");
-            if let Some(sug) = yaml::suggest(name, valid) {
-                m.push_str(&format!("; did you mean `{sug}`?"));
-            }
-            m.push_str(&format!(" Valid: {}.", valid.join(", ")));
+            m.push_str(&format!(" Valid: {}.", valid_names.join(", ")));
             return err(&key, m);
         }
         if q.models.is_empty() {

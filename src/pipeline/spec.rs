@@ -6,6 +6,9 @@
 //! [`Plan`](super::plan::Plan) is built. The JSON Schema in `schemas/pipeline.schema.json`
 //! is generated from these types.
 
+use crate::kinematics::flavor::FlavorCombo;
+use crate::kinematics::{DecompositionSettings, Dispersion, FormFactor, Hadron};
+use crate::ratio::{RatioSettings, ZFactors};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -88,16 +91,6 @@ impl Stage {
     }
 }
 
-/// Spin of the hadron: fixes the kinematic factors of the decomposition.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "lowercase")]
-pub enum Hadron {
-    /// A spin-0 meson (pion, kaon): one vector form factor `F`.
-    Spin0,
-    /// A spin-1/2 baryon (nucleon): Sachs / axial form factors.
-    Spin1half,
-}
-
 /// The lattice ensemble.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -115,7 +108,8 @@ pub struct Ensemble {
     pub spacing_fm: f64,
     /// Pion mass in lattice units (sets the z-expansion threshold).
     pub pion_mass: f64,
-    /// The hadron's spin.
+    /// The hadron's spin: `spin0` (one vector form factor `F`) or `spin1half` (Sachs,
+    /// axial, scalar, pseudoscalar, tensor form factors).
     pub hadron: Hadron,
 }
 
@@ -246,11 +240,11 @@ fn default_cov() -> CovarianceKind {
     CovarianceKind::Diagonal
 }
 
-/// Flavour combination formed before the ratio.
-#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+/// The three-/two-point ratio: which data enter it.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct RatioSpec {
-    /// Run this stage.
+    /// Run this stage (and everything after it).
     #[serde(default = "yes")]
     pub enabled: bool,
     /// Source–sink separations to use (default: every one in the data).
@@ -259,6 +253,11 @@ pub struct RatioSpec {
     /// Currents to analyse (default: every one in the data), e.g. `[V4, V1, V2, V3]`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub currents: Option<Vec<String>>,
+    /// Flavour combination formed per configuration before the ratio, e.g.
+    /// `{label: u-d, terms: [{flavor: u, weight: 1}, {flavor: d, weight: -1}]}`
+    /// (default: the data as they are).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub flavor: Option<FlavorCombo>,
 }
 
 impl Default for RatioSpec {
@@ -267,15 +266,16 @@ impl Default for RatioSpec {
             enabled: true,
             tsep: None,
             currents: None,
+            flavor: None,
         }
     }
 }
 
-/// An excited-state method.
+/// An excited-state method whose results are tabulated and decomposed.
 #[derive(
     Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize, JsonSchema,
 )]
-#[serde(rename_all = "kebab-case")]
+#[serde(rename_all = "snake_case")]
 pub enum Method {
     /// Constant fit of the ratio's middle region, one value per `tsep`.
     Plateau,
@@ -285,42 +285,23 @@ pub enum Method {
     TwoState,
 }
 
-impl Method {
-    /// The name used in tables (`plateau`, `summation`, `two-state`).
-    pub fn name(self) -> &'static str {
-        match self {
-            Method::Plateau => "plateau",
-            Method::Summation => "summation",
-            Method::TwoState => "two-state",
-        }
-    }
-}
-
-/// Excited-state control.
+/// Excited-state control: the methods reported, and the ratio stage's own settings
+/// (`tau_cut`, `summation_tsep_min`, `two_state_tsep_min`, `final_method`, ...).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
 pub struct ExcitedStatesSpec {
-    /// Methods to run; every one appears in the tables and the cross-check.
+    /// Methods whose results are tabulated, decomposed and cross-checked.
     #[serde(default = "all_methods")]
     pub methods: Vec<Method>,
-    /// Insertion points dropped next to source and sink (`tau_cut <= tau <= tsep - tau_cut`).
-    #[serde(default = "one_u32")]
-    pub tau_cut: u32,
-    /// Smallest `tsep` used by summation and two-state.
-    #[serde(default = "zero")]
-    pub tsep_min: u32,
-    /// The method whose numbers are final (the Q² fits and the summary use it).
-    #[serde(default = "default_final", rename = "final")]
-    pub final_method: Method,
+    /// Settings of the ratio stage's fits.
+    #[serde(flatten)]
+    pub fits: RatioSettings,
 }
 
 impl Default for ExcitedStatesSpec {
     fn default() -> Self {
         ExcitedStatesSpec {
             methods: all_methods(),
-            tau_cut: 1,
-            tsep_min: 0,
-            final_method: default_final(),
+            fits: RatioSettings::default(),
         }
     }
 }
@@ -328,96 +309,39 @@ impl Default for ExcitedStatesSpec {
 fn all_methods() -> Vec<Method> {
     vec![Method::Plateau, Method::Summation, Method::TwoState]
 }
-fn one_u32() -> u32 {
-    1
-}
-fn zero() -> u32 {
-    0
-}
-fn default_final() -> Method {
-    Method::TwoState
-}
 
-/// A renormalization constant with its uncertainty.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct ZFactor {
-    /// The constant.
-    #[serde(rename = "Z")]
-    pub z: f64,
-    /// Its uncertainty (independent of the ensemble; reported as its own error column).
-    #[serde(rename = "dZ", default)]
-    pub dz: f64,
-}
-
-/// Renormalization constants per current kind (absent = 1 exactly).
-#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct RenormalizationSpec {
-    /// Vector current `Z_V`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub vector: Option<ZFactor>,
-    /// Axial current `Z_A`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub axial: Option<ZFactor>,
-    /// Scalar current `Z_S`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub scalar: Option<ZFactor>,
-    /// Pseudoscalar current `Z_P`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub pseudoscalar: Option<ZFactor>,
-    /// Tensor current `Z_T`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub tensor: Option<ZFactor>,
-}
+/// Renormalization constants per current kind (absent = 1 exactly), e.g.
+/// `vector: {value: 0.72, error: 0.01}`.
+pub type RenormalizationSpec = ZFactors;
 
 /// Where the energies of the kinematic factors come from.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "kebab-case")]
+#[serde(rename_all = "snake_case")]
 pub enum EnergySource {
     /// Fitted energy at every momentum.
     Fit,
-    /// Rest mass plus the lattice dispersion relation.
+    /// Rest mass plus a dispersion relation.
     Dispersion,
-}
-
-/// A phase factor multiplying a current's data.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-pub enum Phase {
-    /// `1`
-    #[serde(rename = "1")]
-    One,
-    /// `-1`
-    #[serde(rename = "-1")]
-    MinusOne,
-    /// `i`
-    #[serde(rename = "i")]
-    I,
-    /// `-i`
-    #[serde(rename = "-i")]
-    MinusI,
 }
 
 /// Form-factor decomposition.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
 pub struct DecompositionSpec {
-    /// Run this stage.
+    /// Run this stage (and everything after it).
     #[serde(default = "yes")]
     pub enabled: bool,
-    /// Energies from the two-point fits or from the dispersion relation.
+    /// Energies from the two-point fits or from the rest mass and a dispersion relation.
     #[serde(default = "default_energies")]
     pub energies: EnergySource,
-    /// Twist angle `theta` per direction (radians) added to the sink momentum.
+    /// The dispersion relation used when `energies: dispersion`.
+    #[serde(default = "default_dispersion")]
+    pub dispersion: Dispersion,
+    /// Twist angle `theta` per direction (radians) of sink and source momenta.
     #[serde(default)]
     pub twist: [f64; 3],
-    /// Phase factor per current name (`V4: "1"`, `A1: "-i"`), for data with another
-    /// phase convention.
-    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
-    pub phase: BTreeMap<String, Phase>,
-    /// Flavour combination formed before the ratio, e.g. `u-d` (default: the data as is).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub flavor: Option<String>,
+    /// Weights, Q² tolerance and per-current phases of the least-squares solve.
+    #[serde(flatten)]
+    pub solve: DecompositionSettings,
 }
 
 impl Default for DecompositionSpec {
@@ -425,11 +349,15 @@ impl Default for DecompositionSpec {
         DecompositionSpec {
             enabled: true,
             energies: default_energies(),
+            dispersion: default_dispersion(),
             twist: [0.0; 3],
-            phase: BTreeMap::new(),
-            flavor: None,
+            solve: DecompositionSettings::default(),
         }
     }
+}
+
+fn default_dispersion() -> Dispersion {
+    Dispersion::Lattice
 }
 
 fn default_energies() -> EnergySource {
@@ -440,7 +368,7 @@ fn default_energies() -> EnergySource {
 #[derive(
     Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
 )]
-#[serde(rename_all = "kebab-case")]
+#[serde(rename_all = "snake_case")]
 pub enum Q2Model {
     /// `G(0) / (1 + Q²/M²)²`.
     Dipole,
@@ -460,7 +388,7 @@ impl Q2Model {
 
 /// `t0` of the z-expansion.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "kebab-case")]
+#[serde(rename_all = "snake_case")]
 pub enum T0Choice {
     /// `t0 = 0`.
     Zero,
@@ -529,10 +457,10 @@ pub struct Q2FitsSpec {
     /// Run this stage.
     #[serde(default = "yes")]
     pub enabled: bool,
-    /// Settings per form factor (`G_E`, `G_M`, `G_A`, `G_P`, `F`); a form factor not listed
-    /// is not fitted.
+    /// Settings per form factor (`GE`, `GM`, `GA`, `GP`, `GS`, `G5`, `GT`, `F`); a form
+    /// factor not listed is not fitted.
     #[serde(default)]
-    pub form_factors: BTreeMap<String, Q2FitSpec>,
+    pub form_factors: BTreeMap<FormFactor, Q2FitSpec>,
 }
 
 impl Default for Q2FitsSpec {
@@ -548,7 +476,7 @@ impl Default for Q2FitsSpec {
 #[derive(
     Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
 )]
-#[serde(rename_all = "kebab-case")]
+#[serde(rename_all = "snake_case")]
 pub enum Plot {
     /// Effective mass per momentum with the fitted energy.
     EffectiveMass,
