@@ -667,6 +667,10 @@ fn correlated_difference_has_small_error() {
         d.value.central.abs() / d.error,
         max_relative = 1e-12
     );
+    // Flag thresholds of methods.md §4: above 1 and above 2 standard deviations.
+    assert_eq!(Flag::of(0.99), Flag::Consistent);
+    assert_eq!(Flag::of(1.5), Flag::Above1Sigma);
+    assert_eq!(Flag::of(2.01), Flag::Above2Sigma);
 }
 
 fn one_channel_data(tseps: &[u32]) -> (TwoPointData, ThreePointData, ResamplePlan) {
@@ -857,6 +861,38 @@ fn renormalization_keeps_the_z_error_as_its_own_column() {
     };
     assert_eq!(zs.get(formfactory::data::CurrentKind::Axial), z);
     assert_eq!(zs.get(formfactory::data::CurrentKind::Vector), ZFactor::ONE);
+    // Applied to a channel's final estimate through its current (V4: vector, Z_V = 0.7 +- 0.01).
+    let (twopt, chans) = single_state_setup();
+    let (c2, c3) = make_data(
+        &twopt,
+        &chans[..1],
+        &[6, 8],
+        16,
+        32,
+        Noise::Antithetic(1e-6),
+    );
+    let plan = ResamplePlan::jackknife(32);
+    let settings = RatioSettings::default();
+    let ratio = build_ratios(&c3, &c2, &plan, &settings)
+        .unwrap()
+        .into_values()
+        .next()
+        .unwrap();
+    let result = analyse_channel(ratio, &states_of(&twopt, &plan), &settings).unwrap();
+    let zv = ZFactors {
+        vector: Some(ZFactor {
+            value: 0.7,
+            error: 0.01,
+        }),
+        ..ZFactors::default()
+    };
+    let r = formfactory::ratio::renorm::renormalize_final(&result, &zv);
+    assert_relative_eq!(r.re.value.central, 0.7 * chans[0].m.0, max_relative = 1e-10);
+    assert_relative_eq!(
+        r.im.error_z,
+        0.01 * chans[0].m.1.abs(),
+        max_relative = 1e-10
+    );
 }
 
 #[test]
