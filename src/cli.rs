@@ -140,8 +140,10 @@ fn run(_a: RunArgs) -> crate::Result<()> {
     Err(crate::Error::config("`run` is not built yet"))
 }
 
-fn check(_a: CheckArgs) -> crate::Result<()> {
-    Err(crate::Error::config("`check` is not built yet"))
+fn check(a: CheckArgs) -> crate::Result<()> {
+    let summary = crate::pipeline::check(&a.pipeline, &a.set)?;
+    print!("{summary}");
+    Ok(())
 }
 
 fn mock(a: MockArgs) -> crate::Result<()> {
@@ -157,5 +159,6 @@ fn inspect(a: InspectArgs) -> crate::Result<()> {
 }
 
 fn schema() -> crate::Result<()> {
-    Err(crate::Error::config("`schema` is not built yet"))
+    print!("{}", crate::pipeline::schema_json());
+    Ok(())
 }

@@ -509,3 +509,225 @@ proptest::proptest! {
         let _ = io::read_threept_from(&buf[..], Path::new("edited.csv"));
     }
 }
+
+// ---------------------------------------------------------------------------------------
+// `formfactory inspect`, through the binary.
+
+use crate::common::{formfactory, stderr, stdout, tempdir};
+
+/// Two tables on configurations 1..=200 without 101..=104. Re C2 follows an AR(1) chain with
+/// coefficient `rho` in Monte Carlo time; `negative` puts one negative Re C2 at p=0, t=0.
+/// The three-point channel has pf = 0, q = (1,0,0), so its source momentum (-1,0,0) is not
+/// in the two-point table.
+fn inspect_data(rho: f64, negative: bool) -> (TwoPointData, ThreePointData) {
+    let mut rng = ChaCha8Rng::seed_from_u64(42);
+    let configs: Vec<i64> = (1..=200).filter(|c| !(101..=104).contains(c)).collect();
+    let n = configs.len();
+    let mut chain = Vec::with_capacity(n);
+    let mut x = 0.0;
+    for _ in 0..n {
+        // Box-Muller normal deviate
+        let (u1, u2): (f64, f64) = (rng.gen::<f64>().max(1e-300), rng.gen());
+        let e = (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos();
+        x = rho * x + (1.0 - rho * rho).sqrt() * e;
+        chain.push(x);
+    }
+    let mut two = TwoPointData {
+        configs: configs.clone(),
+        ..Default::default()
+    };
+    for momentum in [[0, 0, 0], [0, 0, 1]] {
+        let mut s = Series::zeros(8, n);
+        for t in 0..8 {
+            for c in 0..n {
+                let i = s.index(t, c);
+                s.re[i] = (-0.5 * t as f64).exp() * (1.0 + 0.1 * chain[c]);
+                s.im[i] = 1e-3 * chain[(c + 7) % n];
+            }
+        }
+        two.channels.insert(
+            TwoPointKey {
+                momentum,
+                smear: None,
+            },
+            s,
+        );
+    }
+    if negative {
+        let s = two.channels.values_mut().next().unwrap();
+        s.re[5] = -0.5;
+    }
+    let mut three = ThreePointData {
+        configs,
+        ..Default::default()
+    };
+    let mut s = Series::zeros(5, n);
+    for i in 0..s.re.len() {
+        s.re[i] = 0.3 * (1.0 + 0.1 * chain[i % n]);
+    }
+    three.channels.insert(
+        ThreePointKey {
+            tsep: 4,
+            pf: [0, 0, 0],
+            q: [1, 0, 0],
+            current: Current::V4,
+            projector: Projector::Unpol,
+            flavor: None,
+            diagram: None,
+        },
+        s,
+    );
+    (two, three)
+}
+
+fn write_dir(dir: &Path, two: &TwoPointData, three: &ThreePointData) {
+    io::write_twopt(two, std::fs::File::create(dir.join("twopt.csv")).unwrap()).unwrap();
+    io::write_threept(
+        three,
+        std::fs::File::create(dir.join("threept.csv")).unwrap(),
+    )
+    .unwrap();
+}
+
+#[test]
+fn inspect_summarises_a_directory_and_warns() {
+    let tmp = tempdir();
+    let (two, three) = inspect_data(0.9, true);
+    write_dir(tmp.path(), &two, &three);
+    let o = formfactory(tmp.path(), &["inspect", "."]);
+    let text = stdout(&o);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for want in [
+        "two-point table: ./twopt.csv",
+        "three-point table: ./threept.csv",
+        "configurations: 196 (1..200, step 1, 1 irregular spacing(s))",
+        "channels: 2, T = 8",
+        "momenta (2): (0,0,0) (0,0,1)",
+        "channels: 1, tsep: 4",
+        "currents: V4",
+        "projectors: unpol",
+        "Re C2 p=(0,0,0) t=1: tau_int =",
+        "Re C2 p=(0,0,0) t=4: tau_int =",
+        "Re C3 tsep=4 pf=(0,0,0) q=(1,0,0) V4 unpol tau=2: tau_int =",
+        // warnings
+        "1 configuration(s) have Re C2 <= 0 at t=0",
+        "mostly step by 1 but not at 100->105",
+        "absent from the two-point table: (-1,0,0) (source)",
+        // AR(1) with rho = 0.9 has tau_int = (1 + rho) / (2 (1 - rho)) = 9.5 (methods.md §7)
+        "bin the configurations",
+    ] {
+        assert!(text.contains(want), "missing `{want}` in:\n{text}");
+    }
+}
+
+#[test]
+fn inspect_reads_one_table_or_stdin_and_stays_quiet_on_clean_data() {
+    let tmp = tempdir();
+    let (two, three) = inspect_data(0.0, false);
+    write_dir(tmp.path(), &two, &three);
+    let o = formfactory(tmp.path(), &["inspect", "twopt.csv"]);
+    let text = stdout(&o);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(text.contains("two-point table: twopt.csv"), "{text}");
+    assert!(!text.contains("three-point table"), "{text}");
+    assert!(text.contains("tau_int ="), "{text}");
+    assert!(!text.contains("bin the configurations"), "{text}");
+    assert!(!text.contains("<= 0"), "{text}");
+
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_formfactory"))
+        .args(["inspect", "-"])
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let table = std::fs::read(tmp.path().join("threept.csv")).unwrap();
+    {
+        use std::io::Write;
+        let mut stdin = child.stdin.take().unwrap();
+        stdin.write_all(&table).unwrap();
+    }
+    let o = child.wait_with_output().unwrap();
+    let text = stdout(&o);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(text.contains("three-point table: <stdin>"), "{text}");
+    assert!(text.contains("rows: 980"), "{text}");
+}
+
+#[test]
+fn inspect_reports_errors_with_location() {
+    let tmp = tempdir();
+    let o = formfactory(tmp.path(), &["inspect", "."]);
+    assert!(!o.status.success());
+    assert!(
+        stderr(&o).contains("neither twopt.csv nor threept.csv"),
+        "{}",
+        stderr(&o)
+    );
+    let bad = f("threept_unknown_current.csv");
+    let o = formfactory(tmp.path(), &["inspect", bad.to_str().unwrap()]);
+    assert!(!o.status.success());
+    assert!(
+        stderr(&o).contains("threept_unknown_current.csv:3:10 (column `current`)"),
+        "{}",
+        stderr(&o)
+    );
+}
+
+// ---------------------------------------------------------------------------------------
+// Smaller header and row rules, on in-memory tables.
+
+fn twopt_text(text: &str) -> Result<TwoPointData, Error> {
+    io::read_twopt_from(text.as_bytes(), Path::new("mem.csv"))
+}
+
+#[test]
+fn repeated_column_and_ragged_row_are_errors() {
+    let (loc, msg) = data_error(twopt_text("config,px,py,pz,t,re,im,re\n1,0,0,0,0,1,0,1\n"));
+    assert_at(&loc, "mem.csv", 1, Some(8), "re");
+    assert!(msg.contains("appears twice"), "{msg}");
+    let (loc, msg) = data_error(twopt_text(
+        "config,px,py,pz,t,re,im\n1,0,0,0,0,1,0\n2,0,0,0\n",
+    ));
+    assert_eq!((loc.line, loc.column), (3, None));
+    assert!(msg.contains("row has 4 fields, the header has 7"), "{msg}");
+}
+
+#[test]
+fn byte_order_mark_and_empty_labels_are_accepted() {
+    let d =
+        twopt_text("\u{feff}config,px,py,pz,t,re,im,smear\n1,0,0,0,0,2.5,0,\n1,0,0,0,1,1.5,0,\n")
+            .unwrap();
+    let (key, s) = d.channels.iter().next().unwrap();
+    assert_eq!(key.smear, None);
+    assert_relative_eq!(s.re[1], 1.5);
+}
+
+#[test]
+fn absurd_time_values_are_refused_before_allocating() {
+    let (loc, msg) = data_error(twopt_text(
+        "config,px,py,pz,t,re,im\n1,0,0,0,4000000000,1,0\n",
+    ));
+    assert_at(&loc, "mem.csv", 2, Some(5), "t");
+    assert!(msg.contains("out of range"), "{msg}");
+    // a large but allowed tau gap is reported as missing rows, not allocated blindly
+    let text = format!(
+        "config,tsep,tau,pfx,pfy,pfz,qx,qy,qz,current,projector,re,im\n\
+         1,{m},{m},0,0,0,0,0,0,S,none,1,0\n",
+        m = io::MAX_TIME
+    );
+    let (_, msg) = table_error(io::read_threept_from(text.as_bytes(), Path::new("mem.csv")));
+    assert!(
+        msg.contains("missing row") && msg.contains("tau=0"),
+        "{msg}"
+    );
+}
+
+#[test]
+fn unknown_diagram_is_an_error() {
+    let text = "config,tsep,tau,pfx,pfy,pfz,qx,qy,qz,current,projector,re,im,diagram\n\
+                1,0,0,0,0,0,0,0,0,S,none,1,0,loop\n";
+    let (loc, msg) = data_error(io::read_threept_from(text.as_bytes(), Path::new("mem.csv")));
+    assert_at(&loc, "mem.csv", 2, Some(14), "diagram");
+    assert!(msg.contains("unknown diagram `loop`"), "{msg}");
+}

@@ -12,7 +12,7 @@ use formfactory::data::{
 use formfactory::ratio::crosscheck::{difference, Flag, Method};
 use formfactory::ratio::{
     analyse_channel, average, build_ratios, plateau, summation, two_state, ChannelKey,
-    ChannelRatio, NegativeRootPolicy, RatioSettings, TwoPointStates,
+    ChannelRatio, NegativeRootPolicy, RatioSettings, TwoPointStates, TwoStateVariant,
 };
 use formfactory::resample::{ResamplePlan, Resampled};
 use formfactory::Error;
@@ -176,13 +176,14 @@ fn make_data(
         for &tsep in tseps {
             let n_t = tsep as usize + 1;
             let f = factors(noise, &mut rng, &common, n_t, n_cfg);
+            let f_im = factors(noise, &mut rng, &common, n_t, n_cfg);
             let mut series = Series::zeros(n_t, n_cfg);
             for tau in 0..n_t {
                 let g = ch.factor(sf, si, tsep as f64, tau as f64);
                 for c in 0..n_cfg {
                     let i = tau * n_cfg + c;
                     series.re[i] = g * ch.m.0 * f[i];
-                    series.im[i] = g * ch.m.1 * f[i];
+                    series.im[i] = g * ch.m.1 * f_im[i];
                 }
             }
             c3.channels.insert(ch.key(tsep), series);
@@ -360,13 +361,25 @@ fn two_state_setup() -> (BTreeMap<Momentum, TwoPt>, Vec<Chan>) {
 #[test]
 fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
     let (twopt, chans) = two_state_setup();
-    let n_cfg = 80;
+    let n_cfg = 160; // antithetic pairs: 80 independent directions for up to 52 points
     let tseps = [6, 10];
     let (c2, c3) = make_data(&twopt, &chans, &tseps, 16, n_cfg, Noise::Antithetic(1e-7));
     let plan = ResamplePlan::jackknife(n_cfg);
     let settings = RatioSettings::default();
     let states = states_of(&twopt, &plan);
     let ratios = build_ratios(&c3, &c2, &plan, &settings).unwrap();
+    let mut jittered = states.clone();
+    for st in jittered.values_mut() {
+        let n = st.gap.len();
+        let spread = |j: usize| if j < n / 2 { 1e-3 } else { -1e-3 } * (1.0 + (j % 7) as f64);
+        st.gap.samples = (0..n).map(|j| st.gap.central + spread(j)).collect();
+    }
+    let mut off = states.clone();
+    for st in off.values_mut() {
+        st.energy = &st.energy + 0.02;
+        st.amp_ratio = &st.amp_ratio * 1.3;
+        st.gap = &st.gap - 0.05;
+    }
     for ch in &chans {
         let ratio = ratios[&ChannelKey::of(&ch.key(6))].clone();
         let fit = two_state::two_state(&ratio, &states, &settings).unwrap();
@@ -376,6 +389,44 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         assert_relative_eq!(fit.c_i.re.central, ch.m.0 * ch.b_i, max_relative = 1e-6);
         assert_relative_eq!(fit.c_if.re.central, ch.m.0 * ch.b_if, max_relative = 1e-6);
         assert_eq!(fit.symmetric, ch.pf == ch.pi());
+        // Floating gaps with priors centred on the true gaps (spread on the samples only): the
+        // exact data are fitted exactly, gaps included.
+        let floating = RatioSettings {
+            two_state: TwoStateVariant::FloatingGaps {
+                prior_width_factor: 1.0,
+            },
+            ..RatioSettings::default()
+        };
+        let fit = two_state::two_state(&ratio, &jittered, &floating).unwrap();
+        assert_relative_eq!(fit.m.value.re.central, ch.m.0, max_relative = 1e-8);
+        assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
+        let gaps = fit.gaps.unwrap();
+        assert_relative_eq!(
+            gaps.source.central,
+            twopt[&ch.pi()].delta,
+            max_relative = 1e-8
+        );
+        assert_relative_eq!(gaps.sink.central, twopt[&ch.pf].delta, max_relative = 1e-8);
+        assert!(fit.m.quality_re.chi2 < 1e-12);
+        // Joint fit with the two-point functions, started from deliberately wrong two-point
+        // parameters: the exact C2 data pin the gaps, so the truth is found again.
+        let joint = RatioSettings {
+            two_state: TwoStateVariant::JointWithTwoPoint {
+                t_min: 1,
+                t_max: 12,
+            },
+            ..RatioSettings::default()
+        };
+        let fit = two_state::two_state(&ratio, &off, &joint).unwrap();
+        assert_relative_eq!(fit.m.value.re.central, ch.m.0, max_relative = 1e-8);
+        assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
+        let gaps = fit.gaps.unwrap();
+        assert_relative_eq!(
+            gaps.source.central,
+            twopt[&ch.pi()].delta,
+            max_relative = 1e-7
+        );
+        assert_relative_eq!(gaps.sink.central, twopt[&ch.pf].delta, max_relative = 1e-7);
         // The plateau is biased by the excited states (sanity: the data are contaminated).
         let p6 = plateau::plateau(&ratio, 6, &settings).unwrap();
         assert!((p6.fit.value.re.central - ch.m.0).abs() > 0.05 * ch.m.0);
@@ -485,9 +536,51 @@ fn closure_with_strong_contamination() {
     };
     let states = states_of(&twopt, &plan);
     let ratios = build_ratios(&c3, &c2, &plan, &settings).unwrap();
+    // Gaps as a two-point stage would measure them: per-configuration truth + noise, resampled
+    // with the same plan (error about 0.2 / sqrt(300) = 0.012), for the floating-gap variant.
+    let mut rng = ChaCha8Rng::seed_from_u64(77);
+    let mut measured = states.clone();
+    for (p, st) in measured.iter_mut() {
+        let x: Vec<f64> = (0..n_cfg)
+            .map(|_| twopt[p].delta + 0.2 * gauss(&mut rng))
+            .collect();
+        st.gap = plan.mean(&x);
+    }
+    // The non-linear variants on fewer points (tau_cut 2, tsep >= 6) to keep the test quick.
+    let floating = RatioSettings {
+        two_state: TwoStateVariant::FloatingGaps {
+            prior_width_factor: 1.0,
+        },
+        tau_cut: 2,
+        two_state_tsep_min: 6,
+        ..settings.clone()
+    };
+    let joint = RatioSettings {
+        two_state: TwoStateVariant::JointWithTwoPoint {
+            t_min: 2,
+            t_max: 10,
+        },
+        ..floating.clone()
+    };
     let (mut two_ok, mut sum_ok, mut plateau_off, mut flag_agrees) = (0, 0, 0, 0);
+    let (mut float_ok, mut joint_ok) = (0, 0);
+    let nonlinear_channel = |ch: &Chan| ch.q[0] + ch.q[1] + ch.q[2] >= 0 && ch.q[2] == 0;
     for ch in &chans {
         let ratio = ratios[&ChannelKey::of(&ch.key(4))].clone();
+        // The non-linear variants on every other channel (time).
+        if nonlinear_channel(ch) {
+            let fl = two_state::two_state(&ratio, &measured, &floating).unwrap();
+            let jt = two_state::two_state(&ratio, &measured, &joint).unwrap();
+            for (name, fit, ok) in [
+                ("floating gaps", &fl, &mut float_ok),
+                ("joint", &jt, &mut joint_ok),
+            ] {
+                let pull = (fit.m.value.re.central - ch.m.0).abs() / fit.m.value.re.error();
+                println!("{name}: pull {pull:.2}");
+                assert!(pull < 3.0, "{name}: pull {pull}");
+                *ok += usize::from(pull < 1.0);
+            }
+        }
         let r = analyse_channel(ratio, &states, &settings).unwrap();
         let pull = |v: &Resampled, truth: f64| (v.central - truth).abs() / v.error();
         let ts = &r.two_state.as_ref().unwrap().m.value;
@@ -522,6 +615,8 @@ fn closure_with_strong_contamination() {
         );
     }
     let n = chans.len();
+    let n_nl = chans.iter().filter(|c| nonlinear_channel(c)).count();
+    assert_eq!(n_nl, 3);
     assert!(
         two_ok * 3 >= n * 2,
         "two-state within 1 sigma in {two_ok} of {n}"
@@ -529,6 +624,14 @@ fn closure_with_strong_contamination() {
     assert!(
         sum_ok * 3 >= n * 2,
         "summation within 1 sigma in {sum_ok} of {n}"
+    );
+    assert!(
+        float_ok * 3 >= n_nl * 2,
+        "floating gaps within 1 sigma in {float_ok} of {n_nl}"
+    );
+    assert!(
+        joint_ok * 3 >= n_nl * 2,
+        "joint fit within 1 sigma in {joint_ok} of {n_nl}"
     );
     assert!(
         plateau_off * 3 >= n * 2,
@@ -725,4 +828,80 @@ fn averaging_equivalent_channels_with_signs() {
     }];
     let msg = analysis_message(average::average_channels(&ratios, &missing).unwrap_err());
     assert!(msg.contains("V1"), "{msg}");
+}
+
+#[test]
+fn renormalization_keeps_the_z_error_as_its_own_column() {
+    // Independent errors add in quadrature (common practice; methods.md §4): for bare value b
+    // with error s and Z +- dZ, stat = |Z| s, z-error = |b| dZ, total = sqrt(stat^2 + z^2).
+    use formfactory::ratio::renorm::{renormalize, ZFactor, ZFactors};
+    let mut rng = ChaCha8Rng::seed_from_u64(3);
+    let x: Vec<f64> = (0..100).map(|_| 1.27 + 0.1 * gauss(&mut rng)).collect();
+    let bare = ResamplePlan::jackknife(100).mean(&x);
+    let z = ZFactor {
+        value: 0.9,
+        error: 0.02,
+    };
+    let r = renormalize(&bare, z);
+    assert_relative_eq!(r.value.central, 0.9 * bare.central, max_relative = 1e-14);
+    assert_relative_eq!(r.error_stat, 0.9 * bare.error(), max_relative = 1e-12);
+    assert_relative_eq!(r.error_z, 0.02 * bare.central, max_relative = 1e-14);
+    assert_relative_eq!(
+        r.error_total,
+        (r.error_stat.powi(2) + r.error_z.powi(2)).sqrt(),
+        max_relative = 1e-14
+    );
+    let zs = ZFactors {
+        axial: Some(z),
+        ..ZFactors::default()
+    };
+    assert_eq!(zs.get(formfactory::data::CurrentKind::Axial), z);
+    assert_eq!(zs.get(formfactory::data::CurrentKind::Vector), ZFactor::ONE);
+}
+
+#[test]
+fn settings_read_from_yaml_with_defaults() {
+    let s: RatioSettings = serde_yaml_ng::from_str(
+        "tau_cut: 2\ntwo_state: !floating_gaps\n  prior_width_factor: 2.0\nfinal_method: summation\n",
+    )
+    .unwrap();
+    assert_eq!(s.tau_cut, 2);
+    assert_eq!(s.final_method, formfactory::ratio::FinalMethod::Summation);
+    assert_eq!(
+        s.two_state,
+        formfactory::ratio::TwoStateVariant::FloatingGaps {
+            prior_width_factor: 2.0
+        }
+    );
+    assert_eq!(s.negative_root, NegativeRootPolicy::AbsValue);
+    let unknown = serde_yaml_ng::from_str::<RatioSettings>("tau_kut: 2\n").unwrap_err();
+    assert!(unknown.to_string().contains("tau_kut"), "{unknown}");
+    let schema = schemars::schema_for!(RatioSettings);
+    let text = serde_json::to_string(&schema).unwrap();
+    assert!(text.contains("summation_tsep_min"));
+}
+
+#[test]
+fn results_do_not_depend_on_the_thread_count() {
+    let (twopt, chans) = two_state_setup();
+    let (c2, c3) = make_data(
+        &twopt,
+        &chans,
+        &[4, 6, 8],
+        12,
+        60,
+        Noise::Gaussian { seed: 9, rel: 0.1 },
+    );
+    let plan = ResamplePlan::bootstrap(60, 80, 1);
+    let states = states_of(&twopt, &plan);
+    let settings = RatioSettings::default();
+    let run = |threads: usize| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| formfactory::ratio::analyse_all(&c3, &c2, &plan, &states, &settings))
+            .unwrap()
+    };
+    assert_eq!(run(1), run(3));
 }

@@ -198,13 +198,12 @@ fn charts() -> Vec<(&'static str, Chart)> {
         title: "Ratio, V4, unpolarised, Q² shell 1".into(),
         x_label: "τ − t_sep / 2".into(),
         y_label: "R(τ, t_sep)".into(),
-        legend: Legend::LowerRight,
         ..Chart::default()
     };
     let two_state =
         |ts: f64, tau: f64| 1.2 - 0.25 * ((-0.5 * tau).exp() + (-0.5 * (ts - tau)).exp());
     for (k, ts) in [8.0, 10.0, 12.0, 14.0].into_iter().enumerate() {
-        let taus: Vec<f64> = (0..=ts as i32).map(f64::from).collect();
+        let taus: Vec<f64> = (1..ts as i32).map(f64::from).collect();
         let x: Vec<f64> = taus.iter().map(|tau| tau - ts / 2.0).collect();
         let y: Vec<f64> = taus.iter().map(|&tau| two_state(ts, tau)).collect();
         let e: Vec<f64> = taus.iter().map(|_| 0.004 * (0.15 * ts).exp()).collect();
@@ -301,7 +300,6 @@ fn charts() -> Vec<(&'static str, Chart)> {
         title: "Cross-check: differences in units of their error".into(),
         x_label: "channel".into(),
         y_label: "Δ / σ(Δ)".into(),
-        legend: Legend::LowerRight,
         y_range: Some((-3.0, 3.0)),
         reference_lines: [
             (0.0, ""),

@@ -1,1 +1,478 @@
-//! Integration tests: spectrum.
+//! Integration tests: spectrum. Each check names its source: analytic identities (exact
+//! exponentials, the GEVP of a known spectral decomposition, finite differences) and closure on
+//! seeded synthetic data with a known truth.
+
+use approx::assert_relative_eq;
+use formfactory::data::{Momentum, Series, TwoPointData, TwoPointKey};
+use formfactory::fit::Model;
+use formfactory::resample::{ResamplePlan, Resampled, Scheme};
+use formfactory::spectrum::effective::{cosh_mass, effective_mass, log_mass, EffectiveMassKind};
+use formfactory::spectrum::model::{Form, TwoPointModel};
+use formfactory::spectrum::{average, dispersion, gevp, run, IntRange, SpectrumSettings};
+use nalgebra::DMatrix;
+use proptest::prelude::*;
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::collections::BTreeMap;
+
+/// Central finite-difference Jacobian (step relative to the parameter).
+fn numeric_jacobian(m: &dyn Model, p: &[f64]) -> DMatrix<f64> {
+    let (n, k) = (m.n_points(), m.n_params());
+    let mut out = DMatrix::zeros(n, k);
+    let (mut fp, mut fm) = (vec![0.0; n], vec![0.0; n]);
+    for j in 0..k {
+        let h = 1e-6 * p[j].abs().max(1.0);
+        let mut q = p.to_vec();
+        q[j] = p[j] + h;
+        m.eval(&q, &mut fp);
+        q[j] = p[j] - h;
+        m.eval(&q, &mut fm);
+        for i in 0..n {
+            out[(i, j)] = (fp[i] - fm[i]) / (2.0 * h);
+        }
+    }
+    out
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(64))]
+    // Analytic Jacobian = central finite differences (error O(h^2)), every model form.
+    #[test]
+    fn two_point_jacobian_matches_finite_differences(
+        n_states in 1usize..=3,
+        periodic in any::<bool>(),
+        e0 in 0.1f64..1.5,
+        gaps in prop::array::uniform2(-2.0f64..0.5),
+        amps in prop::array::uniform3(-2.0f64..2.0),
+    ) {
+        let form = if periodic { Form::Periodic { t_extent: 24.0 } } else { Form::Exponential };
+        let model = TwoPointModel::new((2..14).map(|t| t as f64).collect(), n_states, form);
+        let mut p = vec![e0];
+        p.extend_from_slice(&gaps[..n_states - 1]);
+        p.extend_from_slice(&amps[..n_states]);
+        let mut analytic = DMatrix::zeros(model.n_points(), model.n_params());
+        model.jacobian(&p, &mut analytic);
+        let numeric = numeric_jacobian(&model, &p);
+        for (a, b) in analytic.iter().zip(numeric.iter()) {
+            prop_assert!((a - b).abs() <= 1e-6 * (1.0 + a.abs()), "{a} vs {b}");
+        }
+    }
+}
+
+// Analytic: for C(t) = A e^{-Et}, ln(C(t)/C(t+1)) = E exactly; for C(t) = A cosh(E(t - T/2))
+// the cosh-solved mass is E exactly (methods.md §2).
+#[test]
+fn effective_masses_of_exact_exponentials() {
+    let (e, a, big_t) = (0.437, 3.2, 48.0);
+    for t in 0..30 {
+        let tf = t as f64;
+        let c0 = a * (-e * tf).exp();
+        let c1 = a * (-e * (tf + 1.0)).exp();
+        assert_relative_eq!(log_mass(c0, c1).unwrap(), e, epsilon = 1e-12);
+        let c0 = a * (e * (tf - big_t / 2.0)).cosh();
+        let c1 = a * (e * (tf + 1.0 - big_t / 2.0)).cosh();
+        if t < 23 {
+            assert_relative_eq!(cosh_mass(c0, c1, tf, big_t).unwrap(), e, epsilon = 1e-12);
+        }
+        if t > 24 {
+            // Past the midpoint the correlator rises; the same equation still gives E.
+            assert_relative_eq!(cosh_mass(c0, c1, tf, big_t).unwrap(), e, epsilon = 1e-12);
+        }
+    }
+    // t + 1/2 = T/2: the ratio does not depend on m; undefined.
+    assert!(cosh_mass(1.0, 1.0, 23.5, 48.0).is_none());
+    // Non-positive ratios are undefined (None, not NaN).
+    assert!(log_mass(1.0, -1.0).is_none());
+    assert!(log_mass(0.0, 1.0).is_none());
+    assert!(cosh_mass(1.0, 2.0, 3.0, 48.0).is_none());
+    // Resampled: one bad sample makes the point None.
+    let c = vec![
+        Resampled::new(1.0, vec![1.0, 1.0], Scheme::Jackknife),
+        Resampled::new(0.5, vec![0.5, -0.5], Scheme::Jackknife),
+        Resampled::new(0.25, vec![0.25, 0.25], Scheme::Jackknife),
+    ];
+    let m = effective_mass(&c, EffectiveMassKind::Log);
+    assert!(m[0].is_none());
+    assert!(m[1].is_none());
+}
+
+// Analytic: C(t) = Z^T diag(e^{-E_n t}) Z has GEVP eigenvalues exactly e^{-E_n (t - t0)}
+// (Blossier et al., JHEP 04 (2009) 094, the N = number of operators case).
+#[test]
+fn gevp_recovers_known_energies() {
+    let energies = [0.45, 0.8, 1.3];
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let z = DMatrix::from_fn(3, 3, |_, _| rng.gen_range(-1.0..1.0) + 0.2);
+    let corr = |t: f64| {
+        let d = DMatrix::from_diagonal(&nalgebra::DVector::from_iterator(
+            3,
+            energies.iter().map(|e: &f64| (-e * t).exp()),
+        ));
+        z.transpose() * d * &z
+    };
+    let t0 = 2.0;
+    for t in [3.0, 5.0, 8.0] {
+        let sol = gevp::solve(&corr(t), &corr(t0)).unwrap();
+        for (n, e) in energies.iter().enumerate() {
+            let e_fit = -sol.eigenvalues[n].ln() / (t - t0);
+            assert_relative_eq!(e_fit, *e, epsilon = 1e-10);
+        }
+    }
+    // Resampled: identical samples give the same principal correlators.
+    let n_t = 10;
+    let matrix: Vec<Vec<Resampled>> = (0..9)
+        .map(|ij| {
+            (0..n_t)
+                .map(|t| {
+                    let v = corr(t as f64)[(ij / 3, ij % 3)];
+                    Resampled::new(v, vec![v * 1.0; 4], Scheme::Jackknife)
+                })
+                .collect()
+        })
+        .collect();
+    let pc = gevp::principal_correlators(&matrix, 3, 2, 4).unwrap();
+    for (n, e) in energies.iter().enumerate() {
+        let l = &pc.lambda[n][7];
+        assert_relative_eq!(-l.central.ln() / 5.0, *e, epsilon = 1e-10);
+        assert_relative_eq!(-l.samples[3].ln() / 5.0, *e, epsilon = 1e-10);
+    }
+    // Not positive-definite C(t0): an error, not a panic.
+    assert!(gevp::solve(&corr(3.0), &DMatrix::zeros(3, 3)).is_err());
+}
+
+// Jay & Neil (PRD 103 (2021) 114502) variance: sum w s^2 + sum w mu^2 - (sum w mu)^2.
+#[test]
+fn model_average_variance_is_jay_neil() {
+    let a = Resampled::new(1.0, vec![0.9, 1.1, 1.0, 1.0], Scheme::Jackknife);
+    let b = Resampled::new(1.5, vec![1.3, 1.7, 1.5, 1.5], Scheme::Jackknife);
+    let w = [0.25, 0.75];
+    let (avg, stat, model) = average::average(&[&a, &b], &w);
+    let mean = 0.25 * 1.0 + 0.75 * 1.5;
+    assert_relative_eq!(avg.central, mean, epsilon = 1e-14);
+    let expect_stat = 0.25 * a.variance() + 0.75 * b.variance();
+    let expect_model = 0.25 * 1.0 + 0.75 * 2.25 - mean * mean;
+    assert_relative_eq!(stat, expect_stat, epsilon = 1e-14);
+    assert_relative_eq!(model, expect_model, epsilon = 1e-14);
+    assert_relative_eq!(avg.variance(), expect_stat + expect_model, epsilon = 1e-12);
+}
+
+// Analytic: at p = 0 both dispersion relations give m; the energies satisfy their defining
+// relations; the lattice-minus-continuum difference vanishes like p^2 (Taylor expansion of
+// sinh and sin), so halving p divides it by about 4.
+#[test]
+fn dispersion_relations() {
+    let m = Resampled::new(0.5, vec![0.49, 0.51], Scheme::Jackknife);
+    assert_relative_eq!(
+        dispersion::lattice_energy(&m, [0.0; 3]).central,
+        0.5,
+        epsilon = 1e-14
+    );
+    let p = dispersion::lattice_momentum([1, 2, 0], 16.0, None);
+    assert_relative_eq!(p[1], 4.0 * std::f64::consts::PI / 16.0, epsilon = 1e-15);
+    let lat = dispersion::lattice_energy(&m, p).central;
+    let lhs = (lat / 2.0).sinh().powi(2) - 0.25f64.sinh().powi(2);
+    let rhs: f64 = p.iter().map(|x| (x / 2.0).sin().powi(2)).sum();
+    assert_relative_eq!(lhs, rhs, epsilon = 1e-14);
+    let cont = dispersion::continuum_energy(&m, p).central;
+    assert_relative_eq!(
+        cont * cont - 0.25,
+        p.iter().map(|x| x * x).sum::<f64>(),
+        epsilon = 1e-14
+    );
+    let diff = |q: f64| {
+        dispersion::lattice_energy(&m, [q, 0.0, 0.0]).central
+            - dispersion::continuum_energy(&m, [q, 0.0, 0.0]).central
+    };
+    let ratio = diff(0.1) / diff(0.05);
+    assert!((3.8..4.3).contains(&ratio), "{ratio}");
+    let twisted = dispersion::lattice_momentum([1, 0, 0], 16.0, Some([0.5, 0.0, 0.0]));
+    assert_relative_eq!(
+        twisted[0],
+        (2.0 * std::f64::consts::PI + 0.5) / 16.0,
+        epsilon = 1e-15
+    );
+}
+
+/// Truth of the synthetic ensemble: a two-state spectrum per momentum, lattice dispersion.
+struct Truth {
+    mass: f64,
+    gap: f64,
+    l: f64,
+}
+
+impl Truth {
+    fn e0(&self, n: Momentum) -> f64 {
+        let p = dispersion::lattice_momentum(n, self.l, None);
+        let m = Resampled::new(self.mass, vec![], Scheme::Jackknife);
+        dispersion::lattice_energy(&m, p).central
+    }
+}
+
+/// Seeded synthetic two-point data: C(t) = A0 e^{-E0 t} (1 + 0.5 e^{-gap t}) times
+/// (1 + noise), noise correlated across t (AR(1) in t with coefficient 0.7), relative size
+/// 0.5% growing as e^{0.08 t}.
+fn synthetic(
+    truth: &Truth,
+    momenta: &[Momentum],
+    n_cfg: usize,
+    n_t: usize,
+    seed: u64,
+) -> TwoPointData {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut channels = BTreeMap::new();
+    for &n in momenta {
+        let e0 = truth.e0(n);
+        let mut s = Series::zeros(n_t, n_cfg);
+        for cfg in 0..n_cfg {
+            let mut eps = 0.0;
+            for t in 0..n_t {
+                let tf = t as f64;
+                let z: f64 = (0..12).map(|_| rng.gen::<f64>()).sum::<f64>() - 6.0;
+                eps = 0.7 * eps + (1.0f64 - 0.49).sqrt() * z;
+                let c = 2.0 * (-e0 * tf).exp() * (1.0 + 0.5 * (-truth.gap * tf).exp());
+                let idx = s.index(t, cfg);
+                s.re[idx] = c * (1.0 + 0.005 * (0.08 * tf).exp() * eps);
+            }
+        }
+        channels.insert(
+            TwoPointKey {
+                momentum: n,
+                smear: None,
+            },
+            s,
+        );
+    }
+    TwoPointData {
+        configs: (0..n_cfg as i64).collect(),
+        channels,
+    }
+}
+
+const MOMENTA: [Momentum; 10] = [
+    [0, 0, 0],
+    [1, 0, 0],
+    [0, 1, 0],
+    [0, 0, 1],
+    [1, 1, 0],
+    [1, 0, 1],
+    [0, 1, 1],
+    [1, 1, 1],
+    [2, 0, 0],
+    [0, 0, 2],
+];
+
+fn closure_settings() -> SpectrumSettings {
+    SpectrumSettings {
+        t_min: IntRange { from: 2, to: 6 },
+        t_max: Some(16),
+        n_states: IntRange { from: 1, to: 2 },
+        l_extent: Some(16),
+        ..SpectrumSettings::default()
+    }
+}
+
+// Closure (synthetic data with known truth, correlated noise): E0(p) within 1 sigma for about
+// 68% of the momenta and within 2 sigma for all; the dispersion check agrees with the truth.
+#[test]
+fn closure_on_synthetic_data() {
+    let truth = Truth {
+        mass: 0.5,
+        gap: 0.6,
+        l: 16.0,
+    };
+    let data = synthetic(&truth, &MOMENTA, 120, 24, 2026);
+    let plan = ResamplePlan::jackknife(120);
+    let result = run(&data, &plan, &closure_settings()).unwrap();
+    let mut within1 = 0;
+    let mut within2 = 0;
+    for (p, s) in &result.per_momentum {
+        let e = s.ground_energy();
+        let pull = (e.central - truth.e0(*p)) / e.error();
+        println!("closure {p:?}: E0 = {:.5} +- {:.5}, truth {:.5}, pull {pull:+.2}, chosen t_min {} states {}",
+            e.central, e.error(), truth.e0(*p), s.chosen.t_min, s.chosen.n_states);
+        within1 += usize::from(pull.abs() < 1.0);
+        within2 += usize::from(pull.abs() < 2.0);
+    }
+    let n = result.per_momentum.len();
+    println!("closure: {within1}/{n} within 1 sigma, {within2}/{n} within 2 sigma");
+    assert_eq!(n, 10);
+    assert_eq!(within2, n, "every momentum within 2 sigma");
+    assert!(within1 >= 5, "about 68% within 1 sigma, got {within1}/{n}");
+    assert_eq!(result.dispersion.len(), 9);
+    for row in &result.dispersion {
+        assert!(row.lattice_sigma.abs() < 3.0, "{row:?}");
+    }
+    let mass = result.mass.as_ref().unwrap();
+    assert!((mass.central - truth.mass).abs() < 2.0 * mass.error());
+    let gap = result.per_momentum[&[0, 0, 0]].gap();
+    assert!(gap.is_some());
+}
+
+// Thread-count independence (BRIEF: results must not depend on the number of rayon threads).
+#[test]
+fn results_do_not_depend_on_thread_count() {
+    let truth = Truth {
+        mass: 0.5,
+        gap: 0.6,
+        l: 16.0,
+    };
+    let data = synthetic(&truth, &MOMENTA[..2], 40, 20, 5);
+    let plan = ResamplePlan::jackknife(40);
+    let settings = SpectrumSettings {
+        t_min: IntRange { from: 3, to: 4 },
+        ..closure_settings()
+    };
+    let go = |threads| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| run(&data, &plan, &settings).unwrap())
+    };
+    let (a, b) = (go(1), go(3));
+    for (p, s) in &a.per_momentum {
+        let e1 = s.ground_energy();
+        let e2 = b.per_momentum[p].ground_energy();
+        assert_relative_eq!(e1.central, e2.central, max_relative = 0.0);
+        for (x, y) in e1.samples.iter().zip(&e2.samples) {
+            assert_relative_eq!(*x, *y, max_relative = 0.0);
+        }
+    }
+}
+
+// Robustness (methods.md §2: singular covariance reported; BRIEF: no panics on bad data).
+#[test]
+fn bad_data_gives_clear_errors() {
+    let truth = Truth {
+        mass: 0.5,
+        gap: 0.6,
+        l: 16.0,
+    };
+    let plan = ResamplePlan::jackknife(30);
+    // Negative data inside the fit range.
+    let mut data = synthetic(&truth, &[[0, 0, 0]], 30, 20, 1);
+    let s = data.channels.values_mut().next().unwrap();
+    for cfg in 0..30 {
+        let i = s.index(9, cfg);
+        s.re[i] = -1.0;
+    }
+    let e = run(&data, &plan, &closure_settings())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("t = 9") && e.contains("positive"), "{e}");
+    // Ill-conditioned covariance: two time slices identical on every configuration.
+    let mut data = synthetic(&truth, &[[0, 0, 0]], 30, 20, 2);
+    let s = data.channels.values_mut().next().unwrap();
+    for cfg in 0..30 {
+        let (i, j) = (s.index(8, cfg), s.index(9, cfg));
+        s.re[j] = 0.9 * s.re[i];
+    }
+    let e = run(&data, &plan, &closure_settings())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("condition number"), "{e}");
+    // A window with fewer points than parameters.
+    let data = synthetic(&truth, &[[0, 0, 0]], 30, 20, 3);
+    let settings = SpectrumSettings {
+        t_min: IntRange { from: 10, to: 10 },
+        t_max: Some(12),
+        n_states: IntRange { from: 2, to: 2 },
+        ..closure_settings()
+    };
+    let e = run(&data, &plan, &settings).unwrap_err().to_string();
+    assert!(e.contains("no fit"), "{e}");
+    // NaN in the data.
+    let mut data = synthetic(&truth, &[[0, 0, 0]], 30, 20, 4);
+    data.channels.values_mut().next().unwrap().re[100] = f64::NAN;
+    assert!(run(&data, &plan, &closure_settings()).is_err());
+}
+
+// Closure for the variational method (Blossier et al., JHEP 04 (2009) 094): a seeded 2x2
+// correlator matrix built from two known states, noisy; the energies fitted to the principal
+// correlators agree with the truth within 2 sigma.
+#[test]
+fn gevp_stage_closure() {
+    let energies = [0.5, 0.9];
+    let z = [[1.0, 0.6], [0.5, -0.8]]; // z[operator][state]
+    let (n_cfg, n_t) = (60, 20);
+    let mut rng = ChaCha8Rng::seed_from_u64(99);
+    let mut channels = BTreeMap::new();
+    // Per-channel noise (symmetric pairs share it): a common part plus an independent part.
+    let mut noise = vec![vec![0.0; n_cfg * n_t]; 4];
+    for cfg in 0..n_cfg {
+        let mut eps = [0.0; 4];
+        for t in 0..n_t {
+            for e in eps.iter_mut() {
+                let g: f64 = (0..12).map(|_| rng.gen::<f64>()).sum::<f64>() - 6.0;
+                *e = 0.5 * *e + 0.75f64.sqrt() * g;
+            }
+            for pair in 0..3 {
+                noise[pair][t * n_cfg + cfg] =
+                    0.003 * (0.05 * t as f64).exp() * (eps[3] + 0.5 * eps[pair]);
+            }
+        }
+    }
+    let ops = ["g", "w"];
+    for (i, a) in ops.iter().enumerate() {
+        for (j, b) in ops.iter().enumerate() {
+            let mut s = Series::zeros(n_t, n_cfg);
+            for t in 0..n_t {
+                let c: f64 = (0..2)
+                    .map(|n| z[i][n] * z[j][n] * (-energies[n] * t as f64).exp())
+                    .sum();
+                for cfg in 0..n_cfg {
+                    let k = s.index(t, cfg);
+                    s.re[k] = c * (1.0 + noise[i + j][t * n_cfg + cfg]);
+                }
+            }
+            channels.insert(
+                TwoPointKey {
+                    momentum: [0, 0, 0],
+                    smear: Some(format!("{a}-{b}")),
+                },
+                s,
+            );
+        }
+    }
+    let data = TwoPointData {
+        configs: (0..n_cfg as i64).collect(),
+        channels,
+    };
+    let settings = SpectrumSettings {
+        t_min: IntRange { from: 3, to: 5 },
+        t_max: Some(12),
+        n_states: IntRange { from: 1, to: 1 },
+        gevp: Some(formfactory::spectrum::GevpSettings { t0: 2, t_ref: 4 }),
+        ..SpectrumSettings::default()
+    };
+    let r = run(&data, &ResamplePlan::jackknife(n_cfg), &settings).unwrap();
+    let g = &r.gevp[&[0, 0, 0]];
+    assert_eq!(g.operators, vec!["g".to_string(), "w".to_string()]);
+    for (n, e) in energies.iter().enumerate() {
+        let fit = g.energy(n).unwrap();
+        println!(
+            "GEVP state {n}: {:.5} +- {:.5} (truth {e})",
+            fit.central,
+            fit.error()
+        );
+        assert!(
+            (fit.central - e).abs() < 2.0 * fit.error(),
+            "state {n}: {fit:?}"
+        );
+    }
+    // The ground principal correlator stands in for the per-momentum spectrum.
+    assert!(r.per_momentum.contains_key(&[0, 0, 0]));
+}
+
+// Settings parse from YAML with defaults (the pipeline reads this block).
+#[test]
+fn settings_parse_with_defaults() {
+    let s: SpectrumSettings =
+        serde_yaml_ng::from_str("t_min: {from: 4, to: 7}\nperiodic: true\n").unwrap();
+    assert_eq!(s.t_min, IntRange { from: 4, to: 7 });
+    assert!(s.periodic);
+    assert_eq!(s.n_states, SpectrumSettings::default().n_states);
+    assert!(serde_yaml_ng::from_str::<SpectrumSettings>("tmin: 3\n").is_err());
+    let schema = schemars::schema_for!(SpectrumSettings);
+    assert!(serde_json::to_string(&schema).unwrap().contains("t_min"));
+}

@@ -1,8 +1,413 @@
-//! `formfactory inspect`. Placeholder; filled by the io work.
+//! `formfactory inspect`: a terminal summary of a data directory or one correlator table,
+//! with warnings for what looks wrong before any analysis is run.
+//!
+//! It exists so that an analyst sees at a glance what an ensemble contains (configurations,
+//! momenta, `T`, `tsep` values, currents, projectors, labels) and whether the data need care:
+//! non-positive two-point values at small `t`, configuration-number gaps, momenta of the
+//! three-point table that the two-point table lacks, and autocorrelation in Monte Carlo time.
+//! The integrated autocorrelation time of a few representative points is estimated with the
+//! Gamma method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143),
+//! through [`crate::resample::autocorr::gamma_method`].
 
-use std::path::Path;
+use super::table::{display_name, open, Summary};
+use super::{threept, twopt};
+use crate::data::{norm2, sub, Momentum, ThreePointData, TwoPointData};
+use crate::error::{Error, Result};
+use std::collections::BTreeSet;
+use std::fmt::Write as _;
+use std::io::{BufRead, BufReader, Read};
+use std::path::{Path, PathBuf};
 
-/// Summarise a data directory or one table as text for the terminal.
-pub fn inspect(_path: &Path) -> crate::Result<String> {
-    Err(crate::Error::config("inspect is not built yet"))
+/// Wolff's windowing factor `S` (his recommended default).
+const WINDOW_S: f64 = crate::resample::autocorr::DEFAULT_S;
+/// Above this integrated autocorrelation time, binning is advisable (common practice: with
+/// `tau_int` well above 1/2 the naive error is too small by `sqrt(2 tau_int)`).
+const TAU_INT_WARN: f64 = 1.5;
+/// Two-point values are checked for positivity at `t < SMALL_T`.
+const SMALL_T: usize = 3;
+/// At most this many items are listed in one warning or summary line.
+const LIST_MAX: usize = 8;
+
+/// Summarise a data directory (`twopt.csv` and/or `threept.csv` inside) or one table (its
+/// kind told by its header; `-` reads standard input) as text for the terminal.
+pub fn inspect(path: &Path) -> Result<String> {
+    let (two, three) = load(path)?;
+    let mut out = String::new();
+    let mut warnings = Vec::new();
+    if let Some((name, data, summary)) = &two {
+        describe_twopt(&mut out, name, data, summary);
+        check_twopt(data, &mut warnings);
+        config_gaps(&data.configs, name, &mut warnings);
+    }
+    if let Some((name, data, summary)) = &three {
+        describe_threept(&mut out, name, data, summary);
+        let same_configs = two.as_ref().is_some_and(|t| t.1.configs == data.configs);
+        if !same_configs {
+            config_gaps(&data.configs, name, &mut warnings);
+        }
+    }
+    if let (Some((n2, d2, _)), Some((n3, d3, _))) = (&two, &three) {
+        compare_tables(n2, d2, n3, d3, &mut warnings);
+    }
+    autocorrelation(
+        &mut out,
+        two.as_ref().map(|t| &t.1),
+        three.as_ref().map(|t| &t.1),
+        &mut warnings,
+    );
+    if warnings.is_empty() {
+        out.push_str("warnings: none\n");
+    } else {
+        let _ = writeln!(out, "warnings ({}):", warnings.len());
+        for w in &warnings {
+            let _ = writeln!(out, "  - {w}");
+        }
+    }
+    Ok(out)
+}
+
+type Loaded<D> = Option<(PathBuf, D, Summary)>;
+
+/// Read what `path` names: a directory with the standard file names, or one table.
+fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
+    if path.is_dir() {
+        let (p2, p3) = (path.join("twopt.csv"), path.join("threept.csv"));
+        if !p2.exists() && !p3.exists() {
+            return Err(Error::Table {
+                path: path.to_path_buf(),
+                message: "directory holds neither twopt.csv nor threept.csv".into(),
+            });
+        }
+        let two = if p2.exists() {
+            let (d, s) = twopt::read_with_summary(&p2)?;
+            Some((p2, d, s))
+        } else {
+            None
+        };
+        let three = if p3.exists() {
+            let (d, s) = threept::read_with_summary(&p3)?;
+            Some((p3, d, s))
+        } else {
+            None
+        };
+        return Ok((two, three));
+    }
+    let name = display_name(path);
+    let mut input = BufReader::new(open(path)?);
+    let mut header = Vec::new();
+    input
+        .read_until(b'\n', &mut header)
+        .map_err(|e| Error::io(&name, e))?;
+    let names: Vec<String> = String::from_utf8_lossy(&header)
+        .trim_start_matches('\u{feff}')
+        .trim_end()
+        .split(',')
+        .map(|s| s.trim_matches('"').to_string())
+        .collect();
+    let has = |n: &str| names.iter().any(|x| x == n);
+    let whole = std::io::Cursor::new(header.clone()).chain(input);
+    if has("tau") || has("tsep") {
+        let (d, s) = threept::read_inner(whole, name.clone())?;
+        Ok((None, Some((name, d, s))))
+    } else if has("t") {
+        let (d, s) = twopt::read_inner(whole, name.clone())?;
+        Ok((Some((name, d, s)), None))
+    } else {
+        Err(Error::Table {
+            path: name,
+            message: "cannot tell the kind of table from its header: a two-point table has a \
+                      `t` column, a three-point table `tsep` and `tau` columns"
+                .into(),
+        })
+    }
+}
+
+fn list<T: std::fmt::Display>(items: impl IntoIterator<Item = T>) -> String {
+    let all: Vec<String> = items.into_iter().map(|x| x.to_string()).collect();
+    if all.is_empty() {
+        return "none".into();
+    }
+    let mut s = all[..all.len().min(LIST_MAX)].join(" ");
+    if all.len() > LIST_MAX {
+        let _ = write!(s, " ... ({} in all)", all.len());
+    }
+    s
+}
+
+fn mom(p: Momentum) -> String {
+    format!("({},{},{})", p[0], p[1], p[2])
+}
+
+/// Configuration count, range and spacing.
+fn configs_line(configs: &[i64]) -> String {
+    let (Some(first), Some(last)) = (configs.first(), configs.last()) else {
+        return "0".into();
+    };
+    let mut s = format!("{} ({first}..{last}", configs.len());
+    if let Some(step) = usual_step(configs) {
+        match configs.windows(2).filter(|w| w[1] - w[0] != step).count() {
+            0 => {
+                let _ = write!(s, ", step {step}, no gaps");
+            }
+            n => {
+                let _ = write!(s, ", step {step}, {n} irregular spacing(s)");
+            }
+        }
+    }
+    s.push(')');
+    s
+}
+
+/// The most common difference between consecutive configuration numbers (smallest on ties).
+fn usual_step(configs: &[i64]) -> Option<i64> {
+    let mut diffs: Vec<i64> = configs.windows(2).map(|w| w[1] - w[0]).collect();
+    diffs.sort_unstable();
+    let mut best: Option<(usize, i64)> = None;
+    for chunk in diffs.chunk_by(|a, b| a == b) {
+        if best.is_none_or(|(n, _)| chunk.len() > n) {
+            best = Some((chunk.len(), chunk[0]));
+        }
+    }
+    best.map(|(_, d)| d)
+}
+
+fn rows_line(out: &mut String, s: &Summary) {
+    let _ = write!(out, "  rows: {}", s.rows);
+    match s.sources {
+        Some((lo, hi)) if lo == hi => {
+            let _ = write!(out, " ({lo} source(s) averaged per value)");
+        }
+        Some((lo, hi)) => {
+            let _ = write!(out, " ({lo} to {hi} sources averaged per value)");
+        }
+        None => {}
+    }
+    out.push('\n');
+}
+
+fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) {
+    let _ = writeln!(out, "two-point table: {}", name.display());
+    rows_line(out, s);
+    let _ = writeln!(out, "  configurations: {}", configs_line(&d.configs));
+    let momenta: BTreeSet<(i32, Momentum)> = d
+        .channels
+        .keys()
+        .map(|k| (norm2(k.momentum), k.momentum))
+        .collect();
+    let smears: BTreeSet<&str> = d
+        .channels
+        .keys()
+        .filter_map(|k| k.smear.as_deref())
+        .collect();
+    let n_t = d.channels.values().next().map_or(0, |s| s.n_t);
+    let _ = writeln!(out, "  channels: {}, T = {n_t}", d.channels.len());
+    let _ = writeln!(
+        out,
+        "  momenta ({}): {}",
+        momenta.len(),
+        list(momenta.iter().map(|(_, p)| mom(*p)))
+    );
+    let _ = writeln!(out, "  smear labels: {}", list(&smears));
+}
+
+fn describe_threept(out: &mut String, name: &Path, d: &ThreePointData, s: &Summary) {
+    let _ = writeln!(out, "three-point table: {}", name.display());
+    rows_line(out, s);
+    let _ = writeln!(out, "  configurations: {}", configs_line(&d.configs));
+    let keys = d.channels.keys();
+    let tseps: BTreeSet<u32> = keys.clone().map(|k| k.tsep).collect();
+    let currents: BTreeSet<_> = keys.clone().map(|k| k.current).collect();
+    let projectors: BTreeSet<_> = keys.clone().map(|k| k.projector).collect();
+    let flavors: BTreeSet<&str> = keys.clone().filter_map(|k| k.flavor.as_deref()).collect();
+    let diagrams: BTreeSet<&str> = keys
+        .clone()
+        .filter_map(|k| k.diagram)
+        .map(|g| match g {
+            crate::data::Diagram::Connected => "connected",
+            crate::data::Diagram::Disconnected => "disconnected",
+        })
+        .collect();
+    let sinks: BTreeSet<(i32, Momentum)> = keys.clone().map(|k| (norm2(k.pf), k.pf)).collect();
+    let qs: BTreeSet<(i32, Momentum)> = keys.clone().map(|k| (norm2(k.q), k.q)).collect();
+    let _ = writeln!(
+        out,
+        "  channels: {}, tsep: {}",
+        d.channels.len(),
+        list(&tseps)
+    );
+    let _ = writeln!(out, "  currents: {}", list(&currents));
+    let _ = writeln!(out, "  projectors: {}", list(&projectors));
+    let _ = writeln!(
+        out,
+        "  flavors: {}; diagrams: {}",
+        list(&flavors),
+        list(&diagrams)
+    );
+    let _ = writeln!(
+        out,
+        "  sink momenta p_f ({}): {}",
+        sinks.len(),
+        list(sinks.iter().map(|(_, p)| mom(*p)))
+    );
+    let _ = writeln!(
+        out,
+        "  current momenta q ({}): {}",
+        qs.len(),
+        list(qs.iter().map(|(_, p)| mom(*p)))
+    );
+}
+
+/// Non-positive real parts at small `t`: the mean in any channel, single configurations at
+/// zero momentum.
+fn check_twopt(d: &TwoPointData, warnings: &mut Vec<String>) {
+    for (key, s) in &d.channels {
+        let name = super::describe_twopt(key);
+        for t in 0..s.n_t.min(SMALL_T) {
+            let re = s.re_at(t);
+            let mean = re.iter().sum::<f64>() / re.len().max(1) as f64;
+            if mean <= 0.0 {
+                warnings.push(format!(
+                    "two-point {name}: mean Re C2 at t={t} is {mean:e} (<= 0); a two-point \
+                     function should be positive at small t - check sign or phase"
+                ));
+            } else if key.momentum == [0, 0, 0] {
+                let bad = re.iter().filter(|&&x| x <= 0.0).count();
+                if bad > 0 {
+                    warnings.push(format!(
+                        "two-point {name}: {bad} configuration(s) have Re C2 <= 0 at t={t}"
+                    ));
+                }
+            }
+        }
+    }
+}
+
+fn config_gaps(configs: &[i64], name: &Path, warnings: &mut Vec<String>) {
+    let Some(step) = usual_step(configs) else {
+        return;
+    };
+    let odd: Vec<String> = configs
+        .windows(2)
+        .filter(|w| w[1] - w[0] != step)
+        .map(|w| format!("{}->{}", w[0], w[1]))
+        .collect();
+    if !odd.is_empty() {
+        warnings.push(format!(
+            "{}: configuration numbers mostly step by {step} but not at {}; missing \
+             configurations or mixed streams?",
+            name.display(),
+            list(&odd)
+        ));
+    }
+}
+
+/// Configuration mismatch and three-point momenta without a two-point partner.
+fn compare_tables(
+    n2: &Path,
+    d2: &TwoPointData,
+    n3: &Path,
+    d3: &ThreePointData,
+    warnings: &mut Vec<String>,
+) {
+    if d2.configs != d3.configs {
+        let only2 = super::difference(&d2.configs, &d3.configs);
+        let only3 = super::difference(&d3.configs, &d2.configs);
+        warnings.push(format!(
+            "the tables cover different configurations: only in {}: {}; only in {}: {}; \
+             an analysis must be asked to keep only the common ones",
+            n2.display(),
+            list(&only2),
+            n3.display(),
+            list(&only3)
+        ));
+    }
+    let have: BTreeSet<Momentum> = d2.channels.keys().map(|k| k.momentum).collect();
+    let mut lacking = BTreeSet::new();
+    for k in d3.channels.keys() {
+        for (role, p) in [("sink", k.pf), ("source", sub(k.pf, k.q))] {
+            if !have.contains(&p) {
+                lacking.insert((norm2(p), p, role));
+            }
+        }
+    }
+    if !lacking.is_empty() {
+        warnings.push(format!(
+            "momenta of the three-point table absent from the two-point table: {}",
+            list(
+                lacking
+                    .iter()
+                    .map(|(_, p, role)| format!("{} ({role})", mom(*p)))
+            )
+        ));
+    }
+}
+
+/// Integrated autocorrelation times of a few representative points.
+fn autocorrelation(
+    out: &mut String,
+    two: Option<&TwoPointData>,
+    three: Option<&ThreePointData>,
+    warnings: &mut Vec<String>,
+) {
+    let mut points: Vec<(String, Vec<f64>)> = Vec::new();
+    if let Some(d) = two {
+        let chosen = d
+            .channels
+            .iter()
+            .find(|(k, _)| k.momentum == [0, 0, 0])
+            .or_else(|| d.channels.iter().next());
+        if let Some((k, s)) = chosen {
+            let ts: BTreeSet<usize> = [1, s.n_t / 4, s.n_t / 2]
+                .into_iter()
+                .filter(|&t| t < s.n_t)
+                .collect();
+            for t in ts {
+                let name = format!("Re C2 {} t={t}", super::describe_twopt(k));
+                points.push((name, s.re_at(t).to_vec()));
+            }
+        }
+    }
+    if let Some(d) = three {
+        if let Some((k, s)) = d.channels.iter().next() {
+            let tau = s.n_t.saturating_sub(1) / 2;
+            let (re, im) = (s.re_at(tau), s.im_at(tau));
+            let size = |x: &[f64]| x.iter().sum::<f64>().abs();
+            let (part, x) = if size(im) > size(re) {
+                ("Im", im)
+            } else {
+                ("Re", re)
+            };
+            let name = format!("{part} C3 {} tau={tau}", super::describe_threept(k));
+            points.push((name, x.to_vec()));
+        }
+    }
+    if points.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        out,
+        "autocorrelation in Monte Carlo time (Gamma method, Wolff 2004, S = {WINDOW_S}):"
+    );
+    for (name, x) in points {
+        match crate::resample::autocorr::gamma_method(&x, WINDOW_S) {
+            Ok(r) => {
+                let _ = writeln!(
+                    out,
+                    "  {name}: tau_int = {:.2} +- {:.2} (window {})",
+                    r.tau_int, r.tau_int_error, r.window
+                );
+                warnings.extend(r.warnings.iter().map(|w| format!("{name}: {w}")));
+                if r.tau_int > TAU_INT_WARN {
+                    warnings.push(format!(
+                        "{name}: tau_int = {:.2} > {TAU_INT_WARN}; bin the configurations \
+                         (bin size of a few tau_int) before resampling",
+                        r.tau_int
+                    ));
+                }
+            }
+            Err(e) => {
+                let _ = writeln!(out, "  {name}: not estimated ({e})");
+            }
+        }
+    }
 }

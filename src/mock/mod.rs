@@ -1,4 +1,10 @@
-//! The mock-ensemble generator (methods.md §8). Placeholder; filled by the mock work.
+//! The mock-ensemble generator (methods.md §8). The spec, noise, channel selection and truth
+//! types are in place; generation waits for the kinematic factors.
+
+pub mod channels;
+pub mod noise;
+pub mod spec;
+pub mod truth;
 
 use std::path::Path;
 

@@ -87,5 +87,8 @@ pub fn average_channels(
         key: lead_key.clone(),
         points,
         negative_root,
+        n_bins: lead.n_bins,
+        c2_source: lead.c2_source.clone(),
+        c2_sink: lead.c2_sink.clone(),
     })
 }

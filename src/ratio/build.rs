@@ -13,6 +13,7 @@
 //! [`NegativeRootPolicy`] and counted per channel; a non-finite ratio (a two-point function
 //! that is zero) is an error naming the channel.
 
+use super::lsq::CovarianceSetup;
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
 use crate::data::{Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
 use crate::resample::{ResamplePlan, Resampled};
@@ -51,6 +52,15 @@ pub struct ChannelRatio {
     pub points: Vec<RatioPoint>,
     /// Negative-root diagnostics.
     pub negative_root: NegativeRootCount,
+    /// Number of independent bins the resamples were drawn from (for covariance estimates).
+    pub n_bins: usize,
+    /// Resampled two-point means at the source momentum (`t = 0..T`) that divided `C3`;
+    /// used by the joint two-state fit, not serialized.
+    #[serde(skip)]
+    pub c2_source: Vec<Resampled>,
+    /// Resampled two-point means at the sink momentum.
+    #[serde(skip)]
+    pub c2_sink: Vec<Resampled>,
 }
 
 impl ChannelRatio {
@@ -67,6 +77,14 @@ impl ChannelRatio {
             .iter()
             .filter(|p| p.tsep == tsep && p.tau >= tau_cut && p.tau + tau_cut <= p.tsep)
             .collect()
+    }
+
+    /// The covariance setup of fits to this channel's points.
+    pub(crate) fn covariance<'a>(&self, settings: &'a RatioSettings) -> CovarianceSetup<'a> {
+        CovarianceSetup {
+            options: &settings.covariance,
+            n_bins: self.n_bins,
+        }
     }
 }
 
@@ -91,6 +109,13 @@ pub fn build_ratios(
             ),
         ));
     }
+    if c3.configs != c2.configs {
+        return Err(Error::analysis(
+            STAGE,
+            "the three-point and two-point data are on different configurations (or bins); \
+             both must share the same list",
+        ));
+    }
     let mut two_point = TwoPointMeans::new(c2, plan, settings.two_point_smear.clone());
     let mut out: BTreeMap<ChannelKey, ChannelRatio> = BTreeMap::new();
     for (key3, series) in &c3.channels {
@@ -105,6 +130,9 @@ pub fn build_ratios(
             key: key.clone(),
             points: Vec::new(),
             negative_root: NegativeRootCount::default(),
+            n_bins,
+            c2_source: c2i.to_vec(),
+            c2_sink: c2f.to_vec(),
         });
         for tau in 0..=tsep {
             let t = tau as usize;

@@ -1,75 +1,37 @@
 //! Correlated linear least squares on resampled data, shared by the plateau, summation and
-//! fixed-gap two-state fits: covariance frozen from the resamples (common practice,
-//! methods.md §2), then per resample the closed-form normal equations
-//! `beta = (X^T W X)^{-1} X^T W y`, `W = Cov^{-1}`.
+//! fixed-gap two-state fits: the covariance is estimated once from the resamples
+//! ([`crate::resample::covariance`]) and frozen (common practice, methods.md §2), then every
+//! resample is fitted in closed form ([`crate::fit::linear`]).
 
-use super::{FitQuality, ReIm, STAGE};
+use super::{FitQuality, ReIm, ReImFit, STAGE};
+use crate::fit::{linear, Weights};
+use crate::resample::covariance::{estimate_with_bins, CovarianceOptions};
 use crate::resample::Resampled;
 use crate::{Error, Result};
-use nalgebra::{DMatrix, DVector};
-use statrs::distribution::{ChiSquared, ContinuousCDF};
+use nalgebra::DMatrix;
 
-/// The inverse covariance of `points`, estimated from their resamples (diagonal only when
-/// `diagonal`). A singular or non-positive covariance is an error naming `what`.
-pub(crate) fn weights(points: &[Resampled], diagonal: bool, what: &str) -> Result<DMatrix<f64>> {
-    let n = points.len();
-    let mut cov = DMatrix::zeros(n, n);
-    for i in 0..n {
-        for j in 0..=i {
-            if diagonal && i != j {
-                continue;
-            }
-            let c = points[i].covariance(&points[j]);
-            cov[(i, j)] = c;
-            cov[(j, i)] = c;
-        }
-    }
-    let singular = || {
-        Error::analysis(
-            STAGE,
-            format!(
-                "{what}: the covariance of the {n} fitted points is singular or not positive \
-                 (too few resamples for the number of points, or exact data); use fewer points \
-                 or diagonal weights"
-            ),
-        )
-    };
-    if !cov.iter().all(|x| x.is_finite()) {
-        return Err(singular());
-    }
-    let chol = nalgebra::Cholesky::new(cov).ok_or_else(singular)?;
-    let w = chol.inverse();
-    if w.iter().all(|x| x.is_finite()) {
-        Ok(w)
-    } else {
-        Err(singular())
-    }
+/// How the covariance of fitted points is estimated.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct CovarianceSetup<'a> {
+    /// The user's covariance options.
+    pub options: &'a CovarianceOptions,
+    /// Number of independent bins the resamples were drawn from.
+    pub n_bins: usize,
 }
 
-/// Solve one weighted linear problem; returns the parameters and the chi-square.
-pub(crate) fn solve(
-    design: &DMatrix<f64>,
-    y: &DVector<f64>,
-    w: &DMatrix<f64>,
-) -> Option<(DVector<f64>, f64)> {
-    let xtw = design.transpose() * w;
-    let normal = &xtw * design;
-    let rhs = &xtw * y;
-    let beta = normal.cholesky()?.solve(&rhs);
-    let r = y - design * &beta;
-    let chi2 = (r.transpose() * w * &r)[(0, 0)];
-    beta.iter().all(|b| b.is_finite()).then_some((beta, chi2))
+fn wrap(what: &str) -> impl Fn(Error) -> Error + '_ {
+    move |e| Error::analysis(STAGE, format!("{what}: {e}"))
 }
 
-/// p-value of `chi2` with `dof` degrees of freedom (1 when `dof <= 0`).
-pub(crate) fn p_value(chi2: f64, dof: i64) -> f64 {
-    if dof <= 0 {
-        return 1.0;
-    }
-    match ChiSquared::new(dof as f64) {
-        Ok(d) => d.sf(chi2.max(0.0)),
-        Err(_) => 1.0,
-    }
+/// Weights for `points` from their frozen covariance, with the estimator's warnings.
+pub(crate) fn weights(
+    points: &[Resampled],
+    cov: CovarianceSetup<'_>,
+    what: &str,
+) -> Result<(Weights, Vec<String>)> {
+    let est = estimate_with_bins(points, cov.options, cov.n_bins).map_err(wrap(what))?;
+    let w = Weights::from_covariance(&est.matrix).map_err(wrap(what))?;
+    Ok((w, est.warnings))
 }
 
 /// Fit `points` with a design matrix that may change per resample (`design(None)` for the
@@ -78,48 +40,32 @@ pub(crate) fn p_value(chi2: f64, dof: i64) -> f64 {
 pub(crate) fn fit_resampled(
     points: &[Resampled],
     design: impl Fn(Option<usize>) -> DMatrix<f64>,
-    w: &DMatrix<f64>,
+    w: &Weights,
     what: &str,
 ) -> Result<(Vec<Resampled>, FitQuality)> {
-    let n = points.len();
-    let first = design(None);
-    let k = first.ncols();
-    if n < k {
-        return Err(Error::analysis(
-            STAGE,
-            format!("{what}: {n} points for {k} parameters; need at least {k}"),
-        ));
-    }
-    let fail = || {
-        Error::analysis(
-            STAGE,
-            format!("{what}: the normal equations are singular (parameters not determined by the points)"),
-        )
-    };
-    let y0 = DVector::from_iterator(n, points.iter().map(|p| p.central));
-    let (beta0, chi2) = solve(&first, &y0, w).ok_or_else(fail)?;
+    let y: Vec<f64> = points.iter().map(|p| p.central).collect();
+    let central = linear::fit(&design(None), &y, w, &[]).map_err(wrap(what))?;
     let n_samples = points.first().map_or(0, Resampled::len);
     let per_sample = (0..n_samples)
         .map(|s| {
-            let y = DVector::from_iterator(n, points.iter().map(|p| p.samples[s]));
-            solve(&design(Some(s)), &y, w).map(|(beta, _)| beta)
+            let y: Vec<f64> = points.iter().map(|p| p.samples[s]).collect();
+            linear::fit(&design(Some(s)), &y, w, &[]).map(|f| f.params)
         })
-        .collect::<Option<Vec<_>>>()
-        .ok_or_else(fail)?;
-    let samples = (0..k).map(|j| per_sample.iter().map(|b| b[j]).collect::<Vec<f64>>());
+        .collect::<Result<Vec<_>>>()
+        .map_err(wrap(what))?;
     let scheme = points[0].scheme;
-    let params = beta0
+    let params = central
+        .params
         .iter()
-        .zip(samples)
-        .map(|(&c, s)| Resampled::new(c, s, scheme))
+        .enumerate()
+        .map(|(j, &c)| Resampled::new(c, per_sample.iter().map(|b| b[j]).collect(), scheme))
         .collect();
-    let dof = n as i64 - k as i64;
     Ok((
         params,
         FitQuality {
-            chi2,
-            dof,
-            p_value: p_value(chi2, dof),
+            chi2: central.chi2,
+            dof: central.dof,
+            p_value: central.p_value,
         },
     ))
 }
@@ -127,39 +73,62 @@ pub(crate) fn fit_resampled(
 /// Fit the real and the imaginary parts of `points` separately with the same design (see
 /// [`fit_resampled`]). A part that is exactly zero on every point and sample (data without an
 /// imaginary part, say) gives exactly zero parameters without a fit: its covariance is zero.
+/// Returns the parameters and, in a [`ReImFit`], the first of them with the fit qualities and
+/// the covariance warnings.
 pub(crate) fn fit_re_im(
     points: &[&ReIm],
     design: impl Fn(Option<usize>) -> DMatrix<f64>,
-    diagonal: bool,
+    cov: CovarianceSetup<'_>,
     what: &str,
-) -> Result<(Vec<ReIm>, FitQuality, FitQuality)> {
-    let part = |values: Vec<Resampled>, name: &str| -> Result<(Vec<Resampled>, FitQuality)> {
+) -> Result<(Vec<ReIm>, ReImFit)> {
+    let mut warnings = Vec::new();
+    let mut part = |values: Vec<Resampled>, name: &str| -> Result<(Vec<Resampled>, FitQuality)> {
         let what = format!("{what} ({name} part)");
+        let k = design(None).ncols();
+        let n = values.len();
+        if n < k {
+            return Err(Error::analysis(
+                STAGE,
+                format!("{what}: {n} points for {k} parameters"),
+            ));
+        }
         let zero = values
             .iter()
             .all(|v| v.central == 0.0 && v.samples.iter().all(|&x| x == 0.0));
-        let k = design(None).ncols();
-        if zero && values.len() >= k {
-            let dof = values.len() as i64 - k as i64;
+        if zero {
+            let dof = n as i64 - k as i64;
             let z = values[0].map(|_| 0.0);
             return Ok((
                 vec![z; k],
                 FitQuality {
                     chi2: 0.0,
                     dof,
-                    p_value: 1.0,
+                    p_value: crate::fit::p_value(0.0, dof),
                 },
             ));
         }
-        let w = weights(&values, diagonal, &what)?;
+        let (w, warn) = weights(&values, cov, &what)?;
+        warnings.extend(warn.into_iter().map(|m| format!("{what}: {m}")));
         fit_resampled(&values, &design, &w, &what)
     };
-    let (re, q_re) = part(points.iter().map(|p| p.re.clone()).collect(), "real")?;
-    let (im, q_im) = part(points.iter().map(|p| p.im.clone()).collect(), "imaginary")?;
-    let params = re
+    let (re, quality_re) = part(points.iter().map(|p| p.re.clone()).collect(), "real")?;
+    let (im, quality_im) = part(points.iter().map(|p| p.im.clone()).collect(), "imaginary")?;
+    let params: Vec<ReIm> = re
         .into_iter()
         .zip(im)
         .map(|(re, im)| ReIm { re, im })
         .collect();
-    Ok((params, q_re, q_im))
+    let value = params
+        .first()
+        .cloned()
+        .ok_or_else(|| Error::analysis(STAGE, format!("{what}: the fit has no parameters")))?;
+    Ok((
+        params,
+        ReImFit {
+            value,
+            quality_re,
+            quality_im,
+            warnings,
+        },
+    ))
 }

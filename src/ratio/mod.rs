@@ -39,6 +39,8 @@ pub mod renorm;
 pub mod settings;
 pub mod summation;
 pub mod two_state;
+mod two_state_float;
+mod two_state_joint;
 
 pub use analyse::{analyse_all, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
@@ -150,7 +152,8 @@ pub struct FitQuality {
     pub chi2: f64,
     /// Degrees of freedom (points minus parameters).
     pub dof: i64,
-    /// p-value from the chi-square distribution with `dof` degrees of freedom (1 when `dof = 0`).
+    /// p-value from the chi-square distribution with `dof` degrees of freedom (NaN, i.e.
+    /// undefined, when `dof <= 0`, as in [`crate::fit::p_value`]).
     pub p_value: f64,
 }
 
@@ -163,4 +166,7 @@ pub struct ReImFit {
     pub quality_re: FitQuality,
     /// Fit quality of the imaginary part.
     pub quality_im: FitQuality,
+    /// Warnings of the covariance estimates (too few resamples for the number of points,
+    /// poor conditioning), one line each.
+    pub warnings: Vec<String>,
 }

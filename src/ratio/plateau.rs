@@ -38,23 +38,15 @@ pub fn plateau(ratio: &ChannelRatio, tsep: u32, settings: &RatioSettings) -> Res
     let values: Vec<_> = points.iter().map(|p| &p.value).collect();
     let n = values.len();
     let what = format!("plateau of channel {}, tsep {tsep}", ratio.key);
-    let (params, quality_re, quality_im) = fit_re_im(
+    let (_, fit) = fit_re_im(
         &values,
         |_| DMatrix::from_element(n, 1, 1.0),
-        settings.diagonal_covariance,
+        ratio.covariance(settings),
         &what,
     )?;
-    let value = params
-        .into_iter()
-        .next()
-        .ok_or_else(|| Error::analysis(STAGE, format!("{what}: the fit returned no parameter")))?;
     Ok(PlateauFit {
         tsep,
         tau_range: (first, last),
-        fit: ReImFit {
-            value,
-            quality_re,
-            quality_im,
-        },
+        fit,
     })
 }

@@ -1,6 +1,7 @@
 //! User settings of the ratio stage, as read from the pipeline file (serde + JSON Schema),
 //! with the defaults stated beside each field.
 
+use crate::resample::covariance::CovarianceOptions;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
@@ -32,6 +33,15 @@ pub enum TwoStateVariant {
         /// Multiplier of the two-point error used as the prior width (default 1).
         #[serde(default = "one")]
         prior_width_factor: f64,
+    },
+    /// Joint fit of the ratio and the two-point functions at the source and sink momenta
+    /// (`t_min <= t <= t_max`) with shared energies, gaps and amplitude ratios; non-linear,
+    /// no priors.
+    JointWithTwoPoint {
+        /// First two-point time slice fitted.
+        t_min: u32,
+        /// Last two-point time slice fitted.
+        t_max: u32,
     },
 }
 
@@ -75,8 +85,11 @@ pub struct RatioSettings {
     pub negative_root: NegativeRootPolicy,
     /// Which method feeds the final result (default: two-state).
     pub final_method: FinalMethod,
-    /// Use only the diagonal of the covariance in fits (default false: fully correlated).
-    pub diagonal_covariance: bool,
+    /// Covariance of the fitted points, estimated once from the resamples and frozen
+    /// (default: full). YAML as in the resample stage: `kind: full | diagonal | shrinkage` or
+    /// `kind: {shrinkage: {target: diagonal|identity, intensity: 0..1}}`, and `eigen_cut`.
+    #[schemars(with = "serde_json::Value")]
+    pub covariance: CovarianceOptions,
 }
 
 impl Default for RatioSettings {
@@ -90,7 +103,7 @@ impl Default for RatioSettings {
             two_point_smear: None,
             negative_root: NegativeRootPolicy::default(),
             final_method: FinalMethod::default(),
-            diagonal_covariance: false,
+            covariance: CovarianceOptions::default(),
         }
     }
 }

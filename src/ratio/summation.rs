@@ -24,8 +24,8 @@ pub struct SummationFit {
     pub intercept: ReIm,
 }
 
-/// The summed ratio at every `tsep >= settings.summation_tsep_min` that has points inside the
-/// `tau_cut` window, then the line fit. Fewer than two separations is an error.
+/// The summed ratio at every `tsep >= settings.summation_tsep_min` whose `tau_cut` window is
+/// complete (every `tau` present), then the line fit. Fewer than two separations is an error.
 pub fn summation(ratio: &ChannelRatio, settings: &RatioSettings) -> Result<SummationFit> {
     let mut tseps = Vec::new();
     let mut sums = Vec::new();
@@ -34,7 +34,10 @@ pub fn summation(ratio: &ChannelRatio, settings: &RatioSettings) -> Result<Summa
             continue;
         }
         let points = ratio.fit_points(tsep, settings.tau_cut);
-        let Some(first) = points.first() else {
+        // A window with a dropped point (negative-root policy) would sum fewer terms and
+        // break the linear behaviour in tsep: such a separation is left out.
+        let full = (tsep + 1).saturating_sub(2 * settings.tau_cut) as usize;
+        let Some(first) = points.first().filter(|_| points.len() == full) else {
             continue;
         };
         let mut re = first.value.re.clone();
@@ -51,7 +54,7 @@ pub fn summation(ratio: &ChannelRatio, settings: &RatioSettings) -> Result<Summa
             STAGE,
             format!(
                 "summation for channel {}: {} usable source-sink separation(s) ({:?}) with \
-                 tsep >= {} and points inside tau_cut = {}; the line fit needs at least two",
+                 tsep >= {} and a complete window for tau_cut = {}; the line fit needs at least two",
                 ratio.key,
                 tseps.len(),
                 tseps,
@@ -64,24 +67,16 @@ pub fn summation(ratio: &ChannelRatio, settings: &RatioSettings) -> Result<Summa
     let design = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { tseps[i] as f64 });
     let refs: Vec<&ReIm> = sums.iter().collect();
     let what = format!("summation for channel {}", ratio.key);
-    let (params, quality_re, quality_im) = fit_re_im(
-        &refs,
-        |_| design.clone(),
-        settings.diagonal_covariance,
-        &what,
-    )?;
+    let (params, mut slope) =
+        fit_re_im(&refs, |_| design.clone(), ratio.covariance(settings), &what)?;
     let mut params = params.into_iter();
     let missing = || Error::analysis(STAGE, format!("{what}: the line fit returned no slope"));
     let intercept = params.next().ok_or_else(missing)?;
-    let slope = params.next().ok_or_else(missing)?;
+    slope.value = params.next().ok_or_else(missing)?;
     Ok(SummationFit {
         tseps,
         sums,
-        slope: ReImFit {
-            value: slope,
-            quality_re,
-            quality_im,
-        },
+        slope,
         intercept,
     })
 }

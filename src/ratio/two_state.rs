@@ -15,7 +15,7 @@
 //! With `a` and `Delta` taken per resample from the two-point stage, the fit is linear in
 //! `(M, c_i, c_f, c_if)` and solved in closed form per resample with the covariance frozen.
 //! For `p_f = p_i` with identical interpolators `c_i = c_f` is enforced (one parameter).
-//! The floating-gap variant lives in [`super::two_state_float`].
+//! The floating-gap variant lives in the private module `two_state_float`.
 
 use super::lsq::fit_re_im;
 use super::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
@@ -194,15 +194,14 @@ pub fn two_state_fixed(
     let setup = Setup::new(ratio, states, settings)?;
     let what = format!("two-state fit of channel {}", ratio.key);
     let values: Vec<&ReIm> = setup.points.iter().map(|p| &p.value).collect();
-    let (params, quality_re, quality_im) = fit_re_im(
+    let (params, m) = fit_re_im(
         &values,
         |s| setup.design(setup.gaps(s)),
-        settings.diagonal_covariance,
+        ratio.covariance(settings),
         &what,
     )?;
-    let mut it = params.into_iter();
+    let mut it = params.into_iter().skip(1);
     let missing = || Error::analysis(STAGE, format!("{what}: missing parameters"));
-    let m = it.next().ok_or_else(missing)?;
     let c_i = it.next().ok_or_else(missing)?;
     let c_f = if setup.symmetric {
         c_i.clone()
@@ -211,11 +210,7 @@ pub fn two_state_fixed(
     };
     let c_if = it.next().ok_or_else(missing)?;
     Ok(TwoStateFit {
-        m: ReImFit {
-            value: m,
-            quality_re,
-            quality_im,
-        },
+        m,
         c_i,
         c_f,
         c_if,
@@ -234,9 +229,11 @@ pub fn two_state(
 ) -> Result<TwoStateFit> {
     match settings.two_state {
         super::TwoStateVariant::FixedGaps => two_state_fixed(ratio, states, settings),
-        super::TwoStateVariant::FloatingGaps { .. } => Err(Error::analysis(
-            STAGE,
-            "floating gaps: not available in this build",
-        )),
+        super::TwoStateVariant::FloatingGaps { prior_width_factor } => {
+            super::two_state_float::two_state_floating(ratio, states, settings, prior_width_factor)
+        }
+        super::TwoStateVariant::JointWithTwoPoint { t_min, t_max } => {
+            super::two_state_joint::two_state_joint(ratio, states, settings, t_min, t_max)
+        }
     }
 }

@@ -207,6 +207,20 @@ pub fn write_json(table: &Table, path: &Path) -> Result<()> {
         .map_err(|e| Error::io(path, e))
 }
 
+/// Write `table` as `<dir>/<name>.csv` and `<dir>/<name>.json`. The name must be a plain
+/// file stem (no path separators, not empty, not starting with a dot).
+pub fn write_table_files(table: &Table, dir: &Path) -> Result<()> {
+    let stem = &table.name;
+    if stem.is_empty() || stem.starts_with('.') || stem.contains(['/', '\\']) {
+        return Err(Error::analysis(
+            "report",
+            format!("table name `{stem}` cannot be used as a file name"),
+        ));
+    }
+    write_csv(table, &dir.join(format!("{stem}.csv")))?;
+    write_json(table, &dir.join(format!("{stem}.json")))
+}
+
 /// Render `table` as aligned plain text for a terminal: a caption line, a header, a rule,
 /// at most `max_rows` rows (then a line saying how many were left out). Numbers are
 /// right-aligned with 6 significant digits, text left-aligned.
@@ -397,6 +411,21 @@ mod tests {
         assert_eq!(lines[4], "p=001    12       NaN");
         assert_eq!(lines[5], "... 1 more rows (see masses.csv)");
         assert_eq!(lines.len(), 6);
+    }
+
+    #[test]
+    fn table_files_need_a_plain_name() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut t = Table::new("../escape", &["a"]);
+        assert!(write_table_files(&t, dir.path()).is_err());
+        t.name = "fits".into();
+        t.push_row(vec![1.5.into()]).unwrap();
+        write_table_files(&t, dir.path()).unwrap();
+        assert_eq!(
+            std::fs::read_to_string(dir.path().join("fits.csv")).unwrap(),
+            "a\n1.5\n"
+        );
+        assert!(dir.path().join("fits.json").exists());
     }
 
     #[test]

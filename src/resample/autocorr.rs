@@ -1,19 +1,20 @@
 //! Autocorrelation in Monte Carlo time: the integrated autocorrelation time by the Gamma
-//! method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143), and the
+//! method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143; equation
+//! numbers are not quoted because they were not checked), and the
 //! error of the mean versus bin size (a binning study).
 //!
 //! For a chain `x_1..x_N` with mean `x̄`:
 //! - autocorrelation function `Γ(t) = 1/(N-t) Σ_{i=1}^{N-t} (x_i - x̄)(x_{i+t} - x̄)` and its
-//!   normalised form `ρ(t) = Γ(t)/Γ(0)` (Wolff eq. 31);
+//!   normalised form `ρ(t) = Γ(t)/Γ(0)` (Wolff 2004);
 //! - `τ_int(W) = 1/2 + Σ_{t=1}^{W} ρ(t)`;
-//! - automatic window (Wolff eq. 52): with `τ(W) = S / ln((2τ_int(W)+1)/(2τ_int(W)-1))`
+//! - automatic window (Wolff 2004): with `τ(W) = S / ln((2τ_int(W)+1)/(2τ_int(W)-1))`
 //!   (a tiny `τ` when `τ_int(W) <= 1/2`), `W` is the first window where
 //!   `g(W) = exp(-W/τ(W)) - τ(W)/sqrt(W N)` becomes negative; `S` (default 1.5) measures how
 //!   long the slowest mode is assumed to be relative to `τ_int`;
-//! - bias correction (Wolff eq. 49): `Γ(t) += C_F/N` with `C_F = Γ(0) + 2 Σ_{t=1}^{W} Γ(t)`,
+//! - bias correction (Wolff 2004): `Γ(t) += C_F/N` with `C_F = Γ(0) + 2 Σ_{t=1}^{W} Γ(t)`,
 //!   after which `C_F`, `τ_int = C_F / (2Γ(0))` and the error of the mean `sqrt(C_F/N)` are
 //!   recomputed;
-//! - error of `τ_int` (Wolff eq. 42, Madras–Sokal): `τ_int sqrt(4 (W + 1/2 - τ_int) / N)`.
+//! - error of `τ_int` (Wolff 2004, after Madras & Sokal): `τ_int sqrt(4 (W + 1/2 - τ_int) / N)`.
 //!
 //! An AR(1) chain `x_i = ρ x_{i-1} + ε_i` has `ρ(t) = ρ^t` and `τ_int = (1+ρ)/(2(1-ρ))`.
 //!
@@ -80,34 +81,41 @@ fn check_chain(x: &[f64]) -> Result<f64> {
     Ok(stable_mean(x))
 }
 
-/// `Γ(t)` for `t = 0..=max_lag` with the `1/(N-t)` normalisation.
-fn gamma(x: &[f64], mean: f64, max_lag: usize) -> Vec<f64> {
-    let n = x.len();
-    let dev: Vec<f64> = x.iter().map(|v| v - mean).collect();
-    (0..=max_lag.min(n - 1))
-        .map(|t| {
-            let s: f64 = dev[..n - t].iter().zip(&dev[t..]).map(|(a, b)| a * b).sum();
-            s / (n - t) as f64
-        })
-        .collect()
+/// Deviations from the mean, and `Γ(t)` from them with the `1/(N-t)` normalisation.
+fn deviations(x: &[f64], mean: f64) -> Vec<f64> {
+    x.iter().map(|v| v - mean).collect()
+}
+
+fn gamma_at(dev: &[f64], t: usize) -> f64 {
+    let n = dev.len();
+    let s: f64 = dev[..n - t].iter().zip(&dev[t..]).map(|(a, b)| a * b).sum();
+    s / (n - t) as f64
 }
 
 /// Normalised autocorrelation function `ρ(t) = Γ(t)/Γ(0)`, `t = 0..=max_lag` (capped at
 /// `N-1`), with Wolff's `1/(N-t)` normalisation of `Γ`. Errors for a chain shorter than
 /// [`MIN_LENGTH`], with non-finite values, or constant.
 pub fn rho(x: &[f64], max_lag: usize) -> Result<Vec<f64>> {
-    let mean = check_chain(x)?;
-    let g = gamma(x, mean, max_lag);
-    if g[0] <= 0.0 {
+    let dev = deviations(x, check_chain(x)?);
+    let g0 = gamma_at(&dev, 0);
+    if g0 <= 0.0 {
         return Err(constant_chain());
     }
-    Ok(g.iter().map(|v| v / g[0]).collect())
+    Ok((0..=max_lag.min(x.len() - 1))
+        .map(|t| gamma_at(&dev, t) / g0)
+        .collect())
 }
 
 /// The sample autocorrelation coefficient at `lag` in the NIST / Box–Jenkins convention,
-/// `Σ_{i>lag}(y_i-ȳ)(y_{i-lag}-ȳ) / Σ_i(y_i-ȳ)²`. Errors as [`rho`], and for `lag >= N`.
+/// `Σ_{i>lag}(y_i-ȳ)(y_{i-lag}-ȳ) / Σ_i(y_i-ȳ)²`. Errors for non-finite values, a constant
+/// chain, or `lag >= N`.
 pub fn sample_autocorrelation(x: &[f64], lag: usize) -> Result<f64> {
-    let mean = check_chain(x)?;
+    if let Some(i) = x.iter().position(|v| !v.is_finite()) {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!("value {i} of the chain is not finite ({})", x[i]),
+        ));
+    }
     if lag >= x.len() {
         return Err(Error::analysis(
             "autocorrelation",
@@ -117,7 +125,7 @@ pub fn sample_autocorrelation(x: &[f64], lag: usize) -> Result<f64> {
             ),
         ));
     }
-    let dev: Vec<f64> = x.iter().map(|v| v - mean).collect();
+    let dev = deviations(x, stable_mean(x));
     let den: f64 = dev.iter().map(|d| d * d).sum();
     if den <= 0.0 {
         return Err(constant_chain());
@@ -149,7 +157,9 @@ pub fn gamma_method(x: &[f64], s: f64) -> Result<AutocorrResult> {
     let n = x.len();
     let nf = n as f64;
     let w_max = n / 2;
-    let mut g = gamma(x, mean, w_max);
+    let dev = deviations(x, mean);
+    // Γ(t) is computed lag by lag, only up to the window (O(N W), not O(N²)).
+    let mut g = vec![gamma_at(&dev, 0)];
     if g[0] <= 0.0 {
         return Err(constant_chain());
     }
@@ -157,7 +167,9 @@ pub fn gamma_method(x: &[f64], s: f64) -> Result<AutocorrResult> {
     let mut warnings = Vec::new();
     let mut window = None;
     let mut tau_int = 0.5;
-    for (w, gw) in g.iter().enumerate().skip(1) {
+    for w in 1..=w_max {
+        let gw = gamma_at(&dev, w);
+        g.push(gw);
         tau_int += gw / g[0];
         let tau = if tau_int > 0.5 {
             s / ((2.0 * tau_int + 1.0) / (2.0 * tau_int - 1.0)).ln()

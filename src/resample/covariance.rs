@@ -43,6 +43,9 @@
 use super::value::{Resampled, Scheme};
 use crate::{Error, Result};
 use nalgebra::{DMatrix, SymmetricEigen};
+use schemars::gen::SchemaGenerator;
+use schemars::schema::{InstanceType, Schema, SchemaObject};
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 /// Condition number of the correlation matrix above which a warning is given.
@@ -52,7 +55,7 @@ pub const WARN_CONDITION: f64 = 1e8;
 pub const MAX_CONDITION: f64 = 1e13;
 
 /// What a shrinkage estimate shrinks toward.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum ShrinkageTarget {
     /// The diagonal of the covariance: the correlation matrix is shrunk toward the identity.
@@ -64,8 +67,8 @@ pub enum ShrinkageTarget {
 
 /// Which covariance to use. In YAML: `full`, `diagonal`, `shrinkage` (diagonal target,
 /// Ledoit–Wolf intensity) or `{shrinkage: {target: identity, intensity: 0.3}}`.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize)]
-#[serde(rename_all = "lowercase", try_from = "KindRepr")]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Deserialize)]
+#[serde(try_from = "KindRepr")]
 pub enum CovarianceKind {
     /// The full covariance of the resamples.
     #[default]
@@ -81,28 +84,73 @@ pub enum CovarianceKind {
     },
 }
 
-#[derive(Deserialize)]
+/// The YAML forms of [`CovarianceKind`]: a bare name, or `{shrinkage: {...}}`.
+#[derive(Deserialize, JsonSchema)]
 #[serde(untagged)]
 enum KindRepr {
+    /// `full`, `diagonal` or `shrinkage` (diagonal target, Ledoit–Wolf intensity).
+    #[schemars(schema_with = "kind_name_schema")]
     Name(String),
+    /// `{shrinkage: {target: diagonal|identity, intensity: 0..1}}`.
     Tagged(TaggedKind),
 }
 
-#[derive(Deserialize)]
+/// A kind with settings.
+#[derive(Deserialize, JsonSchema)]
 #[serde(rename_all = "lowercase")]
 enum TaggedKind {
+    /// The full covariance.
     Full,
+    /// Only the variances.
     Diagonal,
+    /// Shrinkage with explicit settings.
     Shrinkage(ShrinkageSpec),
 }
 
-#[derive(Deserialize)]
+/// Settings of a shrinkage covariance.
+#[derive(Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 struct ShrinkageSpec {
+    /// What to shrink toward (default `diagonal`).
     #[serde(default)]
     target: ShrinkageTarget,
+    /// Fixed intensity from 0 to 1; omit for the Ledoit–Wolf optimum.
     #[serde(default)]
     intensity: Option<f64>,
+}
+
+fn kind_name_schema(_: &mut SchemaGenerator) -> Schema {
+    SchemaObject {
+        instance_type: Some(InstanceType::String.into()),
+        enum_values: Some(vec!["full".into(), "diagonal".into(), "shrinkage".into()]),
+        ..Default::default()
+    }
+    .into()
+}
+
+/// Written in the form it is read: `full`, `diagonal`, `{shrinkage: {target, intensity}}`.
+impl Serialize for CovarianceKind {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        match *self {
+            CovarianceKind::Full => s.serialize_str("full"),
+            CovarianceKind::Diagonal => s.serialize_str("diagonal"),
+            CovarianceKind::Shrinkage { target, intensity } => {
+                let mut m = s.serialize_map(Some(1))?;
+                m.serialize_entry("shrinkage", &ShrinkageSpec { target, intensity })?;
+                m.end()
+            }
+        }
+    }
+}
+
+impl JsonSchema for CovarianceKind {
+    fn schema_name() -> String {
+        "CovarianceKind".to_string()
+    }
+    fn json_schema(gen: &mut SchemaGenerator) -> Schema {
+        KindRepr::json_schema(gen)
+    }
 }
 
 impl TryFrom<KindRepr> for CovarianceKind {
@@ -134,7 +182,7 @@ impl TryFrom<KindRepr> for CovarianceKind {
 }
 
 /// How to estimate a covariance (a pipeline YAML block).
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(default, deny_unknown_fields)]
 pub struct CovarianceOptions {
     /// Full, diagonal or shrinkage.
@@ -321,10 +369,14 @@ pub fn estimate_with_bins(
             Some(h) => format!("biased high by about {:.2} times", 1.0 / h),
             None => "not even unbiasedly estimable (N <= d + 2)".to_string(),
         };
+        let advice = if shrinkage.is_some() {
+            "shrinkage reduces this bias by an amount not quantified here"
+        } else {
+            "consider shrinkage, a diagonal covariance or fewer points"
+        };
         warnings.push(format!(
-            "{n_bins} independent samples for {d} correlated values: the inverse covariance is \
-             {bias} (Hartlap et al. 2007); consider shrinkage, a diagonal covariance or fewer \
-             points"
+            "{n_bins} independent samples for {d} correlated values: the sample covariance's \
+             inverse is {bias} (Hartlap et al. 2007); {advice}"
         ));
     }
     Ok(CovarianceEstimate {

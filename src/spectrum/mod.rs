@@ -1,1 +1,415 @@
-//! Placeholder; filled by the spectrum work.
+//! Two-point spectroscopy (methods.md §2): energies and overlaps at every momentum from
+//! correlated multi-exponential fits with Gaussian priors (Lepage et al., Nucl. Phys. Proc.
+//! Suppl. 106 (2002) 12), the fit window chosen by model averaging (Jay & Neil, Phys. Rev. D
+//! 103 (2021) 114502), effective masses, the dispersion check and the variational method
+//! (Blossier et al., JHEP 04 (2009) 094).
+//!
+//! # Stage output (consumed by the ratio and kinematics stages)
+//!
+//! [`run`] returns a [`SpectrumResult`]: one [`MomentumSpectrum`] per integer momentum plus
+//! the mass (ground-state energy at zero momentum), the dispersion table and warnings. Every
+//! number is a [`Resampled`] on the same resamples as the input plan, so later stages combine
+//! them sample by sample. In a [`MomentumSpectrum`]:
+//!
+//! - `energies[0]`, `amplitudes[0]`: the model-averaged ground state (or, at non-zero
+//!   momentum, the dispersion energy when the settings ask for it); `energies[n >= 1]`,
+//!   `amplitudes[n >= 1]`: the excited states of the highest-weight fit.
+//! - `chosen`: the highest-weight fit (window, states, chi2/dof, p, its own energies and
+//!   amplitudes); `excited`: the highest-weight fit with at least two states, the source of
+//!   [`MomentumSpectrum::gap`] and [`MomentumSpectrum::amplitude_ratio`] (both from one fit, so
+//!   `a = A1/A0` and `Delta = E1 - E0` are mutually consistent, as the two-state ratio fit
+//!   needs).
+//! - `average`: the full model-average table (every `t_min` × number of states with weights).
+//!
+//! The amplitudes are those of `C(t) = sum_n A_n e^{-E_n t}` (periodic form: times
+//! `e^{-E t} + e^{-E (T - t)}`), i.e. `|Z_n|^2 / (2 E_n)` in the usual normalisation.
+
+pub mod average;
+pub mod dispersion;
+pub mod effective;
+pub mod gevp;
+pub mod model;
+pub mod settings;
+mod window;
+
+pub use average::{AverageRow, ModelAverage};
+pub use dispersion::DispersionRow;
+pub use settings::{EnergySource, GevpSettings, IntRange, PriorSettings, SpectrumSettings};
+pub use window::WindowFit;
+
+use crate::data::{Momentum, TwoPointData};
+use crate::error::{Error, Result};
+use crate::fit::Weights;
+use crate::resample::{covariance, ResamplePlan, Resampled};
+use effective::{effective_mass, EffectiveMassKind};
+use model::{Form, MAX_STATES};
+use serde::Serialize;
+use std::collections::BTreeMap;
+use window::{fit_window, WindowSpec};
+
+/// Summary of one fit singled out from the model average.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ChosenFit {
+    /// First time slice.
+    pub t_min: usize,
+    /// Last time slice.
+    pub t_max: usize,
+    /// Number of states.
+    pub n_states: usize,
+    /// chi2 / dof of the central fit.
+    pub chi2_per_dof: f64,
+    /// p-value of the central fit.
+    pub p_value: f64,
+    /// Model weight.
+    pub weight: f64,
+    /// Energies of this fit.
+    pub energies: Vec<Resampled>,
+    /// Amplitudes of this fit.
+    pub amplitudes: Vec<Resampled>,
+}
+
+/// The spectrum at one momentum.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct MomentumSpectrum {
+    /// Integer momentum (units of `2 pi / L`).
+    pub momentum: Momentum,
+    /// Energies, ground first (see the module docs for where each comes from).
+    pub energies: Vec<Resampled>,
+    /// Amplitudes, ground first.
+    pub amplitudes: Vec<Resampled>,
+    /// The highest-weight fit.
+    pub chosen: ChosenFit,
+    /// The highest-weight fit with at least two states, if any was made.
+    pub excited: Option<ChosenFit>,
+    /// The model average and its table.
+    pub average: ModelAverage,
+    /// Effective mass `m(t)` (log form, or cosh form for periodic data); `None` where
+    /// undefined.
+    pub effective_mass: Vec<Option<Resampled>>,
+}
+
+impl MomentumSpectrum {
+    /// Ground-state energy.
+    pub fn ground_energy(&self) -> &Resampled {
+        &self.energies[0]
+    }
+
+    /// `E_1 - E_0` of the best multi-state fit.
+    pub fn gap(&self) -> Option<Resampled> {
+        let f = self.excited.as_ref()?;
+        Some(&f.energies[1] - &f.energies[0])
+    }
+
+    /// `A_1 / A_0` of the best multi-state fit.
+    pub fn amplitude_ratio(&self) -> Option<Resampled> {
+        let f = self.excited.as_ref()?;
+        Some(&f.amplitudes[1] / &f.amplitudes[0])
+    }
+}
+
+/// The output of the spectrum stage.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct SpectrumResult {
+    /// Spectrum at every momentum in the data.
+    pub per_momentum: BTreeMap<Momentum, MomentumSpectrum>,
+    /// Ground-state energy at zero momentum (model-averaged), when the data have `p = 0`.
+    pub mass: Option<Resampled>,
+    /// Dispersion check at every non-zero momentum (needs `l_extent` and `p = 0`).
+    pub dispersion: Vec<DispersionRow>,
+    /// Variational analysis per momentum (only when `gevp` is set in the settings).
+    pub gevp: BTreeMap<Momentum, gevp::GevpSpectrum>,
+    /// Everything a user should know (dropped windows, failed resample fits, small samples).
+    pub warnings: Vec<String>,
+}
+
+fn label(p: Momentum) -> String {
+    format!("momentum ({},{},{})", p[0], p[1], p[2])
+}
+
+fn check_settings(s: &SpectrumSettings) -> Result<()> {
+    if s.t_min.from > s.t_min.to {
+        return Err(Error::config(format!(
+            "spectrum.t_min: from {} is after to {}",
+            s.t_min.from, s.t_min.to
+        )));
+    }
+    if s.n_states.from < 1 || s.n_states.to > MAX_STATES || s.n_states.from > s.n_states.to {
+        return Err(Error::config(format!(
+            "spectrum.n_states: {}..={} is not within 1..={MAX_STATES}",
+            s.n_states.from, s.n_states.to
+        )));
+    }
+    Ok(())
+}
+
+/// The correlator channel per momentum, honouring `settings.smear`.
+fn select_channels<'a>(
+    data: &'a TwoPointData,
+    smear: Option<&str>,
+) -> Result<BTreeMap<Momentum, &'a crate::data::Series>> {
+    let mut out = BTreeMap::new();
+    for (key, series) in &data.channels {
+        if smear.is_some() && key.smear.as_deref() != smear {
+            continue;
+        }
+        if out.insert(key.momentum, series).is_some() {
+            return Err(Error::config(format!(
+                "spectrum: several two-point channels at {}; set `smear` to the interpolator to fit",
+                label(key.momentum)
+            )));
+        }
+    }
+    if out.is_empty() {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "no two-point channels{}",
+                smear.map_or(String::new(), |s| format!(" with smear `{s}`"))
+            ),
+        ));
+    }
+    Ok(out)
+}
+
+/// Resample every time slice of a series with `plan`.
+pub fn resample_series(
+    series: &crate::data::Series,
+    plan: &ResamplePlan,
+) -> Result<Vec<Resampled>> {
+    if series.n_cfg != plan.n_bins() {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "the resample plan expects {} bins but the two-point data have {}",
+                plan.n_bins(),
+                series.n_cfg
+            ),
+        ));
+    }
+    Ok((0..series.n_t)
+        .map(|t| plan.mean(series.re_at(t)))
+        .collect())
+}
+
+/// Fit one resampled correlator: every `t_min` in range times every number of states, the
+/// model average, the chosen fits and the effective mass.
+pub fn fit_correlator(
+    momentum: Momentum,
+    corr: &[Resampled],
+    settings: &SpectrumSettings,
+    warnings: &mut Vec<String>,
+) -> Result<MomentumSpectrum> {
+    check_settings(settings)?;
+    let name = label(momentum);
+    let n_t = corr.len();
+    if n_t < 3 {
+        return Err(Error::analysis(
+            "spectrum",
+            format!("{name}: {n_t} time slices; a two-point fit needs at least 3"),
+        ));
+    }
+    if let Some(t) = corr.iter().position(|c| !c.is_finite()) {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "{name}: the correlator is not finite at t = {t} (central value or a resample)"
+            ),
+        ));
+    }
+    let t_extent = settings.t_extent.unwrap_or(n_t) as f64;
+    let form = if settings.periodic {
+        Form::Periodic { t_extent }
+    } else {
+        Form::Exponential
+    };
+    let default_t_max = if settings.periodic {
+        n_t / 2
+    } else {
+        n_t.saturating_sub(1)
+    };
+    let t_max = settings
+        .t_max
+        .unwrap_or(default_t_max)
+        .min(n_t.saturating_sub(1));
+    if let Some(t) = (settings.t_min.from..=t_max).find(|&t| corr[t].central <= 0.0) {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "{name}: the correlator is {} at t = {t}, inside the fit range {}..={t_max}; \
+                 expected positive values (lower t_max or check the sign convention)",
+                corr[t].central, settings.t_min.from
+            ),
+        ));
+    }
+    let spec = WindowSpec {
+        corr,
+        form,
+        priors: &settings.priors,
+        fit: &settings.fit,
+        label: &name,
+    };
+    let n_samples = corr.first().map_or(0, Resampled::len);
+    let widest = (t_max + 1).saturating_sub(settings.t_min.from);
+    if n_samples < 5 * widest {
+        warnings.push(format!(
+            "{name}: {n_samples} resamples for a covariance of up to {widest} points; its inverse \
+             is biased (Hartlap et al. 2007); consider fewer points or shrinkage"
+        ));
+    }
+    let mut fits = Vec::new();
+    for t_min in settings.t_min.values().filter(|&t| t < t_max) {
+        let window = &corr[t_min..=t_max];
+        let in_window = |e: Error| {
+            Error::analysis(
+                "spectrum",
+                format!("{name}, window [{t_min}, {t_max}]: {e}"),
+            )
+        };
+        let cov = covariance::estimate(window, &settings.covariance).map_err(in_window)?;
+        for w in &cov.warnings {
+            warnings.push(format!("{name}, window [{t_min}, {t_max}]: {w}"));
+        }
+        let w = Weights::from_covariance(&cov.matrix).map_err(in_window)?;
+        for n_states in settings.n_states.values() {
+            match fit_window(&spec, t_min, t_max, n_states, &w) {
+                Ok(f) => {
+                    if f.failed_samples > 0 {
+                        warnings.push(format!(
+                            "{name}, window [{t_min}, {t_max}], {n_states} states: {} of {n_samples} resample fits did not converge",
+                            f.failed_samples
+                        ));
+                    }
+                    fits.push(f);
+                }
+                Err(e) => warnings.push(format!("dropped from the model average: {e}")),
+            }
+        }
+    }
+    if fits.is_empty() {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "{name}: no fit in t_min {}..={} with t_max {t_max} and {}..={} states succeeded \
+                 (see warnings); widen the window or fit fewer states",
+                settings.t_min.from,
+                settings.t_min.to,
+                settings.n_states.from,
+                settings.n_states.to
+            ),
+        ));
+    }
+    let average = average::model_average(&fits, settings.t_min.from);
+    let weights: Vec<f64> = average.table.iter().map(|r| r.weight).collect();
+    let best = |min_states: usize| {
+        fits.iter()
+            .zip(&weights)
+            .filter(|(f, _)| f.n_states >= min_states)
+            .max_by(|a, b| a.1.total_cmp(b.1))
+            .map(|(f, &weight)| ChosenFit {
+                t_min: f.t_min,
+                t_max: f.t_max,
+                n_states: f.n_states,
+                chi2_per_dof: f.central.chi2_per_dof(),
+                p_value: f.central.p_value,
+                weight,
+                energies: f.energies.clone(),
+                amplitudes: f.amplitudes.clone(),
+            })
+    };
+    let chosen = best(1).ok_or_else(|| Error::analysis("spectrum", format!("{name}: no fit")))?;
+    let excited = best(2);
+    let mut energies = chosen.energies.clone();
+    let mut amplitudes = chosen.amplitudes.clone();
+    energies[0] = average.energy.clone();
+    amplitudes[0] = average.amplitude.clone();
+    let kind = match form {
+        Form::Exponential => EffectiveMassKind::Log,
+        Form::Periodic { t_extent } => EffectiveMassKind::Cosh { t_extent },
+    };
+    Ok(MomentumSpectrum {
+        momentum,
+        energies,
+        amplitudes,
+        chosen,
+        excited,
+        average,
+        effective_mass: effective_mass(corr, kind),
+    })
+}
+
+/// The spectrum stage: fit every momentum of `data` (already binned) on the resamples of
+/// `plan`, then the dispersion check and, if asked, dispersion energies.
+pub fn run(
+    data: &TwoPointData,
+    plan: &ResamplePlan,
+    settings: &SpectrumSettings,
+) -> Result<SpectrumResult> {
+    check_settings(settings)?;
+    let mut warnings = Vec::new();
+    let mut gevp_out = BTreeMap::new();
+    if let Some(g) = &settings.gevp {
+        let mut by_momentum: BTreeMap<Momentum, Vec<(String, Vec<Resampled>)>> = BTreeMap::new();
+        for (key, series) in &data.channels {
+            if let Some(label) = key
+                .smear
+                .as_deref()
+                .filter(|l| gevp::split_label(l).is_some())
+            {
+                by_momentum
+                    .entry(key.momentum)
+                    .or_default()
+                    .push((label.to_string(), resample_series(series, plan)?));
+            }
+        }
+        for (p, channels) in by_momentum {
+            gevp_out.insert(p, gevp::analyse(p, &channels, g, settings, &mut warnings)?);
+        }
+    }
+    let mut per_momentum = BTreeMap::new();
+    if settings.gevp.is_some() && settings.smear.is_none() {
+        // The ground principal correlator stands in for a single channel.
+        for (p, g) in &gevp_out {
+            if let Some(Some(s)) = g.states.first() {
+                per_momentum.insert(*p, s.clone());
+            }
+        }
+    } else {
+        let channels = select_channels(data, settings.smear.as_deref())?;
+        for (&p, series) in &channels {
+            let corr = resample_series(series, plan)?;
+            per_momentum.insert(p, fit_correlator(p, &corr, settings, &mut warnings)?);
+        }
+    }
+    let mass = per_momentum
+        .get(&[0, 0, 0])
+        .map(|s: &MomentumSpectrum| s.energies[0].clone());
+    let mut dispersion = Vec::new();
+    match (settings.l_extent, &mass) {
+        (Some(l), Some(m)) => {
+            for (p, s) in per_momentum.iter_mut().filter(|(p, _)| **p != [0, 0, 0]) {
+                let pl = dispersion::lattice_momentum(*p, l as f64, settings.twist);
+                let row = dispersion::check(*p, pl, &s.energies[0], m);
+                match settings.energies {
+                    EnergySource::Fitted => {}
+                    EnergySource::ContinuumDispersion => s.energies[0] = row.continuum.clone(),
+                    EnergySource::LatticeDispersion => s.energies[0] = row.lattice.clone(),
+                }
+                dispersion.push(row);
+            }
+        }
+        _ if settings.energies != EnergySource::Fitted => {
+            return Err(Error::config(
+                "spectrum.energies: dispersion energies need `l_extent` and data at momentum (0,0,0)",
+            ));
+        }
+        (None, _) => warnings.push("no dispersion check: `l_extent` (L) is not set".into()),
+        (_, None) => warnings.push("no dispersion check: no data at momentum (0,0,0)".into()),
+    }
+    Ok(SpectrumResult {
+        per_momentum,
+        mass,
+        dispersion,
+        gevp: gevp_out,
+        warnings,
+    })
+}

@@ -1,0 +1,525 @@
+//! The pipeline file as plain serde types, sections in data-flow order.
+//!
+//! This is the first of the two settings steps: a faithful, typed image of the YAML with
+//! defaults filled in and unknown keys refused (`deny_unknown_fields`). Ranges, file
+//! existence and cross-references are checked afterwards when the validated
+//! [`Plan`](super::plan::Plan) is built. The JSON Schema in `schemas/pipeline.schema.json`
+//! is generated from these types.
+
+use crate::kinematics::flavor::FlavorCombo;
+use crate::kinematics::{DecompositionSettings, Dispersion, FormFactor, Hadron};
+use crate::ratio::{RatioSettings, ZFactors};
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+
+/// A whole analysis: ensemble, data, then one section per stage in data-flow order.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct PipelineSpec {
+    /// The lattice ensemble and the hadron studied.
+    pub ensemble: Ensemble,
+    /// Where the correlator tables are.
+    pub data: DataSpec,
+    /// Binning and the resampling scheme used for every error.
+    #[serde(default)]
+    pub resampling: ResamplingSpec,
+    /// Two-point fits: energies and excited-state gaps per momentum.
+    #[serde(default)]
+    pub spectrum: SpectrumSpec,
+    /// The three-/two-point ratio.
+    #[serde(default)]
+    pub ratio: RatioSpec,
+    /// Excited-state control: plateau, summation, two-state and the final choice.
+    #[serde(default)]
+    pub excited_states: ExcitedStatesSpec,
+    /// Renormalization constants per current kind.
+    #[serde(default)]
+    pub renormalization: RenormalizationSpec,
+    /// Form-factor decomposition of the ratio's large-time limits.
+    #[serde(default)]
+    pub decomposition: DecompositionSpec,
+    /// Q² fits per form factor.
+    #[serde(default)]
+    pub q2_fits: Q2FitsSpec,
+    /// The run directory and the plots to draw.
+    #[serde(default)]
+    pub output: OutputSpec,
+    /// Stop after this stage (the later stages are skipped; tables so far are written).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub stop_after: Option<Stage>,
+}
+
+/// The stages of a run, in order.
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize, JsonSchema,
+)]
+#[serde(rename_all = "snake_case")]
+pub enum Stage {
+    /// Read and bin the correlator tables, build the resample plan.
+    Data,
+    /// Two-point fits.
+    Spectrum,
+    /// Ratio, excited-state methods, cross-check, renormalization.
+    Ratio,
+    /// Form-factor decomposition per method.
+    Decomposition,
+    /// Q² fits.
+    Q2Fits,
+}
+
+impl Stage {
+    /// Every stage in data-flow order.
+    pub const ALL: [Stage; 5] = [
+        Stage::Data,
+        Stage::Spectrum,
+        Stage::Ratio,
+        Stage::Decomposition,
+        Stage::Q2Fits,
+    ];
+
+    /// The section name in the pipeline file.
+    pub fn name(self) -> &'static str {
+        match self {
+            Stage::Data => "data",
+            Stage::Spectrum => "spectrum",
+            Stage::Ratio => "ratio",
+            Stage::Decomposition => "decomposition",
+            Stage::Q2Fits => "q2_fits",
+        }
+    }
+}
+
+/// The lattice ensemble.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Ensemble {
+    /// A short name shown in the report.
+    #[serde(default)]
+    pub label: String,
+    /// Spatial extent in lattice sites.
+    #[serde(rename = "L")]
+    pub l: u32,
+    /// Temporal extent in lattice sites.
+    #[serde(rename = "T")]
+    pub t: u32,
+    /// Lattice spacing in fm.
+    pub spacing_fm: f64,
+    /// Pion mass in lattice units (sets the z-expansion threshold).
+    pub pion_mass: f64,
+    /// The hadron's spin: `spin0` (one vector form factor `F`) or `spin1half` (Sachs,
+    /// axial, scalar, pseudoscalar, tensor form factors).
+    pub hadron: Hadron,
+}
+
+/// The correlator tables.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct DataSpec {
+    /// Two-point table (CSV), relative to the pipeline file.
+    pub twopt: PathBuf,
+    /// Three-point table (CSV), relative to the pipeline file.
+    pub threept: PathBuf,
+    /// Keep only the configurations present in both tables (dropped ones are reported);
+    /// otherwise a mismatch is an error.
+    #[serde(default)]
+    pub keep_common_configs: bool,
+}
+
+/// Resampling scheme.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "lowercase")]
+pub enum ResamplingMethod {
+    /// Delete-one jackknife on bins.
+    Jackknife,
+    /// Bootstrap on bins, seeded.
+    Bootstrap,
+}
+
+/// Binning and resampling.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ResamplingSpec {
+    /// Jackknife or bootstrap.
+    #[serde(default = "default_method")]
+    pub method: ResamplingMethod,
+    /// Consecutive configurations per bin (trailing ones are dropped and reported).
+    #[serde(default = "one")]
+    pub bin_size: usize,
+    /// Number of bootstrap samples (ignored for the jackknife).
+    #[serde(default = "default_samples")]
+    pub samples: usize,
+    /// Seed of the bootstrap draws.
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+}
+
+impl Default for ResamplingSpec {
+    fn default() -> Self {
+        ResamplingSpec {
+            method: default_method(),
+            bin_size: 1,
+            samples: default_samples(),
+            seed: default_seed(),
+        }
+    }
+}
+
+fn default_method() -> ResamplingMethod {
+    ResamplingMethod::Jackknife
+}
+fn one() -> usize {
+    1
+}
+fn default_samples() -> usize {
+    200
+}
+fn default_seed() -> u64 {
+    20_240_601
+}
+fn yes() -> bool {
+    true
+}
+
+/// Covariance used by correlated fits.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "lowercase")]
+pub enum CovarianceKind {
+    /// The full estimated covariance.
+    Full,
+    /// Only its diagonal (uncorrelated fit).
+    Diagonal,
+    /// Shrinkage toward the diagonal (Ledoit–Wolf).
+    Shrinkage,
+}
+
+/// Two-point fits.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SpectrumSpec {
+    /// Run this stage.
+    #[serde(default = "yes")]
+    pub enabled: bool,
+    /// First time slice of the fit window.
+    #[serde(default = "default_t_min")]
+    pub t_min: u32,
+    /// Last time slice of the fit window.
+    #[serde(default = "default_t_max")]
+    pub t_max: u32,
+    /// States in the fit (2 gives the gaps the two-state ratio fit needs).
+    #[serde(default = "two")]
+    pub n_states: u32,
+    /// Covariance used in the fit.
+    #[serde(default = "default_cov")]
+    pub covariance: CovarianceKind,
+}
+
+impl Default for SpectrumSpec {
+    fn default() -> Self {
+        SpectrumSpec {
+            enabled: true,
+            t_min: default_t_min(),
+            t_max: default_t_max(),
+            n_states: 2,
+            covariance: default_cov(),
+        }
+    }
+}
+
+fn default_t_min() -> u32 {
+    2
+}
+fn default_t_max() -> u32 {
+    16
+}
+fn two() -> u32 {
+    2
+}
+fn default_cov() -> CovarianceKind {
+    CovarianceKind::Diagonal
+}
+
+/// The three-/two-point ratio: which data enter it.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct RatioSpec {
+    /// Run this stage (and everything after it).
+    #[serde(default = "yes")]
+    pub enabled: bool,
+    /// Source–sink separations to use (default: every one in the data).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub tsep: Option<Vec<u32>>,
+    /// Currents to analyse (default: every one in the data), e.g. `[V4, V1, V2, V3]`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub currents: Option<Vec<String>>,
+    /// Flavour combination formed per configuration before the ratio, e.g.
+    /// `{label: u-d, terms: [{flavor: u, weight: 1}, {flavor: d, weight: -1}]}`
+    /// (default: the data as they are).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub flavor: Option<FlavorCombo>,
+}
+
+impl Default for RatioSpec {
+    fn default() -> Self {
+        RatioSpec {
+            enabled: true,
+            tsep: None,
+            currents: None,
+            flavor: None,
+        }
+    }
+}
+
+/// An excited-state method whose results are tabulated and decomposed.
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize, JsonSchema,
+)]
+#[serde(rename_all = "snake_case")]
+pub enum Method {
+    /// Constant fit of the ratio's middle region, one value per `tsep`.
+    Plateau,
+    /// Slope of the summed ratio in `tsep`.
+    Summation,
+    /// Joint two-state fit over all `tsep` and `tau`.
+    TwoState,
+}
+
+/// Excited-state control: the methods reported, and the ratio stage's own settings
+/// (`tau_cut`, `summation_tsep_min`, `two_state_tsep_min`, `final_method`, ...).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+pub struct ExcitedStatesSpec {
+    /// Methods whose results are tabulated, decomposed and cross-checked.
+    #[serde(default = "all_methods")]
+    pub methods: Vec<Method>,
+    /// Settings of the ratio stage's fits.
+    #[serde(flatten)]
+    pub fits: RatioSettings,
+}
+
+impl Default for ExcitedStatesSpec {
+    fn default() -> Self {
+        ExcitedStatesSpec {
+            methods: all_methods(),
+            fits: RatioSettings::default(),
+        }
+    }
+}
+
+fn all_methods() -> Vec<Method> {
+    vec![Method::Plateau, Method::Summation, Method::TwoState]
+}
+
+/// Renormalization constants per current kind (absent = 1 exactly), e.g.
+/// `vector: {value: 0.72, error: 0.01}`.
+pub type RenormalizationSpec = ZFactors;
+
+/// Where the energies of the kinematic factors come from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum EnergySource {
+    /// Fitted energy at every momentum.
+    Fit,
+    /// Rest mass plus a dispersion relation.
+    Dispersion,
+}
+
+/// Form-factor decomposition.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+pub struct DecompositionSpec {
+    /// Run this stage (and everything after it).
+    #[serde(default = "yes")]
+    pub enabled: bool,
+    /// Energies from the two-point fits or from the rest mass and a dispersion relation.
+    #[serde(default = "default_energies")]
+    pub energies: EnergySource,
+    /// The dispersion relation used when `energies: dispersion`.
+    #[serde(default = "default_dispersion")]
+    pub dispersion: Dispersion,
+    /// Twist angle `theta` per direction (radians) of sink and source momenta.
+    #[serde(default)]
+    pub twist: [f64; 3],
+    /// Weights, Q² tolerance and per-current phases of the least-squares solve.
+    #[serde(flatten)]
+    pub solve: DecompositionSettings,
+}
+
+impl Default for DecompositionSpec {
+    fn default() -> Self {
+        DecompositionSpec {
+            enabled: true,
+            energies: default_energies(),
+            dispersion: default_dispersion(),
+            twist: [0.0; 3],
+            solve: DecompositionSettings::default(),
+        }
+    }
+}
+
+fn default_dispersion() -> Dispersion {
+    Dispersion::Lattice
+}
+
+fn default_energies() -> EnergySource {
+    EnergySource::Fit
+}
+
+/// A Q² model.
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
+)]
+#[serde(rename_all = "snake_case")]
+pub enum Q2Model {
+    /// `G(0) / (1 + Q²/M²)²`.
+    Dipole,
+    /// `sum_k a_k z^k` (Hill & Paz).
+    ZExpansion,
+}
+
+impl Q2Model {
+    /// The name used in tables.
+    pub fn name(self) -> &'static str {
+        match self {
+            Q2Model::Dipole => "dipole",
+            Q2Model::ZExpansion => "z-expansion",
+        }
+    }
+}
+
+/// `t0` of the z-expansion.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum T0Choice {
+    /// `t0 = 0`.
+    Zero,
+    /// `t0 = t_cut (1 - sqrt(1 + Q²_max / t_cut))`.
+    Optimal,
+}
+
+/// Q² fit settings of one form factor.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Q2FitSpec {
+    /// Models to fit.
+    #[serde(default = "both_models")]
+    pub models: Vec<Q2Model>,
+    /// Highest power of `z`.
+    #[serde(default = "default_kmax")]
+    pub kmax: u32,
+    /// `t_cut` in units of the pion mass squared (4 for the isovector vector, 9 for the
+    /// isovector axial current).
+    #[serde(default = "default_tcut")]
+    pub t_cut_mpi2: f64,
+    /// `t0` of the conformal map.
+    #[serde(default = "default_t0")]
+    pub t0: T0Choice,
+    /// Width of the Gaussian priors on `a_k / a_0`, k >= 1.
+    #[serde(default = "default_prior")]
+    pub prior_width: f64,
+    /// Largest Q² (lattice units) included; default all.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub q2_max: Option<f64>,
+}
+
+impl Default for Q2FitSpec {
+    fn default() -> Self {
+        Q2FitSpec {
+            models: both_models(),
+            kmax: default_kmax(),
+            t_cut_mpi2: default_tcut(),
+            t0: default_t0(),
+            prior_width: default_prior(),
+            q2_max: None,
+        }
+    }
+}
+
+fn both_models() -> Vec<Q2Model> {
+    vec![Q2Model::Dipole, Q2Model::ZExpansion]
+}
+fn default_kmax() -> u32 {
+    3
+}
+fn default_tcut() -> f64 {
+    4.0
+}
+fn default_t0() -> T0Choice {
+    T0Choice::Zero
+}
+fn default_prior() -> f64 {
+    5.0
+}
+
+/// Q² fits.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Q2FitsSpec {
+    /// Run this stage.
+    #[serde(default = "yes")]
+    pub enabled: bool,
+    /// Settings per form factor (`GE`, `GM`, `GA`, `GP`, `GS`, `G5`, `GT`, `F`); a form
+    /// factor not listed is not fitted.
+    #[serde(default)]
+    pub form_factors: BTreeMap<FormFactor, Q2FitSpec>,
+}
+
+impl Default for Q2FitsSpec {
+    fn default() -> Self {
+        Q2FitsSpec {
+            enabled: true,
+            form_factors: BTreeMap::new(),
+        }
+    }
+}
+
+/// A plot of the report.
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
+)]
+#[serde(rename_all = "snake_case")]
+pub enum Plot {
+    /// Effective mass per momentum with the fitted energy.
+    EffectiveMass,
+    /// Fitted energies against the dispersion relation.
+    Dispersion,
+    /// The ratio versus `tau` per `tsep`, with the plateau / two-state bands.
+    Ratio,
+    /// The summed ratio versus `tsep` with the linear fit.
+    Summation,
+    /// Form factors versus Q² per method, with the Q² fits.
+    FormFactors,
+}
+
+/// The run directory and the plots.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct OutputSpec {
+    /// Run directory, relative to the pipeline file (`--out` overrides it).
+    #[serde(default = "default_dir")]
+    pub dir: PathBuf,
+    /// Plots to draw.
+    #[serde(default = "all_plots")]
+    pub plots: Vec<Plot>,
+}
+
+impl Default for OutputSpec {
+    fn default() -> Self {
+        OutputSpec {
+            dir: default_dir(),
+            plots: all_plots(),
+        }
+    }
+}
+
+fn default_dir() -> PathBuf {
+    PathBuf::from("runs/out")
+}
+fn all_plots() -> Vec<Plot> {
+    vec![
+        Plot::EffectiveMass,
+        Plot::Dispersion,
+        Plot::Ratio,
+        Plot::Summation,
+        Plot::FormFactors,
+    ]
+}

@@ -1,0 +1,133 @@
+//! Model averaging over fit windows and numbers of states (Jay & Neil, Phys. Rev. D 103
+//! (2021) 114502; methods.md §2). Fit `i` (k_i parameters, N_cut,i points dropped from the
+//! widest window) gets the weight `w_i ∝ exp(-(chi2_i + 2 k_i + 2 N_cut,i) / 2)`, computed from
+//! the central fits and normalised to one. The averaged value is `sum w_i mu_i` and its
+//! variance `sum w_i sigma_i^2 + sum w_i mu_i^2 - (sum w_i mu_i)^2`.
+//!
+//! As a [`Resampled`]: the weights are fixed from the central fits; sample `s` is first
+//! `sum w_i mu_i,s`; then its deviations from the sample mean are scaled by one common factor
+//! so that the resampled variance equals the Jay–Neil variance above (statistical part plus
+//! the model spread). The central value is `sum w_i mu_i` on the central fits. Correlations
+//! with other resampled quantities keep their sign and shape.
+
+use super::window::WindowFit;
+use crate::resample::Resampled;
+use serde::Serialize;
+
+/// One row of the model-average table.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct AverageRow {
+    /// First time slice.
+    pub t_min: usize,
+    /// Last time slice.
+    pub t_max: usize,
+    /// Number of states.
+    pub n_states: usize,
+    /// Fit parameters `k`.
+    pub n_params: usize,
+    /// Points dropped relative to the widest window, `N_cut`.
+    pub n_cut: usize,
+    /// Central chi-square (priors included).
+    pub chi2: f64,
+    /// Degrees of freedom.
+    pub dof: i64,
+    /// p-value.
+    pub p_value: f64,
+    /// Normalised model weight.
+    pub weight: f64,
+    /// Ground-state energy of this fit.
+    pub energy: f64,
+    /// Its resampled error.
+    pub energy_error: f64,
+    /// Resamples whose fit did not converge.
+    pub failed_samples: usize,
+}
+
+/// The model average of the ground-state energy and amplitude.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ModelAverage {
+    /// Averaged ground-state energy (error = statistical and model spread).
+    pub energy: Resampled,
+    /// Averaged ground-state amplitude (same construction).
+    pub amplitude: Resampled,
+    /// `sum w_i sigma_i^2` for the energy.
+    pub statistical_variance: f64,
+    /// `sum w_i mu_i^2 - (sum w_i mu_i)^2` for the energy.
+    pub model_variance: f64,
+    /// Every fit with its weight, in the order fitted.
+    pub table: Vec<AverageRow>,
+}
+
+/// Normalised Jay–Neil weights of `fits`, `n_cut` relative to `t_min_first`.
+pub fn weights(fits: &[WindowFit], t_min_first: usize) -> Vec<f64> {
+    let score: Vec<f64> = fits
+        .iter()
+        .map(|f| {
+            let n_cut = (f.t_min - t_min_first) as f64;
+            f.central.chi2 + 2.0 * f.n_params() as f64 + 2.0 * n_cut
+        })
+        .collect();
+    let best = score.iter().copied().fold(f64::INFINITY, f64::min);
+    let raw: Vec<f64> = score.iter().map(|s| (-(s - best) / 2.0).exp()).collect();
+    let total: f64 = raw.iter().sum();
+    raw.iter().map(|r| r / total).collect()
+}
+
+/// Weighted average of per-fit values with the Jay–Neil variance, as a resampled value;
+/// returns it with the statistical and model parts of the variance.
+pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
+    let mean_c: f64 = values.iter().zip(w).map(|(v, w)| w * v.central).sum();
+    let stat: f64 = values.iter().zip(w).map(|(v, w)| w * v.variance()).sum();
+    let second: f64 = values
+        .iter()
+        .zip(w)
+        .map(|(v, w)| w * v.central * v.central)
+        .sum();
+    let model = (second - mean_c * mean_c).max(0.0);
+    let mut avg = Resampled::combine(values, |x| x.iter().zip(w).map(|(x, w)| w * x).sum());
+    avg.central = mean_c;
+    let var_avg = avg.variance();
+    let target = stat + model;
+    if var_avg > 0.0 && target.is_finite() {
+        let f = (target / var_avg).sqrt();
+        let m = avg.sample_mean();
+        for x in &mut avg.samples {
+            *x = m + f * (*x - m);
+        }
+    }
+    (avg, stat, model)
+}
+
+/// The model average of `fits` (non-empty; all on the same correlator).
+pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
+    let w = weights(fits, t_min_first);
+    let e: Vec<&Resampled> = fits.iter().map(|f| &f.energies[0]).collect();
+    let a: Vec<&Resampled> = fits.iter().map(|f| &f.amplitudes[0]).collect();
+    let (energy, statistical_variance, model_variance) = average(&e, &w);
+    let (amplitude, _, _) = average(&a, &w);
+    let table = fits
+        .iter()
+        .zip(&w)
+        .map(|(f, &weight)| AverageRow {
+            t_min: f.t_min,
+            t_max: f.t_max,
+            n_states: f.n_states,
+            n_params: f.n_params(),
+            n_cut: f.t_min - t_min_first,
+            chi2: f.central.chi2,
+            dof: f.central.dof,
+            p_value: f.central.p_value,
+            weight,
+            energy: f.energies[0].central,
+            energy_error: f.energies[0].error(),
+            failed_samples: f.failed_samples,
+        })
+        .collect();
+    ModelAverage {
+        energy,
+        amplitude,
+        statistical_variance,
+        model_variance,
+        table,
+    }
+}

@@ -1,0 +1,146 @@
+//! Two-point fit models (methods.md §2): a sum of 1 to [`MAX_STATES`] exponentials with
+//! energies ordered by construction, `E_n = E_{n-1} + exp(l_n)` (the fitted log-gap `l_n`
+//! keeps excited states from swapping), optionally in the symmetric periodic form
+//! `A_n (e^{-E_n t} + e^{-E_n (T - t)})` for mesons on a lattice with periodic time.
+//!
+//! Parameter layout (shared by priors, starting values and the Jacobian):
+//! `[E_0, l_1, .., l_{N-1}, A_0, .., A_{N-1}]`.
+
+use crate::fit::Model;
+use nalgebra::DMatrix;
+
+/// Largest number of states a two-point model may have.
+pub const MAX_STATES: usize = 3;
+
+/// The time dependence of one state.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Form {
+    /// `e^{-E t}` (open or effectively infinite time extent; baryons).
+    Exponential,
+    /// `e^{-E t} + e^{-E (T - t)}` with time extent `T` (mesons, periodic time).
+    Periodic {
+        /// Time extent `T` of the lattice.
+        t_extent: f64,
+    },
+}
+
+impl Form {
+    /// One state's time dependence at `t` and its derivative in `E`.
+    pub fn term(self, e: f64, t: f64) -> (f64, f64) {
+        let a = (-e * t).exp();
+        match self {
+            Form::Exponential => (a, -t * a),
+            Form::Periodic { t_extent } => {
+                let tb = t_extent - t;
+                let b = (-e * tb).exp();
+                (a + b, -t * a - tb * b)
+            }
+        }
+    }
+}
+
+/// A multi-exponential two-point model at given times.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TwoPointModel {
+    times: Vec<f64>,
+    n_states: usize,
+    form: Form,
+}
+
+impl TwoPointModel {
+    /// A model with `n_states` (1..=[`MAX_STATES`], clamped) at `times`.
+    pub fn new(times: Vec<f64>, n_states: usize, form: Form) -> Self {
+        TwoPointModel {
+            times,
+            n_states: n_states.clamp(1, MAX_STATES),
+            form,
+        }
+    }
+
+    /// Number of states.
+    pub fn n_states(&self) -> usize {
+        self.n_states
+    }
+
+    /// Index of `E_0` in the parameter vector.
+    pub const fn ground_energy_index() -> usize {
+        0
+    }
+
+    /// Index of the log-gap `l_n` (`n >= 1`).
+    pub fn log_gap_index(n: usize) -> usize {
+        n
+    }
+
+    /// Index of the amplitude `A_n`.
+    pub fn amplitude_index(&self, n: usize) -> usize {
+        self.n_states + n
+    }
+
+    /// Energies `E_0 .. E_{N-1}` from the parameters.
+    pub fn energies(&self, params: &[f64]) -> Vec<f64> {
+        let mut e = Vec::with_capacity(self.n_states);
+        e.push(params[0]);
+        for n in 1..self.n_states {
+            e.push(e[n - 1] + params[n].exp());
+        }
+        e
+    }
+
+    /// Amplitudes `A_0 .. A_{N-1}` from the parameters.
+    pub fn amplitudes<'a>(&self, params: &'a [f64]) -> &'a [f64] {
+        &params[self.n_states..2 * self.n_states]
+    }
+
+    /// Parameters from energies (strictly increasing) and amplitudes.
+    pub fn params_from(energies: &[f64], amplitudes: &[f64]) -> Vec<f64> {
+        let mut p = vec![energies[0]];
+        for n in 1..energies.len() {
+            p.push((energies[n] - energies[n - 1]).max(1e-300).ln());
+        }
+        p.extend_from_slice(amplitudes);
+        p
+    }
+}
+
+impl Model for TwoPointModel {
+    fn n_params(&self) -> usize {
+        2 * self.n_states
+    }
+
+    fn n_points(&self) -> usize {
+        self.times.len()
+    }
+
+    fn eval(&self, params: &[f64], out: &mut [f64]) {
+        let e = self.energies(params);
+        let a = self.amplitudes(params);
+        for (o, &t) in out.iter_mut().zip(&self.times) {
+            *o = e
+                .iter()
+                .zip(a)
+                .map(|(&en, &an)| an * self.form.term(en, t).0)
+                .sum();
+        }
+    }
+
+    fn jacobian(&self, params: &[f64], out: &mut DMatrix<f64>) {
+        let ns = self.n_states;
+        let e = self.energies(params);
+        let a = self.amplitudes(params);
+        let mut de = [0.0; MAX_STATES];
+        for (i, &t) in self.times.iter().enumerate() {
+            for n in 0..ns {
+                let (f, df) = self.form.term(e[n], t);
+                out[(i, ns + n)] = f;
+                de[n] = a[n] * df;
+            }
+            // E_m depends on E_0 (slope 1) and on l_k for k <= m (slope exp(l_k)).
+            let mut tail = 0.0;
+            for k in (0..ns).rev() {
+                tail += de[k];
+                out[(i, k)] = if k == 0 { tail } else { tail * params[k].exp() };
+            }
+        }
+    }
+}

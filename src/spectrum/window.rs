@@ -1,0 +1,163 @@
+//! One fit window `[t_min, t_max]` with a given number of states, fitted on the central value
+//! and on every resample with one frozen covariance (methods.md §2: the covariance is
+//! estimated once from the resamples and held fixed for every resample's fit; common
+//! practice). Starting values come from the effective mass at `t_min`; every resample starts
+//! from the central fit. Resamples are fitted in parallel and collected in order, so the
+//! result does not depend on the number of threads.
+
+use super::effective::{effective_mass_value, EffectiveMassKind};
+use super::model::{Form, TwoPointModel};
+use super::settings::PriorSettings;
+use crate::error::{Error, Result};
+use crate::fit::{nonlinear, FitReport, FitSettings, Prior, Weights};
+use crate::resample::Resampled;
+use rayon::prelude::*;
+
+/// The fit of one window on the central value and on every resample.
+#[derive(Clone, Debug, PartialEq)]
+pub struct WindowFit {
+    /// First time slice fitted.
+    pub t_min: usize,
+    /// Last time slice fitted (inclusive).
+    pub t_max: usize,
+    /// Number of states.
+    pub n_states: usize,
+    /// The fit of the central value.
+    pub central: FitReport,
+    /// Energies `E_0..E_{N-1}` per resample.
+    pub energies: Vec<Resampled>,
+    /// Amplitudes `A_0..A_{N-1}` per resample.
+    pub amplitudes: Vec<Resampled>,
+    /// Resamples whose fit did not converge (their parameters are kept but suspect).
+    pub failed_samples: usize,
+}
+
+impl WindowFit {
+    /// Number of fit parameters.
+    pub fn n_params(&self) -> usize {
+        2 * self.n_states
+    }
+}
+
+/// Problem description shared by the windows of one correlator.
+pub(crate) struct WindowSpec<'a> {
+    /// The resampled correlator at every time slice.
+    pub corr: &'a [Resampled],
+    /// Periodic or plain exponential.
+    pub form: Form,
+    /// Priors from the settings.
+    pub priors: &'a PriorSettings,
+    /// Solver settings.
+    pub fit: &'a FitSettings,
+    /// What to call the correlator in messages.
+    pub label: &'a str,
+}
+
+fn effective_kind(form: Form) -> EffectiveMassKind {
+    match form {
+        Form::Exponential => EffectiveMassKind::Log,
+        Form::Periodic { t_extent } => EffectiveMassKind::Cosh { t_extent },
+    }
+}
+
+/// Fit `[t_min, t_max]` with `n_states` states using weights `w` (from the covariance of the
+/// window's resamples, estimated once by the caller).
+pub(crate) fn fit_window(
+    spec: &WindowSpec,
+    t_min: usize,
+    t_max: usize,
+    n_states: usize,
+    w: &Weights,
+) -> Result<WindowFit> {
+    let n_pts = (t_max + 1).saturating_sub(t_min);
+    let np = 2 * n_states;
+    if t_max >= spec.corr.len() || n_pts < np {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "{}: window [{t_min}, {t_max}] has {n_pts} points for {np} parameters \
+                 ({n_states} states) within {} time slices; widen the window or fit fewer states",
+                spec.label,
+                spec.corr.len()
+            ),
+        ));
+    }
+    let window = &spec.corr[t_min..=t_max];
+    let times: Vec<f64> = (t_min..=t_max).map(|t| t as f64).collect();
+    let model = TwoPointModel::new(times, n_states, spec.form);
+    let kind = effective_kind(spec.form);
+    // Starting values: the first defined effective mass in the window.
+    let e0 = (t_min..t_max)
+        .find_map(|t| {
+            effective_mass_value(
+                kind,
+                spec.corr[t].central,
+                spec.corr[t + 1].central,
+                t as f64,
+            )
+        })
+        .filter(|e| *e > 0.0)
+        .unwrap_or(0.5);
+    let a0 = spec.corr[t_min].central / spec.form.term(e0, t_min as f64).0;
+    let gap0 = spec.priors.log_gap.map_or(0.5f64.ln(), |p| p.mean);
+    let ratio0 = spec.priors.excited_amplitude_ratio.map_or(0.5, |p| p.mean);
+    let mut start = vec![e0];
+    start.extend(std::iter::repeat_n(gap0, n_states - 1));
+    start.push(a0);
+    start.extend(std::iter::repeat_n(ratio0 * a0, n_states - 1));
+    let scale = a0.abs().max(f64::MIN_POSITIVE);
+    let mut priors: Vec<Option<Prior>> = vec![None; np];
+    priors[0] = spec.priors.ground_energy;
+    for n in 1..n_states {
+        priors[TwoPointModel::log_gap_index(n)] = spec.priors.log_gap;
+        priors[model.amplitude_index(n)] = spec
+            .priors
+            .excited_amplitude_ratio
+            .map(|p| Prior::new(p.mean * scale, p.width * scale));
+    }
+    let y: Vec<f64> = window.iter().map(|c| c.central).collect();
+    let central = nonlinear::fit(&model, &y, w, &priors, &start, spec.fit);
+    if !central.converged {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "{}: fit of [{t_min}, {t_max}] with {n_states} states did not converge: {}",
+                spec.label, central.message
+            ),
+        ));
+    }
+    let n_s = window[0].len();
+    let samples: Vec<FitReport> = (0..n_s)
+        .into_par_iter()
+        .map(|s| {
+            let y: Vec<f64> = window.iter().map(|c| c.samples[s]).collect();
+            nonlinear::fit(&model, &y, w, &priors, &central.params, spec.fit)
+        })
+        .collect();
+    let failed_samples = samples.iter().filter(|r| !r.converged).count();
+    let scheme = window[0].scheme;
+    let e_c = model.energies(&central.params);
+    let e_s: Vec<Vec<f64>> = samples.iter().map(|r| model.energies(&r.params)).collect();
+    let energies = (0..n_states)
+        .map(|n| Resampled::new(e_c[n], e_s.iter().map(|e| e[n]).collect(), scheme))
+        .collect();
+    let amplitudes = (0..n_states)
+        .map(|n| {
+            let k = model.amplitude_index(n);
+            Resampled::new(
+                central.params[k],
+                samples.iter().map(|r| r.params[k]).collect(),
+                scheme,
+            )
+        })
+        .collect();
+    Ok(WindowFit {
+        t_min,
+        t_max,
+        n_states,
+        central,
+        energies,
+        amplitudes,
+        failed_samples,
+    })
+}
