@@ -814,6 +814,54 @@ mod decomposition {
         }
     }
 
+    // Forward charges through the decomposition: g_S from Pi(Gamma_0, S), g_T from
+    // Pi(Gamma_k, T_ij) (methods.md §5 check values); tensor channels with q != 0 are reported
+    // as skipped, since the vertex sigma_mu_nu g_T is the forward one only.
+    #[test]
+    fn forward_scalar_and_tensor_charges() {
+        let n = 8;
+        let st = setup(varying_mass(n));
+        let truth = |ff: FormFactor, _q2: f64, s: Option<usize>| {
+            let w = 1.0 + 0.01 * s.map_or(0.0, |i| i as f64);
+            match ff {
+                FormFactor::GS => 1.1 * w,
+                FormFactor::GT => 0.98 * w,
+                _ => 0.0,
+            }
+        };
+        let frames = vec![([0, 0, 0], [0, 0, 0]), ([0, 0, 0], [1, 0, 0])];
+        let chans = exact_channels(
+            &st,
+            &frames,
+            &[Current::S, Current::T12, Current::T13, Current::T23],
+            &truth,
+        );
+        let d = decompose(&chans, &st, &DecompositionSettings::default()).expect("runs");
+        let get = |ff: FormFactor| {
+            d.shells
+                .iter()
+                .filter(|sh| sh.label == "nf2=0 ni2=0 nq2=0")
+                .flat_map(|sh| sh.form_factors.iter())
+                .find(|(f, _)| *f == ff)
+                .map(|(_, g)| g.central)
+        };
+        assert_abs_diff_eq!(
+            get(FormFactor::GS).expect("g_S solved"),
+            1.1,
+            epsilon = 1e-12
+        );
+        assert_abs_diff_eq!(
+            get(FormFactor::GT).expect("g_T solved"),
+            0.98,
+            epsilon = 1e-12
+        );
+        assert!(
+            d.skipped.iter().any(|s| s.reason.contains("forward")),
+            "{:?}",
+            d.skipped
+        );
+    }
+
     // Flavour combination per configuration: u - d of known series is their difference; a
     // missing term is an error naming the channel.
     #[test]

@@ -380,3 +380,21 @@ fn decomposition_and_dipole_closure() {
         "decomposition chi2/dof {chi2:?}"
     );
 }
+
+// The settings types produce a JSON Schema (for the pipeline's schema file) and parse YAML.
+#[test]
+fn settings_schemas() {
+    let s =
+        serde_json::to_string(&schemars::schema_for!(Q2FitSettings)).expect("schema serialises");
+    assert!(s.contains("z-expansion") && s.contains("sum_rules"), "{s}");
+    let s = serde_json::to_string(&schemars::schema_for!(DecompositionSettings))
+        .expect("schema serialises");
+    assert!(s.contains("q2_tolerance") && s.contains("phases"), "{s}");
+    let d: DecompositionSettings =
+        serde_yaml_ng::from_str("weights: shrinkage\nphases: {A4: i, V1: -1}\n")
+            .expect("valid settings");
+    assert_eq!(d.phases.len(), 2);
+    let e: formfactory::kinematics::EnergySource =
+        serde_yaml_ng::from_str("lattice").expect("valid");
+    assert_eq!(e, formfactory::kinematics::EnergySource::Lattice);
+}

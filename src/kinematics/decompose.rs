@@ -174,11 +174,10 @@ pub fn decompose(
     let mut out = Decomposition::default();
     for (label, kind, members) in shells(channels, setup, settings.q2_tolerance)? {
         match solve_shell(&members, kind, setup, settings.weights, &phases, n) {
-            Ok(Some(mut r)) => {
+            Ok(mut r) => {
                 r.label = label;
                 out.shells.push(r);
             }
-            Ok(None) => {}
             Err(reason) => out.skipped.push(SkippedShell {
                 label,
                 kind,
@@ -251,7 +250,7 @@ fn shells<'a>(
 /// One real equation: channel index and real (false) or imaginary (true) part.
 type Row = (usize, bool);
 
-/// Solve one shell. `Ok(None)` when the kind has no form factors for this hadron.
+/// Solve one shell; `Err` carries the reason it could not be solved.
 fn solve_shell(
     members: &[&ChannelValue],
     kind: CurrentKind,
@@ -259,10 +258,19 @@ fn solve_shell(
     weights: DecompositionWeights,
     phases: &BTreeMap<Current, Complex<f64>>,
     n: usize,
-) -> std::result::Result<Option<ShellResult>, String> {
+) -> std::result::Result<ShellResult, String> {
     let all = FormFactor::of(setup.hadron, kind);
     if all.is_empty() {
-        return Ok(None);
+        return Err(format!(
+            "a {:?} hadron has no form factors for a {kind:?} current",
+            setup.hadron
+        ));
+    }
+    if kind == CurrentKind::Tensor && members.iter().any(|c| c.q != [0, 0, 0]) {
+        return Err(
+            "the tensor vertex sigma_mu_nu g_T holds for forward matrix elements only (q = 0)"
+                .into(),
+        );
     }
     let coeffs =
         |c: &ChannelValue, s: Option<usize>| -> std::result::Result<Vec<Complex<f64>>, String> {
@@ -400,7 +408,7 @@ fn solve_shell(
     let refs: Vec<&Resampled> = q2s.iter().collect();
     let q2 = Resampled::combine(&refs, |v| v.iter().sum::<f64>() / v.len() as f64);
     let dof = rows.len() - unknowns.len();
-    Ok(Some(ShellResult {
+    Ok(ShellResult {
         label: String::new(),
         kind,
         q2_gev2: setup.spacing_fm.map(|a| q2.map(|x| q2_to_gev2(x, a))),
@@ -411,7 +419,7 @@ fn solve_shell(
         dof,
         chi2_dof: (dof > 0).then(|| chi2 / dof as f64),
         condition,
-    }))
+    })
 }
 
 /// Whitening of the stacked parts: inverse errors, or the (shrunk) covariance estimated from
