@@ -556,3 +556,23 @@ fn noise_free_chain_equals_the_truth() {
         approx::assert_relative_eq!(f.r2.central, r2, max_relative = 1e-6);
     }
 }
+
+// Noise exactly off: every resample equals the central value, so the covariance of a fit
+// window is zero. Methods.md §2: a singular covariance is reported, never silently
+// inverted — the chain must stop with an error naming the momentum, not panic or return NaN.
+#[test]
+fn exactly_noise_free_data_are_refused_clearly() {
+    let mut spec = load("single_state.yaml");
+    spec.noise.twopt.0 = 0.0;
+    spec.noise.threept.0 = 0.0;
+    let e = generate(&spec).expect("mock");
+    let (c2, _) = bin_twopt(&e.twopt, BIN).expect("binning");
+    let plan = ResamplePlan::jackknife(c2.configs.len());
+    let err = spectrum::run(&c2, &plan, &spectrum_settings(&spec, 1))
+        .expect_err("zero variance cannot be weighted")
+        .to_string();
+    assert!(
+        err.contains("momentum (") && err.contains("zero variance"),
+        "{err}"
+    );
+}
