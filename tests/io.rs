@@ -673,3 +673,61 @@ fn inspect_reports_errors_with_location() {
         stderr(&o)
     );
 }
+
+// ---------------------------------------------------------------------------------------
+// Smaller header and row rules, on in-memory tables.
+
+fn twopt_text(text: &str) -> Result<TwoPointData, Error> {
+    io::read_twopt_from(text.as_bytes(), Path::new("mem.csv"))
+}
+
+#[test]
+fn repeated_column_and_ragged_row_are_errors() {
+    let (loc, msg) = data_error(twopt_text("config,px,py,pz,t,re,im,re\n1,0,0,0,0,1,0,1\n"));
+    assert_at(&loc, "mem.csv", 1, Some(8), "re");
+    assert!(msg.contains("appears twice"), "{msg}");
+    let (loc, msg) = data_error(twopt_text(
+        "config,px,py,pz,t,re,im\n1,0,0,0,0,1,0\n2,0,0,0\n",
+    ));
+    assert_eq!((loc.line, loc.column), (3, None));
+    assert!(msg.contains("row has 4 fields, the header has 7"), "{msg}");
+}
+
+#[test]
+fn byte_order_mark_and_empty_labels_are_accepted() {
+    let d =
+        twopt_text("\u{feff}config,px,py,pz,t,re,im,smear\n1,0,0,0,0,2.5,0,\n1,0,0,0,1,1.5,0,\n")
+            .unwrap();
+    let (key, s) = d.channels.iter().next().unwrap();
+    assert_eq!(key.smear, None);
+    assert_relative_eq!(s.re[1], 1.5);
+}
+
+#[test]
+fn absurd_time_values_are_refused_before_allocating() {
+    let (loc, msg) = data_error(twopt_text(
+        "config,px,py,pz,t,re,im\n1,0,0,0,4000000000,1,0\n",
+    ));
+    assert_at(&loc, "mem.csv", 2, Some(5), "t");
+    assert!(msg.contains("out of range"), "{msg}");
+    // a large but allowed tau gap is reported as missing rows, not allocated blindly
+    let text = format!(
+        "config,tsep,tau,pfx,pfy,pfz,qx,qy,qz,current,projector,re,im\n\
+         1,{m},{m},0,0,0,0,0,0,S,none,1,0\n",
+        m = io::MAX_TIME
+    );
+    let (_, msg) = table_error(io::read_threept_from(text.as_bytes(), Path::new("mem.csv")));
+    assert!(
+        msg.contains("missing row") && msg.contains("tau=0"),
+        "{msg}"
+    );
+}
+
+#[test]
+fn unknown_diagram_is_an_error() {
+    let text = "config,tsep,tau,pfx,pfy,pfz,qx,qy,qz,current,projector,re,im,diagram\n\
+                1,0,0,0,0,0,0,0,0,S,none,1,0,loop\n";
+    let (loc, msg) = data_error(io::read_threept_from(text.as_bytes(), Path::new("mem.csv")));
+    assert_at(&loc, "mem.csv", 2, Some(14), "diagram");
+    assert!(msg.contains("unknown diagram `loop`"), "{msg}");
+}

@@ -508,7 +508,11 @@ mod decomposition {
             .collect();
         let currents = [Current::V1, Current::V2, Current::V3, Current::V4];
         let exact = exact_channels(&st, &frames, &currents, &truth);
-        for weights in [DecompositionWeights::Diagonal, DecompositionWeights::Full] {
+        for weights in [
+            DecompositionWeights::Diagonal,
+            DecompositionWeights::Full,
+            DecompositionWeights::Shrinkage,
+        ] {
             let settings = DecompositionSettings {
                 weights,
                 ..Default::default()
@@ -572,7 +576,8 @@ mod decomposition {
         // over d points: the inverse is biased high by (N - 1)/(N - d - 2) (Hartlap, Simon &
         // Schneider, A&A 464 (2007) 399).
         let want = match settings.weights {
-            DecompositionWeights::Diagonal => 1.0,
+            // Uncorrelated noise: the Ledoit–Wolf intensity is near 1, i.e. near-diagonal weights.
+            DecompositionWeights::Diagonal | DecompositionWeights::Shrinkage => 1.0,
             DecompositionWeights::Full => (n_cfg as f64 - 1.0) / (n_cfg as f64 - rows as f64 - 2.0),
         };
         assert!(
@@ -645,6 +650,218 @@ mod decomposition {
         );
     }
 
+    fn varying_mass(n: usize) -> Resampled {
+        Resampled::new(
+            0.5,
+            (0..n).map(|s| 0.5 + 0.002 * (s as f64 - 3.0)).collect(),
+            Scheme::Jackknife,
+        )
+    }
+
+    fn varying_truth(ff: FormFactor, q2: f64, s: Option<usize>) -> f64 {
+        let w = 1.0 + 0.01 * s.map_or(0.0, |i| i as f64);
+        match ff {
+            FormFactor::GE | FormFactor::F => w * dipole(q2, 1.0, 0.8),
+            _ => w * dipole(q2, 4.7, 0.85),
+        }
+    }
+
+    // Twisted boundary conditions (methods.md §1): shells are formed by equal Q^2; channels
+    // related by a rotation that the twist does not break share a shell, the form factors
+    // come back exactly, and every shell's channels have one Q^2.
+    #[test]
+    fn twisted_shells_by_q2_value() {
+        let n = 8;
+        let st = KinematicSetup {
+            twist_sink: [0.7, 0.0, 0.0],
+            twist_source: [0.7, 0.0, 0.0],
+            ..setup(varying_mass(n))
+        };
+        let frames: Vec<(Momentum, Momentum)> =
+            all_momenta(2).into_iter().map(|q| ([0, 0, 0], q)).collect();
+        let currents = [Current::V1, Current::V2, Current::V3, Current::V4];
+        let chans = exact_channels(&st, &frames, &currents, &varying_truth);
+        let d = decompose(&chans, &st, &DecompositionSettings::default()).expect("runs");
+        let mut distinct: Vec<f64> = frames
+            .iter()
+            .map(|&(pf, q)| q_squared(&st.on_shell(pf, q, None).expect("kinematics")))
+            .collect();
+        distinct.sort_by(f64::total_cmp);
+        distinct.dedup_by(|a, b| (*a - *b).abs() < 1e-9);
+        assert_eq!(d.shells.len() + d.skipped.len(), distinct.len());
+        assert!(
+            d.shells.len() >= distinct.len() - 1,
+            "skipped: {:?}",
+            d.skipped
+        );
+        for sh in &d.shells {
+            assert!(sh.label.starts_with("Q2="), "{}", sh.label);
+            for (ff, g) in &sh.form_factors {
+                let want = varying_truth(*ff, sh.q2.central, None);
+                assert!((g.central - want).abs() < 1e-10, "{} {ff}", sh.label);
+                for s in 0..n {
+                    let want = varying_truth(*ff, sh.q2.samples[s], Some(s));
+                    assert!((g.samples[s] - want).abs() < 1e-10);
+                }
+            }
+        }
+    }
+
+    // Fitted energies equal to the dispersion energies give the same decomposition as the
+    // dispersion relation itself; a shell needing a momentum without a fitted energy is skipped
+    // with the reason.
+    #[test]
+    fn fitted_energies_path() {
+        let n = 8;
+        let mass = varying_mass(n);
+        let st = setup(mass.clone());
+        let frames = vec![
+            ([0, 0, 0], [1, 0, 0]),
+            ([1, 0, 0], [1, 1, 0]),
+            ([0, 1, 0], [0, 0, 1]),
+        ];
+        let chans = exact_channels(
+            &st,
+            &frames,
+            &[Current::V1, Current::V2, Current::V3, Current::V4],
+            &varying_truth,
+        );
+        let mut map = std::collections::BTreeMap::new();
+        for p in all_momenta(2) {
+            let pv = lattice_momentum(p, L, [0.0; 3]);
+            map.insert(p, mass.map(|m| continuum_energy(m, pv)));
+        }
+        let fitted = KinematicSetup {
+            energies: Energies::Fitted(map.clone()),
+            ..st.clone()
+        };
+        let a = decompose(&chans, &st, &DecompositionSettings::default()).expect("runs");
+        let b = decompose(&chans, &fitted, &DecompositionSettings::default()).expect("runs");
+        assert_eq!(a.shells.len(), b.shells.len());
+        for (x, y) in a.shells.iter().zip(&b.shells) {
+            assert_abs_diff_eq!(x.q2.central, y.q2.central, epsilon = 1e-14);
+            for ((_, gx), (_, gy)) in x.form_factors.iter().zip(&y.form_factors) {
+                assert_abs_diff_eq!(gx.central, gy.central, epsilon = 1e-12);
+            }
+        }
+        map.remove(&[0, 1, -1]);
+        let missing = KinematicSetup {
+            energies: Energies::Fitted(map),
+            ..st
+        };
+        // Reported per shell, the other shells carry on.
+        let d = decompose(&chans, &missing, &DecompositionSettings::default()).expect("runs");
+        assert_eq!(d.shells.len(), 2);
+        assert_eq!(d.skipped.len(), 1);
+        assert!(
+            d.skipped[0].reason.contains("[0, 1, -1]"),
+            "{}",
+            d.skipped[0].reason
+        );
+    }
+
+    // Spin 0 (methods.md §5): channels V_mu with projector none decompose into F.
+    #[test]
+    fn spin0_decomposition() {
+        let n = 8;
+        let st = KinematicSetup {
+            hadron: Hadron::Spin0,
+            ..setup(varying_mass(n))
+        };
+        let mut chans = Vec::new();
+        for q in all_momenta(2) {
+            for cur in [Current::V1, Current::V2, Current::V3, Current::V4] {
+                let pf = [0, 0, 1];
+                let value = |s: Option<usize>| -> Complex<f64> {
+                    let k = st.on_shell(pf, q, s).expect("kinematics");
+                    let q2 = q_squared(&k);
+                    coefficients(Hadron::Spin0, Projector::None, cur, &k)
+                        .into_iter()
+                        .map(|(ff, kc)| kc * varying_truth(ff, q2, s))
+                        .sum()
+                };
+                let samples: Vec<Complex<f64>> = (0..n).map(|s| value(Some(s))).collect();
+                let central = value(None);
+                chans.push(ChannelValue {
+                    pf,
+                    q,
+                    current: cur,
+                    projector: Projector::None,
+                    re: Resampled::new(
+                        central.re,
+                        samples.iter().map(|z| z.re).collect(),
+                        Scheme::Jackknife,
+                    ),
+                    im: Resampled::new(
+                        central.im,
+                        samples.iter().map(|z| z.im).collect(),
+                        Scheme::Jackknife,
+                    ),
+                });
+            }
+        }
+        let d = decompose(&chans, &st, &DecompositionSettings::default()).expect("runs");
+        assert!(d.shells.len() > 3);
+        for sh in &d.shells {
+            assert_eq!(sh.form_factors.len(), 1);
+            let (ff, g) = &sh.form_factors[0];
+            assert_eq!(*ff, FormFactor::F);
+            assert_abs_diff_eq!(
+                g.central,
+                varying_truth(*ff, sh.q2.central, None),
+                epsilon = 1e-10
+            );
+        }
+    }
+
+    // Forward charges through the decomposition: g_S from Pi(Gamma_0, S), g_T from
+    // Pi(Gamma_k, T_ij) (methods.md §5 check values); tensor channels with q != 0 are reported
+    // as skipped, since the vertex sigma_mu_nu g_T is the forward one only.
+    #[test]
+    fn forward_scalar_and_tensor_charges() {
+        let n = 8;
+        let st = setup(varying_mass(n));
+        let truth = |ff: FormFactor, _q2: f64, s: Option<usize>| {
+            let w = 1.0 + 0.01 * s.map_or(0.0, |i| i as f64);
+            match ff {
+                FormFactor::GS => 1.1 * w,
+                FormFactor::GT => 0.98 * w,
+                _ => 0.0,
+            }
+        };
+        let frames = vec![([0, 0, 0], [0, 0, 0]), ([0, 0, 0], [1, 0, 0])];
+        let chans = exact_channels(
+            &st,
+            &frames,
+            &[Current::S, Current::T12, Current::T13, Current::T23],
+            &truth,
+        );
+        let d = decompose(&chans, &st, &DecompositionSettings::default()).expect("runs");
+        let get = |ff: FormFactor| {
+            d.shells
+                .iter()
+                .filter(|sh| sh.label == "nf2=0 ni2=0 nq2=0")
+                .flat_map(|sh| sh.form_factors.iter())
+                .find(|(f, _)| *f == ff)
+                .map(|(_, g)| g.central)
+        };
+        assert_abs_diff_eq!(
+            get(FormFactor::GS).expect("g_S solved"),
+            1.1,
+            epsilon = 1e-12
+        );
+        assert_abs_diff_eq!(
+            get(FormFactor::GT).expect("g_T solved"),
+            0.98,
+            epsilon = 1e-12
+        );
+        assert!(
+            d.skipped.iter().any(|s| s.reason.contains("forward")),
+            "{:?}",
+            d.skipped
+        );
+    }
+
     // Flavour combination per configuration: u - d of known series is their difference; a
     // missing term is an error naming the channel.
     #[test]
@@ -707,4 +924,86 @@ mod decomposition {
         let err = combine(&data, &[FlavorCombo::isoscalar()]).expect_err("missing term");
         assert!(err.to_string().contains("`d`"), "{err}");
     }
+}
+
+/// Random on-shell kinematics in a general frame (continuum dispersion).
+fn random_frame(rng: &mut ChaCha8Rng) -> OnShell {
+    let m = rng.gen_range(0.3..1.2);
+    let pf = [0; 3].map(|_: i32| rng.gen_range(-0.8..0.8));
+    let pi = [0; 3].map(|_: i32| rng.gen_range(-0.8..0.8));
+    OnShell {
+        mass: m,
+        pf,
+        pi,
+        ef: continuum_energy(m, pf),
+        ei: continuum_energy(m, pi),
+    }
+}
+
+/// `sum_mu q_mu K_mu(ff)` over the four components of a vector or axial current, with the
+/// Euclidean `q = (p_f - p_i, i (E_f - E_i))`.
+fn contract_q(
+    k: &OnShell,
+    proj: Projector,
+    currents: [Current; 4],
+    ff: FormFactor,
+) -> Complex<f64> {
+    let q = [
+        c(k.pf[0] - k.pi[0], 0.0),
+        c(k.pf[1] - k.pi[1], 0.0),
+        c(k.pf[2] - k.pi[2], 0.0),
+        c(0.0, k.ef - k.ei),
+    ];
+    (0..4)
+        .map(|mu| q[mu] * k_of(Hadron::Spin1Half, proj, currents[mu], k, ff))
+        .sum()
+}
+
+// Ward identities of on-shell spinors in any frame (analytic, from slash(P)^2 = -m^2 in
+// Euclidean space): vector current conservation q_mu Pi(V_mu) = 0 for G_E and G_M alike;
+// for the axial vertex q_mu Pi(A_mu)[G_A] = 2 i m Pi(P)[G_5] and
+// q_mu Pi(A_mu)[G_P] = -i Q^2/(2m) Pi(P)[G_5] (PCAC structure of the trace).
+#[test]
+fn ward_identities_in_random_frames() {
+    let mut rng = ChaCha8Rng::seed_from_u64(16);
+    let vec4 = [Current::V1, Current::V2, Current::V3, Current::V4];
+    let ax4 = [Current::A1, Current::A2, Current::A3, Current::A4];
+    let mut nontrivial = 0;
+    for _ in 0..25 {
+        let k = random_frame(&mut rng);
+        let q2 = q_squared(&k);
+        for proj in [
+            Projector::Unpol,
+            Projector::Pol(1),
+            Projector::Pol(2),
+            Projector::Pol(3),
+        ] {
+            assert_c(
+                contract_q(&k, proj, vec4, FormFactor::GE),
+                c(0.0, 0.0),
+                "q.V GE",
+            );
+            assert_c(
+                contract_q(&k, proj, vec4, FormFactor::GM),
+                c(0.0, 0.0),
+                "q.V GM",
+            );
+            let p = k_of(Hadron::Spin1Half, proj, Current::P, &k, FormFactor::G5);
+            nontrivial += usize::from(p.norm() > 1e-3);
+            assert_c(
+                contract_q(&k, proj, ax4, FormFactor::GA),
+                c(0.0, 2.0 * k.mass) * p,
+                "q.A GA",
+            );
+            assert_c(
+                contract_q(&k, proj, ax4, FormFactor::GP),
+                c(0.0, -q2 / (2.0 * k.mass)) * p,
+                "q.A GP",
+            );
+        }
+    }
+    assert!(
+        nontrivial > 50,
+        "the axial identities are tested on non-zero Pi(P): {nontrivial}"
+    );
 }

@@ -411,6 +411,9 @@ fn report_page_is_self_contained_and_escaped() {
     };
     let path = dir.path().join("report.html");
     report.write(&path).unwrap();
+    if let Some(keep) = std::env::var_os("FORMFACTORY_PLOT_DIR") {
+        report.write(&Path::new(&keep).join("report.html")).unwrap();
+    }
     let html = std::fs::read_to_string(&path).unwrap();
     assert!(html.starts_with("<!DOCTYPE html>"));
     for external in ["http://", "https://", "src=", "@import", "url("] {

@@ -89,7 +89,8 @@ fn mean_sd(x: &[f64]) -> (f64, f64) {
 
 #[test]
 fn jackknife_error_of_mean_is_standard_error() {
-    // Identity: the jackknife error of the mean equals s / sqrt(N) (Efron & Tibshirani 1993, §11.2).
+    // Identity: the jackknife error of the mean equals s / sqrt(N) (Efron & Tibshirani 1993,
+    // jackknife chapter; section number from memory: §11.2).
     let x: Vec<f64> = (0..37).map(|i| ((i * 7919) % 101) as f64 * 0.37).collect();
     let (m, s) = mean_sd(&x);
     let r = ResamplePlan::jackknife(x.len()).mean(&x);
@@ -103,7 +104,7 @@ fn jackknife_error_of_mean_is_standard_error() {
 
 #[test]
 fn bootstrap_error_of_mean_approaches_standard_error() {
-    // Efron & Tibshirani 1993, §6.2: the ideal bootstrap SE of the mean is
+    // Efron & Tibshirani 1993 (bootstrap chapter): the ideal bootstrap SE of the mean is
     // sqrt((N-1)/N) s/sqrt(N); with B draws the estimate scatters by about 1/sqrt(2B) = 1.6 %
     // for B = 2000, so 5 % is a 3-sigma tolerance.
     let x = gaussian(100, 11);
@@ -122,6 +123,16 @@ fn bootstrap_plan_is_reproducible() {
     let b = ResamplePlan::bootstrap(20, 50, 7);
     assert_eq!(a, b);
     assert_ne!(a, ResamplePlan::bootstrap(20, 50, 8));
+    assert_eq!(ResamplePlan::new(Scheme::Bootstrap, 20, 50, 7), a);
+    let j = ResamplePlan::new(Scheme::Jackknife, 20, 50, 7);
+    assert_eq!(
+        (j.scheme(), j.n_bins(), j.n_samples()),
+        (Scheme::Jackknife, 20, 20)
+    );
+    assert_eq!(
+        (a.scheme(), a.n_bins(), a.n_samples()),
+        (Scheme::Bootstrap, 20, 50)
+    );
     // Every bootstrap sample draws exactly N bins (definition of the bootstrap).
     if let ResamplePlan::Bootstrap { counts, .. } = &a {
         for row in counts.chunks(20) {
@@ -250,7 +261,7 @@ fn law_school_jackknife_standard_error_of_correlation() {
 
 #[test]
 fn law_school_bootstrap_standard_error_of_correlation() {
-    // Efron & Tibshirani 1993, Table 6.1: bootstrap SE of the law-school correlation
+    // Efron & Tibshirani 1993, Table 6.1 (table number from memory): bootstrap SE of the law-school correlation
     // .132 for B = 3200 (from memory, unverified). B = 2000 here: Monte Carlo scatter about
     // 1.6 %, so a 10 % tolerance leaves room for the remembered value.
     let rows = read_csv("law-school/law.csv");
@@ -264,7 +275,7 @@ fn law_school_bootstrap_standard_error_of_correlation() {
 
 #[test]
 fn resampled_helpers() {
-    // Definitions (Efron & Tibshirani 1993, eqs. 10.2 and 11.5): jackknife bias
+    // Definitions (Efron & Tibshirani 1993, bias chapters; from memory): jackknife bias
     // (N-1)(mean - c), bootstrap bias mean - c.
     let j = Resampled::new(1.0, vec![1.1, 0.9, 1.3, 1.1], Scheme::Jackknife);
     assert_relative_eq!(j.sample_mean(), 1.1, max_relative = 1e-14);
@@ -283,6 +294,14 @@ fn resampled_helpers() {
     assert_relative_eq!(m.samples[2], 2.3, max_relative = 1e-14);
     assert!(Resampled::mean_of(&[]).is_err());
     assert!(Resampled::mean_of(&[j.clone(), b.clone()]).is_err());
+    // Percentile interval = linear-interpolation quantiles (Hyndman & Fan, Am. Stat. 50 (1996)
+    // 361, type 7): numpy 2.4.6 np.percentile(x, [15.865, 84.135]) on these 11 values gives
+    // -0.136075 and 1.90675.
+    let x = vec![0.31, 1.7, -0.4, 2.2, 0.05, 0.9, 1.1, -1.3, 0.66, 0.42, 3.1];
+    let boot = Resampled::new(0.7, x, Scheme::Bootstrap);
+    let (lo, hi) = boot.percentile_interval(0.6827).expect("bootstrap");
+    assert_relative_eq!(lo, -0.136075, max_relative = 1e-12);
+    assert_relative_eq!(hi, 1.90675, max_relative = 1e-12);
     assert!(j.percentile_interval(0.68).is_err());
     assert!(b.percentile_interval(1.5).is_err());
     let s = j.summary();
@@ -293,7 +312,7 @@ fn resampled_helpers() {
 #[test]
 fn value_error_notation() {
     // Concise notation "value(uncertainty in units of the last digits)", BIPM GUM
-    // (JCGM 100:2008) §7.2.2; two significant digits of the error (common practice).
+    // (JCGM 100:2008) §7.2.2 (section from memory); two significant digits of the error (common practice).
     assert_eq!(fmt_value_error(0.92341, 0.00563), "0.9234(56)");
     assert_eq!(fmt_value_error(0.92341, 0.0996), "0.92(10)");
     assert_eq!(fmt_value_error(12.345, 1.2), "12.3(12)");
@@ -586,6 +605,7 @@ fn eigenvalue_cut_raises_small_correlation_eigenvalues() {
     let v = correlated_pair(0.999, sa, sb);
     let full = estimate(&v, &CovarianceOptions::default()).expect("full");
     assert_relative_eq!(full.matrix[(0, 1)], 0.999 * sa * sb, max_relative = 1e-12);
+    assert_relative_eq!(v[0].correlation(&v[1]), 0.999, max_relative = 1e-12);
     assert_relative_eq!(full.condition_number, 1.999 / 0.001, max_relative = 1e-8);
     let opts = CovarianceOptions {
         kind: CovarianceKind::Full,
@@ -654,7 +674,7 @@ fn diagonal_covariance_and_singular_warnings() {
 
 #[test]
 fn hartlap_factor_values() {
-    // Hartlap, Simon & Schneider, A&A 464 (2007) 399, eq. 17: (n - p - 2)/(n - 1).
+    // Hartlap, Simon & Schneider, A&A 464 (2007) 399: (n - p - 2)/(n - 1).
     assert_relative_eq!(hartlap_factor(100, 10).expect("n > d + 2"), 88.0 / 99.0);
     assert_eq!(hartlap_factor(12, 10), None);
 }
@@ -784,7 +804,7 @@ fn gamma_method_on_ar1_chains() {
 
 #[test]
 fn gamma_method_on_independent_data_and_bad_input() {
-    // Independent data: tau_int = 1/2 (Wolff 2004, eq. 17 with rho(t) = 0 for t > 0).
+    // Independent data: tau_int = 1/2 (definition: rho(t) = 0 for t > 0; Wolff 2004).
     let x = gaussian(50_000, 3);
     let r = gamma_method(&x, DEFAULT_S).expect("white noise");
     assert!(
@@ -819,7 +839,7 @@ fn nist_univariate_certified_values() {
     // NIST StRD Univariate Summary Statistics: certified mean, standard deviation (n - 1) and
     // lag-1 autocorrelation r(1) = sum_{i>=2}(y_i - ybar)(y_{i-1} - ybar) / sum (y_i - ybar)^2.
     // The jackknife error of the mean times sqrt(N) is the sd (identity, Efron & Tibshirani
-    // §11.2); Wolff's rho(1) uses 1/(N-1) for the lag-1 sum and 1/N for Gamma(0), so
+    // 1993, jackknife chapter); Wolff's rho(1) uses 1/(N-1) for the lag-1 sum and 1/N for Gamma(0), so
     // r(1) = (N-1)/N rho(1).
     for name in [
         "Michelso", "Mavro", "PiDigits", "NumAcc1", "NumAcc2", "NumAcc3", "NumAcc4",
@@ -848,5 +868,26 @@ fn nist_univariate_certified_values() {
             let wolff = rho(&y, 1).expect("rho")[1] * (n as f64 - 1.0) / n as f64;
             assert_relative_eq!(wolff, r1, max_relative = 1e-13);
         }
+    }
+}
+
+proptest::proptest! {
+    // Parenthesis notation (GUM §7.2.2, section from memory): reading `v(u)` back gives the
+    // value within half a unit of its last digit and the error to two significant digits.
+    #[test]
+    fn value_error_notation_reads_back(v in -1e6f64..1e6, log_e in -9f64..4.0) {
+        let e = 10f64.powf(log_e);
+        let text = fmt_value_error(v, e);
+        let (vs, rest) = text.split_once('(').expect("parenthesis");
+        let us = rest.strip_suffix(')').expect("closing parenthesis");
+        let decimals = vs.split_once('.').map_or(0, |(_, d)| d.len()) as i32;
+        let units: f64 = us.parse().expect("integer error");
+        let value: f64 = vs.parse().expect("number");
+        let unit = if decimals > 0 { 10f64.powi(-decimals) } else { 1.0 };
+        let err = if decimals > 0 { units * unit } else { units };
+        // Half a last digit, plus the f64 resolution of |v| when the digits run out.
+        let slack = 0.5 * unit.max(err / 10.0) + 4.0 * v.abs() * f64::EPSILON;
+        proptest::prop_assert!((value - v).abs() <= slack, "{} vs {}", value, v);
+        proptest::prop_assert!((err - e).abs() <= 0.05 * e + 1e-12, "{} vs {}", err, e);
     }
 }

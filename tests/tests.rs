@@ -3,6 +3,7 @@
 mod common;
 
 mod cli;
+mod closure;
 mod fit;
 mod io;
 mod kinematics;

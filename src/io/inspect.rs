@@ -70,7 +70,7 @@ type Loaded<D> = Option<(PathBuf, D, Summary)>;
 
 /// Read what `path` names: a directory with the standard file names, or one table.
 fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
-    if path.is_dir() {
+    if path != Path::new("-") && path.is_dir() {
         let (p2, p3) = (path.join("twopt.csv"), path.join("threept.csv"));
         if !p2.exists() && !p3.exists() {
             return Err(Error::Table {

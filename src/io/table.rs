@@ -327,8 +327,6 @@ struct Channel {
 /// Collects rows into channels and checks the one-row-per-point rule.
 pub(crate) struct Accumulator {
     ids: HashMap<Vec<u8>, u32>,
-    last_key: Vec<u8>,
-    last_id: u32,
     channels: Vec<Channel>,
     cfg_ids: HashMap<i64, u32>,
     /// Configuration numbers in first-seen order.
@@ -359,8 +357,6 @@ impl Accumulator {
     pub fn new(with_source: bool) -> Self {
         Accumulator {
             ids: HashMap::new(),
-            last_key: Vec::new(),
-            last_id: u32::MAX,
             channels: Vec::new(),
             cfg_ids: HashMap::new(),
             configs: Vec::new(),
@@ -371,15 +367,8 @@ impl Accumulator {
     }
 
     /// The channel id of an encoded key, if known.
-    pub fn channel(&mut self, key: &[u8]) -> Option<u32> {
-        if self.last_id != u32::MAX && self.last_key == key {
-            return Some(self.last_id);
-        }
-        let id = *self.ids.get(key)?;
-        self.last_key.clear();
-        self.last_key.extend_from_slice(key);
-        self.last_id = id;
-        Some(id)
+    pub fn channel(&self, key: &[u8]) -> Option<u32> {
+        self.ids.get(key).copied()
     }
 
     /// Register a new channel under an encoded key; returns its id.
@@ -390,9 +379,6 @@ impl Accumulator {
             cells: Vec::new(),
             first_line: line,
         });
-        self.last_key.clear();
-        self.last_key.extend_from_slice(key);
-        self.last_id = id;
         id
     }
 
@@ -522,5 +508,48 @@ impl Accumulator {
                 sources: self.sources.as_ref().map(|_| (smin.min(smax), smax)),
             },
         })
+    }
+}
+
+/// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
+/// channel (the usual case in long tables) skips parsing its key fields again.
+#[derive(Default)]
+pub(crate) struct KeyCache {
+    /// Length-prefixed key fields of the remembered row (so different field splits never
+    /// compare equal).
+    last: Vec<u8>,
+    valid: bool,
+}
+
+impl KeyCache {
+    /// Whether the key columns `cols` of the current row are byte-identical to those of the
+    /// remembered row. Compares in place, without copying.
+    pub fn same_as_last<R: Read>(&self, rd: &TableReader<R>, cols: &[usize]) -> bool {
+        if !self.valid {
+            return false;
+        }
+        let mut rest = &self.last[..];
+        for &k in cols {
+            let b = rd.raw(k);
+            let Some((len, tail)) = rest.split_first_chunk::<4>() else {
+                return false;
+            };
+            if u32::from_le_bytes(*len) as usize != b.len() || !tail.starts_with(b) {
+                return false;
+            }
+            rest = &tail[b.len()..];
+        }
+        rest.is_empty()
+    }
+
+    /// Remember the key columns `cols` of the current row.
+    pub fn remember<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) {
+        self.last.clear();
+        for &k in cols {
+            let b = rd.raw(k);
+            self.last.extend_from_slice(&(b.len() as u32).to_le_bytes());
+            self.last.extend_from_slice(b);
+        }
+        self.valid = true;
     }
 }

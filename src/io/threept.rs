@@ -3,7 +3,7 @@
 //! Time-axis rule: each channel (one `tsep`) has every insertion time `tau = 0..=tsep` for
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
-use super::table::{display_name, open, Accumulator, Column, Summary, TableReader};
+use super::table::{display_name, open, Accumulator, Column, KeyCache, Summary, TableReader};
 use crate::data::{Current, Diagram, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -22,6 +22,20 @@ const IM: usize = 12;
 const FLAVOR: usize = 13;
 const DIAGRAM: usize = 14;
 const SOURCE: usize = 15;
+/// The columns that make up a channel key.
+const KEY_COLUMNS: [usize; 11] = [
+    TSEP,
+    PFX,
+    PFX + 1,
+    PFX + 2,
+    QX,
+    QX + 1,
+    QX + 2,
+    CURRENT,
+    PROJECTOR,
+    FLAVOR,
+    DIAGRAM,
+];
 
 const SCHEMA: &[Column] = &[
     Column {
@@ -120,9 +134,29 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
     let mut acc = Accumulator::new(with_source);
     let mut keys: Vec<ThreePointKey> = Vec::new();
     let mut enc: Vec<u8> = Vec::with_capacity(64);
+    let mut cache = KeyCache::default();
+    let mut last: Option<u32> = None;
     while rd.next()? {
         let config = rd.int(CONFIG, SCHEMA)?;
-        let tsep = rd.time(TSEP, SCHEMA)?;
+        let same = cache.same_as_last(&rd, &KEY_COLUMNS);
+        let id = match last {
+            Some(id) if same => id,
+            _ => {
+                let id = channel_id(
+                    &rd,
+                    &mut acc,
+                    &mut keys,
+                    &mut enc,
+                    with_flavor,
+                    with_diagram,
+                )?;
+                cache.remember(&rd, &KEY_COLUMNS);
+                last = Some(id);
+                id
+            }
+        };
+        let k = &keys[id as usize];
+        let tsep = k.tsep;
         let tau = rd.time(TAU, SCHEMA)?;
         if tau > tsep {
             return Err(Error::Data {
@@ -130,27 +164,6 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
                 message: format!("tau = {tau} lies outside [0, tsep] = [0, {tsep}]"),
             });
         }
-        let mut pf = [0i32; 3];
-        let mut q = [0i32; 3];
-        for i in 0..3 {
-            pf[i] = rd.mom(PFX + i, SCHEMA)?;
-            q[i] = rd.mom(QX + i, SCHEMA)?;
-        }
-        let name = rd.text(CURRENT, SCHEMA)?;
-        let current = Current::parse(name).ok_or_else(|| Error::Data {
-            location: rd.location(CURRENT, "current"),
-            message: format!(
-                "unknown current `{name}`; expected one of {}",
-                current_names()
-            ),
-        })?;
-        let name = rd.text(PROJECTOR, SCHEMA)?;
-        let projector = Projector::parse(name).ok_or_else(|| Error::Data {
-            location: rd.location(PROJECTOR, "projector"),
-            message: format!(
-                "unknown projector `{name}`; expected one of unpol, pol1, pol2, pol3, none"
-            ),
-        })?;
         let re = rd.float(RE, SCHEMA)?;
         let im = rd.float(IM, SCHEMA)?;
         let source = if with_source {
@@ -158,59 +171,6 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
         } else {
             None
         };
-        let diagram = if with_diagram {
-            match rd.raw(DIAGRAM) {
-                b"" => None,
-                b"connected" => Some(Diagram::Connected),
-                b"disconnected" => Some(Diagram::Disconnected),
-                other => {
-                    return Err(Error::Data {
-                        location: rd.location(DIAGRAM, "diagram"),
-                        message: format!(
-                            "unknown diagram `{}`; expected connected, disconnected or an \
-                             empty field",
-                            String::from_utf8_lossy(other)
-                        ),
-                    })
-                }
-            }
-        } else {
-            None
-        };
-        let flavor = if with_flavor {
-            rd.text(FLAVOR, SCHEMA)?
-        } else {
-            ""
-        };
-        enc.clear();
-        enc.extend_from_slice(&tsep.to_le_bytes());
-        for p in pf.iter().chain(q.iter()) {
-            enc.extend_from_slice(&p.to_le_bytes());
-        }
-        enc.push(current as u8);
-        enc.extend_from_slice(projector.name().as_bytes());
-        enc.push(match diagram {
-            None => 0,
-            Some(Diagram::Connected) => 1,
-            Some(Diagram::Disconnected) => 2,
-        });
-        enc.extend_from_slice(flavor.as_bytes());
-        let id = match acc.channel(&enc) {
-            Some(id) => id,
-            None => {
-                keys.push(ThreePointKey {
-                    tsep,
-                    pf,
-                    q,
-                    current,
-                    projector,
-                    flavor: (!flavor.is_empty()).then(|| flavor.to_string()),
-                    diagram,
-                });
-                acc.add_channel(&enc, rd.line)
-            }
-        };
-        let k = &keys[id as usize];
         acc.add(
             id,
             tau,
@@ -257,4 +217,90 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
         },
         done.summary,
     ))
+}
+
+/// Parse the key columns of the current row and return its channel id, registering a new
+/// channel when the key is new.
+fn channel_id<R: Read>(
+    rd: &TableReader<R>,
+    acc: &mut Accumulator,
+    keys: &mut Vec<ThreePointKey>,
+    enc: &mut Vec<u8>,
+    with_flavor: bool,
+    with_diagram: bool,
+) -> Result<u32> {
+    let tsep = rd.time(TSEP, SCHEMA)?;
+    let mut pf = [0i32; 3];
+    let mut q = [0i32; 3];
+    for i in 0..3 {
+        pf[i] = rd.mom(PFX + i, SCHEMA)?;
+        q[i] = rd.mom(QX + i, SCHEMA)?;
+    }
+    let name = rd.text(CURRENT, SCHEMA)?;
+    let current = Current::parse(name).ok_or_else(|| Error::Data {
+        location: rd.location(CURRENT, "current"),
+        message: format!(
+            "unknown current `{name}`; expected one of {}",
+            current_names()
+        ),
+    })?;
+    let name = rd.text(PROJECTOR, SCHEMA)?;
+    let projector = Projector::parse(name).ok_or_else(|| Error::Data {
+        location: rd.location(PROJECTOR, "projector"),
+        message: format!(
+            "unknown projector `{name}`; expected one of unpol, pol1, pol2, pol3, none"
+        ),
+    })?;
+    let diagram = if with_diagram {
+        match rd.raw(DIAGRAM) {
+            b"" => None,
+            b"connected" => Some(Diagram::Connected),
+            b"disconnected" => Some(Diagram::Disconnected),
+            other => {
+                return Err(Error::Data {
+                    location: rd.location(DIAGRAM, "diagram"),
+                    message: format!(
+                        "unknown diagram `{}`; expected connected, disconnected or an \
+                             empty field",
+                        String::from_utf8_lossy(other)
+                    ),
+                })
+            }
+        }
+    } else {
+        None
+    };
+    let flavor = if with_flavor {
+        rd.text(FLAVOR, SCHEMA)?
+    } else {
+        ""
+    };
+    enc.clear();
+    enc.extend_from_slice(&tsep.to_le_bytes());
+    for p in pf.iter().chain(q.iter()) {
+        enc.extend_from_slice(&p.to_le_bytes());
+    }
+    enc.push(current as u8);
+    enc.extend_from_slice(projector.name().as_bytes());
+    enc.push(match diagram {
+        None => 0,
+        Some(Diagram::Connected) => 1,
+        Some(Diagram::Disconnected) => 2,
+    });
+    enc.extend_from_slice(flavor.as_bytes());
+    Ok(match acc.channel(enc) {
+        Some(id) => id,
+        None => {
+            keys.push(ThreePointKey {
+                tsep,
+                pf,
+                q,
+                current,
+                projector,
+                flavor: (!flavor.is_empty()).then(|| flavor.to_string()),
+                diagram,
+            });
+            acc.add_channel(enc, rd.line)
+        }
+    })
 }

@@ -3,7 +3,7 @@
 //! Time-axis rule: `T = max t + 1` over the whole table, and every channel must have every
 //! `t = 0..T-1` for every configuration.
 
-use super::table::{display_name, open, Accumulator, Column, Summary, TableReader};
+use super::table::{display_name, open, Accumulator, Column, KeyCache, Summary, TableReader};
 use crate::data::{Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -17,6 +17,8 @@ const RE: usize = 5;
 const IM: usize = 6;
 const SOURCE: usize = 7;
 const SMEAR: usize = 8;
+/// The columns that make up a channel key.
+const KEY_COLUMNS: [usize; 4] = [PX, PX + 1, PX + 2, SMEAR];
 
 const SCHEMA: &[Column] = &[
     Column {
@@ -79,12 +81,20 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
     let mut keys: Vec<TwoPointKey> = Vec::new();
     let mut enc: Vec<u8> = Vec::with_capacity(64);
     let mut max_t: Option<u32> = None;
+    let mut cache = KeyCache::default();
+    let mut last: Option<u32> = None;
     while rd.next()? {
         let config = rd.int(CONFIG, SCHEMA)?;
-        let mut momentum = [0i32; 3];
-        for (i, p) in momentum.iter_mut().enumerate() {
-            *p = rd.mom(PX + i, SCHEMA)?;
-        }
+        let same = cache.same_as_last(&rd, &KEY_COLUMNS);
+        let id = match last {
+            Some(id) if same => id,
+            _ => {
+                let id = channel_id(&rd, &mut acc, &mut keys, &mut enc, with_smear)?;
+                cache.remember(&rd, &KEY_COLUMNS);
+                last = Some(id);
+                id
+            }
+        };
         let t = rd.time(T, SCHEMA)?;
         let re = rd.float(RE, SCHEMA)?;
         let im = rd.float(IM, SCHEMA)?;
@@ -92,26 +102,6 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
             Some(rd.int(SOURCE, SCHEMA)?)
         } else {
             None
-        };
-        enc.clear();
-        for p in momentum {
-            enc.extend_from_slice(&p.to_le_bytes());
-        }
-        let smear = if with_smear {
-            rd.text(SMEAR, SCHEMA)?
-        } else {
-            ""
-        };
-        enc.extend_from_slice(smear.as_bytes());
-        let id = match acc.channel(&enc) {
-            Some(id) => id,
-            None => {
-                keys.push(TwoPointKey {
-                    momentum,
-                    smear: (!smear.is_empty()).then(|| smear.to_string()),
-                });
-                acc.add_channel(&enc, rd.line)
-            }
         };
         max_t = max_t.max(Some(t));
         let k = &keys[id as usize];
@@ -163,4 +153,39 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
         },
         done.summary,
     ))
+}
+
+/// Parse the key columns of the current row and return its channel id, registering a new
+/// channel when the key is new.
+fn channel_id<R: Read>(
+    rd: &TableReader<R>,
+    acc: &mut Accumulator,
+    keys: &mut Vec<TwoPointKey>,
+    enc: &mut Vec<u8>,
+    with_smear: bool,
+) -> Result<u32> {
+    let mut momentum = [0i32; 3];
+    for (i, p) in momentum.iter_mut().enumerate() {
+        *p = rd.mom(PX + i, SCHEMA)?;
+    }
+    enc.clear();
+    for p in momentum {
+        enc.extend_from_slice(&p.to_le_bytes());
+    }
+    let smear = if with_smear {
+        rd.text(SMEAR, SCHEMA)?
+    } else {
+        ""
+    };
+    enc.extend_from_slice(smear.as_bytes());
+    Ok(match acc.channel(enc) {
+        Some(id) => id,
+        None => {
+            keys.push(TwoPointKey {
+                momentum,
+                smear: (!smear.is_empty()).then(|| smear.to_string()),
+            });
+            acc.add_channel(enc, rd.line)
+        }
+    })
 }

@@ -5,7 +5,7 @@
 //! with twists) and a current kind, every channel gives `Pi_c = sum_k K_ck G_k` with complex
 //! `K` from [`coefficients`]. Real and imaginary parts whose coefficients do not all vanish are
 //! stacked into a real linear system, whitened by the data covariance (its diagonal or the
-//! full matrix, estimated once from the resamples and held fixed, common practice), and solved
+//! full or shrunk matrix, estimated once from the resamples and held fixed, common practice), and solved
 //! by SVD on the central value and on every resample. Channels whose coefficients all vanish
 //! are dropped and counted; form factors that no channel of the shell constrains are left out
 //! of that shell.
@@ -15,9 +15,12 @@ use super::momentum::q2_to_gev2;
 use super::phase::Phase;
 use super::setup::{at, KinematicSetup};
 use crate::data::{norm2, sub, Current, CurrentKind, Momentum, Projector};
-use crate::resample::{covariance_of, Resampled};
+use crate::fit::Weights;
+use crate::resample::covariance::{self, CovarianceKind, CovarianceOptions, ShrinkageTarget};
+use crate::resample::Resampled;
 use crate::{Error, Result};
-use nalgebra::{Cholesky, Complex, DMatrix, DVector};
+use nalgebra::{Complex, DMatrix, DVector};
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 
@@ -60,6 +63,8 @@ pub enum DecompositionWeights {
     Diagonal,
     /// The full covariance of all stacked parts, estimated from the resamples.
     Full,
+    /// The covariance shrunk toward its diagonal with the Ledoit–Wolf intensity.
+    Shrinkage,
 }
 
 /// User settings of the decomposition.
@@ -169,11 +174,10 @@ pub fn decompose(
     let mut out = Decomposition::default();
     for (label, kind, members) in shells(channels, setup, settings.q2_tolerance)? {
         match solve_shell(&members, kind, setup, settings.weights, &phases, n) {
-            Ok(Some(mut r)) => {
+            Ok(mut r) => {
                 r.label = label;
                 out.shells.push(r);
             }
-            Ok(None) => {}
             Err(reason) => out.skipped.push(SkippedShell {
                 label,
                 kind,
@@ -246,7 +250,7 @@ fn shells<'a>(
 /// One real equation: channel index and real (false) or imaginary (true) part.
 type Row = (usize, bool);
 
-/// Solve one shell. `Ok(None)` when the kind has no form factors for this hadron.
+/// Solve one shell; `Err` carries the reason it could not be solved.
 fn solve_shell(
     members: &[&ChannelValue],
     kind: CurrentKind,
@@ -254,10 +258,19 @@ fn solve_shell(
     weights: DecompositionWeights,
     phases: &BTreeMap<Current, Complex<f64>>,
     n: usize,
-) -> std::result::Result<Option<ShellResult>, String> {
+) -> std::result::Result<ShellResult, String> {
     let all = FormFactor::of(setup.hadron, kind);
     if all.is_empty() {
-        return Ok(None);
+        return Err(format!(
+            "a {:?} hadron has no form factors for a {kind:?} current",
+            setup.hadron
+        ));
+    }
+    if kind == CurrentKind::Tensor && members.iter().any(|c| c.q != [0, 0, 0]) {
+        return Err(
+            "the tensor vertex sigma_mu_nu g_T holds for forward matrix elements only (q = 0)"
+                .into(),
+        );
     }
     let coeffs =
         |c: &ChannelValue, s: Option<usize>| -> std::result::Result<Vec<Complex<f64>>, String> {
@@ -325,12 +338,26 @@ fn solve_shell(
             })
         })
         .collect();
-    let chol = whitening(&data, &rows, members, weights)?;
+    let w = whitening(&data, &rows, members, weights)?;
+    let mut central = BTreeMap::new();
+    for &ci in &used {
+        let c = members[ci];
+        let k = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
+        central.insert(ci, (k, coeffs(c, None)?));
+    }
     let solve = |s: Option<usize>| -> std::result::Result<(DVector<f64>, f64, f64), String> {
         let mut k = DMatrix::zeros(rows.len(), unknowns.len());
+        // Coefficients per used channel; reuse the central ones when the kinematics of this
+        // sample are the central kinematics (exact masses and energies).
         let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
         for &ci in &used {
-            cache.insert(ci, coeffs(members[ci], s)?);
+            let c = members[ci];
+            let k = setup.on_shell(c.pf, c.q, s).map_err(|e| e.to_string())?;
+            let kc = match central.get(&ci) {
+                Some((k0, kc0)) if *k0 == k => kc0.clone(),
+                _ => coeffs(c, s)?,
+            };
+            cache.insert(ci, kc);
         }
         for (r, &(ci, imag)) in rows.iter().enumerate() {
             let kc = &cache[&ci];
@@ -339,12 +366,9 @@ fn solve_shell(
             }
         }
         let y = DVector::from_iterator(rows.len(), data.iter().map(|d| at(d, s)));
-        let a = chol
-            .solve_lower_triangular(&k)
-            .ok_or("singular weight matrix")?;
-        let b = chol
-            .solve_lower_triangular(&y)
-            .ok_or("singular weight matrix")?;
+        let a = w.whiten_matrix(&k);
+        let mut b = DVector::zeros(rows.len());
+        w.whiten(y.as_slice(), b.as_mut_slice());
         let svd = a.clone().svd(true, true);
         let smax = svd.singular_values.max();
         let smin = svd.singular_values.min();
@@ -359,13 +383,13 @@ fn solve_shell(
         Ok((g, chi2, smax / smin))
     };
     let (g0, chi2, condition) = solve(None)?;
-    let mut samples = vec![Vec::with_capacity(n); unknowns.len()];
-    for s in 0..n {
-        let (g, _, _) = solve(Some(s))?;
-        for (col, v) in samples.iter_mut().enumerate() {
-            v.push(g[col]);
-        }
-    }
+    let per_sample = (0..n)
+        .into_par_iter()
+        .map(|s| solve(Some(s)).map(|(g, _, _)| g))
+        .collect::<std::result::Result<Vec<_>, String>>()?;
+    let samples: Vec<Vec<f64>> = (0..unknowns.len())
+        .map(|col| per_sample.iter().map(|g| g[col]).collect())
+        .collect();
     let scheme = setup.mass.scheme;
     let form_factors = unknowns
         .iter()
@@ -384,7 +408,7 @@ fn solve_shell(
     let refs: Vec<&Resampled> = q2s.iter().collect();
     let q2 = Resampled::combine(&refs, |v| v.iter().sum::<f64>() / v.len() as f64);
     let dof = rows.len() - unknowns.len();
-    Ok(Some(ShellResult {
+    Ok(ShellResult {
         label: String::new(),
         kind,
         q2_gev2: setup.spacing_fm.map(|a| q2.map(|x| q2_to_gev2(x, a))),
@@ -395,17 +419,17 @@ fn solve_shell(
         dof,
         chi2_dof: (dof > 0).then(|| chi2 / dof as f64),
         condition,
-    }))
+    })
 }
 
-/// Lower-triangular factor `L` of the data covariance `C = L L^T` (diagonal or full).
+/// Whitening of the stacked parts: inverse errors, or the (shrunk) covariance estimated from
+/// the resamples (`resample::covariance`), inverted by `fit::Weights`.
 fn whitening(
     data: &[Resampled],
     rows: &[Row],
     members: &[&ChannelValue],
     weights: DecompositionWeights,
-) -> std::result::Result<DMatrix<f64>, String> {
-    let m = data.len();
+) -> std::result::Result<Weights, String> {
     for (d, &(ci, imag)) in data.iter().zip(rows) {
         let v = d.variance();
         if !(v > 0.0 && v.is_finite()) {
@@ -416,21 +440,28 @@ fn whitening(
             ));
         }
     }
-    match weights {
-        DecompositionWeights::Diagonal => Ok(DMatrix::from_diagonal(&DVector::from_iterator(
-            m,
-            data.iter().map(|d| d.error()),
-        ))),
-        DecompositionWeights::Full => {
-            let cov = DMatrix::from_fn(m, m, |i, j| {
-                covariance_of(&data[i].samples, &data[j].samples, data[i].scheme)
-            });
-            Cholesky::new(cov).map(|c| c.l()).ok_or_else(|| {
-                format!(
-                    "the covariance of the {m} stacked parts is not positive definite ({} samples); use diagonal weights",
-                    data[0].len()
-                )
-            })
+    let kind = match weights {
+        DecompositionWeights::Diagonal => {
+            return Ok(Weights::diagonal(
+                &data.iter().map(Resampled::error).collect::<Vec<_>>(),
+            ))
         }
-    }
+        DecompositionWeights::Full => CovarianceKind::Full,
+        DecompositionWeights::Shrinkage => CovarianceKind::Shrinkage {
+            target: ShrinkageTarget::Diagonal,
+            intensity: None,
+        },
+    };
+    let opts = CovarianceOptions {
+        kind,
+        eigen_cut: None,
+    };
+    let cov = covariance::estimate(data, &opts).map_err(|e| e.to_string())?;
+    Weights::from_covariance(&cov.matrix).map_err(|e| {
+        format!(
+            "{e} ({} stacked parts, {} samples); use diagonal or shrinkage weights",
+            data.len(),
+            data[0].len()
+        )
+    })
 }

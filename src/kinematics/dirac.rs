@@ -63,9 +63,30 @@ pub(crate) fn sigma(mu: usize, nu: usize) -> M4 {
     (a * b - b * a) / (2.0 * I)
 }
 
+/// The gamma matrices, `gamma_5` and `sigma_mu_nu`, built once.
+pub(crate) struct Clifford {
+    /// `gamma_mu` at index `mu - 1`.
+    pub g: [M4; 4],
+    /// `gamma_5`.
+    pub g5: M4,
+    /// `sigma_mu_nu` at `[mu - 1][nu - 1]`.
+    pub sigma: [[M4; 4]; 4],
+}
+
+/// The shared [`Clifford`] table.
+pub(crate) fn clifford() -> &'static Clifford {
+    static TABLE: std::sync::OnceLock<Clifford> = std::sync::OnceLock::new();
+    TABLE.get_or_init(|| Clifford {
+        g: [1, 2, 3, 4].map(gamma),
+        g5: gamma5(),
+        sigma: [1, 2, 3, 4].map(|mu| [1, 2, 3, 4].map(|nu| sigma(mu, nu))),
+    })
+}
+
 /// `slash(P) = gamma_mu P_mu` for a complex Euclidean four-vector (index 0..3 = mu 1..4).
 pub(crate) fn slash(p: &[Complex<f64>; 4]) -> M4 {
-    (1..=4).fold(M4::zeros(), |acc, mu| acc + gamma(mu) * p[mu - 1])
+    let g = &clifford().g;
+    (0..4).fold(M4::zeros(), |acc, i| acc + g[i] * p[i])
 }
 
 /// The positive-energy numerator `-i slash(P) + m`.

@@ -10,7 +10,7 @@
 //! code. The vector current is traced in the Dirac/Pauli basis (F1, F2) and converted to the
 //! Sachs form factors, `G_E = F1 - Q²/(4m²) F2`, `G_M = F1 + F2`.
 
-use super::dirac::{gamma, gamma5, propagator_numerator, sigma, M4};
+use super::dirac::{clifford, propagator_numerator, M4};
 use super::momentum::{q_squared, OnShell};
 use crate::data::{Current, CurrentKind, Projector};
 use nalgebra::Complex;
@@ -167,10 +167,11 @@ fn four_vector(p: [f64; 3], e: f64) -> [Complex<f64>; 4] {
 }
 
 fn projector_matrix(projector: Projector) -> Option<M4> {
-    let unpol = (M4::identity() + gamma(4)) * Complex::new(0.5, 0.0);
+    let c = clifford();
+    let unpol = (M4::identity() + c.g[3]) * Complex::new(0.5, 0.0);
     match projector {
         Projector::Unpol => Some(unpol),
-        Projector::Pol(k @ 1..=3) => Some(unpol * gamma5() * gamma(usize::from(k)) * I),
+        Projector::Pol(k @ 1..=3) => Some(unpol * c.g5 * c.g[usize::from(k) - 1] * I),
         _ => None,
     }
 }
@@ -193,11 +194,12 @@ fn spin_half(
     let trace = |vertex: M4| (left * vertex * right).trace() / norm;
     let idx = current.indices();
     let two_m = Complex::new(2.0 * m, 0.0);
+    let c = clifford();
     match current.kind() {
         CurrentKind::Vector => {
-            let mu = idx[0];
-            let f1 = trace(gamma(mu));
-            let sig_q = (1..=4).fold(M4::zeros(), |acc, nu| acc + sigma(mu, nu) * q[nu - 1]);
+            let mu = idx[0] - 1;
+            let f1 = trace(c.g[mu]);
+            let sig_q = (0..4).fold(M4::zeros(), |acc, nu| acc + c.sigma[mu][nu] * q[nu]);
             let f2 = trace(-sig_q / two_m);
             // Pi = K1 F1 + K2 F2 with F1 = (GE + tau GM)/(1 + tau), F2 = (GM - GE)/(1 + tau).
             let tau = q_squared(k) / (4.0 * m * m);
@@ -207,15 +209,14 @@ fn spin_half(
             ]
         }
         CurrentKind::Axial => {
-            let mu = idx[0];
-            let g5 = gamma5();
+            let mu = idx[0] - 1;
             vec![
-                (FormFactor::GA, trace(gamma(mu) * g5)),
-                (FormFactor::GP, trace(g5 * (-I * q[mu - 1] / two_m))),
+                (FormFactor::GA, trace(c.g[mu] * c.g5)),
+                (FormFactor::GP, trace(c.g5 * (-I * q[mu] / two_m))),
             ]
         }
         CurrentKind::Scalar => vec![(FormFactor::GS, trace(M4::identity()))],
-        CurrentKind::Pseudoscalar => vec![(FormFactor::G5, trace(gamma5()))],
-        CurrentKind::Tensor => vec![(FormFactor::GT, trace(sigma(idx[0], idx[1])))],
+        CurrentKind::Pseudoscalar => vec![(FormFactor::G5, trace(c.g5))],
+        CurrentKind::Tensor => vec![(FormFactor::GT, trace(c.sigma[idx[0] - 1][idx[1] - 1]))],
     }
 }

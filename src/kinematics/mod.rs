@@ -26,7 +26,7 @@ pub use decompose::{
     ShellResult, SkippedShell,
 };
 pub use phase::Phase;
-pub use setup::{Dispersion, Energies, KinematicSetup};
+pub use setup::{Dispersion, Energies, EnergySource, KinematicSetup};
 
 pub use factors::{coefficients, FormFactor, Hadron};
 pub use momentum::{

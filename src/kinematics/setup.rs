@@ -31,6 +31,33 @@ impl Dispersion {
     }
 }
 
+/// The user's choice of energies (a settings value; [`EnergySource::energies`] turns it into
+/// [`Energies`] once the two-point fits are known).
+#[derive(
+    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum EnergySource {
+    /// Fitted energies per momentum from the two-point stage.
+    #[default]
+    Fitted,
+    /// The continuum dispersion relation on the fitted mass.
+    Continuum,
+    /// The lattice dispersion relation on the fitted mass.
+    Lattice,
+}
+
+impl EnergySource {
+    /// The energies for this choice, given the fitted energies per momentum.
+    pub fn energies(self, fitted: BTreeMap<Momentum, Resampled>) -> Energies {
+        match self {
+            EnergySource::Fitted => Energies::Fitted(fitted),
+            EnergySource::Continuum => Energies::Dispersion(Dispersion::Continuum),
+            EnergySource::Lattice => Energies::Dispersion(Dispersion::Lattice),
+        }
+    }
+}
+
 /// Where the energies of sink and source come from.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Energies {

@@ -1,15 +1,122 @@
-//! The mock-ensemble generator (methods.md §8). The spec, noise, channel selection and truth
-//! types are in place; generation waits for the kinematic factors.
+//! The mock-ensemble generator (methods.md §8): per-configuration two- and three-point
+//! functions made from a known truth, for closure tests and the demo.
+//!
+//! A YAML spec ([`MockSpec`]) fixes the lattice, the hadron's spectrum (one to three states,
+//! energies from a dispersion relation, overlaps with a smearing-like momentum fall-off), the
+//! form-factor models, the excited-state transition strengths, the channels and the noise
+//! (Gaussian, correlated across time, growing like the nucleon signal-to-noise problem,
+//! correlated between a three-point function and the two-point function dividing it, AR(1) in
+//! Monte Carlo time). [`generate`] builds the ensemble in memory; [`generate_from_file`]
+//! writes `twopt.csv`, `threept.csv` (data-format.md) and `truth.yaml` ([`Truth`]).
+//!
+//! The three-point means use the kinematic factors of [`crate::kinematics`], so the ratio of
+//! methods.md §3 tends to `Pi = sum_k K_k G_k(Q^2)`, exactly so for a single-state spec. Every
+//! channel draws its noise from its own seeded ChaCha8 stream: the same seed gives
+//! byte-identical files on any number of threads.
 
-pub mod channels;
-pub mod noise;
-pub mod spec;
-pub mod truth;
+mod channels;
+mod generate;
+mod model;
+mod noise;
+mod spec;
+mod truth;
 
-use std::path::Path;
+pub use generate::{generate, MockEnsemble};
+pub use spec::{
+    ChannelSpec, Correlation, EnsembleSpec, FormFactorModel, FormFactorSpec, HadronSpec, Insertion,
+    MockSpec, MomentumPair, MomentumSelection, NoiseSpec, NonNegative, OutputSpec, Positive,
+    StateSpec, TransitionSpec, Transitions,
+};
+pub use truth::{
+    Truth, TruthConfigs, TruthHadron, TruthLattice, TruthLevels, TruthMatrixElement, TruthPoint,
+};
 
-/// Read a mock spec and write `twopt.csv`, `threept.csv` and `truth.yaml` into `out`;
-/// returns a one-paragraph summary for the terminal.
-pub fn generate_from_file(_spec: &Path, _out: &Path) -> crate::Result<String> {
-    Err(crate::Error::config("mock generation is not built yet"))
+use crate::{Error, Result};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Names of the files written by [`generate_from_file`].
+pub const OUTPUT_FILES: [&str; 3] = ["twopt.csv", "threept.csv", "truth.yaml"];
+
+/// Read a mock spec and write `twopt.csv`, `threept.csv` and `truth.yaml` into `out` (created
+/// if needed; each file written to a temporary file there and renamed into place, so a failed
+/// run leaves no half-written table); returns a one-paragraph summary for the terminal.
+pub fn generate_from_file(spec_path: &Path, out: &Path) -> Result<String> {
+    let text = std::fs::read_to_string(spec_path).map_err(|e| Error::io(spec_path, e))?;
+    let spec = MockSpec::from_yaml(&text, &spec_path.display().to_string())?;
+    std::fs::create_dir_all(out).map_err(|e| Error::io(out, e))?;
+    let targets: Vec<PathBuf> = OUTPUT_FILES.iter().map(|f| out.join(f)).collect();
+    refuse_to_overwrite_input(spec_path, &targets)?;
+    let ensemble = generate(&spec)?;
+
+    write_atomically(&targets[0], |w| crate::io::write_twopt(&ensemble.twopt, w))?;
+    write_atomically(&targets[1], |w| {
+        crate::io::write_threept(&ensemble.threept, w)
+    })?;
+    let truth = ensemble.truth.to_yaml()?;
+    write_atomically(&targets[2], |w| {
+        w.write_all(truth.as_bytes())
+            .map_err(|e| Error::io(&targets[2], e))
+    })?;
+    Ok(summary(&spec, &ensemble, out))
+}
+
+fn refuse_to_overwrite_input(spec_path: &Path, targets: &[PathBuf]) -> Result<()> {
+    let input = std::fs::canonicalize(spec_path).map_err(|e| Error::io(spec_path, e))?;
+    for t in targets {
+        if std::fs::canonicalize(t).is_ok_and(|t| t == input) {
+            return Err(Error::config(format!(
+                "mock: the output {} is the spec itself; choose another --out directory",
+                t.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// Write `path` through a temporary file in the same directory, renamed into place at the end.
+fn write_atomically(
+    path: &Path,
+    write: impl FnOnce(&mut std::io::BufWriter<&mut tempfile::NamedTempFile>) -> Result<()>,
+) -> Result<()> {
+    let dir = path.parent().unwrap_or(Path::new("."));
+    let mut tmp = tempfile::NamedTempFile::new_in(dir).map_err(|e| Error::io(dir, e))?;
+    #[cfg(unix)]
+    {
+        // Temporary files are private (0600); the tables are ordinary data files.
+        use std::os::unix::fs::PermissionsExt;
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .map_err(|e| Error::io(path, e))?;
+    }
+    {
+        let mut w = std::io::BufWriter::new(&mut tmp);
+        write(&mut w)?;
+        w.flush().map_err(|e| Error::io(path, e))?;
+    }
+    tmp.persist(path).map_err(|e| Error::io(path, e.error))?;
+    Ok(())
+}
+
+fn summary(spec: &MockSpec, e: &MockEnsemble, out: &Path) -> String {
+    let n_cfg = spec.ensemble.configs;
+    let rows2: usize = e.twopt.channels.values().map(|s| s.n_t * n_cfg).sum();
+    let rows3: usize = e.threept.channels.values().map(|s| s.n_t * n_cfg).sum();
+    let spin = match spec.hadron.kind {
+        crate::kinematics::Hadron::Spin1Half => "spin 1/2",
+        crate::kinematics::Hadron::Spin0 => "spin 0",
+    };
+    format!(
+        "mock ensemble ({spin}, {} state(s), {n_cfg} configurations, seed {}) written to {}:\n  \
+         twopt.csv    {} momenta, {rows2} rows\n  \
+         threept.csv  {} channels, {rows3} rows\n  \
+         truth.yaml   {} (p_f, q) points, {} matrix elements",
+        spec.hadron.states.len(),
+        spec.seed,
+        out.display(),
+        e.twopt.channels.len(),
+        e.threept.channels.len(),
+        e.truth.points.len(),
+        e.truth.matrix_elements.len(),
+    )
 }

@@ -7,6 +7,7 @@
 //! state) are checked by [`MockSpec::validate`], whose errors name the dotted key.
 
 use crate::data::{Current, CurrentKind, Momentum, Projector};
+use crate::kinematics::{Dispersion, FormFactor, Hadron};
 use crate::{Error, Result};
 use schemars::JsonSchema;
 use serde::{Deserialize, Deserializer, Serialize};
@@ -60,33 +61,14 @@ pub struct EnsembleSpec {
     pub config_step: i64,
 }
 
-/// Spin of the hadron.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
-#[serde(rename_all = "snake_case")]
-pub enum Spin {
-    /// Spin 1/2 (nucleon-like): projectors `unpol`, `pol1`..`pol3`.
-    Half,
-    /// Spin 0 (pion-like): projector `none`, vector current only.
-    Zero,
-}
-
-/// The dispersion relation giving `E_n(p)` from the masses.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
-#[serde(rename_all = "snake_case")]
-pub enum Dispersion {
-    /// `E^2 = m^2 + p^2`.
-    Continuum,
-    /// `sinh^2(E/2) = sinh^2(m/2) + sum_i sin^2(p_i/2)`.
-    Lattice,
-}
-
 /// The hadron and its spectrum.
 #[derive(Clone, Debug, Deserialize, Serialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct HadronSpec {
-    /// `half` or `zero`.
-    pub spin: Spin,
-    /// `continuum` or `lattice`.
+    /// `spin1half` (nucleon-like: projectors `unpol`, `pol1`..`pol3`) or `spin0` (pion-like:
+    /// projector `none`, vector current only).
+    pub kind: Hadron,
+    /// `continuum` (`E^2 = m^2 + p^2`) or `lattice` (`sinh^2(E/2) = sinh^2(m/2) + sum_i sin^2(p_i/2)`).
     pub dispersion: Dispersion,
     /// Ground state first, then one or two excited states (masses strictly increasing).
     #[serde(deserialize_with = "states")]
@@ -281,11 +263,46 @@ pub struct ChannelSpec {
     pub momenta: MomentumSelection,
     /// Source–sink separations of the three-point functions.
     pub tseps: Vec<u32>,
+    /// Groups of currents, each with the projectors to combine them with (every current of a
+    /// group with every projector of the group).
+    pub insertions: Vec<Insertion>,
+    /// Leave out channels whose kinematic factors all vanish (default true).
+    #[serde(default = "yes")]
+    pub skip_vanishing: bool,
+}
+
+impl ChannelSpec {
+    /// Every `(current, projector)` combination of the insertion groups, without repeats, in
+    /// the order given (`none` is the projector of a group that lists none).
+    pub fn combinations(&self) -> Vec<(Current, Projector)> {
+        let mut out = Vec::new();
+        for g in &self.insertions {
+            let projectors: &[Projector] = if g.projectors.is_empty() {
+                &[Projector::None]
+            } else {
+                &g.projectors
+            };
+            for &c in &g.currents {
+                for &p in projectors {
+                    if !out.contains(&(c, p)) {
+                        out.push((c, p));
+                    }
+                }
+            }
+        }
+        out
+    }
+}
+
+/// A group of currents and the projectors they are combined with.
+#[derive(Clone, Debug, Deserialize, Serialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Insertion {
     /// Currents (`V1`..`V4`, `A1`..`A4`, `S`, `P`, `T12`..`T34`).
     #[serde(deserialize_with = "currents", serialize_with = "current_names")]
     #[schemars(with = "Vec<String>")]
     pub currents: Vec<Current>,
-    /// Projectors (`unpol`, `pol1`..`pol3`; `none` for spin 0, the default there).
+    /// Projectors (`unpol`, `pol1`..`pol3` for spin 1/2; for spin 0 leave out, or `none`).
     #[serde(
         default,
         deserialize_with = "projectors",
@@ -293,13 +310,10 @@ pub struct ChannelSpec {
     )]
     #[schemars(with = "Vec<String>")]
     pub projectors: Vec<Projector>,
-    /// Leave out channels whose kinematic factors all vanish (default true).
-    #[serde(default = "yes")]
-    pub skip_vanishing: bool,
 }
 
-/// The three-point momenta: an explicit list of `(p_f, q)` pairs, or every `q` up to a shell
-/// for each sink momentum.
+/// The three-point momenta: explicit `(p_f, q)` pairs, and/or every `q` up to a shell for each
+/// sink momentum.
 #[derive(Clone, Debug, Default, Deserialize, Serialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct MomentumSelection {
@@ -530,19 +544,42 @@ impl MockSpec {
     /// what would be valid.
     pub fn validate(&self) -> std::result::Result<(), String> {
         let n_states = self.hadron.states.len();
-        let spin = self.hadron.spin;
-        if self.hadron.periodic && spin == Spin::Half {
+        // Also checked while reading YAML; repeated for specs built in code.
+        if !(1..=3).contains(&n_states) {
+            return Err(format!(
+                "hadron.states: expected 1 to 3 states, found {n_states}"
+            ));
+        }
+        let numbers = self
+            .hadron
+            .states
+            .iter()
+            .flat_map(|s| [s.mass.0, s.overlap.0]);
+        if numbers.clone().any(|x| !(x.is_finite() && x > 0.0))
+            || self
+                .hadron
+                .states
+                .windows(2)
+                .any(|w| w[1].mass.0 <= w[0].mass.0)
+        {
+            return Err(
+                "hadron.states: masses and overlaps must be positive, masses strictly increasing"
+                    .into(),
+            );
+        }
+        let spin = self.hadron.kind;
+        if self.hadron.periodic && spin == Hadron::Spin1Half {
             return Err("hadron.periodic: the periodic symmetric form is for spin 0 only".into());
         }
         let ch = &self.channels;
         let m = &ch.momenta;
-        if m.pairs.is_empty() == (m.sink.is_empty() || m.max_q2.is_none()) {
-            return Err("channels.momenta: give either `pairs` or both `sink` and `max_q2`".into());
-        }
-        if !m.pairs.is_empty() && (!m.sink.is_empty() || m.max_q2.is_some()) {
+        if m.sink.is_empty() != m.max_q2.is_none() {
             return Err(
-                "channels.momenta: `pairs` excludes `sink` and `max_q2`; choose one way".into(),
+                "channels.momenta: `sink` and `max_q2` go together; give both or neither".into(),
             );
+        }
+        if m.pairs.is_empty() && m.sink.is_empty() {
+            return Err("channels.momenta: give `pairs`, or `sink` with `max_q2`, or both".into());
         }
         if ch.tseps.is_empty() {
             return Err("channels.tseps: give at least one source–sink separation".into());
@@ -557,41 +594,43 @@ impl MockSpec {
                 self.ensemble.t, self.ensemble.t
             ));
         }
-        if ch.currents.is_empty() {
-            return Err("channels.currents: give at least one current".into());
-        }
-        match spin {
-            Spin::Zero => {
-                if let Some(c) = ch.currents.iter().find(|c| c.kind() != CurrentKind::Vector) {
-                    return Err(format!(
-                        "channels.currents: {c} has no form factor for a spin-0 hadron; use V1..V4"
-                    ));
-                }
-                if ch.projectors.iter().any(|&p| p != Projector::None) {
-                    return Err("channels.projectors: a spin-0 hadron takes only `none`".into());
-                }
-            }
-            Spin::Half => {
-                if ch.projectors.is_empty() {
-                    return Err(
-                        "channels.projectors: give projectors (unpol, pol1, pol2, pol3)".into(),
-                    );
-                }
-                if ch.projectors.contains(&Projector::None) {
-                    return Err(
-                        "channels.projectors: `none` is for spin 0; use unpol, pol1, pol2, pol3"
-                            .into(),
-                    );
-                }
-            }
+        if ch.insertions.is_empty() {
+            return Err("channels.insertions: give at least one group of currents".into());
         }
         let given = self.form_factors.by_name();
-        for c in &ch.currents {
-            for need in required_form_factors(spin, c.kind()) {
-                if !given.contains_key(need) {
-                    return Err(format!(
-                        "form_factors.{need}: current {c} needs a model for {need}"
-                    ));
+        for (i, g) in ch.insertions.iter().enumerate() {
+            let at = format!("channels.insertions[{i}]");
+            if g.currents.is_empty() {
+                return Err(format!("{at}.currents: give at least one current"));
+            }
+            match spin {
+                Hadron::Spin0 => {
+                    if let Some(c) = g.currents.iter().find(|c| c.kind() != CurrentKind::Vector) {
+                        return Err(format!(
+                            "{at}.currents: {c} has no form factor for a spin-0 hadron; use V1..V4"
+                        ));
+                    }
+                    if g.projectors.iter().any(|&p| p != Projector::None) {
+                        return Err(format!(
+                            "{at}.projectors: a spin-0 hadron takes only `none` (or no projectors)"
+                        ));
+                    }
+                }
+                Hadron::Spin1Half => {
+                    if g.projectors.is_empty() || g.projectors.contains(&Projector::None) {
+                        return Err(format!(
+                            "{at}.projectors: give projectors among unpol, pol1, pol2, pol3"
+                        ));
+                    }
+                }
+            }
+            for c in &g.currents {
+                for need in FormFactor::of(spin, c.kind()).iter().map(|f| f.name()) {
+                    if !given.contains_key(need) {
+                        return Err(format!(
+                            "form_factors.{need}: current {c} needs a model for {need}"
+                        ));
+                    }
                 }
             }
         }
@@ -658,7 +697,7 @@ impl MockSpec {
                 ));
             }
         }
-        if spin == Spin::Half
+        if spin == Hadron::Spin1Half
             && self.noise.growth_rate.is_none()
             && self.hadron.m_pi.is_none()
             && (self.noise.twopt.0 > 0.0 || self.noise.threept.0 > 0.0)
@@ -677,18 +716,6 @@ impl MockSpec {
     }
 }
 
-/// Form factors a current needs for a hadron of the given spin.
-pub fn required_form_factors(spin: Spin, kind: CurrentKind) -> &'static [&'static str] {
-    match (spin, kind) {
-        (Spin::Zero, _) => &["F"],
-        (Spin::Half, CurrentKind::Vector) => &["GE", "GM"],
-        (Spin::Half, CurrentKind::Axial) => &["GA", "GP"],
-        (Spin::Half, CurrentKind::Scalar) => &["GS"],
-        (Spin::Half, CurrentKind::Pseudoscalar) => &["G5"],
-        (Spin::Half, CurrentKind::Tensor) => &["GT"],
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -697,7 +724,7 @@ mod tests {
 seed: 5
 ensemble: {L: 8, T: 16, a_fm: 0.1, configs: 4}
 hadron:
-  spin: half
+  kind: spin1half
   dispersion: continuum
   m_pi: 0.2
   states:
@@ -711,8 +738,8 @@ form_factors:
 channels:
   momenta: {sink: [[0, 0, 0]], max_q2: 2}
   tseps: [4, 6]
-  currents: [V4, A3]
-  projectors: [unpol, pol3]
+  insertions:
+    - {currents: [V4, A3], projectors: [unpol, pol3]}
 ";
 
     fn parse(text: &str) -> std::result::Result<MockSpec, String> {
@@ -731,8 +758,13 @@ channels:
         assert_eq!(s.hadron.states.len(), 2);
         assert!(s.channels.skip_vanishing);
         assert_eq!(
-            s.channels.projectors,
-            vec![Projector::Unpol, Projector::Pol(3)]
+            s.channels.combinations(),
+            vec![
+                (Current::V4, Projector::Unpol),
+                (Current::V4, Projector::Pol(3)),
+                (Current::A3, Projector::Unpol),
+                (Current::A3, Projector::Pol(3))
+            ]
         );
     }
 
@@ -758,14 +790,16 @@ channels:
             e.contains("transitions.axial.source_excited: 2 entries for 1 excited"),
             "{e}"
         );
-        let e = parse(&GOOD.replace("spin: half", "spin: zero")).unwrap_err();
+        let e = parse(&GOOD.replace("kind: spin1half", "kind: spin0")).unwrap_err();
         assert!(
-            e.contains("channels.currents: A3 has no form factor for a spin-0"),
+            e.contains("channels.insertions[0].currents: A3 has no form factor for a spin-0"),
             "{e}"
         );
-        let e = parse(&GOOD.replace("max_q2: 2", "max_q2: 2, pairs: [{pf: [0,0,0], q: [0,0,1]}]"))
-            .unwrap_err();
-        assert!(e.contains("channels.momenta"), "{e}");
+        let e = parse(&GOOD.replace("max_q2: 2", "representatives: true")).unwrap_err();
+        assert!(
+            e.contains("channels.momenta: `sink` and `max_q2` go together"),
+            "{e}"
+        );
     }
 
     // The JSON Schema of the spec exists and lists the top-level keys.

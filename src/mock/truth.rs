@@ -2,8 +2,9 @@
 //! the true form factors and matrix elements at every generated channel, so a closure test can
 //! compare a pipeline's output with it directly.
 
-use super::spec::{Dispersion, FormFactorSpec, NoiseSpec, Spin, TransitionSpec};
+use super::spec::{FormFactorSpec, NoiseSpec, TransitionSpec};
 use crate::data::{Current, Momentum, Projector};
+use crate::kinematics::{Dispersion, Hadron};
 use crate::{Error, Result};
 use nalgebra::Complex;
 use serde::{Deserialize, Serialize};
@@ -69,8 +70,8 @@ pub struct TruthConfigs {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct TruthHadron {
-    /// Spin.
-    pub spin: Spin,
+    /// `spin1half` or `spin0`.
+    pub kind: Hadron,
     /// Dispersion relation of the energies.
     pub dispersion: Dispersion,
     /// State masses, ground first.

@@ -88,5 +88,7 @@ pub fn average_channels(
         points,
         negative_root,
         n_bins: lead.n_bins,
+        c2_source: lead.c2_source.clone(),
+        c2_sink: lead.c2_sink.clone(),
     })
 }

@@ -54,6 +54,13 @@ pub struct ChannelRatio {
     pub negative_root: NegativeRootCount,
     /// Number of independent bins the resamples were drawn from (for covariance estimates).
     pub n_bins: usize,
+    /// Resampled two-point means at the source momentum (`t = 0..T`) that divided `C3`;
+    /// used by the joint two-state fit, not serialized.
+    #[serde(skip)]
+    pub c2_source: Vec<Resampled>,
+    /// Resampled two-point means at the sink momentum.
+    #[serde(skip)]
+    pub c2_sink: Vec<Resampled>,
 }
 
 impl ChannelRatio {
@@ -124,6 +131,8 @@ pub fn build_ratios(
             points: Vec::new(),
             negative_root: NegativeRootCount::default(),
             n_bins,
+            c2_source: c2i.to_vec(),
+            c2_sink: c2f.to_vec(),
         });
         for tau in 0..=tsep {
             let t = tau as usize;

@@ -12,7 +12,9 @@
 //!   the matrix element up to `O(tsep e^{-Delta tsep})` (Maiani et al., Nucl. Phys. B 293 (1987)
 //!   420; Capitani et al., Phys. Rev. D 86 (2012) 074502);
 //! - **two-state** ([`two_state`]): the exact two-state form of the ratio with the two-point
-//!   gaps and amplitude ratios (fixed per resample, or floating with Gaussian priors).
+//!   gaps and amplitude ratios, in three variants ([`TwoStateVariant`]): fixed per resample
+//!   (linear, closed form; the default), floating gaps with Gaussian priors, or a joint fit
+//!   with the two-point functions sharing energies, gaps and amplitude ratios.
 //!
 //! [`crosscheck`] compares them with the error of each difference taken from the resamples of
 //! the difference (the estimates share the same data and are correlated), and a
@@ -20,14 +22,44 @@
 //! applies `Z ± dZ` keeping the `Z` error as its own column; [`average`] averages equivalent
 //! channels (same kinematic factor up to sign) before any fit.
 //!
-//! Entry points: [`build::build_ratios`] (all channels) then [`analyse::analyse_channel`] per
-//! channel, or [`analyse::analyse_all`] for both steps. The output per channel is a
-//! [`ChannelResult`]: the ratio points, the plateau per `tsep`, the summation and two-state
-//! estimates (each a real/imaginary pair of [`Resampled`] values with its fit quality), the
-//! cross-check rows and the final estimate.
+//! ## Use
 //!
-//! Real and imaginary parts are fitted separately with the same (real) model: `C3` is complex,
-//! `C2` real, and the ratio's kinematic factor may be purely imaginary.
+//! [`build::build_ratios`] makes the ratio of every channel from binned data; optionally
+//! [`average::average_channels`] merges equivalent ones; [`analyse::analyse_channel`] runs every
+//! method on one channel ([`analyse::analyse_all`] does both steps for all channels, in
+//! parallel). The two-state fit needs, per momentum, a [`TwoPointStates`] (ground energy,
+//! amplitude ratio `a = A_1/A_0`, gap `Delta = E_1 - E_0`, all resampled) from the spectrum
+//! stage.
+//!
+//! ## Output
+//!
+//! Per channel ([`ChannelKey`]: a three-point key without `tsep`), a [`ChannelResult`]:
+//! - `ratio`: the ratio at every `(tsep, tau)` ([`RatioPoint`], real and imaginary part
+//!   resampled) and the negative-root counts;
+//! - `plateaus`: one [`PlateauFit`] per `tsep` (value, `tau` range, fit quality per part);
+//! - `summation`: [`SummationFit`] (the sums `S(tsep)`, slope = matrix element, intercept);
+//! - `two_state`: [`TwoStateFit`] (`M`, `c_i`, `c_f`, `c_if`, fitted gaps for the non-linear
+//!   variants);
+//! - `crosscheck`: [`CrossCheckRow`]s (difference, its resampled error, significance, flag);
+//! - `final_method`, `final_estimate`: the bare matrix element that feeds the decomposition;
+//! - `notes`: why a method was skipped.
+//!
+//! Every estimate is a [`ReIm`] pair of [`Resampled`] values; fits carry a [`FitQuality`]
+//! (correlated chi-square, dof, p-value) per part and the covariance warnings.
+//!
+//! Real and imaginary parts are fitted separately with the same (real) model in the linear
+//! fits (`C3` is complex, `C2` real, and a kinematic factor may be purely imaginary); the
+//! non-linear two-state variants fit both jointly with shared gaps. A part that is exactly zero
+//! everywhere is returned as exactly zero without a fit.
+//!
+//! ## Policies
+//!
+//! - Negative product under the root of the ratio ([`NegativeRootPolicy`]): by default the
+//!   sample uses `sqrt(|product|)`; alternatively the point is dropped when the central product
+//!   is negative. Either way the count per channel is reported; no NaN leaves the stage.
+//! - A summation window with a dropped point is left out of the summation fit.
+//! - The covariance of every fit is estimated once from the resamples
+//!   ([`crate::resample::covariance`], user options) and frozen for all resamples.
 
 pub mod analyse;
 pub mod average;
@@ -40,6 +72,7 @@ pub mod settings;
 pub mod summation;
 pub mod two_state;
 mod two_state_float;
+mod two_state_joint;
 
 pub use analyse::{analyse_all, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
@@ -48,7 +81,7 @@ pub use plateau::PlateauFit;
 pub use renorm::{Renormalized, ZFactor, ZFactors};
 pub use settings::{FinalMethod, NegativeRootPolicy, RatioSettings, TwoStateVariant};
 pub use summation::SummationFit;
-pub use two_state::{TwoPointStates, TwoStateFit};
+pub use two_state::{FittedGaps, TwoPointStates, TwoStateFit};
 
 use crate::data::{Current, Diagram, Momentum, Projector, ThreePointKey};
 use crate::resample::Resampled;

@@ -100,3 +100,8 @@ pub fn renormalize_re_im(bare: &ReIm, z: ZFactor) -> RenormalizedReIm {
         im: renormalize(&bare.im, z),
     }
 }
+
+/// Renormalize the final estimate of a channel with the constant of its current's kind.
+pub fn renormalize_final(result: &super::ChannelResult, z: &ZFactors) -> RenormalizedReIm {
+    renormalize_re_im(&result.final_estimate, z.get(result.key.current.kind()))
+}

@@ -34,6 +34,15 @@ pub enum TwoStateVariant {
         #[serde(default = "one")]
         prior_width_factor: f64,
     },
+    /// Joint fit of the ratio and the two-point functions at the source and sink momenta
+    /// (`t_min <= t <= t_max`) with shared energies, gaps and amplitude ratios; non-linear,
+    /// no priors.
+    JointWithTwoPoint {
+        /// First two-point time slice fitted.
+        t_min: u32,
+        /// Last two-point time slice fitted.
+        t_max: u32,
+    },
 }
 
 fn one() -> f64 {

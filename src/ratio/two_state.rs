@@ -232,5 +232,8 @@ pub fn two_state(
         super::TwoStateVariant::FloatingGaps { prior_width_factor } => {
             super::two_state_float::two_state_floating(ratio, states, settings, prior_width_factor)
         }
+        super::TwoStateVariant::JointWithTwoPoint { t_min, t_max } => {
+            super::two_state_joint::two_state_joint(ratio, states, settings, t_min, t_max)
+        }
     }
 }

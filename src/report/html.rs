@@ -69,7 +69,7 @@ body{font-family:system-ui,-apple-system,'Segoe UI',Helvetica,Arial,sans-serif;c
 margin:0 auto;max-width:1100px;padding:1em 2em 3em;line-height:1.45}\
 h1{font-size:1.6em;border-bottom:2px solid #444;padding-bottom:.2em}\
 h2{font-size:1.25em;margin-top:2em;border-bottom:1px solid #bbb;padding-bottom:.15em}\
-nav ol{columns:2;font-size:.95em}\
+nav ol{font-size:.95em}\
 table{border-collapse:collapse;margin:.8em 0;font-size:.9em}\
 caption{text-align:left;font-weight:600;padding-bottom:.3em}\
 th,td{border-bottom:1px solid #ddd;padding:.25em .7em;vertical-align:top}\

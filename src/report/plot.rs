@@ -7,6 +7,7 @@
 //! Design", 2008), with marker shapes cycling as well, so series stay distinguishable in
 //! greyscale print.
 
+use super::table::{significant, trim_zeros};
 use crate::error::{Error, Result};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::coord::Shift;
@@ -313,6 +314,14 @@ fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
             plotters::style::text_anchor::HPos::Left,
             plotters::style::text_anchor::VPos::Center,
         ));
+    // 24 px per entry, closer when many entries would run off the bottom.
+    let entries = chart
+        .series
+        .iter()
+        .filter(|s| !s.label.is_empty())
+        .count()
+        .max(1) as i32;
+    let step = ((chart.size.1 as i32 - 60) / entries).clamp(12, 24);
     let mut y = 24;
     for s in chart.series.iter().filter(|s| !s.label.is_empty()) {
         let c = colour_of(s.colour);
@@ -348,7 +357,7 @@ fn draw_side_legend(chart: &Chart, side: &Area<'_>) -> DrawResult {
             }
         }
         side.draw(&Text::new(s.label.clone(), (40, y), style.clone()))?;
-        y += 24;
+        y += step;
     }
     Ok(())
 }
@@ -366,7 +375,7 @@ where
     Y::CoordDescType: ValueFormatter<f64>,
 {
     let (x0, x1) = (xr.start, xr.end);
-    let (y_lo, y_hi) = (chart.y_floor(), f64::INFINITY);
+    let (y_lo, y_hi) = y_ends;
     let y_area = y_label_area(y_ends, chart.log_y, y_tick);
     let mut ctx = ChartBuilder::on(root)
         .margin(12)
@@ -388,8 +397,11 @@ where
         .axis_style(RGBColor(60, 60, 60))
         .draw()?;
 
-    let keep = |y: f64| y.is_finite() && y > y_lo && y < y_hi;
-    let clamp = |y: f64| if y > y_lo { y } else { y_lo };
+    // Nothing is drawn outside the axes: points outside are left out, error bars and bands
+    // cut at the edges, lines broken where they leave the range.
+    let in_x = |x: f64| x.is_finite() && x >= x0 && x <= x1;
+    let keep = |y: f64| y.is_finite() && y >= y_lo && y <= y_hi;
+    let clamp = |y: f64| y.clamp(y_lo, y_hi);
 
     for line in &chart.reference_lines {
         if !keep(line.y) {
@@ -423,9 +435,8 @@ where
         let pts: Vec<(f64, f64, f64)> = x
             .iter()
             .zip(lo.iter().zip(hi))
-            .filter(|(x, (l, h))| x.is_finite() && l.is_finite() && h.is_finite())
+            .filter(|(x, (l, h))| in_x(**x) && !l.is_nan() && !h.is_nan())
             .map(|(&x, (&l, &h))| (x, clamp(l), clamp(h)))
-            .filter(|&(_, l, h)| h > y_lo || l > y_lo)
             .collect();
         if pts.len() < 2 {
             continue;
@@ -451,17 +462,25 @@ where
         };
         let c = colour_of(s.colour);
         let style = c.stroke_width(2);
-        let pts: Vec<(f64, f64)> = x
-            .iter()
-            .zip(y)
-            .filter(|(x, y)| x.is_finite() && keep(**y))
-            .map(|(&x, &y)| (x, y))
-            .collect();
-        let anno = if *dashed {
-            ctx.draw_series(DashedLineSeries::new(pts, 8, 5, style))?
-        } else {
-            ctx.draw_series(LineSeries::new(pts, style))?
-        };
+        let mut pieces: Vec<Vec<(f64, f64)>> = Vec::new();
+        let mut current: Vec<(f64, f64)> = Vec::new();
+        for (&x, &y) in x.iter().zip(y) {
+            if in_x(x) && keep(y) {
+                current.push((x, y));
+            } else if !current.is_empty() {
+                pieces.push(std::mem::take(&mut current));
+            }
+        }
+        pieces.push(current);
+        let mut anno = None;
+        for piece in pieces {
+            anno = Some(if *dashed {
+                ctx.draw_series(DashedLineSeries::new(piece, 8, 5, style))?
+            } else {
+                ctx.draw_series(LineSeries::new(piece, style))?
+            });
+        }
+        let Some(anno) = anno else { continue };
         if !s.label.is_empty() {
             let dashed = *dashed;
             anno.label(&s.label).legend(move |(x, y)| {
@@ -489,24 +508,27 @@ where
         let pts: Vec<(f64, f64, f64)> = x
             .iter()
             .zip(y.iter().zip(y_err))
-            .filter(|(x, (y, _))| x.is_finite() && keep(**y))
             .map(|(&x, (&y, &e))| (x + x_offset, y, e))
+            .filter(|&(x, y, _)| in_x(x) && keep(y))
             .collect();
         let bar = c.stroke_width(1);
         for &(x, y, e) in &pts {
             if !(e.is_finite() && e > 0.0) {
                 continue;
             }
-            let (lo, hi) = (clamp(y - e), y + e);
+            let (lo, hi) = (clamp(y - e), clamp(y + e));
             ctx.draw_series(std::iter::once(PathElement::new(
                 vec![(x, lo), (x, hi)],
                 bar,
             )))?;
-            let mut caps =
-                vec![EmptyElement::at((x, hi)) + PathElement::new(vec![(-4, 0), (4, 0)], bar)];
-            if y - e > y_lo {
-                caps.push(EmptyElement::at((x, lo)) + PathElement::new(vec![(-4, 0), (4, 0)], bar));
-            }
+            // Caps only where the bar really ends (not where the axis cuts it).
+            let caps: Vec<_> = [(lo, y - e), (hi, y + e)]
+                .into_iter()
+                .filter(|&(end, raw)| end == raw)
+                .map(|(end, _)| {
+                    EmptyElement::at((x, end)) + PathElement::new(vec![(-4, 0), (4, 0)], bar)
+                })
+                .collect();
             ctx.draw_series(caps)?;
         }
         let label = &s.label;
@@ -583,8 +605,12 @@ impl Chart {
 /// The x and y ranges: fixed by the chart, or the data extent (error bars and bands
 /// included) with padding; never empty.
 fn ranges(chart: &Chart) -> (Range<f64>, Range<f64>) {
+    // Values near the end of the float range would overflow the padding and the tick
+    // arithmetic: they stay out of the range (and so out of the plot).
+    const HUGE: f64 = 1e250;
     let floor = chart.y_floor();
-    let ok_y = |y: f64| y.is_finite() && y > floor;
+    let ok_y = |y: f64| y.is_finite() && y > floor && y.abs() < HUGE;
+    let ok_x = |x: f64| x.is_finite() && x.abs() < HUGE;
     let mut xs: Vec<f64> = Vec::new();
     let mut ys: Vec<f64> = Vec::new();
     for s in &chart.series {
@@ -596,13 +622,15 @@ fn ranges(chart: &Chart) -> (Range<f64>, Range<f64>) {
                 x_offset,
             } => {
                 for ((&x, &y), &e) in x.iter().zip(y).zip(y_err) {
-                    if !(x.is_finite() && ok_y(y)) {
+                    if !(ok_x(x + x_offset) && ok_y(y)) {
                         continue;
                     }
                     xs.push(x + x_offset);
                     ys.push(y);
                     if e.is_finite() && e > 0.0 {
-                        ys.push(y + e);
+                        if ok_y(y + e) {
+                            ys.push(y + e);
+                        }
                         if ok_y(y - e) {
                             ys.push(y - e);
                         }
@@ -611,7 +639,7 @@ fn ranges(chart: &Chart) -> (Range<f64>, Range<f64>) {
             }
             SeriesKind::Band { x, lo, hi } => {
                 for ((&x, &l), &h) in x.iter().zip(lo).zip(hi) {
-                    if x.is_finite() {
+                    if ok_x(x) {
                         xs.push(x);
                         ys.extend([l, h].into_iter().filter(|&v| ok_y(v)));
                     }
@@ -619,7 +647,7 @@ fn ranges(chart: &Chart) -> (Range<f64>, Range<f64>) {
             }
             SeriesKind::Line { x, y, .. } => {
                 for (&x, &y) in x.iter().zip(y) {
-                    if x.is_finite() && ok_y(y) {
+                    if ok_x(x) && ok_y(y) {
                         xs.push(x);
                         ys.push(y);
                     }
@@ -628,16 +656,21 @@ fn ranges(chart: &Chart) -> (Range<f64>, Range<f64>) {
         }
     }
     let xr = match chart.x_range {
-        Some((a, b)) if a.is_finite() && b.is_finite() && a < b => a..b,
+        Some((a, b)) if ok_x(a) && ok_x(b) && wide_enough(a, b) => a..b,
         _ => padded(&xs, 0.04, false),
     };
     let yr = match chart.y_range {
-        Some((a, b)) if a.is_finite() && b.is_finite() && a < b && (a > 0.0 || !chart.log_y) => {
-            a..b
-        }
+        Some((a, b)) if ok_y(a) && ok_y(b) && wide_enough(a, b) => a..b,
         _ => padded(&ys, 0.06, chart.log_y),
     };
     (xr, yr)
+}
+
+/// True when `a < b` with room for tick marks: a width neither zero, subnormal, nor lost
+/// in the rounding of the ends.
+fn wide_enough(a: f64, b: f64) -> bool {
+    let width = b - a;
+    width > 1e-200 && width > 1e-12 * a.abs().max(b.abs())
 }
 
 /// The extent of `v` widened by `frac` of its width on each side (in log10 for `log`).
@@ -652,13 +685,24 @@ fn padded(v: &[f64], frac: f64, log: bool) -> Range<f64> {
     if !(lo.is_finite() && hi.is_finite()) {
         (lo, hi) = (0.0, 1.0);
     }
+    // Keep every value a plotting library can handle: drop the far end of the float range,
+    // and widen a range too narrow to hold ticks (zero or subnormal width).
     let width = hi - lo;
-    let pad = if width > 0.0 {
+    let pad = if wide_enough(lo, hi) {
         width * frac
     } else {
-        0.5 * lo.abs().max(1.0)
+        (lo, hi) = (0.5 * (lo + hi), 0.5 * (lo + hi));
+        0.5 * lo.abs().max(if log { 0.5 } else { 1.0 })
     };
-    inv(lo - pad)..inv(hi + pad)
+    let (a, b) = (inv(lo - pad), inv(hi + pad));
+    if a.is_finite() && b.is_finite() && a < b {
+        a..b
+    } else if inv(lo).is_finite() && inv(hi).is_finite() && inv(lo) < inv(hi) {
+        // Padding overflowed near the end of the float range: draw unpadded.
+        inv(lo)..inv(hi)
+    } else {
+        0.0..1.0
+    }
 }
 
 /// Width in pixels for the y tick labels and the rotated axis description: the longest
@@ -740,22 +784,13 @@ fn tick(v: f64) -> String {
 }
 
 fn plain_tick(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return if v == 0.0 { "0".into() } else { format!("{v}") };
+    if v == 0.0 {
+        return "0".into();
     }
-    let a = v.abs();
-    if !(1e-3..1e5).contains(&a) {
-        let s = format!("{v:.3e}");
-        let (m, e) = s.split_once('e').unwrap_or((&s, "0"));
-        let m = m.trim_end_matches('0').trim_end_matches('.');
-        return format!("{m}e{e}");
+    if v.is_finite() && !(1e-3..1e5).contains(&v.abs()) {
+        return trim_zeros(&format!("{v:.3e}"));
     }
-    let s = super::table::significant(v, 6);
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
+    trim_zeros(&significant(v, 6))
 }
 
 #[cfg(test)]
@@ -792,6 +827,103 @@ mod tests {
         assert!(r.start < 2.0 && r.end > 2.0);
         let r = padded(&[1e-6, 1e-2], 0.05, true);
         assert!(r.start < 1e-6 && r.start > 0.0 && r.end > 1e-2);
+    }
+
+    #[test]
+    fn hostile_values_never_panic() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(20261202);
+        let specials = [
+            f64::NAN,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            0.0,
+            -0.0,
+            1e308,
+            -1e308,
+            1e-310,
+            -1e-300,
+            1.0,
+        ];
+        let mut pick = |rng: &mut rand_chacha::ChaCha8Rng| {
+            if rng.gen_bool(0.5) {
+                specials[rng.gen_range(0..specials.len())]
+            } else {
+                rng.gen_range(-5.0..5.0)
+            }
+        };
+        for i in 0..60 {
+            let n = rng.gen_range(0..5);
+            let v =
+                |rng: &mut rand_chacha::ChaCha8Rng,
+                 pick: &mut dyn FnMut(&mut rand_chacha::ChaCha8Rng) -> f64| {
+                    (0..n).map(|_| pick(rng)).collect::<Vec<f64>>()
+                };
+            let (x, y, e) = (
+                v(&mut rng, &mut pick),
+                v(&mut rng, &mut pick),
+                v(&mut rng, &mut pick),
+            );
+            let (lo, hi) = (v(&mut rng, &mut pick), v(&mut rng, &mut pick));
+            let chart = Chart {
+                title: format!("case {i}"),
+                log_y: i % 2 == 0,
+                series: vec![
+                    Series::points("p", i, x.clone(), y.clone(), e),
+                    Series::band("b", i + 1, x.clone(), lo, hi),
+                    Series::line("l", i + 2, x, y),
+                ],
+                reference_lines: vec![ReferenceLine {
+                    y: pick(&mut rng),
+                    label: "r".into(),
+                }],
+                legend: [Legend::Outside, Legend::UpperLeft][i % 2],
+                ..Chart::default()
+            };
+            let svg = render_svg(&chart).unwrap();
+            assert!(svg.starts_with("<svg"), "case {i}");
+        }
+    }
+
+    #[test]
+    fn nothing_is_drawn_outside_a_fixed_range() {
+        let chart = Chart {
+            y_range: Some((-3.0, 3.0)),
+            legend: Legend::Hidden,
+            series: vec![Series::points(
+                "",
+                0,
+                vec![1.0, 2.0, 3.0, 4.0],
+                vec![0.0, 4.0, -5.0, 2.5],
+                vec![0.0, 0.1, 0.1, 1.0],
+            )],
+            ..Chart::default()
+        };
+        let svg = render_svg(&chart).unwrap();
+        assert_eq!(svg.matches("<circle").count(), 2);
+        // One bar (cut at the top edge) with its lower cap only: bar + cap = 2 paths of the
+        // series colour beyond the axes' own lines.
+        let colour = "#0072B2";
+        let n = svg.matches(&format!("stroke=\"{colour}\"")).count();
+        assert_eq!(n, 2, "{svg}");
+
+        // A line leaving the range is broken there, not clamped to the edge.
+        let chart = Chart {
+            y_range: Some((-3.0, 3.0)),
+            legend: Legend::Hidden,
+            series: vec![Series::line(
+                "",
+                1,
+                vec![1.0, 2.0, 3.0, 4.0, 5.0],
+                vec![0.0, 1.0, 9.0, 1.0, 0.0],
+            )],
+            ..Chart::default()
+        };
+        let svg = render_svg(&chart).unwrap();
+        let pieces = svg
+            .lines()
+            .filter(|l| l.starts_with("<polyline") && l.contains("#D55E00"));
+        assert_eq!(pieces.count(), 2, "{svg}");
     }
 
     #[test]

@@ -35,12 +35,13 @@ impl Cell {
         }
     }
 
-    /// A short human-readable form for terminal and HTML tables (6 significant digits).
+    /// A short human-readable form for terminal and HTML tables: at most 6 significant
+    /// digits, trailing zeros dropped.
     pub fn to_display(&self) -> String {
         match self {
             Cell::Text(s) => s.clone(),
             Cell::Int(i) => i.to_string(),
-            Cell::Float(x) => significant(*x, 6),
+            Cell::Float(x) => trim_zeros(&significant(*x, 6)),
         }
     }
 
@@ -323,6 +324,19 @@ pub fn significant(x: f64, digits: usize) -> String {
     format!("{x:.decimals$}")
 }
 
+/// Drop trailing zeros of the fraction (and a bare point), also before an exponent:
+/// `0.100000` -> `0.1`, `1.50e-7` -> `1.5e-7`.
+pub(crate) fn trim_zeros(s: &str) -> String {
+    let (mant, exp) = match s.find('e') {
+        Some(i) => s.split_at(i),
+        None => (s, ""),
+    };
+    if !mant.contains('.') {
+        return s.to_string();
+    }
+    format!("{}{exp}", mant.trim_end_matches('0').trim_end_matches('.'))
+}
+
 /// The physicist's `value(error)` notation with two significant digits of the error, e.g.
 /// `1.2345(67)` for 1.2345 ± 0.0067 and `12.3(1.5)` style written as `12.3(15)`
 /// (common practice). Falls back to the value alone when the error is not a positive number.
@@ -376,6 +390,16 @@ mod tests {
         assert_eq!(significant(1.5e-7, 3), "1.50e-7");
         assert_eq!(significant(0.0, 6), "0");
         assert_eq!(significant(f64::NEG_INFINITY, 6), "-inf");
+    }
+
+    #[test]
+    fn display_drops_trailing_zeros() {
+        assert_eq!(Cell::Float(0.1).to_display(), "0.1");
+        assert_eq!(Cell::Float(1e-300).to_display(), "1e-300");
+        assert_eq!(Cell::Float(6.02214076e23).to_display(), "6.02214e23");
+        assert_eq!(Cell::Float(100.0).to_display(), "100");
+        assert_eq!(Cell::Float(-0.5123456).to_display(), "-0.512346");
+        assert_eq!(Cell::Float(f64::NAN).to_display(), "NaN");
     }
 
     #[test]

@@ -1,19 +1,20 @@
 //! Autocorrelation in Monte Carlo time: the integrated autocorrelation time by the Gamma
-//! method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143), and the
+//! method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143; equation
+//! numbers are not quoted because they were not checked), and the
 //! error of the mean versus bin size (a binning study).
 //!
 //! For a chain `x_1..x_N` with mean `x̄`:
 //! - autocorrelation function `Γ(t) = 1/(N-t) Σ_{i=1}^{N-t} (x_i - x̄)(x_{i+t} - x̄)` and its
-//!   normalised form `ρ(t) = Γ(t)/Γ(0)` (Wolff eq. 31);
+//!   normalised form `ρ(t) = Γ(t)/Γ(0)` (Wolff 2004);
 //! - `τ_int(W) = 1/2 + Σ_{t=1}^{W} ρ(t)`;
-//! - automatic window (Wolff eq. 52): with `τ(W) = S / ln((2τ_int(W)+1)/(2τ_int(W)-1))`
+//! - automatic window (Wolff 2004): with `τ(W) = S / ln((2τ_int(W)+1)/(2τ_int(W)-1))`
 //!   (a tiny `τ` when `τ_int(W) <= 1/2`), `W` is the first window where
 //!   `g(W) = exp(-W/τ(W)) - τ(W)/sqrt(W N)` becomes negative; `S` (default 1.5) measures how
 //!   long the slowest mode is assumed to be relative to `τ_int`;
-//! - bias correction (Wolff eq. 49): `Γ(t) += C_F/N` with `C_F = Γ(0) + 2 Σ_{t=1}^{W} Γ(t)`,
+//! - bias correction (Wolff 2004): `Γ(t) += C_F/N` with `C_F = Γ(0) + 2 Σ_{t=1}^{W} Γ(t)`,
 //!   after which `C_F`, `τ_int = C_F / (2Γ(0))` and the error of the mean `sqrt(C_F/N)` are
 //!   recomputed;
-//! - error of `τ_int` (Wolff eq. 42, Madras–Sokal): `τ_int sqrt(4 (W + 1/2 - τ_int) / N)`.
+//! - error of `τ_int` (Wolff 2004, after Madras & Sokal): `τ_int sqrt(4 (W + 1/2 - τ_int) / N)`.
 //!
 //! An AR(1) chain `x_i = ρ x_{i-1} + ε_i` has `ρ(t) = ρ^t` and `τ_int = (1+ρ)/(2(1-ρ))`.
 //!

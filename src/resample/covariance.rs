@@ -369,10 +369,14 @@ pub fn estimate_with_bins(
             Some(h) => format!("biased high by about {:.2} times", 1.0 / h),
             None => "not even unbiasedly estimable (N <= d + 2)".to_string(),
         };
+        let advice = if shrinkage.is_some() {
+            "shrinkage reduces this bias by an amount not quantified here"
+        } else {
+            "consider shrinkage, a diagonal covariance or fewer points"
+        };
         warnings.push(format!(
-            "{n_bins} independent samples for {d} correlated values: the inverse covariance is \
-             {bias} (Hartlap et al. 2007); consider shrinkage, a diagonal covariance or fewer \
-             points"
+            "{n_bins} independent samples for {d} correlated values: the sample covariance's \
+             inverse is {bias} (Hartlap et al. 2007); {advice}"
         ));
     }
     Ok(CovarianceEstimate {

@@ -1,5 +1,5 @@
 //! Resample plans: how per-bin data become jackknife or bootstrap samples (methods.md §7;
-//! Efron & Tibshirani, *An Introduction to the Bootstrap*, 1993, ch. 6 and 11).
+//! Efron & Tibshirani, *An Introduction to the Bootstrap*, 1993, the bootstrap and jackknife chapters).
 //!
 //! A plan is built once per analysis and applied to every data point, so all quantities share
 //! the same resamples and their correlations are kept.
@@ -57,6 +57,15 @@ pub enum ResamplePlan {
 }
 
 impl ResamplePlan {
+    /// The plan for `scheme` on `n_bins` bins; `n_boot` and `seed` are used by the bootstrap
+    /// only.
+    pub fn new(scheme: Scheme, n_bins: usize, n_boot: usize, seed: u64) -> Self {
+        match scheme {
+            Scheme::Jackknife => ResamplePlan::jackknife(n_bins),
+            Scheme::Bootstrap => ResamplePlan::bootstrap(n_bins, n_boot, seed),
+        }
+    }
+
     /// Delete-one jackknife on `n` bins.
     pub fn jackknife(n: usize) -> Self {
         ResamplePlan::Jackknife { n }
@@ -103,11 +112,12 @@ impl ResamplePlan {
 
     /// The resampled mean of per-bin values `x` (length `n_bins`). Jackknife samples use the
     /// O(N) leave-one-out form `x̄ - (x_j - x̄)/(N-1)`. Callers must pass `n_bins` values
-    /// (checked in debug builds); [`ResamplePlan::checked_mean`] checks it always.
+    /// (a debug assertion); in release builds a wrong length gives NaN, never wrong numbers.
+    /// [`ResamplePlan::checked_mean`] returns an error instead.
     pub fn mean(&self, x: &[f64]) -> Resampled {
         debug_assert_eq!(x.len(), self.n_bins());
         let n = x.len();
-        if n == 0 {
+        if n == 0 || n != self.n_bins() {
             return Resampled::new(f64::NAN, vec![f64::NAN; self.n_samples()], self.scheme());
         }
         let central = stable_mean(x);

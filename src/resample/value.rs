@@ -1,6 +1,6 @@
 //! The resampled value: a full-ensemble estimate plus one value per jackknife or bootstrap
 //! sample, with the error formulas of each scheme (Efron & Tibshirani, *An Introduction to
-//! the Bootstrap*, 1993, ch. 6 and 11).
+//! the Bootstrap*, 1993, the bootstrap and jackknife chapters).
 //!
 //! With `N` samples `x_k`, sample mean `x̄ = (1/N) Σ x_k` and central value `c`:
 //! - jackknife (delete-one on bins): `σ² = (N-1)/N Σ (x_k - x̄)²`, covariance alike,

@@ -211,3 +211,110 @@ pub fn principal_correlators(
         t_ref,
     })
 }
+
+/// The variational analysis at one momentum: principal correlators, eigenvectors and the
+/// energies fitted to each principal correlator (same windows, states and model average as
+/// the plain fits, with `t_min > t0`).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct GevpSpectrum {
+    /// Operator labels in matrix order (sorted).
+    pub operators: Vec<String>,
+    /// Reference time.
+    pub t0: usize,
+    /// Time of the reported eigenvectors.
+    pub t_ref: usize,
+    /// `eigenvectors[n][i]`: component `i` of state `n` at `t_ref`.
+    pub eigenvectors: Vec<Vec<Resampled>>,
+    /// Fits to each principal correlator (ground first); `None` where no fit succeeded
+    /// (reason in the stage warnings).
+    pub states: Vec<Option<super::MomentumSpectrum>>,
+}
+
+impl GevpSpectrum {
+    /// Energy of state `n` from its principal correlator, when fitted.
+    pub fn energy(&self, n: usize) -> Option<&Resampled> {
+        self.states.get(n)?.as_ref().map(|s| s.ground_energy())
+    }
+}
+
+/// Split a correlator-matrix label `src-snk`.
+pub fn split_label(label: &str) -> Option<(&str, &str)> {
+    let (a, b) = label.split_once('-')?;
+    (!a.is_empty() && !b.is_empty()).then_some((a, b))
+}
+
+/// Run the variational analysis on the resampled channels `(label, correlator)` of one
+/// momentum (labels `src-snk`; every pair of operators must be present).
+pub fn analyse(
+    momentum: crate::data::Momentum,
+    channels: &[(String, Vec<Resampled>)],
+    gevp: &super::GevpSettings,
+    settings: &super::SpectrumSettings,
+    warnings: &mut Vec<String>,
+) -> Result<GevpSpectrum> {
+    let name = super::label(momentum);
+    let mut ops: Vec<String> = Vec::new();
+    let mut entries = std::collections::BTreeMap::new();
+    for (label, corr) in channels {
+        let (a, b) = split_label(label).ok_or_else(|| {
+            Error::analysis(
+                "spectrum",
+                format!("{name}: smear label `{label}` is not of the form `source-sink` needed for a GEVP"),
+            )
+        })?;
+        for o in [a, b] {
+            if !ops.iter().any(|x| x == o) {
+                ops.push(o.to_string());
+            }
+        }
+        entries.insert((a.to_string(), b.to_string()), corr);
+    }
+    ops.sort();
+    let n = ops.len();
+    let mut matrix = Vec::with_capacity(n * n);
+    for a in &ops {
+        for b in &ops {
+            let c = entries
+                .get(&(a.clone(), b.clone()))
+                .or_else(|| entries.get(&(b.clone(), a.clone())))
+                .ok_or_else(|| {
+                    Error::analysis(
+                        "spectrum",
+                        format!("{name}: correlator matrix lacks `{a}-{b}` (operators {ops:?})"),
+                    )
+                })?;
+            matrix.push((*c).clone());
+        }
+    }
+    let pc = principal_correlators(&matrix, n, gevp.t0, gevp.t_ref)
+        .map_err(|e| Error::analysis("spectrum", format!("{name}: {e}")))?;
+    let fit_settings = super::SpectrumSettings {
+        t_min: super::IntRange {
+            from: settings.t_min.from.max(gevp.t0 + 1),
+            to: settings.t_min.to.max(gevp.t0 + 1),
+        },
+        periodic: false,
+        ..settings.clone()
+    };
+    let states = pc
+        .lambda
+        .iter()
+        .enumerate()
+        .map(
+            |(k, lambda)| match super::fit_correlator(momentum, lambda, &fit_settings, warnings) {
+                Ok(s) => Some(s),
+                Err(e) => {
+                    warnings.push(format!("{name}: GEVP state {k} not fitted: {e}"));
+                    None
+                }
+            },
+        )
+        .collect();
+    Ok(GevpSpectrum {
+        operators: ops,
+        t0: gevp.t0,
+        t_ref: gevp.t_ref,
+        eigenvectors: pc.eigenvectors,
+        states,
+    })
+}

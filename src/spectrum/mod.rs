@@ -40,10 +40,9 @@ pub use window::WindowFit;
 use crate::data::{Momentum, TwoPointData};
 use crate::error::{Error, Result};
 use crate::fit::Weights;
-use crate::resample::{ResamplePlan, Resampled};
+use crate::resample::{covariance, ResamplePlan, Resampled};
 use effective::{effective_mass, EffectiveMassKind};
 use model::{Form, MAX_STATES};
-use nalgebra::DMatrix;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use window::{fit_window, WindowSpec};
@@ -117,18 +116,14 @@ pub struct SpectrumResult {
     pub mass: Option<Resampled>,
     /// Dispersion check at every non-zero momentum (needs `l_extent` and `p = 0`).
     pub dispersion: Vec<DispersionRow>,
+    /// Variational analysis per momentum (only when `gevp` is set in the settings).
+    pub gevp: BTreeMap<Momentum, gevp::GevpSpectrum>,
     /// Everything a user should know (dropped windows, failed resample fits, small samples).
     pub warnings: Vec<String>,
 }
 
 fn label(p: Momentum) -> String {
     format!("momentum ({},{},{})", p[0], p[1], p[2])
-}
-
-/// Covariance of resampled values (frozen for all resample fits of a window).
-fn covariance(values: &[Resampled]) -> DMatrix<f64> {
-    let d = values.len();
-    DMatrix::from_fn(d, d, |i, j| values[i].covariance(&values[j]))
 }
 
 fn check_settings(s: &SpectrumSettings) -> Result<()> {
@@ -264,12 +259,17 @@ pub fn fit_correlator(
     let mut fits = Vec::new();
     for t_min in settings.t_min.values().filter(|&t| t < t_max) {
         let window = &corr[t_min..=t_max];
-        let w = Weights::from_covariance(&covariance(window)).map_err(|e| {
+        let in_window = |e: Error| {
             Error::analysis(
                 "spectrum",
                 format!("{name}, window [{t_min}, {t_max}]: {e}"),
             )
-        })?;
+        };
+        let cov = covariance::estimate(window, &settings.covariance).map_err(in_window)?;
+        for w in &cov.warnings {
+            warnings.push(format!("{name}, window [{t_min}, {t_max}]: {w}"));
+        }
+        let w = Weights::from_covariance(&cov.matrix).map_err(in_window)?;
         for n_states in settings.n_states.values() {
             match fit_window(&spec, t_min, t_max, n_states, &w) {
                 Ok(f) => {
@@ -345,12 +345,40 @@ pub fn run(
     settings: &SpectrumSettings,
 ) -> Result<SpectrumResult> {
     check_settings(settings)?;
-    let channels = select_channels(data, settings.smear.as_deref())?;
     let mut warnings = Vec::new();
+    let mut gevp_out = BTreeMap::new();
+    if let Some(g) = &settings.gevp {
+        let mut by_momentum: BTreeMap<Momentum, Vec<(String, Vec<Resampled>)>> = BTreeMap::new();
+        for (key, series) in &data.channels {
+            if let Some(label) = key
+                .smear
+                .as_deref()
+                .filter(|l| gevp::split_label(l).is_some())
+            {
+                by_momentum
+                    .entry(key.momentum)
+                    .or_default()
+                    .push((label.to_string(), resample_series(series, plan)?));
+            }
+        }
+        for (p, channels) in by_momentum {
+            gevp_out.insert(p, gevp::analyse(p, &channels, g, settings, &mut warnings)?);
+        }
+    }
     let mut per_momentum = BTreeMap::new();
-    for (&p, series) in &channels {
-        let corr = resample_series(series, plan)?;
-        per_momentum.insert(p, fit_correlator(p, &corr, settings, &mut warnings)?);
+    if settings.gevp.is_some() && settings.smear.is_none() {
+        // The ground principal correlator stands in for a single channel.
+        for (p, g) in &gevp_out {
+            if let Some(Some(s)) = g.states.first() {
+                per_momentum.insert(*p, s.clone());
+            }
+        }
+    } else {
+        let channels = select_channels(data, settings.smear.as_deref())?;
+        for (&p, series) in &channels {
+            let corr = resample_series(series, plan)?;
+            per_momentum.insert(p, fit_correlator(p, &corr, settings, &mut warnings)?);
+        }
     }
     let mass = per_momentum
         .get(&[0, 0, 0])
@@ -381,6 +409,7 @@ pub fn run(
         per_momentum,
         mass,
         dispersion,
+        gevp: gevp_out,
         warnings,
     })
 }

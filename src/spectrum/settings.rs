@@ -1,6 +1,7 @@
 //! Settings of the spectrum stage (the `spectrum:` block of a pipeline file).
 
 use crate::fit::{FitSettings, Prior};
+use crate::resample::covariance::CovarianceOptions;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
@@ -82,6 +83,9 @@ pub struct SpectrumSettings {
     pub n_states: IntRange,
     /// Priors of the fits.
     pub priors: PriorSettings,
+    /// How the covariance of each fit window is estimated from the resamples (once per
+    /// window, then frozen for every resample's fit).
+    pub covariance: CovarianceOptions,
     /// Symmetric periodic form `A (e^{-Et} + e^{-E(T-t)})` (mesons with periodic time).
     pub periodic: bool,
     /// Time extent `T`; default: the number of time slices in the data.
@@ -94,7 +98,11 @@ pub struct SpectrumSettings {
     pub smear: Option<String>,
     /// Energies handed to later stages.
     pub energies: EnergySource,
-    /// Levenberg–Marquardt settings.
+    /// Variational analysis of correlator matrices (channels with `smear` labels `a-b`).
+    pub gevp: Option<GevpSettings>,
+    /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
+    /// error, and about half the iterations of the machine-precision defaults of
+    /// [`FitSettings`]).
     pub fit: FitSettings,
 }
 
@@ -105,13 +113,20 @@ impl Default for SpectrumSettings {
             t_max: None,
             n_states: IntRange { from: 1, to: 2 },
             priors: PriorSettings::default(),
+            covariance: CovarianceOptions::default(),
             periodic: false,
             t_extent: None,
             l_extent: None,
             twist: None,
             smear: None,
             energies: EnergySource::Fitted,
-            fit: FitSettings::default(),
+            gevp: None,
+            fit: FitSettings {
+                ftol: 1e-10,
+                xtol: 1e-10,
+                gtol: 1e-10,
+                ..FitSettings::default()
+            },
         }
     }
 }

@@ -1,0 +1,1 @@
+//! Closure tests: mock ensembles through the chained stages, compared with their truth.
