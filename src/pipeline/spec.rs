@@ -9,6 +9,7 @@
 use crate::kinematics::flavor::FlavorCombo;
 use crate::kinematics::{DecompositionSettings, Dispersion, FormFactor, Hadron};
 use crate::ratio::{RatioSettings, ZFactors};
+use crate::spectrum::SpectrumSettings;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -182,62 +183,26 @@ fn yes() -> bool {
     true
 }
 
-/// Covariance used by correlated fits.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "lowercase")]
-pub enum CovarianceKind {
-    /// The full estimated covariance.
-    Full,
-    /// Only its diagonal (uncorrelated fit).
-    Diagonal,
-    /// Shrinkage toward the diagonal (Ledoit–Wolf).
-    Shrinkage,
-}
-
-/// Two-point fits.
+/// Two-point fits: the section switch plus the spectrum stage's own settings (`t_min`,
+/// `t_max`, `n_states`, `priors`, `periodic`, `energies`, ...).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
 pub struct SpectrumSpec {
-    /// Run this stage.
+    /// Run this stage (and everything after it).
     #[serde(default = "yes")]
     pub enabled: bool,
-    /// First time slice of the fit window.
-    #[serde(default = "default_t_min")]
-    pub t_min: u32,
-    /// Last time slice of the fit window.
-    #[serde(default = "default_t_max")]
-    pub t_max: u32,
-    /// States in the fit (2 gives the gaps the two-state ratio fit needs).
-    #[serde(default = "two")]
-    pub n_states: u32,
-    /// Covariance used in the fit.
-    #[serde(default = "default_cov")]
-    pub covariance: CovarianceKind,
+    /// Settings of the two-point fits. `l_extent` and `t_extent` default to the ensemble's
+    /// `L` and `T`.
+    #[serde(flatten)]
+    pub fits: SpectrumSettings,
 }
 
 impl Default for SpectrumSpec {
     fn default() -> Self {
         SpectrumSpec {
             enabled: true,
-            t_min: default_t_min(),
-            t_max: default_t_max(),
-            n_states: 2,
-            covariance: default_cov(),
+            fits: SpectrumSettings::default(),
         }
     }
-}
-
-fn default_t_min() -> u32 {
-    2
-}
-fn default_t_max() -> u32 {
-    16
-}
-fn two() -> u32 {
-    2
-}
-fn default_cov() -> CovarianceKind {
-    CovarianceKind::Diagonal
 }
 
 /// The three-/two-point ratio: which data enter it.
