@@ -59,11 +59,12 @@ fn spectrum_settings(spec: &MockSpec, n_states: usize) -> SpectrumSettings {
     }
 }
 
-/// Ratio settings for the chain: the defaults with diagonal weights for the fitted points.
+/// Ratio settings for the chain: diagonal weights for the fitted points, stated explicitly
+/// (they are also the stage's default since these measurements).
 /// The two-state fit takes 30 to 50 (tsep, tau) points with 100 jackknife samples; weights
 /// from a full sample covariance of that size are noisy (its inverse is biased by about
 /// N / (N - d - 2), Hartlap et al. 2007) and make the estimate noisier than its resampled
-/// error says (methods.md §2). Measured on these fixtures with the default full covariance:
+/// error says (methods.md §2). Measured on these fixtures with full-covariance weights:
 /// two-state 7 of 19 channels within 1 sigma (lower binomial tail 0.5 %), the G_E dipole
 /// radius 2.6 sigma off, F within 2 sigma at 5 of 7 shells. With diagonal weights (frozen
 /// weights are still valid weights, and the jackknife error of that estimator is honest):
