@@ -113,7 +113,7 @@ fn out_of_range_values_quote_their_key() {
         e.contains("p.yaml:21:10") && e.contains("tau_cut < tsep/2"),
         "{e}"
     );
-    let p = edited(dir.path(), |t| t.replace("GE: {", "GX: {"));
+    let p = edited(dir.path(), |t| t.replace("GE: [", "GX: ["));
     let e = load_err(&p, &[]);
     assert!(
         e.contains("p.yaml:28:5") && e.contains("did you mean `GE`?"),

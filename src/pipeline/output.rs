@@ -74,7 +74,7 @@ pub fn derived_table(results: &RunResults) -> Result<Table> {
             Cell::from(d.model.as_str()),
             Cell::from(d.quantity.as_str()),
             float(d.value.central),
-            float(d.value.error()),
+            float(d.error),
             Cell::from(d.unit.as_str()),
         ])?;
     }
@@ -327,7 +327,7 @@ pub fn terminal_summary(results: &RunResults) -> String {
                 Cell::from(d.method.as_str()),
                 Cell::from(d.model.as_str()),
                 Cell::from(d.quantity.as_str()),
-                Cell::Text(value_error(d.value.central, d.value.error())),
+                Cell::Text(value_error(d.value.central, d.error)),
                 Cell::from(d.unit.as_str()),
             ]);
         }
@@ -538,7 +538,7 @@ fn figures(plan: &Plan, results: &RunResults) -> Vec<(String, Chart)> {
         }
     }
     if want(Plot::FormFactors) {
-        out.extend(formfactor_charts(results));
+        out.extend(formfactor_charts(plan, results));
     }
     out
 }
@@ -730,7 +730,8 @@ fn summation_chart(k: &ChannelKey, c: &ChannelResult) -> Option<Chart> {
     })
 }
 
-fn formfactor_charts(results: &RunResults) -> Vec<(String, Chart)> {
+fn formfactor_charts(plan: &Plan, results: &RunResults) -> Vec<(String, Chart)> {
+    let to_gev2 = (crate::kinematics::HBARC_GEV_FM / plan.spec.ensemble.spacing_fm).powi(2);
     let mut by_ff: BTreeMap<&str, BTreeMap<&str, Vec<&FormFactorRow>>> = BTreeMap::new();
     for r in &results.form_factors {
         by_ff
@@ -761,6 +762,28 @@ fn formfactor_charts(results: &RunResults) -> Vec<(String, Chart)> {
                     )
                     .offset(0.004 * i as f64),
                 );
+            }
+            // the final method's Q² fits as bands over the range of the data
+            let q_max = results
+                .form_factors
+                .iter()
+                .filter(|r| r.form_factor.name() == ff)
+                .map(|r| r.q2.central)
+                .fold(0.0, f64::max);
+            let fits = results
+                .q2_fits
+                .iter()
+                .filter(|f| f.form_factor.name() == ff && f.method == results.final_method);
+            for (j, f) in fits.enumerate() {
+                let grid: Vec<f64> = (0..=40).map(|i| q_max * i as f64 / 40.0).collect();
+                let vals: Vec<Resampled> = grid.iter().map(|q| f.fit.evaluate(*q)).collect();
+                chart.series.push(Series::band(
+                    format!("{} {}", f.method, f.model),
+                    7 + j,
+                    grid.iter().map(|q| q * to_gev2).collect(),
+                    vals.iter().map(|v| v.central - v.error()).collect(),
+                    vals.iter().map(|v| v.central + v.error()).collect(),
+                ));
             }
             (format!("formfactor-{ff}"), chart)
         })

@@ -380,37 +380,11 @@ fn validate(plan: &Plan) -> Result<()> {
             m.push_str(&format!(" Valid: {}.", valid_names.join(", ")));
             return err(&key, m);
         }
-        if q.models.is_empty() {
+        if q.is_empty() {
             return err(
-                &format!("{key}.models"),
-                "no Q² model chosen: expected dipole and/or z-expansion".into(),
+                &key,
+                "no Q² fit listed: expected e.g. `[{model: dipole}]`".into(),
             );
-        }
-        if !(1..=10).contains(&q.kmax) {
-            return err(
-                &format!("{key}.kmax"),
-                format!("kmax = {} is not valid: expected 1 to 10", q.kmax),
-            );
-        }
-        if !(q.t_cut_mpi2.is_finite() && q.t_cut_mpi2 > 0.0) {
-            return err(&format!("{key}.t_cut_mpi2"), format!("t_cut_mpi2 = {} is not valid: expected a positive multiple of m_pi^2 (4 vector, 9 axial)", q.t_cut_mpi2));
-        }
-        if !(q.prior_width.is_finite() && q.prior_width > 0.0) {
-            return err(
-                &format!("{key}.prior_width"),
-                format!(
-                    "prior_width = {} is not valid: expected a positive number",
-                    q.prior_width
-                ),
-            );
-        }
-        if let Some(m) = q.q2_max {
-            if !(m.is_finite() && m > 0.0) {
-                return err(
-                    &format!("{key}.q2_max"),
-                    format!("q2_max = {m} is not valid: expected a positive Q² in lattice units"),
-                );
-            }
         }
     }
     if s.output.dir.as_os_str().is_empty() {

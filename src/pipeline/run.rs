@@ -10,6 +10,7 @@ use super::plan::{method_of, Plan};
 use super::spec::{EnergySource, Method, ResamplingMethod, Stage};
 use crate::data::{CurrentKind, Momentum, ThreePointData, TwoPointData};
 use crate::kinematics::{self, ChannelValue, Energies, FormFactor, KinematicSetup, ShellResult};
+use crate::q2::{self, Q2Fit, Q2Model, Q2Point, Q2Units};
 use crate::ratio::{self, ChannelKey, ChannelResult, Renormalized, TwoPointStates};
 use crate::resample::binning::{bin_threept, bin_twopt};
 use crate::resample::{ResamplePlan, Resampled};
@@ -83,8 +84,25 @@ pub struct DerivedRow {
     pub quantity: String,
     /// The value, per resample.
     pub value: Resampled,
+    /// Total error: statistical, and for `G(0)` the renormalization error in quadrature.
+    pub error: f64,
     /// Unit of the value.
     pub unit: String,
+}
+
+/// One Q² fit of one method's form factor.
+#[derive(Clone, Debug)]
+pub struct Q2FitResult {
+    /// Method label of the form factors fitted.
+    pub method: String,
+    /// The form factor.
+    pub form_factor: FormFactor,
+    /// Model label (`dipole`, `z-expansion`, with a number when a model is listed twice).
+    pub model: String,
+    /// The fit (Q² in lattice units).
+    pub fit: Q2Fit,
+    /// Relative error `dZ / Z` of the renormalization of this form factor's current.
+    pub z_relative_error: f64,
 }
 
 /// Everything a run computed, in stage order; later stages are `None`/empty when the run
@@ -101,6 +119,8 @@ pub struct RunResults {
     pub form_factors: Vec<FormFactorRow>,
     /// Quantities from the Q² fits.
     pub derived: Vec<DerivedRow>,
+    /// The Q² fits themselves (for plots).
+    pub q2_fits: Vec<Q2FitResult>,
     /// Wall time per stage, in run order.
     pub timings: Vec<(String, Duration)>,
     /// Warnings collected from every stage.
@@ -165,6 +185,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         channels: None,
         form_factors: Vec::new(),
         derived: Vec::new(),
+        q2_fits: Vec::new(),
         timings: Vec::new(),
         warnings: Vec::new(),
         final_method,
@@ -203,7 +224,11 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         results.form_factors = rows;
     }
     if plan.runs(Stage::Q2Fits) && !spec.q2_fits.form_factors.is_empty() {
-        rec.warn("q2_fits: the Q² fit stage is not available in this build; no derived quantities");
+        let fits = rec.stage("q2_fits", |rec| {
+            Ok(q2_fits(plan, &results.form_factors, rec))
+        })?;
+        results.derived = fits.iter().flat_map(derived_rows).collect();
+        results.q2_fits = fits;
     }
     results.timings = rec.timings;
     results.warnings = rec.warnings;
@@ -396,4 +421,108 @@ fn shell_rows(method: &str, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<For
             chi2_dof: shell.chi2_dof,
         })
         .collect()
+}
+
+/// Fit each listed form factor of every method (plateaus: the largest `tsep` only); a fit
+/// that fails becomes a warning.
+fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2FitResult> {
+    let spec = &plan.spec;
+    let largest_plateau = rows
+        .iter()
+        .filter_map(|r| r.method.strip_prefix("plateau-tsep")?.parse::<u32>().ok())
+        .max()
+        .map(|t| method_label(Method::Plateau, Some(t)));
+    let mut groups: BTreeMap<(String, FormFactor), Vec<Q2Point>> = BTreeMap::new();
+    for r in rows {
+        if r.method.starts_with("plateau") && Some(&r.method) != largest_plateau.as_ref() {
+            continue;
+        }
+        if !spec.q2_fits.form_factors.contains_key(&r.form_factor) {
+            continue;
+        }
+        groups
+            .entry((r.method.clone(), r.form_factor))
+            .or_default()
+            .push(Q2Point {
+                q2: r.q2.clone(),
+                value: r.value.value.clone(),
+            });
+    }
+    let units = Q2Units::Lattice {
+        spacing_fm: Some(spec.ensemble.spacing_fm),
+    };
+    let mut out = Vec::new();
+    for ((method, ff), points) in groups {
+        let list = &spec.q2_fits.form_factors[&ff];
+        for (i, settings) in list.iter().enumerate() {
+            let base = match settings.model {
+                Q2Model::Dipole { .. } => "dipole",
+                Q2Model::ZExpansion { .. } => "z-expansion",
+            };
+            let same = list
+                .iter()
+                .filter(|s| {
+                    std::mem::discriminant(&s.model) == std::mem::discriminant(&settings.model)
+                })
+                .count();
+            let model = if same > 1 {
+                format!("{base}-{}", i + 1)
+            } else {
+                base.to_string()
+            };
+            match q2::fit(&points, settings, units) {
+                Ok(fit) => {
+                    if fit.n_failed > 0 {
+                        rec.warn(format!(
+                            "q2_fits {method} {ff} {model}: {} resample fit(s) did not converge",
+                            fit.n_failed
+                        ));
+                    }
+                    let z = spec.renormalization.get(kind_of(rows, ff));
+                    out.push(Q2FitResult {
+                        method: method.clone(),
+                        form_factor: ff,
+                        model,
+                        fit,
+                        z_relative_error: (z.error / z.value).abs(),
+                    });
+                }
+                Err(e) => rec.warn(format!("q2_fits {method} {ff} {model}: {e}")),
+            }
+        }
+    }
+    out
+}
+
+/// `G(0)`, `r²` (fm²) and `r` (fm) of one fit.
+fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
+    let ff = f.form_factor.name();
+    let row = |quantity: String, value: Resampled, z_rel: f64, unit: &str| DerivedRow {
+        method: f.method.clone(),
+        model: f.model.clone(),
+        quantity,
+        error: value.error().hypot(value.central * z_rel),
+        value,
+        unit: unit.to_string(),
+    };
+    // G(0) scales with Z; radii do not
+    let mut out = vec![row(
+        format!("{ff}(0)"),
+        f.fit.g0.clone(),
+        f.z_relative_error,
+        "",
+    )];
+    if let Some(r2) = &f.fit.r2_fm2 {
+        out.push(row(format!("r2_{ff}"), r2.clone(), 0.0, "fm^2"));
+    }
+    if let Some(r) = f.fit.radius_fm() {
+        out.push(row(format!("r_{ff}"), r, 0.0, "fm"));
+    }
+    out
+}
+
+fn kind_of(rows: &[FormFactorRow], ff: FormFactor) -> CurrentKind {
+    rows.iter()
+        .find(|r| r.form_factor == ff)
+        .map_or(CurrentKind::Vector, |r| r.kind)
 }
