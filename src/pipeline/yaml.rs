@@ -397,7 +397,7 @@ pub fn check_embedded<T: serde::de::DeserializeOwned>(
             .filter(|p| is_path(p))
             .and_then(|p| tag_mapping_at(&mut rest, &p).then_some(()));
         if retag.is_none() {
-            return Err(translate_in(&err, positions, section));
+            return Err(translate_with(&err, positions, section, own));
         }
     }
     Ok(())
@@ -463,6 +463,17 @@ pub fn translate(err: &serde_yaml_ng::Error, positions: &Positions) -> Error {
 /// [`translate`] for an error from parsing the sub-tree at `prefix` on its own (its
 /// location refers to re-serialized text, so positions come from the key path).
 fn translate_in(err: &serde_yaml_ng::Error, positions: &Positions, prefix: &str) -> Error {
+    translate_with(err, positions, prefix, &[])
+}
+
+/// [`translate_in`] where the section also accepts the keys `extra` (the pipeline's own keys
+/// beside an embedded stage's settings), so they are offered as valid too.
+fn translate_with(
+    err: &serde_yaml_ng::Error,
+    positions: &Positions,
+    prefix: &str,
+    extra: &[&str],
+) -> Error {
     let text = err.to_string();
     // Display is "[path: ]message[ at line L column C]"
     let body = match text.rfind(" at line ") {
@@ -477,7 +488,10 @@ fn translate_in(err: &serde_yaml_ng::Error, positions: &Positions, prefix: &str)
     let friendly = if let Some(rest) = message.strip_prefix("unknown field `") {
         let (field, tail) = rest.split_once('`').unwrap_or((rest, ""));
         key_path = join(&path, field);
-        let expected = backticked(tail);
+        let mut expected = backticked(tail);
+        if path == prefix {
+            expected.extend_from_slice(extra);
+        }
         let section = if path.is_empty() {
             "the top level".to_string()
         } else {
