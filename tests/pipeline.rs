@@ -297,13 +297,14 @@ fn demo_runs_recover_the_mock_truth() {
     let dir = tempdir();
     let nucleon = Truth::read(&repo_root().join("demo-data/nucleon/truth.yaml")).unwrap();
     let pion = Truth::read(&repo_root().join("demo-data/pion/truth.yaml")).unwrap();
-    // (pipeline, truth, form factor, least share of shells within 2 sigma). The pion's F at Q² > 0 is
-    // biased high by 3-4 sigma in the two-state and summation results (a finding for the
-    // ratio stage); only its charge F(0) = 1 is checked below.
-    let cases: [(&str, &Truth, &str, f64); 3] = [
+    // (pipeline, truth, form factor, least share of shells within 2 sigma). The pion's F was
+    // 3-4 sigma high while its pipeline averaged in two-state fits starting at t >= 4, whose
+    // gaps were poorly determined; with two-state fits from t = 1..3 every shell closes.
+    let cases: [(&str, &Truth, &str, f64); 4] = [
         ("nucleon-vector", &nucleon, "GE", 0.75),
         ("nucleon-vector", &nucleon, "GM", 0.75),
         ("nucleon-axial", &nucleon, "GA", 0.75),
+        ("pion-vector", &pion, "F", 0.75),
     ];
     for (name, truth, ff, least) in cases {
         let out = dir.path().join(name);
@@ -320,9 +321,6 @@ fn demo_runs_recover_the_mock_truth() {
     }
     // vector current conservation: the pion's charge F(0) = 1 (demo-data/pion.mock.yaml)
     let out = dir.path().join("pion-vector");
-    run_example("pion-vector", &out, &[]);
-    let (share, n) = closure(&out, &pion, "two-state", "F", 2.0);
-    assert!(n >= 5 && share > 0.0, "pion F: {n} shells, {share}");
     let f0 = read_rows(&out.join("formfactors.csv"))
         .into_iter()
         .find(|r| {
