@@ -437,8 +437,14 @@ fn report_page(
     };
     let mut report = Report::new(title);
     let mut overview = format!(
-        "Ensemble {}^3 x {}, a = {} fm, hadron {:?}. ",
-        e.l, e.t, e.spacing_fm, e.hadron
+        "Ensemble {}^3 x {}, a = {} fm, hadron of spin {}. ",
+        e.l,
+        e.t,
+        e.spacing_fm,
+        match e.hadron {
+            crate::kinematics::Hadron::Spin0 => "0",
+            crate::kinematics::Hadron::Spin1Half => "1/2",
+        }
     );
     if let Some(d) = &results.data {
         overview.push_str(&format!(
@@ -671,6 +677,19 @@ fn ratio_chart(k: &ChannelKey, c: &ChannelResult) -> Chart {
         ..Chart::default()
     };
     for (i, tsep) in c.ratio.tseps().into_iter().enumerate() {
+        // the plateau fit of this tsep as a band over its fit range, in the points' colour
+        if let Some(pl) = c.plateaus.iter().find(|p| p.tsep == tsep) {
+            let v = pick(&pl.fit.value, re);
+            let mid = tsep as f64 / 2.0;
+            let x = vec![pl.tau_range.0 as f64 - mid, pl.tau_range.1 as f64 - mid];
+            chart.series.push(Series::band(
+                String::new(),
+                i,
+                x,
+                vec![v.central - err_of(v); 2],
+                vec![v.central + err_of(v); 2],
+            ));
+        }
         let pts: Vec<_> = c.ratio.points.iter().filter(|p| p.tsep == tsep).collect();
         chart.series.push(
             Series::points(
@@ -730,6 +749,16 @@ fn summation_chart(k: &ChannelKey, c: &ChannelResult) -> Option<Chart> {
     })
 }
 
+/// Plot and legend order of methods: plateaus by increasing `tsep`, then summation, then
+/// two-state (string order would put `plateau-tsep10` before `plateau-tsep8`).
+fn method_order(m: &str) -> (u8, u32) {
+    match m.strip_prefix("plateau-tsep").and_then(|t| t.parse().ok()) {
+        Some(tsep) => (0, tsep),
+        None if m == "summation" => (1, 0),
+        None => (2, 0),
+    }
+}
+
 fn formfactor_charts(plan: &Plan, results: &RunResults) -> Vec<(String, Chart)> {
     let to_gev2 = (crate::kinematics::HBARC_GEV_FM / plan.spec.ensemble.spacing_fm).powi(2);
     let mut by_ff: BTreeMap<&str, BTreeMap<&str, Vec<&FormFactorRow>>> = BTreeMap::new();
@@ -750,6 +779,8 @@ fn formfactor_charts(plan: &Plan, results: &RunResults) -> Vec<(String, Chart)> 
                 y_label: ff.to_string(),
                 ..Chart::default()
             };
+            let mut methods: Vec<_> = methods.into_iter().collect();
+            methods.sort_by_key(|(m, _)| method_order(m));
             for (i, (m, rows)) in methods.into_iter().enumerate() {
                 let q = |r: &FormFactorRow| r.q2_gev2.as_ref().map_or(r.q2.central, |q| q.central);
                 chart.series.push(
