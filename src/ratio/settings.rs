@@ -88,7 +88,6 @@ pub struct RatioSettings {
     /// Covariance of the fitted points, estimated once from the resamples and frozen
     /// (default: full). YAML as in the resample stage: `kind: full | diagonal | shrinkage` or
     /// `kind: {shrinkage: {target: diagonal|identity, intensity: 0..1}}`, and `eigen_cut`.
-    #[schemars(with = "serde_json::Value")]
     pub covariance: CovarianceOptions,
 }
 
