@@ -15,6 +15,24 @@ pub(crate) struct Column {
     pub required: bool,
 }
 
+impl Column {
+    /// A column every table must have.
+    pub const fn required(name: &'static str) -> Column {
+        Column {
+            name,
+            required: true,
+        }
+    }
+
+    /// A column a table may leave out.
+    pub const fn optional(name: &'static str) -> Column {
+        Column {
+            name,
+            required: false,
+        }
+    }
+}
+
 /// The display name of an input: the path, or `<stdin>` for `-`.
 pub(crate) fn display_name(path: &Path) -> PathBuf {
     if path == Path::new("-") {

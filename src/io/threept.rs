@@ -41,70 +41,22 @@ const KEY_COLUMNS: [usize; 11] = [
 ];
 
 const SCHEMA: &[Column] = &[
-    Column {
-        name: "config",
-        required: true,
-    },
-    Column {
-        name: "tsep",
-        required: true,
-    },
-    Column {
-        name: "tau",
-        required: true,
-    },
-    Column {
-        name: "pfx",
-        required: true,
-    },
-    Column {
-        name: "pfy",
-        required: true,
-    },
-    Column {
-        name: "pfz",
-        required: true,
-    },
-    Column {
-        name: "qx",
-        required: true,
-    },
-    Column {
-        name: "qy",
-        required: true,
-    },
-    Column {
-        name: "qz",
-        required: true,
-    },
-    Column {
-        name: "current",
-        required: true,
-    },
-    Column {
-        name: "projector",
-        required: true,
-    },
-    Column {
-        name: "re",
-        required: true,
-    },
-    Column {
-        name: "im",
-        required: true,
-    },
-    Column {
-        name: "flavor",
-        required: false,
-    },
-    Column {
-        name: "diagram",
-        required: false,
-    },
-    Column {
-        name: "source",
-        required: false,
-    },
+    Column::required("config"),
+    Column::required("tsep"),
+    Column::required("tau"),
+    Column::required("pfx"),
+    Column::required("pfy"),
+    Column::required("pfz"),
+    Column::required("qx"),
+    Column::required("qy"),
+    Column::required("qz"),
+    Column::required("current"),
+    Column::required("projector"),
+    Column::required("re"),
+    Column::required("im"),
+    Column::optional("flavor"),
+    Column::optional("diagram"),
+    Column::optional("source"),
 ];
 
 /// Read a three-point table from a file (`-` for standard input).

@@ -24,42 +24,15 @@ const SMEAR: usize = 8;
 const KEY_COLUMNS: [usize; 4] = [PX, PX + 1, PX + 2, SMEAR];
 
 const SCHEMA: &[Column] = &[
-    Column {
-        name: "config",
-        required: true,
-    },
-    Column {
-        name: "px",
-        required: true,
-    },
-    Column {
-        name: "py",
-        required: true,
-    },
-    Column {
-        name: "pz",
-        required: true,
-    },
-    Column {
-        name: "t",
-        required: true,
-    },
-    Column {
-        name: "re",
-        required: true,
-    },
-    Column {
-        name: "im",
-        required: true,
-    },
-    Column {
-        name: "source",
-        required: false,
-    },
-    Column {
-        name: "smear",
-        required: false,
-    },
+    Column::required("config"),
+    Column::required("px"),
+    Column::required("py"),
+    Column::required("pz"),
+    Column::required("t"),
+    Column::required("re"),
+    Column::required("im"),
+    Column::optional("source"),
+    Column::optional("smear"),
 ];
 
 /// Read a two-point table from a file (`-` for standard input).
