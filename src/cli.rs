@@ -20,7 +20,7 @@ pub struct Cli {
 pub enum Command {
     /// Run a YAML analysis pipeline end to end.
     #[command(
-        after_help = "Example:\n  formfactory run pipelines/nucleon-vector.yaml --out runs/vector --jobs 2"
+        after_help = "Example:\n  formfactory run pipelines/nucleon-vector.yaml --out runs/vector --jobs 2 --set resampling.bin_size=2"
     )]
     Run(RunArgs),
     /// Validate a pipeline and its data without computing anything.
@@ -136,8 +136,24 @@ fn dispatch(cli: Cli) -> crate::Result<()> {
     }
 }
 
-fn run(_a: RunArgs) -> crate::Result<()> {
-    Err(crate::Error::config("`run` is not built yet"))
+fn run(a: RunArgs) -> crate::Result<()> {
+    let mut plan = crate::pipeline::load(&a.pipeline, &a.set)?;
+    if let Some(out) = a.out {
+        plan = plan.with_out_dir(out);
+    }
+    if a.jobs == Some(0) {
+        return Err(crate::Error::config(
+            "--jobs 0: expected at least one worker thread",
+        ));
+    }
+    plan.force = a.force;
+    plan.jobs = a.jobs;
+    let progress = crate::pipeline::progress::Progress::new(a.quiet);
+    let results = crate::pipeline::run(&plan, &progress)?;
+    if !a.quiet {
+        print!("{}", crate::pipeline::output::terminal_summary(&results));
+    }
+    Ok(())
 }
 
 fn check(a: CheckArgs) -> crate::Result<()> {

@@ -99,10 +99,12 @@ fn set_with_unknown_path_is_refused_with_suggestion() {
 #[test]
 fn out_of_range_values_quote_their_key() {
     let dir = tempdir();
-    let p = edited(dir.path(), |t| t.replace("  t_min: 2\n", "  t_min: 9\n"));
+    let p = edited(dir.path(), |t| {
+        t.replace("{from: 2, to: 4}", "{from: 2, to: 9}")
+    });
     let e = load_err(&p, &[]);
     assert!(
-        e.contains("p.yaml:17:3") && e.contains("t_min = 9 must be below t_max = 8"),
+        e.contains("p.yaml:18:3") && e.contains("t_max = 8 must be above the largest t_min (9)"),
         "{e}"
     );
     let p = edited(dir.path(), |t| t.replace("tsep: [4, 6]", "tsep: [2, 6]"));
@@ -111,7 +113,7 @@ fn out_of_range_values_quote_their_key() {
         e.contains("p.yaml:21:10") && e.contains("tau_cut < tsep/2"),
         "{e}"
     );
-    let p = edited(dir.path(), |t| t.replace("GE: {", "GX: {"));
+    let p = edited(dir.path(), |t| t.replace("GE: [", "GX: ["));
     let e = load_err(&p, &[]);
     assert!(
         e.contains("p.yaml:28:5") && e.contains("did you mean `GE`?"),

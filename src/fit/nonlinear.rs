@@ -108,9 +108,8 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
         let np = self.x.len();
         let mut jm = DMatrix::zeros(n, np);
         self.model.jacobian(self.x.as_slice(), &mut jm);
-        let wj = self.weights.whiten_matrix(&jm);
         let mut j = DMatrix::zeros(self.n_rows(), np);
-        j.rows_mut(0, n).copy_from(&wj);
+        self.weights.whiten_into(&jm, &mut j);
         for (k, (col, p)) in self.priors.iter().enumerate() {
             j[(n + k, *col)] = 1.0 / p.width;
         }
@@ -141,6 +140,32 @@ pub fn fit(
     priors: &[Option<Prior>],
     start: &[f64],
     settings: &FitSettings,
+) -> FitReport {
+    solve(model, y, w, priors, start, settings, true)
+}
+
+/// [`fit`] without the parameter covariance (`covariance` is always `None`): for the fits to
+/// resamples, whose errors come from the spread over resamples. Saves the SVD of the
+/// Jacobian at the minimum; parameters, chi-square and convergence are those of [`fit`].
+pub fn fit_without_covariance(
+    model: &dyn Model,
+    y: &[f64],
+    w: &Weights,
+    priors: &[Option<Prior>],
+    start: &[f64],
+    settings: &FitSettings,
+) -> FitReport {
+    solve(model, y, w, priors, start, settings, false)
+}
+
+fn solve(
+    model: &dyn Model,
+    y: &[f64],
+    w: &Weights,
+    priors: &[Option<Prior>],
+    start: &[f64],
+    settings: &FitSettings,
+    with_covariance: bool,
 ) -> FitReport {
     let np = model.n_params();
     let n = model.n_points();
@@ -196,9 +221,13 @@ pub fn fit(
         .with_stepbound(settings.stepbound);
     let (problem, report) = lm.minimize(problem);
     let params: Vec<f64> = problem.x.iter().copied().collect();
-    let (chi2, covariance) = match (problem.residuals(), problem.jacobian()) {
-        (Some(r), Some(j)) => (r.norm_squared(), lstsq(&j, &r).map(|(_, cov)| cov)),
-        _ => (f64::NAN, None),
+    let (chi2, covariance) = match problem.residuals() {
+        Some(r) if with_covariance => match problem.jacobian() {
+            Some(j) => (r.norm_squared(), lstsq(&j, &r).map(|(_, cov)| cov)),
+            None => (f64::NAN, None),
+        },
+        Some(r) => (r.norm_squared(), None),
+        None => (f64::NAN, None),
     };
     let converged = report.termination.was_successful() && chi2.is_finite();
     let message = if converged {

@@ -149,19 +149,32 @@ impl Weights {
 
     /// `out = W r` (lower-triangular product).
     pub fn whiten(&self, r: &[f64], out: &mut [f64]) {
-        for (i, o) in out.iter_mut().enumerate().take(self.len()) {
-            *o = r
-                .iter()
-                .take(i + 1)
-                .enumerate()
-                .map(|(j, rj)| self.whitening[(i, j)] * rj)
-                .sum();
+        let n = self.len().min(r.len()).min(out.len());
+        out[..n].fill(0.0);
+        // Column by column: `W` is stored column-major, so this walks memory in order.
+        for (j, rj) in r.iter().enumerate().take(n) {
+            let col = &self.whitening.as_slice()[j * self.len()..(j + 1) * self.len()];
+            for (o, w) in out[j..n].iter_mut().zip(&col[j..n]) {
+                *o += w * rj;
+            }
         }
     }
 
     /// `W A` for a matrix with `len()` rows.
     pub fn whiten_matrix(&self, a: &DMatrix<f64>) -> DMatrix<f64> {
-        &self.whitening * a
+        let mut out = DMatrix::zeros(a.nrows(), a.ncols());
+        self.whiten_into(a, &mut out);
+        out
+    }
+
+    /// Write `W A` into the first `len()` rows of `out` (same number of columns as `A`,
+    /// at least `len()` rows); rows below are left untouched. No allocation.
+    pub fn whiten_into(&self, a: &DMatrix<f64>, out: &mut DMatrix<f64>) {
+        let (n, rows_a, rows_out) = (self.len(), a.nrows().max(1), out.nrows().max(1));
+        let columns_out = out.as_mut_slice().chunks_mut(rows_out);
+        for (c, o) in a.as_slice().chunks(rows_a).zip(columns_out) {
+            self.whiten(c, &mut o[..n]);
+        }
     }
 
     /// `chi2 = |W r|^2`.

@@ -7,12 +7,23 @@
 //! computation. The JSON Schema of the file ([`schema_json`]) is generated from the same
 //! types, so editors can complete and check pipeline files.
 
+pub mod output;
 pub mod plan;
+pub mod progress;
+pub mod run;
 pub mod spec;
 pub mod yaml;
 
 pub use plan::{load, Plan};
+pub use run::{compute, Observer, RunResults, Silent};
 pub use spec::PipelineSpec;
+
+use crate::data::{ThreePointData, TwoPointData};
+use crate::io::{read_dataset, ReadOptions};
+use crate::kinematics::flavor;
+use crate::Result;
+use spec::Stage;
+use std::collections::BTreeSet;
 
 /// The JSON Schema of the pipeline file, pretty-printed with a trailing newline (the text
 /// of `schemas/pipeline.schema.json`).
@@ -23,15 +34,148 @@ pub fn schema_json() -> String {
     text
 }
 
-/// `formfactory check`: parse and validate the pipeline with its overrides, computing
-/// nothing; returns a short summary for the terminal.
-pub fn check(path: &std::path::Path, sets: &[String]) -> crate::Result<String> {
+/// `formfactory check`: parse and validate the pipeline with its overrides, then read the
+/// data and apply every data rule (tables, flavour combination, selections, binning, time
+/// ranges, momenta the ratio needs), computing nothing; returns a short summary.
+pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
     let plan = load(path, sets)?;
+    let (two, three, _) = read_data(&plan)?;
+    let report = crate::resample::binning::plan_bins(&two.configs, plan.spec.resampling.bin_size)
+        .map_err(|e| plan.error("resampling.bin_size", e))?;
+    check_data_rules(&plan, &two, &three)?;
     Ok(format!(
-        "{}: valid; stages up to `{}`; data {} and {}\n",
+        "{}: valid; stages up to `{}`; {} configurations in {} bins; {} two-point and {} three-point channels\n",
         path.display(),
         plan.last_stage.name(),
-        plan.twopt.display(),
-        plan.threept.display()
+        two.configs.len(),
+        report.n_bins,
+        two.channels.len(),
+        three.channels.len()
     ))
+}
+
+/// Read both tables, form the flavour combination and keep the selected `tsep` and
+/// currents. Errors about a selection name its YAML key.
+pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<String>)> {
+    let spec = &plan.spec;
+    let opts = ReadOptions {
+        keep_common_configs: spec.data.keep_common_configs,
+    };
+    let ds = read_dataset(&plan.twopt, Some(&plan.threept), &opts)?;
+    let mut three = ds
+        .threept
+        .ok_or_else(|| plan.error("data.threept", "the three-point table could not be read"))?;
+    if let Some(combo) = &spec.ratio.flavor {
+        three = flavor::combine(&three, std::slice::from_ref(combo))
+            .map_err(|e| plan.error("ratio.flavor", e))?;
+    }
+    let available: BTreeSet<u32> = three.channels.keys().map(|k| k.tsep).collect();
+    if let Some(tseps) = &spec.ratio.tsep {
+        for (i, t) in tseps.iter().enumerate() {
+            if !available.contains(t) {
+                return Err(plan.error(
+                    &format!("ratio.tsep[{i}]"),
+                    format!("tsep = {t} is not in the three-point data; available: {available:?}"),
+                ));
+            }
+        }
+        three.channels.retain(|k, _| tseps.contains(&k.tsep));
+    }
+    if let Some(currents) = &spec.ratio.currents {
+        let present: BTreeSet<&str> = three.channels.keys().map(|k| k.current.name()).collect();
+        for (i, c) in currents.iter().enumerate() {
+            if !present.contains(c.as_str()) {
+                return Err(plan.error(
+                    &format!("ratio.currents[{i}]"),
+                    format!(
+                        "the current `{c}` is not in the three-point data; available: {present:?}"
+                    ),
+                ));
+            }
+        }
+        three
+            .channels
+            .retain(|k, _| currents.iter().any(|c| c == k.current.name()));
+    }
+    Ok((ds.twopt, three, ds.notes))
+}
+
+/// Rules that need the data: time ranges against the table, `tau_cut` against every
+/// `tsep`, one flavour per channel, and the two-point momenta every ratio divides by.
+pub(crate) fn check_data_rules(
+    plan: &Plan,
+    two: &TwoPointData,
+    three: &ThreePointData,
+) -> Result<()> {
+    let spec = &plan.spec;
+    let n_t = two.channels.values().map(|s| s.n_t).min().unwrap_or(0);
+    if let Some(t_max) = spec.spectrum.fits.t_max {
+        if t_max >= n_t {
+            return Err(plan.error(
+                "spectrum.t_max",
+                format!(
+                    "t_max = {t_max} is beyond the two-point data (t = 0..{})",
+                    n_t.saturating_sub(1)
+                ),
+            ));
+        }
+    }
+    let tau_cut = spec.excited_states.fits.tau_cut;
+    let tseps: BTreeSet<u32> = three.channels.keys().map(|k| k.tsep).collect();
+    if let Some(t) = tseps.iter().find(|t| 2 * tau_cut >= **t) {
+        return Err(plan.error(
+            "excited_states.tau_cut",
+            format!("tau_cut = {tau_cut} leaves no insertion point at tsep = {t} in the data: expected tau_cut < tsep/2"),
+        ));
+    }
+    let flavors: BTreeSet<Option<&str>> =
+        three.channels.keys().map(|k| k.flavor.as_deref()).collect();
+    if flavors.len() > 1 {
+        return Err(plan.error(
+            "ratio.flavor",
+            format!("the three-point data hold several flavours {flavors:?}: choose one combination, e.g. `flavor: {{label: u-d, terms: [{{flavor: u, weight: 1}}, {{flavor: d, weight: -1}}]}}`"),
+        ));
+    }
+    let smear = spec.excited_states.fits.two_point_smear.as_deref();
+    let momenta: BTreeSet<[i32; 3]> = two
+        .channels
+        .keys()
+        .filter(|k| k.smear.as_deref() == smear)
+        .map(|k| k.momentum)
+        .collect();
+    if plan.runs(Stage::Spectrum) && !momenta.contains(&[0, 0, 0]) {
+        return Err(plan.error(
+            "data.twopt",
+            "the two-point data have no channel at momentum (0,0,0): the hadron mass cannot be fitted",
+        ));
+    }
+    for k in three.channels.keys() {
+        for p in [k.pf, k.pi()] {
+            if !momenta.contains(&p) {
+                return Err(plan.error(
+                    "data.twopt",
+                    format!(
+                        "the ratio of three-point channel {} needs the two-point function at momentum {p:?}, which is not in the two-point data",
+                        crate::io::describe_threept(k)
+                    ),
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Run the whole analysis: check the data rules, compute every stage, write the run
+/// directory all-or-nothing (an existing one is replaced only with `plan.force`).
+pub fn run(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
+    let dir = crate::report::RunDir::create(&plan.out_dir, plan.force)?;
+    let mut results = run::compute(plan, observer)?;
+    let start = std::time::Instant::now();
+    observer.stage_started("report");
+    output::write_all(plan, &mut results, dir.path())?;
+    let elapsed = start.elapsed();
+    observer.stage_finished("report", elapsed);
+    results.timings.push(("report".into(), elapsed));
+    results.run_dir = Some(dir.commit()?);
+    Ok(results)
 }

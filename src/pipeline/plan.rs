@@ -9,6 +9,7 @@ use crate::data::{Current, CurrentKind};
 use crate::kinematics::DecompositionSettings;
 use crate::kinematics::{FormFactor, Hadron};
 use crate::ratio::{FinalMethod, RatioSettings};
+use crate::spectrum::SpectrumSettings;
 use crate::{Error, Result};
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
@@ -34,6 +35,10 @@ pub struct Plan {
     pub last_stage: Stage,
     /// Key positions, for errors found later against the data.
     pub positions: Positions,
+    /// Replace an existing run directory.
+    pub force: bool,
+    /// Worker threads (`None`: rayon's default).
+    pub jobs: Option<usize>,
 }
 
 impl Plan {
@@ -70,6 +75,7 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
         let key = yaml::apply_set(&mut value, s)?;
         positions.record_set(&key, s);
     }
+    yaml::check_embedded::<SpectrumSettings>(&value, "spectrum", &["enabled"], &positions)?;
     yaml::check_embedded::<RatioSettings>(&value, "excited_states", &["methods"], &positions)?;
     yaml::check_embedded::<DecompositionSettings>(
         &value,
@@ -89,6 +95,13 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     let resolved = serde_yaml_ng::to_value(&spec)
         .map_err(|e| Error::config(format!("cannot represent the resolved settings: {e}")))?;
     yaml::check_known_keys(&value, &resolved, "", &positions)?;
+    let mut spec = spec;
+    let fits = &mut spec.spectrum.fits;
+    fits.l_extent.get_or_insert(spec.ensemble.l as usize);
+    fits.t_extent.get_or_insert(spec.ensemble.t as usize);
+    if fits.twist.is_none() && spec.decomposition.twist != [0.0; 3] {
+        fits.twist = Some(spec.decomposition.twist);
+    }
     let base = path.parent().unwrap_or(Path::new("")).to_path_buf();
     let resolve = |p: &Path| -> PathBuf {
         if p.is_absolute() {
@@ -107,6 +120,8 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
         overrides: sets.to_vec(),
         spec,
         positions,
+        force: false,
+        jobs: None,
     };
     validate(&plan)?;
     Ok(plan)
@@ -221,36 +236,44 @@ fn validate(plan: &Plan) -> Result<()> {
             ),
         );
     }
-    let sp = &s.spectrum;
-    if sp.t_min >= sp.t_max {
+    let sp = &s.spectrum.fits;
+    if sp.t_min.from > sp.t_min.to {
         return err(
             "spectrum.t_min",
-            format!("t_min = {} must be below t_max = {}", sp.t_min, sp.t_max),
+            format!(
+                "t_min from {} is after to {}: expected from <= to",
+                sp.t_min.from, sp.t_min.to
+            ),
         );
     }
-    if sp.t_max >= e.t {
-        return err(
-            "spectrum.t_max",
-            format!("t_max = {} must be below T = {}", sp.t_max, e.t),
-        );
+    if let Some(t_max) = sp.t_max {
+        if sp.t_min.to >= t_max {
+            return err(
+                "spectrum.t_max",
+                format!(
+                    "t_max = {t_max} must be above the largest t_min ({})",
+                    sp.t_min.to
+                ),
+            );
+        }
+        if t_max >= e.t as usize {
+            return err(
+                "spectrum.t_max",
+                format!("t_max = {t_max} must be below T = {}", e.t),
+            );
+        }
     }
-    if !(1..=3).contains(&sp.n_states) {
+    if sp.n_states.from < 1 || sp.n_states.to > 3 || sp.n_states.from > sp.n_states.to {
         return err(
             "spectrum.n_states",
             format!(
-                "n_states = {} is not valid: expected 1, 2 or 3",
-                sp.n_states
+                "n_states {}..={} is not valid: expected a range within 1..=3",
+                sp.n_states.from, sp.n_states.to
             ),
         );
     }
-    if (sp.t_max - sp.t_min + 1) <= 2 * sp.n_states {
-        return err(
-            "spectrum.t_max",
-            format!(
-                "the window {}..={} has too few points for {} states (2 parameters each)",
-                sp.t_min, sp.t_max, sp.n_states
-            ),
-        );
+    if s.excited_states.methods.contains(&Method::TwoState) && sp.n_states.to < 2 {
+        return err("spectrum.n_states", "the two-state ratio fit needs the excited-state gap: let n_states reach 2, or drop two_state from excited_states.methods".into());
     }
     if let Some(tseps) = &s.ratio.tsep {
         if tseps.is_empty() {
@@ -357,37 +380,11 @@ fn validate(plan: &Plan) -> Result<()> {
             m.push_str(&format!(" Valid: {}.", valid_names.join(", ")));
             return err(&key, m);
         }
-        if q.models.is_empty() {
+        if q.is_empty() {
             return err(
-                &format!("{key}.models"),
-                "no Q² model chosen: expected dipole and/or z-expansion".into(),
+                &key,
+                "no Q² fit listed: expected e.g. `[{model: dipole}]`".into(),
             );
-        }
-        if !(1..=10).contains(&q.kmax) {
-            return err(
-                &format!("{key}.kmax"),
-                format!("kmax = {} is not valid: expected 1 to 10", q.kmax),
-            );
-        }
-        if !(q.t_cut_mpi2.is_finite() && q.t_cut_mpi2 > 0.0) {
-            return err(&format!("{key}.t_cut_mpi2"), format!("t_cut_mpi2 = {} is not valid: expected a positive multiple of m_pi^2 (4 vector, 9 axial)", q.t_cut_mpi2));
-        }
-        if !(q.prior_width.is_finite() && q.prior_width > 0.0) {
-            return err(
-                &format!("{key}.prior_width"),
-                format!(
-                    "prior_width = {} is not valid: expected a positive number",
-                    q.prior_width
-                ),
-            );
-        }
-        if let Some(m) = q.q2_max {
-            if !(m.is_finite() && m > 0.0) {
-                return err(
-                    &format!("{key}.q2_max"),
-                    format!("q2_max = {m} is not valid: expected a positive Q² in lattice units"),
-                );
-            }
         }
     }
     if s.output.dir.as_os_str().is_empty() {

@@ -8,7 +8,9 @@
 
 use crate::kinematics::flavor::FlavorCombo;
 use crate::kinematics::{DecompositionSettings, Dispersion, FormFactor, Hadron};
+use crate::q2::Q2FitSettings;
 use crate::ratio::{RatioSettings, ZFactors};
+use crate::spectrum::SpectrumSettings;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -182,62 +184,26 @@ fn yes() -> bool {
     true
 }
 
-/// Covariance used by correlated fits.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "lowercase")]
-pub enum CovarianceKind {
-    /// The full estimated covariance.
-    Full,
-    /// Only its diagonal (uncorrelated fit).
-    Diagonal,
-    /// Shrinkage toward the diagonal (Ledoit–Wolf).
-    Shrinkage,
-}
-
-/// Two-point fits.
+/// Two-point fits: the section switch plus the spectrum stage's own settings (`t_min`,
+/// `t_max`, `n_states`, `priors`, `periodic`, `energies`, ...).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
 pub struct SpectrumSpec {
-    /// Run this stage.
+    /// Run this stage (and everything after it).
     #[serde(default = "yes")]
     pub enabled: bool,
-    /// First time slice of the fit window.
-    #[serde(default = "default_t_min")]
-    pub t_min: u32,
-    /// Last time slice of the fit window.
-    #[serde(default = "default_t_max")]
-    pub t_max: u32,
-    /// States in the fit (2 gives the gaps the two-state ratio fit needs).
-    #[serde(default = "two")]
-    pub n_states: u32,
-    /// Covariance used in the fit.
-    #[serde(default = "default_cov")]
-    pub covariance: CovarianceKind,
+    /// Settings of the two-point fits. `l_extent` and `t_extent` default to the ensemble's
+    /// `L` and `T`.
+    #[serde(flatten)]
+    pub fits: SpectrumSettings,
 }
 
 impl Default for SpectrumSpec {
     fn default() -> Self {
         SpectrumSpec {
             enabled: true,
-            t_min: default_t_min(),
-            t_max: default_t_max(),
-            n_states: 2,
-            covariance: default_cov(),
+            fits: SpectrumSettings::default(),
         }
     }
-}
-
-fn default_t_min() -> u32 {
-    2
-}
-fn default_t_max() -> u32 {
-    16
-}
-fn two() -> u32 {
-    2
-}
-fn default_cov() -> CovarianceKind {
-    CovarianceKind::Diagonal
 }
 
 /// The three-/two-point ratio: which data enter it.
@@ -364,92 +330,6 @@ fn default_energies() -> EnergySource {
     EnergySource::Fit
 }
 
-/// A Q² model.
-#[derive(
-    Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
-)]
-#[serde(rename_all = "snake_case")]
-pub enum Q2Model {
-    /// `G(0) / (1 + Q²/M²)²`.
-    Dipole,
-    /// `sum_k a_k z^k` (Hill & Paz).
-    ZExpansion,
-}
-
-impl Q2Model {
-    /// The name used in tables.
-    pub fn name(self) -> &'static str {
-        match self {
-            Q2Model::Dipole => "dipole",
-            Q2Model::ZExpansion => "z-expansion",
-        }
-    }
-}
-
-/// `t0` of the z-expansion.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "snake_case")]
-pub enum T0Choice {
-    /// `t0 = 0`.
-    Zero,
-    /// `t0 = t_cut (1 - sqrt(1 + Q²_max / t_cut))`.
-    Optimal,
-}
-
-/// Q² fit settings of one form factor.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct Q2FitSpec {
-    /// Models to fit.
-    #[serde(default = "both_models")]
-    pub models: Vec<Q2Model>,
-    /// Highest power of `z`.
-    #[serde(default = "default_kmax")]
-    pub kmax: u32,
-    /// `t_cut` in units of the pion mass squared (4 for the isovector vector, 9 for the
-    /// isovector axial current).
-    #[serde(default = "default_tcut")]
-    pub t_cut_mpi2: f64,
-    /// `t0` of the conformal map.
-    #[serde(default = "default_t0")]
-    pub t0: T0Choice,
-    /// Width of the Gaussian priors on `a_k / a_0`, k >= 1.
-    #[serde(default = "default_prior")]
-    pub prior_width: f64,
-    /// Largest Q² (lattice units) included; default all.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub q2_max: Option<f64>,
-}
-
-impl Default for Q2FitSpec {
-    fn default() -> Self {
-        Q2FitSpec {
-            models: both_models(),
-            kmax: default_kmax(),
-            t_cut_mpi2: default_tcut(),
-            t0: default_t0(),
-            prior_width: default_prior(),
-            q2_max: None,
-        }
-    }
-}
-
-fn both_models() -> Vec<Q2Model> {
-    vec![Q2Model::Dipole, Q2Model::ZExpansion]
-}
-fn default_kmax() -> u32 {
-    3
-}
-fn default_tcut() -> f64 {
-    4.0
-}
-fn default_t0() -> T0Choice {
-    T0Choice::Zero
-}
-fn default_prior() -> f64 {
-    5.0
-}
-
 /// Q² fits.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -457,10 +337,12 @@ pub struct Q2FitsSpec {
     /// Run this stage.
     #[serde(default = "yes")]
     pub enabled: bool,
-    /// Settings per form factor (`GE`, `GM`, `GA`, `GP`, `GS`, `G5`, `GT`, `F`); a form
-    /// factor not listed is not fitted.
+    /// The fits per form factor (`GE`, `GM`, `GA`, `GP`, `GS`, `G5`, `GT`, `F`), each a list
+    /// of shapes, e.g. `GE: [{model: dipole}, {model: z-expansion, t_cut: {pion_mass: 0.14,
+    /// n_pions: 2}, kmax: 3}]`. Q² is in lattice units. A form factor not listed is not
+    /// fitted. Each method's form factors are fitted (plateau: the largest `tsep` only).
     #[serde(default)]
-    pub form_factors: BTreeMap<FormFactor, Q2FitSpec>,
+    pub form_factors: BTreeMap<FormFactor, Vec<Q2FitSettings>>,
 }
 
 impl Default for Q2FitsSpec {

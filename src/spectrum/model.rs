@@ -43,6 +43,9 @@ impl Form {
 #[derive(Clone, Debug, PartialEq)]
 pub struct TwoPointModel {
     times: Vec<f64>,
+    /// Common spacing of `times` when they are equally spaced (the usual case): the terms are
+    /// then built by one multiplication per time instead of one exponential.
+    step: Option<f64>,
     n_states: usize,
     form: Form,
 }
@@ -50,8 +53,20 @@ pub struct TwoPointModel {
 impl TwoPointModel {
     /// A model with `n_states` (1..=[`MAX_STATES`], clamped) at `times`.
     pub fn new(times: Vec<f64>, n_states: usize, form: Form) -> Self {
+        let step = match times.as_slice() {
+            [t0, t1, ..] => {
+                let dt = t1 - t0;
+                let uniform = times
+                    .iter()
+                    .enumerate()
+                    .all(|(i, t)| (t - (t0 + i as f64 * dt)).abs() <= 1e-12 * (1.0 + t.abs()));
+                uniform.then_some(dt)
+            }
+            _ => None,
+        };
         TwoPointModel {
             times,
+            step,
             n_states: n_states.clamp(1, MAX_STATES),
             form,
         }
@@ -92,6 +107,45 @@ impl TwoPointModel {
         &params[self.n_states..2 * self.n_states]
     }
 
+    /// Call `f(i, value, d value / d E)` for one state of energy `e` at every time `i`. On
+    /// equally spaced times `e^{-E t}` is advanced by the factor `e^{-E dt}` (relative rounding
+    /// below `n_points * 1e-16`, far inside any fit tolerance); otherwise, or when the factors
+    /// over- or underflow, every term is computed directly.
+    fn for_each_term(&self, e: f64, mut f: impl FnMut(usize, f64, f64)) {
+        let direct = |f: &mut dyn FnMut(usize, f64, f64)| {
+            for (i, &t) in self.times.iter().enumerate() {
+                let (v, dv) = self.form.term(e, t);
+                f(i, v, dv);
+            }
+        };
+        let (Some(dt), Some(&t0)) = (self.step, self.times.first()) else {
+            return direct(&mut f);
+        };
+        let usable = |x: f64| x.is_normal() && x > 0.0;
+        let (mut a, q) = ((-e * t0).exp(), (-e * dt).exp());
+        match self.form {
+            Form::Exponential if usable(a) && usable(q) => {
+                for (i, &t) in self.times.iter().enumerate() {
+                    f(i, a, -t * a);
+                    a *= q;
+                }
+            }
+            Form::Periodic { t_extent } => {
+                let mut b = (-e * (t_extent - t0)).exp();
+                let q_inv = (e * dt).exp();
+                if !(usable(a) && usable(q) && usable(b) && usable(q_inv)) {
+                    return direct(&mut f);
+                }
+                for (i, &t) in self.times.iter().enumerate() {
+                    f(i, a + b, -t * a - (t_extent - t) * b);
+                    a *= q;
+                    b *= q_inv;
+                }
+            }
+            Form::Exponential => direct(&mut f),
+        }
+    }
+
     /// Parameters from energies (strictly increasing) and amplitudes.
     pub fn params_from(energies: &[f64], amplitudes: &[f64]) -> Vec<f64> {
         let mut p = vec![energies[0]];
@@ -115,12 +169,13 @@ impl Model for TwoPointModel {
     fn eval(&self, params: &[f64], out: &mut [f64]) {
         let e = self.energies(params);
         let a = self.amplitudes(params);
-        for (o, &t) in out.iter_mut().zip(&self.times) {
-            *o = e
-                .iter()
-                .zip(a)
-                .map(|(&en, &an)| an * self.form.term(en, t).0)
-                .sum();
+        out.fill(0.0);
+        for (&en, &an) in e.iter().zip(a) {
+            self.for_each_term(en, |i, v, _| {
+                if let Some(o) = out.get_mut(i) {
+                    *o += an * v;
+                }
+            });
         }
     }
 
@@ -128,18 +183,23 @@ impl Model for TwoPointModel {
         let ns = self.n_states;
         let e = self.energies(params);
         let a = self.amplitudes(params);
-        let mut de = [0.0; MAX_STATES];
-        for (i, &t) in self.times.iter().enumerate() {
-            for n in 0..ns {
-                let (f, df) = self.form.term(e[n], t);
-                out[(i, ns + n)] = f;
-                de[n] = a[n] * df;
-            }
-            // E_m depends on E_0 (slope 1) and on l_k for k <= m (slope exp(l_k)).
+        // Column n + ns: d/dA_n = term; column 0 for now collects A_n d term / dE_n per state
+        // n in its own column n, then E_m's dependence on E_0 (slope 1) and on l_k for
+        // k <= m (slope exp(l_k)) folds them into the columns of E_0 and the log-gaps.
+        for n in 0..ns {
+            self.for_each_term(e[n], |i, v, dv| {
+                out[(i, ns + n)] = v;
+                out[(i, n)] = a[n] * dv;
+            });
+        }
+        let slopes: Vec<f64> = (0..ns)
+            .map(|k| if k == 0 { 1.0 } else { params[k].exp() })
+            .collect();
+        for i in 0..self.times.len() {
             let mut tail = 0.0;
             for k in (0..ns).rev() {
-                tail += de[k];
-                out[(i, k)] = if k == 0 { tail } else { tail * params[k].exp() };
+                tail += out[(i, k)];
+                out[(i, k)] = tail * slopes[k];
             }
         }
     }

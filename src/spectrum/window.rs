@@ -131,7 +131,7 @@ pub(crate) fn fit_window(
         .into_par_iter()
         .map(|s| {
             let y: Vec<f64> = window.iter().map(|c| c.samples[s]).collect();
-            nonlinear::fit(&model, &y, w, &priors, &central.params, spec.fit)
+            nonlinear::fit_without_covariance(&model, &y, w, &priors, &central.params, spec.fit)
         })
         .collect();
     let failed_samples = samples.iter().filter(|r| !r.converged).count();

@@ -1,0 +1,528 @@
+//! The runner: the one place that owns the loop over the stages, their timing, warnings and
+//! progress. Stages are pure computation; this module feeds each one the previous one's
+//! results (read → bin and resample → spectrum → ratio and excited-state methods →
+//! decomposition per method with renormalization → Q² fits) and hands everything to
+//! [`super::output`], which writes the run directory all-or-nothing.
+//!
+//! Progress goes through the small [`Observer`] hooks, so the library never prints.
+
+use super::plan::{method_of, Plan};
+use super::spec::{EnergySource, Method, ResamplingMethod, Stage};
+use crate::data::{CurrentKind, Momentum, ThreePointData, TwoPointData};
+use crate::kinematics::{self, ChannelValue, Energies, FormFactor, KinematicSetup, ShellResult};
+use crate::q2::{self, Q2Fit, Q2Model, Q2Point, Q2Units};
+use crate::ratio::{self, ChannelKey, ChannelResult, Renormalized, TwoPointStates};
+use crate::resample::binning::{bin_threept, bin_twopt};
+use crate::resample::{ResamplePlan, Resampled};
+use crate::spectrum::{self, SpectrumResult};
+use crate::{Error, Result};
+use std::collections::BTreeMap;
+use std::time::{Duration, Instant};
+
+/// Hooks through which the runner reports progress; every method has a silent default.
+pub trait Observer: Sync {
+    /// A stage starts.
+    fn stage_started(&self, _stage: &str) {}
+    /// A stage finished after `elapsed`.
+    fn stage_finished(&self, _stage: &str, _elapsed: Duration) {}
+    /// A warning was raised (it is also kept in [`RunResults::warnings`]).
+    fn warning(&self, _message: &str) {}
+}
+
+/// An observer that reports nothing.
+pub struct Silent;
+impl Observer for Silent {}
+
+/// What the read-and-resample stage established.
+#[derive(Clone, Debug)]
+pub struct DataSummary {
+    /// Configurations read (common to both tables).
+    pub n_configs: usize,
+    /// Bins after binning.
+    pub n_bins: usize,
+    /// Resamples.
+    pub n_samples: usize,
+    /// Two-point channels.
+    pub n_twopt_channels: usize,
+    /// Three-point channels (each `tsep` counted).
+    pub n_threept_channels: usize,
+    /// What the reader did beyond plain reading.
+    pub notes: Vec<String>,
+}
+
+/// One form factor on one Q² shell from one excited-state method.
+#[derive(Clone, Debug)]
+pub struct FormFactorRow {
+    /// Method label: `plateau-tsep12`, `summation`, `two-state`.
+    pub method: String,
+    /// The form factor.
+    pub form_factor: FormFactor,
+    /// Current kind of the shell's channels.
+    pub kind: CurrentKind,
+    /// Shell label.
+    pub shell: String,
+    /// Q² (lattice units).
+    pub q2: Resampled,
+    /// Q² in GeV².
+    pub q2_gev2: Option<Resampled>,
+    /// Renormalized value with its statistical, Z and total errors.
+    pub value: Renormalized,
+    /// Channels in the shell.
+    pub n_channels: usize,
+    /// chi²/dof of the decomposition (`None` when exactly determined).
+    pub chi2_dof: Option<f64>,
+}
+
+/// A quantity derived from a Q² fit (radius, moment, charge).
+#[derive(Clone, Debug)]
+pub struct DerivedRow {
+    /// Method label of the form factors fitted.
+    pub method: String,
+    /// Q² model (`dipole`, `z_expansion`).
+    pub model: String,
+    /// Quantity name (`GE(0)`, `r2_GE`, ...).
+    pub quantity: String,
+    /// The value, per resample.
+    pub value: Resampled,
+    /// Total error: statistical, and for `G(0)` the renormalization error in quadrature.
+    pub error: f64,
+    /// Unit of the value.
+    pub unit: String,
+}
+
+/// One Q² fit of one method's form factor.
+#[derive(Clone, Debug)]
+pub struct Q2FitResult {
+    /// Method label of the form factors fitted.
+    pub method: String,
+    /// The form factor.
+    pub form_factor: FormFactor,
+    /// Model label (`dipole`, `z-expansion`, with a number when a model is listed twice).
+    pub model: String,
+    /// The fit (Q² in lattice units).
+    pub fit: Q2Fit,
+    /// Relative error `dZ / Z` of the renormalization of this form factor's current.
+    pub z_relative_error: f64,
+}
+
+/// Everything a run computed, in stage order; later stages are `None`/empty when the run
+/// stopped early.
+#[derive(Clone, Debug)]
+pub struct RunResults {
+    /// Read and resample summary.
+    pub data: Option<DataSummary>,
+    /// Spectrum stage output.
+    pub spectrum: Option<SpectrumResult>,
+    /// Ratio stage output per channel.
+    pub channels: Option<BTreeMap<ChannelKey, ChannelResult>>,
+    /// Form factors per method and shell (empty before the decomposition).
+    pub form_factors: Vec<FormFactorRow>,
+    /// Quantities from the Q² fits.
+    pub derived: Vec<DerivedRow>,
+    /// The Q² fits themselves (for plots).
+    pub q2_fits: Vec<Q2FitResult>,
+    /// Wall time per stage, in run order.
+    pub timings: Vec<(String, Duration)>,
+    /// Warnings collected from every stage.
+    pub warnings: Vec<String>,
+    /// The method whose numbers are final.
+    pub final_method: String,
+    /// Where the results were written (set by [`super::run`]).
+    pub run_dir: Option<std::path::PathBuf>,
+}
+
+struct Recorder<'a> {
+    observer: &'a dyn Observer,
+    timings: Vec<(String, Duration)>,
+    warnings: Vec<String>,
+}
+
+impl Recorder<'_> {
+    fn stage<T>(&mut self, name: &str, f: impl FnOnce(&mut Self) -> Result<T>) -> Result<T> {
+        self.observer.stage_started(name);
+        let start = Instant::now();
+        let out = f(self);
+        let elapsed = start.elapsed();
+        self.observer.stage_finished(name, elapsed);
+        self.timings.push((name.to_string(), elapsed));
+        out
+    }
+
+    fn warn(&mut self, message: impl Into<String>) {
+        let m = message.into();
+        self.observer.warning(&m);
+        self.warnings.push(m);
+    }
+}
+
+/// Compute every stage the plan asks for (no files written; see [`super::run`] for the
+/// whole run with its run directory). With `jobs` the stages run on a dedicated rayon pool
+/// of that many threads; results do not depend on it.
+pub fn compute(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
+    match plan.jobs {
+        Some(n) => {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(n.max(1))
+                .build()
+                .map_err(|e| Error::config(format!("cannot start {n} worker threads: {e}")))?;
+            pool.install(|| compute_here(plan, observer))
+        }
+        None => compute_here(plan, observer),
+    }
+}
+
+fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
+    let spec = &plan.spec;
+    let mut rec = Recorder {
+        observer,
+        timings: Vec::new(),
+        warnings: Vec::new(),
+    };
+    let final_method = method_label(method_of(spec.excited_states.fits.final_method), None);
+    let mut results = RunResults {
+        data: None,
+        spectrum: None,
+        channels: None,
+        form_factors: Vec::new(),
+        derived: Vec::new(),
+        q2_fits: Vec::new(),
+        timings: Vec::new(),
+        warnings: Vec::new(),
+        final_method,
+        run_dir: None,
+    };
+    let (two, three, rplan, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+
+    results.data = Some(summary);
+    if plan.runs(Stage::Spectrum) {
+        let sp = rec.stage("spectrum", |_| {
+            spectrum::run(&two, &rplan, &spec.spectrum.fits)
+        })?;
+        for w in &sp.warnings {
+            rec.warn(format!("spectrum: {w}"));
+        }
+        results.spectrum = Some(sp);
+    }
+    if plan.runs(Stage::Ratio) {
+        let sp = results
+            .spectrum
+            .as_ref()
+            .ok_or_else(|| Error::analysis("ratio", "the ratio needs the spectrum stage"))?;
+        let states = two_point_states(sp);
+        let channels = rec.stage("ratio", |_| {
+            ratio::analyse_all(&three, &two, &rplan, &states, &spec.excited_states.fits)
+        })?;
+        for (key, c) in &channels {
+            for n in &c.notes {
+                rec.warn(format!("ratio {key}: {n}"));
+            }
+        }
+        results.channels = Some(channels);
+    }
+    if plan.runs(Stage::Decomposition) {
+        let rows = rec.stage("decomposition", |rec| decompose_all(plan, &results, rec))?;
+        results.form_factors = rows;
+    }
+    if plan.runs(Stage::Q2Fits) && !spec.q2_fits.form_factors.is_empty() {
+        let fits = rec.stage("q2_fits", |rec| {
+            Ok(q2_fits(plan, &results.form_factors, rec))
+        })?;
+        results.derived = fits.iter().flat_map(derived_rows).collect();
+        results.q2_fits = fits;
+    }
+    results.timings = rec.timings;
+    results.warnings = rec.warnings;
+    Ok(results)
+}
+
+type Resampled4 = (TwoPointData, ThreePointData, ResamplePlan, DataSummary);
+
+fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<Resampled4> {
+    let spec = &plan.spec;
+    let (two, three, notes) = super::read_data(plan)?;
+    super::check_data_rules(plan, &two, &three)?;
+    let n_configs = two.configs.len();
+    let b = spec.resampling.bin_size;
+    let (two, report) = bin_twopt(&two, b)?;
+    let (three, _) = bin_threept(&three, b)?;
+    if !report.dropped_configs.is_empty() {
+        rec.warn(format!(
+            "binning by {b} dropped the last {} configuration(s): {:?}",
+            report.dropped_configs.len(),
+            report.dropped_configs
+        ));
+    }
+    let n_bins = report.n_bins;
+    let rplan = match spec.resampling.method {
+        ResamplingMethod::Jackknife => ResamplePlan::jackknife(n_bins),
+        ResamplingMethod::Bootstrap => {
+            ResamplePlan::bootstrap(n_bins, spec.resampling.samples, spec.resampling.seed)
+        }
+    };
+    let summary = DataSummary {
+        n_configs,
+        n_bins,
+        n_samples: rplan.n_samples(),
+        n_twopt_channels: two.channels.len(),
+        n_threept_channels: three.channels.len(),
+        notes,
+    };
+    Ok((two, three, rplan, summary))
+}
+
+/// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,
+/// the amplitude ratio and the gap of the best multi-state fit.
+fn two_point_states(sp: &SpectrumResult) -> BTreeMap<Momentum, TwoPointStates> {
+    sp.per_momentum
+        .iter()
+        .filter_map(|(p, m)| {
+            Some((
+                *p,
+                TwoPointStates {
+                    energy: m.ground_energy().clone(),
+                    amp_ratio: m.amplitude_ratio()?,
+                    gap: m.gap()?,
+                },
+            ))
+        })
+        .collect()
+}
+
+/// `plateau-tsep12`, `summation`, `two-state`.
+pub fn method_label(m: Method, tsep: Option<u32>) -> String {
+    match (m, tsep) {
+        (Method::Plateau, Some(t)) => format!("plateau-tsep{t}"),
+        (Method::Plateau, None) => "plateau".into(),
+        (Method::Summation, _) => "summation".into(),
+        (Method::TwoState, _) => "two-state".into(),
+    }
+}
+
+/// Every method's channel values: label, then one value per channel.
+fn method_values(
+    methods: &[Method],
+    channels: &BTreeMap<ChannelKey, ChannelResult>,
+) -> Vec<(String, Vec<ChannelValue>)> {
+    let value = |k: &ChannelKey, v: &ratio::ReIm| ChannelValue {
+        pf: k.pf,
+        q: k.q,
+        current: k.current,
+        projector: k.projector,
+        re: v.re.clone(),
+        im: v.im.clone(),
+    };
+    let mut out: Vec<(String, Vec<ChannelValue>)> = Vec::new();
+    for &m in methods {
+        match m {
+            Method::Plateau => {
+                let mut by_tsep: BTreeMap<u32, Vec<ChannelValue>> = BTreeMap::new();
+                for (k, c) in channels {
+                    for p in &c.plateaus {
+                        by_tsep
+                            .entry(p.tsep)
+                            .or_default()
+                            .push(value(k, &p.fit.value));
+                    }
+                }
+                out.extend(
+                    by_tsep
+                        .into_iter()
+                        .map(|(t, v)| (method_label(m, Some(t)), v)),
+                );
+            }
+            Method::Summation => out.push((
+                method_label(m, None),
+                channels
+                    .iter()
+                    .filter_map(|(k, c)| Some(value(k, &c.summation.as_ref()?.slope.value)))
+                    .collect(),
+            )),
+            Method::TwoState => out.push((
+                method_label(m, None),
+                channels
+                    .iter()
+                    .filter_map(|(k, c)| Some(value(k, &c.two_state.as_ref()?.m.value)))
+                    .collect(),
+            )),
+        }
+    }
+    out
+}
+
+fn decompose_all(
+    plan: &Plan,
+    results: &RunResults,
+    rec: &mut Recorder,
+) -> Result<Vec<FormFactorRow>> {
+    let spec = &plan.spec;
+    let (Some(sp), Some(channels)) = (&results.spectrum, &results.channels) else {
+        return Err(Error::analysis(
+            "decomposition",
+            "the decomposition needs the spectrum and ratio stages",
+        ));
+    };
+    let mass = sp.mass.clone().ok_or_else(|| {
+        Error::analysis(
+            "decomposition",
+            "no two-point data at momentum (0,0,0): the hadron mass is unknown",
+        )
+    })?;
+    let d = &spec.decomposition;
+    let setup = KinematicSetup {
+        hadron: spec.ensemble.hadron,
+        l: spec.ensemble.l as usize,
+        twist_sink: d.twist,
+        twist_source: d.twist,
+        mass,
+        energies: match d.energies {
+            EnergySource::Fit => Energies::Fitted(
+                sp.per_momentum
+                    .iter()
+                    .map(|(p, m)| (*p, m.ground_energy().clone()))
+                    .collect(),
+            ),
+            EnergySource::Dispersion => Energies::Dispersion(d.dispersion),
+        },
+        spacing_fm: Some(spec.ensemble.spacing_fm),
+    };
+    let mut rows = Vec::new();
+    for (label, values) in method_values(&spec.excited_states.methods, channels) {
+        if values.is_empty() {
+            rec.warn(format!("decomposition {label}: no channel has a value"));
+            continue;
+        }
+        let dec = kinematics::decompose(&values, &setup, &d.solve)?;
+        for s in &dec.skipped {
+            rec.warn(format!(
+                "decomposition {label}: shell {} ({:?}) skipped: {}",
+                s.label, s.kind, s.reason
+            ));
+        }
+        for shell in &dec.shells {
+            rows.extend(shell_rows(&label, shell, &spec.renormalization));
+        }
+    }
+    Ok(rows)
+}
+
+fn shell_rows(method: &str, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<FormFactorRow> {
+    shell
+        .form_factors
+        .iter()
+        .map(|(ff, v)| FormFactorRow {
+            method: method.to_string(),
+            form_factor: *ff,
+            kind: shell.kind,
+            shell: shell.label.clone(),
+            q2: shell.q2.clone(),
+            q2_gev2: shell.q2_gev2.clone(),
+            value: ratio::renorm::renormalize(v, z.get(shell.kind)),
+            n_channels: shell.n_channels,
+            chi2_dof: shell.chi2_dof,
+        })
+        .collect()
+}
+
+/// Fit each listed form factor of every method (plateaus: the largest `tsep` only); a fit
+/// that fails becomes a warning.
+fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2FitResult> {
+    let spec = &plan.spec;
+    let largest_plateau = rows
+        .iter()
+        .filter_map(|r| r.method.strip_prefix("plateau-tsep")?.parse::<u32>().ok())
+        .max()
+        .map(|t| method_label(Method::Plateau, Some(t)));
+    let mut groups: BTreeMap<(String, FormFactor), Vec<Q2Point>> = BTreeMap::new();
+    for r in rows {
+        if r.method.starts_with("plateau") && Some(&r.method) != largest_plateau.as_ref() {
+            continue;
+        }
+        if !spec.q2_fits.form_factors.contains_key(&r.form_factor) {
+            continue;
+        }
+        groups
+            .entry((r.method.clone(), r.form_factor))
+            .or_default()
+            .push(Q2Point {
+                q2: r.q2.clone(),
+                value: r.value.value.clone(),
+            });
+    }
+    let units = Q2Units::Lattice {
+        spacing_fm: Some(spec.ensemble.spacing_fm),
+    };
+    let mut out = Vec::new();
+    for ((method, ff), points) in groups {
+        let list = &spec.q2_fits.form_factors[&ff];
+        for (i, settings) in list.iter().enumerate() {
+            let base = match settings.model {
+                Q2Model::Dipole { .. } => "dipole",
+                Q2Model::ZExpansion { .. } => "z-expansion",
+            };
+            let same = list
+                .iter()
+                .filter(|s| {
+                    std::mem::discriminant(&s.model) == std::mem::discriminant(&settings.model)
+                })
+                .count();
+            let model = if same > 1 {
+                format!("{base}-{}", i + 1)
+            } else {
+                base.to_string()
+            };
+            match q2::fit(&points, settings, units) {
+                Ok(fit) => {
+                    if fit.n_failed > 0 {
+                        rec.warn(format!(
+                            "q2_fits {method} {ff} {model}: {} resample fit(s) did not converge",
+                            fit.n_failed
+                        ));
+                    }
+                    let z = spec.renormalization.get(kind_of(rows, ff));
+                    out.push(Q2FitResult {
+                        method: method.clone(),
+                        form_factor: ff,
+                        model,
+                        fit,
+                        z_relative_error: (z.error / z.value).abs(),
+                    });
+                }
+                Err(e) => rec.warn(format!("q2_fits {method} {ff} {model}: {e}")),
+            }
+        }
+    }
+    out
+}
+
+/// `G(0)`, `r²` (fm²) and `r` (fm) of one fit.
+fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
+    let ff = f.form_factor.name();
+    let row = |quantity: String, value: Resampled, z_rel: f64, unit: &str| DerivedRow {
+        method: f.method.clone(),
+        model: f.model.clone(),
+        quantity,
+        error: value.error().hypot(value.central * z_rel),
+        value,
+        unit: unit.to_string(),
+    };
+    // G(0) scales with Z; radii do not
+    let mut out = vec![row(
+        format!("{ff}(0)"),
+        f.fit.g0.clone(),
+        f.z_relative_error,
+        "",
+    )];
+    if let Some(r2) = &f.fit.r2_fm2 {
+        out.push(row(format!("r2_{ff}"), r2.clone(), 0.0, "fm^2"));
+    }
+    if let Some(r) = f.fit.radius_fm() {
+        out.push(row(format!("r_{ff}"), r, 0.0, "fm"));
+    }
+    out
+}
+
+fn kind_of(rows: &[FormFactorRow], ff: FormFactor) -> CurrentKind {
+    rows.iter()
+        .find(|r| r.form_factor == ff)
+        .map_or(CurrentKind::Vector, |r| r.kind)
+}
