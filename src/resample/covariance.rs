@@ -145,9 +145,8 @@ impl Serialize for CovarianceKind {
 }
 
 impl JsonSchema for CovarianceKind {
-    // Not "CovarianceKind": the pipeline spec has its own type of that name.
     fn schema_name() -> String {
-        "CovarianceEstimateKind".to_string()
+        "CovarianceKind".to_string()
     }
     fn json_schema(gen: &mut SchemaGenerator) -> Schema {
         KindRepr::json_schema(gen)
