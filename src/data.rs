@@ -7,6 +7,7 @@
 //! Channel keys follow shared conventions (see `DEVELOPERS.md`): momenta are integer vectors
 //! in units of `2 pi / L`; the source momentum of a three-point channel is `p_f - q`.
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::fmt;
@@ -190,7 +191,9 @@ impl fmt::Display for Projector {
 }
 
 /// Connected or disconnected quark-line diagram.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
+)]
 #[serde(rename_all = "lowercase")]
 pub enum Diagram {
     /// Connected diagram.

@@ -298,6 +298,26 @@ fn hbarc_matches_codata() {
     );
 }
 
+#[test]
+fn flavor_term_schema_lists_the_diagram_names() {
+    // The YAML `diagram` of a flavour term accepts exactly the data-format.md labels.
+    let schema = schemars::schema_for!(formfactory::kinematics::flavor::FlavorTerm);
+    let text = serde_json::to_string(&schema).unwrap();
+    assert!(
+        text.contains("\"connected\"") && text.contains("\"disconnected\""),
+        "{text}"
+    );
+    let term: formfactory::kinematics::flavor::FlavorTerm =
+        serde_yaml_ng::from_str("{flavor: u, diagram: connected, weight: 1.0}").unwrap();
+    assert_eq!(term.diagram, Some(formfactory::data::Diagram::Connected));
+    assert!(
+        serde_yaml_ng::from_str::<formfactory::kinematics::flavor::FlavorTerm>(
+            "{flavor: u, diagram: loop, weight: 1.0}"
+        )
+        .is_err()
+    );
+}
+
 mod decomposition {
     use super::*;
     use formfactory::data::{Diagram, Momentum, Series, ThreePointData, ThreePointKey};

@@ -915,6 +915,14 @@ fn settings_read_from_yaml_with_defaults() {
     let schema = schemars::schema_for!(RatioSettings);
     let text = serde_json::to_string(&schema).unwrap();
     assert!(text.contains("summation_tsep_min"));
+    // The covariance block carries the resample stage's own schema, not a free-form value.
+    let covariance = &schema.schema.object.as_ref().expect("object").properties["covariance"];
+    let covariance = serde_json::to_string(covariance).unwrap();
+    assert!(covariance.contains("CovarianceOptions"), "{covariance}");
+    assert!(
+        text.contains("eigen_cut") && text.contains("shrinkage"),
+        "{text}"
+    );
 }
 
 #[test]

@@ -289,11 +289,28 @@ fn resampled_helpers() {
 
     // mean_of averages sample by sample; incompatible inputs are an error, not a panic.
     let k = Resampled::new(3.0, vec![2.9, 3.1, 3.3, 2.7], Scheme::Jackknife);
-    let m = Resampled::mean_of(&[j.clone(), k]).expect("compatible");
+    let m = Resampled::mean_of(&[j.clone(), k.clone()]).expect("compatible");
     assert_relative_eq!(m.central, 2.0);
     assert_relative_eq!(m.samples[2], 2.3, max_relative = 1e-14);
     assert!(Resampled::mean_of(&[]).is_err());
     assert!(Resampled::mean_of(&[j.clone(), b.clone()]).is_err());
+    // The checked combinators used at stage boundaries: same numbers as the plain ones,
+    // an error naming the values when plans differ (here 4 vs 3 samples, or schemes).
+    let d = j
+        .try_zip_map(&k, "j and k", |a, c| c - a)
+        .expect("compatible");
+    assert_relative_eq!(d.samples[3], 1.6, max_relative = 1e-14);
+    let short = Resampled::new(1.0, vec![1.0, 1.0, 1.0], Scheme::Jackknife);
+    let err = j
+        .try_zip_map(&short, "j and short", |a, c| a + c)
+        .unwrap_err();
+    assert!(err.to_string().contains("j and short"), "{err}");
+    assert!(j.try_zip_map(&b, "j and b", |a, c| a + c).is_err());
+    let c = Resampled::try_combine(&[&j, &k], "pair", |x| x[0] * x[1]).expect("compatible");
+    assert_relative_eq!(c.central, 3.0);
+    assert_relative_eq!(c.samples[1], 0.9 * 3.1, max_relative = 1e-14);
+    assert!(Resampled::try_combine(&[], "nothing", |x| x.len() as f64).is_err());
+    assert!(Resampled::try_combine(&[&j, &short], "mixed", |x| x[0]).is_err());
     // Percentile interval = linear-interpolation quantiles (Hyndman & Fan, Am. Stat. 50 (1996)
     // 361, type 7): numpy 2.4.6 np.percentile(x, [15.865, 84.135]) on these 11 values gives
     // -0.136075 and 1.90675.

@@ -15,6 +15,24 @@ pub(crate) struct Column {
     pub required: bool,
 }
 
+impl Column {
+    /// A column every table must have.
+    pub const fn required(name: &'static str) -> Column {
+        Column {
+            name,
+            required: true,
+        }
+    }
+
+    /// A column a table may leave out.
+    pub const fn optional(name: &'static str) -> Column {
+        Column {
+            name,
+            required: false,
+        }
+    }
+}
+
 /// The display name of an input: the path, or `<stdin>` for `-`.
 pub(crate) fn display_name(path: &Path) -> PathBuf {
     if path == Path::new("-") {
@@ -382,11 +400,6 @@ impl Accumulator {
         id
     }
 
-    /// Number of channels registered.
-    pub fn n_channels(&self) -> usize {
-        self.channels.len()
-    }
-
     fn config_index(&mut self, config: i64) -> u32 {
         let n = self.configs.len() as u32;
         // Tables are usually written with configurations cycling in a fixed order.
@@ -519,12 +532,34 @@ pub(crate) struct KeyCache {
     /// compare equal).
     last: Vec<u8>,
     valid: bool,
+    /// Channel id of the remembered row.
+    last_id: Option<u32>,
 }
 
 impl KeyCache {
+    /// The channel id of the current row: the remembered one when its key columns `cols`
+    /// repeat those of the previous row (tables are usually grouped by channel), otherwise
+    /// `lookup()`'s, which is then remembered.
+    pub fn channel_id<R: Read>(
+        &mut self,
+        rd: &TableReader<R>,
+        cols: &[usize],
+        lookup: impl FnOnce() -> Result<u32>,
+    ) -> Result<u32> {
+        if let Some(id) = self.last_id {
+            if self.same_as_last(rd, cols) {
+                return Ok(id);
+            }
+        }
+        let id = lookup()?;
+        self.remember(rd, cols);
+        self.last_id = Some(id);
+        Ok(id)
+    }
+
     /// Whether the key columns `cols` of the current row are byte-identical to those of the
     /// remembered row. Compares in place, without copying.
-    pub fn same_as_last<R: Read>(&self, rd: &TableReader<R>, cols: &[usize]) -> bool {
+    fn same_as_last<R: Read>(&self, rd: &TableReader<R>, cols: &[usize]) -> bool {
         if !self.valid {
             return false;
         }
@@ -543,7 +578,7 @@ impl KeyCache {
     }
 
     /// Remember the key columns `cols` of the current row.
-    pub fn remember<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) {
+    fn remember<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) {
         self.last.clear();
         for &k in cols {
             let b = rd.raw(k);
@@ -551,5 +586,20 @@ impl KeyCache {
             self.last.extend_from_slice(b);
         }
         self.valid = true;
+    }
+}
+
+/// Channel ids `0..keys.len()` ordered by their keys, the order of the output map.
+pub(crate) fn key_order<K: Ord>(keys: &[K]) -> Vec<u32> {
+    let mut order: Vec<u32> = (0..keys.len() as u32).collect();
+    order.sort_by(|&a, &b| keys[a as usize].cmp(&keys[b as usize]));
+    order
+}
+
+/// The error for a table with a header and no data rows.
+pub(crate) fn no_data_rows(path: PathBuf) -> Error {
+    Error::Table {
+        path,
+        message: "the table has a header but no data rows".into(),
     }
 }

@@ -3,7 +3,10 @@
 //! Time-axis rule: each channel (one `tsep`) has every insertion time `tau = 0..=tsep` for
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
-use super::table::{display_name, open, Accumulator, Column, KeyCache, Summary, TableReader};
+use super::table::{
+    display_name, key_order, no_data_rows, open, Accumulator, Column, KeyCache, Summary,
+    TableReader,
+};
 use crate::data::{Current, Diagram, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -38,70 +41,22 @@ const KEY_COLUMNS: [usize; 11] = [
 ];
 
 const SCHEMA: &[Column] = &[
-    Column {
-        name: "config",
-        required: true,
-    },
-    Column {
-        name: "tsep",
-        required: true,
-    },
-    Column {
-        name: "tau",
-        required: true,
-    },
-    Column {
-        name: "pfx",
-        required: true,
-    },
-    Column {
-        name: "pfy",
-        required: true,
-    },
-    Column {
-        name: "pfz",
-        required: true,
-    },
-    Column {
-        name: "qx",
-        required: true,
-    },
-    Column {
-        name: "qy",
-        required: true,
-    },
-    Column {
-        name: "qz",
-        required: true,
-    },
-    Column {
-        name: "current",
-        required: true,
-    },
-    Column {
-        name: "projector",
-        required: true,
-    },
-    Column {
-        name: "re",
-        required: true,
-    },
-    Column {
-        name: "im",
-        required: true,
-    },
-    Column {
-        name: "flavor",
-        required: false,
-    },
-    Column {
-        name: "diagram",
-        required: false,
-    },
-    Column {
-        name: "source",
-        required: false,
-    },
+    Column::required("config"),
+    Column::required("tsep"),
+    Column::required("tau"),
+    Column::required("pfx"),
+    Column::required("pfy"),
+    Column::required("pfz"),
+    Column::required("qx"),
+    Column::required("qy"),
+    Column::required("qz"),
+    Column::required("current"),
+    Column::required("projector"),
+    Column::required("re"),
+    Column::required("im"),
+    Column::optional("flavor"),
+    Column::optional("diagram"),
+    Column::optional("source"),
 ];
 
 /// Read a three-point table from a file (`-` for standard input).
@@ -135,26 +90,18 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
     let mut keys: Vec<ThreePointKey> = Vec::new();
     let mut enc: Vec<u8> = Vec::with_capacity(64);
     let mut cache = KeyCache::default();
-    let mut last: Option<u32> = None;
     while rd.next()? {
         let config = rd.int(CONFIG, SCHEMA)?;
-        let same = cache.same_as_last(&rd, &KEY_COLUMNS);
-        let id = match last {
-            Some(id) if same => id,
-            _ => {
-                let id = channel_id(
-                    &rd,
-                    &mut acc,
-                    &mut keys,
-                    &mut enc,
-                    with_flavor,
-                    with_diagram,
-                )?;
-                cache.remember(&rd, &KEY_COLUMNS);
-                last = Some(id);
-                id
-            }
-        };
+        let id = cache.channel_id(&rd, &KEY_COLUMNS, || {
+            channel_id(
+                &rd,
+                &mut acc,
+                &mut keys,
+                &mut enc,
+                with_flavor,
+                with_diagram,
+            )
+        })?;
         let k = &keys[id as usize];
         let tsep = k.tsep;
         let tau = rd.time(TAU, SCHEMA)?;
@@ -184,13 +131,9 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
     }
     let file = rd.file().to_path_buf();
     if keys.is_empty() {
-        return Err(Error::Table {
-            path: file,
-            message: "the table has a header but no data rows".into(),
-        });
+        return Err(no_data_rows(file));
     }
-    let mut order: Vec<u32> = (0..acc.n_channels() as u32).collect();
-    order.sort_by(|&a, &b| keys[a as usize].cmp(&keys[b as usize]));
+    let order = key_order(&keys);
     let n_t = |id: u32| keys[id as usize].tsep as usize + 1;
     let done = acc.finish(&order, n_t, |id, tau, config, line| Error::Table {
         path: file.clone(),

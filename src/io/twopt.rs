@@ -3,7 +3,10 @@
 //! Time-axis rule: `T = max t + 1` over the whole table, and every channel must have every
 //! `t = 0..T-1` for every configuration.
 
-use super::table::{display_name, open, Accumulator, Column, KeyCache, Summary, TableReader};
+use super::table::{
+    display_name, key_order, no_data_rows, open, Accumulator, Column, KeyCache, Summary,
+    TableReader,
+};
 use crate::data::{Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -21,42 +24,15 @@ const SMEAR: usize = 8;
 const KEY_COLUMNS: [usize; 4] = [PX, PX + 1, PX + 2, SMEAR];
 
 const SCHEMA: &[Column] = &[
-    Column {
-        name: "config",
-        required: true,
-    },
-    Column {
-        name: "px",
-        required: true,
-    },
-    Column {
-        name: "py",
-        required: true,
-    },
-    Column {
-        name: "pz",
-        required: true,
-    },
-    Column {
-        name: "t",
-        required: true,
-    },
-    Column {
-        name: "re",
-        required: true,
-    },
-    Column {
-        name: "im",
-        required: true,
-    },
-    Column {
-        name: "source",
-        required: false,
-    },
-    Column {
-        name: "smear",
-        required: false,
-    },
+    Column::required("config"),
+    Column::required("px"),
+    Column::required("py"),
+    Column::required("pz"),
+    Column::required("t"),
+    Column::required("re"),
+    Column::required("im"),
+    Column::optional("source"),
+    Column::optional("smear"),
 ];
 
 /// Read a two-point table from a file (`-` for standard input).
@@ -82,19 +58,11 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
     let mut enc: Vec<u8> = Vec::with_capacity(64);
     let mut max_t: Option<u32> = None;
     let mut cache = KeyCache::default();
-    let mut last: Option<u32> = None;
     while rd.next()? {
         let config = rd.int(CONFIG, SCHEMA)?;
-        let same = cache.same_as_last(&rd, &KEY_COLUMNS);
-        let id = match last {
-            Some(id) if same => id,
-            _ => {
-                let id = channel_id(&rd, &mut acc, &mut keys, &mut enc, with_smear)?;
-                cache.remember(&rd, &KEY_COLUMNS);
-                last = Some(id);
-                id
-            }
-        };
+        let id = cache.channel_id(&rd, &KEY_COLUMNS, || {
+            channel_id(&rd, &mut acc, &mut keys, &mut enc, with_smear)
+        })?;
         let t = rd.time(T, SCHEMA)?;
         let re = rd.float(RE, SCHEMA)?;
         let im = rd.float(IM, SCHEMA)?;
@@ -118,14 +86,10 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
     }
     let file = rd.file().to_path_buf();
     let Some(max_t) = max_t else {
-        return Err(Error::Table {
-            path: file,
-            message: "the table has a header but no data rows".into(),
-        });
+        return Err(no_data_rows(file));
     };
     let n_t = max_t as usize + 1;
-    let mut order: Vec<u32> = (0..acc.n_channels() as u32).collect();
-    order.sort_by(|&a, &b| keys[a as usize].cmp(&keys[b as usize]));
+    let order = key_order(&keys);
     let done = acc.finish(
         &order,
         |_| n_t,

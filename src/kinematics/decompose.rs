@@ -406,7 +406,10 @@ fn solve_shell(
         })
         .collect::<std::result::Result<Vec<_>, _>>()?;
     let refs: Vec<&Resampled> = q2s.iter().collect();
-    let q2 = Resampled::combine(&refs, |v| v.iter().sum::<f64>() / v.len() as f64);
+    let q2 = Resampled::try_combine(&refs, "Q² of the shell's channels", |v| {
+        v.iter().sum::<f64>() / v.len() as f64
+    })
+    .map_err(|e| e.to_string())?;
     let dof = rows.len() - unknowns.len();
     Ok(ShellResult {
         label: String::new(),

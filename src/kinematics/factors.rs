@@ -14,22 +14,13 @@ use super::dirac::{clifford, propagator_numerator, M4};
 use super::momentum::{q_squared, OnShell};
 use crate::data::{Current, CurrentKind, Projector};
 use nalgebra::Complex;
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// The spin of the hadron, which fixes the decomposition.
 #[derive(
-    Clone,
-    Copy,
-    Debug,
-    PartialEq,
-    Eq,
-    Hash,
-    PartialOrd,
-    Ord,
-    Serialize,
-    Deserialize,
-    schemars::JsonSchema,
+    Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
 )]
 #[serde(rename_all = "lowercase")]
 pub enum Hadron {
@@ -41,17 +32,7 @@ pub enum Hadron {
 
 /// A form factor the decomposition can solve for.
 #[derive(
-    Clone,
-    Copy,
-    Debug,
-    PartialEq,
-    Eq,
-    Hash,
-    PartialOrd,
-    Ord,
-    Serialize,
-    Deserialize,
-    schemars::JsonSchema,
+    Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
 )]
 pub enum FormFactor {
     /// Sachs electric form factor.

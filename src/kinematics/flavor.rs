@@ -16,7 +16,6 @@ pub struct FlavorTerm {
     pub flavor: String,
     /// Diagram label (`connected` / `disconnected`); absent for data without diagram column.
     #[serde(default)]
-    #[schemars(with = "Option<String>")]
     pub diagram: Option<Diagram>,
     /// Multiplier.
     pub weight: f64,

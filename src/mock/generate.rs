@@ -128,6 +128,7 @@ fn plan_channels(
     pairs: &[(Momentum, Momentum)],
     spectrum: &BTreeMap<Momentum, MomentumLevels>,
 ) -> Result<Plan> {
+    // safe: `generate` validated 1 to 3 states.
     let mass = spec.hadron.states[0].mass.0;
     let cx = FormFactorContext {
         mass,

@@ -1,4 +1,10 @@
 //! The Q² shapes: dipole and z-expansion, with analytic gradients (methods.md §6).
+//!
+//! They live apart from the fit driver in [`super`] so that the solver sees only a
+//! parameter vector, values and a gradient. The dipole `G(0) (1 + Q²/M²)^-n` is the
+//! traditional form (common practice); the z-expansion is that of Hill & Paz, Phys. Rev. D 82
+//! (2010) 113005, with the large-Q² sum rules of Lee, Arrington & Hill, Phys. Rev. D 92 (2015)
+//! 013013.
 
 use crate::fit::Prior;
 use serde::Serialize;

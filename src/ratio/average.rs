@@ -38,6 +38,7 @@ pub fn average_channels(
         }
         members.push((ratio, *sign));
     }
+    // safe: `group` is non-empty (checked above) and every member was pushed.
     let lead = members[0].0;
     for (ratio, _) in &members[1..] {
         let same = ratio.points.len() == lead.points.len()

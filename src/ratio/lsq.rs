@@ -53,6 +53,7 @@ pub(crate) fn fit_resampled(
         })
         .collect::<Result<Vec<_>>>()
         .map_err(wrap(what))?;
+    // safe: the central fit above succeeded, so there is at least one point.
     let scheme = points[0].scheme;
     let params = central
         .params

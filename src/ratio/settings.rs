@@ -90,7 +90,6 @@ pub struct RatioSettings {
     /// weights over the 30–50 points of a two-state fit with ~100 samples under-quote the
     /// errors, as methods.md §2 warns; the resampled error stays honest with diagonal weights). YAML as in the resample stage: `kind: full | diagonal | shrinkage` or
     /// `kind: {shrinkage: {target: diagonal|identity, intensity: 0..1}}`, and `eigen_cut`.
-    #[schemars(with = "serde_json::Value")]
     pub covariance: CovarianceOptions,
 }
 

@@ -130,6 +130,7 @@ impl<'a> Frame<'a> {
     /// Run `fit` on the central value and every resample; a fit that does not converge is an
     /// error naming the resample.
     pub fn run(&self, fit: impl Fn(Option<usize>) -> FitReport) -> Result<Vec<FitReport>> {
+        // safe: `Frame::new` returns a frame only when some part is fitted (non-empty).
         let n_samples = self.stacked[0].len();
         std::iter::once(None)
             .chain((0..n_samples).map(Some))
@@ -160,6 +161,7 @@ impl<'a> Frame<'a> {
         gap_index: (usize, usize),
         warnings: Vec<String>,
     ) -> TwoStateFit {
+        // safe: `stacked` is non-empty (see `run`), `results` starts with the central fit.
         let scheme = self.stacked[0].scheme;
         let param = |j: usize| {
             Resampled::new(
@@ -454,27 +456,7 @@ impl Model for FloatingGapModel {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use approx::assert_relative_eq;
-
-    fn check_jacobian(model: &FloatingGapModel, params: &[f64]) {
-        // Analytic Jacobian against central finite differences (step 1e-6; common practice).
-        let (n, k) = (model.n_points(), model.n_params());
-        let mut jac = DMatrix::zeros(n, k);
-        model.jacobian(params, &mut jac);
-        let (mut up, mut down) = (vec![0.0; n], vec![0.0; n]);
-        for j in 0..k {
-            let h = 1e-6;
-            let mut p = params.to_vec();
-            p[j] += h;
-            model.eval(&p, &mut up);
-            p[j] -= 2.0 * h;
-            model.eval(&p, &mut down);
-            for i in 0..n {
-                let fd = (up[i] - down[i]) / (2.0 * h);
-                assert_relative_eq!(jac[(i, j)], fd, epsilon = 1e-7, max_relative = 1e-6);
-            }
-        }
-    }
+    use crate::ratio::two_state::jacobian_check::assert_jacobian_matches;
 
     fn times() -> Vec<(f64, f64)> {
         [
@@ -499,7 +481,7 @@ mod tests {
             a_f: 0.8,
         };
         let params = [0.9, 0.3, 0.2, 0.1, -0.4, -0.1, 0.05, 0.02, 0.42, 0.37];
-        check_jacobian(&model, &params);
+        assert_jacobian_matches(&model, &params);
     }
 
     #[test]
@@ -512,6 +494,6 @@ mod tests {
             a_i: 0.7,
             a_f: 0.7,
         };
-        check_jacobian(&model, &[1.1, 0.4, 0.2, 0.5]);
+        assert_jacobian_matches(&model, &[1.1, 0.4, 0.2, 0.5]);
     }
 }

@@ -210,11 +210,10 @@ pub fn two_state_joint(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use approx::assert_relative_eq;
+    use crate::ratio::two_state::jacobian_check::assert_jacobian_matches;
 
     #[test]
     fn jacobian_matches_finite_differences() {
-        // Analytic Jacobian against central finite differences (common practice).
         for (shared, symmetric, parts) in [(false, false, 2), (true, true, 1), (true, false, 2)] {
             let model = JointModel {
                 times: vec![(6.0, 1.0), (6.0, 3.0), (8.0, 2.0), (8.0, 5.0), (8.0, 7.0)],
@@ -229,23 +228,7 @@ mod tests {
             if !shared {
                 p.extend([1.5, 0.55, 0.6, 0.42]);
             }
-            assert_eq!(p.len(), model.n_params());
-            let (n, np) = (model.n_points(), model.n_params());
-            let mut jac = DMatrix::zeros(n, np);
-            model.jacobian(&p, &mut jac);
-            let (mut up, mut down) = (vec![0.0; n], vec![0.0; n]);
-            for j in 0..np {
-                let h = 1e-6;
-                let mut q = p.clone();
-                q[j] += h;
-                model.eval(&q, &mut up);
-                q[j] -= 2.0 * h;
-                model.eval(&q, &mut down);
-                for i in 0..n {
-                    let fd = (up[i] - down[i]) / (2.0 * h);
-                    assert_relative_eq!(jac[(i, j)], fd, epsilon = 1e-7, max_relative = 1e-6);
-                }
-            }
+            assert_jacobian_matches(&model, &p);
         }
     }
 }

@@ -390,6 +390,7 @@ pub fn estimate_with_bins(
 
 /// Deviation matrix `y` (`n × d`): per-configuration-like deviations of every sample.
 fn deviations(values: &[Resampled]) -> DMatrix<f64> {
+    // safe: the caller has run `check_compatible` (non-empty, one plan).
     let n = values[0].len();
     let jack = values[0].scheme == Scheme::Jackknife;
     let scale = if jack { n as f64 - 1.0 } else { 1.0 };

@@ -190,8 +190,16 @@ impl Resampled {
     }
 
     /// Combine two values sample by sample.
+    ///
+    /// Both must come from the same plan (a debug assertion). In release builds a
+    /// sample-count mismatch gives NaN samples, never silently truncated numbers; where the
+    /// two values come from different inputs (a stage boundary) use
+    /// [`Resampled::try_zip_map`], which returns an error instead.
     pub fn zip_map(&self, other: &Resampled, f: impl Fn(f64, f64) -> f64) -> Resampled {
         debug_assert_eq!(self.samples.len(), other.samples.len());
+        if self.samples.len() != other.samples.len() {
+            return self.mismatched();
+        }
         Resampled::new(
             f(self.central, other.central),
             self.samples
@@ -203,16 +211,39 @@ impl Resampled {
         )
     }
 
+    /// [`Resampled::zip_map`] after checking that both values share a scheme and sample
+    /// count; `what` names them in the error message.
+    pub fn try_zip_map(
+        &self,
+        other: &Resampled,
+        what: &str,
+        f: impl Fn(f64, f64) -> f64,
+    ) -> Result<Resampled> {
+        check_same_plan([self, other], what)?;
+        Ok(self.zip_map(other, f))
+    }
+
     /// Combine any number of values sample by sample: `f` receives the i-th value of each.
-    /// All inputs must share a scheme and length; `values` must not be empty.
+    ///
+    /// All inputs must share a scheme and length (a debug assertion; in release builds a
+    /// mismatch gives NaN samples). For a list built from data, where it may be empty or mix
+    /// plans, use [`Resampled::try_combine`].
+    ///
+    /// # Panics
+    /// If `values` is empty (callers pass a fixed, non-empty list).
     pub fn combine(values: &[&Resampled], f: impl Fn(&[f64]) -> f64) -> Resampled {
         let first = values[0];
+        let n = first.samples.len();
+        debug_assert!(values.iter().all(|v| v.samples.len() == n));
+        if values.iter().any(|v| v.samples.len() != n) {
+            return first.mismatched();
+        }
         let mut buf = vec![0.0; values.len()];
         for (b, v) in buf.iter_mut().zip(values) {
             *b = v.central;
         }
         let central = f(&buf);
-        let samples = (0..first.samples.len())
+        let samples = (0..n)
             .map(|s| {
                 for (b, v) in buf.iter_mut().zip(values) {
                     *b = v.samples[s];
@@ -223,31 +254,26 @@ impl Resampled {
         Resampled::new(central, samples, first.scheme)
     }
 
+    /// [`Resampled::combine`] after checking that `values` is non-empty and shares one scheme
+    /// and sample count; `what` names the values in the error message.
+    pub fn try_combine(
+        values: &[&Resampled],
+        what: &str,
+        f: impl Fn(&[f64]) -> f64,
+    ) -> Result<Resampled> {
+        check_same_plan(values.iter().copied(), what)?;
+        Ok(Resampled::combine(values, f))
+    }
+
     /// Check that `values` is non-empty and shares one scheme and sample count; `what` names
     /// the values in the error message.
     pub fn check_compatible(values: &[Resampled], what: &str) -> Result<()> {
-        let Some(first) = values.first() else {
-            return Err(Error::analysis(
-                "resample",
-                format!("{what}: no values given"),
-            ));
-        };
-        for (i, v) in values.iter().enumerate() {
-            if v.scheme != first.scheme || v.samples.len() != first.samples.len() {
-                return Err(Error::analysis(
-                    "resample",
-                    format!(
-                        "{what}: value {i} has {} {} samples but value 0 has {} {} samples; \
-                         all must come from the same resample plan",
-                        v.samples.len(),
-                        v.scheme,
-                        first.samples.len(),
-                        first.scheme
-                    ),
-                ));
-            }
-        }
-        Ok(())
+        check_same_plan(values, what)
+    }
+
+    /// The all-NaN result of combining values from different plans.
+    fn mismatched(&self) -> Resampled {
+        Resampled::new(f64::NAN, vec![f64::NAN; self.samples.len()], self.scheme)
     }
 
     /// The plain average of several values, sample by sample (e.g. over equivalent momenta).
@@ -413,4 +439,32 @@ impl Neg for Resampled {
     fn neg(self) -> Resampled {
         self.map(|x| -x)
     }
+}
+
+/// Error unless `values` is non-empty and shares one scheme and sample count.
+fn check_same_plan<'a>(values: impl IntoIterator<Item = &'a Resampled>, what: &str) -> Result<()> {
+    let mut values = values.into_iter();
+    let Some(first) = values.next() else {
+        return Err(Error::analysis(
+            "resample",
+            format!("{what}: no values given"),
+        ));
+    };
+    for (i, v) in values.enumerate() {
+        if v.scheme != first.scheme || v.samples.len() != first.samples.len() {
+            return Err(Error::analysis(
+                "resample",
+                format!(
+                    "{what}: value {} has {} {} samples but value 0 has {} {} samples; all \
+                     must come from the same resample plan",
+                    i + 1,
+                    v.samples.len(),
+                    v.scheme,
+                    first.samples.len(),
+                    first.scheme
+                ),
+            ));
+        }
+    }
+    Ok(())
 }
