@@ -127,7 +127,7 @@ pub struct RunResults {
     pub warnings: Vec<String>,
     /// The method whose numbers are final.
     pub final_method: String,
-    /// Where the results were written (set by [`super::run`]).
+    /// Where the results were written (set by [`super::run()`]).
     pub run_dir: Option<std::path::PathBuf>,
 }
 
@@ -155,7 +155,7 @@ impl Recorder<'_> {
     }
 }
 
-/// Compute every stage the plan asks for (no files written; see [`super::run`] for the
+/// Compute every stage the plan asks for (no files written; see [`super::run()`] for the
 /// whole run with its run directory). With `jobs` the stages run on a dedicated rayon pool
 /// of that many threads; results do not depend on it.
 pub fn compute(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
