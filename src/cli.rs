@@ -158,7 +158,7 @@ fn run(a: RunArgs) -> crate::Result<()> {
 
 fn check(a: CheckArgs) -> crate::Result<()> {
     let summary = crate::pipeline::check(&a.pipeline, &a.set)?;
-    print!("{summary}");
+    println!("{}", summary.trim_end());
     Ok(())
 }
 
