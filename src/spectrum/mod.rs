@@ -265,7 +265,8 @@ pub fn fit_correlator(
     };
     let n_samples = corr.first().map_or(0, Resampled::len);
     let widest = (t_max + 1).saturating_sub(settings.t_min.from);
-    if n_samples < 5 * widest {
+    let small_sample = n_samples < 5 * widest;
+    if small_sample {
         warnings.push(format!(
             "{name}: {n_samples} resamples for a covariance of up to {widest} points; its inverse \
              is biased (Hartlap et al. 2007); consider fewer points or shrinkage"
@@ -281,7 +282,13 @@ pub fn fit_correlator(
             )
         };
         let cov = covariance::estimate(window, &settings.covariance).map_err(in_window)?;
-        for w in &cov.warnings {
+        // The small-sample (Hartlap) warning was given once for the momentum above; repeating
+        // it for every window only buries the other warnings.
+        for w in cov
+            .warnings
+            .iter()
+            .filter(|w| !(small_sample && w.contains("Hartlap")))
+        {
             warnings.push(format!("{name}, window [{t_min}, {t_max}]: {w}"));
         }
         let w = Weights::from_covariance(&cov.matrix).map_err(in_window)?;
