@@ -341,7 +341,8 @@ pub fn terminal_summary(results: &RunResults) -> String {
         ));
     }
     if let Some(dir) = &results.run_dir {
-        out.push_str(&format!("report: {}\n", dir.join("report.html").display()));
+        let report = tidy_for_display(&dir.join("report.html"));
+        out.push_str(&format!("report: {}\n", report.display()));
     }
     out
 }
@@ -747,6 +748,25 @@ fn summation_chart(k: &ChannelKey, c: &ChannelResult) -> Option<Chart> {
         ],
         ..Chart::default()
     })
+}
+
+/// `a/b/../c` shown as `a/c`. For display only: files are opened with the path as resolved,
+/// since lexical clean-up is wrong where a directory is a symbolic link.
+fn tidy_for_display(p: &Path) -> std::path::PathBuf {
+    use std::path::Component;
+    let mut out = std::path::PathBuf::new();
+    for c in p.components() {
+        match c {
+            Component::ParentDir
+                if matches!(out.components().next_back(), Some(Component::Normal(_))) =>
+            {
+                out.pop();
+            }
+            Component::CurDir => {}
+            other => out.push(other),
+        }
+    }
+    out
 }
 
 /// Plot and legend order of methods: plateaus by increasing `tsep`, then summation, then
