@@ -459,17 +459,8 @@ mod decomposition {
             })
             .collect();
         let st = setup(mass);
-        let currents = [
-            Current::V1,
-            Current::V2,
-            Current::V3,
-            Current::V4,
-            Current::A1,
-            Current::A2,
-            Current::A3,
-            Current::A4,
-        ];
-        let chans = exact_channels(&st, &frames, &currents, &truth);
+        let currents = &Current::ALL[..8]; // V1..V4, A1..A4
+        let chans = exact_channels(&st, &frames, currents, &truth);
         {
             let weights = DecompositionWeights::Diagonal;
             let settings = DecompositionSettings {

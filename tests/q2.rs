@@ -268,22 +268,13 @@ fn decomposition_and_dipole_closure() {
         .flat_map(|x| (-2..=2).flat_map(move |y| (-2..=2).map(move |z| [x, y, z])))
         .filter(|q: &Momentum| q.iter().map(|c| c * c).sum::<i32>() <= 5)
         .collect();
-    let currents = [
-        Current::V1,
-        Current::V2,
-        Current::V3,
-        Current::V4,
-        Current::A1,
-        Current::A2,
-        Current::A3,
-        Current::A4,
-    ];
+    let currents = &Current::ALL[..8]; // V1..V4, A1..A4
     let sigma = 0.02;
     for &q in &qs {
         let pf = [0, 0, 0];
         let k = setup.on_shell(pf, q, None).expect("kinematics");
         let q2 = q_squared(&k);
-        for cur in currents {
+        for &cur in currents {
             for proj in [
                 Projector::Unpol,
                 Projector::Pol(1),
