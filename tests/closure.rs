@@ -24,9 +24,7 @@ use formfactory::mock::{generate, FormFactorModel, MockSpec, Truth};
 use formfactory::q2::{fit, Q2Fit, Q2FitSettings, Q2Model, Q2Point, Q2Units, Q2Weights};
 use formfactory::ratio::Estimator;
 use formfactory::ratio::Flag;
-use formfactory::ratio::{
-    analyse_all, ChannelKey, ChannelResult, RatioSettings, TwoPointStates,
-};
+use formfactory::ratio::{analyse_all, ChannelKey, ChannelResult, RatioSettings, TwoPointStates};
 use formfactory::resample::binning::{bin_threept, bin_twopt};
 use formfactory::resample::covariance::{CovarianceKind, CovarianceOptions};
 use formfactory::resample::{ResamplePlan, Resampled};

@@ -289,7 +289,10 @@ fn validate(plan: &Plan) -> Result<()> {
     if x.methods.is_empty() {
         return err(
             "excited_states.methods",
-            format!("no excited-state method chosen: expected some of {}", Estimator::VALID),
+            format!(
+                "no excited-state method chosen: expected some of {}",
+                Estimator::VALID
+            ),
         );
     }
     let final_method = x.fits.final_method;

@@ -183,7 +183,13 @@ mod tests {
             "plateau_largest_tsep".parse::<Estimator>(),
             Ok(Estimator::Plateau { tsep: None })
         );
-        for bad in ["two-state", "TwoState", "plateau_tsep", "plateau_tsep-1", ""] {
+        for bad in [
+            "two-state",
+            "TwoState",
+            "plateau_tsep",
+            "plateau_tsep-1",
+            "",
+        ] {
             assert!(bad.parse::<Estimator>().is_err(), "{bad}");
         }
     }

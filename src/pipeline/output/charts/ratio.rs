@@ -113,7 +113,11 @@ pub(super) fn summation_charts(shown: &[(&ChannelKey, &ChannelResult)]) -> Vec<F
         .enumerate()
         .filter_map(|(i, (k, c))| {
             let chart = summation_chart(k, c)?;
-            Some(Figure::new(Plot::Summation, format!("summation-{i}"), chart))
+            Some(Figure::new(
+                Plot::Summation,
+                format!("summation-{i}"),
+                chart,
+            ))
         })
         .collect()
 }
