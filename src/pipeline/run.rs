@@ -121,6 +121,8 @@ pub struct RunResults {
     pub derived: Vec<DerivedRow>,
     /// The Q² fits themselves (for plots).
     pub q2_fits: Vec<Q2FitResult>,
+    /// The final value and error budget of every form factor and derived quantity.
+    pub final_results: Vec<super::final_results::FinalRow>,
     /// Wall time per stage, in run order.
     pub timings: Vec<(String, Duration)>,
     /// Warnings collected from every stage.
@@ -189,6 +191,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         form_factors: Vec::new(),
         derived: Vec::new(),
         q2_fits: Vec::new(),
+        final_results: Vec::new(),
         timings: Vec::new(),
         warnings: Vec::new(),
         final_method,
@@ -239,6 +242,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         results.derived = fits.iter().flat_map(derived_rows).collect();
         results.q2_fits = fits;
     }
+    results.final_results = super::final_results::final_results(&results, spec.final_value.pin);
     results.timings = rec.timings;
     results.warnings = rec.warnings;
     Ok(results)

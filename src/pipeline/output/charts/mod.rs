@@ -8,6 +8,7 @@
 //! charts in the submodule of the stage it shows, call it from [`figures`], and place the
 //! kind in a section of the page (`page.rs`).
 
+mod final_results;
 mod formfactors;
 mod ratio;
 mod spectrum;
@@ -52,6 +53,7 @@ pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
             Plot::Ratio => out.extend(ratio::ratio_charts(&shown)),
             Plot::Summation => out.extend(ratio::summation_charts(&shown)),
             Plot::FormFactors => out.extend(formfactors::charts(plan, results)),
+            Plot::FinalVariants => out.extend(final_results::charts(results)),
         }
     }
     out
