@@ -2,6 +2,7 @@
 
 mod common;
 
+mod bad_input;
 mod cli;
 mod closure;
 mod fit;
