@@ -26,6 +26,7 @@
 //! are stated once in DEVELOPERS.md and in [`kinematics`].
 
 pub mod budget;
+pub mod campaign;
 pub mod cli;
 pub mod data;
 pub mod error;

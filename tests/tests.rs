@@ -3,6 +3,7 @@
 mod common;
 
 mod bad_input;
+mod campaign;
 mod cli;
 mod closure;
 mod fit;

@@ -204,8 +204,10 @@ pub(crate) fn check_data_rules(
 }
 
 /// Run the whole analysis: check the data rules, compute every stage, write the run
-/// directory all-or-nothing (an existing one is replaced only with `plan.force`).
+/// directory all-or-nothing (an existing one is replaced only with `plan.force`). The
+/// manifest, written last, covers the whole run, the report stage included.
 pub fn run(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
+    let started = std::time::SystemTime::now();
     let inputs = [plan.source.as_path(), &plan.twopt, &plan.threept];
     let rules = crate::report::OutputRules::run(plan.force, &inputs);
     let dir = crate::report::RunDir::create_with(&plan.out_dir, &rules)?;
@@ -213,12 +215,14 @@ pub fn run(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         observer.warning(note);
     }
     let mut results = run::compute(plan, observer)?;
+    results.started = started;
     let start = std::time::Instant::now();
     observer.stage_started("report");
     output::write_all(plan, &mut results, dir.path())?;
     let elapsed = start.elapsed();
     observer.stage_finished("report", elapsed);
     results.timings.push(("report".into(), elapsed));
+    output::write_manifest(plan, &results, dir.path())?;
     results.run_dir = Some(dir.commit()?);
     Ok(results)
 }
