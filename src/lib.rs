@@ -25,10 +25,12 @@
 //! Conventions (Euclidean gamma matrices, projectors, signs of the kinematic factors, units)
 //! are stated once in DEVELOPERS.md and in [`kinematics`].
 
-pub mod error_budget;
+pub mod budget;
+pub mod campaign;
 pub mod cli;
 pub mod data;
 pub mod error;
+pub mod error_budget;
 pub mod fit;
 pub mod io;
 pub mod kinematics;

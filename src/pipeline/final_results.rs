@@ -1,7 +1,7 @@
 //! The final results of a run: every form factor at every shell and every derived quantity,
-//! each averaged over the analysis variants the run computed ([`crate::budget`]). This
+//! each averaged over the analysis variants the run computed ([`crate::error_budget`]). This
 //! module only gathers the variants from the run's results; the averaging rule lives in
-//! `budget`.
+//! `error_budget`.
 
 use super::run::RunResults;
 use crate::error_budget::{self, Budget, Variant};
