@@ -5,6 +5,7 @@ mod common;
 mod campaign;
 mod cli;
 mod closure;
+mod docs;
 mod fit;
 mod io;
 mod kinematics;
