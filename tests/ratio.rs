@@ -49,7 +49,7 @@ struct Chan {
 }
 
 impl Chan {
-    fn pi(&self) -> Momentum {
+    fn source_momentum(&self) -> Momentum {
         [
             self.pf[0] - self.q[0],
             self.pf[1] - self.q[1],
