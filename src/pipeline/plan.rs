@@ -61,9 +61,8 @@ impl Plan {
 /// files exist but does not read them. The file is deserialized into the typed spec once;
 /// every section refuses unknown keys itself, and errors carry the key's line and column.
 pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-    let text = String::from_utf8(bytes.clone())
-        .map_err(|_| Error::config(format!("{}: the file is not UTF-8 text", path.display())))?;
+    let text = crate::io::read_text_file(path, "pipeline file", crate::io::MAX_SPEC_BYTES)?;
+    let bytes = text.as_bytes();
     let mut positions = Positions::scan(path, &text);
     let mut spec = if sets.is_empty() {
         parse(&text, &positions)?
@@ -98,7 +97,7 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     };
     let plan = Plan {
         source: path.to_path_buf(),
-        source_sha256: sha256_hex(&bytes),
+        source_sha256: sha256_hex(bytes),
         twopt: resolve(&spec.data.twopt),
         threept: resolve(&spec.data.threept),
         out_dir: resolve(&spec.output.dir),
@@ -160,11 +159,11 @@ fn validate(plan: &Plan) -> Result<()> {
     within("output", s.output.validate())?;
     let err = |path: &str, msg: String| Err(plan.error(path, msg));
     for (key, p) in [("data.twopt", &plan.twopt), ("data.threept", &plan.threept)] {
-        if !p.is_file() {
+        if let Some(why) = crate::io::not_a_regular_file(p) {
             return err(
                 key,
                 format!(
-                    "the file `{}` does not exist (paths are relative to the pipeline file)",
+                    "the file `{}` {why} (paths are relative to the pipeline file)",
                     p.display()
                 ),
             );
