@@ -63,6 +63,7 @@ impl Plan {
 pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     let text = crate::io::read_text_file(path, "pipeline file", crate::io::MAX_SPEC_BYTES)?;
     let bytes = text.as_bytes();
+    yaml::check_flow_depth(&path.display().to_string(), &text)?;
     let mut positions = Positions::scan(path, &text);
     let mut spec = if sets.is_empty() {
         parse(&text, &positions)?

@@ -203,6 +203,71 @@ fn split_key(s: &str) -> Option<(&str, &str)> {
     None
 }
 
+/// Deepest nesting of flow collections (`[` / `{`) a YAML text may have. Pipeline files
+/// need three or four levels; the YAML parser takes time quadratic in the depth, so
+/// deeper text is refused before it is parsed.
+pub const MAX_FLOW_DEPTH: usize = 256;
+
+/// Refuse text whose flow brackets nest deeper than [`MAX_FLOW_DEPTH`], naming the line and
+/// column of the first bracket too many; `origin` (e.g. `p.yaml`) prefixes the message.
+/// Brackets inside quoted strings and comments do not count.
+pub fn check_flow_depth(origin: &str, text: &str) -> Result<()> {
+    match deep_flow_bracket(text) {
+        None => Ok(()),
+        Some((line, column)) => Err(Error::config(format!(
+            "{origin}:{line}:{column}: brackets `[`/`{{` nested more than {MAX_FLOW_DEPTH} \
+             levels deep; a YAML settings file needs only a few levels (unbalanced \
+             brackets, or generated text?)"
+        ))),
+    }
+}
+
+/// Line and column (1-based, in characters) of the first flow bracket opened beyond
+/// [`MAX_FLOW_DEPTH`] levels, if any.
+fn deep_flow_bracket(text: &str) -> Option<(usize, usize)> {
+    let mut depth = 0usize;
+    let mut quote: Option<char> = None;
+    let mut comment = false;
+    let mut escaped = false;
+    let (mut line, mut column) = (1usize, 0usize);
+    let mut prev = '\n';
+    for ch in text.chars() {
+        column += 1;
+        if ch == '\n' {
+            (line, column) = (line + 1, 0);
+            comment = false;
+        }
+        match quote {
+            _ if comment => {}
+            Some('"') if escaped => escaped = false,
+            Some('"') if ch == '\\' => escaped = true,
+            Some(q) if ch == q => quote = None,
+            Some(_) => {}
+            None => match ch {
+                '#' if prev.is_whitespace() => comment = true,
+                // a quote opens a string only where a scalar may begin
+                '"' | '\''
+                    if prev.is_whitespace()
+                        || matches!(prev, '[' | '{' | ',' | ':')
+                        || (ch == '\'' && prev == '\'') =>
+                {
+                    quote = Some(ch)
+                }
+                '[' | '{' => {
+                    depth += 1;
+                    if depth > MAX_FLOW_DEPTH {
+                        return Some((line, column));
+                    }
+                }
+                ']' | '}' => depth = depth.saturating_sub(1),
+                _ => {}
+            },
+        }
+        prev = ch;
+    }
+    None
+}
+
 /// Keys and items of a one-line flow value (`{ a: 1, b: [2, 3] }`, `[4, 6]`) starting at
 /// 0-based column `col0`.
 /// Nesting depth beyond which the position scan records nothing: every path is as long as
@@ -289,6 +354,7 @@ pub fn apply_set(root: &mut Value, assignment: &str) -> Result<String> {
     let value: Value = if raw.trim().is_empty() {
         Value::String(String::new())
     } else {
+        check_flow_depth(&format!("`--set {assignment}`"), raw)?;
         serde_yaml_ng::from_str(raw).map_err(|e| {
             Error::config(format!(
                 "`--set {assignment}`: the value `{raw}` is not a YAML scalar or flow value: {e}"
@@ -469,6 +535,31 @@ mod tests {
         // unknown paths fall back to the nearest ancestor
         assert_eq!(p.origin("ratio.nope"), Origin::File { line: 5, column: 1 });
         assert_eq!(p.origin("nope"), Origin::Default);
+    }
+
+    #[test]
+    fn flow_depth_limit_counts_only_real_brackets() {
+        let deep = |n: usize| format!("a: {}1{}\n", "[".repeat(n), "]".repeat(n));
+        assert_eq!(deep_flow_bracket(&deep(MAX_FLOW_DEPTH)), None);
+        // the first bracket too many is at column 3 + MAX_FLOW_DEPTH (after `a: `)
+        assert_eq!(
+            deep_flow_bracket(&format!("x: 1\n{}", deep(MAX_FLOW_DEPTH + 1))),
+            Some((2, 4 + MAX_FLOW_DEPTH))
+        );
+        // closed brackets do not accumulate
+        assert_eq!(deep_flow_bracket(&deep(100).repeat(10)), None);
+        // quoted strings and comments do not count; `''` is an escaped quote
+        let many = "[".repeat(MAX_FLOW_DEPTH + 1);
+        assert_eq!(deep_flow_bracket(&format!("a: '{many}'\n")), None);
+        assert_eq!(deep_flow_bracket(&format!("a: 'it''s {many}'\n")), None);
+        assert_eq!(deep_flow_bracket(&format!("a: \"\\\" {many}\"\n")), None);
+        assert_eq!(deep_flow_bracket(&format!("a: 1 # {many}\n")), None);
+        // an apostrophe inside a word opens no string
+        assert!(deep_flow_bracket(&format!("a: don't {many}\n")).is_some());
+        let err = check_flow_depth("p.yaml", &deep(1000))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("p.yaml:1:260: brackets"), "{err}");
     }
 
     #[test]
