@@ -75,7 +75,9 @@ pub fn final_results(results: &RunResults, pin: Option<Estimator>) -> Vec<FinalR
             .iter()
             .map(|&i| {
                 let d = &results.derived[i];
-                let z_abs = (d.error.powi(2) - d.value.error().powi(2)).max(0.0).sqrt();
+                let z_abs = (d.error_total.powi(2) - d.value.error().powi(2))
+                    .max(0.0)
+                    .sqrt();
                 Variant {
                     estimator: d.method,
                     model: d.model.clone(),

@@ -1,7 +1,7 @@
 //! The final results: `final` (one row per quantity with its error budget) and
 //! `final_variants` (every analysis variant with its weight, or why it has none).
 
-use super::float;
+use super::cells::float;
 use crate::pipeline::final_results::FinalRow;
 use crate::pipeline::run::RunResults;
 use crate::report::{value_errors, Cell, Table};
