@@ -10,6 +10,7 @@ mod kinematics;
 mod mock;
 mod pipeline;
 mod q2;
+mod q2_priors;
 mod ratio;
 mod report;
 mod resample;

@@ -22,6 +22,7 @@ mod phase;
 mod setup;
 
 pub use decompose::{
+    SINGULAR_THRESHOLD,
     decompose, ChannelValue, Decomposition, DecompositionSettings, DecompositionWeights,
     ShellResult, SkippedShell,
 };

@@ -399,6 +399,16 @@ fn decompose_all(
             ));
         }
         for shell in &dec.shells {
+            if !shell.undetermined.is_empty() {
+                let names: Vec<&str> = shell.undetermined.iter().map(|f| f.name()).collect();
+                rec.warn(format!(
+                    "decomposition {label}: shell {} ({:?}) does not determine {} (a singular value below {:e} of the largest): not reported; needs another q direction or projector",
+                    shell.label,
+                    shell.kind,
+                    names.join(", "),
+                    kinematics::SINGULAR_THRESHOLD
+                ));
+            }
             rows.extend(shell_rows(&label, shell, &spec.renormalization));
         }
     }
