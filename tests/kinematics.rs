@@ -793,7 +793,9 @@ mod decomposition {
         assert_eq!(d.skipped.len(), 1, "{d:?}");
         let reason = &d.skipped[0].reason;
         assert!(
-            reason.contains("GA") && reason.contains("GP") && reason.contains("q direction or projector"),
+            reason.contains("GA")
+                && reason.contains("GP")
+                && reason.contains("q direction or projector"),
             "{reason}"
         );
         let both: Vec<ChannelValue> = all

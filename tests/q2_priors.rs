@@ -64,7 +64,12 @@ fn noisy(q2s: &[f64], f: impl Fn(f64) -> f64, rel: f64, n_cfg: usize, seed: u64)
 fn z_expansion_recovers_standard_dipole_radius() {
     let q2s: Vec<f64> = (1..=12).map(|i| 0.05 * i as f64).collect();
     let pts = noisy(&q2s, |q2| dipole(q2, 0.71), 1e-4, 50, 11);
-    let s = zexp(4.0 * 0.1396f64.powi(2), T0::Optimal, 8, Some(ZPrior::default()));
+    let s = zexp(
+        4.0 * 0.1396f64.powi(2),
+        T0::Optimal,
+        8,
+        Some(ZPrior::default()),
+    );
     let f = fit(&pts, &s, Q2Units::GeV2).expect("fit converges");
     let r = f.radius_fm().expect("positive r^2");
     eprintln!(
@@ -117,9 +122,7 @@ fn prior_draws_reproduce_the_linear_gaussian_posterior() {
         .enumerate()
         .map(|(i, &q)| {
             let u: Vec<f64> = (0..n)
-                .map(|j| {
-                    (2.0 * std::f64::consts::PI * (i + 1) as f64 * j as f64 / n as f64).cos()
-                })
+                .map(|j| (2.0 * std::f64::consts::PI * (i + 1) as f64 * j as f64 / n as f64).cos())
                 .collect();
             let ss: f64 = u.iter().map(|v| v * v).sum::<f64>() * (n as f64 - 1.0) / n as f64;
             let scale = sigma[i] / ss.sqrt();
@@ -197,7 +200,10 @@ fn heavy_pion_z_expansion_covers_the_truth() {
     let rms = (pulls.iter().map(|p| p * p).sum::<f64>() / pulls.len() as f64).sqrt();
     eprintln!("pulls {pulls:?}\nrms {rms}\nerror ratio z/dipole {ratio:?}");
     assert!(rms <= 1.3, "pull rms {rms}");
-    assert!(ratio.iter().all(|r| *r >= 1.0), "z errors below dipole: {ratio:?}");
+    assert!(
+        ratio.iter().all(|r| *r >= 1.0),
+        "z errors below dipole: {ratio:?}"
+    );
 }
 
 // The prior's width shows up in the error: with the prior centre held fixed the error would
@@ -208,12 +214,23 @@ fn heavy_pion_z_expansion_covers_the_truth() {
 fn prior_dominated_coefficient_is_warned_and_carries_the_prior_width() {
     let q2s = [0.05, 0.1, 0.15, 0.2];
     let pts = noisy(&q2s, |q2| dipole(q2, 0.71), 0.02, 40, 3);
-    let s = zexp(0.078, T0::Zero, 4, Some(ZPrior::Fixed(Prior::new(0.0, 2.0))));
+    let s = zexp(
+        0.078,
+        T0::Zero,
+        4,
+        Some(ZPrior::Fixed(Prior::new(0.0, 2.0))),
+    );
     let f = fit(&pts, &s, Q2Units::GeV2).expect("fit converges");
     eprintln!("{:?}", f.warnings);
-    assert!(f.warnings.iter().any(|w| w.contains("a4/a0") && w.contains("prior-dominated")));
+    assert!(f
+        .warnings
+        .iter()
+        .any(|w| w.contains("a4/a0") && w.contains("prior-dominated")));
     let e4 = f.params[4].error();
-    assert!((e4 - 2.0).abs() < 0.3, "a4/a0 error {e4} against prior width 2");
+    assert!(
+        (e4 - 2.0).abs() < 0.3,
+        "a4/a0 error {e4} against prior width 2"
+    );
 }
 
 // The pole factor: data made as P(Q^2) (1 + b1 z) with P = 1/(1 + Q^2/M^2) are fitted exactly
@@ -226,7 +243,12 @@ fn pole_factor_is_exact_on_pole_times_line() {
     let g = |q2: f64| (1.0 + b1 * z(q2, t_cut, 0.0)) / (1.0 + q2 / (m * m));
     let q2s: Vec<f64> = (1..=6).map(|i| 0.1 * i as f64).collect();
     let pts = noisy(&q2s, g, 1e-7, 30, 5);
-    let mut s = zexp(t_cut, T0::Zero, 1, Some(ZPrior::Fixed(Prior::new(0.0, 10.0))));
+    let mut s = zexp(
+        t_cut,
+        T0::Zero,
+        1,
+        Some(ZPrior::Fixed(Prior::new(0.0, 10.0))),
+    );
     if let Q2Model::ZExpansion { pole_mass, .. } = &mut s.model {
         *pole_mass = Some(m);
     }

@@ -400,9 +400,18 @@ fn solve_shell(
         let null: Vec<usize> = (0..svd.singular_values.len())
             .filter(|&i| svd.singular_values[i] <= cut)
             .collect();
-        let v_t = svd.v_t.as_ref().ok_or("the SVD gave no right singular vectors")?;
+        let v_t = svd
+            .v_t
+            .as_ref()
+            .ok_or("the SVD gave no right singular vectors")?;
         let determined: Vec<bool> = (0..unknowns.len())
-            .map(|col| null.iter().map(|&i| v_t[(i, col)].powi(2)).sum::<f64>().sqrt() < NULL_OVERLAP)
+            .map(|col| {
+                null.iter()
+                    .map(|&i| v_t[(i, col)].powi(2))
+                    .sum::<f64>()
+                    .sqrt()
+                    < NULL_OVERLAP
+            })
             .collect();
         Ok((g, chi2, smax / kept_min, determined, null.len()))
     };

@@ -22,9 +22,8 @@ mod phase;
 mod setup;
 
 pub use decompose::{
-    SINGULAR_THRESHOLD,
     decompose, ChannelValue, Decomposition, DecompositionSettings, DecompositionWeights,
-    ShellResult, SkippedShell,
+    ShellResult, SkippedShell, SINGULAR_THRESHOLD,
 };
 pub use phase::Phase;
 pub use setup::{Dispersion, Energies, EnergySource, KinematicSetup};

@@ -199,6 +199,9 @@ pub fn crosscheck_table(results: &RunResults) -> Result<Table> {
     for (k, c) in channels {
         for row in &c.crosscheck {
             for (part, d) in [("re", &row.re), ("im", &row.im)] {
+                if !d.informative {
+                    continue;
+                }
                 let mut cells = channel_cells(k);
                 cells.extend([
                     Cell::from(method_name(&row.method)),
@@ -207,7 +210,7 @@ pub fn crosscheck_table(results: &RunResults) -> Result<Table> {
                     float(d.value.central),
                     float(d.error),
                     float(d.sigma),
-                    Cell::from(format!("{:?}", row.flag).to_lowercase()),
+                    Cell::from(format!("{:?}", d.flag).to_lowercase()),
                 ]);
                 t.push_row(cells)?;
             }

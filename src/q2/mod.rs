@@ -461,7 +461,10 @@ fn reference_dipole(points: &[&Q2Point], settings: &Q2FitSettings) -> Option<(f6
     let x: Vec<f64> = points.iter().map(|p| p.q2.central).collect();
     let y: Vec<f64> = points.iter().map(|p| p.value.central).collect();
     let w = weights(points, Q2Weights::Diagonal).ok()?;
-    let model = Curve { shape: &shape, q2: &x };
+    let model = Curve {
+        shape: &shape,
+        q2: &x,
+    };
     let start = start_values(&shape, &x, &y);
     let r = nonlinear::fit_without_covariance(&model, &y, &w, &[], &start, &settings.solver);
     (r.converged && r.params[1] > 0.0).then(|| (r.params[0], r.params[1]))
@@ -529,7 +532,10 @@ fn build_shape(
                             p.mean, p.width
                         )));
                     }
-                    (Some(p), format!("a_k/a_0 ~ N({}, {}^2) as set", p.mean, p.width))
+                    (
+                        Some(p),
+                        format!("a_k/a_0 ~ N({}, {}^2) as set", p.mean, p.width),
+                    )
                 }
                 Some(ZPrior::Rule(PriorRule::Auto)) => {
                     let (p, note) = auto_prior(&e, q2_max, reference_dipole(points, settings));

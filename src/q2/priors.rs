@@ -27,8 +27,8 @@ use crate::resample::Scheme;
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
-use statrs::distribution::Normal;
 use serde::{Deserialize, Serialize};
+use statrs::distribution::Normal;
 
 /// The smallest default width (Lee, Arrington & Hill's bound, from memory).
 pub const MIN_AUTO_WIDTH: f64 = 5.0;
