@@ -34,6 +34,11 @@ pub enum Command {
     /// Summarise a data directory or a correlator table, with warnings.
     #[command(after_help = "Example:\n  formfactory inspect demo-data/nucleon")]
     Inspect(InspectArgs),
+    /// Campaigns: many ensembles and variants, run locally or on Slurm, combined.
+    #[command(
+        after_help = "Example:\n  formfactory campaign run pipelines/campaign-demo.yaml && formfactory campaign combine pipelines/campaign-demo.yaml --force"
+    )]
+    Campaign(crate::campaign::command::CampaignArgs),
     /// Print the JSON Schema of the pipeline file.
     #[command(after_help = "Example:\n  formfactory schema > schemas/pipeline.schema.json")]
     Schema,
@@ -123,6 +128,7 @@ fn dispatch(cli: Cli) -> crate::Result<()> {
         Command::Check(a) => check(a),
         Command::Mock(a) => mock(a),
         Command::Inspect(a) => inspect(a),
+        Command::Campaign(a) => crate::campaign::command::dispatch(a),
         Command::Schema => schema(),
         Command::Completions(a) => {
             clap_complete::generate(

@@ -2,6 +2,7 @@
 
 mod common;
 
+mod campaign;
 mod cli;
 mod closure;
 mod fit;
