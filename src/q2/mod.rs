@@ -287,7 +287,7 @@ pub(crate) fn q2_error(message: impl Into<String>) -> Error {
 /// Fit one form factor's Q² dependence, on the central value and on every resample.
 ///
 /// Priors enter every resample with their own uncertainty (centres drawn per resample, see
-/// [`priors`]); a z-expansion is also fitted with `kmax + 1` and the change reported.
+/// the `priors` module); a z-expansion is also fitted with `kmax + 1` and the change reported.
 ///
 /// Errors: no points, inconsistent sample counts, non-finite values, invalid settings,
 /// singular weights, or a central fit that does not converge. Resample fits that do not

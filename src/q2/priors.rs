@@ -42,7 +42,7 @@ pub const PRIOR_DOMINATED: f64 = 0.7;
 pub const PRIOR_EDGE: f64 = 2.0;
 
 /// Seed of the prior-centre draws (fixed, so runs reproduce).
-const PRIOR_SEED: u64 = 0x5a_7072_696f_72;
+const PRIOR_SEED: u64 = 0x5a70_7269_6f72;
 
 /// The prior on every free `a_k / a_0` of a z-expansion.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
