@@ -2,6 +2,7 @@
 
 mod common;
 
+mod bad_input;
 mod campaign;
 mod cli;
 mod closure;
