@@ -535,7 +535,7 @@ fn dirac_pauli_rows(fits: &[Q2FitResult], mass: &Resampled, rec: &mut Recorder) 
             }
         };
         let row = |quantity: &str, value: Resampled, unit: &str| DerivedRow {
-            method: ge.method.clone(),
+            method: ge.method,
             model: ge.model.clone(),
             quantity: quantity.to_string(),
             error: value.error(),
