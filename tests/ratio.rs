@@ -916,10 +916,13 @@ fn settings_read_from_yaml_with_defaults() {
     let schema = schemars::schema_for!(RatioSettings);
     let text = serde_json::to_string(&schema).unwrap();
     assert!(text.contains("summation_tsep_min"));
-    // The covariance block carries the resample stage's own schema, not a free-form value.
+    // The covariance block carries the resample stage's own covariance kind (with the
+    // stage's diagonal default), not a free-form value.
     let covariance = &schema.schema.object.as_ref().expect("object").properties["covariance"];
     let covariance = serde_json::to_string(covariance).unwrap();
-    assert!(covariance.contains("CovarianceOptions"), "{covariance}");
+    assert!(covariance.contains("RatioCovariance"), "{covariance}");
+    let block = serde_json::to_string(&schema.definitions["RatioCovariance"]).unwrap();
+    assert!(block.contains("CovarianceKind"), "{block}");
     assert!(
         text.contains("eigen_cut") && text.contains("shrinkage"),
         "{text}"

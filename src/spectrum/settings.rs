@@ -102,8 +102,56 @@ pub struct SpectrumSettings {
     pub gevp: Option<GevpSettings>,
     /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
     /// error, and about half the iterations of the machine-precision defaults of
-    /// [`FitSettings`]).
+    /// [`FitSettings`]). A block that leaves out a tolerance keeps 1e-10 for it.
+    #[serde(deserialize_with = "spectrum_fit")]
+    #[schemars(with = "SpectrumFit")]
     pub fit: FitSettings,
+}
+
+/// Tolerance of the spectrum fits when none is given.
+const SPECTRUM_TOL: f64 = 1e-10;
+
+/// The spectrum stage's `fit` block: as [`FitSettings`], with the stage's own tolerances as
+/// the defaults of a partial block (so `fit: {patience: 100}` keeps 1e-10).
+#[derive(Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+struct SpectrumFit {
+    /// Relative reduction of the sum of squares at which to stop.
+    #[serde(default = "spectrum_tol")]
+    ftol: f64,
+    /// Relative change of the parameters at which to stop.
+    #[serde(default = "spectrum_tol")]
+    xtol: f64,
+    /// Orthogonality of residuals and Jacobian columns at which to stop.
+    #[serde(default = "spectrum_tol")]
+    gtol: f64,
+    /// At most `patience * (n_params + 1)` residual evaluations.
+    #[serde(default = "default_patience")]
+    patience: usize,
+    /// Initial step bound factor (MINPACK `factor`).
+    #[serde(default = "default_stepbound")]
+    stepbound: f64,
+}
+
+fn spectrum_tol() -> f64 {
+    SPECTRUM_TOL
+}
+fn default_patience() -> usize {
+    FitSettings::default().patience
+}
+fn default_stepbound() -> f64 {
+    FitSettings::default().stepbound
+}
+
+fn spectrum_fit<'de, D: serde::Deserializer<'de>>(d: D) -> Result<FitSettings, D::Error> {
+    let f = SpectrumFit::deserialize(d)?;
+    Ok(FitSettings {
+        ftol: f.ftol,
+        xtol: f.xtol,
+        gtol: f.gtol,
+        patience: f.patience,
+        stepbound: f.stepbound,
+    })
 }
 
 impl Default for SpectrumSettings {
@@ -122,9 +170,9 @@ impl Default for SpectrumSettings {
             energies: EnergySource::Fitted,
             gevp: None,
             fit: FitSettings {
-                ftol: 1e-10,
-                xtol: 1e-10,
-                gtol: 1e-10,
+                ftol: SPECTRUM_TOL,
+                xtol: SPECTRUM_TOL,
+                gtol: SPECTRUM_TOL,
                 ..FitSettings::default()
             },
         }
