@@ -356,9 +356,26 @@ fn bad_data_gives_clear_errors() {
         let i = s.index(9, cfg);
         s.re[i] = -1.0;
     }
-    let e = run(&data, &plan, &closure_settings())
-        .unwrap_err()
-        .to_string();
+    // Issue 10 case 5: the fits stop before the signal dies instead of refusing the run.
+    let r = run(&data, &plan, &closure_settings()).unwrap();
+    let s = &r.per_momentum[&[0, 0, 0]];
+    assert_eq!(s.t_max, 8);
+    let note = s.t_max_note.as_deref().unwrap();
+    assert!(
+        note.contains("t = 9") && note.contains("positive"),
+        "{note}"
+    );
+    assert!(
+        r.warnings.iter().any(|w| w.contains("t_max = 8")),
+        "{:?}",
+        r.warnings
+    );
+    // An explicit per-momentum t_max that includes the negative point is refused clearly.
+    let settings = SpectrumSettings {
+        t_max_by_momentum: [("0,0,0".to_string(), 12)].into(),
+        ..closure_settings()
+    };
+    let e = run(&data, &plan, &settings).unwrap_err().to_string();
     assert!(e.contains("t = 9") && e.contains("positive"), "{e}");
     // Ill-conditioned covariance: two time slices identical on every configuration.
     let mut data = synthetic(&truth, &[[0, 0, 0]], 30, 20, 2);
@@ -587,4 +604,65 @@ fn jackknife_and_bootstrap_errors_agree_on_the_demo_spectrum() {
             "{p:?}: jackknife {ej} bootstrap {eb}"
         );
     }
+}
+
+// Issue 10 case 4: a rest-frame ground-energy prior (mean at the true mass, narrow) is carried
+// to moving frames by the continuum dispersion relation, so E(1,1,1) is not pulled to the mass.
+#[test]
+fn rest_frame_prior_follows_the_dispersion_relation() {
+    let truth = Truth {
+        mass: 0.5,
+        gap: 0.6,
+        l: 16.0,
+    };
+    let data = synthetic(&truth, &[[0, 0, 0], [1, 1, 1]], 60, 20, 11);
+    let mut settings = closure_settings();
+    settings.priors.ground_energy = Some(formfactory::fit::Prior::new(0.5, 0.01));
+    let r = run(&data, &ResamplePlan::jackknife(60), &settings).unwrap();
+    let e = r.per_momentum[&[1, 1, 1]].ground_energy();
+    let pull = (e.central - truth.e0([1, 1, 1])) / e.error();
+    assert!(
+        pull.abs() < 3.0,
+        "E(1,1,1) = {e:?}, truth {}",
+        truth.e0([1, 1, 1])
+    );
+    assert!(r
+        .prior_note
+        .as_deref()
+        .unwrap()
+        .contains("continuum dispersion"));
+    // Without L the prior cannot be carried: rest only, and the run says so.
+    settings.l_extent = None;
+    let r = run(&data, &ResamplePlan::jackknife(60), &settings).unwrap();
+    assert!(r.prior_note.as_deref().unwrap().contains("rest only"));
+    let e = r.per_momentum[&[1, 1, 1]].ground_energy();
+    assert!((e.central - truth.e0([1, 1, 1])).abs() < 3.0 * e.error());
+}
+
+// Issue 10 case 6: a moving-frame "ground state" below the rest-frame energy is dropped with
+// the momentum and the fit named, and the run goes on; E(0) <= 0 would stop it.
+#[test]
+fn energies_below_the_rest_frame_are_dropped() {
+    let heavy = Truth {
+        mass: 0.5,
+        gap: 0.6,
+        l: 16.0,
+    };
+    let light = Truth { mass: 0.3, ..heavy };
+    let mut data = synthetic(&heavy, &[[0, 0, 0]], 60, 20, 12);
+    let other = synthetic(&light, &[[0, 0, 0]], 60, 20, 13);
+    let series = other.channels.into_values().next().unwrap();
+    data.channels.insert(
+        TwoPointKey {
+            momentum: [1, 0, 0],
+            smear: None,
+        },
+        series,
+    );
+    let r = run(&data, &ResamplePlan::jackknife(60), &closure_settings()).unwrap();
+    assert!(!r.per_momentum.contains_key(&[1, 0, 0]));
+    let (p, why) = &r.dropped[0];
+    assert_eq!(*p, [1, 0, 0]);
+    assert!(why.contains("below E(0)") && why.contains("t_min"), "{why}");
+    assert!(r.warnings.iter().any(|w| w.contains("(1,0,0) dropped")));
 }

@@ -102,7 +102,7 @@ pub fn robust_variance(v: &Resampled) -> f64 {
     let median = |x: &mut Vec<f64>| {
         x.sort_by(f64::total_cmp);
         let m = x.len() / 2;
-        if x.len() % 2 == 0 {
+        if x.len().is_multiple_of(2) {
             0.5 * (x[m - 1] + x[m])
         } else {
             x[m]

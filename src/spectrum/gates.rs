@@ -33,7 +33,7 @@ pub fn check(
     let Some(rest) = per_momentum.get(&[0, 0, 0]).map(|s| s.energies[0].clone()) else {
         return Ok(());
     };
-    if !(rest.central > 0.0) {
+    if rest.central.is_nan() || rest.central <= 0.0 {
         let s = &per_momentum[&[0, 0, 0]];
         return Err(Error::analysis(
             "spectrum",

@@ -266,8 +266,8 @@ fn signal_t_max(
     cap: usize,
     max_rel: f64,
 ) -> (usize, Option<String>) {
-    for t in t_from..=cap.min(corr.len().saturating_sub(1)) {
-        let c = &corr[t];
+    let last = cap.min(corr.len().saturating_sub(1));
+    for (t, c) in corr.iter().enumerate().take(last + 1).skip(t_from) {
         let why = if c.central <= 0.0 {
             format!(
                 "the correlator is {:.3e} (not positive) at t = {t}",

@@ -78,12 +78,12 @@ impl WindowFit {
                 ));
             }
         }
-        for n in 1..ns {
+        for (n, log_gap) in p.iter().enumerate().take(ns).skip(1) {
             if err(n) > MAX_LOG_GAP_ERROR {
                 return Some(format!(
                     "unresolved: gap E{n} - E{} = {:.3} known only to a factor e^{:.2}",
                     n - 1,
-                    p[n].exp(),
+                    log_gap.exp(),
                     err(n)
                 ));
             }
