@@ -1,4 +1,4 @@
-//! Readers and writers for the correlator exchange format (`/work/shared/data-format.md`).
+//! Readers and writers for the correlator exchange format (`docs/data-format.md`).
 //!
 //! Why it exists: every analysis starts from per-configuration correlators in "long" CSV
 //! tables. This module streams them (csv crate over a buffered reader, one reused
