@@ -200,7 +200,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
     let Prepared {
         two,
-        three,
+        mut three,
         plan: rplan,
     } = prepared;
 
@@ -210,6 +210,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         for w in &sp.warnings {
             rec.warn(format!("spectrum: {w}"));
         }
+        skip_dropped_momenta(&mut three, &sp.dropped, &mut rec);
         results.spectrum = Some(sp);
     }
     if plan.runs(Stage::Ratio) {
@@ -252,6 +253,29 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     results.timings = rec.timings;
     results.warnings = rec.warnings;
     Ok(results)
+}
+
+/// Remove the three-point channels whose sink or source momentum the spectrum dropped.
+fn skip_dropped_momenta(
+    three: &mut ThreePointData,
+    dropped: &[(Momentum, String)],
+    rec: &mut Recorder,
+) {
+    if dropped.is_empty() {
+        return;
+    }
+    let gone = |p: Momentum| dropped.iter().any(|(d, _)| *d == p);
+    let before = three.channels.len();
+    three
+        .channels
+        .retain(|k, _| !gone(k.pf) && !gone(k.source_momentum()));
+    let n = before - three.channels.len();
+    if n > 0 {
+        rec.warn(format!(
+            "ratio: {n} three-point channel(s) skipped: their sink or source momentum was \
+             dropped by the spectrum stage"
+        ));
+    }
 }
 
 /// The binned data and the one resample plan every later stage uses.
