@@ -2,11 +2,9 @@
 //! kmax study and the pole factor (issue: honest z-expansion errors).
 
 use approx::assert_relative_eq;
-use formfactory::fit::Prior;
+use formfactory::fit::{Prior, Weighting};
 use formfactory::kinematics::HBARC_GEV_FM;
-use formfactory::q2::{
-    fit, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, Q2Weights, TCut, ZPrior, T0,
-};
+use formfactory::q2::{fit, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, TCut, ZPrior, T0};
 use formfactory::resample::{ResamplePlan, Resampled, Scheme};
 use nalgebra::{DMatrix, DVector};
 use rand::{Rng, SeedableRng};
@@ -32,7 +30,7 @@ fn zexp(t_cut: f64, t0: T0, kmax: usize, prior: Option<ZPrior>) -> Q2FitSettings
             sum_rules: 0,
             pole_mass: None,
         },
-        weights: Q2Weights::Diagonal,
+        weights: Weighting::Diagonal,
         q2_max: None,
         solver: Default::default(),
     }
