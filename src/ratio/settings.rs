@@ -182,7 +182,7 @@ pub struct RatioSettings {
     pub covariance: CovarianceOptions,
 }
 
-/// The ratio stage's covariance block: as [`CovarianceOptions`], with `kind` defaulting to
+/// The ratio stage's covariance block: as the resample stage's, with `kind` defaulting to
 /// diagonal (the section's default) so that `covariance: {eigen_cut: 0.01}` keeps it.
 #[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]

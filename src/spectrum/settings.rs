@@ -134,8 +134,8 @@ pub struct SpectrumSettings {
     /// Variational analysis of correlator matrices (channels with `smear` labels `a-b`).
     pub gevp: Option<GevpSettings>,
     /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
-    /// error, and about half the iterations of the machine-precision defaults of
-    /// [`FitSettings`]). A block that leaves out a tolerance keeps 1e-10 for it.
+    /// error, and about half the iterations of machine-precision tolerances). A block that
+    /// leaves out a tolerance keeps 1e-10 for it.
     #[serde(deserialize_with = "spectrum_fit")]
     #[schemars(with = "SpectrumFit")]
     pub fit: FitSettings,
@@ -144,7 +144,7 @@ pub struct SpectrumSettings {
 /// Tolerance of the spectrum fits when none is given.
 const SPECTRUM_TOL: f64 = 1e-10;
 
-/// The spectrum stage's `fit` block: as [`FitSettings`], with the stage's own tolerances as
+/// The spectrum stage's `fit` block: as the general fit settings, with the stage's own tolerances as
 /// the defaults of a partial block (so `fit: {patience: 100}` keeps 1e-10).
 #[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
