@@ -18,3 +18,4 @@ mod ratio;
 mod report;
 mod resample;
 mod spectrum;
+mod spectrum_closure;
