@@ -5,6 +5,7 @@ mod common;
 mod cli;
 mod closure;
 mod fit;
+mod hdf5;
 mod io;
 mod kinematics;
 mod mock;

@@ -61,7 +61,7 @@ pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<Strin
     let opts = ReadOptions {
         keep_common_configs: spec.data.keep_common_configs,
     };
-    let ds = read_dataset(&plan.twopt, Some(&plan.threept), &opts)?;
+    let ds = read_source(plan, &opts, &|_, _| {})?;
     let mut three = ds
         .threept
         .ok_or_else(|| plan.error("data.threept", "the three-point table could not be read"))?;
@@ -98,6 +98,27 @@ pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<Strin
             .retain(|k, _| currents.iter().any(|c| c == k.current.name()));
     }
     Ok((ds.twopt, three, ds.notes))
+}
+
+/// Read the correlators the `data` section names (CSV tables or an HDF5 source) on common
+/// configurations, before any selection; `progress` sees (files done, files in all) of an
+/// HDF5 source.
+pub fn read_source(
+    plan: &Plan,
+    opts: &ReadOptions,
+    progress: &dyn Fn(usize, usize),
+) -> Result<crate::io::Dataset> {
+    let Some(mapping) = &plan.hdf5 else {
+        return read_dataset(&plan.twopt, Some(&plan.threept), opts);
+    };
+    let t_extent = Some(plan.spec.ensemble.t as usize);
+    let (two, three, notes) = crate::io::hdf5::read_source(mapping, t_extent, progress)
+        .map_err(|e| match e {
+            crate::Error::Config { message } => plan.error("data.hdf5", message),
+            other => other,
+        })?;
+    let name = std::path::Path::new("data.hdf5");
+    crate::io::on_common_configs(two, name, three, name, notes, opts)
 }
 
 /// Rules that need the data: time ranges against the table, `tau_cut` against every
