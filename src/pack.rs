@@ -112,9 +112,7 @@ pub fn convert(input: &Path, out: &Path, force: bool) -> Result<()> {
 /// `formfactory inspect`: a pipeline file is inspected through its `data` section (so HDF5
 /// mappings can be checked), anything else by [`io::inspect::inspect`].
 pub fn inspect(path: &Path) -> Result<String> {
-    let is_yaml = path
-        .extension()
-        .is_some_and(|e| e == "yaml" || e == "yml");
+    let is_yaml = path.extension().is_some_and(|e| e == "yaml" || e == "yml");
     if !is_yaml {
         return io::inspect::inspect(path);
     }

@@ -112,8 +112,8 @@ pub fn read_source(
         return read_dataset(&plan.twopt, Some(&plan.threept), opts);
     };
     let t_extent = Some(plan.spec.ensemble.t as usize);
-    let (two, three, notes) = crate::io::hdf5::read_source(mapping, t_extent, progress)
-        .map_err(|e| match e {
+    let (two, three, notes) =
+        crate::io::hdf5::read_source(mapping, t_extent, progress).map_err(|e| match e {
             crate::Error::Config { message } => plan.error("data.hdf5", message),
             other => other,
         })?;

@@ -127,7 +127,12 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
         source: path.to_path_buf(),
         source_sha256: sha256_hex(&bytes),
         twopt: spec.data.twopt.as_deref().map(resolve).unwrap_or_default(),
-        threept: spec.data.threept.as_deref().map(resolve).unwrap_or_default(),
+        threept: spec
+            .data
+            .threept
+            .as_deref()
+            .map(resolve)
+            .unwrap_or_default(),
         hdf5: match &spec.data.hdf5 {
             Some(h) => Some(
                 h.resolve(&base, "data.hdf5")
@@ -236,8 +241,9 @@ fn validate(plan: &Plan) -> Result<()> {
             "expected either both CSV tables (`twopt` and `threept`) or an `hdf5` source".into(),
         );
     }
-    if let Some(crate::io::hdf5::Layout::Packed(p) | crate::io::hdf5::Layout::OneFile { file: p, .. }) =
-        plan.hdf5.as_ref().map(|m| &m.layout)
+    if let Some(
+        crate::io::hdf5::Layout::Packed(p) | crate::io::hdf5::Layout::OneFile { file: p, .. },
+    ) = plan.hdf5.as_ref().map(|m| &m.layout)
     {
         if !p.is_file() {
             return err(

@@ -91,9 +91,16 @@ pub fn list_files(base: &Path, tpl: &Template) -> Result<Vec<(PathBuf, Captures)
 
 /// Every dataset path in `file`, depth first, sorted within each group.
 pub fn dataset_paths(file: &hdf5::File, path: &Path) -> Result<Vec<String>> {
-    fn walk(g: &hdf5::Group, prefix: &str, depth: usize, out: &mut Vec<String>) -> hdf5::Result<()> {
+    fn walk(
+        g: &hdf5::Group,
+        prefix: &str,
+        depth: usize,
+        out: &mut Vec<String>,
+    ) -> hdf5::Result<()> {
         if depth > MAX_DEPTH {
-            return Err(hdf5::Error::from("groups nested too deeply (a link cycle?)"));
+            return Err(hdf5::Error::from(
+                "groups nested too deeply (a link cycle?)",
+            ));
         }
         for name in g.member_names()? {
             let full = format!("{prefix}/{name}");
@@ -254,11 +261,12 @@ enum Kind {
 /// full length, which must then agree).
 pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> Result<Collected> {
     let (Some(two_tpl), Some(three_tpl)) = (&m.twopt, &m.threept) else {
-        return Err(Error::config("data.hdf5: the dataset templates are missing"));
+        return Err(Error::config(
+            "data.hdf5: the dataset templates are missing",
+        ));
     };
     // (file, its placeholder values, the configuration indices of its rows)
-    let (files, configs, config_axis): (Vec<(PathBuf, Captures)>, Vec<i64>, bool) = match &m
-        .layout
+    let (files, configs, config_axis): (Vec<(PathBuf, Captures)>, Vec<i64>, bool) = match &m.layout
     {
         Layout::PerConfig { base, files } => {
             let files = list_files(base, files)?;
@@ -464,7 +472,10 @@ fn missing_error(
                 .map_or("the file has no dataset".to_string(), |n| {
                     format!("nearest existing path: `{n}`")
                 });
-            format!("dataset `{p}` is missing (the first file {} has it); {near}", first.display())
+            format!(
+                "dataset `{p}` is missing (the first file {} has it); {near}",
+                first.display()
+            )
         }
         None => format!(
             "has fewer matching datasets than the first file {}",
@@ -499,7 +510,9 @@ fn read_configs(h5: &hdf5::File, path: &Path, name: &str) -> Result<Vec<i64>> {
     if shape.len() != 1 {
         return Err(err(format!("has shape {shape:?}; expected one axis")));
     }
-    let len = std::fs::metadata(path).map_err(|e| Error::io(path, e))?.len();
+    let len = std::fs::metadata(path)
+        .map_err(|e| Error::io(path, e))?
+        .len();
     if (shape[0] as u64).saturating_mul(ds.dtype().map_or(8, |t| t.size()) as u64) > len {
         return Err(err("is larger than the file: damaged or truncated".into()));
     }

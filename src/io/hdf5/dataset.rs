@@ -267,9 +267,7 @@ pub fn read_block(
     }
     let keep = n_need.unwrap_or(n_t);
     if n_t < keep {
-        return Err(err(format!(
-            "has {n_t} time slices; {keep} are needed"
-        )));
+        return Err(err(format!("has {n_t} time slices; {keep} are needed")));
     }
     let values: Vec<(f64, f64)> = match storage {
         Storage::Pairs { single: false } => pairs_of(ds.read_raw::<f64>().map_err(h5)?),

@@ -183,7 +183,17 @@ impl Hdf5Source {
             ("twopt", &["px", "py", "pz"][..]),
             (
                 "threept",
-                &["pfx", "pfy", "pfz", "qx", "qy", "qz", "tsep", "current", "projector"][..],
+                &[
+                    "pfx",
+                    "pfy",
+                    "pfz",
+                    "qx",
+                    "qy",
+                    "qz",
+                    "tsep",
+                    "current",
+                    "projector",
+                ][..],
             ),
         ] {
             for f in fields {
@@ -275,9 +285,7 @@ impl<'a> Fields<'a> {
 
     /// The source position, if the mapping has one.
     pub fn source(&self) -> std::result::Result<Option<i64>, String> {
-        self.get("source")
-            .map(|_| self.int("source"))
-            .transpose()
+        self.get("source").map(|_| self.int("source")).transpose()
     }
 
     /// The two-point key.

@@ -127,7 +127,11 @@ pub fn read_packed(path: &Path) -> Result<(TwoPointData, ThreePointData)> {
     let index: Index = {
         let raw = read_exact::<u8>(&f, path, len, "formfactory", None)?;
         serde_json::from_slice(&raw).map_err(|e| {
-            dataset_error(path, "formfactory", format!("is not a packed-file index: {e}"))
+            dataset_error(
+                path,
+                "formfactory",
+                format!("is not a packed-file index: {e}"),
+            )
         })?
     };
     if index.format != FORMAT || index.version != VERSION {
@@ -224,9 +228,11 @@ fn read_exact<T: hdf5::H5Type>(
     shape: Option<&[usize]>,
 ) -> Result<Vec<T>> {
     let err = |m: String| dataset_error(path, name, m);
-    let ds = f
-        .dataset(name)
-        .map_err(|e| err(format!("missing or unreadable ({e}); is this a packed file?")))?;
+    let ds = f.dataset(name).map_err(|e| {
+        err(format!(
+            "missing or unreadable ({e}); is this a packed file?"
+        ))
+    })?;
     let dtype = ds.dtype().map_err(|e| err(e.to_string()))?;
     let have = dtype.to_descriptor().map_err(|e| err(e.to_string()))?;
     let want = T::type_descriptor();
@@ -249,5 +255,6 @@ fn read_exact<T: hdf5::H5Type>(
             "claims shape {got:?}, more than the file of {len} bytes holds (damaged or truncated?)"
         )));
     }
-    ds.read_raw::<T>().map_err(|e| err(format!("cannot read: {e}")))
+    ds.read_raw::<T>()
+        .map_err(|e| err(format!("cannot read: {e}")))
 }

@@ -236,7 +236,10 @@ mod tests {
             ]
         );
         assert!(t.matches("/2pt/SS/p0_-1").is_none());
-        assert!(t.matches("/2pt/a/b/p0_1_2").is_none(), "text holes stop at /");
+        assert!(
+            t.matches("/2pt/a/b/p0_1_2").is_none(),
+            "text holes stop at /"
+        );
     }
 
     #[test]
@@ -271,6 +274,9 @@ mod tests {
 
     #[test]
     fn nearest_by_edit_distance() {
-        assert_eq!(nearest("/a/p0_0_1", ["/a/p0_0_2", "/b/zz"]), Some("/a/p0_0_2"));
+        assert_eq!(
+            nearest("/a/p0_0_1", ["/a/p0_0_2", "/b/zz"]),
+            Some("/a/p0_0_2")
+        );
     }
 }
