@@ -49,11 +49,13 @@
 
 pub mod hdf5;
 pub mod inspect;
+mod open;
 mod table;
 mod threept;
 mod twopt;
 mod write;
 
+pub use open::{not_a_regular_file, open_regular, read_text_file, MAX_SPEC_BYTES};
 pub use threept::{read_threept, read_threept_from};
 pub use twopt::{read_twopt, read_twopt_from};
 pub use write::{write_threept, write_twopt};
