@@ -369,10 +369,26 @@ fn solve_shell(
         let a = w.whiten_matrix(&k);
         let mut b = DVector::zeros(rows.len());
         w.whiten(y.as_slice(), b.as_mut_slice());
-        let svd = a.clone().svd(true, true);
+        let which = || s.map_or("the central value".to_string(), |s| format!("resample {s}"));
+        if a.iter().chain(b.iter()).any(|x| !x.is_finite()) {
+            return Err(format!(
+                "{}: the shell's equations hold a non-finite value (a NaN or infinite energy, \
+                 kinematic factor or matrix element from an earlier stage)",
+                which()
+            ));
+        }
+        // The unordered decomposition never sorts, so it cannot panic on a NaN singular value.
+        let svd = nalgebra::SVD::try_new_unordered(a.clone(), true, true, f64::EPSILON, 10_000)
+            .ok_or_else(|| format!("{}: the decomposition's SVD did not converge", which()))?;
         let smax = svd.singular_values.max();
         let smin = svd.singular_values.min();
-        if smin.is_nan() || smin <= smax * 1e-12 {
+        if !smax.is_finite() || smin.is_nan() {
+            return Err(format!(
+                "{}: the decomposition's SVD gave a non-finite singular value",
+                which()
+            ));
+        }
+        if smin <= smax * 1e-12 {
             return Err(
                 "the coefficient matrix is singular: the channels do not separate the form factors"
                     .into(),

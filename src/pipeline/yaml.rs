@@ -53,7 +53,7 @@ impl Positions {
             let mut rest = content;
             // sequence items: `- value` or `- key: value`
             while let Some(after) = rest.strip_prefix('-') {
-                if !(after.is_empty() || after.starts_with(' ')) {
+                if !(after.is_empty() || after.starts_with(' ')) || stack.len() >= MAX_DEPTH {
                     break;
                 }
                 while stack.last().is_some_and(|(i, _)| *i > indent) {
@@ -78,6 +78,11 @@ impl Positions {
             };
             while stack.last().is_some_and(|(i, _)| *i >= indent) {
                 stack.pop();
+            }
+            if stack.len() >= MAX_DEPTH {
+                // Deeper than any pipeline: no positions, so memory stays linear in the text
+                // (the parser refuses such nesting itself).
+                continue;
             }
             let parent = stack.last().map(|(_, p)| p.clone()).unwrap_or_default();
             let path = join(&parent, key);
@@ -188,6 +193,10 @@ fn split_key(s: &str) -> Option<(&str, &str)> {
 
 /// Keys and items of a one-line flow value (`{ a: 1, b: [2, 3] }`, `[4, 6]`) starting at
 /// 0-based column `col0`.
+/// Nesting depth beyond which the position scan records nothing: every path is as long as
+/// its depth, so an unlimited depth would make the scan quadratic in the text.
+const MAX_DEPTH: usize = 64;
+
 fn scan_flow(
     parent: &str,
     text: &str,
@@ -202,6 +211,9 @@ fn scan_flow(
     for (i, ch) in text.char_indices() {
         match ch {
             '{' | '[' => {
+                if stack.len() >= MAX_DEPTH {
+                    return;
+                }
                 let base = match stack.last() {
                     None => parent.to_string(),
                     Some((p, Some(idx))) => format!("{p}[{idx}]"),
