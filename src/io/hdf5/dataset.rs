@@ -52,7 +52,8 @@ const SIGNATURE: &[u8; 8] = b"\x89HDF\r\n\x1a\n";
 /// size in bytes.
 pub fn open_file(path: &Path) -> Result<(hdf5::File, u64)> {
     use std::io::{Read, Seek, SeekFrom};
-    let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+    // Only a regular file: a FIFO would make the open wait forever.
+    let mut f = crate::io::open_regular(path)?;
     let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
     let mut found = false;
     let mut offset = 0u64;

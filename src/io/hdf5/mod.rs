@@ -41,12 +41,12 @@ pub fn not_enabled(what: &str) -> Error {
 }
 
 /// Whether the file at `path` starts with the HDF5 signature (checked without the library).
+/// Only a regular file is opened: a FIFO or a device is no HDF5 file, and opening a FIFO
+/// would wait forever; the caller's own open then refuses it with its message.
 pub fn looks_like_hdf5(path: &Path) -> bool {
     use std::io::Read;
     let mut sig = [0u8; 8];
-    std::fs::File::open(path)
-        .and_then(|mut f| f.read_exact(&mut sig))
-        .is_ok()
+    crate::io::open_regular(path).is_ok_and(|mut f| f.read_exact(&mut sig).is_ok())
         && &sig == b"\x89HDF\r\n\x1a\n"
 }
 
