@@ -42,4 +42,4 @@ pub mod report;
 pub mod resample;
 pub mod spectrum;
 
-pub use error::{Error, Result};
+pub use error::{Error, Invalid, Result};

@@ -291,6 +291,25 @@ fn cases() -> Vec<Case> {
             expect: vec!["p.yaml"],
         },
         Case {
+            name: "flow brackets nested beyond the limit",
+            files: vec![(
+                "p.yaml",
+                Content::Text(format!("ensemble: {}\n", "[".repeat(32_000))),
+            )],
+            args: vec!["check", "p.yaml"],
+            code: 1,
+            expect: vec!["p.yaml:1:267: brackets `[`/`{` nested more than 256 levels deep"],
+        },
+        mock_case(
+            "mock spec with flow brackets nested beyond the limit",
+            "tseps: [8, 12]",
+            &format!("tseps: {}8{}", "[".repeat(300), "]".repeat(300)),
+            vec![
+                "mock spec m.yaml:15:266: brackets",
+                "nested more than 256 levels",
+            ],
+        ),
+        Case {
             name: "deeply nested block keys",
             files: vec![(
                 "p.yaml",

@@ -159,7 +159,7 @@ fn typos_inside_embedded_stage_settings_are_found() {
     });
     let plan = pipeline::load(&p, &[]).unwrap();
     assert_eq!(
-        plan.spec.excited_states.fits.two_state,
+        plan.spec.excited_states.two_state,
         formfactory::ratio::TwoStateVariant::FloatingGaps {
             prior_width_factor: 2.0
         }

@@ -3,13 +3,13 @@
 use approx::{assert_abs_diff_eq, assert_relative_eq};
 use formfactory::data::{Current, Momentum, Projector};
 use formfactory::fit::Prior;
+use formfactory::fit::Weighting;
 use formfactory::kinematics::{
     coefficients, decompose, q_squared, ChannelValue, DecompositionSettings, Dispersion, Energies,
     FormFactor, Hadron, KinematicSetup, HBARC_GEV_FM,
 };
 use formfactory::q2::{
-    dirac_pauli_radii, fit, t0_optimal, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, Q2Weights,
-    TCut, T0,
+    dirac_pauli_radii, fit, t0_optimal, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, TCut, T0,
 };
 use formfactory::resample::{ResamplePlan, Resampled, Scheme};
 use nalgebra::Complex;
@@ -30,7 +30,7 @@ fn dipole(q2: f64, g0: f64, m2: f64) -> f64 {
 fn settings(model: Q2Model) -> Q2FitSettings {
     Q2FitSettings {
         model,
-        weights: Q2Weights::Diagonal,
+        weights: Weighting::Diagonal,
         q2_max: None,
         solver: Default::default(),
     }
@@ -169,7 +169,7 @@ fn z_expansion_with_sum_rules_on_dipole_data() {
         sum_rules: 4,
     };
     let mut s = settings(model);
-    s.weights = Q2Weights::Full;
+    s.weights = Weighting::Full;
     let f = fit(&pts, &s, Q2Units::GeV2).expect("fit converges");
     let want = 12.0 / 0.71;
     let r2 = &f.r2;

@@ -49,7 +49,7 @@ struct Chan {
 }
 
 impl Chan {
-    fn pi(&self) -> Momentum {
+    fn source_momentum(&self) -> Momentum {
         [
             self.pf[0] - self.q[0],
             self.pf[1] - self.q[1],
@@ -173,7 +173,7 @@ fn make_data(
         channels: BTreeMap::new(),
     };
     for ch in chans {
-        let (sf, si) = (&twopt[&ch.pf], &twopt[&ch.pi()]);
+        let (sf, si) = (&twopt[&ch.pf], &twopt[&ch.source_momentum()]);
         for &tsep in tseps {
             let n_t = tsep as usize + 1;
             let f = factors(noise, &mut rng, &common, n_t, n_cfg);
@@ -389,7 +389,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
         assert_relative_eq!(fit.c_i.re.central, ch.m.0 * ch.b_i, max_relative = 1e-6);
         assert_relative_eq!(fit.c_if.re.central, ch.m.0 * ch.b_if, max_relative = 1e-6);
-        assert_eq!(fit.symmetric, ch.pf == ch.pi());
+        assert_eq!(fit.symmetric, ch.pf == ch.source_momentum());
         // Floating gaps with priors centred on the true gaps (spread on the samples only): the
         // exact data are fitted exactly, gaps included.
         let floating = RatioSettings {
@@ -404,7 +404,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         let gaps = fit.gaps.unwrap();
         assert_relative_eq!(
             gaps.source.central,
-            twopt[&ch.pi()].delta,
+            twopt[&ch.source_momentum()].delta,
             max_relative = 1e-8
         );
         assert_relative_eq!(gaps.sink.central, twopt[&ch.pf].delta, max_relative = 1e-8);
@@ -424,7 +424,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         let gaps = fit.gaps.unwrap();
         assert_relative_eq!(
             gaps.source.central,
-            twopt[&ch.pi()].delta,
+            twopt[&ch.source_momentum()].delta,
             max_relative = 1e-7
         );
         assert_relative_eq!(gaps.sink.central, twopt[&ch.pf].delta, max_relative = 1e-7);
@@ -839,7 +839,7 @@ fn averaging_equivalent_channels_with_signs() {
 fn renormalization_keeps_the_z_error_as_its_own_column() {
     // Independent errors add in quadrature (common practice; methods.md §4): for bare value b
     // with error s and Z +- dZ, stat = |Z| s, z-error = |b| dZ, total = sqrt(stat^2 + z^2).
-    use formfactory::ratio::renorm::{renormalize, ZFactor, ZFactors};
+    use formfactory::kinematics::renorm::{renormalize, ZFactor, ZFactors};
     let mut rng = ChaCha8Rng::seed_from_u64(3);
     let x: Vec<f64> = (0..100).map(|_| 1.27 + 0.1 * gauss(&mut rng)).collect();
     let bare = ResamplePlan::jackknife(100).mean(&x);
@@ -887,13 +887,11 @@ fn renormalization_keeps_the_z_error_as_its_own_column() {
         }),
         ..ZFactors::default()
     };
-    let r = formfactory::ratio::renorm::renormalize_final(&result, &zv);
-    assert_relative_eq!(r.re.value.central, 0.7 * chans[0].m.0, max_relative = 1e-10);
-    assert_relative_eq!(
-        r.im.error_z,
-        0.01 * chans[0].m.1.abs(),
-        max_relative = 1e-10
-    );
+    let zk = zv.get(result.key.current.kind());
+    let re = renormalize(&result.final_estimate.re, zk);
+    let im = renormalize(&result.final_estimate.im, zk);
+    assert_relative_eq!(re.value.central, 0.7 * chans[0].m.0, max_relative = 1e-10);
+    assert_relative_eq!(im.error_z, 0.01 * chans[0].m.1.abs(), max_relative = 1e-10);
 }
 
 #[test]

@@ -167,7 +167,7 @@ fn dispersion_relations() {
         0.5,
         epsilon = 1e-14
     );
-    let p = dispersion::lattice_momentum([1, 2, 0], 16.0, None);
+    let p = formfactory::kinematics::lattice_momentum([1, 2, 0], 16, [0.0; 3]);
     assert_relative_eq!(p[1], 4.0 * std::f64::consts::PI / 16.0, epsilon = 1e-15);
     let lat = dispersion::lattice_energy(&m, p).central;
     let lhs = (lat / 2.0).sinh().powi(2) - 0.25f64.sinh().powi(2);
@@ -185,7 +185,7 @@ fn dispersion_relations() {
     };
     let ratio = diff(0.1) / diff(0.05);
     assert!((3.8..4.3).contains(&ratio), "{ratio}");
-    let twisted = dispersion::lattice_momentum([1, 0, 0], 16.0, Some([0.5, 0.0, 0.0]));
+    let twisted = formfactory::kinematics::lattice_momentum([1, 0, 0], 16, [0.5, 0.0, 0.0]);
     assert_relative_eq!(
         twisted[0],
         (2.0 * std::f64::consts::PI + 0.5) / 16.0,
@@ -202,7 +202,7 @@ struct Truth {
 
 impl Truth {
     fn e0(&self, n: Momentum) -> f64 {
-        let p = dispersion::lattice_momentum(n, self.l, None);
+        let p = formfactory::kinematics::lattice_momentum(n, self.l as usize, [0.0; 3]);
         let m = Resampled::new(self.mass, vec![], Scheme::Jackknife);
         dispersion::lattice_energy(&m, p).central
     }

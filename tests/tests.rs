@@ -6,6 +6,7 @@ mod bad_input;
 mod campaign;
 mod cli;
 mod closure;
+mod docs;
 mod fit;
 mod hdf5;
 mod io;

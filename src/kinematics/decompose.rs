@@ -1,5 +1,5 @@
 //! Form-factor decomposition: from the ratio plateaus of many channels to form factors per
-//! Q² shell, by weighted least squares per resample (methods.md §5).
+//! Q² shell, by weighted least squares per resample (docs/methods.md §5).
 //!
 //! Within a shell (equal `|n_f|², |n_i|², |n_q|²` without twists, equal Q² within a tolerance
 //! with twists) and a current kind, every channel gives `Pi_c = sum_k K_ck G_k` with complex
@@ -13,10 +13,9 @@
 use super::factors::{coefficients, FormFactor};
 use super::momentum::q2_to_gev2;
 use super::phase::Phase;
-use super::setup::{at, KinematicSetup};
+use super::setup::{at, EnergySource, KinematicSetup};
 use crate::data::{norm2, sub, Current, CurrentKind, Momentum, Projector};
-use crate::fit::Weights;
-use crate::resample::covariance::{self, CovarianceKind, CovarianceOptions, ShrinkageTarget};
+use crate::fit::{Weighting, Weights};
 use crate::resample::Resampled;
 use crate::{Error, Result};
 use nalgebra::{Complex, DMatrix, DVector};
@@ -52,28 +51,18 @@ impl ChannelValue {
     }
 }
 
-/// How the stacked channel values are weighted.
-#[derive(
-    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
-)]
-#[serde(rename_all = "lowercase")]
-pub enum DecompositionWeights {
-    /// Inverse resampled variances of each real/imaginary part.
-    #[default]
-    Diagonal,
-    /// The full covariance of all stacked parts, estimated from the resamples.
-    Full,
-    /// The covariance shrunk toward its diagonal with the Ledoit–Wolf intensity.
-    Shrinkage,
-}
-
 /// User settings of the decomposition.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DecompositionSettings {
+    /// Energies of the kinematic factors: `fitted` (the two-point fit at every momentum;
+    /// `fit` is read too), or the fitted mass with the `continuum` or `lattice` dispersion
+    /// relation.
+    #[serde(default)]
+    pub energies: EnergySource,
     /// Weights of the least-squares solve.
     #[serde(default)]
-    pub weights: DecompositionWeights,
+    pub weights: Weighting,
     /// With twisted boundary conditions: channels whose Q² (lattice units, central value)
     /// differ by at most this much form one shell.
     #[serde(default = "default_q2_tolerance")]
@@ -88,10 +77,35 @@ fn default_q2_tolerance() -> f64 {
     1e-6
 }
 
+impl DecompositionSettings {
+    /// Check the tolerance and the current names of the phases.
+    pub fn validate(&self) -> std::result::Result<(), crate::Invalid> {
+        if !(self.q2_tolerance.is_finite() && self.q2_tolerance >= 0.0) {
+            return Err(crate::Invalid::new(
+                "q2_tolerance",
+                format!(
+                    "q2_tolerance = {} is not valid: expected zero or a positive number",
+                    self.q2_tolerance
+                ),
+            ));
+        }
+        for name in self.phases.keys() {
+            if Current::parse(name).is_none() {
+                return Err(crate::Invalid::new(
+                    format!("phases.{name}"),
+                    Current::unknown(name),
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
 impl Default for DecompositionSettings {
     fn default() -> Self {
         DecompositionSettings {
-            weights: DecompositionWeights::default(),
+            energies: EnergySource::default(),
+            weights: Weighting::default(),
             q2_tolerance: default_q2_tolerance(),
             phases: BTreeMap::new(),
         }
@@ -255,7 +269,7 @@ fn solve_shell(
     members: &[&ChannelValue],
     kind: CurrentKind,
     setup: &KinematicSetup,
-    weights: DecompositionWeights,
+    weights: Weighting,
     phases: &BTreeMap<Current, Complex<f64>>,
     n: usize,
 ) -> std::result::Result<ShellResult, String> {
@@ -447,7 +461,7 @@ fn whitening(
     data: &[Resampled],
     rows: &[Row],
     members: &[&ChannelValue],
-    weights: DecompositionWeights,
+    weights: Weighting,
 ) -> std::result::Result<Weights, String> {
     for (d, &(ci, imag)) in data.iter().zip(rows) {
         let v = d.variance();
@@ -459,24 +473,7 @@ fn whitening(
             ));
         }
     }
-    let kind = match weights {
-        DecompositionWeights::Diagonal => {
-            return Ok(Weights::diagonal(
-                &data.iter().map(Resampled::error).collect::<Vec<_>>(),
-            ))
-        }
-        DecompositionWeights::Full => CovarianceKind::Full,
-        DecompositionWeights::Shrinkage => CovarianceKind::Shrinkage {
-            target: ShrinkageTarget::Diagonal,
-            intensity: None,
-        },
-    };
-    let opts = CovarianceOptions {
-        kind,
-        eigen_cut: None,
-    };
-    let cov = covariance::estimate(data, &opts).map_err(|e| e.to_string())?;
-    Weights::from_covariance(&cov.matrix).map_err(|e| {
+    weights.weights(data).map_err(|e| {
         format!(
             "{e} ({} stacked parts, {} samples); use diagonal or shrinkage weights",
             data.len(),

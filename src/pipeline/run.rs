@@ -7,11 +7,12 @@
 //! Progress goes through the small [`Observer`] hooks, so the library never prints.
 
 use super::plan::Plan;
-use super::spec::{EnergySource, ResamplingMethod, Stage};
+use super::spec::{ResamplingMethod, Stage};
 use crate::data::{CurrentKind, Momentum, ThreePointData, TwoPointData};
-use crate::kinematics::{self, ChannelValue, Energies, FormFactor, KinematicSetup, ShellResult};
+use crate::kinematics::{self, ChannelValue, FormFactor, KinematicSetup, ShellResult};
+use crate::kinematics::{renormalize, Renormalized, ZFactors};
 use crate::q2::{self, Q2Fit, Q2Model, Q2Point, Q2Units};
-use crate::ratio::{self, ChannelKey, ChannelResult, Estimator, Renormalized, TwoPointStates};
+use crate::ratio::{self, ChannelKey, ChannelResult, Estimator, TwoPointStates};
 use crate::resample::binning::{bin_threept, bin_twopt};
 use crate::resample::{ResamplePlan, Resampled};
 use crate::spectrum::{self, SpectrumResult};
@@ -84,8 +85,9 @@ pub struct DerivedRow {
     pub quantity: String,
     /// The value, per resample.
     pub value: Resampled,
-    /// Total error: statistical, and for `G(0)` the renormalization error in quadrature.
-    pub error: f64,
+    /// Total error: statistical, and for `G(0)` the renormalization error in quadrature
+    /// (`value.error()` is the statistical part alone).
+    pub error_total: f64,
     /// Unit of the value.
     pub unit: String,
 }
@@ -181,7 +183,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         timings: Vec::new(),
         warnings: Vec::new(),
     };
-    let final_method = spec.excited_states.fits.final_method;
+    let final_method = spec.excited_states.final_method;
     let mut results = RunResults {
         data: None,
         spectrum: None,
@@ -195,13 +197,16 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         started: std::time::SystemTime::now(),
         run_dir: None,
     };
-    let (two, three, rplan, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+    let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+    let Prepared {
+        two,
+        three,
+        plan: rplan,
+    } = prepared;
 
     results.data = Some(summary);
     if plan.runs(Stage::Spectrum) {
-        let sp = rec.stage("spectrum", |_| {
-            spectrum::run(&two, &rplan, &spec.spectrum.fits)
-        })?;
+        let sp = rec.stage("spectrum", |_| spectrum::run(&two, &rplan, &spec.spectrum))?;
         for w in &sp.warnings {
             rec.warn(format!("spectrum: {w}"));
         }
@@ -214,7 +219,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
             .ok_or_else(|| Error::analysis("ratio", "the ratio needs the spectrum stage"))?;
         let states = two_point_states(sp);
         let channels = rec.stage("ratio", |_| {
-            ratio::analyse_all(&three, &two, &rplan, &states, &spec.excited_states.fits)
+            ratio::analyse_all(&three, &two, &rplan, &states, &spec.excited_states)
         })?;
         for (key, c) in &channels {
             for n in &c.notes {
@@ -244,9 +249,14 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     Ok(results)
 }
 
-type Resampled4 = (TwoPointData, ThreePointData, ResamplePlan, DataSummary);
+/// The binned data and the one resample plan every later stage uses.
+struct Prepared {
+    two: TwoPointData,
+    three: ThreePointData,
+    plan: ResamplePlan,
+}
 
-fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<Resampled4> {
+fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataSummary)> {
     let spec = &plan.spec;
     let (two, three, notes) = super::read_data(plan)?;
     super::check_data_rules(plan, &two, &three)?;
@@ -276,7 +286,12 @@ fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<Resampled4> {
         n_threept_channels: three.channels.len(),
         notes,
     };
-    Ok((two, three, rplan, summary))
+    let prepared = Prepared {
+        two,
+        three,
+        plan: rplan,
+    };
+    Ok((prepared, summary))
 }
 
 /// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,
@@ -347,21 +362,18 @@ fn decompose_all(
         )
     })?;
     let d = &spec.decomposition;
+    let fitted = sp
+        .per_momentum
+        .iter()
+        .map(|(p, m)| (*p, m.ground_energy().clone()))
+        .collect();
     let setup = KinematicSetup {
         hadron: spec.ensemble.hadron,
         l: spec.ensemble.l as usize,
-        twist_sink: d.twist,
-        twist_source: d.twist,
+        twist_sink: spec.ensemble.twist,
+        twist_source: spec.ensemble.twist,
         mass,
-        energies: match d.energies {
-            EnergySource::Fit => Energies::Fitted(
-                sp.per_momentum
-                    .iter()
-                    .map(|(p, m)| (*p, m.ground_energy().clone()))
-                    .collect(),
-            ),
-            EnergySource::Dispersion => Energies::Dispersion(d.dispersion),
-        },
+        energies: d.energies.energies(fitted),
         spacing_fm: Some(spec.ensemble.spacing_fm),
     };
     let mut rows = Vec::new();
@@ -370,7 +382,7 @@ fn decompose_all(
             rec.warn(format!("decomposition {method}: no channel has a value"));
             continue;
         }
-        let dec = kinematics::decompose(&values, &setup, &d.solve)?;
+        let dec = kinematics::decompose(&values, &setup, d)?;
         for s in &dec.skipped {
             rec.warn(format!(
                 "decomposition {method}: shell {} ({:?}) skipped: {}",
@@ -384,7 +396,7 @@ fn decompose_all(
     Ok(rows)
 }
 
-fn shell_rows(method: Estimator, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<FormFactorRow> {
+fn shell_rows(method: Estimator, shell: &ShellResult, z: &ZFactors) -> Vec<FormFactorRow> {
     shell
         .form_factors
         .iter()
@@ -395,7 +407,7 @@ fn shell_rows(method: Estimator, shell: &ShellResult, z: &ratio::ZFactors) -> Ve
             shell: shell.label.clone(),
             q2: shell.q2.clone(),
             q2_gev2: shell.q2_gev2.clone(),
-            value: ratio::renorm::renormalize(v, z.get(shell.kind)),
+            value: renormalize(v, z.get(shell.kind)),
             n_channels: shell.n_channels,
             chi2_dof: shell.chi2_dof,
         })
@@ -453,7 +465,7 @@ fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2Fit
                             fit.n_failed
                         ));
                     }
-                    let z = spec.renormalization.get(kind_of(rows, ff));
+                    let z = spec.renormalization.get(ff.current_kind());
                     out.push(Q2FitResult {
                         method,
                         form_factor: ff,
@@ -476,7 +488,7 @@ fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
         method: f.method,
         model: f.model.clone(),
         quantity,
-        error: value.error().hypot(value.central * z_rel),
+        error_total: value.error().hypot(value.central * z_rel),
         value,
         unit: unit.to_string(),
     };
@@ -494,10 +506,4 @@ fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
         out.push(row(format!("r_{ff}"), r, 0.0, "fm"));
     }
     out
-}
-
-fn kind_of(rows: &[FormFactorRow], ff: FormFactor) -> CurrentKind {
-    rows.iter()
-        .find(|r| r.form_factor == ff)
-        .map_or(CurrentKind::Vector, |r| r.kind)
 }

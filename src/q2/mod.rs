@@ -1,5 +1,5 @@
 //! Q² dependence of form factors: dipole and z-expansion fits per resample, and the derived
-//! radii, moments and charges (methods.md §6).
+//! radii, moments and charges (docs/methods.md §6).
 //!
 //! Why it exists: the decomposition gives form factors at a handful of Q² shells; the physics
 //! lives in their value and slope at `Q² = 0`. Two shapes are fitted, each on the central
@@ -18,14 +18,15 @@ mod shapes;
 
 pub use shapes::{dz_dq2, t0_optimal, z, Shape, ZExpansion};
 
-use crate::fit::{nonlinear, FitReport, FitSettings, Model, Prior, Weights};
+use crate::fit::{nonlinear, FitReport, FitSettings, Model, Prior, Weighting, Weights};
 use crate::kinematics::HBARC_GEV_FM;
-use crate::resample::covariance::{self, CovarianceKind, CovarianceOptions, ShrinkageTarget};
 use crate::resample::Resampled;
 use crate::{Error, Result};
 use nalgebra::DMatrix;
 use rayon::prelude::*;
-use serde::{Deserialize, Serialize};
+use serde::de::{self, EnumAccess, MapAccess, VariantAccess, Visitor};
+use serde::{Deserialize, Deserializer, Serialize};
+use std::fmt;
 
 /// Which shape to fit, with its options.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
@@ -93,7 +94,7 @@ impl TCut {
 }
 
 /// Choice of `t0` in the z-expansion.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum T0 {
     /// `t0 = 0`, so that `z(0) = 0`.
@@ -105,22 +106,57 @@ pub enum T0 {
     Value(f64),
 }
 
-/// Weights of the Q² fit.
-#[derive(
-    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
-)]
-#[serde(rename_all = "lowercase")]
-pub enum Q2Weights {
-    /// Inverse variances of the form factor at each Q².
-    #[default]
-    Diagonal,
-    /// Full covariance of the form factors across Q² (from the resamples).
-    Full,
-    /// The covariance shrunk toward its diagonal with the Ledoit–Wolf intensity.
-    Shrinkage,
+const T0_NAMES: &[&str] = &["zero", "optimal", "value"];
+
+/// Read in every form a user writes: `zero`, `optimal`, a one-key map `{value: 0.1}` (the
+/// form of the JSON Schema) or a YAML tag `!value 0.1` (the form serde_yaml_ng writes).
+impl<'de> Deserialize<'de> for T0 {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> std::result::Result<Self, D::Error> {
+        struct Visit;
+        impl<'de> Visitor<'de> for Visit {
+            type Value = T0;
+
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("`zero`, `optimal` or `{value: <t0>}`")
+            }
+
+            fn visit_str<E: de::Error>(self, s: &str) -> std::result::Result<T0, E> {
+                match s {
+                    "zero" => Ok(T0::Zero),
+                    "optimal" => Ok(T0::Optimal),
+                    other => Err(E::unknown_variant(other, T0_NAMES)),
+                }
+            }
+
+            fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> std::result::Result<T0, A::Error> {
+                let Some(key) = map.next_key::<String>()? else {
+                    return Err(de::Error::invalid_length(0, &self));
+                };
+                let value = match key.as_str() {
+                    "value" => T0::Value(map.next_value()?),
+                    other => return Err(de::Error::unknown_variant(other, T0_NAMES)),
+                };
+                if map.next_key::<de::IgnoredAny>()?.is_some() {
+                    return Err(de::Error::invalid_length(2, &self));
+                }
+                Ok(value)
+            }
+
+            fn visit_enum<A: EnumAccess<'de>>(self, data: A) -> std::result::Result<T0, A::Error> {
+                let (name, variant): (String, _) = data.variant()?;
+                match name.as_str() {
+                    "zero" => variant.unit_variant().map(|()| T0::Zero),
+                    "optimal" => variant.unit_variant().map(|()| T0::Optimal),
+                    "value" => variant.newtype_variant().map(T0::Value),
+                    other => Err(de::Error::unknown_variant(other, T0_NAMES)),
+                }
+            }
+        }
+        deserializer.deserialize_any(Visit)
+    }
 }
 
-/// Settings of one Q² fit. Unknown keys are rejected by the flattened [`Q2Model`].
+/// Settings of one Q² fit: the shape (`model` and its keys) and how it is fitted.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct Q2FitSettings {
     /// The shape.
@@ -128,7 +164,7 @@ pub struct Q2FitSettings {
     pub model: Q2Model,
     /// Weights.
     #[serde(default)]
-    pub weights: Q2Weights,
+    pub weights: Weighting,
     /// Fit only points with central Q² at most this (units of the fitted Q²).
     #[serde(default)]
     pub q2_max: Option<f64>,
@@ -410,7 +446,7 @@ fn build_shape(model: &Q2Model, q2_max: f64) -> Result<Shape> {
     }
 }
 
-fn weights(points: &[&Q2Point], choice: Q2Weights) -> Result<Weights> {
+fn weights(points: &[&Q2Point], choice: Weighting) -> Result<Weights> {
     let errors: Vec<f64> = points.iter().map(|p| p.value.error()).collect();
     if let Some((i, e)) = errors
         .iter()
@@ -422,23 +458,8 @@ fn weights(points: &[&Q2Point], choice: Q2Weights) -> Result<Weights> {
             points[i].q2.central
         )));
     }
-    let kind = match choice {
-        Q2Weights::Diagonal => return Ok(Weights::diagonal(&errors)),
-        Q2Weights::Full => CovarianceKind::Full,
-        Q2Weights::Shrinkage => CovarianceKind::Shrinkage {
-            target: ShrinkageTarget::Diagonal,
-            intensity: None,
-        },
-    };
     let values: Vec<Resampled> = points.iter().map(|p| p.value.clone()).collect();
-    let cov = covariance::estimate(
-        &values,
-        &CovarianceOptions {
-            kind,
-            eigen_cut: None,
-        },
-    )?;
-    Weights::from_covariance(&cov.matrix)
+    choice.weights(&values)
 }
 
 /// Starting values: the dipole from the lowest and highest Q² points, the z-expansion from

@@ -1,4 +1,4 @@
-//! The Q² shapes: dipole and z-expansion, with analytic gradients (methods.md §6).
+//! The Q² shapes: dipole and z-expansion, with analytic gradients (docs/methods.md §6).
 //!
 //! They live apart from the fit driver in [`super`] so that the solver sees only a
 //! parameter vector, values and a gradient. The dipole `G(0) (1 + Q²/M²)^-n` is the

@@ -1,4 +1,4 @@
-//! Cross-check of the excited-state methods (methods.md §4): the plateau at every `tsep`, the
+//! Cross-check of the excited-state methods (docs/methods.md §4): the plateau at every `tsep`, the
 //! summation slope and the two-state `M` side by side. Each difference is divided by its own
 //! error, computed from the resamples of the difference: the estimates come from the same
 //! data and are correlated, so adding their errors in quadrature would overstate the error

@@ -1,5 +1,5 @@
 //! Model averaging over fit windows and numbers of states (Jay & Neil, Phys. Rev. D 103
-//! (2021) 114502; methods.md §2). Fit `i` (k_i parameters, N_cut,i points dropped from the
+//! (2021) 114502; docs/methods.md §2). Fit `i` (k_i parameters, N_cut,i points dropped from the
 //! widest window) gets the weight `w_i ∝ exp(-(chi2_i + 2 k_i + 2 N_cut,i) / 2)`, computed from
 //! the central fits and normalised to one. The averaged value is `sum w_i mu_i` and its
 //! variance `sum w_i sigma_i^2 + sum w_i mu_i^2 - (sum w_i mu_i)^2`.

@@ -1,4 +1,4 @@
-//! Two-point spectroscopy (methods.md §2): energies and overlaps at every momentum from
+//! Two-point spectroscopy (docs/methods.md §2): energies and overlaps at every momentum from
 //! correlated multi-exponential fits with Gaussian priors (Lepage et al., Nucl. Phys. Proc.
 //! Suppl. 106 (2002) 12), the fit window chosen by model averaging (Jay & Neil, Phys. Rev. D
 //! 103 (2021) 114502), effective masses, the dispersion check and the variational method
@@ -49,7 +49,7 @@ mod window;
 
 pub use average::{AverageRow, ModelAverage};
 pub use dispersion::DispersionRow;
-pub use settings::{EnergySource, GevpSettings, IntRange, PriorSettings, SpectrumSettings};
+pub use settings::{GevpSettings, IntRange, PriorSettings, SpectrumSettings};
 pub use window::WindowFit;
 
 use crate::data::{Momentum, TwoPointData};
@@ -57,7 +57,7 @@ use crate::error::{Error, Result};
 use crate::fit::Weights;
 use crate::resample::{covariance, ResamplePlan, Resampled};
 use effective::{effective_mass, EffectiveMassKind};
-use model::{Form, MAX_STATES};
+use model::Form;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use window::{fit_window, WindowSpec};
@@ -142,19 +142,8 @@ fn label(p: Momentum) -> String {
 }
 
 fn check_settings(s: &SpectrumSettings) -> Result<()> {
-    if s.t_min.from > s.t_min.to {
-        return Err(Error::config(format!(
-            "spectrum.t_min: from {} is after to {}",
-            s.t_min.from, s.t_min.to
-        )));
-    }
-    if s.n_states.from < 1 || s.n_states.to > MAX_STATES || s.n_states.from > s.n_states.to {
-        return Err(Error::config(format!(
-            "spectrum.n_states: {}..={} is not within 1..={MAX_STATES}",
-            s.n_states.from, s.n_states.to
-        )));
-    }
-    Ok(())
+    s.validate()
+        .map_err(|e| Error::config(format!("spectrum.{}: {}", e.key, e.message)))
 }
 
 /// The correlator channel per momentum, honouring `settings.smear`.
@@ -408,21 +397,11 @@ pub fn run(
     let mut dispersion = Vec::new();
     match (settings.l_extent, &mass) {
         (Some(l), Some(m)) => {
-            for (p, s) in per_momentum.iter_mut().filter(|(p, _)| **p != [0, 0, 0]) {
-                let pl = dispersion::lattice_momentum(*p, l as f64, settings.twist);
-                let row = dispersion::check(*p, pl, &s.energies[0], m);
-                match settings.energies {
-                    EnergySource::Fitted => {}
-                    EnergySource::ContinuumDispersion => s.energies[0] = row.continuum.clone(),
-                    EnergySource::LatticeDispersion => s.energies[0] = row.lattice.clone(),
-                }
-                dispersion.push(row);
+            for (p, s) in per_momentum.iter().filter(|(p, _)| **p != [0, 0, 0]) {
+                let pl =
+                    crate::kinematics::lattice_momentum(*p, l, settings.twist.unwrap_or_default());
+                dispersion.push(dispersion::check(*p, pl, &s.energies[0], m));
             }
-        }
-        _ if settings.energies != EnergySource::Fitted => {
-            return Err(Error::config(
-                "spectrum.energies: dispersion energies need `l_extent` and data at momentum (0,0,0)",
-            ));
         }
         (None, _) => warnings.push("no dispersion check: `l_extent` (L) is not set".into()),
         (_, None) => warnings.push("no dispersion check: no data at momentum (0,0,0)".into()),

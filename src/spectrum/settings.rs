@@ -1,7 +1,9 @@
 //! Settings of the spectrum stage (the `spectrum:` block of a pipeline file).
 
+use super::model::MAX_STATES;
 use crate::fit::{FitSettings, Prior};
 use crate::resample::covariance::CovarianceOptions;
+use crate::Invalid;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
@@ -47,19 +49,6 @@ impl Default for PriorSettings {
     }
 }
 
-/// Where the energies passed to later stages come from at non-zero momentum.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "snake_case")]
-pub enum EnergySource {
-    /// The fitted energies at every momentum.
-    #[default]
-    Fitted,
-    /// `E = sqrt(m^2 + p^2)` from the fitted mass.
-    ContinuumDispersion,
-    /// `sinh^2(E/2) = sinh^2(m/2) + sum sin^2(p_i/2)` from the fitted mass.
-    LatticeDispersion,
-}
-
 /// Variational (GEVP) analysis of a correlator matrix.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -88,21 +77,27 @@ pub struct SpectrumSettings {
     pub covariance: CovarianceOptions,
     /// Symmetric periodic form `A (e^{-Et} + e^{-E(T-t)})` (mesons with periodic time).
     pub periodic: bool,
-    /// Time extent `T`; default: the number of time slices in the data.
+    /// Time extent `T`; default: the number of time slices in the data. Not a key of the
+    /// pipeline file: the pipeline sets it from `ensemble.T`.
+    #[serde(skip)]
+    #[schemars(skip)]
     pub t_extent: Option<usize>,
     /// Spatial extent `L` (needed for momenta in lattice units and the dispersion check).
+    /// Not a key of the pipeline file: the pipeline sets it from `ensemble.L`.
+    #[serde(skip)]
+    #[schemars(skip)]
     pub l_extent: Option<usize>,
-    /// Twist angles `theta` (radians): `p = (2 pi n + theta) / L`.
+    /// Twist angles `theta` (radians): `p = (2 pi n + theta) / L`. Not a key of the
+    /// pipeline file: the pipeline sets it from `ensemble.twist`.
+    #[serde(skip)]
+    #[schemars(skip)]
     pub twist: Option<[f64; 3]>,
     /// Interpolator label (`smear` column) to fit when the data have several.
     pub smear: Option<String>,
-    /// Energies handed to later stages.
-    pub energies: EnergySource,
     /// Variational analysis of correlator matrices (channels with `smear` labels `a-b`).
     pub gevp: Option<GevpSettings>,
     /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
-    /// error, and about half the iterations of the machine-precision defaults of
-    /// [`FitSettings`]).
+    /// error, and about half the iterations of machine-precision tolerances).
     pub fit: FitSettings,
 }
 
@@ -119,7 +114,6 @@ impl Default for SpectrumSettings {
             l_extent: None,
             twist: None,
             smear: None,
-            energies: EnergySource::Fitted,
             gevp: None,
             fit: FitSettings {
                 ftol: 1e-10,
@@ -128,5 +122,42 @@ impl Default for SpectrumSettings {
                 ..FitSettings::default()
             },
         }
+    }
+}
+
+impl SpectrumSettings {
+    /// Check the ranges that need nothing but these settings.
+    pub fn validate(&self) -> Result<(), Invalid> {
+        let (t_min, n) = (self.t_min, self.n_states);
+        if t_min.from > t_min.to {
+            return Err(Invalid::new(
+                "t_min",
+                format!(
+                    "from {} is after to {}: expected from <= to",
+                    t_min.from, t_min.to
+                ),
+            ));
+        }
+        if let Some(t_max) = self.t_max {
+            if t_min.to >= t_max {
+                return Err(Invalid::new(
+                    "t_max",
+                    format!(
+                        "t_max = {t_max} must be above the largest t_min ({})",
+                        t_min.to
+                    ),
+                ));
+            }
+        }
+        if n.from < 1 || n.to > MAX_STATES || n.from > n.to {
+            return Err(Invalid::new(
+                "n_states",
+                format!(
+                    "{}..={} is not valid: expected a range within 1..={MAX_STATES}",
+                    n.from, n.to
+                ),
+            ));
+        }
+        Ok(())
     }
 }

@@ -1,5 +1,5 @@
 //! One fit window `[t_min, t_max]` with a given number of states, fitted on the central value
-//! and on every resample with one frozen covariance (methods.md §2: the covariance is
+//! and on every resample with one frozen covariance (docs/methods.md §2: the covariance is
 //! estimated once from the resamples and held fixed for every resample's fit; common
 //! practice). Starting values come from the effective mass at `t_min`; every resample starts
 //! from the central fit. Resamples are fitted in parallel and collected in order, so the

@@ -7,9 +7,9 @@
 
 use super::tables::{summary_table, TableName, Tables};
 use crate::kinematics::Hadron;
+use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
-use crate::pipeline::Plan;
 use crate::ratio::Flag;
 use crate::report::{Block, Cell, Report, Section};
 

@@ -20,7 +20,7 @@ pub fn terminal_summary(results: &RunResults) -> String {
                 Cell::from(d.method.to_string()),
                 Cell::from(d.model.as_str()),
                 Cell::from(d.quantity.as_str()),
-                Cell::Text(value_error(d.value.central, d.error)),
+                Cell::Text(value_error(d.value.central, d.error_total)),
                 Cell::from(d.unit.as_str()),
             ]);
         }

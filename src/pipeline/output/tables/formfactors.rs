@@ -2,7 +2,7 @@
 //! derived from the Q² fits; their per-resample values; and the compact summary (Q² by
 //! estimator) shown on the terminal and at the top of the report.
 
-use super::{float, opt};
+use super::cells::{float, opt};
 use crate::pipeline::run::{FormFactorRow, RunResults};
 use crate::ratio::Estimator;
 use crate::report::{samples_table, value_error, Cell, Table};
@@ -60,7 +60,7 @@ pub(super) fn derived(name: &str, results: &RunResults) -> Result<Table> {
             Cell::from(d.model.as_str()),
             Cell::from(d.quantity.as_str()),
             float(d.value.central),
-            float(d.error),
+            float(d.error_total),
             Cell::from(d.unit.as_str()),
         ])?;
     }

@@ -7,12 +7,13 @@
 //! stage it shows, and call it from [`TableName::build`]. It is then written as CSV and JSON
 //! and available to the page through [`Tables::get`].
 
+mod cells;
 mod formfactors;
 mod ratio;
 mod spectrum;
 
-use super::super::run::RunResults;
-use crate::report::{table::write_table_files, Cell, Table};
+use crate::pipeline::run::RunResults;
+use crate::report::{table::write_table_files, Table};
 use crate::Result;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -108,12 +109,4 @@ impl Tables {
     pub fn write(&self, dir: &Path) -> Result<()> {
         self.0.values().try_for_each(|t| write_table_files(t, dir))
     }
-}
-
-fn float(x: f64) -> Cell {
-    Cell::Float(x)
-}
-
-fn opt(x: Option<f64>) -> Cell {
-    Cell::Float(x.unwrap_or(f64::NAN))
 }

@@ -1,7 +1,7 @@
 //! The ratio-stage tables: the bare matrix element per channel and estimator, and the
 //! cross-check of every pair of estimators.
 
-use super::float;
+use super::cells::float;
 use crate::data::CHANNEL_COLUMNS;
 use crate::pipeline::run::RunResults;
 use crate::ratio::{ChannelKey, FitQuality};
