@@ -34,6 +34,11 @@ pub enum Command {
     /// Summarise a data directory or a correlator table, with warnings.
     #[command(after_help = "Example:\n  formfactory inspect demo-data/nucleon")]
     Inspect(InspectArgs),
+    /// Campaigns: many ensembles and variants, run locally or on Slurm, combined.
+    #[command(
+        after_help = "Example:\n  formfactory campaign run pipelines/campaign-demo.yaml && formfactory campaign combine pipelines/campaign-demo.yaml --force"
+    )]
+    Campaign(crate::campaign::command::CampaignArgs),
     /// Print the JSON Schema of the pipeline file.
     #[command(after_help = "Example:\n  formfactory schema > schemas/pipeline.schema.json")]
     Schema,
@@ -84,6 +89,9 @@ pub struct MockArgs {
     /// Output directory for twopt.csv, threept.csv and truth.yaml.
     #[arg(long)]
     pub out: PathBuf,
+    /// Replace an existing mock ensemble in the output directory.
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Arguments of `inspect`.
@@ -105,16 +113,45 @@ pub fn main() -> ExitCode {
     let cli = Cli::parse();
     match dispatch(cli) {
         Ok(()) => ExitCode::SUCCESS,
+        Err(e) if is_broken_pipe(&e) => ExitCode::from(BROKEN_PIPE_STATUS),
         Err(e) => {
-            eprintln!("error: {e}");
-            let mut source = std::error::Error::source(&e);
-            while let Some(s) = source {
-                eprintln!("  caused by: {s}");
-                source = s.source();
-            }
+            eprintln!("error: {}", crate::error::printable(&error_text(&e)));
             ExitCode::FAILURE
         }
     }
+}
+
+/// The exit status after the reader of standard output went away: what a shell reports for
+/// a process ended by SIGPIPE (128 + 13), without a message.
+const BROKEN_PIPE_STATUS: u8 = 141;
+
+fn is_broken_pipe(e: &crate::Error) -> bool {
+    matches!(e, crate::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe)
+}
+
+/// The message of `e` followed by each cause that it does not already quote, so a cause is
+/// printed once.
+fn error_text(e: &crate::Error) -> String {
+    let mut text = e.to_string();
+    let mut source = std::error::Error::source(e);
+    while let Some(s) = source {
+        let cause = s.to_string();
+        if !text.contains(&cause) {
+            text.push_str(&format!("\n  caused by: {cause}"));
+        }
+        source = s.source();
+    }
+    text
+}
+
+/// Write `text` to standard output; a closed pipe or a full disk becomes an error instead of
+/// a panic.
+fn emit(text: &str) -> crate::Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    out.write_all(text.as_bytes())
+        .and_then(|()| out.flush())
+        .map_err(|e| crate::Error::io("<standard output>", e))
 }
 
 fn dispatch(cli: Cli) -> crate::Result<()> {
@@ -123,15 +160,12 @@ fn dispatch(cli: Cli) -> crate::Result<()> {
         Command::Check(a) => check(a),
         Command::Mock(a) => mock(a),
         Command::Inspect(a) => inspect(a),
+        Command::Campaign(a) => crate::campaign::command::dispatch(a),
         Command::Schema => schema(),
         Command::Completions(a) => {
-            clap_complete::generate(
-                a.shell,
-                &mut Cli::command(),
-                "formfactory",
-                &mut std::io::stdout(),
-            );
-            Ok(())
+            let mut buf = Vec::new();
+            clap_complete::generate(a.shell, &mut Cli::command(), "formfactory", &mut buf);
+            emit(&String::from_utf8_lossy(&buf))
         }
     }
 }
@@ -151,30 +185,26 @@ fn run(a: RunArgs) -> crate::Result<()> {
     let progress = crate::pipeline::progress::Progress::new(a.quiet);
     let results = crate::pipeline::run(&plan, &progress)?;
     if !a.quiet {
-        print!("{}", crate::pipeline::output::terminal_summary(&results));
+        emit(&crate::pipeline::output::terminal_summary(&results))?;
     }
     Ok(())
 }
 
 fn check(a: CheckArgs) -> crate::Result<()> {
     let summary = crate::pipeline::check(&a.pipeline, &a.set)?;
-    println!("{}", summary.trim_end());
-    Ok(())
+    emit(&format!("{}\n", summary.trim_end()))
 }
 
 fn mock(a: MockArgs) -> crate::Result<()> {
-    let summary = crate::mock::generate_from_file(&a.spec, &a.out)?;
-    println!("{summary}");
-    Ok(())
+    let summary = crate::mock::generate_from_file(&a.spec, &a.out, a.force)?;
+    emit(&format!("{summary}\n"))
 }
 
 fn inspect(a: InspectArgs) -> crate::Result<()> {
     let report = crate::io::inspect::inspect(&a.path)?;
-    print!("{report}");
-    Ok(())
+    emit(&report)
 }
 
 fn schema() -> crate::Result<()> {
-    print!("{}", crate::pipeline::schema_json());
-    Ok(())
+    emit(&crate::pipeline::schema_json())
 }

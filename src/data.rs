@@ -15,6 +15,19 @@ use std::fmt;
 /// An integer lattice momentum in units of `2 pi / L`.
 pub type Momentum = [i32; 3];
 
+/// The columns that name a three-point channel (without `tsep`) in every table that lists
+/// channels: the exchange format's three-point table and the ratio-stage outputs.
+pub const CHANNEL_COLUMNS: [&str; 8] = [
+    "pfx",
+    "pfy",
+    "pfz",
+    "qx",
+    "qy",
+    "qz",
+    "current",
+    "projector",
+];
+
 /// Squared length of an integer momentum.
 pub fn norm2(p: Momentum) -> i32 {
     p[0] * p[0] + p[1] * p[1] + p[2] * p[2]

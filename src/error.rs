@@ -103,3 +103,79 @@ impl Error {
         }
     }
 }
+
+/// Longest line of an error message printed whole; longer lines are cut in the middle.
+const MAX_LINE_CHARS: usize = 400;
+
+/// `message` made fit for a terminal: control characters (other than newlines and tabs)
+/// shown as escapes, and each line longer than a few hundred characters shortened, so a
+/// field of binary garbage or of 50 MB is never echoed whole.
+pub fn printable(message: &str) -> String {
+    message
+        .split('\n')
+        .map(|line| {
+            let clean: String = line
+                .chars()
+                .flat_map(|c| -> Vec<char> {
+                    if c.is_control() && c != '\t' {
+                        c.escape_default().collect()
+                    } else {
+                        vec![c]
+                    }
+                })
+                .collect();
+            shorten(&clean, MAX_LINE_CHARS)
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+/// `text` with at most about `max` characters: its start and end with the number of
+/// characters left out between them.
+pub fn shorten(text: &str, max: usize) -> String {
+    let n = text.chars().count();
+    if n <= max {
+        return text.to_string();
+    }
+    let keep = max / 2;
+    let head: String = text.chars().take(keep).collect();
+    let tail: String = text.chars().skip(n - keep / 2).collect();
+    format!(
+        "{head}[... {} characters left out ...]{tail}",
+        n - keep - keep / 2
+    )
+}
+
+/// A field's raw bytes for a message: invalid UTF-8 and control characters escaped, at most
+/// about 60 characters.
+pub fn excerpt(raw: &[u8]) -> String {
+    const MAX: usize = 60;
+    // Only the bytes that can be shown are converted, whatever the field's size.
+    let cut = &raw[..raw.len().min(4 * MAX)];
+    let text: String = cut.escape_ascii().to_string();
+    let shown = shorten(&text, MAX);
+    if raw.len() > cut.len() {
+        format!("{shown}[... {} bytes in all]", raw.len())
+    } else {
+        shown
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn long_and_binary_text_is_shortened_and_escaped() {
+        let long = "x".repeat(10_000);
+        let p = printable(&format!("error: {long}\nnext\u{7}"));
+        assert!(p.len() < 600, "{}", p.len());
+        assert!(
+            p.contains("characters left out") && p.ends_with("next\\u{7}"),
+            "{p}"
+        );
+        let e = excerpt(&[0xff; 1_000_000]);
+        assert!(e.len() < 200 && e.contains("1000000 bytes in all"), "{e}");
+        assert_eq!(excerpt(b"1.5e"), "1.5e");
+    }
+}

@@ -25,6 +25,8 @@
 //! Conventions (Euclidean gamma matrices, projectors, signs of the kinematic factors, units)
 //! are stated once in DEVELOPERS.md and in [`kinematics`].
 
+pub mod budget;
+pub mod campaign;
 pub mod cli;
 pub mod data;
 pub mod error;

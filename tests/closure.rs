@@ -22,11 +22,9 @@ use formfactory::kinematics::{
 };
 use formfactory::mock::{generate, FormFactorModel, MockSpec, Truth};
 use formfactory::q2::{fit, Q2Fit, Q2FitSettings, Q2Model, Q2Point, Q2Units, Q2Weights};
-use formfactory::ratio::crosscheck::Method;
+use formfactory::ratio::Estimator;
 use formfactory::ratio::Flag;
-use formfactory::ratio::{
-    analyse_all, ChannelKey, ChannelResult, FinalMethod, RatioSettings, TwoPointStates,
-};
+use formfactory::ratio::{analyse_all, ChannelKey, ChannelResult, RatioSettings, TwoPointStates};
 use formfactory::resample::binning::{bin_threept, bin_twopt};
 use formfactory::resample::covariance::{CovarianceKind, CovarianceOptions};
 use formfactory::resample::{ResamplePlan, Resampled};
@@ -409,7 +407,7 @@ fn ratio_closure_with_strong_contamination() {
             .crosscheck
             .iter()
             .find(|row| {
-                row.method == Method::Plateau { tsep: 4 } && row.reference == Method::TwoState
+                row.method == Estimator::plateau_at(4) && row.reference == Estimator::TwoState
             })
             .expect("cross-check row plateau(4) vs two-state");
         println!(
@@ -526,7 +524,7 @@ fn pion_form_factor_closure() {
 fn noise_free_chain_equals_the_truth() {
     let spec = load("single_state.yaml");
     let settings = RatioSettings {
-        final_method: FinalMethod::PlateauLargestTsep,
+        final_method: Estimator::Plateau { tsep: None },
         ..RatioSettings::default()
     };
     let chain = run_chain(&spec, &spectrum_settings(&spec, 1), &settings);

@@ -520,7 +520,11 @@ fn input_is_never_overwritten() {
     std::fs::write(dir.path().join("truth.yaml"), &text).expect("write spec");
     let o = formfactory(dir.path(), &["mock", "truth.yaml", "--out", "."]);
     assert!(!o.status.success());
-    assert!(stderr(&o).contains("the spec itself"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("is the current directory"),
+        "{}",
+        stderr(&o)
+    );
     assert_eq!(
         std::fs::read_to_string(dir.path().join("truth.yaml")).expect("kept"),
         text

@@ -311,7 +311,7 @@ fn demo_runs_recover_the_mock_truth() {
         if !out.exists() {
             run_example(name, &out, &[]);
         }
-        let (share, n) = closure(&out, truth, "two-state", ff, 2.0);
+        let (share, n) = closure(&out, truth, "two_state", ff, 2.0);
         assert!(n >= 3, "{name} {ff}: only {n} shells");
         assert!(
             share >= least,
@@ -324,7 +324,7 @@ fn demo_runs_recover_the_mock_truth() {
     let f0 = read_rows(&out.join("formfactors.csv"))
         .into_iter()
         .find(|r| {
-            r["method"] == "two-state" && r["form_factor"] == "F" && num(r, "q2_lat").abs() < 1e-12
+            r["method"] == "two_state" && r["form_factor"] == "F" && num(r, "q2_lat").abs() < 1e-12
         })
         .expect("F at Q² = 0");
     assert!(
@@ -336,7 +336,7 @@ fn demo_runs_recover_the_mock_truth() {
     let ga0 = derived
         .iter()
         .find(|r| {
-            r["method"] == "two-state" && r["model"] == "z-expansion" && r["quantity"] == "GA(0)"
+            r["method"] == "two_state" && r["model"] == "z-expansion" && r["quantity"] == "GA(0)"
         })
         .expect("g_A from the z-expansion");
     // truth: a_0 of the z-expansion with t0 = 0 is G_A(0) = 1.25 (demo-data/nucleon.mock.yaml)

@@ -9,7 +9,8 @@ use approx::assert_relative_eq;
 use formfactory::data::{
     Current, Momentum, Projector, Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey,
 };
-use formfactory::ratio::crosscheck::{difference, Flag, Method};
+use formfactory::ratio::crosscheck::{difference, Flag};
+use formfactory::ratio::Estimator;
 use formfactory::ratio::{
     analyse_channel, average, build_ratios, plateau, summation, two_state, ChannelKey,
     ChannelRatio, NegativeRootPolicy, RatioSettings, TwoPointStates, TwoStateVariant,
@@ -596,7 +597,7 @@ fn closure_with_strong_contamination() {
             .crosscheck
             .iter()
             .find(|row| {
-                row.method == Method::Plateau { tsep: 4 } && row.reference == Method::TwoState
+                row.method == Estimator::plateau_at(4) && row.reference == Estimator::TwoState
             })
             .unwrap();
         let flagged = row.re.sigma > 2.0;
@@ -714,7 +715,7 @@ fn summation_with_one_separation_is_an_error() {
     assert!(msg.contains("at least two"), "{msg}");
     // The channel analysis still runs (plateau as final method), noting the skipped methods.
     let s = RatioSettings {
-        final_method: formfactory::ratio::FinalMethod::PlateauLargestTsep,
+        final_method: Estimator::Plateau { tsep: None },
         ..settings
     };
     let r = analyse_channel(ratio, &BTreeMap::new(), &s).unwrap();
@@ -902,7 +903,7 @@ fn settings_read_from_yaml_with_defaults() {
     )
     .unwrap();
     assert_eq!(s.tau_cut, 2);
-    assert_eq!(s.final_method, formfactory::ratio::FinalMethod::Summation);
+    assert_eq!(s.final_method, Estimator::Summation);
     assert_eq!(
         s.two_state,
         formfactory::ratio::TwoStateVariant::FloatingGaps {

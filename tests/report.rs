@@ -426,8 +426,14 @@ fn report_page_is_self_contained_and_escaped() {
     assert!(!html.contains("<demo>"));
 }
 
+/// A directory as a run of the tool leaves it: files and the run marker.
 fn write_tree(dir: &Path, tag: &str) {
     std::fs::create_dir_all(dir.join("plots")).unwrap();
+    std::fs::write(
+        dir.join(formfactory::report::Marker::Run.file_name()),
+        "formfactory run directory\n",
+    )
+    .unwrap();
     std::fs::write(dir.join("a.csv"), format!("x\n{tag}\n")).unwrap();
     std::fs::write(dir.join("plots/b.svg"), format!("<svg>{tag}</svg>")).unwrap();
 }

@@ -2,6 +2,8 @@
 
 mod common;
 
+mod bad_input;
+mod campaign;
 mod cli;
 mod closure;
 mod fit;

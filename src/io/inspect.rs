@@ -95,9 +95,20 @@ fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
     let name = display_name(path);
     let mut input = BufReader::new(open(path)?);
     let mut header = Vec::new();
-    input
+    // The header is read on its own to tell the table's kind; a line longer than any real
+    // header is not read whole (the reader reports it).
+    (&mut input)
+        .take(1 << 16)
         .read_until(b'\n', &mut header)
         .map_err(|e| Error::io(&name, e))?;
+    if header.is_empty() {
+        return Err(Error::Table {
+            path: name,
+            message: "the file is empty; expected a header line naming the columns of a \
+                      two- or three-point table"
+                .into(),
+        });
+    }
     let names: Vec<String> = String::from_utf8_lossy(&header)
         .trim_start_matches('\u{feff}')
         .trim_end()

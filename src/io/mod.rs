@@ -48,11 +48,13 @@
 //! CPU time (about 1.9 million rows/s, 140 MB/s) and keeps only the data model in memory.
 
 pub mod inspect;
+mod open;
 mod table;
 mod threept;
 mod twopt;
 mod write;
 
+pub use open::{not_a_regular_file, open_regular, read_text_file, MAX_SPEC_BYTES};
 pub use threept::{read_threept, read_threept_from};
 pub use twopt::{read_twopt, read_twopt_from};
 pub use write::{write_threept, write_twopt};

@@ -47,8 +47,7 @@ pub(crate) fn open(path: &Path) -> Result<Box<dyn Read>> {
     if path == Path::new("-") {
         Ok(Box::new(std::io::stdin()))
     } else {
-        let f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-        Ok(Box::new(f))
+        Ok(Box::new(super::open::open_table(path)?))
     }
 }
 
@@ -98,13 +97,14 @@ impl<R: Read> TableReader<R> {
                 file: file.clone(),
                 line: 1,
                 column: Some(i as u64 + 1),
-                field: Some(name.to_string()),
+                field: Some(crate::error::excerpt(raw)),
             };
             let Some(k) = schema.iter().position(|c| c.name == name) else {
                 return Err(Error::Data {
                     location: loc,
                     message: format!(
-                        "unknown column `{name}`; allowed columns are {}",
+                        "unknown column `{}`; allowed columns are {}",
+                        crate::error::excerpt(raw),
                         schema_list(schema)
                     ),
                 });
@@ -204,7 +204,7 @@ impl<R: Read> TableReader<R> {
             location: self.location(k, name),
             message: format!(
                 "cannot read `{}` as {expected}",
-                String::from_utf8_lossy(self.raw(k))
+                crate::error::excerpt(self.raw(k))
             ),
         }
     }
@@ -250,7 +250,7 @@ impl<R: Read> TableReader<R> {
                 location: self.location(k, schema[k].name),
                 message: format!(
                     "non-finite value `{}`; the format allows finite numbers only",
-                    String::from_utf8_lossy(raw)
+                    crate::error::excerpt(raw)
                 ),
             });
         }

@@ -183,7 +183,8 @@ fn channel_id<R: Read>(
     let current = Current::parse(name).ok_or_else(|| Error::Data {
         location: rd.location(CURRENT, "current"),
         message: format!(
-            "unknown current `{name}`; expected one of {}",
+            "unknown current `{}`; expected one of {}",
+            crate::error::excerpt(name.as_bytes()),
             current_names()
         ),
     })?;
@@ -191,7 +192,8 @@ fn channel_id<R: Read>(
     let projector = Projector::parse(name).ok_or_else(|| Error::Data {
         location: rd.location(PROJECTOR, "projector"),
         message: format!(
-            "unknown projector `{name}`; expected one of unpol, pol1, pol2, pol3, none"
+            "unknown projector `{}`; expected one of unpol, pol1, pol2, pol3, none",
+            crate::error::excerpt(name.as_bytes())
         ),
     })?;
     let diagram = if with_diagram {
@@ -205,7 +207,7 @@ fn channel_id<R: Read>(
                     message: format!(
                         "unknown diagram `{}`; expected connected, disconnected or an \
                              empty field",
-                        String::from_utf8_lossy(other)
+                        crate::error::excerpt(other)
                     ),
                 })
             }

@@ -147,21 +147,9 @@ pub fn write_threept<W: Write>(data: &ThreePointData, w: W) -> Result<()> {
     let mut out = csv::WriterBuilder::new()
         .buffer_capacity(1 << 16)
         .from_writer(w);
-    let mut header = vec![
-        "config",
-        "tsep",
-        "tau",
-        "pfx",
-        "pfy",
-        "pfz",
-        "qx",
-        "qy",
-        "qz",
-        "current",
-        "projector",
-        "re",
-        "im",
-    ];
+    let mut header = vec!["config", "tsep", "tau"];
+    header.extend(crate::data::CHANNEL_COLUMNS);
+    header.extend(["re", "im"]);
     if with_flavor {
         header.push("flavor");
     }

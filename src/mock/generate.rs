@@ -56,6 +56,7 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
         .map(|&n| (n, levels(&spec.hadron, l, n)))
         .collect();
     let (points, planned, elements) = plan_channels(spec, &pairs, &spectrum)?;
+    check_memory(spec, momenta.len(), planned.len())?;
 
     let n_cfg = spec.ensemble.configs;
     let configs: Vec<i64> = (0..n_cfg as i64)
@@ -118,6 +119,27 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
         threept,
         truth,
     })
+}
+
+/// Refuse a spec whose series would not fit in memory: the two-point series and their unit
+/// noise (`momenta x T x configs`), the time-correlation factor (`T x T`) and the three-point
+/// series (`channels x (tsep + 1) x configs` per `tsep`), real and imaginary parts.
+fn check_memory(spec: &MockSpec, n_momenta: usize, n_planned: usize) -> Result<()> {
+    use crate::budget::product;
+    let (t, n_cfg) = (spec.ensemble.t as u64, spec.ensemble.configs as u64);
+    let mut values = product(&[n_momenta as u64, t, n_cfg, 3]).saturating_add(product(&[t, t]));
+    for &tsep in &spec.channels.tseps {
+        let n_tau = u64::from(tsep) + 1;
+        values = values.saturating_add(product(&[n_planned as u64, n_tau, n_cfg, 2]));
+        values = values.saturating_add(product(&[n_tau, n_tau]));
+    }
+    crate::budget::check(
+        &format!(
+            "mock spec: {n_cfg} configurations x T = {t} with {n_momenta} momenta and              {n_planned} three-point channels per tsep"
+        ),
+        values.saturating_mul(8),
+    )
+    .map_err(Error::config)
 }
 
 type Plan = (Vec<TruthPoint>, Vec<Planned>, Vec<TruthMatrixElement>);

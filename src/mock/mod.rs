@@ -31,70 +31,62 @@ pub use truth::{
     Truth, TruthConfigs, TruthHadron, TruthLattice, TruthLevels, TruthMatrixElement, TruthPoint,
 };
 
+use crate::report::{Marker, OutputRules, RunDir};
 use crate::{Error, Result};
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// Names of the files written by [`generate_from_file`].
 pub const OUTPUT_FILES: [&str; 3] = ["twopt.csv", "threept.csv", "truth.yaml"];
 
-/// Read a mock spec and write `twopt.csv`, `threept.csv` and `truth.yaml` into `out` (created
-/// if needed; each file written to a temporary file there and renamed into place, so a failed
-/// run leaves no half-written table); returns a one-paragraph summary for the terminal.
-pub fn generate_from_file(spec_path: &Path, out: &Path) -> Result<String> {
-    let text = std::fs::read_to_string(spec_path).map_err(|e| Error::io(spec_path, e))?;
+/// Read a mock spec and write `twopt.csv`, `threept.csv` and `truth.yaml` into the directory
+/// `out`; returns a one-paragraph summary for the terminal. The files are written into a
+/// temporary sibling directory that is moved into place only when all three are complete
+/// ([`crate::report::RunDir`] with the mock marker), so a failed run leaves no mixed ensemble.
+/// An existing `out` is replaced only with `force` and only if it is an earlier mock
+/// ensemble (or empty); a directory holding the spec is never replaced.
+pub fn generate_from_file(spec_path: &Path, out: &Path, force: bool) -> Result<String> {
+    let text = crate::io::read_text_file(spec_path, "mock spec", crate::io::MAX_SPEC_BYTES)?;
     let spec = MockSpec::from_yaml(&text, &spec_path.display().to_string())?;
-    std::fs::create_dir_all(out).map_err(|e| Error::io(out, e))?;
-    let targets: Vec<PathBuf> = OUTPUT_FILES.iter().map(|f| out.join(f)).collect();
-    refuse_to_overwrite_input(spec_path, &targets)?;
+    let rules = OutputRules {
+        force,
+        inputs: vec![spec_path.to_path_buf()],
+        marker: Marker::Mock,
+    };
+    let dir = RunDir::create_with(out, &rules)?;
     let ensemble = generate(&spec)?;
-
-    write_atomically(&targets[0], |w| crate::io::write_twopt(&ensemble.twopt, w))?;
-    write_atomically(&targets[1], |w| {
+    let target = |name: &str| dir.path().join(name);
+    write_file(&target(OUTPUT_FILES[0]), |w| {
+        crate::io::write_twopt(&ensemble.twopt, w)
+    })?;
+    write_file(&target(OUTPUT_FILES[1]), |w| {
         crate::io::write_threept(&ensemble.threept, w)
     })?;
     let truth = ensemble.truth.to_yaml()?;
-    write_atomically(&targets[2], |w| {
+    let truth_path = target(OUTPUT_FILES[2]);
+    write_file(&truth_path, |w| {
         w.write_all(truth.as_bytes())
-            .map_err(|e| Error::io(&targets[2], e))
+            .map_err(|e| Error::io(&truth_path, e))
     })?;
-    Ok(summary(&spec, &ensemble, out))
-}
-
-fn refuse_to_overwrite_input(spec_path: &Path, targets: &[PathBuf]) -> Result<()> {
-    let input = std::fs::canonicalize(spec_path).map_err(|e| Error::io(spec_path, e))?;
-    for t in targets {
-        if std::fs::canonicalize(t).is_ok_and(|t| t == input) {
-            return Err(Error::config(format!(
-                "mock: the output {} is the spec itself; choose another --out directory",
-                t.display()
-            )));
-        }
+    let notes: Vec<String> = dir.notes().to_vec();
+    dir.commit()?;
+    let mut text = summary(&spec, &ensemble, out);
+    for n in notes {
+        text.push_str(&format!("\n  note: {n}"));
     }
-    Ok(())
+    Ok(text)
 }
 
-/// Write `path` through a temporary file in the same directory, renamed into place at the end.
-fn write_atomically(
+/// Write `path` through a buffered writer, flushing at the end.
+fn write_file(
     path: &Path,
-    write: impl FnOnce(&mut std::io::BufWriter<&mut tempfile::NamedTempFile>) -> Result<()>,
+    write: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> Result<()>,
 ) -> Result<()> {
-    let dir = path.parent().unwrap_or(Path::new("."));
-    let mut tmp = tempfile::NamedTempFile::new_in(dir).map_err(|e| Error::io(dir, e))?;
-    #[cfg(unix)]
-    {
-        // Temporary files are private (0600); the tables are ordinary data files.
-        use std::os::unix::fs::PermissionsExt;
-        tmp.as_file()
-            .set_permissions(std::fs::Permissions::from_mode(0o644))
-            .map_err(|e| Error::io(path, e))?;
-    }
-    {
-        let mut w = std::io::BufWriter::new(&mut tmp);
-        write(&mut w)?;
-        w.flush().map_err(|e| Error::io(path, e))?;
-    }
-    tmp.persist(path).map_err(|e| Error::io(path, e.error))?;
+    let file = std::fs::File::create(path).map_err(|e| Error::io(path, e))?;
+    let mut w = std::io::BufWriter::new(file);
+    write(&mut w)?;
+    w.flush().map_err(|e| Error::io(path, e))?;
+    w.get_ref().sync_all().map_err(|e| Error::io(path, e))?;
     Ok(())
 }
 

@@ -100,6 +100,31 @@ pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<Strin
     Ok((ds.twopt, three, ds.notes))
 }
 
+/// Refuse settings whose resampled data would not fit in memory: one value per resample for
+/// the real and imaginary part of every data point of both tables, plus the resample plan.
+fn check_memory(plan: &Plan, two: &TwoPointData, three: &ThreePointData) -> Result<()> {
+    use crate::budget::product;
+    let r = &plan.spec.resampling;
+    let n_bins = (two.configs.len() / r.bin_size.max(1)) as u64;
+    let (n_samples, key) = match r.method {
+        spec::ResamplingMethod::Jackknife => (n_bins, "resampling.bin_size"),
+        spec::ResamplingMethod::Bootstrap => (r.samples as u64, "resampling.samples"),
+    };
+    let points: u64 = two
+        .channels
+        .values()
+        .chain(three.channels.values())
+        .map(|s| s.n_t as u64)
+        .sum();
+    let bytes =
+        product(&[n_samples, points, 2, 8]).saturating_add(product(&[n_samples, n_bins, 8]));
+    crate::budget::check(
+        &format!("{n_samples} resamples of {points} data points"),
+        bytes,
+    )
+    .map_err(|m| plan.error(key, m))
+}
+
 /// Rules that need the data: time ranges against the table, `tau_cut` against every
 /// `tsep`, one flavour per channel, and the two-point momenta every ratio divides by.
 pub(crate) fn check_data_rules(
@@ -108,7 +133,20 @@ pub(crate) fn check_data_rules(
     three: &ThreePointData,
 ) -> Result<()> {
     let spec = &plan.spec;
+    check_memory(plan, two, three)?;
     let n_t = two.channels.values().map(|s| s.n_t).min().unwrap_or(0);
+    let data_t = two.channels.values().map(|s| s.n_t).max().unwrap_or(0);
+    if data_t > 0 && spec.ensemble.t as usize != data_t {
+        return Err(plan.error(
+            "ensemble.T",
+            format!(
+                "T = {} does not match the two-point data, whose time slices run over \
+                 t = 0..{} (T = {data_t}); set ensemble.T to the lattice's time extent",
+                spec.ensemble.t,
+                data_t - 1
+            ),
+        ));
+    }
     if let Some(t_max) = spec.spectrum.fits.t_max {
         if t_max >= n_t {
             return Err(plan.error(
@@ -166,16 +204,25 @@ pub(crate) fn check_data_rules(
 }
 
 /// Run the whole analysis: check the data rules, compute every stage, write the run
-/// directory all-or-nothing (an existing one is replaced only with `plan.force`).
+/// directory all-or-nothing (an existing one is replaced only with `plan.force`). The
+/// manifest, written last, covers the whole run, the report stage included.
 pub fn run(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
-    let dir = crate::report::RunDir::create(&plan.out_dir, plan.force)?;
+    let started = std::time::SystemTime::now();
+    let inputs = [plan.source.as_path(), &plan.twopt, &plan.threept];
+    let rules = crate::report::OutputRules::run(plan.force, &inputs);
+    let dir = crate::report::RunDir::create_with(&plan.out_dir, &rules)?;
+    for note in dir.notes() {
+        observer.warning(note);
+    }
     let mut results = run::compute(plan, observer)?;
+    results.started = started;
     let start = std::time::Instant::now();
     observer.stage_started("report");
     output::write_all(plan, &mut results, dir.path())?;
     let elapsed = start.elapsed();
     observer.stage_finished("report", elapsed);
     results.timings.push(("report".into(), elapsed));
+    output::write_manifest(plan, &results, dir.path())?;
     results.run_dir = Some(dir.commit()?);
     Ok(results)
 }

@@ -3,12 +3,12 @@
 //! name looked up; an error quotes the YAML line and column of the offending key (or the
 //! `--set` argument that set it) and says what would be valid.
 
-use super::spec::{Method, PipelineSpec, ResamplingMethod, Stage};
+use super::spec::{PipelineSpec, ResamplingMethod, Stage};
 use super::yaml::{self, Positions};
 use crate::data::{Current, CurrentKind};
 use crate::kinematics::DecompositionSettings;
 use crate::kinematics::{FormFactor, Hadron};
-use crate::ratio::{FinalMethod, RatioSettings};
+use crate::ratio::{Estimator, RatioSettings};
 use crate::spectrum::SpectrumSettings;
 use crate::{Error, Result};
 use sha2::{Digest, Sha256};
@@ -62,9 +62,8 @@ impl Plan {
 /// Read, parse and validate a pipeline file with `--set` overrides; checks that the data
 /// files exist but does not read them.
 pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-    let text = String::from_utf8(bytes.clone())
-        .map_err(|_| Error::config(format!("{}: the file is not UTF-8 text", path.display())))?;
+    let text = crate::io::read_text_file(path, "pipeline file", crate::io::MAX_SPEC_BYTES)?;
+    let bytes = text.as_bytes();
     let mut positions = Positions::scan(path, &text);
     let mut value: serde_yaml_ng::Value =
         serde_yaml_ng::from_str(&text).map_err(|e| yaml::translate(&e, &positions))?;
@@ -112,7 +111,7 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     };
     let plan = Plan {
         source: path.to_path_buf(),
-        source_sha256: sha256_hex(&bytes),
+        source_sha256: sha256_hex(bytes),
         twopt: resolve(&spec.data.twopt),
         threept: resolve(&spec.data.threept),
         out_dir: resolve(&spec.output.dir),
@@ -168,15 +167,6 @@ pub fn form_factors_of(hadron: Hadron) -> Vec<FormFactor> {
     out
 }
 
-/// The excited-state method behind a final-method policy.
-pub fn method_of(f: FinalMethod) -> Method {
-    match f {
-        FinalMethod::TwoState => Method::TwoState,
-        FinalMethod::Summation => Method::Summation,
-        FinalMethod::PlateauLargestTsep => Method::Plateau,
-    }
-}
-
 fn validate(plan: &Plan) -> Result<()> {
     let s = &plan.spec;
     let err = |path: &str, msg: String| Err(plan.error(path, msg));
@@ -210,11 +200,11 @@ fn validate(plan: &Plan) -> Result<()> {
         }
     }
     for (key, p) in [("data.twopt", &plan.twopt), ("data.threept", &plan.threept)] {
-        if !p.is_file() {
+        if let Some(why) = crate::io::not_a_regular_file(p) {
             return err(
                 key,
                 format!(
-                    "the file `{}` does not exist (paths are relative to the pipeline file)",
+                    "the file `{}` {why} (paths are relative to the pipeline file)",
                     p.display()
                 ),
             );
@@ -272,7 +262,7 @@ fn validate(plan: &Plan) -> Result<()> {
             ),
         );
     }
-    if s.excited_states.methods.contains(&Method::TwoState) && sp.n_states.to < 2 {
+    if s.excited_states.methods.contains(&Estimator::TwoState) && sp.n_states.to < 2 {
         return err("spectrum.n_states", "the two-state ratio fit needs the excited-state gap: let n_states reach 2, or drop two_state from excited_states.methods".into());
     }
     if let Some(tseps) = &s.ratio.tsep {
@@ -298,16 +288,24 @@ fn validate(plan: &Plan) -> Result<()> {
     if x.methods.is_empty() {
         return err(
             "excited_states.methods",
-            "no excited-state method chosen: expected some of plateau, summation, two_state".into(),
+            format!(
+                "no excited-state method chosen: expected some of {}",
+                Estimator::VALID
+            ),
         );
     }
-    let final_method = method_of(x.fits.final_method);
-    if !x.methods.contains(&final_method) {
+    let final_method = x.fits.final_method;
+    if !x
+        .methods
+        .iter()
+        .any(|m| m.selects(final_method) || final_method.selects(*m))
+    {
+        let run: Vec<String> = x.methods.iter().map(Estimator::to_string).collect();
         return err(
             "excited_states.final_method",
             format!(
-                "the final method `{:?}` is not among the methods run ({:?})",
-                x.fits.final_method, x.methods
+                "the final method `{final_method}` is not among the methods run ({})",
+                run.join(", ")
             ),
         );
     }

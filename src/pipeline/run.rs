@@ -6,12 +6,12 @@
 //!
 //! Progress goes through the small [`Observer`] hooks, so the library never prints.
 
-use super::plan::{method_of, Plan};
-use super::spec::{EnergySource, Method, ResamplingMethod, Stage};
+use super::plan::Plan;
+use super::spec::{EnergySource, ResamplingMethod, Stage};
 use crate::data::{CurrentKind, Momentum, ThreePointData, TwoPointData};
 use crate::kinematics::{self, ChannelValue, Energies, FormFactor, KinematicSetup, ShellResult};
 use crate::q2::{self, Q2Fit, Q2Model, Q2Point, Q2Units};
-use crate::ratio::{self, ChannelKey, ChannelResult, Renormalized, TwoPointStates};
+use crate::ratio::{self, ChannelKey, ChannelResult, Estimator, Renormalized, TwoPointStates};
 use crate::resample::binning::{bin_threept, bin_twopt};
 use crate::resample::{ResamplePlan, Resampled};
 use crate::spectrum::{self, SpectrumResult};
@@ -53,8 +53,8 @@ pub struct DataSummary {
 /// One form factor on one Q² shell from one excited-state method.
 #[derive(Clone, Debug)]
 pub struct FormFactorRow {
-    /// Method label: `plateau-tsep12`, `summation`, `two-state`.
-    pub method: String,
+    /// The excited-state estimator (a plateau with its `tsep`).
+    pub method: Estimator,
     /// The form factor.
     pub form_factor: FormFactor,
     /// Current kind of the shell's channels.
@@ -76,8 +76,8 @@ pub struct FormFactorRow {
 /// A quantity derived from a Q² fit (radius, moment, charge).
 #[derive(Clone, Debug)]
 pub struct DerivedRow {
-    /// Method label of the form factors fitted.
-    pub method: String,
+    /// The estimator of the form factors fitted.
+    pub method: Estimator,
     /// Q² model (`dipole`, `z_expansion`).
     pub model: String,
     /// Quantity name (`GE(0)`, `r2_GE`, ...).
@@ -93,8 +93,8 @@ pub struct DerivedRow {
 /// One Q² fit of one method's form factor.
 #[derive(Clone, Debug)]
 pub struct Q2FitResult {
-    /// Method label of the form factors fitted.
-    pub method: String,
+    /// The estimator of the form factors fitted.
+    pub method: Estimator,
     /// The form factor.
     pub form_factor: FormFactor,
     /// Model label (`dipole`, `z-expansion`, with a number when a model is listed twice).
@@ -125,8 +125,11 @@ pub struct RunResults {
     pub timings: Vec<(String, Duration)>,
     /// Warnings collected from every stage.
     pub warnings: Vec<String>,
-    /// The method whose numbers are final.
-    pub final_method: String,
+    /// The estimator whose numbers are final (`plateau` made concrete once the form factors
+    /// are known).
+    pub final_method: Estimator,
+    /// When the run started (the whole run for [`super::run()`], else the computation).
+    pub started: std::time::SystemTime,
     /// Where the results were written (set by [`super::run()`]).
     pub run_dir: Option<std::path::PathBuf>,
 }
@@ -178,7 +181,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         timings: Vec::new(),
         warnings: Vec::new(),
     };
-    let final_method = method_label(method_of(spec.excited_states.fits.final_method), None);
+    let final_method = spec.excited_states.fits.final_method;
     let mut results = RunResults {
         data: None,
         spectrum: None,
@@ -189,6 +192,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         timings: Vec::new(),
         warnings: Vec::new(),
         final_method,
+        started: std::time::SystemTime::now(),
         run_dir: None,
     };
     let (two, three, rplan, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
@@ -221,6 +225,11 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     }
     if plan.runs(Stage::Decomposition) {
         let rows = rec.stage("decomposition", |rec| decompose_all(plan, &results, rec))?;
+        if let Some(largest) = largest_plateau(&rows) {
+            if results.final_method.selects(largest) {
+                results.final_method = largest;
+            }
+        }
         results.form_factors = rows;
     }
     if plan.runs(Stage::Q2Fits) && !spec.q2_fits.form_factors.is_empty() {
@@ -288,65 +297,35 @@ fn two_point_states(sp: &SpectrumResult) -> BTreeMap<Momentum, TwoPointStates> {
         .collect()
 }
 
-/// `plateau-tsep12`, `summation`, `two-state`.
-pub fn method_label(m: Method, tsep: Option<u32>) -> String {
-    match (m, tsep) {
-        (Method::Plateau, Some(t)) => format!("plateau-tsep{t}"),
-        (Method::Plateau, None) => "plateau".into(),
-        (Method::Summation, _) => "summation".into(),
-        (Method::TwoState, _) => "two-state".into(),
-    }
-}
-
-/// Every method's channel values: label, then one value per channel.
+/// Every selected estimator's channel values, in estimator order.
 fn method_values(
-    methods: &[Method],
+    methods: &[Estimator],
     channels: &BTreeMap<ChannelKey, ChannelResult>,
-) -> Vec<(String, Vec<ChannelValue>)> {
-    let value = |k: &ChannelKey, v: &ratio::ReIm| ChannelValue {
-        pf: k.pf,
-        q: k.q,
-        current: k.current,
-        projector: k.projector,
-        re: v.re.clone(),
-        im: v.im.clone(),
-    };
-    let mut out: Vec<(String, Vec<ChannelValue>)> = Vec::new();
-    for &m in methods {
-        match m {
-            Method::Plateau => {
-                let mut by_tsep: BTreeMap<u32, Vec<ChannelValue>> = BTreeMap::new();
-                for (k, c) in channels {
-                    for p in &c.plateaus {
-                        by_tsep
-                            .entry(p.tsep)
-                            .or_default()
-                            .push(value(k, &p.fit.value));
-                    }
-                }
-                out.extend(
-                    by_tsep
-                        .into_iter()
-                        .map(|(t, v)| (method_label(m, Some(t)), v)),
-                );
+) -> Vec<(Estimator, Vec<ChannelValue>)> {
+    let mut out: BTreeMap<Estimator, Vec<ChannelValue>> = BTreeMap::new();
+    for (k, c) in channels {
+        for (e, fit) in c.estimates() {
+            if methods.iter().any(|m| m.selects(e)) {
+                out.entry(e).or_default().push(ChannelValue {
+                    pf: k.pf,
+                    q: k.q,
+                    current: k.current,
+                    projector: k.projector,
+                    re: fit.value.re.clone(),
+                    im: fit.value.im.clone(),
+                });
             }
-            Method::Summation => out.push((
-                method_label(m, None),
-                channels
-                    .iter()
-                    .filter_map(|(k, c)| Some(value(k, &c.summation.as_ref()?.slope.value)))
-                    .collect(),
-            )),
-            Method::TwoState => out.push((
-                method_label(m, None),
-                channels
-                    .iter()
-                    .filter_map(|(k, c)| Some(value(k, &c.two_state.as_ref()?.m.value)))
-                    .collect(),
-            )),
         }
     }
-    out
+    out.into_iter().collect()
+}
+
+/// The plateau at the largest `tsep` among the rows.
+fn largest_plateau(rows: &[FormFactorRow]) -> Option<Estimator> {
+    rows.iter()
+        .map(|r| r.method)
+        .filter(|m| m.tsep().is_some())
+        .max()
 }
 
 fn decompose_all(
@@ -386,31 +365,31 @@ fn decompose_all(
         spacing_fm: Some(spec.ensemble.spacing_fm),
     };
     let mut rows = Vec::new();
-    for (label, values) in method_values(&spec.excited_states.methods, channels) {
+    for (method, values) in method_values(&spec.excited_states.methods, channels) {
         if values.is_empty() {
-            rec.warn(format!("decomposition {label}: no channel has a value"));
+            rec.warn(format!("decomposition {method}: no channel has a value"));
             continue;
         }
         let dec = kinematics::decompose(&values, &setup, &d.solve)?;
         for s in &dec.skipped {
             rec.warn(format!(
-                "decomposition {label}: shell {} ({:?}) skipped: {}",
+                "decomposition {method}: shell {} ({:?}) skipped: {}",
                 s.label, s.kind, s.reason
             ));
         }
         for shell in &dec.shells {
-            rows.extend(shell_rows(&label, shell, &spec.renormalization));
+            rows.extend(shell_rows(method, shell, &spec.renormalization));
         }
     }
     Ok(rows)
 }
 
-fn shell_rows(method: &str, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<FormFactorRow> {
+fn shell_rows(method: Estimator, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<FormFactorRow> {
     shell
         .form_factors
         .iter()
         .map(|(ff, v)| FormFactorRow {
-            method: method.to_string(),
+            method,
             form_factor: *ff,
             kind: shell.kind,
             shell: shell.label.clone(),
@@ -427,21 +406,17 @@ fn shell_rows(method: &str, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<For
 /// that fails becomes a warning.
 fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2FitResult> {
     let spec = &plan.spec;
-    let largest_plateau = rows
-        .iter()
-        .filter_map(|r| r.method.strip_prefix("plateau-tsep")?.parse::<u32>().ok())
-        .max()
-        .map(|t| method_label(Method::Plateau, Some(t)));
-    let mut groups: BTreeMap<(String, FormFactor), Vec<Q2Point>> = BTreeMap::new();
+    let largest = largest_plateau(rows);
+    let mut groups: BTreeMap<(Estimator, FormFactor), Vec<Q2Point>> = BTreeMap::new();
     for r in rows {
-        if r.method.starts_with("plateau") && Some(&r.method) != largest_plateau.as_ref() {
+        if r.method.tsep().is_some() && Some(r.method) != largest {
             continue;
         }
         if !spec.q2_fits.form_factors.contains_key(&r.form_factor) {
             continue;
         }
         groups
-            .entry((r.method.clone(), r.form_factor))
+            .entry((r.method, r.form_factor))
             .or_default()
             .push(Q2Point {
                 q2: r.q2.clone(),
@@ -480,7 +455,7 @@ fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2Fit
                     }
                     let z = spec.renormalization.get(kind_of(rows, ff));
                     out.push(Q2FitResult {
-                        method: method.clone(),
+                        method,
                         form_factor: ff,
                         model,
                         fit,
@@ -498,7 +473,7 @@ fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2Fit
 fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
     let ff = f.form_factor.name();
     let row = |quantity: String, value: Resampled, z_rel: f64, unit: &str| DerivedRow {
-        method: f.method.clone(),
+        method: f.method,
         model: f.model.clone(),
         quantity,
         error: value.error().hypot(value.central * z_rel),

@@ -9,7 +9,7 @@
 use crate::kinematics::flavor::FlavorCombo;
 use crate::kinematics::{DecompositionSettings, Dispersion, FormFactor, Hadron};
 use crate::q2::Q2FitSettings;
-use crate::ratio::{RatioSettings, ZFactors};
+use crate::ratio::{Estimator, RatioSettings, ZFactors};
 use crate::spectrum::SpectrumSettings;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -237,27 +237,14 @@ impl Default for RatioSpec {
     }
 }
 
-/// An excited-state method whose results are tabulated and decomposed.
-#[derive(
-    Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize, JsonSchema,
-)]
-#[serde(rename_all = "snake_case")]
-pub enum Method {
-    /// Constant fit of the ratio's middle region, one value per `tsep`.
-    Plateau,
-    /// Slope of the summed ratio in `tsep`.
-    Summation,
-    /// Joint two-state fit over all `tsep` and `tau`.
-    TwoState,
-}
-
 /// Excited-state control: the methods reported, and the ratio stage's own settings
 /// (`tau_cut`, `summation_tsep_min`, `two_state_tsep_min`, `final_method`, ...).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 pub struct ExcitedStatesSpec {
-    /// Methods whose results are tabulated, decomposed and cross-checked.
+    /// Estimators whose results are tabulated, decomposed and cross-checked: `plateau`
+    /// (every separation) or `plateau_tsep<N>`, `summation`, `two_state`.
     #[serde(default = "all_methods")]
-    pub methods: Vec<Method>,
+    pub methods: Vec<Estimator>,
     /// Settings of the ratio stage's fits.
     #[serde(flatten)]
     pub fits: RatioSettings,
@@ -272,8 +259,12 @@ impl Default for ExcitedStatesSpec {
     }
 }
 
-fn all_methods() -> Vec<Method> {
-    vec![Method::Plateau, Method::Summation, Method::TwoState]
+fn all_methods() -> Vec<Estimator> {
+    vec![
+        Estimator::Plateau { tsep: None },
+        Estimator::Summation,
+        Estimator::TwoState,
+    ]
 }
 
 /// Renormalization constants per current kind (absent = 1 exactly), e.g.

@@ -1,5 +1,5 @@
 //! The per-channel driver: plateau at every `tsep`, summation, two-state, cross-check and the
-//! final estimate chosen by [`FinalMethod`]. A method that cannot run on a channel (one
+//! final estimate chosen by the `final_method` [`Estimator`]. A method that cannot run on a channel (one
 //! separation only, no two-point parameters, ...) is skipped with a note; only the method that
 //! feeds the final result is required.
 
@@ -7,7 +7,9 @@ use super::crosscheck::{cross_check, CrossCheckRow};
 use super::plateau::{plateau, PlateauFit};
 use super::summation::{summation, SummationFit};
 use super::two_state::{two_state, TwoPointStates, TwoStateFit};
-use super::{build_ratios, ChannelKey, ChannelRatio, FinalMethod, RatioSettings, ReIm, STAGE};
+use super::{
+    build_ratios, ChannelKey, ChannelRatio, Estimator, RatioSettings, ReIm, ReImFit, STAGE,
+};
 use crate::data::{Momentum, ThreePointData, TwoPointData};
 use crate::resample::ResamplePlan;
 use crate::{Error, Result};
@@ -30,8 +32,8 @@ pub struct ChannelResult {
     pub two_state: Option<TwoStateFit>,
     /// Every comparison between the methods.
     pub crosscheck: Vec<CrossCheckRow>,
-    /// The method that feeds the final result.
-    pub final_method: FinalMethod,
+    /// The estimator that feeds the final result (a plateau with its `tsep`).
+    pub final_method: Estimator,
     /// The final (bare) matrix element.
     pub final_estimate: ReIm,
     /// Why a method was skipped, one line each.
@@ -59,16 +61,13 @@ pub fn analyse_channel(
         .map_err(|e| notes.push(e.to_string()))
         .ok();
     let crosscheck = cross_check(&plateaus, summation.as_ref(), two_state.as_ref());
-    let chosen = match settings.final_method {
-        FinalMethod::TwoState => two_state.as_ref().map(|t| &t.m.value),
-        FinalMethod::Summation => summation.as_ref().map(|s| &s.slope.value),
-        FinalMethod::PlateauLargestTsep => plateaus.last().map(|p| &p.fit.value),
-    };
-    let final_estimate = chosen.cloned().ok_or_else(|| {
-        Error::analysis(
+    let chosen = pick(&plateaus, &summation, &two_state, settings.final_method)
+        .map(|(method, fit)| (method, fit.value.clone()));
+    let Some((final_method, final_estimate)) = chosen else {
+        return Err(Error::analysis(
             STAGE,
             format!(
-                "channel {}: the final method {:?} could not run ({})",
+                "channel {}: the final method `{}` could not run ({})",
                 ratio.key,
                 settings.final_method,
                 if notes.is_empty() {
@@ -77,8 +76,8 @@ pub fn analyse_channel(
                     notes.join("; ")
                 }
             ),
-        )
-    })?;
+        ));
+    };
     Ok(ChannelResult {
         key: ratio.key.clone(),
         ratio,
@@ -86,10 +85,50 @@ pub fn analyse_channel(
         summation,
         two_state,
         crosscheck,
-        final_method: settings.final_method,
+        final_method,
         final_estimate,
         notes,
     })
+}
+
+/// The fit of estimator `e` among a channel's fits, made concrete (`plateau`: the largest
+/// `tsep` with a fit).
+fn pick<'a>(
+    plateaus: &'a [PlateauFit],
+    summation: &'a Option<SummationFit>,
+    two_state: &'a Option<TwoStateFit>,
+    e: Estimator,
+) -> Option<(Estimator, &'a ReImFit)> {
+    match e {
+        Estimator::Plateau { tsep: None } => plateaus
+            .last()
+            .map(|p| (Estimator::plateau_at(p.tsep), &p.fit)),
+        Estimator::Plateau { tsep: Some(t) } => {
+            plateaus.iter().find(|p| p.tsep == t).map(|p| (e, &p.fit))
+        }
+        Estimator::Summation => summation.as_ref().map(|s| (e, &s.slope)),
+        Estimator::TwoState => two_state.as_ref().map(|t| (e, &t.m)),
+    }
+}
+
+impl ChannelResult {
+    /// The fit of one estimator, with the estimator made concrete (`plateau` is the plateau
+    /// at the largest `tsep` with a fit); `None` when it did not run on this channel.
+    pub fn estimate(&self, e: Estimator) -> Option<(Estimator, &ReImFit)> {
+        pick(&self.plateaus, &self.summation, &self.two_state, e)
+    }
+
+    /// Every estimate that ran, in estimator order.
+    pub fn estimates(&self) -> Vec<(Estimator, &ReImFit)> {
+        let mut out: Vec<_> = self
+            .plateaus
+            .iter()
+            .map(|p| (Estimator::plateau_at(p.tsep), &p.fit))
+            .collect();
+        out.extend(self.estimate(Estimator::Summation));
+        out.extend(self.estimate(Estimator::TwoState));
+        out
+    }
 }
 
 /// Build the ratios of every channel and analyse each (channels in parallel; the results do

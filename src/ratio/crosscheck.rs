@@ -4,24 +4,9 @@
 //! data and are correlated, so adding their errors in quadrature would overstate the error
 //! of the difference (and hide real tension).
 
-use super::{PlateauFit, ReIm, SummationFit, TwoStateFit};
+use super::{Estimator, PlateauFit, ReIm, SummationFit, TwoStateFit};
 use crate::resample::Resampled;
 use serde::Serialize;
-
-/// An excited-state method.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Method {
-    /// The plateau at one separation.
-    Plateau {
-        /// The separation.
-        tsep: u32,
-    },
-    /// The summation slope.
-    Summation,
-    /// The two-state fit.
-    TwoState,
-}
 
 /// How far apart two estimates are.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize)]
@@ -36,6 +21,16 @@ pub enum Flag {
 }
 
 impl Flag {
+    /// The flag as written in tables and read by the report (`consistent`, `above1sigma`,
+    /// `above2sigma`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Flag::Consistent => "consistent",
+            Flag::Above1Sigma => "above1sigma",
+            Flag::Above2Sigma => "above2sigma",
+        }
+    }
+
     /// The flag of a significance `|diff| / error`.
     pub fn of(sigma: f64) -> Flag {
         if sigma > 2.0 {
@@ -84,9 +79,9 @@ pub fn difference(a: &Resampled, b: &Resampled) -> Difference {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct CrossCheckRow {
     /// The method compared.
-    pub method: Method,
+    pub method: Estimator,
     /// The method it is compared with.
-    pub reference: Method,
+    pub reference: Estimator,
     /// Real part of `method - reference`.
     pub re: Difference,
     /// Imaginary part of `method - reference`.
@@ -95,7 +90,7 @@ pub struct CrossCheckRow {
     pub flag: Flag,
 }
 
-fn row(method: Method, a: &ReIm, reference: Method, b: &ReIm) -> CrossCheckRow {
+fn row(method: Estimator, a: &ReIm, reference: Estimator, b: &ReIm) -> CrossCheckRow {
     let re = difference(&a.re, &b.re);
     let im = difference(&a.im, &b.im);
     let flag = Flag::of(re.sigma).max(Flag::of(im.sigma));
@@ -116,12 +111,12 @@ pub fn cross_check(
     two_state: Option<&TwoStateFit>,
 ) -> Vec<CrossCheckRow> {
     let mut rows = Vec::new();
-    let summation = summation.map(|s| (Method::Summation, &s.slope.value));
-    let two_state = two_state.map(|t| (Method::TwoState, &t.m.value));
+    let summation = summation.map(|s| (Estimator::Summation, &s.slope.value));
+    let two_state = two_state.map(|t| (Estimator::TwoState, &t.m.value));
     for p in plateaus {
         for (reference, value) in summation.iter().chain(two_state.iter()) {
             rows.push(row(
-                Method::Plateau { tsep: p.tsep },
+                Estimator::plateau_at(p.tsep),
                 &p.fit.value,
                 *reference,
                 value,

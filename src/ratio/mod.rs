@@ -17,8 +17,8 @@
 //!   with the two-point functions sharing energies, gaps and amplitude ratios.
 //!
 //! [`crosscheck`] compares them with the error of each difference taken from the resamples of
-//! the difference (the estimates share the same data and are correlated), and a
-//! [`settings::FinalMethod`] policy picks the number that feeds the decomposition. [`renorm`]
+//! the difference (the estimates share the same data and are correlated), and the
+//! `final_method` [`Estimator`] picks the number that feeds the decomposition. [`renorm`]
 //! applies `Z ± dZ` keeping the `Z` error as its own column; [`average`] averages equivalent
 //! channels (same kinematic factor up to sign) before any fit.
 //!
@@ -65,6 +65,7 @@ pub mod analyse;
 pub mod average;
 pub mod build;
 pub mod crosscheck;
+pub mod estimator;
 mod lsq;
 pub mod plateau;
 pub mod renorm;
@@ -77,9 +78,10 @@ mod two_state_joint;
 pub use analyse::{analyse_all, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
 pub use crosscheck::{CrossCheckRow, Flag};
+pub use estimator::Estimator;
 pub use plateau::PlateauFit;
 pub use renorm::{Renormalized, ZFactor, ZFactors};
-pub use settings::{FinalMethod, NegativeRootPolicy, RatioSettings, TwoStateVariant};
+pub use settings::{NegativeRootPolicy, RatioSettings, TwoStateVariant};
 pub use summation::SummationFit;
 pub use two_state::{FittedGaps, TwoPointStates, TwoStateFit};
 

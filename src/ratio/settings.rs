@@ -1,6 +1,7 @@
 //! User settings of the ratio stage, as read from the pipeline file (serde + JSON Schema),
 //! with the defaults stated beside each field.
 
+use super::Estimator;
 use crate::resample::covariance::{CovarianceKind, CovarianceOptions};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -49,19 +50,6 @@ fn one() -> f64 {
     1.0
 }
 
-/// Which estimate feeds the final result (the others are always reported).
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "snake_case")]
-pub enum FinalMethod {
-    /// The two-state fit (default: it models the leading contamination explicitly).
-    #[default]
-    TwoState,
-    /// The summation slope.
-    Summation,
-    /// The plateau at the largest `tsep` with a fit.
-    PlateauLargestTsep,
-}
-
 /// Settings of the ratio stage.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(default, deny_unknown_fields)]
@@ -83,8 +71,9 @@ pub struct RatioSettings {
     pub two_point_smear: Option<String>,
     /// Policy for negative products under the square root (default: absolute value).
     pub negative_root: NegativeRootPolicy,
-    /// Which method feeds the final result (default: two-state).
-    pub final_method: FinalMethod,
+    /// Which estimator feeds the final result (default: `two_state`; `plateau` means the
+    /// plateau at the largest `tsep` with a fit).
+    pub final_method: Estimator,
     /// Covariance of the fitted points, estimated once from the resamples and frozen
     /// (default: diagonal — the closure tests in `tests/closure.rs` found that full-covariance
     /// weights over the 30–50 points of a two-state fit with ~100 samples under-quote the
@@ -103,7 +92,7 @@ impl Default for RatioSettings {
             identical_interpolators: true,
             two_point_smear: None,
             negative_root: NegativeRootPolicy::default(),
-            final_method: FinalMethod::default(),
+            final_method: Estimator::TwoState,
             covariance: CovarianceOptions {
                 kind: CovarianceKind::Diagonal,
                 eigen_cut: None,

@@ -55,12 +55,13 @@ pub mod html;
 pub mod manifest;
 pub mod plot;
 pub mod rundir;
+mod signals;
 pub mod table;
 
 pub use html::{Block, Report, Section};
 pub use manifest::{InputFile, Manifest};
 pub use plot::{render_svg, write_svg, Chart, Legend, ReferenceLine, Series, SeriesKind};
-pub use rundir::RunDir;
+pub use rundir::{Marker, OutputRules, RunDir};
 pub use table::{
     render_text, samples_table, value_error, write_csv, write_json, write_table_files, Cell, Table,
 };

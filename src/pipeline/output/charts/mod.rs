@@ -1,0 +1,58 @@
+//! The plots of a run, each a [`Figure`] of a typed [`Plot`] kind: the pipeline's
+//! `output.plots` list selects kinds, the report page places figures by kind, and the file
+//! name under `plots/` follows from the kind (`effective-mass.svg`, `ratio-0.svg`,
+//! `formfactor-GE.svg`, ...).
+//!
+//! To add a plot: add a variant to [`Plot`] (in the pipeline settings, so it can be listed
+//! under `output.plots`; regenerate the schema), write a function from [`RunResults`] to
+//! charts in the submodule of the stage it shows, call it from [`figures`], and place the
+//! kind in a section of the page (`page.rs`).
+
+mod formfactors;
+mod ratio;
+mod spectrum;
+
+use crate::pipeline::run::RunResults;
+use crate::pipeline::spec::Plot;
+use crate::pipeline::Plan;
+use crate::report::Chart;
+
+/// One chart of the report with its kind and file stem.
+#[derive(Clone, Debug)]
+pub struct Figure {
+    /// The kind of plot.
+    pub kind: Plot,
+    /// File stem under `plots/`.
+    pub name: String,
+    /// The chart.
+    pub chart: Chart,
+}
+
+impl Figure {
+    fn new(kind: Plot, name: impl Into<String>, chart: Chart) -> Figure {
+        Figure {
+            kind,
+            name: name.into(),
+            chart,
+        }
+    }
+}
+
+/// The figures the pipeline asks for, in the order of [`Plot`].
+pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
+    let mut kinds = plan.spec.output.plots.clone();
+    kinds.sort();
+    kinds.dedup();
+    let shown = ratio::showcase_channels(results);
+    let mut out = Vec::new();
+    for kind in kinds {
+        match kind {
+            Plot::EffectiveMass => out.extend(spectrum::effective_mass(results)),
+            Plot::Dispersion => out.extend(spectrum::dispersion(results)),
+            Plot::Ratio => out.extend(ratio::ratio_charts(&shown)),
+            Plot::Summation => out.extend(ratio::summation_charts(&shown)),
+            Plot::FormFactors => out.extend(formfactors::charts(plan, results)),
+        }
+    }
+    out
+}

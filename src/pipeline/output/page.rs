@@ -1,0 +1,145 @@
+//! `report.html`: one section per part of the analysis, each built by its own function from
+//! the tables (by name) and the figures (by kind).
+//!
+//! To add a section: write a function returning a [`Section`] from what it needs (the
+//! [`Tables`], the rendered figures of some [`Plot`] kinds, the results) and push it in
+//! [`report_page`] where it belongs in reading order.
+
+use super::tables::{summary_table, TableName, Tables};
+use crate::kinematics::Hadron;
+use crate::pipeline::run::RunResults;
+use crate::pipeline::spec::Plot;
+use crate::pipeline::Plan;
+use crate::ratio::Flag;
+use crate::report::{Block, Cell, Report, Section};
+
+/// A figure rendered to SVG.
+pub struct Rendered {
+    /// The kind of plot.
+    pub kind: Plot,
+    /// File stem under `plots/`.
+    pub name: String,
+    /// The chart's title, used as caption.
+    pub caption: String,
+    /// The SVG text.
+    pub svg: String,
+}
+
+/// The whole page.
+pub fn report_page(
+    plan: &Plan,
+    results: &RunResults,
+    tables: &Tables,
+    figures: &[Rendered],
+) -> Report {
+    let e = &plan.spec.ensemble;
+    let title = if e.label.is_empty() {
+        "formfactory run".to_string()
+    } else {
+        format!("formfactory run: {}", e.label)
+    };
+    let mut report = Report::new(title);
+    report.sections = vec![
+        overview(plan, results),
+        form_factors(tables, figures),
+        spectrum(tables, figures),
+        excited_states(tables, figures),
+        Section::new("Warnings").with(Block::Warnings(results.warnings.clone())),
+        settings_and_timing(plan, results),
+    ];
+    report
+}
+
+/// The figures of some kinds, as blocks in the order given.
+fn figure_blocks(figures: &[Rendered], kinds: &[Plot]) -> Vec<Block> {
+    kinds
+        .iter()
+        .flat_map(|k| figures.iter().filter(move |f| f.kind == *k))
+        .map(|f| Block::Svg {
+            svg: f.svg.clone(),
+            caption: format!("{} (plots/{}.svg)", f.caption, f.name),
+        })
+        .collect()
+}
+
+fn section(heading: &str, blocks: Vec<Block>) -> Section {
+    blocks
+        .into_iter()
+        .fold(Section::new(heading), |s, b| s.with(b))
+}
+
+fn overview(plan: &Plan, results: &RunResults) -> Section {
+    let spec = &plan.spec;
+    let e = &spec.ensemble;
+    let mut text = format!(
+        "Ensemble {}^3 x {}, a = {} fm, hadron of spin {}. ",
+        e.l,
+        e.t,
+        e.spacing_fm,
+        match e.hadron {
+            Hadron::Spin0 => "0",
+            Hadron::Spin1Half => "1/2",
+        }
+    );
+    if let Some(d) = &results.data {
+        text.push_str(&format!(
+            "{} configurations in {} bins of {}; {:?} with {} samples. ",
+            d.n_configs, d.n_bins, spec.resampling.bin_size, spec.resampling.method, d.n_samples
+        ));
+    }
+    text.push_str(&format!(
+        "Stages run up to `{}`. The final numbers use the {} method (excited_states.final_method); \
+         every method is tabulated and cross-checked.",
+        plan.last_stage.name(),
+        results.final_method
+    ));
+    let mut s = Section::new("Overview").with(Block::Paragraph(text));
+    if !results.form_factors.is_empty() {
+        s = s.with(Block::Table(summary_table(results)));
+    }
+    s
+}
+
+fn form_factors(tables: &Tables, figures: &[Rendered]) -> Section {
+    let mut blocks = figure_blocks(figures, &[Plot::FormFactors]);
+    blocks.push(Block::Table(tables.get(TableName::FormFactors).clone()));
+    let derived = tables.get(TableName::Derived);
+    if !derived.rows.is_empty() {
+        blocks.push(Block::Table(derived.clone()));
+    }
+    section("Form factors", blocks)
+}
+
+fn spectrum(tables: &Tables, figures: &[Rendered]) -> Section {
+    let mut blocks = figure_blocks(figures, &[Plot::EffectiveMass, Plot::Dispersion]);
+    blocks.push(Block::Table(tables.get(TableName::Spectrum).clone()));
+    section("Spectrum", blocks)
+}
+
+fn excited_states(tables: &Tables, figures: &[Rendered]) -> Section {
+    let mut blocks = figure_blocks(figures, &[Plot::Ratio, Plot::Summation]);
+    let crosscheck = tables.get(TableName::CrossCheck);
+    let flag = Cell::from(Flag::Above2Sigma.name());
+    let flagged = crosscheck
+        .rows
+        .iter()
+        .filter(|r| r.last() == Some(&flag))
+        .count();
+    blocks.push(Block::Paragraph(format!(
+        "Cross-check: {} comparisons, {flagged} differ by more than 2 sigma (error of each \
+         difference from its own resamples); see crosscheck.csv.",
+        crosscheck.rows.len()
+    )));
+    section("Excited states", blocks)
+}
+
+fn settings_and_timing(plan: &Plan, results: &RunResults) -> Section {
+    let mut timing = String::new();
+    for (s, t) in &results.timings {
+        timing.push_str(&format!("{s:<14} {:>9.3} s\n", t.as_secs_f64()));
+    }
+    let settings = serde_yaml_ng::to_string(&plan.spec).unwrap_or_default();
+    Section::new("Settings and timing")
+        .with(Block::Pre(settings))
+        .with(Block::Pre(timing))
+}

@@ -1,0 +1,119 @@
+//! The tables of a run, each known by a [`TableName`]: the name fixes the file stem
+//! (`formfactors.csv` / `.json`), and the report page and the tests ask for a table by its
+//! name, never by its position in a list.
+//!
+//! To add a table: add a variant to [`TableName`] (its file stem in [`TableName::stem`]),
+//! write its builder (a function from [`RunResults`] to a [`Table`]) in the submodule of the
+//! stage it shows, and call it from [`TableName::build`]. It is then written as CSV and JSON
+//! and available to the page through [`Tables::get`].
+
+mod formfactors;
+mod ratio;
+mod spectrum;
+
+use super::super::run::RunResults;
+use crate::report::{table::write_table_files, Cell, Table};
+use crate::Result;
+use std::collections::BTreeMap;
+use std::path::Path;
+
+pub use formfactors::summary_table;
+
+/// A table of the run directory.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum TableName {
+    /// One row per estimator, form factor and Q² shell.
+    FormFactors,
+    /// Quantities derived from the Q² fits (charges, radii).
+    Derived,
+    /// Energies per momentum and state with their fit quality.
+    Spectrum,
+    /// Fitted energies against the dispersion relations.
+    Dispersion,
+    /// Every comparison of two estimators per channel and part.
+    CrossCheck,
+    /// The bare matrix element per channel and estimator.
+    MatrixElements,
+    /// Per-resample values of every form factor.
+    FormFactorSamples,
+    /// Per-resample values of every derived quantity.
+    DerivedSamples,
+}
+
+impl TableName {
+    /// Every table, in the order they are written.
+    pub const ALL: [TableName; 8] = [
+        TableName::FormFactors,
+        TableName::Derived,
+        TableName::Spectrum,
+        TableName::Dispersion,
+        TableName::CrossCheck,
+        TableName::MatrixElements,
+        TableName::FormFactorSamples,
+        TableName::DerivedSamples,
+    ];
+
+    /// The file stem (`formfactors` → `formfactors.csv`, `formfactors.json`).
+    pub fn stem(self) -> &'static str {
+        match self {
+            TableName::FormFactors => "formfactors",
+            TableName::Derived => "derived",
+            TableName::Spectrum => "spectrum",
+            TableName::Dispersion => "dispersion",
+            TableName::CrossCheck => "crosscheck",
+            TableName::MatrixElements => "matrix_elements",
+            TableName::FormFactorSamples => "formfactor_samples",
+            TableName::DerivedSamples => "derived_samples",
+        }
+    }
+
+    /// Build this table from the results (empty, with its columns, when the stage did not
+    /// run).
+    pub fn build(self, results: &RunResults) -> Result<Table> {
+        let name = self.stem();
+        match self {
+            TableName::FormFactors => formfactors::formfactors(name, &results.form_factors),
+            TableName::Derived => formfactors::derived(name, results),
+            TableName::Spectrum => spectrum::energies(name, results),
+            TableName::Dispersion => spectrum::dispersion(name, results),
+            TableName::CrossCheck => ratio::crosscheck(name, results),
+            TableName::MatrixElements => ratio::matrix_elements(name, results),
+            TableName::FormFactorSamples => Ok(formfactors::formfactor_samples(name, results)),
+            TableName::DerivedSamples => Ok(formfactors::derived_samples(name, results)),
+        }
+    }
+}
+
+/// Every table of a run, by name.
+#[derive(Clone, Debug)]
+pub struct Tables(BTreeMap<TableName, Table>);
+
+impl Tables {
+    /// Build every table.
+    pub fn build(results: &RunResults) -> Result<Tables> {
+        TableName::ALL
+            .iter()
+            .map(|&n| Ok((n, n.build(results)?)))
+            .collect::<Result<_>>()
+            .map(Tables)
+    }
+
+    /// The table of this name.
+    pub fn get(&self, name: TableName) -> &Table {
+        // `build` fills every name of `TableName::ALL`
+        &self.0[&name]
+    }
+
+    /// Write every table as CSV and JSON into `dir`.
+    pub fn write(&self, dir: &Path) -> Result<()> {
+        self.0.values().try_for_each(|t| write_table_files(t, dir))
+    }
+}
+
+fn float(x: f64) -> Cell {
+    Cell::Float(x)
+}
+
+fn opt(x: Option<f64>) -> Cell {
+    Cell::Float(x.unwrap_or(f64::NAN))
+}
