@@ -480,7 +480,7 @@ fn combined_radius_covers_the_truth_over_seeds() {
             .unwrap();
             let data = case.join("data").join(name);
             std::fs::remove_dir_all(&data).unwrap();
-            formfactory::mock::generate_from_file(&spec, &data).expect("generates");
+            formfactory::mock::generate_from_file(&spec, &data, false).expect("generates");
         }
         let c = campaign::load(&path).unwrap();
         let s = local::run_all(&c, &expand::tasks(&c), 2, false).unwrap();
