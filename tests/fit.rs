@@ -396,8 +396,8 @@ fn fixed_design_matches_certified_values_and_the_per_vector_fit() {
     }
     for (m, y) in vectors.iter().enumerate() {
         let one = linear::fit(&design, y, &w, &[]).unwrap();
-        for k in 0..7 {
-            assert_relative_eq!(params[k][m], one.params[k], max_relative = 1e-8);
+        for (p, o) in params.iter().zip(&one.params) {
+            assert_relative_eq!(p[m], *o, max_relative = 1e-8);
         }
     }
 }
@@ -428,8 +428,8 @@ fn fixed_design_correlated_line_agrees_with_per_vector_fit() {
     let params = fixed.solve_many(&refs).unwrap();
     for (m, y) in vectors.iter().enumerate() {
         let one = linear::line(&x, y, &w).unwrap();
-        for k in 0..2 {
-            assert_relative_eq!(params[k][m], one.params[k], max_relative = 1e-12);
+        for (p, o) in params.iter().zip(&one.params) {
+            assert_relative_eq!(p[m], *o, max_relative = 1e-12);
         }
     }
     // Non-finite data is an error naming the point, as for the per-vector fit.
