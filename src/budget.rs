@@ -36,7 +36,7 @@ fn address_space_limit() -> Option<u64> {
     };
     // SAFETY: getrlimit writes into the struct it is given.
     let rc = unsafe { libc::getrlimit(libc::RLIMIT_AS, &mut lim) };
-    (rc == 0 && lim.rlim_cur != libc::RLIM_INFINITY).then_some(lim.rlim_cur as u64)
+    (rc == 0 && lim.rlim_cur != libc::RLIM_INFINITY).then_some(lim.rlim_cur)
 }
 
 #[cfg(not(unix))]

@@ -104,6 +104,61 @@ impl Error {
     }
 }
 
+/// A setting outside its valid range, found by the settings type itself: the key path
+/// inside its section (`t_min`, `tsep[2]`) and what was expected. The pipeline prefixes the
+/// section and turns the path into the line and column of the key in the YAML file.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Invalid {
+    /// Key path inside the section.
+    pub key: String,
+    /// What is wrong and what would be valid.
+    pub message: String,
+}
+
+impl Invalid {
+    /// The setting at `key` is invalid because of `message`.
+    pub fn new(key: impl Into<String>, message: impl Into<String>) -> Self {
+        Invalid {
+            key: key.into(),
+            message: message.into(),
+        }
+    }
+}
+
+impl std::fmt::Display for Invalid {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "`{}`: {}", self.key, self.message)
+    }
+}
+
+/// Levenshtein edit distance between two strings (by characters).
+pub fn levenshtein(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    let mut cur = vec![0; b.len() + 1];
+    for (i, ca) in a.chars().enumerate() {
+        cur[0] = i + 1;
+        for (j, &cb) in b.iter().enumerate() {
+            let sub = prev[j] + usize::from(ca != cb);
+            cur[j + 1] = sub.min(prev[j + 1] + 1).min(cur[j] + 1);
+        }
+        std::mem::swap(&mut prev, &mut cur);
+    }
+    prev[b.len()]
+}
+
+/// The candidate closest to `word` if it is a plausible misspelling (distance at most a
+/// third of the word's length, at least 1; ties go to the first candidate).
+pub fn suggest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str> {
+    let limit = (word.chars().count() / 3).max(1);
+    candidates
+        .iter()
+        .map(|c| (levenshtein(word, c), *c))
+        .filter(|(d, _)| *d <= limit)
+        .min_by_key(|(d, _)| *d)
+        .map(|(_, c)| c)
+}
+
 /// Longest line of an error message printed whole; longer lines are cut in the middle.
 const MAX_LINE_CHARS: usize = 400;
 

@@ -291,6 +291,39 @@ fn cases() -> Vec<Case> {
             expect: vec!["p.yaml"],
         },
         Case {
+            name: "flow brackets nested beyond the limit",
+            files: vec![(
+                "p.yaml",
+                Content::Text(format!("ensemble: {}\n", "[".repeat(32_000))),
+            )],
+            args: vec!["check", "p.yaml"],
+            code: 1,
+            expect: vec!["p.yaml:1:267: brackets `[`/`{` nested more than 256 levels deep"],
+        },
+        mock_case(
+            "mock spec with flow brackets nested beyond the limit",
+            "tseps: [8, 12]",
+            &format!("tseps: {}8{}", "[".repeat(300), "]".repeat(300)),
+            vec![
+                "mock spec m.yaml:15:266: brackets",
+                "nested more than 256 levels",
+            ],
+        ),
+        Case {
+            name: "deeply nested block keys",
+            files: vec![(
+                "p.yaml",
+                Content::Text(
+                    (0..1_000)
+                        .map(|i| format!("{}k:\n", " ".repeat(i)))
+                        .collect(),
+                ),
+            )],
+            args: vec!["check", "p.yaml"],
+            code: 1,
+            expect: vec!["p.yaml"],
+        },
+        Case {
             name: "pipeline larger than any real one",
             files: vec![("p.yaml", Content::Text("#".repeat(2_000_000)))],
             args: vec!["check", "p.yaml"],
@@ -705,4 +738,61 @@ mod arbitrary_bytes {
             let _ = formfactory::io::read_threept_from(&bytes[..], Path::new("p.csv"));
         }
     }
+}
+
+// ---- no panic on data with three states ----
+
+/// Every shipped pipeline, with bootstrap and with jackknife resampling, on mock data whose
+/// two-point functions hold three states (more than any fit models): each run finishes or
+/// refuses with a message, never panics.
+#[test]
+fn shipped_pipelines_do_not_panic_on_three_states() {
+    let dir = tempdir();
+    let root = dir.path();
+    for spec in ["nucleon", "pion"] {
+        let file = format!("{spec}_three_states.mock.yaml");
+        std::fs::copy(fixture(&format!("bad_input/{file}")), root.join(&file)).unwrap();
+        let o = bounded(root, &["mock", &file, "--out", spec]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    }
+    let mut outcomes = Vec::new();
+    for pipeline in [
+        "nucleon-vector",
+        "nucleon-axial",
+        "excited-state-study",
+        "pion-vector",
+    ] {
+        let data = if pipeline.starts_with("pion") {
+            "pion"
+        } else {
+            "nucleon"
+        };
+        let path = repo_root().join(format!("pipelines/{pipeline}.yaml"));
+        let path = path.to_string_lossy().into_owned();
+        for method in ["bootstrap", "jackknife"] {
+            let sets = [
+                format!("data.twopt={}", root.join(data).join("twopt.csv").display()),
+                format!(
+                    "data.threept={}",
+                    root.join(data).join("threept.csv").display()
+                ),
+                format!("resampling.method={method}"),
+                "resampling.samples=40".to_string(),
+            ];
+            let out = format!("out-{pipeline}-{method}");
+            let mut args = vec!["run", path.as_str(), "--out", &out, "--quiet"];
+            for s in &sets {
+                args.extend(["--set", s.as_str()]);
+            }
+            let o = bounded(root, &args);
+            let err = String::from_utf8_lossy(&o.stderr).into_owned();
+            let code = o.status.code();
+            assert!(
+                matches!(code, Some(0 | 1)) && !err.contains("panicked"),
+                "{pipeline} with {method}: exit {code:?}\n{err}"
+            );
+            outcomes.push(format!("{pipeline}/{method}: {code:?}"));
+        }
+    }
+    eprintln!("{}", outcomes.join(", "));
 }

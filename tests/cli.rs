@@ -42,7 +42,7 @@ fn every_command_help_shows_an_example() {
         let o = formfactory(dir.path(), &[cmd, "--help"]);
         assert!(o.status.success(), "{cmd}: {}", stderr(&o));
         assert!(
-            stdout(&o).contains("Example:"),
+            stdout(&o).contains("Example:") || stdout(&o).contains("Examples:"),
             "`{cmd} --help` has no example"
         );
     }

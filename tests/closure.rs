@@ -15,13 +15,14 @@
 
 use crate::common::fixture;
 use formfactory::data::{norm2, Momentum};
+use formfactory::fit::Weighting;
 use formfactory::kinematics::ChannelValue;
 use formfactory::kinematics::{
     decompose, Decomposition, DecompositionSettings, Energies, FormFactor, Hadron, KinematicSetup,
     ShellResult,
 };
 use formfactory::mock::{generate, FormFactorModel, MockSpec, Truth};
-use formfactory::q2::{fit, Q2Fit, Q2FitSettings, Q2Model, Q2Point, Q2Units, Q2Weights};
+use formfactory::q2::{fit, Q2Fit, Q2FitSettings, Q2Model, Q2Point, Q2Units};
 use formfactory::ratio::Estimator;
 use formfactory::ratio::Flag;
 use formfactory::ratio::{analyse_all, ChannelKey, ChannelResult, RatioSettings, TwoPointStates};
@@ -245,7 +246,7 @@ fn q2_points(d: &Decomposition, ff: FormFactor) -> Vec<Q2Point> {
 fn dipole_fit(d: &Decomposition, ff: FormFactor, a_fm: f64) -> Q2Fit {
     let settings = Q2FitSettings {
         model: Q2Model::Dipole { power: 2.0 },
-        weights: Q2Weights::Diagonal,
+        weights: Weighting::Diagonal,
         q2_max: None,
         solver: Default::default(),
     };

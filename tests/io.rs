@@ -152,7 +152,7 @@ fn reads_columns_in_any_order_into_the_data_model() {
     let (key, s) = d.channels.iter().next().unwrap();
     assert_eq!(key.tsep, 2);
     assert_eq!(key.q, [0, 0, 1]);
-    assert_eq!(key.pi(), [0, 0, -1]);
+    assert_eq!(key.source_momentum(), [0, 0, -1]);
     assert_eq!(key.current, Current::V4);
     assert_eq!(key.projector, Projector::Unpol);
     assert_eq!(key.flavor.as_deref(), Some("u-d"));

@@ -2,6 +2,7 @@
 
 use approx::assert_abs_diff_eq;
 use formfactory::data::{Current, Projector};
+use formfactory::fit::Weighting;
 use formfactory::kinematics::{
     coefficients, continuum_energy, lattice_dispersion_energy, lattice_momentum, q_squared,
     FormFactor, Hadron, OnShell,
@@ -301,17 +302,17 @@ fn hbarc_matches_codata() {
 #[test]
 fn flavor_term_schema_lists_the_diagram_names() {
     // The YAML `diagram` of a flavour term accepts exactly the data-format.md labels.
-    let schema = schemars::schema_for!(formfactory::kinematics::flavor::FlavorTerm);
+    let schema = schemars::schema_for!(formfactory::data::flavor::FlavorTerm);
     let text = serde_json::to_string(&schema).unwrap();
     assert!(
         text.contains("\"connected\"") && text.contains("\"disconnected\""),
         "{text}"
     );
-    let term: formfactory::kinematics::flavor::FlavorTerm =
+    let term: formfactory::data::flavor::FlavorTerm =
         serde_yaml_ng::from_str("{flavor: u, diagram: connected, weight: 1.0}").unwrap();
     assert_eq!(term.diagram, Some(formfactory::data::Diagram::Connected));
     assert!(
-        serde_yaml_ng::from_str::<formfactory::kinematics::flavor::FlavorTerm>(
+        serde_yaml_ng::from_str::<formfactory::data::flavor::FlavorTerm>(
             "{flavor: u, diagram: loop, weight: 1.0}"
         )
         .is_err()
@@ -320,11 +321,10 @@ fn flavor_term_schema_lists_the_diagram_names() {
 
 mod decomposition {
     use super::*;
+    use formfactory::data::flavor::{combine, FlavorCombo};
     use formfactory::data::{Diagram, Momentum, Series, ThreePointData, ThreePointKey};
-    use formfactory::kinematics::flavor::{combine, FlavorCombo};
     use formfactory::kinematics::{
-        decompose, ChannelValue, DecompositionSettings, DecompositionWeights, Dispersion, Energies,
-        KinematicSetup,
+        decompose, ChannelValue, DecompositionSettings, Dispersion, Energies, KinematicSetup,
     };
     use formfactory::resample::{ResamplePlan, Resampled, Scheme};
     use rand_distr_free::normal;
@@ -462,7 +462,7 @@ mod decomposition {
         let currents = &Current::ALL[..8]; // V1..V4, A1..A4
         let chans = exact_channels(&st, &frames, currents, &truth);
         {
-            let weights = DecompositionWeights::Diagonal;
+            let weights = Weighting::Diagonal;
             let settings = DecompositionSettings {
                 weights,
                 ..Default::default()
@@ -519,11 +519,7 @@ mod decomposition {
             .collect();
         let currents = [Current::V1, Current::V2, Current::V3, Current::V4];
         let exact = exact_channels(&st, &frames, &currents, &truth);
-        for weights in [
-            DecompositionWeights::Diagonal,
-            DecompositionWeights::Full,
-            DecompositionWeights::Shrinkage,
-        ] {
+        for weights in [Weighting::Diagonal, Weighting::Full, Weighting::Shrinkage] {
             let settings = DecompositionSettings {
                 weights,
                 ..Default::default()
@@ -588,8 +584,8 @@ mod decomposition {
         // Schneider, A&A 464 (2007) 399).
         let want = match settings.weights {
             // Uncorrelated noise: the Ledoit–Wolf intensity is near 1, i.e. near-diagonal weights.
-            DecompositionWeights::Diagonal | DecompositionWeights::Shrinkage => 1.0,
-            DecompositionWeights::Full => (n_cfg as f64 - 1.0) / (n_cfg as f64 - rows as f64 - 2.0),
+            Weighting::Diagonal | Weighting::Shrinkage => 1.0,
+            Weighting::Full => (n_cfg as f64 - 1.0) / (n_cfg as f64 - rows as f64 - 2.0),
         };
         assert!(
             (mean - want).abs() < 0.1,
@@ -772,6 +768,49 @@ mod decomposition {
     }
 
     // Spin 0 (methods.md §5): channels V_mu with projector none decompose into F.
+    // A shell whose channels fix only one combination of G_A and G_P (q = (0,0,1), sink at
+    // rest, the pol3 projector alone: the A3 and A4 rows are proportional, singular values
+    // 1 and ~1e-17) reports neither and says what is missing; with the pol1 projector added
+    // both are determined and recovered exactly (analytic: exact synthetic ratios).
+    #[test]
+    fn singular_shell_reports_nothing_and_says_why() {
+        let n = 20;
+        let st = setup(varying_mass(n));
+        let frames = [([0, 0, 0], [0, 0, 1])];
+        let currents = [Current::A1, Current::A2, Current::A3, Current::A4];
+        let all = exact_channels(&st, &frames, &currents, &varying_truth);
+        let pol3: Vec<ChannelValue> = all
+            .iter()
+            .filter(|c| c.projector == Projector::Pol(3))
+            .cloned()
+            .collect();
+        let d = decompose(&pol3, &st, &DecompositionSettings::default()).expect("runs");
+        assert!(d.shells.iter().all(|s| s.form_factors.is_empty()), "{d:?}");
+        assert_eq!(d.skipped.len(), 1, "{d:?}");
+        let reason = &d.skipped[0].reason;
+        assert!(
+            reason.contains("GA")
+                && reason.contains("GP")
+                && reason.contains("q direction or projector"),
+            "{reason}"
+        );
+        let both: Vec<ChannelValue> = all
+            .iter()
+            .filter(|c| matches!(c.projector, Projector::Pol(1) | Projector::Pol(3)))
+            .cloned()
+            .collect();
+        let d = decompose(&both, &st, &DecompositionSettings::default()).expect("runs");
+        assert_eq!(d.shells.len(), 1, "{d:?}");
+        let shell = &d.shells[0];
+        assert!(shell.undetermined.is_empty());
+        assert!(shell.condition.is_finite() && shell.condition >= 1.0);
+        assert_eq!(shell.form_factors.len(), 2);
+        for (ff, g) in &shell.form_factors {
+            let q2 = shell.q2.central;
+            assert_abs_diff_eq!(g.central, varying_truth(*ff, q2, None), epsilon = 1e-9);
+        }
+    }
+
     #[test]
     fn spin0_decomposition() {
         let n = 8;

@@ -64,7 +64,7 @@ fn mean(s: &Series, t: usize, imaginary: bool) -> f64 {
 /// The ratio of methods.md §3 from the configuration means.
 fn ratio(e: &MockEnsemble, key: &ThreePointKey, tau: usize) -> (f64, f64) {
     let tsep = key.tsep as usize;
-    let (f, i) = (c2(e, key.pf), c2(e, key.pi()));
+    let (f, i) = (c2(e, key.pf), c2(e, key.source_momentum()));
     let c = |s: &Series, t: usize| mean(s, t, false);
     let s = &e.threept.channels[key];
     let factor = (c(i, tsep - tau) * c(f, tau) * c(f, tsep)
@@ -228,7 +228,7 @@ fn two_state_ratio_follows_the_two_state_form() {
                 l.energies[1] - l.energies[0],
             )
         };
-        let ((af, df), (ai, di)) = (gap(key.pf), gap(key.pi()));
+        let ((af, df), (ai, di)) = (gap(key.pf), gap(key.source_momentum()));
         let [r01, r10, r11] = if key.current.name().starts_with('V') {
             vector_r
         } else {

@@ -49,7 +49,7 @@ struct Chan {
 }
 
 impl Chan {
-    fn pi(&self) -> Momentum {
+    fn source_momentum(&self) -> Momentum {
         [
             self.pf[0] - self.q[0],
             self.pf[1] - self.q[1],
@@ -173,7 +173,7 @@ fn make_data(
         channels: BTreeMap::new(),
     };
     for ch in chans {
-        let (sf, si) = (&twopt[&ch.pf], &twopt[&ch.pi()]);
+        let (sf, si) = (&twopt[&ch.pf], &twopt[&ch.source_momentum()]);
         for &tsep in tseps {
             let n_t = tsep as usize + 1;
             let f = factors(noise, &mut rng, &common, n_t, n_cfg);
@@ -389,7 +389,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
         assert_relative_eq!(fit.c_i.re.central, ch.m.0 * ch.b_i, max_relative = 1e-6);
         assert_relative_eq!(fit.c_if.re.central, ch.m.0 * ch.b_if, max_relative = 1e-6);
-        assert_eq!(fit.symmetric, ch.pf == ch.pi());
+        assert_eq!(fit.symmetric, ch.pf == ch.source_momentum());
         // Floating gaps with priors centred on the true gaps (spread on the samples only): the
         // exact data are fitted exactly, gaps included.
         let floating = RatioSettings {
@@ -404,7 +404,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         let gaps = fit.gaps.unwrap();
         assert_relative_eq!(
             gaps.source.central,
-            twopt[&ch.pi()].delta,
+            twopt[&ch.source_momentum()].delta,
             max_relative = 1e-8
         );
         assert_relative_eq!(gaps.sink.central, twopt[&ch.pf].delta, max_relative = 1e-8);
@@ -424,7 +424,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         let gaps = fit.gaps.unwrap();
         assert_relative_eq!(
             gaps.source.central,
-            twopt[&ch.pi()].delta,
+            twopt[&ch.source_momentum()].delta,
             max_relative = 1e-7
         );
         assert_relative_eq!(gaps.sink.central, twopt[&ch.pf].delta, max_relative = 1e-7);
@@ -839,7 +839,7 @@ fn averaging_equivalent_channels_with_signs() {
 fn renormalization_keeps_the_z_error_as_its_own_column() {
     // Independent errors add in quadrature (common practice; methods.md §4): for bare value b
     // with error s and Z +- dZ, stat = |Z| s, z-error = |b| dZ, total = sqrt(stat^2 + z^2).
-    use formfactory::ratio::renorm::{renormalize, ZFactor, ZFactors};
+    use formfactory::kinematics::renorm::{renormalize, ZFactor, ZFactors};
     let mut rng = ChaCha8Rng::seed_from_u64(3);
     let x: Vec<f64> = (0..100).map(|_| 1.27 + 0.1 * gauss(&mut rng)).collect();
     let bare = ResamplePlan::jackknife(100).mean(&x);
@@ -887,13 +887,11 @@ fn renormalization_keeps_the_z_error_as_its_own_column() {
         }),
         ..ZFactors::default()
     };
-    let r = formfactory::ratio::renorm::renormalize_final(&result, &zv);
-    assert_relative_eq!(r.re.value.central, 0.7 * chans[0].m.0, max_relative = 1e-10);
-    assert_relative_eq!(
-        r.im.error_z,
-        0.01 * chans[0].m.1.abs(),
-        max_relative = 1e-10
-    );
+    let zk = zv.get(result.key.current.kind());
+    let re = renormalize(&result.final_estimate.re, zk);
+    let im = renormalize(&result.final_estimate.im, zk);
+    assert_relative_eq!(re.value.central, 0.7 * chans[0].m.0, max_relative = 1e-10);
+    assert_relative_eq!(im.error_z, 0.01 * chans[0].m.1.abs(), max_relative = 1e-10);
 }
 
 #[test]
@@ -916,10 +914,13 @@ fn settings_read_from_yaml_with_defaults() {
     let schema = schemars::schema_for!(RatioSettings);
     let text = serde_json::to_string(&schema).unwrap();
     assert!(text.contains("summation_tsep_min"));
-    // The covariance block carries the resample stage's own schema, not a free-form value.
+    // The covariance block carries the resample stage's own covariance kind (with the
+    // stage's diagonal default), not a free-form value.
     let covariance = &schema.schema.object.as_ref().expect("object").properties["covariance"];
     let covariance = serde_json::to_string(covariance).unwrap();
-    assert!(covariance.contains("CovarianceOptions"), "{covariance}");
+    assert!(covariance.contains("RatioCovariance"), "{covariance}");
+    let block = serde_json::to_string(&schema.definitions["RatioCovariance"]).unwrap();
+    assert!(block.contains("CovarianceKind"), "{block}");
     assert!(
         text.contains("eigen_cut") && text.contains("shrinkage"),
         "{text}"
@@ -949,4 +950,34 @@ fn results_do_not_depend_on_the_thread_count() {
             .unwrap()
     };
     assert_eq!(run(1), run(3));
+}
+
+// Real and imaginary parts are judged separately: a 5-sigma real difference does not flag an
+// imaginary part that agrees, and a part that is identical on every resample (a vanishing
+// imaginary part) is not a comparison at all, so it cannot be counted (analytic: jackknife
+// error of a known sample spread).
+#[test]
+fn crosscheck_parts_are_judged_separately() {
+    use formfactory::resample::Scheme;
+    let n = 10;
+    let spread = |c: f64, s: f64| {
+        Resampled::new(
+            c,
+            (0..n)
+                .map(|j| c + s * if j % 2 == 0 { 1.0 } else { -1.0 })
+                .collect(),
+            Scheme::Jackknife,
+        )
+    };
+    let zero = Resampled::constant(0.0, n, Scheme::Jackknife);
+    let re = difference(&spread(1.0, 0.1), &spread(0.0, 0.0));
+    // jackknife error of +-0.1 alternating: sqrt((n-1)/n * n * 0.01) = 0.3
+    assert!((re.error - 0.3).abs() < 1e-12);
+    assert_eq!(re.flag, Flag::Above2Sigma);
+    let im = difference(&spread(0.1, 0.1), &spread(0.0, 0.0));
+    assert_eq!(im.flag, Flag::Consistent);
+    assert!(im.informative);
+    let silent = difference(&zero, &zero);
+    assert!(!silent.informative);
+    assert_eq!(silent.flag, Flag::Consistent);
 }

@@ -10,6 +10,11 @@ use crate::{Error, Result};
 use std::collections::BTreeMap;
 use std::path::Path;
 
+/// Method labels compare with `-` and `_` taken as the same (`two-state` = `two_state`).
+fn same_label(a: Option<&String>, b: &str) -> bool {
+    a.is_some_and(|a| a.replace('-', "_") == b.replace('-', "_"))
+}
+
 /// Rows of a CSV table as maps from column name to field.
 fn read_rows(path: &Path) -> Result<Vec<BTreeMap<String, String>>> {
     let mut reader = csv::Reader::from_path(path).map_err(|e| csv_error(path, e))?;
@@ -93,7 +98,7 @@ fn derived(run_dir: &Path, q: &QuantitySpec) -> Result<(Resampled, i32)> {
     let row = rows
         .iter()
         .find(|r| {
-            r.get("method") == Some(&q.method)
+            same_label(r.get("method"), &q.method)
                 && r.get("model") == Some(&q.model)
                 && r.get("quantity") == Some(&q.quantity)
         })
@@ -107,7 +112,8 @@ fn derived(run_dir: &Path, q: &QuantitySpec) -> Result<(Resampled, i32)> {
             ))
         })?;
     let unit = row.get("unit").map(String::as_str).unwrap_or("");
-    let label = format!("{}|{}|{}", q.method, q.model, q.quantity);
+    let method = row.get("method").map_or(q.method.as_str(), String::as_str);
+    let label = format!("{method}|{}|{}", q.model, q.quantity);
     let samples_path = run_dir.join("derived_samples.csv");
     let value = read_samples(&samples_path)?.remove(&label).ok_or_else(|| {
         Error::config(format!(
@@ -121,8 +127,10 @@ fn derived(run_dir: &Path, q: &QuantitySpec) -> Result<(Resampled, i32)> {
 fn form_factor_at(run_dir: &Path, q: &QuantitySpec, q2: f64) -> Result<Resampled> {
     let table = run_dir.join("formfactors.csv");
     let mut shells: Vec<(f64, String)> = Vec::new();
+    let mut method = q.method.clone();
     for r in read_rows(&table)? {
-        if r.get("method") == Some(&q.method) && r.get("form_factor") == Some(&q.quantity) {
+        if same_label(r.get("method"), &q.method) && r.get("form_factor") == Some(&q.quantity) {
+            method = field(&r, "method", &table)?.to_string();
             let x = number(&r, "q2_gev2", &table)?;
             shells.push((x, field(&r, "shell", &table)?.to_string()));
         }
@@ -147,7 +155,7 @@ fn form_factor_at(run_dir: &Path, q: &QuantitySpec, q2: f64) -> Result<Resampled
     let samples_path = run_dir.join("formfactor_samples.csv");
     let samples = read_samples(&samples_path)?;
     let get = |shell: &str| {
-        let label = format!("{}|{}|{shell}", q.method, q.quantity);
+        let label = format!("{method}|{}|{shell}", q.quantity);
         samples.get(&label).cloned().ok_or_else(|| {
             Error::config(format!(
                 "{}: no samples of `{label}`",

@@ -39,6 +39,7 @@ pub fn load(path: &Path) -> Result<Campaign> {
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
     let text = String::from_utf8(bytes.clone())
         .map_err(|_| Error::config(format!("{}: the file is not UTF-8 text", path.display())))?;
+    yaml::check_flow_depth(&path.display().to_string(), &text)?;
     let positions = Positions::scan(path, &text);
     let spec: CampaignSpec =
         serde_yaml_ng::from_str(&text).map_err(|e| yaml::translate(&e, &positions))?;

@@ -141,7 +141,8 @@ pub struct QuantitySpec {
     /// The `quantity` of the derived table (`F(0)`, `r2_GE`, `GA(0)`, …), or a form-factor
     /// name (`GE`, `F`, …) together with `q2_gev2`.
     pub quantity: String,
-    /// Excited-state method label of the rows to take (`two-state`, `summation`, …).
+    /// Excited-state method label of the rows to take (`two_state`, `summation`, …; `-` and
+    /// `_` are taken as the same).
     #[serde(default = "default_method")]
     pub method: String,
     /// Q² model of the rows to take (`dipole`, `z-expansion`); ignored with `q2_gev2`.
@@ -160,7 +161,7 @@ pub struct QuantitySpec {
 }
 
 fn default_method() -> String {
-    "two-state".into()
+    "two_state".into()
 }
 
 fn default_model() -> String {

@@ -1,4 +1,4 @@
-//! Linear least squares in closed form (methods.md §2 and §4: correlated constant and line
+//! Linear least squares in closed form (docs/methods.md §2 and §4: correlated constant and line
 //! fits). The whitened system `[W A; P] x = [W y; p]` (prior rows `P = diag(1/width)`,
 //! `p = mean/width`) is solved by singular value decomposition, never iteratively; the
 //! parameter covariance is `V S^{-2} V^T`. A rank-deficient design is an error.
@@ -174,7 +174,7 @@ impl FixedDesign {
     }
 }
 
-/// Correlated constant fit `y_i = c` (the plateau, methods.md §4).
+/// Correlated constant fit `y_i = c` (the plateau, docs/methods.md §4).
 pub fn constant(y: &[f64], w: &Weights) -> Result<LinearFit> {
     fit(&DMatrix::from_element(y.len(), 1, 1.0), y, w, &[])
 }

@@ -1,4 +1,4 @@
-//! Least-squares fitting: problems separate from solvers (methods.md §2).
+//! Least-squares fitting: problems separate from solvers (docs/methods.md §2).
 //!
 //! A [`Model`] states its parameters, its values at the data points and its analytic
 //! Jacobian; it knows nothing of covariances or priors. [`Weights`] whiten residuals with a
@@ -14,7 +14,7 @@ pub mod nonlinear;
 mod weights;
 
 pub use nonlinear::FitSettings;
-pub use weights::Weights;
+pub use weights::{Weighting, Weights};
 
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF};

@@ -1,5 +1,5 @@
 //! Non-linear least squares by Levenberg–Marquardt (Moré's MINPACK variant, through the
-//! `levenberg-marquardt` crate) on whitened residuals plus prior residuals (methods.md §2).
+//! `levenberg-marquardt` crate) on whitened residuals plus prior residuals (docs/methods.md §2).
 //!
 //! The residual vector handed to the solver is `[W (f(x) - y); (x_k - mean_k) / width_k]`, its
 //! Jacobian `[W J(x); diag(1 / width_k)]` with `J` the model's analytic Jacobian. Invalid input

@@ -1,4 +1,4 @@
-//! Residual whitening from a data covariance (methods.md §2, correlated chi-square).
+//! Residual whitening from a data covariance (docs/methods.md §2, correlated chi-square).
 //!
 //! `chi2 = r^T Cov^{-1} r = |W r|^2` with `W^T W = Cov^{-1}`. `W` is built from the Cholesky
 //! factor of the *correlation* matrix, `Cov = D R D`, `R = U U^T`: `W = U^{-1} D^{-1}`, which is
@@ -9,7 +9,57 @@
 //! [`Weights::MAX_CONDITION`] (common practice: never invert a singular matrix silently).
 
 use crate::error::{Error, Result};
+use crate::resample::covariance::{self, CovarianceKind, CovarianceOptions, ShrinkageTarget};
+use crate::resample::Resampled;
 use nalgebra::DMatrix;
+use serde::{Deserialize, Serialize};
+
+/// How the points of a fit or a least-squares solve are weighted: the one weighting setting
+/// of the decomposition and the Q² fits (`weights: diagonal | full | shrinkage`). The ratio
+/// fits use the same kinds through their `covariance` block, which adds an eigenvalue cut
+/// and an explicit shrinkage intensity.
+#[derive(
+    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum Weighting {
+    /// Inverse resampled variances of each point.
+    #[default]
+    Diagonal,
+    /// The full covariance of the points, estimated from the resamples.
+    Full,
+    /// The covariance shrunk toward its diagonal with the Ledoit–Wolf intensity.
+    Shrinkage,
+}
+
+impl Weighting {
+    /// The covariance estimate this weighting asks for (`None`: diagonal, no estimate).
+    pub fn covariance_kind(self) -> Option<CovarianceKind> {
+        match self {
+            Weighting::Diagonal => None,
+            Weighting::Full => Some(CovarianceKind::Full),
+            Weighting::Shrinkage => Some(CovarianceKind::Shrinkage {
+                target: ShrinkageTarget::Diagonal,
+                intensity: None,
+            }),
+        }
+    }
+
+    /// Weights for `values` (one resample plan), estimated once from the resamples. The
+    /// caller checks beforehand that every error is positive and finite.
+    pub fn weights(self, values: &[Resampled]) -> Result<Weights> {
+        let Some(kind) = self.covariance_kind() else {
+            let errors: Vec<f64> = values.iter().map(Resampled::error).collect();
+            return Ok(Weights::diagonal(&errors));
+        };
+        let opts = CovarianceOptions {
+            kind,
+            eigen_cut: None,
+        };
+        let cov = covariance::estimate(values, &opts)?;
+        Weights::from_covariance(&cov.matrix)
+    }
+}
 
 /// Whitening of residuals: full (from a covariance) or diagonal (from errors).
 #[derive(Clone, Debug, PartialEq)]

@@ -1,4 +1,4 @@
-//! Readers and writers for the correlator exchange format (`/work/shared/data-format.md`).
+//! Readers and writers for the correlator exchange format (`docs/data-format.md`).
 //!
 //! Why it exists: every analysis starts from per-configuration correlators in "long" CSV
 //! tables. This module streams them (csv crate over a buffered reader, one reused
@@ -142,7 +142,8 @@ pub fn read_dataset(twopt: &Path, threept: Option<&Path>, opts: &ReadOptions) ->
             return Err(Error::Table {
                 path: threept_path.to_path_buf(),
                 message: format!(
-                    "the two tables cover different configurations: {what}; ask to keep only                      the {} common configurations to go on",
+                    "the two tables cover different configurations: {what}; set `data.keep_common_configs: \
+                     true` in the pipeline to keep only the {} common configurations",
                     common.len()
                 ),
             });

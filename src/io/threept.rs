@@ -1,4 +1,4 @@
-//! The three-point table reader (data-format.md, "Three-point table").
+//! The three-point table reader (docs/data-format.md, "Three-point table").
 //!
 //! Time-axis rule: each channel (one `tsep`) has every insertion time `tau = 0..=tsep` for
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.

@@ -1,4 +1,4 @@
-//! The two-point table reader (data-format.md, "Two-point table").
+//! The two-point table reader (docs/data-format.md, "Two-point table").
 //!
 //! Time-axis rule: `T = max t + 1` over the whole table, and every channel must have every
 //! `t = 0..T-1` for every configuration.

@@ -1,4 +1,4 @@
-//! Writers for the CSV exchange format (data-format.md), used by the mock generator, the
+//! Writers for the CSV exchange format (docs/data-format.md), used by the mock generator, the
 //! tests and anyone who wants to hand a cleaned data set to another tool.
 //!
 //! Output is deterministic: the same data gives a byte-identical file. Rows are ordered by

@@ -1,5 +1,5 @@
 //! Form-factor decomposition: from the ratio plateaus of many channels to form factors per
-//! Q² shell, by weighted least squares per resample (methods.md §5).
+//! Q² shell, by weighted least squares per resample (docs/methods.md §5).
 //!
 //! Within a shell (equal `|n_f|², |n_i|², |n_q|²` without twists, equal Q² within a tolerance
 //! with twists) and a current kind, every channel gives `Pi_c = sum_k K_ck G_k` with complex
@@ -13,10 +13,9 @@
 use super::factors::{coefficients, FormFactor};
 use super::momentum::q2_to_gev2;
 use super::phase::Phase;
-use super::setup::{at, KinematicSetup};
+use super::setup::{at, EnergySource, KinematicSetup};
 use crate::data::{norm2, sub, Current, CurrentKind, Momentum, Projector};
-use crate::fit::Weights;
-use crate::resample::covariance::{self, CovarianceKind, CovarianceOptions, ShrinkageTarget};
+use crate::fit::{Weighting, Weights};
 use crate::resample::Resampled;
 use crate::{Error, Result};
 use nalgebra::{Complex, DMatrix, DVector};
@@ -52,28 +51,18 @@ impl ChannelValue {
     }
 }
 
-/// How the stacked channel values are weighted.
-#[derive(
-    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
-)]
-#[serde(rename_all = "lowercase")]
-pub enum DecompositionWeights {
-    /// Inverse resampled variances of each real/imaginary part.
-    #[default]
-    Diagonal,
-    /// The full covariance of all stacked parts, estimated from the resamples.
-    Full,
-    /// The covariance shrunk toward its diagonal with the Ledoit–Wolf intensity.
-    Shrinkage,
-}
-
 /// User settings of the decomposition.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DecompositionSettings {
+    /// Energies of the kinematic factors: `fitted` (the two-point fit at every momentum;
+    /// `fit` is read too), or the fitted mass with the `continuum` or `lattice` dispersion
+    /// relation.
+    #[serde(default)]
+    pub energies: EnergySource,
     /// Weights of the least-squares solve.
     #[serde(default)]
-    pub weights: DecompositionWeights,
+    pub weights: Weighting,
     /// With twisted boundary conditions: channels whose Q² (lattice units, central value)
     /// differ by at most this much form one shell.
     #[serde(default = "default_q2_tolerance")]
@@ -88,10 +77,35 @@ fn default_q2_tolerance() -> f64 {
     1e-6
 }
 
+impl DecompositionSettings {
+    /// Check the tolerance and the current names of the phases.
+    pub fn validate(&self) -> std::result::Result<(), crate::Invalid> {
+        if !(self.q2_tolerance.is_finite() && self.q2_tolerance >= 0.0) {
+            return Err(crate::Invalid::new(
+                "q2_tolerance",
+                format!(
+                    "q2_tolerance = {} is not valid: expected zero or a positive number",
+                    self.q2_tolerance
+                ),
+            ));
+        }
+        for name in self.phases.keys() {
+            if Current::parse(name).is_none() {
+                return Err(crate::Invalid::new(
+                    format!("phases.{name}"),
+                    Current::unknown(name),
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
 impl Default for DecompositionSettings {
     fn default() -> Self {
         DecompositionSettings {
-            weights: DecompositionWeights::default(),
+            energies: EnergySource::default(),
+            weights: Weighting::default(),
             q2_tolerance: default_q2_tolerance(),
             phases: BTreeMap::new(),
         }
@@ -119,9 +133,22 @@ pub struct ShellResult {
     pub dof: usize,
     /// `chi2 / dof` of the central solve; `None` when `dof = 0`.
     pub chi2_dof: Option<f64>,
-    /// Condition number of the whitened coefficient matrix (central value).
+    /// Condition number of the whitened coefficient matrix (central value): the largest
+    /// singular value over the smallest one kept (above [`SINGULAR_THRESHOLD`] of the
+    /// largest).
     pub condition: f64,
+    /// Form factors the shell's channels do not determine (they mix with a direction whose
+    /// singular value is below [`SINGULAR_THRESHOLD`] of the largest); not reported.
+    pub undetermined: Vec<FormFactor>,
 }
+
+/// A singular value below this share of the largest counts as zero: the combination of form
+/// factors along it is not determined by the shell's channels.
+pub const SINGULAR_THRESHOLD: f64 = 1e-8;
+
+/// A form factor is reported only if its overlap with the undetermined directions is below
+/// this (the pseudo-inverse solution is then independent of them).
+const NULL_OVERLAP: f64 = 1e-6;
 
 /// A shell that could not be solved, and why.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -255,7 +282,7 @@ fn solve_shell(
     members: &[&ChannelValue],
     kind: CurrentKind,
     setup: &KinematicSetup,
-    weights: DecompositionWeights,
+    weights: Weighting,
     phases: &BTreeMap<Current, Complex<f64>>,
     n: usize,
 ) -> std::result::Result<ShellResult, String> {
@@ -345,7 +372,8 @@ fn solve_shell(
         let k = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
         central.insert(ci, (k, coeffs(c, None)?));
     }
-    let solve = |s: Option<usize>| -> std::result::Result<(DVector<f64>, f64, f64), String> {
+    type Solved = (DVector<f64>, f64, f64, Vec<bool>, usize);
+    let solve = |s: Option<usize>| -> std::result::Result<Solved, String> {
         let mut k = DMatrix::zeros(rows.len(), unknowns.len());
         // Coefficients per used channel; reuse the central ones when the kinematics of this
         // sample are the central kinematics (exact masses and energies).
@@ -369,23 +397,64 @@ fn solve_shell(
         let a = w.whiten_matrix(&k);
         let mut b = DVector::zeros(rows.len());
         w.whiten(y.as_slice(), b.as_mut_slice());
-        let svd = a.clone().svd(true, true);
-        let smax = svd.singular_values.max();
-        let smin = svd.singular_values.min();
-        if smin.is_nan() || smin <= smax * 1e-12 {
-            return Err(
-                "the coefficient matrix is singular: the channels do not separate the form factors"
-                    .into(),
-            );
+        let which = || s.map_or("the central value".to_string(), |s| format!("resample {s}"));
+        if a.iter().chain(b.iter()).any(|x| !x.is_finite()) {
+            return Err(format!(
+                "{}: the shell's equations hold a non-finite value (a NaN or infinite energy, \
+                 kinematic factor or matrix element from an earlier stage)",
+                which()
+            ));
         }
-        let g = svd.solve(&b, 0.0).map_err(|e| e.to_string())?;
+        // The unordered decomposition never sorts, so it cannot panic on a NaN singular value.
+        let svd = nalgebra::SVD::try_new_unordered(a.clone(), true, true, f64::EPSILON, 10_000)
+            .ok_or_else(|| format!("{}: the decomposition's SVD did not converge", which()))?;
+        let smax = svd.singular_values.max();
+        if svd.singular_values.iter().any(|v| !v.is_finite()) {
+            return Err(format!(
+                "{}: the decomposition's SVD gave a non-finite singular value",
+                which()
+            ));
+        }
+        if smax <= 0.0 {
+            return Err("the coefficient matrix is zero".into());
+        }
+        let cut = smax * SINGULAR_THRESHOLD;
+        let kept_min = svd
+            .singular_values
+            .iter()
+            .copied()
+            .filter(|v| *v > cut)
+            .fold(f64::INFINITY, f64::min);
+        let g = svd.solve(&b, cut).map_err(|e| e.to_string())?;
         let chi2 = (&a * &g - &b).norm_squared();
-        Ok((g, chi2, smax / smin))
+        let null: Vec<usize> = (0..svd.singular_values.len())
+            .filter(|&i| svd.singular_values[i] <= cut)
+            .collect();
+        let v_t = svd
+            .v_t
+            .as_ref()
+            .ok_or("the SVD gave no right singular vectors")?;
+        let determined: Vec<bool> = (0..unknowns.len())
+            .map(|col| {
+                null.iter()
+                    .map(|&i| v_t[(i, col)].powi(2))
+                    .sum::<f64>()
+                    .sqrt()
+                    < NULL_OVERLAP
+            })
+            .collect();
+        Ok((g, chi2, smax / kept_min, determined, null.len()))
     };
-    let (g0, chi2, condition) = solve(None)?;
+    let (g0, chi2, condition, determined, n_null) = solve(None)?;
+    if !determined.iter().any(|d| *d) {
+        return Err(format!(
+            "the coefficient matrix is singular: the channels determine none of {} alone (needs another q direction or projector)",
+            names(unknowns.iter().map(|&j| all[j]))
+        ));
+    }
     let per_sample = (0..n)
         .into_par_iter()
-        .map(|s| solve(Some(s)).map(|(g, _, _)| g))
+        .map(|s| solve(Some(s)).map(|(g, ..)| g))
         .collect::<std::result::Result<Vec<_>, String>>()?;
     let samples: Vec<Vec<f64>> = (0..unknowns.len())
         .map(|col| per_sample.iter().map(|g| g[col]).collect())
@@ -395,7 +464,14 @@ fn solve_shell(
         .iter()
         .zip(samples)
         .enumerate()
+        .filter(|(col, _)| determined[*col])
         .map(|(col, (&j, smp))| (all[j], Resampled::new(g0[col], smp, scheme)))
+        .collect();
+    let undetermined = unknowns
+        .iter()
+        .zip(&determined)
+        .filter(|(_, d)| !**d)
+        .map(|(&j, _)| all[j])
         .collect();
     let q2s = used
         .iter()
@@ -410,7 +486,7 @@ fn solve_shell(
         v.iter().sum::<f64>() / v.len() as f64
     })
     .map_err(|e| e.to_string())?;
-    let dof = rows.len() - unknowns.len();
+    let dof = rows.len() - (unknowns.len() - n_null);
     Ok(ShellResult {
         label: String::new(),
         kind,
@@ -422,7 +498,12 @@ fn solve_shell(
         dof,
         chi2_dof: (dof > 0).then(|| chi2 / dof as f64),
         condition,
+        undetermined,
     })
+}
+
+fn names(list: impl Iterator<Item = FormFactor>) -> String {
+    list.map(|f| f.name()).collect::<Vec<_>>().join(", ")
 }
 
 /// Whitening of the stacked parts: inverse errors, or the (shrunk) covariance estimated from
@@ -431,7 +512,7 @@ fn whitening(
     data: &[Resampled],
     rows: &[Row],
     members: &[&ChannelValue],
-    weights: DecompositionWeights,
+    weights: Weighting,
 ) -> std::result::Result<Weights, String> {
     for (d, &(ci, imag)) in data.iter().zip(rows) {
         let v = d.variance();
@@ -443,24 +524,7 @@ fn whitening(
             ));
         }
     }
-    let kind = match weights {
-        DecompositionWeights::Diagonal => {
-            return Ok(Weights::diagonal(
-                &data.iter().map(Resampled::error).collect::<Vec<_>>(),
-            ))
-        }
-        DecompositionWeights::Full => CovarianceKind::Full,
-        DecompositionWeights::Shrinkage => CovarianceKind::Shrinkage {
-            target: ShrinkageTarget::Diagonal,
-            intensity: None,
-        },
-    };
-    let opts = CovarianceOptions {
-        kind,
-        eigen_cut: None,
-    };
-    let cov = covariance::estimate(data, &opts).map_err(|e| e.to_string())?;
-    Weights::from_covariance(&cov.matrix).map_err(|e| {
+    weights.weights(data).map_err(|e| {
         format!(
             "{e} ({} stacked parts, {} samples); use diagonal or shrinkage weights",
             data.len(),

@@ -1,4 +1,4 @@
-//! Dirac algebra for the kinematic factors of methods.md §5.
+//! Dirac algebra for the kinematic factors of docs/methods.md §5.
 //!
 //! Euclidean Hermitian gamma matrices in the Dirac–Pauli basis (`gamma_4 = diag(1, 1, -1, -1)`),
 //! `gamma_5 = gamma_1 gamma_2 gamma_3 gamma_4`, `sigma_mu_nu = [gamma_mu, gamma_nu] / (2i)`.
@@ -102,7 +102,7 @@ mod tests {
     #[test]
     fn clifford_algebra_and_hermiticity() {
         // Defining relations {gamma_mu, gamma_nu} = 2 delta_mu_nu, gamma_mu Hermitian,
-        // gamma_5^2 = 1 (Euclidean conventions of methods.md §5).
+        // gamma_5^2 = 1 (Euclidean conventions of docs/methods.md §5).
         for mu in 1..=4 {
             let g = gamma(mu);
             assert_abs_diff_eq!((g.adjoint() - g).norm(), 0.0, epsilon = 1e-15);

@@ -1,4 +1,4 @@
-//! Kinematic coefficients `K` with `Pi(Gamma, O) = sum_k K_k G_k` (methods.md §5).
+//! Kinematic coefficients `K` with `Pi(Gamma, O) = sum_k K_k G_k` (docs/methods.md §5).
 //!
 //! The large-time limit of the three-point/two-point ratio is a trace over the spin
 //! projector, the on-shell positive-energy numerators and the vertex of the current:
@@ -65,6 +65,17 @@ impl FormFactor {
             FormFactor::G5 => "G5",
             FormFactor::GT => "GT",
             FormFactor::F => "F",
+        }
+    }
+
+    /// The kind of current whose matrix elements carry this form factor.
+    pub fn current_kind(self) -> CurrentKind {
+        match self {
+            FormFactor::GE | FormFactor::GM | FormFactor::F => CurrentKind::Vector,
+            FormFactor::GA | FormFactor::GP => CurrentKind::Axial,
+            FormFactor::GS => CurrentKind::Scalar,
+            FormFactor::G5 => CurrentKind::Pseudoscalar,
+            FormFactor::GT => CurrentKind::Tensor,
         }
     }
 

@@ -1,9 +1,9 @@
-//! Kinematics and form-factor decomposition (methods.md §1, §5).
+//! Kinematics and form-factor decomposition (docs/methods.md §1, §5).
 //!
 //! Why it exists: the plateau of the three-point/two-point ratio is not a form factor but a
 //! frame-, projector- and current-dependent linear combination of form factors. This module
 //! computes lattice momenta (with optional twisted boundary conditions), energies and Q², the
-//! kinematic coefficients of that combination from the Dirac trace of methods.md §5, and
+//! kinematic coefficients of that combination from the Dirac trace of docs/methods.md §5, and
 //! solves the over-determined linear system of all channels in a Q² shell by weighted least
 //! squares, per resample.
 //!
@@ -16,16 +16,17 @@
 mod decompose;
 mod dirac;
 mod factors;
-pub mod flavor;
 mod momentum;
 mod phase;
+pub mod renorm;
 mod setup;
 
 pub use decompose::{
-    decompose, ChannelValue, Decomposition, DecompositionSettings, DecompositionWeights,
-    ShellResult, SkippedShell,
+    decompose, ChannelValue, Decomposition, DecompositionSettings, ShellResult, SkippedShell,
+    SINGULAR_THRESHOLD,
 };
 pub use phase::Phase;
+pub use renorm::{renormalize, Renormalized, ZFactor, ZFactors};
 pub use setup::{Dispersion, Energies, EnergySource, KinematicSetup};
 
 pub use factors::{coefficients, FormFactor, Hadron};

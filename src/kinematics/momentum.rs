@@ -1,4 +1,4 @@
-//! Lattice momenta, energies and Q² (methods.md §1, §5).
+//! Lattice momenta, energies and Q² (docs/methods.md §1, §5).
 //!
 //! Momenta on a periodic lattice are `p = (2 pi n + theta) / L` with an optional twist angle
 //! `theta` (twisted boundary conditions); energies come from the continuum dispersion relation

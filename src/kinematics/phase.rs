@@ -1,5 +1,5 @@
 //! A per-current phase convention: a complex unit multiplying the data of that current
-//! before the decomposition (methods.md §5), written `1`, `-1`, `i` or `-i` in settings.
+//! before the decomposition (docs/methods.md §5), written `1`, `-1`, `i` or `-i` in settings.
 
 use nalgebra::Complex;
 use serde::{Deserialize, Serialize};

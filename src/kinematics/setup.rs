@@ -1,5 +1,5 @@
 //! Per-resample on-shell kinematics of a channel: lattice momenta with twists, energies from
-//! the two-point fits or from a dispersion relation (the user's choice, methods.md §5), Q².
+//! the two-point fits or from a dispersion relation (the user's choice, docs/methods.md §5), Q².
 
 use super::momentum::{
     continuum_energy, lattice_dispersion_energy, lattice_momentum, q_squared, OnShell,
@@ -31,8 +31,8 @@ impl Dispersion {
     }
 }
 
-/// The user's choice of energies (a settings value; [`EnergySource::energies`] turns it into
-/// [`Energies`] once the two-point fits are known).
+/// The user's choice of energies for the kinematic factors: the fitted energy at every
+/// momentum, or the fitted mass with a dispersion relation.
 #[derive(
     Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
 )]
@@ -40,6 +40,7 @@ impl Dispersion {
 pub enum EnergySource {
     /// Fitted energies per momentum from the two-point stage.
     #[default]
+    #[serde(alias = "fit")]
     Fitted,
     /// The continuum dispersion relation on the fitted mass.
     Continuum,

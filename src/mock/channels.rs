@@ -2,7 +2,7 @@
 //!
 //! Either the spec's explicit `(p_f, q)` pairs, or every `q` with `|n_q|^2 <= max_q2` for each
 //! sink momentum, optionally thinned to one representative per `(|n_q|^2, |n_i|^2)` shell (the
-//! channels of a shell share `Q^2` on the continuum dispersion relation, methods.md §5).
+//! channels of a shell share `Q^2` on the continuum dispersion relation, docs/methods.md §5).
 
 use super::spec::MomentumSelection;
 use crate::data::{norm2, sub, Momentum};

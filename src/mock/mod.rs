@@ -1,4 +1,4 @@
-//! The mock-ensemble generator (methods.md §8): per-configuration two- and three-point
+//! The mock-ensemble generator (docs/methods.md §8): per-configuration two- and three-point
 //! functions made from a known truth, for closure tests and the demo.
 //!
 //! A YAML spec ([`MockSpec`]) fixes the lattice, the hadron's spectrum (one to three states,
@@ -7,10 +7,10 @@
 //! (Gaussian, correlated across time, growing like the nucleon signal-to-noise problem,
 //! correlated between a three-point function and the two-point function dividing it, AR(1) in
 //! Monte Carlo time). [`generate`] builds the ensemble in memory; [`generate_from_file`]
-//! writes `twopt.csv`, `threept.csv` (data-format.md) and `truth.yaml` ([`Truth`]).
+//! writes `twopt.csv`, `threept.csv` (docs/data-format.md) and `truth.yaml` ([`Truth`]).
 //!
 //! The three-point means use the kinematic factors of [`crate::kinematics`], so the ratio of
-//! methods.md §3 tends to `Pi = sum_k K_k G_k(Q^2)`, exactly so for a single-state spec. Every
+//! docs/methods.md §3 tends to `Pi = sum_k K_k G_k(Q^2)`, exactly so for a single-state spec. Every
 //! channel draws its noise from its own seeded ChaCha8 stream: the same seed gives
 //! byte-identical files on any number of threads.
 
@@ -111,4 +111,17 @@ fn summary(spec: &MockSpec, e: &MockEnsemble, out: &Path) -> String {
         e.truth.points.len(),
         e.truth.matrix_elements.len(),
     )
+}
+
+/// The JSON Schema of the mock specification, pretty-printed with a trailing newline (the
+/// text of `schemas/mock.schema.json`).
+pub fn schema_json() -> String {
+    let mut text = serde_json::to_string_pretty(&schema_value()).unwrap_or_default();
+    text.push('\n');
+    text
+}
+
+/// The JSON Schema of the mock specification as a JSON value.
+pub fn schema_value() -> serde_json::Value {
+    serde_json::to_value(schemars::schema_for!(MockSpec)).unwrap_or_default()
 }

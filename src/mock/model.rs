@@ -1,13 +1,13 @@
 //! The noise-free truth of a mock ensemble: spectrum, overlaps, form factors and the mean
 //! correlators built from them.
 //!
-//! - Energies from the masses by the continuum or lattice dispersion relation (methods.md §2).
+//! - Energies from the masses by the continuum or lattice dispersion relation (docs/methods.md §2).
 //! - Overlaps fall with momentum like a Gaussian-smeared source, `Z_n(p) = Z_n(0) e^{-|p|^2 w^2 / 4}`;
 //!   the two-point amplitude is `A_n(p) = Z_n(p)^2`.
 //! - `C2(t, p) = sum_n A_n(p) e^{-E_n(p) t}` (or the periodic symmetric form for spin 0).
 //! - `C3(tsep, tau) = Pi sum_{m,n} r_{mn} sqrt(A_m(p_f) A_n(p_i)) e^{-E_m(p_f) (tsep - tau)} e^{-E_n(p_i) tau}`
-//!   with `Pi = sum_k K_k G_k(Q^2)` the ground-state matrix element (methods.md §5) and `r` the
-//!   transition strengths relative to it (`r_00 = 1`). With `r_00` alone the ratio of methods.md §3
+//!   with `Pi = sum_k K_k G_k(Q^2)` the ground-state matrix element (docs/methods.md §5) and `r` the
+//!   transition strengths relative to it (`r_00 = 1`). With `r_00` alone the ratio of docs/methods.md §3
 //!   equals `Pi` exactly; the excited terms are the `b` terms of the two-state form of §4.
 //! - Form factors: dipole, z-expansion (Hill & Paz, Phys. Rev. D 82 (2010) 113005) and, for
 //!   `G_P`, pion-pole dominance `G_P = 4 m^2 G_A / (Q^2 + m_pi^2)`.
@@ -160,7 +160,7 @@ mod tests {
     use crate::mock::spec::Positive;
     use approx::assert_relative_eq;
 
-    // Dipole check value of methods.md §6 (common practice): M^2 = 0.71 GeV^2 gives a radius
+    // Dipole check value of docs/methods.md §6 (common practice): M^2 = 0.71 GeV^2 gives a radius
     // r = sqrt(12 / M^2) = 0.81 fm; here r^2 = -6 G'(0)/G(0) by a central difference.
     #[test]
     fn dipole_radius() {

@@ -5,7 +5,7 @@
 //! factor (common practice for correlated Gaussian vectors). Along the configuration axis the
 //! vectors follow a stationary AR(1) process `eta_c = rho eta_{c-1} + sqrt(1 - rho^2) w_c`, whose
 //! lag-1 autocorrelation is `rho` and integrated autocorrelation time `(1 + rho) / (2 (1 - rho))`
-//! (methods.md §7). Every channel draws from its own ChaCha8 stream, numbered by a hash of the
+//! (docs/methods.md §7). Every channel draws from its own ChaCha8 stream, numbered by a hash of the
 //! channel's label, so results do not depend on the order or the thread that generates them.
 
 use nalgebra::DMatrix;

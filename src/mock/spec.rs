@@ -520,6 +520,7 @@ impl MockSpec {
     /// Parse a spec from YAML text; `origin` (a file name) prefixes every error, which carries
     /// the YAML line and column, then the cross-key checks of [`MockSpec::validate`] run.
     pub fn from_yaml(text: &str, origin: &str) -> Result<MockSpec> {
+        crate::pipeline::yaml::check_flow_depth(&format!("mock spec {origin}"), text)?;
         let spec: MockSpec = serde_yaml_ng::from_str(text).map_err(|e| {
             let text = e.to_string();
             match e.location() {

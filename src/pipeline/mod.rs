@@ -7,9 +7,10 @@
 //! computation. The JSON Schema of the file ([`schema_json`]) is generated from the same
 //! types, so editors can complete and check pipeline files.
 
+pub mod final_results;
 pub mod output;
 pub mod plan;
-pub mod progress;
+pub mod reference;
 pub mod run;
 pub mod spec;
 pub mod yaml;
@@ -18,9 +19,9 @@ pub use plan::{load, Plan};
 pub use run::{compute, Observer, RunResults, Silent};
 pub use spec::PipelineSpec;
 
+use crate::data::flavor;
 use crate::data::{ThreePointData, TwoPointData};
 use crate::io::{read_dataset, ReadOptions};
-use crate::kinematics::flavor;
 use crate::Result;
 use spec::Stage;
 use std::collections::BTreeSet;
@@ -28,10 +29,14 @@ use std::collections::BTreeSet;
 /// The JSON Schema of the pipeline file, pretty-printed with a trailing newline (the text
 /// of `schemas/pipeline.schema.json`).
 pub fn schema_json() -> String {
-    let schema = schemars::schema_for!(PipelineSpec);
-    let mut text = serde_json::to_string_pretty(&schema).unwrap_or_default();
+    let mut text = serde_json::to_string_pretty(&schema_value()).unwrap_or_default();
     text.push('\n');
     text
+}
+
+/// The JSON Schema of the pipeline file as a JSON value.
+pub fn schema_value() -> serde_json::Value {
+    serde_json::to_value(schemars::schema_for!(PipelineSpec)).unwrap_or_default()
 }
 
 /// `formfactory check`: parse and validate the pipeline with its overrides, then read the
@@ -147,7 +152,7 @@ pub(crate) fn check_data_rules(
             ),
         ));
     }
-    if let Some(t_max) = spec.spectrum.fits.t_max {
+    if let Some(t_max) = spec.spectrum.t_max {
         if t_max >= n_t {
             return Err(plan.error(
                 "spectrum.t_max",
@@ -158,13 +163,12 @@ pub(crate) fn check_data_rules(
             ));
         }
     }
-    let tau_cut = spec.excited_states.fits.tau_cut;
     let tseps: BTreeSet<u32> = three.channels.keys().map(|k| k.tsep).collect();
-    if let Some(t) = tseps.iter().find(|t| 2 * tau_cut >= **t) {
-        return Err(plan.error(
-            "excited_states.tau_cut",
-            format!("tau_cut = {tau_cut} leaves no insertion point at tsep = {t} in the data: expected tau_cut < tsep/2"),
-        ));
+    if let Some(m) = tseps
+        .iter()
+        .find_map(|t| spec.excited_states.tsep_problem(*t))
+    {
+        return Err(plan.error("excited_states.tau_cut", format!("{m} (in the data)")));
     }
     let flavors: BTreeSet<Option<&str>> =
         three.channels.keys().map(|k| k.flavor.as_deref()).collect();
@@ -174,7 +178,7 @@ pub(crate) fn check_data_rules(
             format!("the three-point data hold several flavours {flavors:?}: choose one combination, e.g. `flavor: {{label: u-d, terms: [{{flavor: u, weight: 1}}, {{flavor: d, weight: -1}}]}}`"),
         ));
     }
-    let smear = spec.excited_states.fits.two_point_smear.as_deref();
+    let smear = spec.excited_states.two_point_smear.as_deref();
     let momenta: BTreeSet<[i32; 3]> = two
         .channels
         .keys()
@@ -188,7 +192,7 @@ pub(crate) fn check_data_rules(
         ));
     }
     for k in three.channels.keys() {
-        for p in [k.pf, k.pi()] {
+        for p in [k.pf, k.source_momentum()] {
             if !momenta.contains(&p) {
                 return Err(plan.error(
                     "data.twopt",

@@ -7,11 +7,12 @@
 //! Progress goes through the small [`Observer`] hooks, so the library never prints.
 
 use super::plan::Plan;
-use super::spec::{EnergySource, ResamplingMethod, Stage};
+use super::spec::{ResamplingMethod, Stage};
 use crate::data::{CurrentKind, Momentum, ThreePointData, TwoPointData};
-use crate::kinematics::{self, ChannelValue, Energies, FormFactor, KinematicSetup, ShellResult};
+use crate::kinematics::{self, ChannelValue, FormFactor, KinematicSetup, ShellResult};
+use crate::kinematics::{renormalize, Renormalized, ZFactors};
 use crate::q2::{self, Q2Fit, Q2Model, Q2Point, Q2Units};
-use crate::ratio::{self, ChannelKey, ChannelResult, Estimator, Renormalized, TwoPointStates};
+use crate::ratio::{self, ChannelKey, ChannelResult, Estimator, TwoPointStates};
 use crate::resample::binning::{bin_threept, bin_twopt};
 use crate::resample::{ResamplePlan, Resampled};
 use crate::spectrum::{self, SpectrumResult};
@@ -84,8 +85,9 @@ pub struct DerivedRow {
     pub quantity: String,
     /// The value, per resample.
     pub value: Resampled,
-    /// Total error: statistical, and for `G(0)` the renormalization error in quadrature.
-    pub error: f64,
+    /// Total error: statistical, and for `G(0)` the renormalization error in quadrature
+    /// (`value.error()` is the statistical part alone).
+    pub error_total: f64,
     /// Unit of the value.
     pub unit: String,
 }
@@ -121,6 +123,8 @@ pub struct RunResults {
     pub derived: Vec<DerivedRow>,
     /// The Q² fits themselves (for plots).
     pub q2_fits: Vec<Q2FitResult>,
+    /// The final value and error budget of every form factor and derived quantity.
+    pub final_results: Vec<super::final_results::FinalRow>,
     /// Wall time per stage, in run order.
     pub timings: Vec<(String, Duration)>,
     /// Warnings collected from every stage.
@@ -181,7 +185,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         timings: Vec::new(),
         warnings: Vec::new(),
     };
-    let final_method = spec.excited_states.fits.final_method;
+    let final_method = spec.excited_states.final_method;
     let mut results = RunResults {
         data: None,
         spectrum: None,
@@ -189,22 +193,27 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         form_factors: Vec::new(),
         derived: Vec::new(),
         q2_fits: Vec::new(),
+        final_results: Vec::new(),
         timings: Vec::new(),
         warnings: Vec::new(),
         final_method,
         started: std::time::SystemTime::now(),
         run_dir: None,
     };
-    let (two, three, rplan, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+    let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+    let Prepared {
+        two,
+        mut three,
+        plan: rplan,
+    } = prepared;
 
     results.data = Some(summary);
     if plan.runs(Stage::Spectrum) {
-        let sp = rec.stage("spectrum", |_| {
-            spectrum::run(&two, &rplan, &spec.spectrum.fits)
-        })?;
+        let sp = rec.stage("spectrum", |_| spectrum::run(&two, &rplan, &spec.spectrum))?;
         for w in &sp.warnings {
             rec.warn(format!("spectrum: {w}"));
         }
+        skip_dropped_momenta(&mut three, &sp.dropped, &mut rec);
         results.spectrum = Some(sp);
     }
     if plan.runs(Stage::Ratio) {
@@ -214,7 +223,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
             .ok_or_else(|| Error::analysis("ratio", "the ratio needs the spectrum stage"))?;
         let states = two_point_states(sp);
         let channels = rec.stage("ratio", |_| {
-            ratio::analyse_all(&three, &two, &rplan, &states, &spec.excited_states.fits)
+            ratio::analyse_all(&three, &two, &rplan, &states, &spec.excited_states)
         })?;
         for (key, c) in &channels {
             for n in &c.notes {
@@ -237,16 +246,50 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
             Ok(q2_fits(plan, &results.form_factors, rec))
         })?;
         results.derived = fits.iter().flat_map(derived_rows).collect();
+        if let Some(mass) = results.spectrum.as_ref().and_then(|s| s.mass.as_ref()) {
+            results
+                .derived
+                .extend(dirac_pauli_rows(&fits, mass, &mut rec));
+        }
         results.q2_fits = fits;
     }
+    results.final_results = super::final_results::final_results(&results, spec.final_value.pin);
     results.timings = rec.timings;
     results.warnings = rec.warnings;
     Ok(results)
 }
 
-type Resampled4 = (TwoPointData, ThreePointData, ResamplePlan, DataSummary);
+/// Remove the three-point channels whose sink or source momentum the spectrum dropped.
+fn skip_dropped_momenta(
+    three: &mut ThreePointData,
+    dropped: &[(Momentum, String)],
+    rec: &mut Recorder,
+) {
+    if dropped.is_empty() {
+        return;
+    }
+    let gone = |p: Momentum| dropped.iter().any(|(d, _)| *d == p);
+    let before = three.channels.len();
+    three
+        .channels
+        .retain(|k, _| !gone(k.pf) && !gone(k.source_momentum()));
+    let n = before - three.channels.len();
+    if n > 0 {
+        rec.warn(format!(
+            "ratio: {n} three-point channel(s) skipped: their sink or source momentum was \
+             dropped by the spectrum stage"
+        ));
+    }
+}
 
-fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<Resampled4> {
+/// The binned data and the one resample plan every later stage uses.
+struct Prepared {
+    two: TwoPointData,
+    three: ThreePointData,
+    plan: ResamplePlan,
+}
+
+fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataSummary)> {
     let spec = &plan.spec;
     let (two, three, notes) = super::read_data(plan)?;
     super::check_data_rules(plan, &two, &three)?;
@@ -276,7 +319,12 @@ fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<Resampled4> {
         n_threept_channels: three.channels.len(),
         notes,
     };
-    Ok((two, three, rplan, summary))
+    let prepared = Prepared {
+        two,
+        three,
+        plan: rplan,
+    };
+    Ok((prepared, summary))
 }
 
 /// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,
@@ -347,21 +395,18 @@ fn decompose_all(
         )
     })?;
     let d = &spec.decomposition;
+    let fitted = sp
+        .per_momentum
+        .iter()
+        .map(|(p, m)| (*p, m.ground_energy().clone()))
+        .collect();
     let setup = KinematicSetup {
         hadron: spec.ensemble.hadron,
         l: spec.ensemble.l as usize,
-        twist_sink: d.twist,
-        twist_source: d.twist,
+        twist_sink: spec.ensemble.twist,
+        twist_source: spec.ensemble.twist,
         mass,
-        energies: match d.energies {
-            EnergySource::Fit => Energies::Fitted(
-                sp.per_momentum
-                    .iter()
-                    .map(|(p, m)| (*p, m.ground_energy().clone()))
-                    .collect(),
-            ),
-            EnergySource::Dispersion => Energies::Dispersion(d.dispersion),
-        },
+        energies: d.energies.energies(fitted),
         spacing_fm: Some(spec.ensemble.spacing_fm),
     };
     let mut rows = Vec::new();
@@ -370,7 +415,7 @@ fn decompose_all(
             rec.warn(format!("decomposition {method}: no channel has a value"));
             continue;
         }
-        let dec = kinematics::decompose(&values, &setup, &d.solve)?;
+        let dec = kinematics::decompose(&values, &setup, d)?;
         for s in &dec.skipped {
             rec.warn(format!(
                 "decomposition {method}: shell {} ({:?}) skipped: {}",
@@ -378,13 +423,23 @@ fn decompose_all(
             ));
         }
         for shell in &dec.shells {
+            if !shell.undetermined.is_empty() {
+                let names: Vec<&str> = shell.undetermined.iter().map(|f| f.name()).collect();
+                rec.warn(format!(
+                    "decomposition {method}: shell {} ({:?}) does not determine {} (a singular value below {:e} of the largest): not reported; needs another q direction or projector",
+                    shell.label,
+                    shell.kind,
+                    names.join(", "),
+                    kinematics::SINGULAR_THRESHOLD
+                ));
+            }
             rows.extend(shell_rows(method, shell, &spec.renormalization));
         }
     }
     Ok(rows)
 }
 
-fn shell_rows(method: Estimator, shell: &ShellResult, z: &ratio::ZFactors) -> Vec<FormFactorRow> {
+fn shell_rows(method: Estimator, shell: &ShellResult, z: &ZFactors) -> Vec<FormFactorRow> {
     shell
         .form_factors
         .iter()
@@ -395,7 +450,7 @@ fn shell_rows(method: Estimator, shell: &ShellResult, z: &ratio::ZFactors) -> Ve
             shell: shell.label.clone(),
             q2: shell.q2.clone(),
             q2_gev2: shell.q2_gev2.clone(),
-            value: ratio::renorm::renormalize(v, z.get(shell.kind)),
+            value: renormalize(v, z.get(shell.kind)),
             n_channels: shell.n_channels,
             chi2_dof: shell.chi2_dof,
         })
@@ -447,13 +502,16 @@ fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2Fit
             };
             match q2::fit(&points, settings, units) {
                 Ok(fit) => {
+                    for w in &fit.warnings {
+                        rec.warn(format!("q2_fits {method} {ff} {model}: {w}"));
+                    }
                     if fit.n_failed > 0 {
                         rec.warn(format!(
                             "q2_fits {method} {ff} {model}: {} resample fit(s) did not converge",
                             fit.n_failed
                         ));
                     }
-                    let z = spec.renormalization.get(kind_of(rows, ff));
+                    let z = spec.renormalization.get(ff.current_kind());
                     out.push(Q2FitResult {
                         method,
                         form_factor: ff,
@@ -476,7 +534,7 @@ fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
         method: f.method,
         model: f.model.clone(),
         quantity,
-        error: value.error().hypot(value.central * z_rel),
+        error_total: value.error().hypot(value.central * z_rel),
         value,
         unit: unit.to_string(),
     };
@@ -496,8 +554,47 @@ fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
     out
 }
 
-fn kind_of(rows: &[FormFactorRow], ff: FormFactor) -> CurrentKind {
-    rows.iter()
-        .find(|r| r.form_factor == ff)
-        .map_or(CurrentKind::Vector, |r| r.kind)
+/// `kappa`, `r1²`, `r2²` (fm²) and `r1`, `r2` (fm) per method and model from the G_E and G_M
+/// fits of the same method and model (`q2::dirac_pauli_radii`).
+fn dirac_pauli_rows(fits: &[Q2FitResult], mass: &Resampled, rec: &mut Recorder) -> Vec<DerivedRow> {
+    let mut out = Vec::new();
+    for ge in fits.iter().filter(|f| f.form_factor == FormFactor::GE) {
+        let Some(gm) = fits.iter().find(|f| {
+            f.form_factor == FormFactor::GM && f.method == ge.method && f.model == ge.model
+        }) else {
+            continue;
+        };
+        let dp = match q2::dirac_pauli_radii(&ge.fit, &gm.fit, mass) {
+            Ok(dp) => dp,
+            Err(e) => {
+                rec.warn(format!(
+                    "q2_fits {} {}: Dirac/Pauli radii: {e}",
+                    ge.method, ge.model
+                ));
+                continue;
+            }
+        };
+        let row = |quantity: &str, value: Resampled, unit: &str| DerivedRow {
+            method: ge.method,
+            model: ge.model.clone(),
+            quantity: quantity.to_string(),
+            error_total: value.error(),
+            value,
+            unit: unit.to_string(),
+        };
+        // kappa = G_M(0) - G_E(0) scales with Z (the vector current's, shared by both)
+        let z_rel = ge.z_relative_error;
+        let mut kappa = row("kappa", dp.kappa.clone(), "");
+        kappa.error_total = kappa.error_total.hypot(kappa.value.central * z_rel);
+        out.push(kappa);
+        for (name, r2) in [("r1", dp.r1_2_fm2), ("r2", dp.r2_2_fm2)] {
+            let Some(r2) = r2 else { continue };
+            let positive = r2.central > 0.0 && r2.samples.iter().all(|x| *x > 0.0);
+            if positive {
+                out.push(row(name, r2.sqrt(), "fm"));
+            }
+            out.push(row(&format!("{name}^2"), r2, "fm^2"));
+        }
+    }
+    out
 }

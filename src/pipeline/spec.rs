@@ -6,11 +6,14 @@
 //! [`Plan`](super::plan::Plan) is built. The JSON Schema in `schemas/pipeline.schema.json`
 //! is generated from these types.
 
-use crate::kinematics::flavor::FlavorCombo;
-use crate::kinematics::{DecompositionSettings, Dispersion, FormFactor, Hadron};
+use crate::data::flavor::FlavorCombo;
+use crate::data::Current;
+use crate::kinematics::ZFactors;
+use crate::kinematics::{DecompositionSettings, FormFactor, Hadron};
 use crate::q2::Q2FitSettings;
-use crate::ratio::{Estimator, RatioSettings, ZFactors};
+use crate::ratio::{Estimator, RatioSettings};
 use crate::spectrum::SpectrumSettings;
+use crate::Invalid;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -29,22 +32,25 @@ pub struct PipelineSpec {
     pub resampling: ResamplingSpec,
     /// Two-point fits: energies and excited-state gaps per momentum.
     #[serde(default)]
-    pub spectrum: SpectrumSpec,
-    /// The three-/two-point ratio.
+    pub spectrum: SpectrumSettings,
+    /// Which three-point data enter the ratio: separations, currents, flavour combination.
     #[serde(default)]
-    pub ratio: RatioSpec,
+    pub ratio: Selection,
     /// Excited-state control: plateau, summation, two-state and the final choice.
     #[serde(default)]
-    pub excited_states: ExcitedStatesSpec,
+    pub excited_states: RatioSettings,
     /// Renormalization constants per current kind.
     #[serde(default)]
     pub renormalization: RenormalizationSpec,
     /// Form-factor decomposition of the ratio's large-time limits.
     #[serde(default)]
-    pub decomposition: DecompositionSpec,
+    pub decomposition: DecompositionSettings,
     /// Q² fits per form factor.
     #[serde(default)]
     pub q2_fits: Q2FitsSpec,
+    /// How the final numbers are made from the analysis variants.
+    #[serde(default)]
+    pub final_value: FinalValueSpec,
     /// The run directory and the plots to draw.
     #[serde(default)]
     pub output: OutputSpec,
@@ -113,6 +119,10 @@ pub struct Ensemble {
     /// The hadron's spin: `spin0` (one vector form factor `F`) or `spin1half` (Sachs,
     /// axial, scalar, pseudoscalar, tensor form factors).
     pub hadron: Hadron,
+    /// Twist angle `theta` per direction (radians) of the boundary condition, the same at
+    /// source and sink: momenta are `p = (2 pi n + theta) / L`.
+    #[serde(default)]
+    pub twist: [f64; 3],
 }
 
 /// The correlator tables.
@@ -180,39 +190,11 @@ fn default_samples() -> usize {
 fn default_seed() -> u64 {
     20_240_601
 }
-fn yes() -> bool {
-    true
-}
 
-/// Two-point fits: the section switch plus the spectrum stage's own settings (`t_min`,
-/// `t_max`, `n_states`, `priors`, `periodic`, `energies`, ...).
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-pub struct SpectrumSpec {
-    /// Run this stage (and everything after it).
-    #[serde(default = "yes")]
-    pub enabled: bool,
-    /// Settings of the two-point fits. `l_extent` and `t_extent` default to the ensemble's
-    /// `L` and `T`.
-    #[serde(flatten)]
-    pub fits: SpectrumSettings,
-}
-
-impl Default for SpectrumSpec {
-    fn default() -> Self {
-        SpectrumSpec {
-            enabled: true,
-            fits: SpectrumSettings::default(),
-        }
-    }
-}
-
-/// The three-/two-point ratio: which data enter it.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+/// Which three-point data enter the ratio (the `ratio:` section).
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct RatioSpec {
-    /// Run this stage (and everything after it).
-    #[serde(default = "yes")]
-    pub enabled: bool,
+pub struct Selection {
     /// Source–sink separations to use (default: every one in the data).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub tsep: Option<Vec<u32>>,
@@ -226,123 +208,20 @@ pub struct RatioSpec {
     pub flavor: Option<FlavorCombo>,
 }
 
-impl Default for RatioSpec {
-    fn default() -> Self {
-        RatioSpec {
-            enabled: true,
-            tsep: None,
-            currents: None,
-            flavor: None,
-        }
-    }
-}
-
-/// Excited-state control: the methods reported, and the ratio stage's own settings
-/// (`tau_cut`, `summation_tsep_min`, `two_state_tsep_min`, `final_method`, ...).
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-pub struct ExcitedStatesSpec {
-    /// Estimators whose results are tabulated, decomposed and cross-checked: `plateau`
-    /// (every separation) or `plateau_tsep<N>`, `summation`, `two_state`.
-    #[serde(default = "all_methods")]
-    pub methods: Vec<Estimator>,
-    /// Settings of the ratio stage's fits.
-    #[serde(flatten)]
-    pub fits: RatioSettings,
-}
-
-impl Default for ExcitedStatesSpec {
-    fn default() -> Self {
-        ExcitedStatesSpec {
-            methods: all_methods(),
-            fits: RatioSettings::default(),
-        }
-    }
-}
-
-fn all_methods() -> Vec<Estimator> {
-    vec![
-        Estimator::Plateau { tsep: None },
-        Estimator::Summation,
-        Estimator::TwoState,
-    ]
-}
-
 /// Renormalization constants per current kind (absent = 1 exactly), e.g.
 /// `vector: {value: 0.72, error: 0.01}`.
 pub type RenormalizationSpec = ZFactors;
 
-/// Where the energies of the kinematic factors come from.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "snake_case")]
-pub enum EnergySource {
-    /// Fitted energy at every momentum.
-    Fit,
-    /// Rest mass plus a dispersion relation.
-    Dispersion,
-}
-
-/// Form-factor decomposition.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-pub struct DecompositionSpec {
-    /// Run this stage (and everything after it).
-    #[serde(default = "yes")]
-    pub enabled: bool,
-    /// Energies from the two-point fits or from the rest mass and a dispersion relation.
-    #[serde(default = "default_energies")]
-    pub energies: EnergySource,
-    /// The dispersion relation used when `energies: dispersion`.
-    #[serde(default = "default_dispersion")]
-    pub dispersion: Dispersion,
-    /// Twist angle `theta` per direction (radians) of sink and source momenta.
-    #[serde(default)]
-    pub twist: [f64; 3],
-    /// Weights, Q² tolerance and per-current phases of the least-squares solve.
-    #[serde(flatten)]
-    pub solve: DecompositionSettings,
-}
-
-impl Default for DecompositionSpec {
-    fn default() -> Self {
-        DecompositionSpec {
-            enabled: true,
-            energies: default_energies(),
-            dispersion: default_dispersion(),
-            twist: [0.0; 3],
-            solve: DecompositionSettings::default(),
-        }
-    }
-}
-
-fn default_dispersion() -> Dispersion {
-    Dispersion::Lattice
-}
-
-fn default_energies() -> EnergySource {
-    EnergySource::Fit
-}
-
 /// Q² fits.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Q2FitsSpec {
-    /// Run this stage.
-    #[serde(default = "yes")]
-    pub enabled: bool,
     /// The fits per form factor (`GE`, `GM`, `GA`, `GP`, `GS`, `G5`, `GT`, `F`), each a list
     /// of shapes, e.g. `GE: [{model: dipole}, {model: z-expansion, t_cut: {pion_mass: 0.14,
     /// n_pions: 2}, kmax: 3}]`. Q² is in lattice units. A form factor not listed is not
     /// fitted. Each method's form factors are fitted (plateau: the largest `tsep` only).
     #[serde(default)]
     pub form_factors: BTreeMap<FormFactor, Vec<Q2FitSettings>>,
-}
-
-impl Default for Q2FitsSpec {
-    fn default() -> Self {
-        Q2FitsSpec {
-            enabled: true,
-            form_factors: BTreeMap::new(),
-        }
-    }
 }
 
 /// A plot of the report.
@@ -361,6 +240,19 @@ pub enum Plot {
     Summation,
     /// Form factors versus Q² per method, with the Q² fits.
     FormFactors,
+    /// The analysis variants behind each final value, with their weights.
+    FinalVariants,
+}
+
+/// How the final numbers are made: by default an equal-weight average over every estimator
+/// and Q² model the run computed, their spread quoted as systematic errors; `pin` fixes one
+/// estimator instead.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct FinalValueSpec {
+    /// Take the final numbers from this estimator only (`plateau` means the largest `tsep`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pin: Option<Estimator>,
 }
 
 /// The run directory and the plots.
@@ -394,5 +286,107 @@ fn all_plots() -> Vec<Plot> {
         Plot::Ratio,
         Plot::Summation,
         Plot::FormFactors,
+        Plot::FinalVariants,
     ]
+}
+
+impl Ensemble {
+    /// Check the lattice: positive extents and spacing, finite twists.
+    pub fn validate(&self) -> Result<(), Invalid> {
+        if self.l == 0 {
+            return Err(Invalid::new("L", "L must be a positive number of sites"));
+        }
+        if self.t < 4 {
+            return Err(Invalid::new(
+                "T",
+                format!(
+                    "T = {} is too small; expected at least 4 time slices",
+                    self.t
+                ),
+            ));
+        }
+        for (key, v, what) in [
+            ("spacing_fm", self.spacing_fm, "the lattice spacing in fm"),
+            (
+                "pion_mass",
+                self.pion_mass,
+                "the pion mass in lattice units",
+            ),
+        ] {
+            if !(v.is_finite() && v > 0.0) {
+                return Err(Invalid::new(
+                    key,
+                    format!("{v} is not valid: expected a positive number ({what})"),
+                ));
+            }
+        }
+        if let Some(i) = self.twist.iter().position(|t| !t.is_finite()) {
+            return Err(Invalid::new(
+                format!("twist[{i}]"),
+                "twist angles must be finite numbers (radians)",
+            ));
+        }
+        Ok(())
+    }
+}
+
+impl ResamplingSpec {
+    /// Check the bin size and the number of bootstrap samples.
+    pub fn validate(&self) -> Result<(), Invalid> {
+        if self.bin_size == 0 {
+            return Err(Invalid::new(
+                "bin_size",
+                "bin_size 0 is not valid: expected 1 or more configurations per bin",
+            ));
+        }
+        if self.method == ResamplingMethod::Bootstrap && self.samples < 2 {
+            return Err(Invalid::new(
+                "samples",
+                format!(
+                    "{} bootstrap samples are too few: expected at least 2 (typically 200 or more)",
+                    self.samples
+                ),
+            ));
+        }
+        Ok(())
+    }
+}
+
+impl Selection {
+    /// Check the lists and names (whether they are in the data is checked on reading).
+    pub fn validate(&self) -> Result<(), Invalid> {
+        if self.tsep.as_ref().is_some_and(Vec::is_empty) {
+            return Err(Invalid::new(
+                "tsep",
+                "the list of tsep values is empty; leave the key out to use every tsep in the data",
+            ));
+        }
+        for (i, c) in self.currents.iter().flatten().enumerate() {
+            if Current::parse(c).is_none() {
+                return Err(Invalid::new(format!("currents[{i}]"), Current::unknown(c)));
+            }
+        }
+        if let Some(f) = &self.flavor {
+            if f.terms.is_empty() {
+                return Err(Invalid::new(
+                    "flavor.terms",
+                    format!("the flavour combination `{}` has no terms", f.label),
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
+impl OutputSpec {
+    /// Check that there is a run directory.
+    pub fn validate(&self) -> Result<(), Invalid> {
+        if self.dir.as_os_str().is_empty() {
+            return Err(Invalid::new(
+                "dir",
+                "the run directory is empty: expected a path",
+            ));
+        }
+        Ok(())
+    }
 }

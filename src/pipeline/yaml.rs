@@ -33,6 +33,9 @@ pub struct Positions {
     file: PathBuf,
     keys: BTreeMap<String, (usize, usize)>,
     sets: Vec<(String, String)>,
+    /// The text parsed is not the file's (overrides were merged in): place errors by their
+    /// key path, never by the parser's line and column.
+    by_key: bool,
 }
 
 impl Positions {
@@ -53,7 +56,7 @@ impl Positions {
             let mut rest = content;
             // sequence items: `- value` or `- key: value`
             while let Some(after) = rest.strip_prefix('-') {
-                if !(after.is_empty() || after.starts_with(' ')) {
+                if !(after.is_empty() || after.starts_with(' ')) || stack.len() >= MAX_DEPTH {
                     break;
                 }
                 while stack.last().is_some_and(|(i, _)| *i > indent) {
@@ -79,6 +82,11 @@ impl Positions {
             while stack.last().is_some_and(|(i, _)| *i >= indent) {
                 stack.pop();
             }
+            if stack.len() >= MAX_DEPTH {
+                // Deeper than any pipeline: no positions, so memory stays linear in the text
+                // (the parser refuses such nesting itself).
+                continue;
+            }
             let parent = stack.last().map(|(_, p)| p.clone()).unwrap_or_default();
             let path = join(&parent, key);
             keys.entry(path.clone()).or_insert((line, indent + 1));
@@ -93,6 +101,15 @@ impl Positions {
             file: file.to_path_buf(),
             keys,
             sets: Vec::new(),
+            by_key: false,
+        }
+    }
+
+    /// The same positions for errors from parsing a text other than the file's.
+    pub fn by_key_only(&self) -> Positions {
+        Positions {
+            by_key: true,
+            ..self.clone()
         }
     }
 
@@ -186,8 +203,77 @@ fn split_key(s: &str) -> Option<(&str, &str)> {
     None
 }
 
+/// Deepest nesting of flow collections (`[` / `{`) a YAML text may have. Pipeline files
+/// need three or four levels; the YAML parser takes time quadratic in the depth, so
+/// deeper text is refused before it is parsed.
+pub const MAX_FLOW_DEPTH: usize = 256;
+
+/// Refuse text whose flow brackets nest deeper than [`MAX_FLOW_DEPTH`], naming the line and
+/// column of the first bracket too many; `origin` (e.g. `p.yaml`) prefixes the message.
+/// Brackets inside quoted strings and comments do not count.
+pub fn check_flow_depth(origin: &str, text: &str) -> Result<()> {
+    match deep_flow_bracket(text) {
+        None => Ok(()),
+        Some((line, column)) => Err(Error::config(format!(
+            "{origin}:{line}:{column}: brackets `[`/`{{` nested more than {MAX_FLOW_DEPTH} \
+             levels deep; a YAML settings file needs only a few levels (unbalanced \
+             brackets, or generated text?)"
+        ))),
+    }
+}
+
+/// Line and column (1-based, in characters) of the first flow bracket opened beyond
+/// [`MAX_FLOW_DEPTH`] levels, if any.
+fn deep_flow_bracket(text: &str) -> Option<(usize, usize)> {
+    let mut depth = 0usize;
+    let mut quote: Option<char> = None;
+    let mut comment = false;
+    let mut escaped = false;
+    let (mut line, mut column) = (1usize, 0usize);
+    let mut prev = '\n';
+    for ch in text.chars() {
+        column += 1;
+        if ch == '\n' {
+            (line, column) = (line + 1, 0);
+            comment = false;
+        }
+        match quote {
+            _ if comment => {}
+            Some('"') if escaped => escaped = false,
+            Some('"') if ch == '\\' => escaped = true,
+            Some(q) if ch == q => quote = None,
+            Some(_) => {}
+            None => match ch {
+                '#' if prev.is_whitespace() => comment = true,
+                // a quote opens a string only where a scalar may begin
+                '"' | '\''
+                    if prev.is_whitespace()
+                        || matches!(prev, '[' | '{' | ',' | ':')
+                        || (ch == '\'' && prev == '\'') =>
+                {
+                    quote = Some(ch)
+                }
+                '[' | '{' => {
+                    depth += 1;
+                    if depth > MAX_FLOW_DEPTH {
+                        return Some((line, column));
+                    }
+                }
+                ']' | '}' => depth = depth.saturating_sub(1),
+                _ => {}
+            },
+        }
+        prev = ch;
+    }
+    None
+}
+
 /// Keys and items of a one-line flow value (`{ a: 1, b: [2, 3] }`, `[4, 6]`) starting at
 /// 0-based column `col0`.
+/// Nesting depth beyond which the position scan records nothing: every path is as long as
+/// its depth, so an unlimited depth would make the scan quadratic in the text.
+const MAX_DEPTH: usize = 64;
+
 fn scan_flow(
     parent: &str,
     text: &str,
@@ -202,6 +288,9 @@ fn scan_flow(
     for (i, ch) in text.char_indices() {
         match ch {
             '{' | '[' => {
+                if stack.len() >= MAX_DEPTH {
+                    return;
+                }
                 let base = match stack.last() {
                     None => parent.to_string(),
                     Some((p, Some(idx))) => format!("{p}[{idx}]"),
@@ -265,6 +354,7 @@ pub fn apply_set(root: &mut Value, assignment: &str) -> Result<String> {
     let value: Value = if raw.trim().is_empty() {
         Value::String(String::new())
     } else {
+        check_flow_depth(&format!("`--set {assignment}`"), raw)?;
         serde_yaml_ng::from_str(raw).map_err(|e| {
             Error::config(format!(
                 "`--set {assignment}`: the value `{raw}` is not a YAML scalar or flow value: {e}"
@@ -298,182 +388,11 @@ pub fn apply_set(root: &mut Value, assignment: &str) -> Result<String> {
     Ok(path.to_string())
 }
 
-/// Refuse every key of the input `given` that the typed parse dropped: `resolved` is the
-/// typed spec serialized back, so a key missing there was not recognised. Null values are
-/// skipped (an explicit `key: null` means "default").
-pub fn check_known_keys(
-    given: &Value,
-    resolved: &Value,
-    path: &str,
-    positions: &Positions,
-) -> Result<()> {
-    match (given, resolved) {
-        (Value::Mapping(g), Value::Mapping(r)) => {
-            for (k, v) in g {
-                if v.is_null() {
-                    continue;
-                }
-                let key = key_text(k);
-                let child = join(path, &key);
-                match r.get(k) {
-                    Some(rv) => check_known_keys(v, rv, &child, positions)?,
-                    None => {
-                        let valid: Vec<String> = r.keys().map(key_text).collect();
-                        let valid: Vec<&str> = valid.iter().map(String::as_str).collect();
-                        let section = if path.is_empty() {
-                            "the top level".to_string()
-                        } else {
-                            format!("`{path}`")
-                        };
-                        let mut m = format!("unknown key `{key}` in {section}");
-                        if let Some(s) = suggest(&key, &valid) {
-                            m.push_str(&format!("; did you mean `{s}`?"));
-                        }
-                        m.push_str(&format!(" Valid keys: {}.", valid.join(", ")));
-                        return Err(positions.error(&child, m));
-                    }
-                }
-            }
-            Ok(())
-        }
-        // enums serialize as YAML tags: `{variant: {..}}` comes back as `!variant {..}`
-        (Value::Mapping(g), Value::Tagged(t)) if g.len() == 1 => match g.iter().next() {
-            Some((k, v)) if t.tag == key_text(k) => {
-                check_known_keys(v, &t.value, &join(path, &key_text(k)), positions)
-            }
-            _ => Ok(()),
-        },
-        (Value::Sequence(g), Value::Sequence(r)) => {
-            for (i, (gv, rv)) in g.iter().zip(r).enumerate() {
-                check_known_keys(gv, rv, &format!("{path}[{i}]"), positions)?;
-            }
-            Ok(())
-        }
-        _ => Ok(()),
-    }
-}
-
-fn key_text(k: &Value) -> String {
-    match k {
-        Value::String(s) => s.clone(),
-        other => serde_yaml_ng::to_string(other)
-            .map(|s| s.trim().to_string())
-            .unwrap_or_default(),
-    }
-}
-
-/// Parse the section `section` of `root`, without the pipeline's own keys `own`, as the
-/// stage settings type `T` it embeds: errors then carry the key path inside the section
-/// (a flattened parse of the whole file cannot say which key was wrong).
-pub fn check_embedded<T: serde::de::DeserializeOwned>(
-    root: &Value,
-    section: &str,
-    own: &[&str],
-    positions: &Positions,
-) -> Result<()> {
-    let Some(Value::Mapping(m)) = root.get(section) else {
-        return Ok(());
-    };
-    let mut rest = Value::Mapping(m.clone());
-    for k in own {
-        if let Value::Mapping(r) = &mut rest {
-            r.remove(*k);
-        }
-    }
-    // serde_yaml_ng reads a data-carrying enum variant only in tag form (`!variant {..}`)
-    // when parsing text, while the schema and the flattened parse use `{variant: {..}}`:
-    // turn each such mapping the parser stumbles on into a tag and try again.
-    for _ in 0..16 {
-        let text = serde_yaml_ng::to_string(&rest)
-            .map_err(|e| Error::config(format!("cannot re-read `{section}`: {e}")))?;
-        let err = match serde_yaml_ng::from_str::<T>(&text) {
-            Ok(_) => return Ok(()),
-            Err(e) => e,
-        };
-        let msg = err.to_string();
-        let retag = msg
-            .split_once(": invalid type: map, expected a YAML tag")
-            .map(|(p, _)| p.to_string())
-            .filter(|p| is_path(p))
-            .and_then(|p| tag_mapping_at(&mut rest, &p).then_some(()));
-        if retag.is_none() {
-            return Err(translate_with(&err, positions, section, own));
-        }
-    }
-    Ok(())
-}
-
-/// Replace the one-key mapping `{k: v}` at dotted `path` (no sequence indices) by the
-/// tagged value `!k v`; false if there is no such mapping.
-fn tag_mapping_at(root: &mut Value, path: &str) -> bool {
-    let mut node = root;
-    for part in path.split('.') {
-        match node.get_mut(part) {
-            Some(n) => node = n,
-            None => return false,
-        }
-    }
-    let Value::Mapping(m) = node else {
-        return false;
-    };
-    let Some((Value::String(k), v)) = m.iter().next().filter(|_| m.len() == 1) else {
-        return false;
-    };
-    *node = Value::Tagged(Box::new(serde_yaml_ng::value::TaggedValue {
-        tag: serde_yaml_ng::value::Tag::new(k.clone()),
-        value: v.clone(),
-    }));
-    true
-}
-
-/// Levenshtein edit distance between two strings (by characters).
-pub fn levenshtein(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    let mut cur = vec![0; b.len() + 1];
-    for (i, ca) in a.chars().enumerate() {
-        cur[0] = i + 1;
-        for (j, &cb) in b.iter().enumerate() {
-            let sub = prev[j] + usize::from(ca != cb);
-            cur[j + 1] = sub.min(prev[j + 1] + 1).min(cur[j] + 1);
-        }
-        std::mem::swap(&mut prev, &mut cur);
-    }
-    prev[b.len()]
-}
-
-/// The candidate closest to `word` if it is a plausible misspelling (distance at most a
-/// third of the word's length, at least 1; ties go to the first candidate).
-pub fn suggest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str> {
-    let limit = (word.chars().count() / 3).max(1);
-    candidates
-        .iter()
-        .map(|c| (levenshtein(word, c), *c))
-        .filter(|(d, _)| *d <= limit)
-        .min_by_key(|(d, _)| *d)
-        .map(|(_, c)| c)
-}
+pub use crate::error::{levenshtein, suggest};
 
 /// Turn a serde_yaml_ng error from parsing the pipeline into a configuration error that
 /// names the location, the key path and, for a misspelt key, the near miss.
 pub fn translate(err: &serde_yaml_ng::Error, positions: &Positions) -> Error {
-    translate_in(err, positions, "")
-}
-
-/// [`translate`] for an error from parsing the sub-tree at `prefix` on its own (its
-/// location refers to re-serialized text, so positions come from the key path).
-fn translate_in(err: &serde_yaml_ng::Error, positions: &Positions, prefix: &str) -> Error {
-    translate_with(err, positions, prefix, &[])
-}
-
-/// [`translate_in`] where the section also accepts the keys `extra` (the pipeline's own keys
-/// beside an embedded stage's settings), so they are offered as valid too.
-fn translate_with(
-    err: &serde_yaml_ng::Error,
-    positions: &Positions,
-    prefix: &str,
-    extra: &[&str],
-) -> Error {
     let text = err.to_string();
     // Display is "[path: ]message[ at line L column C]"
     let body = match text.rfind(" at line ") {
@@ -481,17 +400,14 @@ fn translate_with(
         _ => text.as_str(),
     };
     let (path, message) = match body.split_once(": ") {
-        Some((p, m)) if is_path(p) => (join(prefix, p), m.to_string()),
-        _ => (prefix.to_string(), body.to_string()),
+        Some((p, m)) if is_path(p) => (p.to_string(), m.to_string()),
+        _ => (String::new(), body.to_string()),
     };
     let mut key_path = path.clone();
     let friendly = if let Some(rest) = message.strip_prefix("unknown field `") {
         let (field, tail) = rest.split_once('`').unwrap_or((rest, ""));
         key_path = join(&path, field);
-        let mut expected = backticked(tail);
-        if path == prefix {
-            expected.extend_from_slice(extra);
-        }
+        let expected = backticked(tail);
         let section = if path.is_empty() {
             "the top level".to_string()
         } else {
@@ -524,7 +440,7 @@ fn translate_with(
     let origin = positions.origin(&key_path);
     let place = match (&origin, err.location()) {
         (Origin::Set(_), _) | (_, None) => positions.describe(&key_path),
-        _ if !prefix.is_empty() => positions.describe(&key_path),
+        _ if positions.by_key => positions.describe(&key_path),
         (_, Some(loc)) => format!(
             "{}:{}:{}",
             positions.file().display(),
@@ -619,6 +535,31 @@ mod tests {
         // unknown paths fall back to the nearest ancestor
         assert_eq!(p.origin("ratio.nope"), Origin::File { line: 5, column: 1 });
         assert_eq!(p.origin("nope"), Origin::Default);
+    }
+
+    #[test]
+    fn flow_depth_limit_counts_only_real_brackets() {
+        let deep = |n: usize| format!("a: {}1{}\n", "[".repeat(n), "]".repeat(n));
+        assert_eq!(deep_flow_bracket(&deep(MAX_FLOW_DEPTH)), None);
+        // the first bracket too many is at column 3 + MAX_FLOW_DEPTH (after `a: `)
+        assert_eq!(
+            deep_flow_bracket(&format!("x: 1\n{}", deep(MAX_FLOW_DEPTH + 1))),
+            Some((2, 4 + MAX_FLOW_DEPTH))
+        );
+        // closed brackets do not accumulate
+        assert_eq!(deep_flow_bracket(&deep(100).repeat(10)), None);
+        // quoted strings and comments do not count; `''` is an escaped quote
+        let many = "[".repeat(MAX_FLOW_DEPTH + 1);
+        assert_eq!(deep_flow_bracket(&format!("a: '{many}'\n")), None);
+        assert_eq!(deep_flow_bracket(&format!("a: 'it''s {many}'\n")), None);
+        assert_eq!(deep_flow_bracket(&format!("a: \"\\\" {many}\"\n")), None);
+        assert_eq!(deep_flow_bracket(&format!("a: 1 # {many}\n")), None);
+        // an apostrophe inside a word opens no string
+        assert!(deep_flow_bracket(&format!("a: don't {many}\n")).is_some());
+        let err = check_flow_depth("p.yaml", &deep(1000))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("p.yaml:1:260: brackets"), "{err}");
     }
 
     #[test]

@@ -1,4 +1,4 @@
-//! Construction of the ratio of methods.md §3 per resample.
+//! Construction of the ratio of docs/methods.md §3 per resample.
 //!
 //! The resampled means of `C3` (real and imaginary parts) and of the real two-point functions at
 //! `p_f` and `p_i = p_f - q` are formed first; the non-linear ratio
@@ -125,9 +125,9 @@ pub fn build_ratios(
         let tsep = key3.tsep;
         check_series(series, n_bins, tsep, &key)?;
         two_point.load(key.pf, tsep, &key)?;
-        two_point.load(key.pi(), tsep, &key)?;
+        two_point.load(key.source_momentum(), tsep, &key)?;
         let c2f = two_point.shared(key.pf);
-        let c2i = two_point.shared(key.pi());
+        let c2i = two_point.shared(key.source_momentum());
         let entry = out.entry(key.clone()).or_insert_with(|| ChannelRatio {
             key: key.clone(),
             points: Vec::new(),
@@ -175,7 +175,7 @@ pub fn build_ratios(
                         "channel {key}, tsep {tsep}, tau {tau}: the ratio is not finite (a \
                          two-point function at p_f={:?} or p_i={:?} is zero or not finite)",
                         key.pf,
-                        key.pi()
+                        key.source_momentum()
                     ),
                 ));
             }
@@ -260,7 +260,7 @@ impl<'a> TwoPointMeans<'a> {
                          {}); the ratio needs C2 at p_f={:?} and p_i=p_f-q={:?}",
                         self.smear.as_deref().unwrap_or("none"),
                         channel.pf,
-                        channel.pi()
+                        channel.source_momentum()
                     ),
                 )
             })?;

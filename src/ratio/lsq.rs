@@ -1,6 +1,6 @@
 //! Correlated linear least squares on resampled data, shared by the plateau, summation and
 //! fixed-gap two-state fits: the covariance is estimated once from the resamples
-//! ([`crate::resample::covariance`]) and frozen (common practice, methods.md §2), then every
+//! ([`crate::resample::covariance`]) and frozen (common practice, docs/methods.md §2), then every
 //! resample is fitted in closed form ([`crate::fit::linear`]). A design that is the same for
 //! every resample (plateau, summation) is factorised once and applied to all resamples as one
 //! product ([`linear::FixedDesign`]); only a design that changes per resample (the fixed-gap

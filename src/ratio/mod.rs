@@ -1,7 +1,7 @@
-//! The three-point/two-point ratio and excited-state control (methods.md §3, §4).
+//! The three-point/two-point ratio and excited-state control (docs/methods.md §3, §4).
 //!
 //! A three-point function decays with the energies of the states it connects and carries
-//! their unknown overlaps; the ratio of methods.md §3 cancels both, so that at large source–sink
+//! their unknown overlaps; the ratio of docs/methods.md §3 cancels both, so that at large source–sink
 //! separation it tends to the matrix element `Pi(Gamma, O; p_f, p_i)`. At the separations a
 //! lattice can afford, excited states still contaminate it. This module builds the ratio per
 //! resample and extracts the matrix element three ways, reported side by side:
@@ -18,8 +18,8 @@
 //!
 //! [`crosscheck`] compares them with the error of each difference taken from the resamples of
 //! the difference (the estimates share the same data and are correlated), and the
-//! `final_method` [`Estimator`] picks the number that feeds the decomposition. [`renorm`]
-//! applies `Z ± dZ` keeping the `Z` error as its own column; [`average`] averages equivalent
+//! `final_method` [`Estimator`] picks the number that feeds the decomposition (where the
+//! renormalization is applied, in `kinematics::renorm`); [`average`] averages equivalent
 //! channels (same kinematic factor up to sign) before any fit.
 //!
 //! ## Use
@@ -68,19 +68,15 @@ pub mod crosscheck;
 pub mod estimator;
 mod lsq;
 pub mod plateau;
-pub mod renorm;
 pub mod settings;
 pub mod summation;
 pub mod two_state;
-mod two_state_float;
-mod two_state_joint;
 
 pub use analyse::{analyse_all, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
 pub use crosscheck::{CrossCheckRow, Flag};
 pub use estimator::Estimator;
 pub use plateau::PlateauFit;
-pub use renorm::{Renormalized, ZFactor, ZFactors};
 pub use settings::{NegativeRootPolicy, RatioSettings, TwoStateVariant};
 pub use summation::SummationFit;
 pub use two_state::{FittedGaps, TwoPointStates, TwoStateFit};
@@ -138,7 +134,7 @@ impl ChannelKey {
     }
 
     /// Source momentum `p_i = p_f - q`.
-    pub fn pi(&self) -> Momentum {
+    pub fn source_momentum(&self) -> Momentum {
         crate::data::sub(self.pf, self.q)
     }
 }

@@ -1,4 +1,4 @@
-//! Plateau fits (methods.md §4): the ratio at one `tsep` fitted to a constant over
+//! Plateau fits (docs/methods.md §4): the ratio at one `tsep` fitted to a constant over
 //! `tau in [tau_cut, tsep - tau_cut]`, correlated, in closed form `c = 1^T W y / 1^T W 1` with
 //! `W` the inverse covariance frozen from the resamples (common practice).
 

@@ -1,6 +1,6 @@
 //! Binning (blocking): averages of `b` consecutive configurations, so that the bins of an
 //! autocorrelated Monte Carlo chain are nearly independent before jackknife or bootstrap
-//! (methods.md §7; Flyvbjerg & Petersen, J. Chem. Phys. 91 (1989) 461).
+//! (docs/methods.md §7; Flyvbjerg & Petersen, J. Chem. Phys. 91 (1989) 461).
 //!
 //! With `N` configurations and bin size `b` there are `floor(N / b)` bins; bin `k` is the mean
 //! of configurations `k b .. (k+1) b - 1`. The trailing `N mod b` configurations, which do not

@@ -1,4 +1,4 @@
-//! Covariance of a vector of resampled values, for correlated fits (methods.md §2).
+//! Covariance of a vector of resampled values, for correlated fits (docs/methods.md §2).
 //!
 //! The covariance is estimated once from the resamples and held fixed (common practice).
 //! Each value `i` contributes one deviation per sample, rescaled so that the deviations act
@@ -84,7 +84,7 @@ pub enum CovarianceKind {
     },
 }
 
-/// The YAML forms of [`CovarianceKind`]: a bare name, or `{shrinkage: {...}}`.
+/// The YAML forms of a covariance kind: a bare name, or `{shrinkage: {...}}`.
 #[derive(Deserialize, JsonSchema)]
 #[serde(untagged)]
 enum KindRepr {

@@ -1,5 +1,5 @@
 //! Resampling: the [`Resampled`] value that carries errors through every stage, and the tools
-//! that make and judge it (methods.md §7).
+//! that make and judge it (docs/methods.md §7).
 //!
 //! A [`Resampled`] holds the estimate on the full ensemble (`central`) and one value per
 //! resample. Any function of resampled values is evaluated on the central value and on every

@@ -1,4 +1,4 @@
-//! Resample plans: how per-bin data become jackknife or bootstrap samples (methods.md §7;
+//! Resample plans: how per-bin data become jackknife or bootstrap samples (docs/methods.md §7;
 //! Efron & Tibshirani, *An Introduction to the Bootstrap*, 1993, the bootstrap and jackknife chapters).
 //!
 //! A plan is built once per analysis and applied to every data point, so all quantities share

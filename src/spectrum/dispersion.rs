@@ -1,30 +1,23 @@
-//! Dispersion check (methods.md §2): fitted `E(p)` against the continuum relation
+//! Dispersion check (docs/methods.md §2): fitted `E(p)` against the continuum relation
 //! `E^2 = m^2 + p^2` and the lattice (free boson) relation
 //! `sinh^2(E/2) = sinh^2(m/2) + sum_i sin^2(p_i/2)` from the fitted mass, each difference in
 //! units of its own resampled error (the error of the difference, not errors in quadrature).
-//! Momenta in lattice units `p_i = (2 pi n_i + theta_i) / L` with optional twist angles.
+//! Momenta in lattice units and the two relations come from [`crate::kinematics`], the one
+//! place that defines them; this module applies them per resample.
 
 use crate::data::Momentum;
+use crate::kinematics;
 use crate::resample::Resampled;
 use serde::Serialize;
-use std::f64::consts::PI;
-
-/// Lattice momentum `(2 pi n + theta) / L` in lattice units.
-pub fn lattice_momentum(n: Momentum, l_extent: f64, twist: Option<[f64; 3]>) -> [f64; 3] {
-    let th = twist.unwrap_or([0.0; 3]);
-    [0, 1, 2].map(|i| (2.0 * PI * n[i] as f64 + th[i]) / l_extent)
-}
 
 /// Continuum dispersion energy `sqrt(m^2 + p^2)`, per resample.
 pub fn continuum_energy(mass: &Resampled, p: [f64; 3]) -> Resampled {
-    let p2: f64 = p.iter().map(|x| x * x).sum();
-    mass.map(|m| (m * m + p2).sqrt())
+    mass.map(|m| kinematics::continuum_energy(m, p))
 }
 
 /// Lattice dispersion energy `2 asinh(sqrt(sinh^2(m/2) + sum sin^2(p_i/2)))`, per resample.
 pub fn lattice_energy(mass: &Resampled, p: [f64; 3]) -> Resampled {
-    let s: f64 = p.iter().map(|x| (x / 2.0).sin().powi(2)).sum();
-    mass.map(|m| 2.0 * ((m / 2.0).sinh().powi(2) + s).sqrt().asinh())
+    mass.map(|m| kinematics::lattice_dispersion_energy(m, p))
 }
 
 /// One momentum of the dispersion table.

@@ -1,4 +1,4 @@
-//! Effective masses (methods.md §2) as resampled values: the log form
+//! Effective masses (docs/methods.md §2) as resampled values: the log form
 //! `m(t) = ln(C(t)/C(t+1))` and, for a periodic (meson) correlator, the cosh form that solves
 //! `C(t)/C(t+1) = cosh(m (t - T/2)) / cosh(m (t + 1 - T/2))` for `m` by a bracketed,
 //! safeguarded Newton iteration. Points where the ratio is not positive (or where the cosh

@@ -1,4 +1,4 @@
-//! The variational method for a matrix of correlators (methods.md §2; Blossier et al.,
+//! The variational method for a matrix of correlators (docs/methods.md §2; Blossier et al.,
 //! JHEP 04 (2009) 094): solve `C(t) v = lambda(t, t0) C(t0) v` by Cholesky reduction
 //! `C(t0) = L L^T`, the symmetric eigenproblem of `L^{-1} C(t) L^{-T}`, and `v = L^{-T} u`
 //! (so `v^T C(t0) v = 1`). The principal correlators `lambda_n(t, t0) ~ exp(-E_n (t - t0))`

@@ -1,4 +1,4 @@
-//! Two-point fit models (methods.md §2): a sum of 1 to [`MAX_STATES`] exponentials with
+//! Two-point fit models (docs/methods.md §2): a sum of 1 to [`MAX_STATES`] exponentials with
 //! energies ordered by construction, `E_n = E_{n-1} + exp(l_n)` (the fitted log-gap `l_n`
 //! keeps excited states from swapping), optionally in the symmetric periodic form
 //! `A_n (e^{-E_n t} + e^{-E_n (T - t)})` for mesons on a lattice with periodic time.

@@ -1,9 +1,9 @@
 //! `manifest.json` of a run: tool version, input digests, the resolved settings, the seed,
 //! the real start of the run, the time of every stage and every warning.
 
+use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::ResamplingMethod;
-use crate::pipeline::Plan;
 use crate::report::Manifest;
 use crate::Result;
 

@@ -12,8 +12,8 @@ pub mod tables;
 pub use summary::terminal_summary;
 pub use tables::{summary_table, TableName, Tables};
 
+use super::plan::Plan;
 use super::run::RunResults;
-use super::Plan;
 use crate::report::render_svg;
 use crate::{Error, Result};
 use page::Rendered;

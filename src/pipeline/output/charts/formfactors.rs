@@ -1,11 +1,11 @@
 //! Form factors versus Q², one chart per form factor: every estimator's points, and the
 //! final estimator's Q² fits as bands over the range of the data.
 
-use super::Figure;
+use super::figure::Figure;
 use crate::kinematics::HBARC_GEV_FM;
+use crate::pipeline::plan::Plan;
 use crate::pipeline::run::{FormFactorRow, RunResults};
 use crate::pipeline::spec::Plot;
-use crate::pipeline::Plan;
 use crate::ratio::Estimator;
 use crate::report::{Chart, Series};
 use crate::resample::Resampled;

@@ -8,35 +8,17 @@
 //! charts in the submodule of the stage it shows, call it from [`figures`], and place the
 //! kind in a section of the page (`page.rs`).
 
+mod figure;
+mod final_results;
 mod formfactors;
 mod ratio;
 mod spectrum;
 
+pub use figure::Figure;
+
+use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
-use crate::pipeline::Plan;
-use crate::report::Chart;
-
-/// One chart of the report with its kind and file stem.
-#[derive(Clone, Debug)]
-pub struct Figure {
-    /// The kind of plot.
-    pub kind: Plot,
-    /// File stem under `plots/`.
-    pub name: String,
-    /// The chart.
-    pub chart: Chart,
-}
-
-impl Figure {
-    fn new(kind: Plot, name: impl Into<String>, chart: Chart) -> Figure {
-        Figure {
-            kind,
-            name: name.into(),
-            chart,
-        }
-    }
-}
 
 /// The figures the pipeline asks for, in the order of [`Plot`].
 pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
@@ -52,6 +34,7 @@ pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
             Plot::Ratio => out.extend(ratio::ratio_charts(&shown)),
             Plot::Summation => out.extend(ratio::summation_charts(&shown)),
             Plot::FormFactors => out.extend(formfactors::charts(plan, results)),
+            Plot::FinalVariants => out.extend(final_results::charts(results)),
         }
     }
     out

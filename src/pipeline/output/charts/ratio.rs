@@ -1,7 +1,7 @@
 //! Ratio-stage plots for a few showcase channels: the ratio versus `tau` per `tsep` with the
 //! plateau bands and the final estimate, and the summed ratio versus `tsep` with its line.
 
-use super::Figure;
+use super::figure::Figure;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
 use crate::ratio::{ChannelKey, ChannelResult, ReIm};

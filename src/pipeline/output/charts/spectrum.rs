@@ -1,6 +1,6 @@
 //! Spectrum plots: effective masses with the fitted energy, and the dispersion relation.
 
-use super::Figure;
+use super::figure::Figure;
 use crate::data::norm2;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;

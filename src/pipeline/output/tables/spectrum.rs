@@ -1,6 +1,6 @@
 //! The spectrum tables: energies per momentum and state, and the dispersion check.
 
-use super::{float, opt};
+use super::cells::{float, opt};
 use crate::pipeline::run::RunResults;
 use crate::report::{Cell, Table};
 use crate::spectrum::ChosenFit;

@@ -1,9 +1,9 @@
-//! Renormalization (methods.md §4): the bare matrix element times a user-supplied `Z ± dZ` per
+//! Renormalization (docs/methods.md §4), applied to the form factors after the decomposition:
+//! the bare value times a user-supplied `Z ± dZ` per
 //! current kind (e.g. `Z_V`, `Z_A`). The `Z` error does not come from the ensemble, so it is
 //! kept as its own error column and combined with the statistical error in quadrature:
 //! `sigma_stat = |Z| sigma(bare)`, `sigma_Z = |bare| dZ`, `sigma_total = sqrt(sigma_stat^2 + sigma_Z^2)`.
 
-use super::ReIm;
 use crate::data::CurrentKind;
 use crate::resample::Resampled;
 use schemars::JsonSchema;
@@ -45,6 +45,35 @@ pub struct ZFactors {
 }
 
 impl ZFactors {
+    /// Check every constant: `Z` positive and finite, `dZ` zero or positive.
+    pub fn validate(&self) -> Result<(), crate::Invalid> {
+        for (name, f) in [
+            ("vector", self.vector),
+            ("axial", self.axial),
+            ("scalar", self.scalar),
+            ("pseudoscalar", self.pseudoscalar),
+            ("tensor", self.tensor),
+        ] {
+            let Some(f) = f else { continue };
+            if !(f.value.is_finite() && f.value > 0.0) {
+                return Err(crate::Invalid::new(
+                    format!("{name}.value"),
+                    format!("Z = {} is not valid: expected a positive number", f.value),
+                ));
+            }
+            if !(f.error.is_finite() && f.error >= 0.0) {
+                return Err(crate::Invalid::new(
+                    format!("{name}.error"),
+                    format!(
+                        "dZ = {} is not valid: expected zero or a positive number",
+                        f.error
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
     /// The constant for `kind` (`Z = 1` when none was given).
     pub fn get(&self, kind: CurrentKind) -> ZFactor {
         match kind {
@@ -82,26 +111,4 @@ pub fn renormalize(bare: &Resampled, z: ZFactor) -> Renormalized {
         error_z,
         error_total: error_stat.hypot(error_z),
     }
-}
-
-/// A renormalized complex quantity: each part with its own error budget.
-#[derive(Clone, Debug, PartialEq, Serialize)]
-pub struct RenormalizedReIm {
-    /// Real part.
-    pub re: Renormalized,
-    /// Imaginary part.
-    pub im: Renormalized,
-}
-
-/// Renormalize both parts of a complex estimate.
-pub fn renormalize_re_im(bare: &ReIm, z: ZFactor) -> RenormalizedReIm {
-    RenormalizedReIm {
-        re: renormalize(&bare.re, z),
-        im: renormalize(&bare.im, z),
-    }
-}
-
-/// Renormalize the final estimate of a channel with the constant of its current's kind.
-pub fn renormalize_final(result: &super::ChannelResult, z: &ZFactors) -> RenormalizedReIm {
-    renormalize_re_im(&result.final_estimate, z.get(result.key.current.kind()))
 }

@@ -1,4 +1,4 @@
-//! Two-state fit of the ratio, joint over all `tsep` and `tau` (methods.md §4).
+//! The fixed-gap two-state fit of the ratio, joint over all `tsep` and `tau` (docs/methods.md §4).
 //!
 //! With `C2 = A_0 e^{-E_0 t} (1 + a e^{-Delta t})` at the source (`i`) and sink (`f`) momenta
 //! and the three-point function's ground-state term times
@@ -15,11 +15,12 @@
 //! With `a` and `Delta` taken per resample from the two-point stage, the fit is linear in
 //! `(M, c_i, c_f, c_if)` and solved in closed form per resample with the covariance frozen.
 //! For `p_f = p_i` with identical interpolators `c_i = c_f` is enforced (one parameter).
-//! The floating-gap variant lives in the private module `two_state_float`.
+//! The floating-gap and joint variants ([`super::floating`], [`super::joint`]) build on the
+//! types and the fixed-gap solution of this module.
 
-use super::lsq::{fit_re_im, Design};
-use super::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
 use crate::data::Momentum;
+use crate::ratio::lsq::{fit_re_im, Design};
+use crate::ratio::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
 use crate::resample::Resampled;
 use crate::{Error, Result};
 use nalgebra::DMatrix;
@@ -112,7 +113,7 @@ impl<'a> Setup<'a> {
                 )
             })
         };
-        let source = lookup(key.pi(), "source")?;
+        let source = lookup(key.source_momentum(), "source")?;
         let sink = lookup(key.pf, "sink")?;
         let n = ratio.points.first().map_or(0, |p| p.value.re.len());
         for s in [source, sink] {
@@ -146,7 +147,7 @@ impl<'a> Setup<'a> {
             tseps,
             source,
             sink,
-            symmetric: key.pf == key.pi() && settings.identical_interpolators,
+            symmetric: key.pf == key.source_momentum() && settings.identical_interpolators,
         })
     }
 
@@ -234,23 +235,6 @@ pub fn two_state_fixed(
         n_points: setup.points.len(),
         gaps: None,
     })
-}
-
-/// The two-state fit in the variant `settings.two_state` asks for.
-pub fn two_state(
-    ratio: &ChannelRatio,
-    states: &BTreeMap<Momentum, TwoPointStates>,
-    settings: &RatioSettings,
-) -> Result<TwoStateFit> {
-    match settings.two_state {
-        super::TwoStateVariant::FixedGaps => two_state_fixed(ratio, states, settings),
-        super::TwoStateVariant::FloatingGaps { prior_width_factor } => {
-            super::two_state_float::two_state_floating(ratio, states, settings, prior_width_factor)
-        }
-        super::TwoStateVariant::JointWithTwoPoint { t_min, t_max } => {
-            super::two_state_joint::two_state_joint(ratio, states, settings, t_min, t_max)
-        }
-    }
 }
 
 /// Test helper shared by the two-state fit models.

@@ -1,7 +1,7 @@
 //! The terminal observer of a run: a spinner per stage on standard error when it is a
 //! terminal (indicatif), nothing otherwise or when asked to be quiet.
 
-use super::run::Observer;
+use crate::pipeline::Observer;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::IsTerminal;
 use std::sync::Mutex;

@@ -7,6 +7,8 @@
 //! Channel keys follow shared conventions (see `DEVELOPERS.md`): momenta are integer vectors
 //! in units of `2 pi / L`; the source momentum of a three-point channel is `p_f - q`.
 
+pub mod flavor;
+
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -38,7 +40,7 @@ pub fn sub(a: Momentum, b: Momentum) -> Momentum {
     [a[0] - b[0], a[1] - b[1], a[2] - b[2]]
 }
 
-/// The current inserted in a three-point function (data-format.md names).
+/// The current inserted in a three-point function (docs/data-format.md names).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 #[allow(missing_docs)]
 pub enum Current {
@@ -76,7 +78,7 @@ pub enum CurrentKind {
 }
 
 impl Current {
-    /// Every current, in data-format.md order.
+    /// Every current, in docs/data-format.md order.
     pub const ALL: [Current; 16] = [
         Current::V1,
         Current::V2,
@@ -118,9 +120,21 @@ impl Current {
         }
     }
 
-    /// Parse a CSV name; `None` for anything not in data-format.md.
+    /// Parse a CSV name; `None` for anything not in `docs/data-format.md`.
     pub fn parse(s: &str) -> Option<Current> {
         Current::ALL.iter().copied().find(|c| c.name() == s)
+    }
+
+    /// The message for a name that is not a current: the near miss, if any, and every
+    /// valid name.
+    pub fn unknown(name: &str) -> String {
+        let names: Vec<&str> = Current::ALL.iter().map(|c| c.name()).collect();
+        let mut m = format!("`{name}` is not a current");
+        if let Some(s) = crate::error::suggest(name, &names) {
+            m.push_str(&format!("; did you mean `{s}`?"));
+        }
+        m.push_str(&format!(" Valid: {}.", names.join(", ")));
+        m
     }
 
     /// The Lorentz structure.
@@ -160,7 +174,7 @@ impl fmt::Display for Current {
     }
 }
 
-/// The spin projector of a three-point function (data-format.md names).
+/// The spin projector of a three-point function (docs/data-format.md names).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 pub enum Projector {
     /// `unpol`: `(1 + gamma_4) / 2`.
@@ -184,7 +198,7 @@ impl Projector {
         }
     }
 
-    /// Parse a CSV name; `None` for anything not in data-format.md.
+    /// Parse a CSV name; `None` for anything not in docs/data-format.md.
     pub fn parse(s: &str) -> Option<Projector> {
         match s {
             "unpol" => Some(Projector::Unpol),
@@ -246,7 +260,7 @@ pub struct ThreePointKey {
 
 impl ThreePointKey {
     /// Source momentum `p_i = p_f - q`.
-    pub fn pi(&self) -> Momentum {
+    pub fn source_momentum(&self) -> Momentum {
         sub(self.pf, self.q)
     }
 }

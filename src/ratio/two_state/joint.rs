@@ -1,18 +1,18 @@
-//! Joint two-state fit of the ratio and the two-point functions (methods.md §4, "the stronger
+//! Joint two-state fit of the ratio and the two-point functions (docs/methods.md §4, "the stronger
 //! variant"): the two-point functions at the source and sink momenta,
 //! `C2(t) = A_0 e^{-E_0 t} (1 + a e^{-Delta t})` for `t_min <= t <= t_max`, are fitted together
-//! with the ratio of [`super::two_state`], sharing `a` and `Delta` per momentum, so the
+//! with the ratio of [`super::fixed`], sharing `a` and `Delta` per momentum, so the
 //! two-point information and its correlation with the ratio enter one chi-square. Parameters:
 //! the linear ones per fitted part, then `(A_0, E_0, a, Delta)` at the source and (unless
 //! `p_f = p_i`) at the sink. No priors; starting values are the fixed-gap solution and the
 //! two-point stage's `E_0`, `a`, `Delta`, with `A_0` matched at `t_min`.
 
-use super::lsq::weights;
-use super::two_state::{Gaps, TwoPointStates, TwoStateFit};
-use super::two_state_float::{at, ratio_point, solver_settings, Frame};
-use super::{ChannelRatio, RatioSettings, STAGE};
+use super::fixed::{Gaps, TwoPointStates, TwoStateFit};
+use super::floating::{at, ratio_point, solver_settings, Frame};
 use crate::data::Momentum;
 use crate::fit::{nonlinear, Model};
+use crate::ratio::lsq::weights;
+use crate::ratio::{ChannelRatio, RatioSettings, STAGE};
 use crate::resample::Resampled;
 use crate::{Error, Result};
 use nalgebra::DMatrix;
@@ -157,7 +157,7 @@ pub fn two_state_joint(
         Err(zero) => return Ok(zero),
     };
     let what = frame.what.clone();
-    let shared = ratio.key.pf == ratio.key.pi();
+    let shared = ratio.key.pf == ratio.key.source_momentum();
     let n_t = ratio.c2_source.len().min(ratio.c2_sink.len());
     if t_min >= t_max || t_max as usize >= n_t {
         return Err(Error::analysis(
@@ -210,7 +210,7 @@ pub fn two_state_joint(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ratio::two_state::jacobian_check::assert_jacobian_matches;
+    use crate::ratio::two_state::fixed::jacobian_check::assert_jacobian_matches;
 
     #[test]
     fn jacobian_matches_finite_differences() {

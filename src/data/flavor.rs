@@ -1,8 +1,8 @@
 //! Flavour combinations of three-point data, formed per configuration before the ratio
-//! (methods.md §5): isovector `u - d` (disconnected parts cancel in the isospin limit),
+//! (docs/methods.md §5): isovector `u - d` (disconnected parts cancel in the isospin limit),
 //! isoscalar `u + d` (needs connected and disconnected diagrams), or any weighted sum.
 
-use crate::data::{Diagram, Series, ThreePointData, ThreePointKey};
+use super::{Diagram, Series, ThreePointData, ThreePointKey};
 use crate::{Error, Result};
 use serde::{Deserialize, Serialize};
 use std::collections::{BTreeMap, BTreeSet};

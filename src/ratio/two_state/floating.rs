@@ -1,6 +1,6 @@
-//! Two-state fit of the ratio with floating gaps (methods.md §4, the non-linear variant).
+//! Two-state fit of the ratio with floating gaps (docs/methods.md §4, the non-linear variant).
 //!
-//! The model is that of [`super::two_state`], with the gaps `Delta_i`, `Delta_f` as
+//! The model is that of [`super::fixed`], with the gaps `Delta_i`, `Delta_f` as
 //! parameters constrained by Gaussian priors ("constrained curve fitting", Lepage et al.,
 //! Nucl. Phys. Proc. Suppl. 106 (2002) 12). The real and imaginary parts are fitted jointly
 //! with shared gaps: parameters `(M, c_i, c_f, c_if)` per part, then the gaps; `c_f` is
@@ -11,11 +11,11 @@
 //! the reported fit quality (chi-square including the prior terms) is that of the joint fit,
 //! given for both parts.
 
-use super::lsq::weights;
-use super::two_state::{f2, two_state_fixed, FittedGaps, Gaps, Setup, TwoPointStates, TwoStateFit};
-use super::{ChannelRatio, FitQuality, RatioSettings, ReIm, ReImFit, STAGE};
+use super::fixed::{f2, two_state_fixed, FittedGaps, Gaps, Setup, TwoPointStates, TwoStateFit};
 use crate::data::Momentum;
 use crate::fit::{nonlinear, FitReport, FitSettings, Model, Prior};
+use crate::ratio::lsq::weights;
+use crate::ratio::{ChannelRatio, FitQuality, RatioSettings, ReIm, ReImFit, STAGE};
 use crate::resample::Resampled;
 use crate::{Error, Result};
 use nalgebra::DMatrix;
@@ -230,7 +230,7 @@ pub fn two_state_floating(
     };
     let what = frame.what.clone();
     let (w, warnings) = weights(&frame.stacked, ratio.covariance(settings), &what)?;
-    let shared_gap = ratio.key.pf == ratio.key.pi();
+    let shared_gap = ratio.key.pf == ratio.key.source_momentum();
     let setup = &frame.setup;
     let gap_states: Vec<&Resampled> = if shared_gap {
         vec![&setup.source.gap]
@@ -456,7 +456,7 @@ impl Model for FloatingGapModel {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ratio::two_state::jacobian_check::assert_jacobian_matches;
+    use crate::ratio::two_state::fixed::jacobian_check::assert_jacobian_matches;
 
     fn times() -> Vec<(f64, f64)> {
         [

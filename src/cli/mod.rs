@@ -2,6 +2,8 @@
 //!
 //! Only argument handling and printing live here; everything testable is in the library.
 
+mod progress;
+
 use clap::{Args, CommandFactory, Parser, Subcommand};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -39,9 +41,11 @@ pub enum Command {
         after_help = "Example:\n  formfactory campaign run pipelines/campaign-demo.yaml && formfactory campaign combine pipelines/campaign-demo.yaml --force"
     )]
     Campaign(crate::campaign::command::CampaignArgs),
-    /// Print the JSON Schema of the pipeline file.
-    #[command(after_help = "Example:\n  formfactory schema > schemas/pipeline.schema.json")]
-    Schema,
+    /// Print the JSON Schema of the pipeline file (or of the mock specification).
+    #[command(
+        after_help = "Examples:\n  formfactory schema > schemas/pipeline.schema.json\n  formfactory schema --mock > schemas/mock.schema.json\n  formfactory schema --markdown   # the key table of docs/pipeline.md"
+    )]
+    Schema(SchemaArgs),
     /// Print shell completions.
     #[command(
         after_help = "Example:\n  formfactory completions bash > ~/.local/share/bash-completion/completions/formfactory"
@@ -161,7 +165,7 @@ fn dispatch(cli: Cli) -> crate::Result<()> {
         Command::Mock(a) => mock(a),
         Command::Inspect(a) => inspect(a),
         Command::Campaign(a) => crate::campaign::command::dispatch(a),
-        Command::Schema => schema(),
+        Command::Schema(a) => schema(a),
         Command::Completions(a) => {
             let mut buf = Vec::new();
             clap_complete::generate(a.shell, &mut Cli::command(), "formfactory", &mut buf);
@@ -182,7 +186,7 @@ fn run(a: RunArgs) -> crate::Result<()> {
     }
     plan.force = a.force;
     plan.jobs = a.jobs;
-    let progress = crate::pipeline::progress::Progress::new(a.quiet);
+    let progress = progress::Progress::new(a.quiet);
     let results = crate::pipeline::run(&plan, &progress)?;
     if !a.quiet {
         emit(&crate::pipeline::output::terminal_summary(&results))?;
@@ -205,6 +209,24 @@ fn inspect(a: InspectArgs) -> crate::Result<()> {
     emit(&report)
 }
 
-fn schema() -> crate::Result<()> {
-    emit(&crate::pipeline::schema_json())
+fn schema(a: SchemaArgs) -> crate::Result<()> {
+    let text = match (a.mock, a.markdown) {
+        (false, false) => crate::pipeline::schema_json(),
+        (true, false) => crate::mock::schema_json(),
+        (false, true) => crate::pipeline::reference::markdown(&crate::pipeline::schema_value()),
+        (true, true) => crate::pipeline::reference::markdown(&crate::mock::schema_value()),
+    };
+    emit(&text)
+}
+
+/// Arguments of `formfactory schema`.
+#[derive(clap::Args, Debug)]
+pub struct SchemaArgs {
+    /// The mock specification's schema instead of the pipeline file's.
+    #[arg(long)]
+    mock: bool,
+    /// The key table of the reference document (docs/pipeline.md, docs/mock.md) instead of
+    /// the JSON Schema.
+    #[arg(long)]
+    markdown: bool,
 }
