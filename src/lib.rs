@@ -30,6 +30,7 @@ pub mod campaign;
 pub mod cli;
 pub mod data;
 pub mod error;
+pub mod error_budget;
 pub mod fit;
 pub mod io;
 pub mod kinematics;

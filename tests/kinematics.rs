@@ -768,6 +768,49 @@ mod decomposition {
     }
 
     // Spin 0 (methods.md §5): channels V_mu with projector none decompose into F.
+    // A shell whose channels fix only one combination of G_A and G_P (q = (0,0,1), sink at
+    // rest, the pol3 projector alone: the A3 and A4 rows are proportional, singular values
+    // 1 and ~1e-17) reports neither and says what is missing; with the pol1 projector added
+    // both are determined and recovered exactly (analytic: exact synthetic ratios).
+    #[test]
+    fn singular_shell_reports_nothing_and_says_why() {
+        let n = 20;
+        let st = setup(varying_mass(n));
+        let frames = [([0, 0, 0], [0, 0, 1])];
+        let currents = [Current::A1, Current::A2, Current::A3, Current::A4];
+        let all = exact_channels(&st, &frames, &currents, &varying_truth);
+        let pol3: Vec<ChannelValue> = all
+            .iter()
+            .filter(|c| c.projector == Projector::Pol(3))
+            .cloned()
+            .collect();
+        let d = decompose(&pol3, &st, &DecompositionSettings::default()).expect("runs");
+        assert!(d.shells.iter().all(|s| s.form_factors.is_empty()), "{d:?}");
+        assert_eq!(d.skipped.len(), 1, "{d:?}");
+        let reason = &d.skipped[0].reason;
+        assert!(
+            reason.contains("GA")
+                && reason.contains("GP")
+                && reason.contains("q direction or projector"),
+            "{reason}"
+        );
+        let both: Vec<ChannelValue> = all
+            .iter()
+            .filter(|c| matches!(c.projector, Projector::Pol(1) | Projector::Pol(3)))
+            .cloned()
+            .collect();
+        let d = decompose(&both, &st, &DecompositionSettings::default()).expect("runs");
+        assert_eq!(d.shells.len(), 1, "{d:?}");
+        let shell = &d.shells[0];
+        assert!(shell.undetermined.is_empty());
+        assert!(shell.condition.is_finite() && shell.condition >= 1.0);
+        assert_eq!(shell.form_factors.len(), 2);
+        for (ff, g) in &shell.form_factors {
+            let q2 = shell.q2.central;
+            assert_abs_diff_eq!(g.central, varying_truth(*ff, q2, None), epsilon = 1e-9);
+        }
+    }
+
     #[test]
     fn spin0_decomposition() {
         let n = 8;

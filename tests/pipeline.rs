@@ -438,3 +438,107 @@ fn missing_data_is_reported_with_its_key() {
     );
     assert!(!dir.path().join("run").exists());
 }
+
+/// Follow `$ref` (and a single-element `allOf` wrapping one) to the definition.
+fn resolve<'a>(node: &'a serde_json::Value, root: &'a serde_json::Value) -> &'a serde_json::Value {
+    let target = node
+        .get("$ref")
+        .or_else(|| node.get("allOf")?.get(0)?.get("$ref"))
+        .and_then(|r| r.as_str());
+    match target.and_then(|r| r.rsplit('/').next()) {
+        Some(name) => resolve(&root["definitions"][name], root),
+        None => node,
+    }
+}
+
+/// Every schema `default` under `node` must equal the value the code resolves when the key
+/// is absent (`raw` is the YAML as written; keys present there are not compared).
+fn compare_defaults(
+    node: &serde_json::Value,
+    resolved: &serde_json::Value,
+    raw: Option<&serde_json::Value>,
+    root: &serde_json::Value,
+    path: &str,
+    errors: &mut Vec<String>,
+) {
+    let node = resolve(node, root);
+    if let (Some(items), Some(list)) = (node.get("items"), resolved.as_array()) {
+        for (i, v) in list.iter().enumerate() {
+            let r = raw.and_then(|r| r.get(i));
+            compare_defaults(items, v, r, root, &format!("{path}[{i}]"), errors);
+        }
+        return;
+    }
+    let Some(object) = resolved.as_object() else {
+        return;
+    };
+    let mut props: Vec<&serde_json::Map<String, serde_json::Value>> = Vec::new();
+    if let Some(p) = node.get("properties").and_then(|p| p.as_object()) {
+        props.push(p);
+    }
+    // A flattened tagged enum: the variant whose properties know every remaining key.
+    for key in ["oneOf", "anyOf"] {
+        for variant in node
+            .get(key)
+            .and_then(|v| v.as_array())
+            .into_iter()
+            .flatten()
+        {
+            let variant = resolve(variant, root);
+            let Some(vp) = variant.get("properties").and_then(|p| p.as_object()) else {
+                continue;
+            };
+            let known = |k: &String| vp.contains_key(k) || props.iter().any(|p| p.contains_key(k));
+            if object.keys().all(known) {
+                props.push(vp);
+                break;
+            }
+        }
+    }
+    for p in props {
+        for (key, prop) in p {
+            let Some(value) = object.get(key) else {
+                continue;
+            };
+            let raw_value = raw.and_then(|r| r.get(key));
+            if raw_value.is_none() {
+                if let Some(default) = resolve(prop, root).get("default").or(prop.get("default")) {
+                    if default != value {
+                        errors.push(format!(
+                            "{path}.{key}: schema default {default}, code {value}"
+                        ));
+                    }
+                }
+            }
+            compare_defaults(
+                prop,
+                value,
+                raw_value,
+                root,
+                &format!("{path}.{key}"),
+                errors,
+            );
+        }
+    }
+}
+
+// The defaults the JSON Schema advertises are the ones the code applies: a key left out of a
+// section resolves to the schema's default for it, at every depth (a partial block such as
+// `covariance: {eigen_cut: 0.01}` must not switch `kind` to another default).
+#[test]
+fn schema_defaults_match_the_code() {
+    let schema: serde_json::Value =
+        serde_json::from_str(&pipeline::schema_json()).expect("schema is JSON");
+    let yaml = "ensemble: {label: x, L: 8, T: 16, spacing_fm: 0.1, pion_mass: 0.3, hadron: spin1half}\n\
+                data: {twopt: a.csv, threept: b.csv}\n\
+                ratio: {tsep: [4, 6]}\n\
+                excited_states: {covariance: {eigen_cut: 0.01}}\n\
+                spectrum: {t_min: {from: 2, to: 4}, t_max: 8}\n\
+                q2_fits: {form_factors: {GE: [{model: dipole}, {model: z-expansion, t_cut: 0.1}]}}\n";
+    let spec: pipeline::PipelineSpec = serde_yaml_ng::from_str(yaml).expect("valid spec");
+    let resolved = serde_json::to_value(&spec).expect("serializes");
+    let raw: serde_json::Value = serde_yaml_ng::from_str(yaml).expect("yaml");
+    let mut errors = Vec::new();
+    compare_defaults(&schema, &resolved, Some(&raw), &schema, "", &mut errors);
+    assert!(errors.is_empty(), "{}", errors.join("\n"));
+}

@@ -9,7 +9,8 @@ use formfactory::kinematics::{
     FormFactor, Hadron, KinematicSetup, HBARC_GEV_FM,
 };
 use formfactory::q2::{
-    dirac_pauli_radii, fit, t0_optimal, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, TCut, T0,
+    dirac_pauli_radii, fit, t0_optimal, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, TCut, ZPrior,
+    T0,
 };
 use formfactory::resample::{ResamplePlan, Resampled, Scheme};
 use nalgebra::Complex;
@@ -133,8 +134,9 @@ fn z_expansion_recovers_polynomial_and_radius() {
         },
         t0: T0::Zero,
         kmax: 3,
-        prior: Some(Prior::new(0.0, 100.0)),
+        prior: Some(ZPrior::Fixed(Prior::new(0.0, 100.0))),
         sum_rules: 0,
+        pole_mass: None,
     };
     let f = fit(&pts, &settings(model), Q2Units::GeV2).expect("fit converges");
     assert_relative_eq!(f.g0.central, 1.0, max_relative = 1e-4);
@@ -165,8 +167,9 @@ fn z_expansion_with_sum_rules_on_dipole_data() {
         t_cut: TCut::Value(4.0 * 0.14f64.powi(2)),
         t0: T0::Optimal,
         kmax: 8,
-        prior: Some(Prior::new(0.0, 5.0)),
+        prior: Some(ZPrior::Fixed(Prior::new(0.0, 5.0))),
         sum_rules: 4,
+        pole_mass: None,
     };
     let mut s = settings(model);
     s.weights = Weighting::Full;
@@ -197,6 +200,7 @@ fn bad_input_is_an_error() {
         kmax: 2,
         prior: None,
         sum_rules: 3,
+        pole_mass: None,
     };
     assert!(fit(&pts, &settings(bad), Q2Units::GeV2).is_err());
     assert!(fit(

@@ -914,10 +914,13 @@ fn settings_read_from_yaml_with_defaults() {
     let schema = schemars::schema_for!(RatioSettings);
     let text = serde_json::to_string(&schema).unwrap();
     assert!(text.contains("summation_tsep_min"));
-    // The covariance block carries the resample stage's own schema, not a free-form value.
+    // The covariance block carries the resample stage's own covariance kind (with the
+    // stage's diagonal default), not a free-form value.
     let covariance = &schema.schema.object.as_ref().expect("object").properties["covariance"];
     let covariance = serde_json::to_string(covariance).unwrap();
-    assert!(covariance.contains("CovarianceOptions"), "{covariance}");
+    assert!(covariance.contains("RatioCovariance"), "{covariance}");
+    let block = serde_json::to_string(&schema.definitions["RatioCovariance"]).unwrap();
+    assert!(block.contains("CovarianceKind"), "{block}");
     assert!(
         text.contains("eigen_cut") && text.contains("shrinkage"),
         "{text}"
@@ -947,4 +950,34 @@ fn results_do_not_depend_on_the_thread_count() {
             .unwrap()
     };
     assert_eq!(run(1), run(3));
+}
+
+// Real and imaginary parts are judged separately: a 5-sigma real difference does not flag an
+// imaginary part that agrees, and a part that is identical on every resample (a vanishing
+// imaginary part) is not a comparison at all, so it cannot be counted (analytic: jackknife
+// error of a known sample spread).
+#[test]
+fn crosscheck_parts_are_judged_separately() {
+    use formfactory::resample::Scheme;
+    let n = 10;
+    let spread = |c: f64, s: f64| {
+        Resampled::new(
+            c,
+            (0..n)
+                .map(|j| c + s * if j % 2 == 0 { 1.0 } else { -1.0 })
+                .collect(),
+            Scheme::Jackknife,
+        )
+    };
+    let zero = Resampled::constant(0.0, n, Scheme::Jackknife);
+    let re = difference(&spread(1.0, 0.1), &spread(0.0, 0.0));
+    // jackknife error of +-0.1 alternating: sqrt((n-1)/n * n * 0.01) = 0.3
+    assert!((re.error - 0.3).abs() < 1e-12);
+    assert_eq!(re.flag, Flag::Above2Sigma);
+    let im = difference(&spread(0.1, 0.1), &spread(0.0, 0.0));
+    assert_eq!(im.flag, Flag::Consistent);
+    assert!(im.informative);
+    let silent = difference(&zero, &zero);
+    assert!(!silent.informative);
+    assert_eq!(silent.flag, Flag::Consistent);
 }

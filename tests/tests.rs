@@ -14,6 +14,7 @@ mod kinematics;
 mod mock;
 mod pipeline;
 mod q2;
+mod q2_priors;
 mod ratio;
 mod report;
 mod resample;

@@ -133,9 +133,22 @@ pub struct ShellResult {
     pub dof: usize,
     /// `chi2 / dof` of the central solve; `None` when `dof = 0`.
     pub chi2_dof: Option<f64>,
-    /// Condition number of the whitened coefficient matrix (central value).
+    /// Condition number of the whitened coefficient matrix (central value): the largest
+    /// singular value over the smallest one kept (above [`SINGULAR_THRESHOLD`] of the
+    /// largest).
     pub condition: f64,
+    /// Form factors the shell's channels do not determine (they mix with a direction whose
+    /// singular value is below [`SINGULAR_THRESHOLD`] of the largest); not reported.
+    pub undetermined: Vec<FormFactor>,
 }
+
+/// A singular value below this share of the largest counts as zero: the combination of form
+/// factors along it is not determined by the shell's channels.
+pub const SINGULAR_THRESHOLD: f64 = 1e-8;
+
+/// A form factor is reported only if its overlap with the undetermined directions is below
+/// this (the pseudo-inverse solution is then independent of them).
+const NULL_OVERLAP: f64 = 1e-6;
 
 /// A shell that could not be solved, and why.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -359,7 +372,8 @@ fn solve_shell(
         let k = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
         central.insert(ci, (k, coeffs(c, None)?));
     }
-    let solve = |s: Option<usize>| -> std::result::Result<(DVector<f64>, f64, f64), String> {
+    type Solved = (DVector<f64>, f64, f64, Vec<bool>, usize);
+    let solve = |s: Option<usize>| -> std::result::Result<Solved, String> {
         let mut k = DMatrix::zeros(rows.len(), unknowns.len());
         // Coefficients per used channel; reuse the central ones when the kinematics of this
         // sample are the central kinematics (exact masses and energies).
@@ -395,27 +409,52 @@ fn solve_shell(
         let svd = nalgebra::SVD::try_new_unordered(a.clone(), true, true, f64::EPSILON, 10_000)
             .ok_or_else(|| format!("{}: the decomposition's SVD did not converge", which()))?;
         let smax = svd.singular_values.max();
-        let smin = svd.singular_values.min();
-        if !smax.is_finite() || smin.is_nan() {
+        if svd.singular_values.iter().any(|v| !v.is_finite()) {
             return Err(format!(
                 "{}: the decomposition's SVD gave a non-finite singular value",
                 which()
             ));
         }
-        if smin <= smax * 1e-12 {
-            return Err(
-                "the coefficient matrix is singular: the channels do not separate the form factors"
-                    .into(),
-            );
+        if smax <= 0.0 {
+            return Err("the coefficient matrix is zero".into());
         }
-        let g = svd.solve(&b, 0.0).map_err(|e| e.to_string())?;
+        let cut = smax * SINGULAR_THRESHOLD;
+        let kept_min = svd
+            .singular_values
+            .iter()
+            .copied()
+            .filter(|v| *v > cut)
+            .fold(f64::INFINITY, f64::min);
+        let g = svd.solve(&b, cut).map_err(|e| e.to_string())?;
         let chi2 = (&a * &g - &b).norm_squared();
-        Ok((g, chi2, smax / smin))
+        let null: Vec<usize> = (0..svd.singular_values.len())
+            .filter(|&i| svd.singular_values[i] <= cut)
+            .collect();
+        let v_t = svd
+            .v_t
+            .as_ref()
+            .ok_or("the SVD gave no right singular vectors")?;
+        let determined: Vec<bool> = (0..unknowns.len())
+            .map(|col| {
+                null.iter()
+                    .map(|&i| v_t[(i, col)].powi(2))
+                    .sum::<f64>()
+                    .sqrt()
+                    < NULL_OVERLAP
+            })
+            .collect();
+        Ok((g, chi2, smax / kept_min, determined, null.len()))
     };
-    let (g0, chi2, condition) = solve(None)?;
+    let (g0, chi2, condition, determined, n_null) = solve(None)?;
+    if !determined.iter().any(|d| *d) {
+        return Err(format!(
+            "the coefficient matrix is singular: the channels determine none of {} alone (needs another q direction or projector)",
+            names(unknowns.iter().map(|&j| all[j]))
+        ));
+    }
     let per_sample = (0..n)
         .into_par_iter()
-        .map(|s| solve(Some(s)).map(|(g, _, _)| g))
+        .map(|s| solve(Some(s)).map(|(g, ..)| g))
         .collect::<std::result::Result<Vec<_>, String>>()?;
     let samples: Vec<Vec<f64>> = (0..unknowns.len())
         .map(|col| per_sample.iter().map(|g| g[col]).collect())
@@ -425,7 +464,14 @@ fn solve_shell(
         .iter()
         .zip(samples)
         .enumerate()
+        .filter(|(col, _)| determined[*col])
         .map(|(col, (&j, smp))| (all[j], Resampled::new(g0[col], smp, scheme)))
+        .collect();
+    let undetermined = unknowns
+        .iter()
+        .zip(&determined)
+        .filter(|(_, d)| !**d)
+        .map(|(&j, _)| all[j])
         .collect();
     let q2s = used
         .iter()
@@ -440,7 +486,7 @@ fn solve_shell(
         v.iter().sum::<f64>() / v.len() as f64
     })
     .map_err(|e| e.to_string())?;
-    let dof = rows.len() - unknowns.len();
+    let dof = rows.len() - (unknowns.len() - n_null);
     Ok(ShellResult {
         label: String::new(),
         kind,
@@ -452,7 +498,12 @@ fn solve_shell(
         dof,
         chi2_dof: (dof > 0).then(|| chi2 / dof as f64),
         condition,
+        undetermined,
     })
+}
+
+fn names(list: impl Iterator<Item = FormFactor>) -> String {
+    list.map(|f| f.name()).collect::<Vec<_>>().join(", ")
 }
 
 /// Whitening of the stacked parts: inverse errors, or the (shrunk) covariance estimated from

@@ -23,6 +23,7 @@ mod setup;
 
 pub use decompose::{
     decompose, ChannelValue, Decomposition, DecompositionSettings, ShellResult, SkippedShell,
+    SINGULAR_THRESHOLD,
 };
 pub use phase::Phase;
 pub use renorm::{renormalize, Renormalized, ZFactor, ZFactors};

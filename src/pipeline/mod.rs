@@ -7,6 +7,7 @@
 //! computation. The JSON Schema of the file ([`schema_json`]) is generated from the same
 //! types, so editors can complete and check pipeline files.
 
+pub mod final_results;
 pub mod output;
 pub mod plan;
 pub mod reference;

@@ -123,6 +123,8 @@ pub struct RunResults {
     pub derived: Vec<DerivedRow>,
     /// The Q² fits themselves (for plots).
     pub q2_fits: Vec<Q2FitResult>,
+    /// The final value and error budget of every form factor and derived quantity.
+    pub final_results: Vec<super::final_results::FinalRow>,
     /// Wall time per stage, in run order.
     pub timings: Vec<(String, Duration)>,
     /// Warnings collected from every stage.
@@ -191,6 +193,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         form_factors: Vec::new(),
         derived: Vec::new(),
         q2_fits: Vec::new(),
+        final_results: Vec::new(),
         timings: Vec::new(),
         warnings: Vec::new(),
         final_method,
@@ -200,7 +203,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
     let Prepared {
         two,
-        three,
+        mut three,
         plan: rplan,
     } = prepared;
 
@@ -210,6 +213,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         for w in &sp.warnings {
             rec.warn(format!("spectrum: {w}"));
         }
+        skip_dropped_momenta(&mut three, &sp.dropped, &mut rec);
         results.spectrum = Some(sp);
     }
     if plan.runs(Stage::Ratio) {
@@ -242,11 +246,40 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
             Ok(q2_fits(plan, &results.form_factors, rec))
         })?;
         results.derived = fits.iter().flat_map(derived_rows).collect();
+        if let Some(mass) = results.spectrum.as_ref().and_then(|s| s.mass.as_ref()) {
+            results
+                .derived
+                .extend(dirac_pauli_rows(&fits, mass, &mut rec));
+        }
         results.q2_fits = fits;
     }
+    results.final_results = super::final_results::final_results(&results, spec.final_value.pin);
     results.timings = rec.timings;
     results.warnings = rec.warnings;
     Ok(results)
+}
+
+/// Remove the three-point channels whose sink or source momentum the spectrum dropped.
+fn skip_dropped_momenta(
+    three: &mut ThreePointData,
+    dropped: &[(Momentum, String)],
+    rec: &mut Recorder,
+) {
+    if dropped.is_empty() {
+        return;
+    }
+    let gone = |p: Momentum| dropped.iter().any(|(d, _)| *d == p);
+    let before = three.channels.len();
+    three
+        .channels
+        .retain(|k, _| !gone(k.pf) && !gone(k.source_momentum()));
+    let n = before - three.channels.len();
+    if n > 0 {
+        rec.warn(format!(
+            "ratio: {n} three-point channel(s) skipped: their sink or source momentum was \
+             dropped by the spectrum stage"
+        ));
+    }
 }
 
 /// The binned data and the one resample plan every later stage uses.
@@ -390,6 +423,16 @@ fn decompose_all(
             ));
         }
         for shell in &dec.shells {
+            if !shell.undetermined.is_empty() {
+                let names: Vec<&str> = shell.undetermined.iter().map(|f| f.name()).collect();
+                rec.warn(format!(
+                    "decomposition {method}: shell {} ({:?}) does not determine {} (a singular value below {:e} of the largest): not reported; needs another q direction or projector",
+                    shell.label,
+                    shell.kind,
+                    names.join(", "),
+                    kinematics::SINGULAR_THRESHOLD
+                ));
+            }
             rows.extend(shell_rows(method, shell, &spec.renormalization));
         }
     }
@@ -459,6 +502,9 @@ fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2Fit
             };
             match q2::fit(&points, settings, units) {
                 Ok(fit) => {
+                    for w in &fit.warnings {
+                        rec.warn(format!("q2_fits {method} {ff} {model}: {w}"));
+                    }
                     if fit.n_failed > 0 {
                         rec.warn(format!(
                             "q2_fits {method} {ff} {model}: {} resample fit(s) did not converge",
@@ -504,6 +550,51 @@ fn derived_rows(f: &Q2FitResult) -> Vec<DerivedRow> {
     }
     if let Some(r) = f.fit.radius_fm() {
         out.push(row(format!("r_{ff}"), r, 0.0, "fm"));
+    }
+    out
+}
+
+/// `kappa`, `r1²`, `r2²` (fm²) and `r1`, `r2` (fm) per method and model from the G_E and G_M
+/// fits of the same method and model (`q2::dirac_pauli_radii`).
+fn dirac_pauli_rows(fits: &[Q2FitResult], mass: &Resampled, rec: &mut Recorder) -> Vec<DerivedRow> {
+    let mut out = Vec::new();
+    for ge in fits.iter().filter(|f| f.form_factor == FormFactor::GE) {
+        let Some(gm) = fits.iter().find(|f| {
+            f.form_factor == FormFactor::GM && f.method == ge.method && f.model == ge.model
+        }) else {
+            continue;
+        };
+        let dp = match q2::dirac_pauli_radii(&ge.fit, &gm.fit, mass) {
+            Ok(dp) => dp,
+            Err(e) => {
+                rec.warn(format!(
+                    "q2_fits {} {}: Dirac/Pauli radii: {e}",
+                    ge.method, ge.model
+                ));
+                continue;
+            }
+        };
+        let row = |quantity: &str, value: Resampled, unit: &str| DerivedRow {
+            method: ge.method,
+            model: ge.model.clone(),
+            quantity: quantity.to_string(),
+            error_total: value.error(),
+            value,
+            unit: unit.to_string(),
+        };
+        // kappa = G_M(0) - G_E(0) scales with Z (the vector current's, shared by both)
+        let z_rel = ge.z_relative_error;
+        let mut kappa = row("kappa", dp.kappa.clone(), "");
+        kappa.error_total = kappa.error_total.hypot(kappa.value.central * z_rel);
+        out.push(kappa);
+        for (name, r2) in [("r1", dp.r1_2_fm2), ("r2", dp.r2_2_fm2)] {
+            let Some(r2) = r2 else { continue };
+            let positive = r2.central > 0.0 && r2.samples.iter().all(|x| *x > 0.0);
+            if positive {
+                out.push(row(name, r2.sqrt(), "fm"));
+            }
+            out.push(row(&format!("{name}^2"), r2, "fm^2"));
+        }
     }
     out
 }

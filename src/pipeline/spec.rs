@@ -11,7 +11,7 @@ use crate::data::Current;
 use crate::kinematics::ZFactors;
 use crate::kinematics::{DecompositionSettings, FormFactor, Hadron};
 use crate::q2::Q2FitSettings;
-use crate::ratio::RatioSettings;
+use crate::ratio::{Estimator, RatioSettings};
 use crate::spectrum::SpectrumSettings;
 use crate::Invalid;
 use schemars::JsonSchema;
@@ -48,6 +48,9 @@ pub struct PipelineSpec {
     /// Q² fits per form factor.
     #[serde(default)]
     pub q2_fits: Q2FitsSpec,
+    /// How the final numbers are made from the analysis variants.
+    #[serde(default)]
+    pub final_value: FinalValueSpec,
     /// The run directory and the plots to draw.
     #[serde(default)]
     pub output: OutputSpec,
@@ -242,6 +245,19 @@ pub enum Plot {
     Summation,
     /// Form factors versus Q² per method, with the Q² fits.
     FormFactors,
+    /// The analysis variants behind each final value, with their weights.
+    FinalVariants,
+}
+
+/// How the final numbers are made: by default an equal-weight average over every estimator
+/// and Q² model the run computed, their spread quoted as systematic errors; `pin` fixes one
+/// estimator instead.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct FinalValueSpec {
+    /// Take the final numbers from this estimator only (`plateau` means the largest `tsep`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pin: Option<Estimator>,
 }
 
 /// The run directory and the plots.
@@ -275,6 +291,7 @@ fn all_plots() -> Vec<Plot> {
         Plot::Ratio,
         Plot::Summation,
         Plot::FormFactors,
+        Plot::FinalVariants,
     ]
 }
 

@@ -14,11 +14,18 @@
 //! magnetic moment for `G_M`, the axial charge for `G_A`), and Dirac/Pauli radii from the
 //! Sachs fits ([`dirac_pauli_radii`]).
 
+mod priors;
+mod radii;
 mod shapes;
 
+pub use priors::{
+    auto_prior, centre_shifts, z_coefficients, PriorRule, ZPrior, AUTO_FACTOR, MIN_AUTO_WIDTH,
+    PRIOR_DOMINATED, PRIOR_EDGE,
+};
+pub use radii::{dirac_pauli_radii, DiracPauli};
 pub use shapes::{dz_dq2, t0_optimal, z, Shape, ZExpansion};
 
-use crate::fit::{nonlinear, FitReport, FitSettings, Model, Prior, Weighting, Weights};
+use crate::fit::{nonlinear, FitReport, FitSettings, Model, Weighting, Weights};
 use crate::kinematics::HBARC_GEV_FM;
 use crate::resample::Resampled;
 use crate::{Error, Result};
@@ -48,12 +55,17 @@ pub enum Q2Model {
         /// Highest power of `z`.
         #[serde(default = "default_kmax")]
         kmax: usize,
-        /// Gaussian prior on every free `a_k / a_0`; `null` for none.
+        /// Gaussian prior on every free `a_k / a_0`: `auto` (the default: width from the
+        /// data's range in `z`, see the report), `{mean, width}`, or `null` for none.
         #[serde(default = "default_prior")]
-        prior: Option<Prior>,
+        prior: Option<ZPrior>,
         /// Number of sum rules `sum_k k^n a_k = 0` imposed, `n = 0..sum_rules` (0 to 4).
         #[serde(default)]
         sum_rules: usize,
+        /// Mass of an explicit pole factor `1/(1 + Q²/M²)` (units of `sqrt(Q²)`), for heavy
+        /// pions where the lowest meson lies below `t_cut`; `null` for none.
+        #[serde(default)]
+        pole_mass: Option<f64>,
     },
 }
 
@@ -63,8 +75,8 @@ fn default_power() -> f64 {
 fn default_kmax() -> usize {
     4
 }
-fn default_prior() -> Option<Prior> {
-    Some(Prior::new(0.0, 5.0))
+fn default_prior() -> Option<ZPrior> {
+    Some(ZPrior::default())
 }
 
 /// `t_cut` in the units of the fitted Q²: a value or a multi-pion threshold `(n m_pi)²`
@@ -233,6 +245,27 @@ pub struct Q2Fit {
     pub n_points: usize,
     /// Resamples whose fit did not converge (their parameters are kept and counted here).
     pub n_failed: usize,
+    /// The prior used, in words (z-expansion only).
+    pub prior_note: Option<String>,
+    /// Coefficients decided by their prior, or at its edge; a large change with `kmax + 1`.
+    pub warnings: Vec<String>,
+    /// The same fit with `kmax + 1` (z-expansion only).
+    pub kmax_study: Option<KmaxStudy>,
+}
+
+/// A z-expansion refitted with one more coefficient, to judge the truncation.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct KmaxStudy {
+    /// The higher `kmax`.
+    pub kmax: usize,
+    /// `G(0)` with `kmax + 1`.
+    pub g0: Resampled,
+    /// `r²` with `kmax + 1`, units of `1/Q²`.
+    pub r2: Resampled,
+    /// `(G(0)[kmax+1] - G(0)[kmax]) / sigma(G(0)[kmax])`.
+    pub g0_shift_sigma: f64,
+    /// `(r²[kmax+1] - r²[kmax]) / sigma(r²[kmax])`.
+    pub r2_shift_sigma: f64,
 }
 
 impl Q2Fit {
@@ -283,16 +316,57 @@ impl Model for Curve<'_> {
     }
 }
 
-fn q2_error(message: impl Into<String>) -> Error {
+pub(crate) fn q2_error(message: impl Into<String>) -> Error {
     Error::analysis("q2", message)
 }
 
 /// Fit one form factor's Q² dependence, on the central value and on every resample.
 ///
+/// Priors enter every resample with their own uncertainty (centres drawn per resample, see
+/// the `priors` module); a z-expansion is also fitted with `kmax + 1` and the change reported.
+///
 /// Errors: no points, inconsistent sample counts, non-finite values, invalid settings,
 /// singular weights, or a central fit that does not converge. Resample fits that do not
 /// converge are counted in [`Q2Fit::n_failed`].
 pub fn fit(points: &[Q2Point], settings: &Q2FitSettings, units: Q2Units) -> Result<Q2Fit> {
+    let points = checked_points(points, settings)?;
+    let q2_max = points.iter().map(|p| p.q2.central).fold(f64::MIN, f64::max);
+    let (shape, prior_note) = build_shape(&settings.model, q2_max, &points, settings)?;
+    let mut out = fit_shape(&points, &shape, settings, units)?;
+    out.prior_note = prior_note;
+    if let Shape::ZExpansion(e) = &shape {
+        let next = ZExpansion::new(e.t_cut, e.t0, e.kmax + 1, e.sum_rules, e.prior)
+            .map(|n| n.with_pole(e.pole_mass2));
+        if let Some(next) = next {
+            match fit_shape(&points, &Shape::ZExpansion(next), settings, units) {
+                Ok(f) => {
+                    let shift = |a: &Resampled, b: &Resampled| (b.central - a.central) / a.error();
+                    let study = KmaxStudy {
+                        kmax: e.kmax + 1,
+                        g0_shift_sigma: shift(&out.g0, &f.g0),
+                        r2_shift_sigma: shift(&out.r2, &f.r2),
+                        g0: f.g0,
+                        r2: f.r2,
+                    };
+                    if study.g0_shift_sigma.abs() > 1.0 || study.r2_shift_sigma.abs() > 1.0 {
+                        out.warnings.push(format!(
+                            "kmax {} -> {}: G(0) moves by {:.2} sigma and r2 by {:.2} sigma; the truncation is not under control",
+                            e.kmax, study.kmax, study.g0_shift_sigma, study.r2_shift_sigma
+                        ));
+                    }
+                    out.kmax_study = Some(study);
+                }
+                Err(err) => out
+                    .warnings
+                    .push(format!("kmax {} fit failed: {err}", e.kmax + 1)),
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// The points within `q2_max`, checked for equal sample counts and finite values.
+fn checked_points<'a>(points: &'a [Q2Point], settings: &Q2FitSettings) -> Result<Vec<&'a Q2Point>> {
     let points: Vec<&Q2Point> = points
         .iter()
         .filter(|p| settings.q2_max.is_none_or(|m| p.q2.central <= m))
@@ -319,9 +393,19 @@ pub fn fit(points: &[Q2Point], settings: &Q2FitSettings, units: Q2Units) -> Resu
             }
         }
     }
-    let q2_max = points.iter().map(|p| p.q2.central).fold(f64::MIN, f64::max);
-    let shape = build_shape(&settings.model, q2_max)?;
-    let weights = weights(&points, settings.weights)?;
+    Ok(points)
+}
+
+/// One shape fitted to the central value and every resample (prior centres drawn per
+/// resample).
+fn fit_shape(
+    points: &[&Q2Point],
+    shape: &Shape,
+    settings: &Q2FitSettings,
+    units: Q2Units,
+) -> Result<Q2Fit> {
+    let (n, scheme) = (points[0].value.len(), points[0].value.scheme);
+    let weights = weights(points, settings.weights)?;
     let x_at = |s: Option<usize>| -> Vec<f64> {
         points
             .iter()
@@ -335,20 +419,29 @@ pub fn fit(points: &[Q2Point], settings: &Q2FitSettings, units: Q2Units) -> Resu
             .collect()
     };
     let priors = shape.priors();
+    let n_priors = priors.iter().flatten().count();
+    let shifts = priors::centre_shifts(n, n_priors, scheme);
     let run = |s: Option<usize>, start: &[f64]| -> FitReport {
         let x = x_at(s);
-        let model = Curve {
-            shape: &shape,
-            q2: &x,
-        };
-        nonlinear::fit(&model, &y_at(s), &weights, &priors, start, &settings.solver)
+        let model = Curve { shape, q2: &x };
+        match s {
+            None => nonlinear::fit(&model, &y_at(s), &weights, &priors, start, &settings.solver),
+            Some(i) => nonlinear::fit_without_covariance(
+                &model,
+                &y_at(s),
+                &weights,
+                &priors::shifted(&priors, &shifts[i]),
+                start,
+                &settings.solver,
+            ),
+        }
     };
-    let start = start_values(&shape, &x_at(None), &y_at(None));
+    let start = start_values(shape, &x_at(None), &y_at(None));
     let central = run(None, &start);
     if !central.converged {
         return Err(q2_error(format!(
             "the {} fit of the central value did not converge: {}",
-            shape_name(&shape),
+            shape_name(shape),
             central.message
         )));
     }
@@ -370,10 +463,12 @@ pub fn fit(points: &[Q2Point], settings: &Q2FitSettings, units: Q2Units) -> Resu
     let g0 = Resampled::combine(&refs, |p| shape.value(p, 0.0));
     let slope = Resampled::combine(&refs, |p| shape.slope0(p));
     let r2 = slope.zip_map(&g0, |d, g| -6.0 * d / g);
+    let names = shape.names();
     Ok(Q2Fit {
         r2_fm2: units.length2_to_fm2().map(|f| &r2 * f),
-        names: shape.names(),
-        shape,
+        warnings: priors::diagnose(&names, &priors, &central),
+        names,
+        shape: shape.clone(),
         units,
         params,
         g0,
@@ -384,6 +479,8 @@ pub fn fit(points: &[Q2Point], settings: &Q2FitSettings, units: Q2Units) -> Resu
         p_value: central.p_value,
         n_points: points.len(),
         n_failed,
+        prior_note: None,
+        kmax_study: None,
     })
 }
 
@@ -394,7 +491,27 @@ fn shape_name(shape: &Shape) -> &'static str {
     }
 }
 
-fn build_shape(model: &Q2Model, q2_max: f64) -> Result<Shape> {
+/// The central dipole fit `(G0, M²)` of the points, the reference of the automatic prior.
+fn reference_dipole(points: &[&Q2Point], settings: &Q2FitSettings) -> Option<(f64, f64)> {
+    let shape = Shape::Dipole { power: 2.0 };
+    let x: Vec<f64> = points.iter().map(|p| p.q2.central).collect();
+    let y: Vec<f64> = points.iter().map(|p| p.value.central).collect();
+    let w = weights(points, Weighting::Diagonal).ok()?;
+    let model = Curve {
+        shape: &shape,
+        q2: &x,
+    };
+    let start = start_values(&shape, &x, &y);
+    let r = nonlinear::fit_without_covariance(&model, &y, &w, &[], &start, &settings.solver);
+    (r.converged && r.params[1] > 0.0).then(|| (r.params[0], r.params[1]))
+}
+
+fn build_shape(
+    model: &Q2Model,
+    q2_max: f64,
+    points: &[&Q2Point],
+    settings: &Q2FitSettings,
+) -> Result<(Shape, Option<String>)> {
     match *model {
         Q2Model::Dipole { power } => {
             if !(power.is_finite() && power > 0.0) {
@@ -402,7 +519,7 @@ fn build_shape(model: &Q2Model, q2_max: f64) -> Result<Shape> {
                     "dipole power must be positive, got {power}"
                 )));
             }
-            Ok(Shape::Dipole { power })
+            Ok((Shape::Dipole { power }, None))
         }
         Q2Model::ZExpansion {
             t_cut,
@@ -410,6 +527,7 @@ fn build_shape(model: &Q2Model, q2_max: f64) -> Result<Shape> {
             kmax,
             prior,
             sum_rules,
+            pole_mass,
         } => {
             let t_cut = t_cut.value();
             if !(t_cut.is_finite() && t_cut > 0.0) {
@@ -427,21 +545,42 @@ fn build_shape(model: &Q2Model, q2_max: f64) -> Result<Shape> {
                     "z-expansion t0 = {t0} must lie below t_cut = {t_cut}"
                 )));
             }
-            if let Some(p) = prior {
-                if !p.is_valid() {
+            if let Some(m) = pole_mass {
+                if !(m.is_finite() && m > 0.0) {
                     return Err(Error::config(format!(
-                        "z-expansion prior needs a finite mean and positive width, got {} +- {}",
-                        p.mean, p.width
+                        "z-expansion pole_mass must be positive, got {m}"
                     )));
                 }
             }
-            ZExpansion::new(t_cut, t0, kmax, sum_rules, prior)
-                .map(Shape::ZExpansion)
-                .ok_or_else(|| {
-                    Error::config(format!(
-                        "z-expansion: {sum_rules} sum rules need kmax >= {sum_rules} and at most 4 sum rules (kmax = {kmax})"
-                    ))
-                })
+            let pole = pole_mass.map(|m| m * m);
+            let e = ZExpansion::new(t_cut, t0, kmax, sum_rules, None).ok_or_else(|| {
+                Error::config(format!(
+                    "z-expansion: {sum_rules} sum rules need kmax >= {sum_rules} and at most 4 sum rules (kmax = {kmax})"
+                ))
+            })?
+            .with_pole(pole);
+            let (prior, note) = match prior {
+                None => (None, "no prior on a_k/a_0".to_string()),
+                Some(ZPrior::Fixed(p)) => {
+                    if !p.is_valid() {
+                        return Err(Error::config(format!(
+                            "z-expansion prior needs a finite mean and positive width, got {} +- {}",
+                            p.mean, p.width
+                        )));
+                    }
+                    (
+                        Some(p),
+                        format!("a_k/a_0 ~ N({}, {}^2) as set", p.mean, p.width),
+                    )
+                }
+                Some(ZPrior::Rule(PriorRule::Auto)) => {
+                    let (p, note) = auto_prior(&e, q2_max, reference_dipole(points, settings));
+                    (Some(p), note)
+                }
+            };
+            let mut e = e;
+            e.prior = prior;
+            Ok((Shape::ZExpansion(e), Some(note)))
         }
     }
 }
@@ -491,52 +630,4 @@ fn start_values(shape: &Shape, x: &[f64], y: &[f64]) -> Vec<f64> {
             s
         }
     }
-}
-
-/// Dirac and Pauli radii from the Sachs fits, per resample, through
-/// `F1 = (G_E + tau G_M)/(1 + tau)`, `F2 = (G_M - G_E)/(1 + tau)`, `tau = Q²/(4 m²)`:
-/// `F1'(0) = G_E'(0) + (G_M(0) - G_E(0))/(4m²)`, `F2'(0) = G_M'(0) - G_E'(0) - (G_M(0) - G_E(0))/(4m²)`.
-#[derive(Clone, Debug, PartialEq, Serialize)]
-pub struct DiracPauli {
-    /// Anomalous moment `kappa = F2(0) = G_M(0) - G_E(0)`.
-    pub kappa: Resampled,
-    /// Dirac radius squared in units of `1/Q²`.
-    pub r1_2: Resampled,
-    /// Pauli radius squared in units of `1/Q²`.
-    pub r2_2: Resampled,
-    /// Dirac radius squared in fm², when the units allow.
-    pub r1_2_fm2: Option<Resampled>,
-    /// Pauli radius squared in fm², when the units allow.
-    pub r2_2_fm2: Option<Resampled>,
-}
-
-/// Dirac and Pauli radii from fits of `G_E` and `G_M` in the same units; `mass` is the hadron
-/// mass in the units of `sqrt(Q²)` (lattice mass for lattice units, GeV for GeV²).
-pub fn dirac_pauli_radii(ge: &Q2Fit, gm: &Q2Fit, mass: &Resampled) -> Result<DiracPauli> {
-    if ge.units != gm.units {
-        return Err(q2_error("G_E and G_M fits use different Q2 units"));
-    }
-    if ge.g0.len() != mass.len() || gm.g0.len() != mass.len() {
-        return Err(q2_error(
-            "G_E, G_M fits and the mass have different sample counts",
-        ));
-    }
-    let vals = [&ge.g0, &ge.slope, &gm.g0, &gm.slope, mass];
-    let kappa = &gm.g0 - &ge.g0;
-    let r1_2 = Resampled::combine(&vals, |v| {
-        let (e0, e1, m0, m) = (v[0], v[1], v[2], v[4]);
-        -6.0 * (e1 + (m0 - e0) / (4.0 * m * m)) / e0
-    });
-    let r2_2 = Resampled::combine(&vals, |v| {
-        let (e0, e1, m0, m1, m) = (v[0], v[1], v[2], v[3], v[4]);
-        -6.0 * (m1 - e1 - (m0 - e0) / (4.0 * m * m)) / (m0 - e0)
-    });
-    let f = ge.units.length2_to_fm2();
-    Ok(DiracPauli {
-        kappa,
-        r1_2_fm2: f.map(|f| &r1_2 * f),
-        r2_2_fm2: f.map(|f| &r2_2 * f),
-        r1_2,
-        r2_2,
-    })
 }

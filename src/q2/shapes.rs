@@ -56,6 +56,9 @@ pub struct ZExpansion {
     pub sum_rules: usize,
     /// Gaussian prior on each free `a_k / a_0`.
     pub prior: Option<Prior>,
+    /// Squared mass `M²` of an explicit pole factor `1 / (1 + Q²/M²)` multiplying the series
+    /// (for heavy pions, where a vector or axial meson lies below `t_cut`), units of Q².
+    pub pole_mass2: Option<f64>,
     d0: Vec<f64>,
     dep: Vec<Vec<f64>>,
 }
@@ -97,9 +100,21 @@ impl ZExpansion {
             kmax,
             sum_rules,
             prior,
+            pole_mass2: None,
             d0,
             dep,
         })
+    }
+
+    /// The same expansion multiplied by the pole factor `1 / (1 + Q²/M²)`.
+    pub fn with_pole(mut self, mass2: Option<f64>) -> Self {
+        self.pole_mass2 = mass2;
+        self
+    }
+
+    /// The pole factor at `q2` (1 without a pole).
+    pub fn pole_factor(&self, q2: f64) -> f64 {
+        self.pole_mass2.map_or(1.0, |m2| 1.0 / (1.0 + q2 / m2))
     }
 
     /// Number of free `b_k` (`kmax - sum_rules`).
@@ -154,11 +169,12 @@ impl Shape {
             Shape::Dipole { power } => p[0] * (1.0 + q2 / p[1]).powf(-power),
             Shape::ZExpansion(e) => {
                 let z = z(q2, e.t_cut, e.t0);
-                p[0] * e
-                    .b_all(&p[1..])
-                    .iter()
-                    .rev()
-                    .fold(0.0, |acc, b| acc * z + b)
+                e.pole_factor(q2)
+                    * p[0]
+                    * e.b_all(&p[1..])
+                        .iter()
+                        .rev()
+                        .fold(0.0, |acc, b| acc * z + b)
             }
         }
     }
@@ -174,9 +190,11 @@ impl Shape {
             Shape::ZExpansion(e) => {
                 let z = z(q2, e.t_cut, e.t0);
                 let b = e.b_all(&p[1..]);
-                out[0] = b.iter().rev().fold(0.0, |acc, b| acc * z + b);
+                let pole = e.pole_factor(q2);
+                out[0] = pole * b.iter().rev().fold(0.0, |acc, b| acc * z + b);
                 for (j, o) in out[1..].iter_mut().enumerate() {
-                    *o = p[0]
+                    *o = pole
+                        * p[0]
                         * (1..=e.kmax)
                             .map(|k| e.db(k, j) * z.powi(k as i32))
                             .sum::<f64>();
@@ -195,7 +213,9 @@ impl Shape {
                 let dgdz: f64 = (1..=e.kmax)
                     .map(|k| k as f64 * b[k] * z0.powi(k as i32 - 1))
                     .sum();
-                p[0] * dgdz * dz_dq2(0.0, e.t_cut, e.t0)
+                let series0: f64 = b.iter().rev().fold(0.0, |acc, b| acc * z0 + b);
+                let pole_slope = e.pole_mass2.map_or(0.0, |m2| -1.0 / m2);
+                p[0] * (dgdz * dz_dq2(0.0, e.t_cut, e.t0) + pole_slope * series0)
             }
         }
     }
@@ -229,6 +249,14 @@ mod tests {
             (
                 Shape::ZExpansion(ZExpansion::new(0.08, 0.0, 3, 0, None).expect("valid")),
                 vec![0.9, -1.5, 0.7, 0.2],
+            ),
+            (
+                Shape::ZExpansion(
+                    ZExpansion::new(0.08, -0.1, 3, 1, None)
+                        .expect("valid")
+                        .with_pole(Some(0.3)),
+                ),
+                vec![0.9, -1.5, 0.7],
             ),
         ];
         for (shape, p) in shapes {

@@ -53,6 +53,11 @@ pub struct Difference {
     /// `|central| / error` (0 for an exactly zero difference, infinite for a non-zero
     /// difference without error).
     pub sigma: f64,
+    /// The flag of this part alone (real and imaginary parts are judged separately).
+    pub flag: Flag,
+    /// False when both estimates are exactly equal on every resample (e.g. an imaginary
+    /// part that vanishes by symmetry): not a comparison, and not counted as one.
+    pub informative: bool,
 }
 
 /// The difference `a - b` and its significance, with the error taken from the resamples of
@@ -69,6 +74,8 @@ pub fn difference(a: &Resampled, b: &Resampled) -> Difference {
         f64::INFINITY
     };
     Difference {
+        informative: error > 0.0 || size > 0.0,
+        flag: Flag::of(sigma),
         value,
         error,
         sigma,
@@ -86,14 +93,15 @@ pub struct CrossCheckRow {
     pub re: Difference,
     /// Imaginary part of `method - reference`.
     pub im: Difference,
-    /// The larger flag of the two parts.
+    /// The larger flag of the two parts (each part's own flag is in [`Difference::flag`];
+    /// count parts, not rows, when tallying).
     pub flag: Flag,
 }
 
 fn row(method: Estimator, a: &ReIm, reference: Estimator, b: &ReIm) -> CrossCheckRow {
     let re = difference(&a.re, &b.re);
     let im = difference(&a.im, &b.im);
-    let flag = Flag::of(re.sigma).max(Flag::of(im.sigma));
+    let flag = re.flag.max(im.flag);
     CrossCheckRow {
         method,
         reference,

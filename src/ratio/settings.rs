@@ -173,9 +173,38 @@ pub struct RatioSettings {
     /// Covariance of the fitted points, estimated once from the resamples and frozen
     /// (default: diagonal — the closure tests in `tests/closure.rs` found that full-covariance
     /// weights over the 30–50 points of a two-state fit with ~100 samples under-quote the
-    /// errors, as docs/methods.md §2 warns; the resampled error stays honest with diagonal weights). YAML as in the resample stage: `kind: full | diagonal | shrinkage` or
+    /// errors, as docs/methods.md §2 warns; the resampled error stays honest with diagonal weights).
+    /// YAML as in the resample stage: `kind: full | diagonal | shrinkage` or
     /// `kind: {shrinkage: {target: diagonal|identity, intensity: 0..1}}`, and `eigen_cut`.
+    /// A block that leaves out `kind` keeps the diagonal default.
+    #[serde(deserialize_with = "ratio_covariance")]
+    #[schemars(with = "RatioCovariance")]
     pub covariance: CovarianceOptions,
+}
+
+/// The ratio stage's covariance block: as the resample stage's, with `kind` defaulting to
+/// diagonal (the section's default) so that `covariance: {eigen_cut: 0.01}` keeps it.
+#[derive(Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+struct RatioCovariance {
+    /// Full, diagonal or shrinkage.
+    #[serde(default = "diagonal")]
+    kind: CovarianceKind,
+    /// Raise correlation-matrix eigenvalues below `eigen_cut * λ_max` to that floor.
+    #[serde(default)]
+    eigen_cut: Option<f64>,
+}
+
+fn diagonal() -> CovarianceKind {
+    CovarianceKind::Diagonal
+}
+
+fn ratio_covariance<'de, D: serde::Deserializer<'de>>(d: D) -> Result<CovarianceOptions, D::Error> {
+    let c = RatioCovariance::deserialize(d)?;
+    Ok(CovarianceOptions {
+        kind: c.kind,
+        eigen_cut: c.eigen_cut,
+    })
 }
 
 impl Default for RatioSettings {

@@ -63,5 +63,6 @@ pub use manifest::{InputFile, Manifest};
 pub use plot::{render_svg, write_svg, Chart, Legend, ReferenceLine, Series, SeriesKind};
 pub use rundir::{Marker, OutputRules, RunDir};
 pub use table::{
-    render_text, samples_table, value_error, write_csv, write_json, write_table_files, Cell, Table,
+    render_text, samples_table, value_error, value_errors, write_csv, write_json,
+    write_table_files, Cell, Table,
 };

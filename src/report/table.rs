@@ -363,9 +363,57 @@ pub fn value_error(value: f64, error: f64) -> String {
     }
 }
 
+/// `value(e1)(e2)...`, e.g. `0.968(18)(8)` for a statistical and a systematic error: the
+/// largest error gets two significant digits and every positive error at least one (common
+/// practice); each error is written in units of the last digit of the value.
+pub fn value_errors(value: f64, errors: &[f64]) -> String {
+    let positive = || errors.iter().copied().filter(|e| e.is_finite() && *e > 0.0);
+    let largest = positive().fold(0.0, f64::max);
+    let smallest = positive().fold(f64::INFINITY, f64::min);
+    if !value.is_finite() || largest <= 0.0 {
+        return value_error(value, largest);
+    }
+    let decimals_for = |e: f64, sig: i32| {
+        let d = sig - 1 - e.log10().floor() as i32;
+        // rounding may add a digit (0.0996 → 0.10)
+        if (e * 10f64.powi(d)).round() >= 10f64.powi(sig) {
+            d - 1
+        } else {
+            d
+        }
+    };
+    let decimals = decimals_for(largest, 2).max(decimals_for(smallest, 1));
+    let unit = 10f64.powi(-decimals);
+    let digits = |e: f64| {
+        if e.is_finite() {
+            format!("({:.0})", e / unit)
+        } else {
+            "(?)".to_string()
+        }
+    };
+    let v = if decimals > 0 {
+        format!("{value:.*}", decimals as usize)
+    } else {
+        format!("{:.0}", (value / unit).round() * unit)
+    };
+    let errs: String = errors.iter().map(|&e| digits(e)).collect();
+    format!("{v}{errs}")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn value_errors_notation() {
+        // decimals from the smaller error, two significant digits (common practice)
+        assert_eq!(value_errors(0.94123, &[0.0085, 0.0031]), "0.9412(85)(31)");
+        assert_eq!(value_errors(0.96761, &[0.018, 0.008]), "0.968(18)(8)");
+        assert_eq!(value_errors(0.94123, &[0.0085, 0.0]), "0.9412(85)(0)");
+        assert_eq!(value_errors(12.34, &[1.5, 0.27]), "12.3(15)(3)");
+        assert_eq!(value_errors(3.571, &[0.24, 0.33]), "3.57(24)(33)");
+        assert_eq!(value_errors(1.0, &[]), "1.00000");
+    }
 
     #[test]
     fn value_error_notation() {

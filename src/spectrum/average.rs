@@ -1,8 +1,10 @@
 //! Model averaging over fit windows and numbers of states (Jay & Neil, Phys. Rev. D 103
 //! (2021) 114502; docs/methods.md §2). Fit `i` (k_i parameters, N_cut,i points dropped from the
 //! widest window) gets the weight `w_i ∝ exp(-(chi2_i + 2 k_i + 2 N_cut,i) / 2)`, computed from
-//! the central fits and normalised to one. The averaged value is `sum w_i mu_i` and its
-//! variance `sum w_i sigma_i^2 + sum w_i mu_i^2 - (sum w_i mu_i)^2`.
+//! the central fits and normalised to one over the fits that are physical and resolved (see
+//! `WindowFit::exclusion`; the others are listed with their reason and weight zero). The averaged value is `sum w_i mu_i` and its
+//! variance `sum w_i sigma_i^2 + sum w_i mu_i^2 - (sum w_i mu_i)^2`, each `sigma_i` from the
+//! median absolute deviation of fit `i`'s samples ([`robust_variance`]).
 //!
 //! As a [`Resampled`]: the weights are fixed from the central fits; sample `s` is first
 //! `sum w_i mu_i,s`; then its deviations from the sample mean are scaled by one common factor
@@ -41,6 +43,8 @@ pub struct AverageRow {
     pub energy_error: f64,
     /// Resamples whose fit did not converge.
     pub failed_samples: usize,
+    /// Why the fit was left out of the average (weight zero), `None` when it is included.
+    pub excluded: Option<String>,
 }
 
 /// The model average of the ground-state energy and amplitude.
@@ -60,11 +64,21 @@ pub struct ModelAverage {
 
 /// Normalised Jay–Neil weights of `fits`, `n_cut` relative to `t_min_first`.
 pub fn weights(fits: &[WindowFit], t_min_first: usize) -> Vec<f64> {
+    weights_of_included(fits, t_min_first, &vec![true; fits.len()])
+}
+
+/// Jay–Neil weights over the fits marked `included` (the others get weight zero).
+fn weights_of_included(fits: &[WindowFit], t_min_first: usize, included: &[bool]) -> Vec<f64> {
     let score: Vec<f64> = fits
         .iter()
-        .map(|f| {
-            let n_cut = (f.t_min - t_min_first) as f64;
-            f.central.chi2 + 2.0 * f.n_params() as f64 + 2.0 * n_cut
+        .zip(included)
+        .map(|(f, &inc)| {
+            let n_cut = f.t_min.saturating_sub(t_min_first) as f64;
+            if inc {
+                f.central.chi2 + 2.0 * f.n_params() as f64 + 2.0 * n_cut
+            } else {
+                f64::INFINITY
+            }
         })
         .collect();
     let best = score.iter().copied().fold(f64::INFINITY, f64::min);
@@ -73,11 +87,60 @@ pub fn weights(fits: &[WindowFit], t_min_first: usize) -> Vec<f64> {
     raw.iter().map(|r| r / total).collect()
 }
 
+/// Variance of one fit's value from the median absolute deviation of its samples
+/// (`sigma = 1.4826 MAD` for a normal distribution; Hampel 1974, common practice), scaled to the
+/// scheme: jackknife samples spread `sqrt(N-1)` times less than the quantity itself. A few
+/// resample fits that land on another solution then cannot dominate the error, and the
+/// jackknife and the bootstrap, whose samples reach such solutions far more often, mean the
+/// same thing by it. Falls back to the plain variance when the MAD is zero or undefined.
+pub fn robust_variance(v: &Resampled) -> f64 {
+    let n = v.samples.len();
+    let plain = v.variance();
+    if n < 3 {
+        return plain;
+    }
+    let median = |x: &mut Vec<f64>| {
+        x.sort_by(f64::total_cmp);
+        let m = x.len() / 2;
+        if x.len().is_multiple_of(2) {
+            0.5 * (x[m - 1] + x[m])
+        } else {
+            x[m]
+        }
+    };
+    let mut x = v.samples.clone();
+    let med = median(&mut x);
+    let mut dev: Vec<f64> = x.iter().map(|x| (x - med).abs()).collect();
+    let sigma = 1.4826 * median(&mut dev);
+    let scale = match v.scheme {
+        crate::resample::Scheme::Jackknife => (n - 1) as f64,
+        crate::resample::Scheme::Bootstrap => 1.0,
+    };
+    let robust = sigma * sigma * scale;
+    if robust.is_finite() && robust > 0.0 {
+        robust
+    } else {
+        plain
+    }
+}
+
 /// Weighted average of per-fit values with the Jay–Neil variance, as a resampled value;
 /// returns it with the statistical and model parts of the variance.
 pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
+    // Fits of weight zero take no part (their samples may be anything).
+    let (values, w): (Vec<&Resampled>, Vec<f64>) = values
+        .iter()
+        .zip(w)
+        .filter(|(_, &w)| w > 0.0)
+        .map(|(v, &w)| (*v, w))
+        .unzip();
+    let (values, w) = (values.as_slice(), w.as_slice());
     let mean_c: f64 = values.iter().zip(w).map(|(v, w)| w * v.central).sum();
-    let stat: f64 = values.iter().zip(w).map(|(v, w)| w * v.variance()).sum();
+    let stat: f64 = values
+        .iter()
+        .zip(w)
+        .map(|(v, w)| w * robust_variance(v))
+        .sum();
     let second: f64 = values
         .iter()
         .zip(w)
@@ -98,9 +161,16 @@ pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
     (avg, stat, model)
 }
 
-/// The model average of `fits` (non-empty; all on the same correlator).
+/// The model average of `fits` (non-empty; all on the same correlator). Fits with a
+/// [`WindowFit::exclusion`] get weight zero and keep their reason in the table; when every fit
+/// is excluded, all of them are averaged (the caller warns).
 pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
-    let w = weights(fits, t_min_first);
+    let reasons: Vec<Option<String>> = fits.iter().map(WindowFit::exclusion).collect();
+    let mut included: Vec<bool> = reasons.iter().map(Option::is_none).collect();
+    if !included.contains(&true) {
+        included.fill(true);
+    }
+    let w = weights_of_included(fits, t_min_first, &included);
     let e: Vec<&Resampled> = fits.iter().map(|f| &f.energies[0]).collect();
     let a: Vec<&Resampled> = fits.iter().map(|f| &f.amplitudes[0]).collect();
     let (energy, statistical_variance, model_variance) = average(&e, &w);
@@ -108,7 +178,8 @@ pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
     let table = fits
         .iter()
         .zip(&w)
-        .map(|(f, &weight)| AverageRow {
+        .zip(reasons)
+        .map(|((f, &weight), excluded)| AverageRow {
             t_min: f.t_min,
             t_max: f.t_max,
             n_states: f.n_states,
@@ -121,6 +192,7 @@ pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
             energy: f.energies[0].central,
             energy_error: f.energies[0].error(),
             failed_samples: f.failed_samples,
+            excluded,
         })
         .collect();
     ModelAverage {

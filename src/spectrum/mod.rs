@@ -42,6 +42,7 @@
 pub mod average;
 pub mod dispersion;
 pub mod effective;
+mod gates;
 pub mod gevp;
 pub mod model;
 pub mod settings;
@@ -49,12 +50,12 @@ mod window;
 
 pub use average::{AverageRow, ModelAverage};
 pub use dispersion::DispersionRow;
-pub use settings::{GevpSettings, IntRange, PriorSettings, SpectrumSettings};
+pub use settings::{GevpSettings, IntRange, PriorFrames, PriorSettings, SpectrumSettings};
 pub use window::WindowFit;
 
 use crate::data::{Momentum, TwoPointData};
 use crate::error::{Error, Result};
-use crate::fit::Weights;
+use crate::fit::{Prior, Weights};
 use crate::resample::{covariance, ResamplePlan, Resampled};
 use effective::{effective_mass, EffectiveMassKind};
 use model::Form;
@@ -101,6 +102,12 @@ pub struct MomentumSpectrum {
     /// Effective mass `m(t)` (log form, or cosh form for periodic data); `None` where
     /// undefined.
     pub effective_mass: Vec<Option<Resampled>>,
+    /// Last time slice of the fits at this momentum.
+    pub t_max: usize,
+    /// Why `t_max` is below the configured one (the signal died), if it is.
+    pub t_max_note: Option<String>,
+    /// Fewer than five resamples per point of the widest window (Hartlap bias).
+    pub small_sample: bool,
 }
 
 impl MomentumSpectrum {
@@ -133,7 +140,13 @@ pub struct SpectrumResult {
     pub dispersion: Vec<DispersionRow>,
     /// Variational analysis per momentum (only when `gevp` is set in the settings).
     pub gevp: BTreeMap<Momentum, gevp::GevpSpectrum>,
-    /// Everything a user should know (dropped windows, failed resample fits, small samples).
+    /// Momenta that could not be fitted or failed a sanity gate, with the reason; later
+    /// stages skip every channel that needs them.
+    pub dropped: Vec<(Momentum, String)>,
+    /// How the ground-energy prior was applied at moving frames (`None`: no such prior).
+    pub prior_note: Option<String>,
+    /// Everything a user should know (dropped windows, failed resample fits, small samples),
+    /// one line per kind with the momenta it concerns.
     pub warnings: Vec<String>,
 }
 
@@ -173,6 +186,92 @@ fn select_channels<'a>(
         ));
     }
     Ok(out)
+}
+
+/// The settings at momentum `p`: the ground-energy prior given per momentum, or the rest-frame
+/// prior carried by the dispersion relation of `prior_frames` (rest only without `l_extent`).
+fn momentum_settings(p: Momentum, settings: &SpectrumSettings) -> SpectrumSettings {
+    let mut local = settings.clone();
+    let own = settings
+        .ground_energy_by_momentum
+        .iter()
+        .find(|(k, _)| settings::parse_momentum_key(k) == Some(p))
+        .map(|(_, prior)| *prior);
+    local.priors.ground_energy = match (own, settings.priors.ground_energy) {
+        (Some(prior), _) => Some(prior),
+        (None, Some(rest)) if p != [0, 0, 0] => match (settings.prior_frames, settings.l_extent) {
+            (PriorFrames::RestOnly, _) | (_, None) => None,
+            (frames, Some(l)) => {
+                let pl =
+                    crate::kinematics::lattice_momentum(p, l, settings.twist.unwrap_or_default());
+                let m = Resampled::constant(rest.mean, 2, crate::resample::Scheme::Bootstrap);
+                let e = match frames {
+                    PriorFrames::LatticeDispersion => dispersion::lattice_energy(&m, pl),
+                    _ => dispersion::continuum_energy(&m, pl),
+                }
+                .central;
+                // Width carried by dE/dm (numerically, so both relations share the code).
+                let h = 1e-6 * rest.mean.abs().max(1e-3);
+                let mh = Resampled::constant(rest.mean + h, 2, crate::resample::Scheme::Bootstrap);
+                let eh = match frames {
+                    PriorFrames::LatticeDispersion => dispersion::lattice_energy(&mh, pl),
+                    _ => dispersion::continuum_energy(&mh, pl),
+                }
+                .central;
+                Some(Prior::new(e, rest.width * ((eh - e) / h).abs()))
+            }
+        },
+        (None, rest) => rest.filter(|_| p == [0, 0, 0]),
+    };
+    local
+}
+
+/// What the run says about the ground-energy prior at moving frames.
+fn prior_frames_note(settings: &SpectrumSettings) -> Option<String> {
+    settings.priors.ground_energy?;
+    Some(match (settings.prior_frames, settings.l_extent) {
+        (PriorFrames::RestOnly, _) => {
+            "the ground-energy prior applies at rest only (moving frames: per-momentum priors if given)".into()
+        }
+        (_, None) => "the ground-energy prior applies at rest only: `l_extent` is not set, so it \
+                      cannot be carried to moving frames"
+            .into(),
+        (PriorFrames::ContinuumDispersion, _) => {
+            "the ground-energy prior is carried to moving frames by the continuum dispersion relation".into()
+        }
+        (PriorFrames::LatticeDispersion, _) => {
+            "the ground-energy prior is carried to moving frames by the lattice dispersion relation".into()
+        }
+    })
+}
+
+/// The last usable time slice at or below `cap`: one before the first slice from `t_from` on
+/// whose central value is not positive or whose relative error exceeds `max_rel`; with the
+/// reason when the signal cut it.
+fn signal_t_max(
+    corr: &[Resampled],
+    t_from: usize,
+    cap: usize,
+    max_rel: f64,
+) -> (usize, Option<String>) {
+    let last = cap.min(corr.len().saturating_sub(1));
+    for (t, c) in corr.iter().enumerate().take(last + 1).skip(t_from) {
+        let why = if c.central <= 0.0 {
+            format!(
+                "the correlator is {:.3e} (not positive) at t = {t}",
+                c.central
+            )
+        } else if c.error() > max_rel * c.central {
+            format!(
+                "the relative error reaches {:.2} > {max_rel} at t = {t}",
+                c.error() / c.central
+            )
+        } else {
+            continue;
+        };
+        return (t.saturating_sub(1), Some(why));
+    }
+    (cap, None)
 }
 
 /// Resample every time slice of a series with `plan`.
@@ -231,10 +330,28 @@ pub fn fit_correlator(
     } else {
         n_t.saturating_sub(1)
     };
-    let t_max = settings
+    let cap = settings
         .t_max
         .unwrap_or(default_t_max)
         .min(n_t.saturating_sub(1));
+    let (t_max, t_max_note) = match settings
+        .t_max_by_momentum
+        .iter()
+        .find(|(k, _)| settings::parse_momentum_key(k) == Some(momentum))
+    {
+        Some((_, &t)) => (t.min(n_t.saturating_sub(1)), None),
+        None => signal_t_max(corr, settings.t_min.from, cap, settings.max_relative_error),
+    };
+    if t_max < settings.t_min.from + 2 {
+        return Err(Error::analysis(
+            "spectrum",
+            format!(
+                "{name}: no fit range left: {}; the fits need t_max >= t_min + 2 = {}",
+                t_max_note.as_deref().unwrap_or("t_max too small"),
+                settings.t_min.from + 2
+            ),
+        ));
+    }
     if let Some(t) = (settings.t_min.from..=t_max).find(|&t| corr[t].central <= 0.0) {
         return Err(Error::analysis(
             "spectrum",
@@ -254,13 +371,8 @@ pub fn fit_correlator(
     };
     let n_samples = corr.first().map_or(0, Resampled::len);
     let widest = (t_max + 1).saturating_sub(settings.t_min.from);
+    // Said once for all momenta by the caller (see `run`).
     let small_sample = n_samples < 5 * widest;
-    if small_sample {
-        warnings.push(format!(
-            "{name}: {n_samples} resamples for a covariance of up to {widest} points; its inverse \
-             is biased (Hartlap et al. 2007); consider fewer points or shrinkage"
-        ));
-    }
     let mut fits = Vec::new();
     for t_min in settings.t_min.values().filter(|&t| t < t_max) {
         let window = &corr[t_min..=t_max];
@@ -311,12 +423,26 @@ pub fn fit_correlator(
     }
     let average = average::model_average(&fits, settings.t_min.from);
     let weights: Vec<f64> = average.table.iter().map(|r| r.weight).collect();
+    // Included fits rank by weight. The excited-state parameters the ratio stage needs fall
+    // back to the lowest-chi2 multi-state fit that is physical though unresolved (its
+    // weight stays zero, so it never enters the averaged energy).
+    let rank = |f: &WindowFit, w: f64| {
+        if w > 0.0 {
+            Some(w)
+        } else if f.n_states > 1 && f.exclusion().is_some_and(|r| r.starts_with("unresolved")) {
+            Some(-1.0 - f.central.chi2)
+        } else {
+            None
+        }
+    };
     let best = |min_states: usize| {
         fits.iter()
             .zip(&weights)
             .filter(|(f, _)| f.n_states >= min_states)
-            .max_by(|a, b| a.1.total_cmp(b.1))
-            .map(|(f, &weight)| ChosenFit {
+            .filter_map(|(f, &w)| Some((f, w, rank(f, w)?)))
+            .filter(|(_, w, _)| min_states > 1 || *w > 0.0)
+            .max_by(|a, b| a.2.total_cmp(&b.2))
+            .map(|(f, weight, _)| ChosenFit {
                 t_min: f.t_min,
                 t_max: f.t_max,
                 n_states: f.n_states,
@@ -345,6 +471,9 @@ pub fn fit_correlator(
         excited,
         average,
         effective_mass: effective_mass(corr, kind),
+        t_max,
+        t_max_note,
+        small_sample,
     })
 }
 
@@ -377,6 +506,7 @@ pub fn run(
         }
     }
     let mut per_momentum = BTreeMap::new();
+    let mut dropped = Vec::new();
     if settings.gevp.is_some() && settings.smear.is_none() {
         // The ground principal correlator stands in for a single channel.
         for (p, g) in &gevp_out {
@@ -388,9 +518,19 @@ pub fn run(
         let channels = select_channels(data, settings.smear.as_deref())?;
         for (&p, series) in &channels {
             let corr = resample_series(series, plan)?;
-            per_momentum.insert(p, fit_correlator(p, &corr, settings, &mut warnings)?);
+            let local = momentum_settings(p, settings);
+            match fit_correlator(p, &corr, &local, &mut warnings) {
+                Ok(s) => {
+                    per_momentum.insert(p, s);
+                }
+                Err(e) if p != [0, 0, 0] => dropped.push((p, e.to_string())),
+                Err(e) => return Err(e),
+            }
         }
     }
+    let prior_note = prior_frames_note(settings);
+    gates::check(&mut per_momentum, &mut dropped)?;
+    gates::summarise(&per_momentum, &dropped, &mut warnings);
     let mass = per_momentum
         .get(&[0, 0, 0])
         .map(|s: &MomentumSpectrum| s.energies[0].clone());
@@ -411,6 +551,8 @@ pub fn run(
         mass,
         dispersion,
         gevp: gevp_out,
+        dropped,
+        prior_note,
         warnings,
     })
 }

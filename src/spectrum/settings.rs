@@ -6,6 +6,17 @@ use crate::resample::covariance::CovarianceOptions;
 use crate::Invalid;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+/// Parse a momentum key `"nx,ny,nz"` (spaces and parentheses allowed).
+pub fn parse_momentum_key(key: &str) -> Option<[i32; 3]> {
+    let inner = key.trim().trim_start_matches('(').trim_end_matches(')');
+    let v: Vec<i32> = inner
+        .split(',')
+        .map(|x| x.trim().parse().ok())
+        .collect::<Option<_>>()?;
+    <[i32; 3]>::try_from(v).ok()
+}
 
 /// An inclusive range of integers `from..=to`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
@@ -49,6 +60,20 @@ impl Default for PriorSettings {
     }
 }
 
+/// How the rest-frame `ground_energy` prior reaches the moving frames.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum PriorFrames {
+    /// Mean `sqrt(m^2 + p^2)`, width scaled by `m / E` (needs `l_extent`).
+    #[default]
+    ContinuumDispersion,
+    /// Mean from `sinh^2(E/2) = sinh^2(m/2) + sum sin^2(p_i/2)`, width by `dE/dm` (needs
+    /// `l_extent`).
+    LatticeDispersion,
+    /// Only at rest; moving frames get no ground-energy prior unless listed per momentum.
+    RestOnly,
+}
+
 /// Variational (GEVP) analysis of a correlator matrix.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -66,8 +91,20 @@ pub struct SpectrumSettings {
     /// Range of fit starts `t_min` for the model average (every value is fitted).
     pub t_min: IntRange,
     /// Last time slice of every fit (inclusive); default: `T/2` (periodic) or `n_t - 1`, capped
-    /// by the data.
+    /// by the data. At each momentum it is lowered further to the last time slice before the
+    /// signal dies (see `max_relative_error`) unless `t_max_by_momentum` names the momentum.
     pub t_max: Option<usize>,
+    /// The signal counts as lost from the first time slice (at or after `t_min.from`) whose
+    /// central value is not positive or whose relative error exceeds this; the fits at that
+    /// momentum stop before it.
+    pub max_relative_error: f64,
+    /// `t_max` per momentum, keyed `"nx,ny,nz"` (e.g. `"1,0,0"`); overrides the choice from
+    /// the signal.
+    pub t_max_by_momentum: BTreeMap<String, usize>,
+    /// How the rest-frame `priors.ground_energy` is carried to moving frames.
+    pub prior_frames: PriorFrames,
+    /// Ground-energy priors per momentum, keyed `"nx,ny,nz"`; they replace the carried prior.
+    pub ground_energy_by_momentum: BTreeMap<String, Prior>,
     /// Range of the number of states (1 to 3).
     pub n_states: IntRange,
     /// Priors of the fits.
@@ -97,8 +134,57 @@ pub struct SpectrumSettings {
     /// Variational analysis of correlator matrices (channels with `smear` labels `a-b`).
     pub gevp: Option<GevpSettings>,
     /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
-    /// error, and about half the iterations of machine-precision tolerances).
+    /// error, and about half the iterations of machine-precision tolerances). A block that
+    /// leaves out a tolerance keeps 1e-10 for it.
+    #[serde(deserialize_with = "spectrum_fit")]
+    #[schemars(with = "SpectrumFit")]
     pub fit: FitSettings,
+}
+
+/// Tolerance of the spectrum fits when none is given.
+const SPECTRUM_TOL: f64 = 1e-10;
+
+/// The spectrum stage's `fit` block: as the general fit settings, with the stage's own tolerances as
+/// the defaults of a partial block (so `fit: {patience: 100}` keeps 1e-10).
+#[derive(Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+struct SpectrumFit {
+    /// Relative reduction of the sum of squares at which to stop.
+    #[serde(default = "spectrum_tol")]
+    ftol: f64,
+    /// Relative change of the parameters at which to stop.
+    #[serde(default = "spectrum_tol")]
+    xtol: f64,
+    /// Orthogonality of residuals and Jacobian columns at which to stop.
+    #[serde(default = "spectrum_tol")]
+    gtol: f64,
+    /// At most `patience * (n_params + 1)` residual evaluations.
+    #[serde(default = "default_patience")]
+    patience: usize,
+    /// Initial step bound factor (MINPACK `factor`).
+    #[serde(default = "default_stepbound")]
+    stepbound: f64,
+}
+
+fn spectrum_tol() -> f64 {
+    SPECTRUM_TOL
+}
+fn default_patience() -> usize {
+    FitSettings::default().patience
+}
+fn default_stepbound() -> f64 {
+    FitSettings::default().stepbound
+}
+
+fn spectrum_fit<'de, D: serde::Deserializer<'de>>(d: D) -> Result<FitSettings, D::Error> {
+    let f = SpectrumFit::deserialize(d)?;
+    Ok(FitSettings {
+        ftol: f.ftol,
+        xtol: f.xtol,
+        gtol: f.gtol,
+        patience: f.patience,
+        stepbound: f.stepbound,
+    })
 }
 
 impl Default for SpectrumSettings {
@@ -106,6 +192,10 @@ impl Default for SpectrumSettings {
         SpectrumSettings {
             t_min: IntRange { from: 3, to: 8 },
             t_max: None,
+            max_relative_error: 1.0,
+            t_max_by_momentum: BTreeMap::new(),
+            prior_frames: PriorFrames::default(),
+            ground_energy_by_momentum: BTreeMap::new(),
             n_states: IntRange { from: 1, to: 2 },
             priors: PriorSettings::default(),
             covariance: CovarianceOptions::default(),
@@ -116,9 +206,9 @@ impl Default for SpectrumSettings {
             smear: None,
             gevp: None,
             fit: FitSettings {
-                ftol: 1e-10,
-                xtol: 1e-10,
-                gtol: 1e-10,
+                ftol: SPECTRUM_TOL,
+                xtol: SPECTRUM_TOL,
+                gtol: SPECTRUM_TOL,
                 ..FitSettings::default()
             },
         }
@@ -148,6 +238,23 @@ impl SpectrumSettings {
                     ),
                 ));
             }
+        }
+        if !(self.max_relative_error.is_finite() && self.max_relative_error > 0.0) {
+            return Err(Invalid::new(
+                "max_relative_error",
+                format!(
+                    "{} is not valid: expected a positive number",
+                    self.max_relative_error
+                ),
+            ));
+        }
+        let keys = self.t_max_by_momentum.keys();
+        let keys = keys.chain(self.ground_energy_by_momentum.keys());
+        if let Some(k) = keys.into_iter().find(|k| parse_momentum_key(k).is_none()) {
+            return Err(Invalid::new(
+                "t_max_by_momentum",
+                format!("momentum key `{k}` is not valid: expected \"nx,ny,nz\", e.g. \"1,0,0\""),
+            ));
         }
         if n.from < 1 || n.to > MAX_STATES || n.from > n.to {
             return Err(Invalid::new(

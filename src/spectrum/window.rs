@@ -32,10 +32,63 @@ pub struct WindowFit {
     pub failed_samples: usize,
 }
 
+/// Significance (value over its error) below which an excited state counts as unresolved.
+const MIN_SIGNIFICANCE: f64 = 2.0;
+/// Error of a log-gap above which the gap counts as undetermined (a factor of about 2).
+const MAX_LOG_GAP_ERROR: f64 = 0.7;
+
 impl WindowFit {
     /// Number of fit parameters.
     pub fn n_params(&self) -> usize {
         2 * self.n_states
+    }
+
+    /// Why this fit must not enter the model average, judged on the central fit alone (its
+    /// parameter covariance), so the verdict is the same for jackknife and bootstrap: a
+    /// non-positive ground energy, an amplitude of the wrong sign for a diagonal correlator
+    /// (`A_n = |Z_n|^2 / 2E_n > 0`), or an extra state the data do not resolve (amplitude
+    /// consistent with zero, or a log-gap whose error exceeds [`MAX_LOG_GAP_ERROR`]). Such a
+    /// fit's resamples jump between solutions; the bootstrap, whose samples lie farther from
+    /// the central value than the jackknife's, then sees a much wider spread than the
+    /// jackknife, which is what made the two schemes disagree.
+    pub fn exclusion(&self) -> Option<String> {
+        let p = &self.central.params;
+        let ns = self.n_states;
+        if p[0] <= 0.0 {
+            return Some(format!("ground energy {:.4} is not positive", p[0]));
+        }
+        if let Some(n) = (0..ns).find(|&n| p[ns + n] <= 0.0) {
+            return Some(format!(
+                "amplitude A{n} = {:.3e} is not positive (diagonal correlator)",
+                p[ns + n]
+            ));
+        }
+        let err = |k: usize| self.central.error(k).unwrap_or(f64::INFINITY);
+        if ns == 1 {
+            return None;
+        }
+        for n in 0..ns {
+            let k = ns + n;
+            if p[k] < MIN_SIGNIFICANCE * err(k) {
+                let what = if n == 0 { "ground" } else { "excited" };
+                return Some(format!(
+                    "unresolved: {what} amplitude A{n} = {:.3e} +- {:.1e} is consistent with zero",
+                    p[k],
+                    err(k)
+                ));
+            }
+        }
+        for (n, log_gap) in p.iter().enumerate().take(ns).skip(1) {
+            if err(n) > MAX_LOG_GAP_ERROR {
+                return Some(format!(
+                    "unresolved: gap E{n} - E{} = {:.3} known only to a factor e^{:.2}",
+                    n - 1,
+                    log_gap.exp(),
+                    err(n)
+                ));
+            }
+        }
+        None
     }
 }
 

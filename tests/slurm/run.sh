@@ -126,7 +126,12 @@ wait_job() {
 }
 
 submit() {  # campaign file, output folder, extra args; prints the job id
-  "$FF" campaign slurm "$1" --output "$2" --submit "${@:3}" | tee /dev/stderr | sed -n 's/^submitted job //p'
+  # Echo the command's output on stderr through the open descriptor: `tee /dev/stderr` would
+  # reopen (and truncate) a log file that stdout and stderr both point at.
+  local out
+  out=$("$FF" campaign slurm "$1" --output "$2" --submit "${@:3}") || return 1
+  printf '%s\n' "$out" >&2
+  sed -n 's/^submitted job //p' <<<"$out"
 }
 
 DEMO=pipelines/campaign-demo.yaml

@@ -40,6 +40,7 @@ pub fn report_page(
     };
     let mut report = Report::new(title);
     report.sections = vec![
+        final_results(results, tables, figures),
         overview(plan, results),
         form_factors(tables, figures),
         spectrum(tables, figures),
@@ -88,16 +89,47 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
         ));
     }
     text.push_str(&format!(
-        "Stages run up to `{}`. The final numbers use the {} method (excited_states.final_method); \
-         every method is tabulated and cross-checked.",
+        "Stages run up to {}. Every estimator is tabulated and cross-checked; the final \
+         values above average over them.",
         plan.last_stage.name(),
-        results.final_method
     ));
     let mut s = Section::new("Overview").with(Block::Paragraph(text));
     if !results.form_factors.is_empty() {
         s = s.with(Block::Table(summary_table(results)));
     }
     s
+}
+
+/// The final values with their error budget, first on the page.
+fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> Section {
+    let Some(first) = results.final_results.first() else {
+        return Section::new("Final results").with(Block::Paragraph(
+            "No final values: the run stopped before the form factors.".to_string(),
+        ));
+    };
+    let rule = match &first.budget.rule {
+        crate::error_budget::Rule::EqualWeights => format!(
+            "Each value is an equal-weight average over the analysis variants of the run \
+             (plateau separations within the plateau, the estimators, the Q² models), \
+             written value(stat)(sys). The systematic error adds in quadrature the spread of \
+             the estimators (exc), of the plateau separations (fit), of the Q² models \
+             (model) and the renormalization error (Z). Variants more than {} sigma from \
+             the two-state (else summation) result are excluded; final_variants.csv lists \
+             every variant with its weight.",
+            crate::error_budget::CROSSCHECK_SIGMA
+        ),
+        crate::error_budget::Rule::Pinned(e) => format!(
+            "The final values are pinned to the {e} estimator (final_value.pin); the \
+             systematic error holds only the Q² model spread and the renormalization error."
+        ),
+    };
+    let mut blocks = vec![
+        Block::Paragraph(rule),
+        Block::Table(super::summary::final_summary(results)),
+    ];
+    blocks.extend(figure_blocks(figures, &[Plot::FinalVariants]));
+    blocks.push(Block::Table(tables.get(TableName::FinalVariants).clone()));
+    section("Final results", blocks)
 }
 
 fn form_factors(tables: &Tables, figures: &[Rendered]) -> Section {
@@ -130,6 +162,10 @@ fn excited_states(tables: &Tables, figures: &[Rendered]) -> Section {
          difference from its own resamples); see crosscheck.csv.",
         crosscheck.rows.len()
     )));
+    if tables.get(TableName::FormFactors).rows.is_empty() {
+        // a run stopped after the ratio: the cross-check is its result
+        blocks.push(Block::Table(crosscheck.clone()));
+    }
     section("Excited states", blocks)
 }
 

@@ -9,6 +9,7 @@
 //! kind in a section of the page (`page.rs`).
 
 mod figure;
+mod final_results;
 mod formfactors;
 mod ratio;
 mod spectrum;
@@ -33,6 +34,7 @@ pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
             Plot::Ratio => out.extend(ratio::ratio_charts(&shown)),
             Plot::Summation => out.extend(ratio::summation_charts(&shown)),
             Plot::FormFactors => out.extend(formfactors::charts(plan, results)),
+            Plot::FinalVariants => out.extend(final_results::charts(results)),
         }
     }
     out

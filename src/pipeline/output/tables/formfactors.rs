@@ -97,8 +97,9 @@ pub(super) fn derived_samples(name: &str, results: &RunResults) -> Table {
     samples_table(name, &items)
 }
 
-/// The summary: form factors per Q² (rows) and estimator (columns), `value(error)` with the
-/// total error.
+/// The summary: form factors per shell (rows, ordered by Q²) and estimator (columns),
+/// `value(error)` with the total error. Rows are keyed by shell, never by Q² alone: shells of
+/// equal Q² (rest and moving frames) are different measurements.
 pub fn summary_table(results: &RunResults) -> Table {
     let mut methods: Vec<Estimator> = Vec::new();
     for r in &results.form_factors {
@@ -107,22 +108,28 @@ pub fn summary_table(results: &RunResults) -> Table {
         }
     }
     let labels: Vec<String> = methods.iter().map(Estimator::to_string).collect();
-    let mut cols = vec!["form_factor", "Q2_GeV2"];
+    let mut cols = vec!["form_factor", "shell", "Q2_GeV2"];
     cols.extend(labels.iter().map(String::as_str));
     let mut t = Table::new("summary", &cols);
-    let mut cells: BTreeMap<(String, i64), (f64, BTreeMap<Estimator, String>)> = BTreeMap::new();
+    type Row = (f64, BTreeMap<Estimator, String>);
+    let mut cells: BTreeMap<(String, String), Row> = BTreeMap::new();
     for r in &results.form_factors {
         let q2 = r.q2_gev2.as_ref().map_or(r.q2.central, |q| q.central);
-        // shells are keyed by Q² rounded to 1e-6 GeV², so estimators line up in one row
-        let key = (r.form_factor.name().to_string(), (q2 * 1e6).round() as i64);
+        let key = (r.form_factor.name().to_string(), r.shell.clone());
         let entry = cells.entry(key).or_insert((q2, BTreeMap::new()));
         entry.1.insert(
             r.method,
             value_error(r.value.value.central, r.value.error_total),
         );
     }
-    for ((ff, _), (q2, by_method)) in cells {
-        let mut row = vec![Cell::from(ff), Cell::Text(format!("{q2:.4}"))];
+    let mut rows: Vec<_> = cells.into_iter().collect();
+    rows.sort_by(|a, b| a.0 .0.cmp(&b.0 .0).then(a.1 .0.total_cmp(&b.1 .0)));
+    for ((ff, shell), (q2, by_method)) in rows {
+        let mut row = vec![
+            Cell::from(ff),
+            Cell::from(shell),
+            Cell::Text(format!("{q2:.4}")),
+        ];
         row.extend(
             methods
                 .iter()

@@ -8,6 +8,7 @@
 //! and available to the page through [`Tables::get`].
 
 mod cells;
+mod final_results;
 mod formfactors;
 mod ratio;
 mod spectrum;
@@ -18,11 +19,16 @@ use crate::Result;
 use std::collections::BTreeMap;
 use std::path::Path;
 
+pub use final_results::quoted;
 pub use formfactors::summary_table;
 
 /// A table of the run directory.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub enum TableName {
+    /// The final value of every quantity with its error budget.
+    Final,
+    /// Every analysis variant of every final value with its weight.
+    FinalVariants,
     /// One row per estimator, form factor and Q² shell.
     FormFactors,
     /// Quantities derived from the Q² fits (charges, radii).
@@ -43,7 +49,9 @@ pub enum TableName {
 
 impl TableName {
     /// Every table, in the order they are written.
-    pub const ALL: [TableName; 8] = [
+    pub const ALL: [TableName; 10] = [
+        TableName::Final,
+        TableName::FinalVariants,
         TableName::FormFactors,
         TableName::Derived,
         TableName::Spectrum,
@@ -57,6 +65,8 @@ impl TableName {
     /// The file stem (`formfactors` → `formfactors.csv`, `formfactors.json`).
     pub fn stem(self) -> &'static str {
         match self {
+            TableName::Final => "final",
+            TableName::FinalVariants => "final_variants",
             TableName::FormFactors => "formfactors",
             TableName::Derived => "derived",
             TableName::Spectrum => "spectrum",
@@ -73,6 +83,8 @@ impl TableName {
     pub fn build(self, results: &RunResults) -> Result<Table> {
         let name = self.stem();
         match self {
+            TableName::Final => final_results::final_table(name, results),
+            TableName::FinalVariants => final_results::final_variants(name, results),
             TableName::FormFactors => formfactors::formfactors(name, &results.form_factors),
             TableName::Derived => formfactors::derived(name, results),
             TableName::Spectrum => spectrum::energies(name, results),

@@ -21,7 +21,8 @@ fn channel_cells(k: &ChannelKey) -> Vec<Cell> {
     ]
 }
 
-/// `crosscheck`: every pair of excited-state estimates per channel and part.
+/// `crosscheck`: every pair of excited-state estimates per channel and part, each part with
+/// its own flag; a part equal on every resample (e.g. vanishing by symmetry) is left out.
 pub(super) fn crosscheck(name: &str, results: &RunResults) -> Result<Table> {
     let mut cols: Vec<&str> = CHANNEL_COLUMNS.to_vec();
     cols.extend([
@@ -40,6 +41,9 @@ pub(super) fn crosscheck(name: &str, results: &RunResults) -> Result<Table> {
     for (k, c) in channels {
         for row in &c.crosscheck {
             for (part, d) in [("re", &row.re), ("im", &row.im)] {
+                if !d.informative {
+                    continue;
+                }
                 let mut cells = channel_cells(k);
                 cells.extend([
                     Cell::from(row.method.to_string()),
@@ -48,7 +52,7 @@ pub(super) fn crosscheck(name: &str, results: &RunResults) -> Result<Table> {
                     float(d.value.central),
                     float(d.error),
                     float(d.sigma),
-                    Cell::from(row.flag.name()),
+                    Cell::from(d.flag.name()),
                 ]);
                 t.push_row(cells)?;
             }

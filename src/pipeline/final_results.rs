@@ -1,0 +1,108 @@
+//! The final results of a run: every form factor at every shell and every derived quantity,
+//! each averaged over the analysis variants the run computed ([`crate::error_budget`]). This
+//! module only gathers the variants from the run's results; the averaging rule lives in
+//! `error_budget`.
+
+use super::run::RunResults;
+use crate::error_budget::{self, Budget, Variant};
+use crate::kinematics::FormFactor;
+use crate::ratio::Estimator;
+use std::collections::BTreeMap;
+
+/// The final value of one quantity.
+#[derive(Clone, Debug)]
+pub struct FinalRow {
+    /// `GE`, `GM`, ... for a form factor at a shell; `r_GE`, `GM(0)`, ... for a derived one.
+    pub quantity: String,
+    /// The form factor's shell (`None` for a derived quantity).
+    pub shell: Option<String>,
+    /// Q² of the shell in lattice units and in GeV² (central values).
+    pub q2: Option<(f64, Option<f64>)>,
+    /// Unit of the value (empty when dimensionless).
+    pub unit: String,
+    /// The value and its error budget.
+    pub budget: Budget,
+}
+
+/// The final value of every form factor at every shell (ordered by form factor, then Q²),
+/// then of every derived quantity; `pin` fixes one estimator.
+pub fn final_results(results: &RunResults, pin: Option<Estimator>) -> Vec<FinalRow> {
+    let mut out = Vec::new();
+    let mut shells: BTreeMap<(FormFactor, String), Vec<usize>> = BTreeMap::new();
+    for (i, r) in results.form_factors.iter().enumerate() {
+        shells
+            .entry((r.form_factor, r.shell.clone()))
+            .or_default()
+            .push(i);
+    }
+    let mut ff_rows = Vec::new();
+    for ((ff, shell), idx) in shells {
+        let rows: Vec<_> = idx.iter().map(|&i| &results.form_factors[i]).collect();
+        let variants: Vec<Variant> = rows
+            .iter()
+            .map(|r| Variant {
+                estimator: r.method,
+                model: String::new(),
+                value: r.value.value.clone(),
+                z_relative: relative(r.value.error_z, r.value.value.central),
+            })
+            .collect();
+        if let Some(b) = error_budget::final_value(&variants, pin) {
+            let r = rows[0];
+            ff_rows.push(FinalRow {
+                quantity: ff.name().to_string(),
+                shell: Some(shell),
+                q2: Some((r.q2.central, r.q2_gev2.as_ref().map(|q| q.central))),
+                unit: String::new(),
+                budget: b,
+            });
+        }
+    }
+    ff_rows.sort_by(|a, b| {
+        let q = |r: &FinalRow| r.q2.map_or(0.0, |q| q.0);
+        a.quantity.cmp(&b.quantity).then(q(a).total_cmp(&q(b)))
+    });
+    out.extend(ff_rows);
+    let mut derived: Vec<(&str, Vec<usize>)> = Vec::new();
+    for (i, d) in results.derived.iter().enumerate() {
+        match derived.iter_mut().find(|(q, _)| *q == d.quantity) {
+            Some((_, idx)) => idx.push(i),
+            None => derived.push((d.quantity.as_str(), vec![i])),
+        }
+    }
+    for (quantity, idx) in derived {
+        let variants: Vec<Variant> = idx
+            .iter()
+            .map(|&i| {
+                let d = &results.derived[i];
+                let z_abs = (d.error_total.powi(2) - d.value.error().powi(2))
+                    .max(0.0)
+                    .sqrt();
+                Variant {
+                    estimator: d.method,
+                    model: d.model.clone(),
+                    value: d.value.clone(),
+                    z_relative: relative(z_abs, d.value.central),
+                }
+            })
+            .collect();
+        if let Some(b) = error_budget::final_value(&variants, pin) {
+            out.push(FinalRow {
+                quantity: quantity.to_string(),
+                shell: None,
+                q2: None,
+                unit: results.derived[idx[0]].unit.clone(),
+                budget: b,
+            });
+        }
+    }
+    out
+}
+
+fn relative(error: f64, value: f64) -> f64 {
+    if value != 0.0 && error.is_finite() {
+        (error / value).abs()
+    } else {
+        0.0
+    }
+}
