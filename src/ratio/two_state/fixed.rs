@@ -19,7 +19,7 @@
 //! types and the fixed-gap solution of this module.
 
 use crate::data::Momentum;
-use crate::ratio::lsq::fit_re_im;
+use crate::ratio::lsq::{fit_re_im, Design};
 use crate::ratio::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
 use crate::resample::Resampled;
 use crate::{Error, Result};
@@ -196,6 +196,18 @@ impl<'a> Setup<'a> {
         }
     }
 
+    /// Whether every resample has the central gaps and amplitude ratios (bit for bit).
+    pub fn gaps_are_fixed(&self) -> bool {
+        let fixed = |r: &Resampled| {
+            r.samples
+                .iter()
+                .all(|&x| x.to_bits() == r.central.to_bits())
+        };
+        [self.source, self.sink]
+            .iter()
+            .all(|s| fixed(&s.amp_ratio) && fixed(&s.gap))
+    }
+
     /// Design matrix of the linear parameters for gaps `g`: columns `F2 * (1, e_i, e_f, e_i e_f)`,
     /// or `F2 * (1, e_i + e_f, e_i e_f)` when symmetric.
     pub fn design(&self, g: Gaps) -> DMatrix<f64> {
@@ -229,12 +241,15 @@ pub fn two_state_fixed(
     let setup = Setup::new(ratio, states, settings)?;
     let what = format!("two-state fit of channel {}", ratio.key);
     let values: Vec<&ReIm> = setup.points.iter().map(|p| &p.value).collect();
-    let (params, m) = fit_re_im(
-        &values,
-        |s| setup.design(setup.gaps(s)),
-        ratio.covariance(settings),
-        &what,
-    )?;
+    let per_sample = |s| setup.design(setup.gaps(s));
+    // Two-point inputs without spread (fixed by hand, or a degenerate ensemble) give one
+    // design for every resample: factorised once.
+    let design = if setup.gaps_are_fixed() {
+        Design::Fixed(per_sample(None))
+    } else {
+        Design::PerSample(&per_sample)
+    };
+    let (params, m) = fit_re_im(&values, design, ratio.covariance(settings), &what)?;
     let mut it = params.into_iter().skip(1);
     let missing = || Error::analysis(STAGE, format!("{what}: missing parameters"));
     let c_i = it.next().ok_or_else(missing)?;
