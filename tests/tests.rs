@@ -8,6 +8,7 @@ mod cli;
 mod closure;
 mod docs;
 mod fit;
+mod hdf5;
 mod io;
 mod kinematics;
 mod mock;
