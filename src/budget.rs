@@ -27,6 +27,8 @@ fn physical_memory() -> Option<u64> {
 }
 
 #[cfg(unix)]
+// `rlim_t` is `u64` on 64-bit Linux but not on every platform, so the cast stays.
+#[allow(clippy::unnecessary_cast)]
 fn address_space_limit() -> Option<u64> {
     let mut lim = libc::rlimit {
         rlim_cur: 0,

@@ -360,3 +360,82 @@ fn bad_input_is_reported_not_a_panic() {
     assert!(e.to_string().contains("rank deficient"), "{e}");
     assert!(fit::p_value(1.0, 0).is_nan());
 }
+
+// Source: NIST StRD linear regression, Longley (certified coefficients). The factorise-once
+// path must give the certified parameters too, and agree with the per-vector fit to rounding
+// on several data vectors (the resamples of a plateau or summation fit).
+#[test]
+fn fixed_design_matches_certified_values_and_the_per_vector_fit() {
+    let rows = rows("Longley.csv");
+    let n = rows.len();
+    let v: Vec<Vec<f64>> = rows
+        .iter()
+        .map(|r| r.iter().map(|s| s.parse().unwrap()).collect())
+        .collect();
+    let design = DMatrix::from_fn(n, 7, |i, j| if j == 0 { 1.0 } else { v[i][j - 1] });
+    let y: Vec<f64> = v.iter().map(|r| r[6]).collect();
+    let w = Weights::unit(n);
+    let fixed = linear::FixedDesign::new(&design, &w).unwrap();
+    // Three data vectors: the certified one and two perturbed copies.
+    let vectors: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            y.iter()
+                .enumerate()
+                .map(|(i, &yi)| yi + k as f64 * 10.0 * ((i * 7 + k) % 5) as f64)
+                .collect()
+        })
+        .collect();
+    let points: Vec<Vec<f64>> = (0..n)
+        .map(|i| vectors.iter().map(|y| y[i]).collect())
+        .collect();
+    let refs: Vec<&[f64]> = points.iter().map(Vec::as_slice).collect();
+    let params = fixed.solve_many(&refs).unwrap();
+    let c = certified("Longley");
+    for k in 0..7 {
+        assert_relative_eq!(params[k][0], c[&format!("B{k}")].0, max_relative = 1e-7);
+    }
+    for (m, y) in vectors.iter().enumerate() {
+        let one = linear::fit(&design, y, &w, &[]).unwrap();
+        for (p, o) in params.iter().zip(&one.params) {
+            assert_relative_eq!(p[m], *o, max_relative = 1e-8);
+        }
+    }
+}
+
+// Analytic (generalised least squares, as above): with correlated weights the factorised
+// line fit equals the per-vector fit to 1e-12 relative on a well-conditioned design.
+#[test]
+fn fixed_design_correlated_line_agrees_with_per_vector_fit() {
+    let cov = DMatrix::from_fn(5, 5, |i, j| {
+        0.04 * 0.6f64.powi((i as i32 - j as i32).abs()) * (1.0 + 0.1 * i as f64)
+    });
+    let cov = (&cov + cov.transpose()) * 0.5;
+    let w = Weights::from_covariance(&cov).unwrap();
+    let x = [8.0, 10.0, 12.0, 14.0, 16.0];
+    let design = DMatrix::from_fn(5, 2, |i, j| if j == 0 { 1.0 } else { x[i] });
+    let fixed = linear::FixedDesign::new(&design, &w).unwrap();
+    let vectors: Vec<Vec<f64>> = (0..4)
+        .map(|k| {
+            x.iter()
+                .map(|&t| 0.3 + 1.2 * t + 0.01 * ((t as usize * (k + 3)) % 7) as f64)
+                .collect()
+        })
+        .collect();
+    let points: Vec<Vec<f64>> = (0..5)
+        .map(|i| vectors.iter().map(|y| y[i]).collect())
+        .collect();
+    let refs: Vec<&[f64]> = points.iter().map(Vec::as_slice).collect();
+    let params = fixed.solve_many(&refs).unwrap();
+    for (m, y) in vectors.iter().enumerate() {
+        let one = linear::line(&x, y, &w).unwrap();
+        for (p, o) in params.iter().zip(&one.params) {
+            assert_relative_eq!(p[m], *o, max_relative = 1e-12);
+        }
+    }
+    // Non-finite data is an error naming the point, as for the per-vector fit.
+    let bad = [0.0, f64::NAN, 0.0, 0.0];
+    let mut refs = refs.clone();
+    refs[2] = &bad;
+    let e = fixed.solve_many(&refs).unwrap_err().to_string();
+    assert!(e.contains("data point 2"), "{e}");
+}

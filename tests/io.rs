@@ -737,3 +737,34 @@ fn unknown_diagram_is_an_error() {
     assert_at(&loc, "mem.csv", 2, Some(14), "diagram");
     assert!(msg.contains("unknown diagram `loop`"), "{msg}");
 }
+
+// The reader's memory follows the rows it keeps, not the largest time index it sees: a small
+// table whose rows all sit at the largest accepted time (one channel per row) is refused as
+// incomplete while allocating a few megabytes at most (it used to build a per-time index for
+// every channel, hundreds of megabytes for a file of a few kilobytes).
+#[test]
+fn rows_at_a_huge_time_do_not_allocate_per_time_slice() {
+    let t = io::MAX_TIME;
+    let mut csv = String::from("config,px,py,pz,t,re,im\n");
+    let mut n = 0;
+    'rows: for px in -9..=9 {
+        for py in -9..=9 {
+            if csv.len() > 4500 {
+                break 'rows;
+            }
+            csv.push_str(&format!("1,{px},{py},0,{t},1.0,0.0\n"));
+            n += 1;
+        }
+    }
+    assert!(n > 100, "{n} channels");
+    let (result, peak) = crate::common::alloc::peak_bytes(|| {
+        io::read_twopt_from(csv.as_bytes(), Path::new("huge-t.csv"))
+    });
+    let (_, message) = table_error(result);
+    assert!(message.contains("missing row"), "{message}");
+    assert!(
+        peak < 8 << 20,
+        "reading {} bytes allocated {peak} bytes at peak",
+        csv.len()
+    );
+}

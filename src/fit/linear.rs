@@ -3,7 +3,7 @@
 //! `p = mean/width`) is solved by singular value decomposition, never iteratively; the
 //! parameter covariance is `V S^{-2} V^T`. A rank-deficient design is an error.
 
-use super::{check_priors, lstsq, p_value, Prior, Weights};
+use super::{check_priors, lstsq, p_value, pseudo_inverse, Prior, Weights};
 use crate::error::{Error, Result};
 use nalgebra::{DMatrix, DVector};
 
@@ -94,6 +94,84 @@ pub fn fit(
         dof,
         p_value: p_value(chi2, dof),
     })
+}
+
+/// A linear fit whose design matrix and weights are the same for many data vectors (the
+/// resamples of a plateau or summation fit): the whitened design `W A` is factorised once and
+/// every data vector is solved by one product with the projector `P = (W A)^+ W`, the same
+/// solution as [`fit`] up to rounding (the column-scaled SVD of [`super::lstsq`]).
+#[derive(Clone, Debug)]
+pub struct FixedDesign {
+    /// `P`, one row per parameter, one column per point.
+    projector: DMatrix<f64>,
+}
+
+impl FixedDesign {
+    /// Factorise `design` (one row per point) with weights `w`. Errors as [`fit`] does for a
+    /// rank-deficient or non-finite design or mismatched sizes.
+    pub fn new(design: &DMatrix<f64>, w: &Weights) -> Result<FixedDesign> {
+        let (n, np) = design.shape();
+        if w.len() != n || np == 0 || n < np {
+            return Err(Error::analysis(
+                "fit",
+                format!(
+                    "linear fit: design is {n}x{np} with {} weights; expected equal point counts and at least as many points as parameters",
+                    w.len()
+                ),
+            ));
+        }
+        let pinv = pseudo_inverse(&w.whiten_matrix(design)).ok_or_else(|| {
+            Error::analysis(
+                "fit",
+                "linear fit: design is rank deficient or not finite; parameters are not determined by the data",
+            )
+        })?;
+        // P = A_w^+ W: row j of P is W^T applied to row j of A_w^+.
+        let projector = pinv * w.matrix();
+        Ok(FixedDesign { projector })
+    }
+
+    /// Number of fitted parameters.
+    pub fn n_params(&self) -> usize {
+        self.projector.nrows()
+    }
+
+    /// The parameters for many data vectors at once. `points[i]` holds the values of point
+    /// `i` in every data vector (all of one length `m`, e.g. the resamples); the result holds,
+    /// per parameter, its `m` values. The sum over points runs in point order, so the result
+    /// does not depend on how the caller splits work. A non-finite value is an error naming
+    /// the point.
+    pub fn solve_many(&self, points: &[&[f64]]) -> Result<Vec<Vec<f64>>> {
+        let n = self.projector.ncols();
+        let m = points.first().map_or(0, |p| p.len());
+        if points.len() != n || points.iter().any(|p| p.len() != m) {
+            return Err(Error::analysis(
+                "fit",
+                format!(
+                    "linear fit: {} data points (of unequal lengths?) for a design of {n} points",
+                    points.len()
+                ),
+            ));
+        }
+        for (i, p) in points.iter().enumerate() {
+            if let Some(v) = p.iter().find(|v| !v.is_finite()) {
+                return Err(Error::analysis(
+                    "fit",
+                    format!("linear fit: data point {i} is {v}"),
+                ));
+            }
+        }
+        let mut out = vec![vec![0.0; m]; self.n_params()];
+        for (j, o) in out.iter_mut().enumerate() {
+            for (i, p) in points.iter().enumerate() {
+                let c = self.projector[(j, i)];
+                for (o, y) in o.iter_mut().zip(p.iter()) {
+                    *o += c * y;
+                }
+            }
+        }
+        Ok(out)
+    }
 }
 
 /// Correlated constant fit `y_i = c` (the plateau, docs/methods.md §4).

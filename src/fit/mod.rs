@@ -131,12 +131,19 @@ pub(crate) fn check_priors(priors: &[Option<Prior>], n_params: usize) -> Result<
     Ok(())
 }
 
-/// Least squares `min |A x - b|` by SVD of the column-scaled `A` (never forming `A^T A`,
-/// which squares the condition number): the solution and `(A^T A)^{-1}`. `None` when the
-/// scaled `A` is rank deficient (singular-value ratio below `1e-13`) or not finite.
-pub(crate) fn lstsq(a: &DMatrix<f64>, b: &DVector<f64>) -> Option<(DVector<f64>, DMatrix<f64>)> {
+/// The SVD of `A` with unit-norm columns, and the column norms (a zero column keeps norm 1).
+/// `None` when `A` is not finite, has fewer rows than columns, or the scaled `A` is rank
+/// deficient (singular-value ratio below `1e-13`).
+struct ScaledSvd {
+    scale: Vec<f64>,
+    u: DMatrix<f64>,
+    v_t: DMatrix<f64>,
+    singular: DVector<f64>,
+}
+
+fn scaled_svd(a: &DMatrix<f64>) -> Option<ScaledSvd> {
     let np = a.ncols();
-    if np == 0 || a.nrows() < np || a.iter().chain(b.iter()).any(|x| !x.is_finite()) {
+    if np == 0 || a.nrows() < np || a.iter().any(|x| !x.is_finite()) {
         return None;
     }
     let scale: Vec<f64> = a
@@ -160,13 +167,34 @@ pub(crate) fn lstsq(a: &DMatrix<f64>, b: &DVector<f64>) -> Option<(DVector<f64>,
     if smin.is_nan() || smin <= smax * 1e-13 {
         return None;
     }
-    let (u, v_t) = (svd.u?, svd.v_t?);
+    Some(ScaledSvd {
+        scale,
+        u: svd.u?,
+        v_t: svd.v_t?,
+        singular: svd.singular_values,
+    })
+}
+
+/// Least squares `min |A x - b|` by SVD of the column-scaled `A` (never forming `A^T A`,
+/// which squares the condition number): the solution and `(A^T A)^{-1}`. `None` when the
+/// scaled `A` is rank deficient (singular-value ratio below `1e-13`) or not finite.
+pub(crate) fn lstsq(a: &DMatrix<f64>, b: &DVector<f64>) -> Option<(DVector<f64>, DMatrix<f64>)> {
+    if b.iter().any(|x| !x.is_finite()) {
+        return None;
+    }
+    let ScaledSvd {
+        scale,
+        u,
+        v_t,
+        singular,
+    } = scaled_svd(a)?;
+    let np = a.ncols();
     let utb = u.transpose() * b;
     let mut x = DVector::zeros(np);
     let mut cov = DMatrix::zeros(np, np);
     for k in 0..np {
         let vk = v_t.row(k).transpose();
-        let s = svd.singular_values[k];
+        let s = singular[k];
         x += &vk * (utb[k] / s);
         cov += &vk * vk.transpose() / (s * s);
     }
@@ -177,4 +205,25 @@ pub(crate) fn lstsq(a: &DMatrix<f64>, b: &DVector<f64>) -> Option<(DVector<f64>,
         }
     }
     Some((x, cov))
+}
+
+/// The pseudo-inverse `A^+` (`np x n`) of a full-rank `A`, from the same column-scaled SVD as
+/// [`lstsq`]: `lstsq(a, b).0 == pseudo_inverse(a) * b` up to rounding. `None` as for [`lstsq`].
+pub(crate) fn pseudo_inverse(a: &DMatrix<f64>) -> Option<DMatrix<f64>> {
+    let ScaledSvd {
+        scale,
+        u,
+        v_t,
+        singular,
+    } = scaled_svd(a)?;
+    // A = U S V^T diag(scale)  =>  A^+ = diag(1/scale) V S^-1 U^T.
+    let mut v_s = v_t.transpose();
+    for (k, mut c) in v_s.column_iter_mut().enumerate() {
+        c.scale_mut(1.0 / singular[k]);
+    }
+    let mut pinv = v_s * u.transpose();
+    for (r, sr) in scale.iter().enumerate() {
+        pinv.row_mut(r).scale_mut(1.0 / sr);
+    }
+    Some(pinv)
 }

@@ -386,10 +386,64 @@ struct Cell {
     count: u32,
 }
 
-/// Cells of one channel: `cells[t][cfg]`, configurations in first-seen order.
+/// Cells of one channel: `cells[t][cfg]`, configurations in first-seen order. The dense
+/// part grows with the rows the channel has seen (at most [`Channel::dense_limit`] time
+/// slices), so a few rows at a huge time cannot make the reader allocate memory out of
+/// proportion to the file; a row beyond it waits in `overflow` until the dense part reaches it.
 struct Channel {
     cells: Vec<Vec<Cell>>,
+    overflow: HashMap<(u32, u32), Cell>,
+    rows: usize,
     first_line: u64,
+}
+
+impl Channel {
+    /// Time slices the dense part may span after `rows` rows.
+    fn dense_limit(rows: usize) -> usize {
+        2 * rows + 1024
+    }
+
+    /// The cell of `(t, cfg)`, growing the dense part when the channel's row count allows.
+    fn cell(&mut self, t: u32, cfg: u32) -> &mut Cell {
+        self.rows += 1;
+        let t_us = t as usize;
+        if t_us >= self.cells.len() && t_us < Self::dense_limit(self.rows) {
+            self.cells.resize_with(t_us + 1, Vec::new);
+            let len = self.cells.len() as u32;
+            let moved: Vec<_> = self
+                .overflow
+                .keys()
+                .filter(|(t, _)| *t < len)
+                .copied()
+                .collect();
+            for key in moved {
+                if let Some(cell) = self.overflow.remove(&key) {
+                    let row = &mut self.cells[key.0 as usize];
+                    if row.len() <= key.1 as usize {
+                        row.resize(key.1 as usize + 1, Cell::default());
+                    }
+                    row[key.1 as usize] = cell;
+                }
+            }
+        }
+        match self.cells.get_mut(t_us) {
+            Some(row) => {
+                if row.len() <= cfg as usize {
+                    row.resize(cfg as usize + 1, Cell::default());
+                }
+                &mut row[cfg as usize]
+            }
+            None => self.overflow.entry((t, cfg)).or_default(),
+        }
+    }
+
+    /// The cell of `(t, cfg)` if any row gave it.
+    fn get(&self, t: usize, cfg: usize) -> Option<Cell> {
+        match self.cells.get(t) {
+            Some(row) => row.get(cfg).copied(),
+            None => self.overflow.get(&(t as u32, cfg as u32)).copied(),
+        }
+    }
 }
 
 /// Collects rows into channels and checks the one-row-per-point rule.
@@ -445,6 +499,8 @@ impl Accumulator {
         self.ids.insert(key.to_vec(), id);
         self.channels.push(Channel {
             cells: Vec::new(),
+            overflow: HashMap::new(),
+            rows: 0,
             first_line: line,
         });
         id
@@ -482,16 +538,7 @@ impl Accumulator {
     ) -> Result<()> {
         self.rows += 1;
         let cfg = self.config_index(config);
-        let chan = &mut self.channels[id as usize];
-        let t_us = t as usize;
-        if chan.cells.len() <= t_us {
-            chan.cells.resize_with(t_us + 1, Vec::new);
-        }
-        let row = &mut chan.cells[t_us];
-        if row.len() <= cfg as usize {
-            row.resize(cfg as usize + 1, Cell::default());
-        }
-        let cell = &mut row[cfg as usize];
+        let cell = self.channels[id as usize].cell(t, cfg);
         let duplicate = match (&mut self.sources, source) {
             (Some(seen), Some(s)) => !seen.insert((id, t, cfg, s)),
             _ => cell.count > 0,
@@ -548,9 +595,8 @@ impl Accumulator {
             let mut re = Vec::with_capacity(cap);
             let mut im = Vec::with_capacity(cap);
             for t in 0..nt {
-                let row = chan.cells.get(t).map_or(&[][..], |r| &r[..]);
                 for &(config, i) in &sorted {
-                    let cell = row.get(i).copied().unwrap_or_default();
+                    let cell = chan.get(t, i).unwrap_or_default();
                     if cell.count == 0 {
                         return Err(missing(id, t, config, chan.first_line));
                     }

@@ -67,7 +67,7 @@ pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<Strin
     let opts = ReadOptions {
         keep_common_configs: spec.data.keep_common_configs,
     };
-    let ds = read_dataset(&plan.twopt, Some(&plan.threept), &opts)?;
+    let ds = read_source(plan, &opts, &|_, _| {})?;
     let mut three = ds
         .threept
         .ok_or_else(|| plan.error("data.threept", "the three-point table could not be read"))?;
@@ -140,6 +140,27 @@ fn select_operators(
         )),
         (None, _, _) => Ok((two, three)),
     }
+}
+
+/// Read the correlators the `data` section names (CSV tables or an HDF5 source) on common
+/// configurations, before any selection; `progress` sees (files done, files in all) of an
+/// HDF5 source.
+pub fn read_source(
+    plan: &Plan,
+    opts: &ReadOptions,
+    progress: &dyn Fn(usize, usize),
+) -> Result<crate::io::Dataset> {
+    let Some(mapping) = &plan.hdf5 else {
+        return read_dataset(&plan.twopt, Some(&plan.threept), opts);
+    };
+    let t_extent = Some(plan.spec.ensemble.t as usize);
+    let (two, three, notes) =
+        crate::io::hdf5::read_source(mapping, t_extent, progress).map_err(|e| match e {
+            crate::Error::Config { message } => plan.error("data.hdf5", message),
+            other => other,
+        })?;
+    let name = std::path::Path::new("data.hdf5");
+    crate::io::on_common_configs(two, name, three, name, notes, opts)
 }
 
 /// Refuse settings whose resampled data would not fit in memory: one value per resample for
@@ -234,8 +255,9 @@ pub(crate) fn check_data_rules(
                 return Err(plan.error(
                     "data.twopt",
                     format!(
-                        "the ratio of three-point channel {} needs the two-point function at momentum {p:?}, which is not in the two-point data",
-                        crate::io::describe_threept(k)
+                        "the ratio of three-point channel {} needs the two-point function at momentum {}, which is not in the two-point data",
+                        crate::io::describe_threept(k),
+                        crate::data::momentum_text(p)
                     ),
                 ));
             }

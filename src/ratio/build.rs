@@ -15,11 +15,12 @@
 
 use super::lsq::CovarianceSetup;
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
-use crate::data::{Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
+use crate::data::{momentum_text, Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
 use crate::resample::{ResamplePlan, Resampled};
 use crate::{Error, Result};
 use serde::Serialize;
 use std::collections::BTreeMap;
+use std::sync::Arc;
 
 /// The ratio at one `(tsep, tau)`.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -55,12 +56,13 @@ pub struct ChannelRatio {
     /// Number of independent bins the resamples were drawn from (for covariance estimates).
     pub n_bins: usize,
     /// Resampled two-point means at the source momentum (`t = 0..T`) that divided `C3`;
-    /// used by the joint two-state fit, not serialized.
+    /// used by the joint two-state fit, not serialized. Shared by every channel with this
+    /// momentum (one copy per momentum, not per channel).
     #[serde(skip)]
-    pub c2_source: Vec<Resampled>,
-    /// Resampled two-point means at the sink momentum.
+    pub c2_source: Arc<[Resampled]>,
+    /// Resampled two-point means at the sink momentum (shared likewise).
     #[serde(skip)]
-    pub c2_sink: Vec<Resampled>,
+    pub c2_sink: Arc<[Resampled]>,
 }
 
 impl ChannelRatio {
@@ -124,15 +126,15 @@ pub fn build_ratios(
         check_series(series, n_bins, tsep, &key)?;
         two_point.load(key.pf, tsep, &key)?;
         two_point.load(key.source_momentum(), tsep, &key)?;
-        let c2f = two_point.means(key.pf);
-        let c2i = two_point.means(key.source_momentum());
+        let c2f = two_point.shared(key.pf);
+        let c2i = two_point.shared(key.source_momentum());
         let entry = out.entry(key.clone()).or_insert_with(|| ChannelRatio {
             key: key.clone(),
             points: Vec::new(),
             negative_root: NegativeRootCount::default(),
             n_bins,
-            c2_source: c2i.to_vec(),
-            c2_sink: c2f.to_vec(),
+            c2_source: c2i.clone(),
+            c2_sink: c2f.clone(),
         });
         for tau in 0..=tsep {
             let t = tau as usize;
@@ -217,7 +219,7 @@ struct TwoPointMeans<'a> {
     c2: &'a TwoPointData,
     plan: &'a ResamplePlan,
     smear: Option<String>,
-    cache: BTreeMap<Momentum, Vec<Resampled>>,
+    cache: BTreeMap<Momentum, Arc<[Resampled]>>,
 }
 
 impl<'a> TwoPointMeans<'a> {
@@ -232,7 +234,15 @@ impl<'a> TwoPointMeans<'a> {
 
     /// The two-point means at momentum `p` (after a successful [`Self::load`]).
     fn means(&self, p: Momentum) -> &[Resampled] {
-        self.cache.get(&p).map_or(&[], Vec::as_slice)
+        self.cache.get(&p).map_or(&[], |m| &m[..])
+    }
+
+    /// The shared two-point means at momentum `p` (empty before [`Self::load`]).
+    fn shared(&self, p: Momentum) -> Arc<[Resampled]> {
+        self.cache
+            .get(&p)
+            .cloned()
+            .unwrap_or_else(|| Arc::from(Vec::new()))
     }
 
     /// Compute the two-point means at momentum `p` and check that they reach `tsep`.
@@ -247,11 +257,12 @@ impl<'a> TwoPointMeans<'a> {
                 Error::analysis(
                     STAGE,
                     format!(
-                        "channel {channel}: no two-point function at momentum {p:?} (interpolator \
-                         {}); the ratio needs C2 at p_f={:?} and p_i=p_f-q={:?}",
+                        "channel {channel}: no two-point function at momentum {} (interpolator \
+                         {}); the ratio needs C2 at p_f={} and p_i=p_f-q={}",
+                        momentum_text(p),
                         self.smear.as_deref().unwrap_or("none"),
-                        channel.pf,
-                        channel.source_momentum()
+                        momentum_text(channel.pf),
+                        momentum_text(channel.source_momentum())
                     ),
                 )
             })?;
@@ -259,15 +270,17 @@ impl<'a> TwoPointMeans<'a> {
                 return Err(Error::analysis(
                     STAGE,
                     format!(
-                        "two-point function at momentum {p:?}: {} configurations, expected {} bins",
+                        "two-point function at momentum {}: {} configurations, expected {} bins",
+                        momentum_text(p),
                         series.n_cfg,
                         self.plan.n_bins()
                     ),
                 ));
             }
-            let means = (0..series.n_t)
+            let means: Vec<Resampled> = (0..series.n_t)
                 .map(|t| self.plan.mean(series.re_at(t)))
                 .collect();
+            let means = Arc::from(means);
             self.cache.insert(p, means);
         }
         let n_t = self.means(p).len();
@@ -275,8 +288,9 @@ impl<'a> TwoPointMeans<'a> {
             return Err(Error::analysis(
                 STAGE,
                 format!(
-                    "channel {channel}, tsep {tsep}: the two-point function at momentum {p:?} has \
+                    "channel {channel}, tsep {tsep}: the two-point function at momentum {} has \
                      only {} time slices; the ratio needs t = 0..={tsep}",
+                    momentum_text(p),
                     n_t
                 ),
             ));

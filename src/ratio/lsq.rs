@@ -1,7 +1,10 @@
 //! Correlated linear least squares on resampled data, shared by the plateau, summation and
 //! fixed-gap two-state fits: the covariance is estimated once from the resamples
 //! ([`crate::resample::covariance`]) and frozen (common practice, docs/methods.md §2), then every
-//! resample is fitted in closed form ([`crate::fit::linear`]).
+//! resample is fitted in closed form ([`crate::fit::linear`]). A design that is the same for
+//! every resample (plateau, summation) is factorised once and applied to all resamples as one
+//! product ([`linear::FixedDesign`]); only a design that changes per resample (the fixed-gap
+//! two-state fit, whose gaps are resampled) is solved resample by resample.
 
 use super::{FitQuality, ReIm, ReImFit, STAGE};
 use crate::fit::{linear, Weights};
@@ -34,32 +37,67 @@ pub(crate) fn weights(
     Ok((w, est.warnings))
 }
 
-/// Fit `points` with a design matrix that may change per resample (`design(None)` for the
-/// central value, `design(Some(k))` for sample `k`), weights `w` frozen. Returns one
-/// resampled value per parameter and the quality of the central fit.
+/// The design matrix of a resampled linear fit.
+pub(crate) enum Design<'a> {
+    /// One matrix for the central value and every resample: factorised once.
+    Fixed(DMatrix<f64>),
+    /// A matrix per resample: `f(None)` for the central value, `f(Some(k))` for sample `k`.
+    PerSample(&'a dyn Fn(Option<usize>) -> DMatrix<f64>),
+}
+
+impl Design<'_> {
+    fn n_params(&self) -> usize {
+        match self {
+            Design::Fixed(a) => a.ncols(),
+            Design::PerSample(f) => f(None).ncols(),
+        }
+    }
+}
+
+/// Fit `points` with `design`, weights `w` frozen. Returns one resampled value per parameter
+/// and the quality of the central fit.
 pub(crate) fn fit_resampled(
     points: &[Resampled],
-    design: impl Fn(Option<usize>) -> DMatrix<f64>,
+    design: &Design<'_>,
     w: &Weights,
     what: &str,
 ) -> Result<(Vec<Resampled>, FitQuality)> {
     let y: Vec<f64> = points.iter().map(|p| p.central).collect();
-    let central = linear::fit(&design(None), &y, w, &[]).map_err(wrap(what))?;
-    let n_samples = points.first().map_or(0, Resampled::len);
-    let per_sample = (0..n_samples)
-        .map(|s| {
-            let y: Vec<f64> = points.iter().map(|p| p.samples[s]).collect();
-            linear::fit(&design(Some(s)), &y, w, &[]).map(|f| f.params)
-        })
-        .collect::<Result<Vec<_>>>()
-        .map_err(wrap(what))?;
+    let central = match design {
+        Design::Fixed(a) => linear::fit(a, &y, w, &[]),
+        Design::PerSample(f) => linear::fit(&f(None), &y, w, &[]),
+    }
+    .map_err(wrap(what))?;
+    let per_param = match design {
+        Design::Fixed(a) => {
+            let columns: Vec<&[f64]> = points.iter().map(|p| p.samples.as_slice()).collect();
+            linear::FixedDesign::new(a, w)
+                .and_then(|f| f.solve_many(&columns))
+                .map_err(wrap(what))?
+        }
+        Design::PerSample(f) => {
+            let n_samples = points.first().map_or(0, Resampled::len);
+            let mut per_param = vec![Vec::with_capacity(n_samples); central.params.len()];
+            let mut y = vec![0.0; points.len()];
+            for s in 0..n_samples {
+                for (y, p) in y.iter_mut().zip(points) {
+                    *y = p.samples[s];
+                }
+                let fit = linear::fit(&f(Some(s)), &y, w, &[]).map_err(wrap(what))?;
+                for (out, v) in per_param.iter_mut().zip(fit.params) {
+                    out.push(v);
+                }
+            }
+            per_param
+        }
+    };
     // safe: the central fit above succeeded, so there is at least one point.
     let scheme = points[0].scheme;
     let params = central
         .params
         .iter()
-        .enumerate()
-        .map(|(j, &c)| Resampled::new(c, per_sample.iter().map(|b| b[j]).collect(), scheme))
+        .zip(per_param)
+        .map(|(&c, samples)| Resampled::new(c, samples, scheme))
         .collect();
     Ok((
         params,
@@ -78,14 +116,14 @@ pub(crate) fn fit_resampled(
 /// the covariance warnings.
 pub(crate) fn fit_re_im(
     points: &[&ReIm],
-    design: impl Fn(Option<usize>) -> DMatrix<f64>,
+    design: Design<'_>,
     cov: CovarianceSetup<'_>,
     what: &str,
 ) -> Result<(Vec<ReIm>, ReImFit)> {
     let mut warnings = Vec::new();
     let mut part = |values: Vec<Resampled>, name: &str| -> Result<(Vec<Resampled>, FitQuality)> {
         let what = format!("{what} ({name} part)");
-        let k = design(None).ncols();
+        let k = design.n_params();
         let n = values.len();
         if n < k {
             return Err(Error::analysis(

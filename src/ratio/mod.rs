@@ -144,8 +144,11 @@ impl fmt::Display for ChannelKey {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(
             f,
-            "pf={:?} q={:?} {} {}",
-            self.pf, self.q, self.current, self.projector
+            "pf={} q={} {} {}",
+            crate::data::momentum_text(self.pf),
+            crate::data::momentum_text(self.q),
+            self.current,
+            self.projector
         )?;
         if let Some(fl) = &self.flavor {
             write!(f, " flavor={fl}")?;

@@ -2,7 +2,7 @@
 //! `tau in [tau_cut, tsep - tau_cut]`, correlated, in closed form `c = 1^T W y / 1^T W 1` with
 //! `W` the inverse covariance frozen from the resamples (common practice).
 
-use super::lsq::fit_re_im;
+use super::lsq::{fit_re_im, Design};
 use super::{ChannelRatio, RatioSettings, ReImFit, STAGE};
 use crate::{Error, Result};
 use nalgebra::DMatrix;
@@ -40,7 +40,7 @@ pub fn plateau(ratio: &ChannelRatio, tsep: u32, settings: &RatioSettings) -> Res
     let what = format!("plateau of channel {}, tsep {tsep}", ratio.key);
     let (_, fit) = fit_re_im(
         &values,
-        |_| DMatrix::from_element(n, 1, 1.0),
+        Design::Fixed(DMatrix::from_element(n, 1, 1.0)),
         ratio.covariance(settings),
         &what,
     )?;

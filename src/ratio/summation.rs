@@ -5,7 +5,7 @@
 //! `e^{-Delta tsep}` rather than the plateau's `e^{-Delta tsep / 2}`. The line fit is correlated
 //! across `tsep` (the sums share configurations), covariance frozen from the resamples.
 
-use super::lsq::fit_re_im;
+use super::lsq::{fit_re_im, Design};
 use super::{ChannelRatio, RatioSettings, ReIm, ReImFit, STAGE};
 use crate::{Error, Result};
 use nalgebra::DMatrix;
@@ -67,8 +67,12 @@ pub fn summation(ratio: &ChannelRatio, settings: &RatioSettings) -> Result<Summa
     let design = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { tseps[i] as f64 });
     let refs: Vec<&ReIm> = sums.iter().collect();
     let what = format!("summation for channel {}", ratio.key);
-    let (params, mut slope) =
-        fit_re_im(&refs, |_| design.clone(), ratio.covariance(settings), &what)?;
+    let (params, mut slope) = fit_re_im(
+        &refs,
+        Design::Fixed(design),
+        ratio.covariance(settings),
+        &what,
+    )?;
     let mut params = params.into_iter();
     let missing = || Error::analysis(STAGE, format!("{what}: the line fit returned no slope"));
     let intercept = params.next().ok_or_else(missing)?;

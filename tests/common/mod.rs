@@ -1,6 +1,8 @@
 //! Helpers shared by the integration tests: drive the real binary in a temporary directory.
 #![allow(dead_code)]
 
+pub mod alloc;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 

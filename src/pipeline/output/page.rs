@@ -11,7 +11,7 @@ use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
 use crate::ratio::Flag;
-use crate::report::{Block, Cell, Report, Section};
+use crate::report::{readable, Block, Cell, Report, Section, Table};
 
 /// A figure rendered to SVG.
 pub struct Rendered {
@@ -49,7 +49,7 @@ pub fn report_page(
         .extend(variational(results, tables, figures));
     report.sections.extend([
         spectrum(tables, figures),
-        excited_states(tables, figures),
+        excited_states(results, tables, figures),
         Section::new("Warnings").with(Block::Warnings(results.warnings.clone())),
         settings_and_timing(plan, results),
     ]);
@@ -130,19 +130,19 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
     };
     let mut blocks = vec![
         Block::Paragraph(rule),
-        Block::Table(super::summary::final_summary(results)),
+        Block::Table(super::budget_table::budget_table(results)),
     ];
     blocks.extend(figure_blocks(figures, &[Plot::FinalVariants]));
-    blocks.push(Block::Table(tables.get(TableName::FinalVariants).clone()));
+    blocks.push(Block::Table(readable(tables.get(TableName::FinalVariants))));
     section("Final results", blocks)
 }
 
 fn form_factors(tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::FormFactors]);
-    blocks.push(Block::Table(tables.get(TableName::FormFactors).clone()));
+    blocks.push(Block::Table(readable(tables.get(TableName::FormFactors))));
     let derived = tables.get(TableName::Derived);
     if !derived.rows.is_empty() {
-        blocks.push(Block::Table(derived.clone()));
+        blocks.push(Block::Table(readable(derived)));
     }
     section("Form factors", blocks)
 }
@@ -175,11 +175,11 @@ fn variational(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> O
 
 fn spectrum(tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::EffectiveMass, Plot::Dispersion]);
-    blocks.push(Block::Table(tables.get(TableName::Spectrum).clone()));
+    blocks.push(Block::Table(readable(tables.get(TableName::Spectrum))));
     section("Spectrum", blocks)
 }
 
-fn excited_states(tables: &Tables, figures: &[Rendered]) -> Section {
+fn excited_states(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::Ratio, Plot::Summation]);
     let crosscheck = tables.get(TableName::CrossCheck);
     let flag = Cell::from(Flag::Above2Sigma.name());
@@ -195,18 +195,44 @@ fn excited_states(tables: &Tables, figures: &[Rendered]) -> Section {
     )));
     if tables.get(TableName::FormFactors).rows.is_empty() {
         // a run stopped after the ratio: the cross-check is its result
-        blocks.push(Block::Table(crosscheck.clone()));
+        blocks.push(Block::Table(super::summary::crosscheck_summary(results)));
+        blocks.push(Block::Table(readable(crosscheck)));
     }
     section("Excited states", blocks)
 }
 
+/// The pipeline file as written (with the `--set` overrides), every setting as resolved
+/// (defaults filled in, numbers to six significant digits) and the time per stage.
 fn settings_and_timing(plan: &Plan, results: &RunResults) -> Section {
-    let mut timing = String::new();
+    let mut timing = Table::new("time per stage", &["stage", "seconds"]);
     for (s, t) in &results.timings {
-        timing.push_str(&format!("{s:<14} {:>9.3} s\n", t.as_secs_f64()));
+        timing.rows.push(vec![
+            Cell::from(s.as_str()),
+            Cell::Text(format!("{:.3}", t.as_secs_f64())),
+        ]);
     }
-    let settings = serde_yaml_ng::to_string(&plan.spec).unwrap_or_default();
-    Section::new("Settings and timing")
-        .with(Block::Pre(settings))
-        .with(Block::Pre(timing))
+    let mut s = Section::new("Settings and timing");
+    if let Ok(written) = std::fs::read_to_string(&plan.source) {
+        s = s
+            .with(Block::Paragraph(format!(
+                "The pipeline file {} as written:",
+                plan.source.display()
+            )))
+            .with(Block::Pre(written));
+    }
+    if !plan.overrides.is_empty() {
+        s = s.with(Block::Paragraph(format!(
+            "Changed on the command line: {}.",
+            plan.overrides
+                .iter()
+                .map(|o| format!("`--set {o}`"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        )));
+    }
+    s.with(Block::Paragraph(
+        "Every setting as the run used it, defaults included:".to_string(),
+    ))
+    .with(Block::Pre(super::settings_text::resolved(&plan.spec)))
+    .with(Block::Table(timing))
 }

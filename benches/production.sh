@@ -1,0 +1,103 @@
+#!/usr/bin/env bash
+# Production-scale benchmark: generate the mock ensemble of benches/production.mock.yaml into a
+# scratch directory (never into the repository), run the pipeline once per stage prefix
+# (`stop_after`), and print per-stage wall and CPU time, read throughput and peak RSS.
+#
+#   benches/production.sh [CONFIGS] [JOBS]      (defaults: 1000 configurations, 2 threads)
+#
+# Environment: FORMFACTORY (binary; default target/release/formfactory, build it first with
+# `cargo build --release`), SCRATCH (default /tmp/formfactory-production). The generated data
+# are kept in SCRATCH and reused by later runs of the same size. CPU time is user + system time
+# of the whole process; per-stage figures are differences between consecutive prefixes, so
+# they are noisy on a loaded machine: compare before/after runs made side by side.
+set -euo pipefail
+configs=${1:-1000}
+jobs=${2:-2}
+root=$(cd "$(dirname "$0")/.." && pwd)
+bin=${FORMFACTORY:-$root/target/release/formfactory}
+scratch=${SCRATCH:-/tmp/formfactory-production}
+data=$scratch/data-$configs
+mkdir -p "$scratch"
+if [ ! -x "$bin" ]; then
+    echo "no binary at $bin; run cargo build --release first" >&2
+    exit 1
+fi
+if [ ! -f "$data/threept.csv" ]; then
+    sed "s/^  configs: 1000$/  configs: $configs/" "$root/benches/production.mock.yaml" \
+        > "$scratch/spec-$configs.yaml"
+    "$bin" mock "$scratch/spec-$configs.yaml" --out "$data" > /dev/null
+fi
+pipeline=$scratch/production-$configs.yaml
+cat > "$pipeline" <<YAML
+ensemble:
+  label: production-scale mock
+  L: 32
+  T: 64
+  spacing_fm: 0.09
+  pion_mass: 0.14
+  hadron: spin1half
+data:
+  twopt: $data/twopt.csv
+  threept: $data/threept.csv
+resampling:
+  method: jackknife
+  bin_size: 1
+spectrum:
+  t_min: {from: 3, to: 6}
+  t_max: 14
+  n_states: {from: 1, to: 2}
+ratio:
+  tsep: [8, 10, 12, 14, 16]
+  currents: [V1, V4]
+excited_states:
+  methods: [plateau, summation, two_state]
+  tau_cut: 2
+  final_method: two_state
+renormalization:
+  vector: {value: 1.0, error: 0.0}
+decomposition:
+  energies: fit
+  weights: diagonal
+q2_fits:
+  form_factors:
+    GE:
+      - {model: dipole}
+    GM:
+      - {model: dipole}
+output:
+  dir: $scratch/run
+  plots: []
+YAML
+bytes=$(( $(stat -c %s "$data/twopt.csv") + $(stat -c %s "$data/threept.csv") ))
+rows=$(( $(wc -l < "$data/twopt.csv") + $(wc -l < "$data/threept.csv") - 2 ))
+echo "data: $configs configurations, $rows rows, $((bytes / 1000000)) MB of CSV; --jobs $jobs"
+echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg)"
+printf "%-14s %9s %9s %9s %9s %10s\n" stage "wall s" "CPU s" "cum wall" "cum CPU" "peak RSS"
+prev_wall=0
+prev_cpu=0
+for stage in data spectrum ratio decomposition q2_fits report; do
+    set_args=(--set "stop_after=$stage")
+    if [ "$stage" = report ]; then
+        set_args=()
+    fi
+    out=$scratch/time-$stage
+    /usr/bin/time -f "%e %U %S %M" -o "$out" "$bin" run "$pipeline" --out "$scratch/run-$stage" \
+        --force --quiet --jobs "$jobs" "${set_args[@]}" > /dev/null
+    read -r wall user sys rss < "$out"
+    cpu=$(echo "$user + $sys" | bc)
+    printf "%-14s %9.2f %9.2f %9.2f %9.2f %7d MB\n" "$stage" \
+        "$(echo "$wall - $prev_wall" | bc)" "$(echo "$cpu - $prev_cpu" | bc)" \
+        "$wall" "$cpu" $((rss / 1024))
+    if [ "$stage" = data ]; then
+        read_wall=$wall
+        read_cpu=$cpu
+    fi
+    prev_wall=$wall
+    prev_cpu=$cpu
+done
+echo "end to end: ${prev_wall} s wall, ${prev_cpu} s CPU"
+echo "data stage (read, bin, resample, including process start): " \
+    "$(echo "scale=1; $bytes / 1000000 / $read_wall" | bc) MB/s and" \
+    "$(echo "scale=2; $rows / 1000000 / $read_wall" | bc) M rows/s per wall second," \
+    "$(echo "scale=1; $bytes / 1000000 / $read_cpu" | bc) MB/s per CPU second"
+echo "load average after: $(cut -d' ' -f1-3 /proc/loadavg)"
