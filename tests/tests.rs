@@ -19,3 +19,4 @@ mod ratio;
 mod report;
 mod resample;
 mod spectrum;
+mod spectrum_closure;
