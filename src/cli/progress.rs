@@ -99,9 +99,7 @@ mod tests {
         p.stage_started("ratio");
         p.progress("ratio", 5, 10);
         p.progress("ratio", 3, 10);
-        let Some(bar) = &p.bar else {
-            panic!("visible")
-        };
+        let Some(bar) = &p.bar else { panic!("visible") };
         let bar = bar.lock().unwrap();
         assert_eq!((bar.position(), bar.length()), (5, Some(10)));
     }

@@ -45,7 +45,10 @@ pub fn report_page(
         has_form_factors.then(|| final_results(results, tables, figures)),
         Some(overview(plan, results)),
         has_form_factors.then(|| form_factors(tables, figures)),
-        results.spectrum.is_some().then(|| spectrum(tables, figures)),
+        results
+            .spectrum
+            .is_some()
+            .then(|| spectrum(tables, figures)),
         results
             .channels
             .is_some()
