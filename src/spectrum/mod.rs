@@ -414,6 +414,17 @@ pub fn run(
     plan: &ResamplePlan,
     settings: &SpectrumSettings,
 ) -> Result<SpectrumResult> {
+    run_with_progress(data, plan, settings, &|_, _| {})
+}
+
+/// [`run`], calling `progress(done, total)` after each momentum's fits (for a progress
+/// display; the result does not depend on it).
+pub fn run_with_progress(
+    data: &TwoPointData,
+    plan: &ResamplePlan,
+    settings: &SpectrumSettings,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<SpectrumResult> {
     check_settings(settings)?;
     let mut warnings = Vec::new();
     let mut gevp_out = BTreeMap::new();
@@ -446,7 +457,8 @@ pub fn run(
         }
     } else {
         let channels = select_channels(data, settings.smear.as_deref())?;
-        for (&p, series) in &channels {
+        for (i, (&p, series)) in channels.iter().enumerate() {
+            progress(i, channels.len());
             let corr = resample_series(series, plan)?;
             let local = frames::momentum_settings(p, settings);
             match fit_correlator(p, &corr, &local, &mut warnings) {
@@ -457,6 +469,7 @@ pub fn run(
                 Err(e) => return Err(e),
             }
         }
+        progress(channels.len(), channels.len());
     }
     let prior_note = frames::prior_frames_note(settings);
     gates::check(&mut per_momentum, &mut dropped)?;
