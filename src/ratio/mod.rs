@@ -72,7 +72,7 @@ pub mod settings;
 pub mod summation;
 pub mod two_state;
 
-pub use analyse::{analyse_all, analyse_channel, ChannelResult};
+pub use analyse::{analyse_all, analyse_all_with_progress, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
 pub use crosscheck::{CrossCheckRow, Flag};
 pub use estimator::Estimator;

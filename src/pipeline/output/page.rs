@@ -39,20 +39,27 @@ pub fn report_page(
         format!("formfactory run: {}", e.label)
     };
     let mut report = Report::new(title);
-    report.sections = vec![
-        final_results(results, tables, figures),
-        overview(plan, results),
-        form_factors(tables, figures),
-    ];
-    report
-        .sections
-        .extend(variational(results, tables, figures));
-    report.sections.extend([
-        spectrum(tables, figures),
-        excited_states(results, tables, figures),
-        Section::new("Warnings").with(Block::Warnings(results.warnings.clone())),
-        settings_and_timing(plan, results),
-    ]);
+    // a stage-limited run shows the sections of the stages it ran
+    let has_form_factors = !results.form_factors.is_empty();
+    report.sections = [
+        has_form_factors.then(|| final_results(results, tables, figures)),
+        Some(overview(plan, results)),
+        has_form_factors.then(|| form_factors(tables, figures)),
+        variational(results, tables, figures),
+        results
+            .spectrum
+            .is_some()
+            .then(|| spectrum(tables, figures)),
+        results
+            .channels
+            .is_some()
+            .then(|| excited_states(results, tables, figures)),
+        Some(Section::new("Warnings").with(Block::Warnings(results.warnings.clone()))),
+        Some(settings_and_timing(plan, results)),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
     report
 }
 
@@ -78,7 +85,7 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
     let spec = &plan.spec;
     let e = &spec.ensemble;
     let mut text = format!(
-        "Ensemble {}^3 x {}, a = {} fm, hadron of spin {}. ",
+        "Ensemble {}³ × {}, a = {} fm, hadron of spin {}. ",
         e.l,
         e.t,
         e.spacing_fm,
@@ -89,15 +96,27 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
     );
     if let Some(d) = &results.data {
         text.push_str(&format!(
-            "{} configurations in {} bins of {}; {:?} with {} samples. ",
-            d.n_configs, d.n_bins, spec.resampling.bin_size, spec.resampling.method, d.n_samples
+            "{} configurations in {} bins of {}; {} with {} samples. ",
+            d.n_configs,
+            d.n_bins,
+            spec.resampling.bin_size,
+            match spec.resampling.method {
+                crate::pipeline::spec::ResamplingMethod::Jackknife => "jackknife",
+                crate::pipeline::spec::ResamplingMethod::Bootstrap => "bootstrap",
+            },
+            d.n_samples
         ));
     }
-    text.push_str(&format!(
-        "Stages run up to {}. Every estimator is tabulated and cross-checked; the final \
-         values above average over them.",
-        plan.last_stage.name(),
-    ));
+    text.push_str(&format!("Stages run up to {}. ", plan.last_stage.name()));
+    text.push_str(if !results.final_results.is_empty() {
+        "Every estimator is tabulated and cross-checked; the final values above average \
+         over them."
+    } else if results.channels.is_some() {
+        "The run stopped after the ratio stage: its result is the cross-check of the \
+         excited-state estimators below."
+    } else {
+        "No matrix elements were computed."
+    });
     let mut s = Section::new("Overview").with(Block::Paragraph(text));
     if !results.form_factors.is_empty() {
         s = s.with(Block::Table(summary_table(results)));
