@@ -347,14 +347,16 @@ fn demo_runs_recover_the_mock_truth() {
     let dir = tempdir();
     let nucleon = Truth::read(&repo_root().join("demo-data/nucleon/truth.yaml")).unwrap();
     let pion = Truth::read(&repo_root().join("demo-data/pion/truth.yaml")).unwrap();
+    let meson = Truth::read(&repo_root().join("demo-data/meson-gevp/truth.yaml")).unwrap();
     // (pipeline, truth, form factor, least share of shells within 2 sigma). The pion's F was
     // 3-4 sigma high while its pipeline averaged in two-state fits starting at t >= 4, whose
     // gaps were poorly determined; with two-state fits from t = 1..3 every shell closes.
-    let cases: [(&str, &Truth, &str, f64); 4] = [
+    let cases: [(&str, &Truth, &str, f64); 5] = [
         ("nucleon-vector", &nucleon, "GE", 0.75),
         ("nucleon-vector", &nucleon, "GM", 0.75),
         ("nucleon-axial", &nucleon, "GA", 0.75),
         ("pion-vector", &pion, "F", 0.75),
+        ("meson-gevp", &meson, "F", 0.75),
     ];
     for (name, truth, ff, least) in cases {
         let out = dir.path().join(name);

@@ -20,3 +20,4 @@ mod report;
 mod resample;
 mod spectrum;
 mod spectrum_closure;
+mod variational;
