@@ -49,6 +49,7 @@
 
 pub mod inspect;
 mod open;
+pub mod seed;
 mod table;
 mod threept;
 mod twopt;

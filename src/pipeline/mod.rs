@@ -7,6 +7,7 @@
 //! computation. The JSON Schema of the file ([`schema_json`]) is generated from the same
 //! types, so editors can complete and check pipeline files.
 
+mod data_checks;
 pub mod final_results;
 pub mod output;
 pub mod plan;
@@ -44,7 +45,7 @@ pub fn schema_value() -> serde_json::Value {
 /// ranges, momenta the ratio needs), computing nothing; returns a short summary.
 pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
     let plan = load(path, sets)?;
-    let (two, three, _) = read_data(&plan)?;
+    let ReadData { two, three, .. } = read_data(&plan)?;
     let report = crate::resample::binning::plan_bins(&two.configs, plan.spec.resampling.bin_size)
         .map_err(|e| plan.error("resampling.bin_size", e))?;
     check_data_rules(&plan, &two, &three)?;
@@ -61,7 +62,7 @@ pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
 
 /// Read both tables, form the flavour combination and keep the selected `tsep` and
 /// currents. Errors about a selection name its YAML key.
-pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<String>)> {
+pub fn read_data(plan: &Plan) -> Result<ReadData> {
     let spec = &plan.spec;
     let opts = ReadOptions {
         keep_common_configs: spec.data.keep_common_configs,
@@ -102,7 +103,24 @@ pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<Strin
             .channels
             .retain(|k, _| currents.iter().any(|c| c == k.current.name()));
     }
-    Ok((ds.twopt, three, ds.notes))
+    Ok(ReadData {
+        two: ds.twopt,
+        three,
+        dropped_configs: ds.dropped_configs,
+        notes: ds.notes,
+    })
+}
+
+/// The two tables of a pipeline as read and selected, with what the reader dropped.
+pub struct ReadData {
+    /// The two-point table.
+    pub two: TwoPointData,
+    /// The three-point table, after the flavour combination and the `tsep`/current selection.
+    pub three: ThreePointData,
+    /// Configurations only one table had (dropped under `data.keep_common_configs`).
+    pub dropped_configs: Vec<i64>,
+    /// What the reader did beyond plain reading.
+    pub notes: Vec<String>,
 }
 
 /// Refuse settings whose resampled data would not fit in memory: one value per resample for
@@ -139,15 +157,20 @@ pub(crate) fn check_data_rules(
 ) -> Result<()> {
     let spec = &plan.spec;
     check_memory(plan, two, three)?;
+    data_checks::check_values(two, &plan.twopt, three, &plan.threept)?;
     let n_t = two.channels.values().map(|s| s.n_t).min().unwrap_or(0);
     let data_t = two.channels.values().map(|s| s.n_t).max().unwrap_or(0);
-    if data_t > 0 && spec.ensemble.t as usize != data_t {
+    if let Some(t) = spec
+        .ensemble
+        .t
+        .filter(|&t| data_t > 0 && t as usize != data_t)
+    {
         return Err(plan.error(
             "ensemble.T",
             format!(
-                "T = {} does not match the two-point data, whose time slices run over \
-                 t = 0..{} (T = {data_t}); set ensemble.T to the lattice's time extent",
-                spec.ensemble.t,
+                "T = {t} does not match the two-point data, whose time slices run over \
+                 t = 0..{} (T = {data_t}); set ensemble.T to the lattice's time extent, or \
+                 omit it to take T from the data",
                 data_t - 1
             ),
         ));

@@ -75,7 +75,9 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
     let mut text = format!(
         "Ensemble {}^3 x {}, a = {} fm, hadron of spin {}. ",
         e.l,
-        e.t,
+        e.t.map(|t| t as usize)
+            .or(results.data.as_ref().map(|d| d.t_extent))
+            .unwrap_or(0),
         e.spacing_fm,
         match e.hadron {
             Hadron::Spin0 => "0",
