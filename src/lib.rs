@@ -35,6 +35,7 @@ pub mod fit;
 pub mod io;
 pub mod kinematics;
 pub mod mock;
+pub mod pack;
 pub mod pipeline;
 pub mod q2;
 pub mod ratio;

@@ -184,13 +184,12 @@ fn configurations_dropped_for_the_other_table_are_listed_and_recorded() {
     );
     let out = format!("{}{}", stdout(&o), stderr(&o));
     assert!(o.status.success(), "{out}");
-    assert!(
-        out.contains("kept the 46 configurations common to both tables and dropped 2: 7, 40"),
-        "{out}"
-    );
     // 46 configurations in bins of 4: the last two (47, 48) do not fill a bin
     assert!(
-        out.contains("binning by 4 dropped the last 2 configuration(s): 47, 48"),
+        out.contains(
+            "data: 46 configurations in 11 bins, 11 resamples; dropped 2 not in both tables \
+             (7, 40); dropped 2 in an incomplete last bin (47, 48)"
+        ),
         "{out}"
     );
     let manifest: serde_json::Value = serde_json::from_str(
@@ -210,4 +209,10 @@ fn configurations_dropped_for_the_other_table_are_listed_and_recorded() {
     );
     assert_eq!(manifest["data"]["configurations"], 46);
     assert_eq!(manifest["data"]["bins"], 11);
+    let warnings = manifest["warnings"].to_string();
+    assert!(
+        warnings.contains("kept the 46 configurations common to both tables and dropped 2: 7, 40")
+            && warnings.contains("binning by 4 dropped the last 2 configuration(s): 47, 48"),
+        "{warnings}"
+    );
 }

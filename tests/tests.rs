@@ -9,6 +9,7 @@ mod closure;
 mod data_checks;
 mod docs;
 mod fit;
+mod hdf5;
 mod io;
 mod kinematics;
 mod mock;

@@ -36,6 +36,14 @@ pub enum Command {
     /// Summarise a data directory or a correlator table, with warnings.
     #[command(after_help = "Example:\n  formfactory inspect demo-data/nucleon")]
     Inspect(InspectArgs),
+    /// Gather an ensemble once into one packed HDF5 file (needs the `hdf5` feature).
+    #[command(
+        after_help = "Examples:\n  formfactory pack pipelines/pion-vector-hdf5.yaml --out pion.h5\n  formfactory pack demo-data/pion --out pion.h5"
+    )]
+    Pack(PackArgs),
+    /// Write a packed HDF5 file back out as CSV tables (needs the `hdf5` feature).
+    #[command(after_help = "Example:\n  formfactory convert pion.h5 --out /tmp/pion-csv")]
+    Convert(ConvertArgs),
     /// Campaigns: many ensembles and variants, run locally or on Slurm, combined.
     #[command(
         after_help = "Example:\n  formfactory campaign run pipelines/campaign-demo.yaml && formfactory campaign combine pipelines/campaign-demo.yaml --force"
@@ -101,8 +109,39 @@ pub struct MockArgs {
 /// Arguments of `inspect`.
 #[derive(Debug, Args)]
 pub struct InspectArgs {
-    /// A data directory (with twopt.csv / threept.csv) or one table.
+    /// A data directory (with twopt.csv / threept.csv), one table, a packed HDF5 file, or a
+    /// pipeline file (its `data` section, e.g. an HDF5 mapping).
     pub path: PathBuf,
+}
+
+/// Arguments of `pack`.
+#[derive(Debug, Args)]
+pub struct PackArgs {
+    /// A pipeline file (its `data` section: CSV tables or an HDF5 mapping) or a data
+    /// directory with twopt.csv and threept.csv.
+    pub input: PathBuf,
+    /// The packed file to write.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Replace an existing output file.
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// Arguments of `convert`.
+#[derive(Debug, Args)]
+pub struct ConvertArgs {
+    /// A packed HDF5 file written by `pack`.
+    pub input: PathBuf,
+    /// Directory for twopt.csv and threept.csv (created if needed).
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Replace existing tables.
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Arguments of `completions`.
@@ -164,6 +203,8 @@ fn dispatch(cli: Cli) -> crate::Result<()> {
         Command::Check(a) => check(a),
         Command::Mock(a) => mock(a),
         Command::Inspect(a) => inspect(a),
+        Command::Pack(a) => crate::pack::pack(&a.input, &a.out, a.force, a.quiet),
+        Command::Convert(a) => crate::pack::convert(&a.input, &a.out, a.force),
         Command::Campaign(a) => crate::campaign::command::dispatch(a),
         Command::Schema(a) => schema(a),
         Command::Completions(a) => {
@@ -205,7 +246,7 @@ fn mock(a: MockArgs) -> crate::Result<()> {
 }
 
 fn inspect(a: InspectArgs) -> crate::Result<()> {
-    let report = crate::io::inspect::inspect(&a.path)?;
+    let report = crate::pack::inspect(&a.path)?;
     emit(&report)
 }
 

@@ -28,10 +28,39 @@ const SMALL_T: usize = 3;
 /// At most this many items are listed in one warning or summary line.
 const LIST_MAX: usize = 8;
 
-/// Summarise a data directory (`twopt.csv` and/or `threept.csv` inside) or one table (its
-/// kind told by its header; `-` reads standard input) as text for the terminal.
+/// Summarise a data directory (`twopt.csv` and/or `threept.csv` inside), one table (its
+/// kind told by its header; `-` reads standard input) or a packed HDF5 file as text for the
+/// terminal.
 pub fn inspect(path: &Path) -> Result<String> {
     let (two, three) = load(path)?;
+    Ok(render(two, three))
+}
+
+/// Summarise data already read (e.g. from an HDF5 source), `name` standing for its origin.
+pub fn inspect_data(name: &Path, two: TwoPointData, three: ThreePointData) -> String {
+    let (two, three) = loaded_pair(name, two, three);
+    render(two, three)
+}
+
+/// Both kinds of data from one origin, with the number of values in place of rows.
+fn loaded_pair(
+    name: &Path,
+    two: TwoPointData,
+    three: ThreePointData,
+) -> (Loaded<TwoPointData>, Loaded<ThreePointData>) {
+    let summary = |n: usize| Summary {
+        rows: n as u64,
+        sources: None,
+    };
+    let n2 = two.channels.values().map(|s| s.re.len()).sum();
+    let n3 = three.channels.values().map(|s| s.re.len()).sum();
+    (
+        Some((name.to_path_buf(), two, summary(n2))),
+        Some((name.to_path_buf(), three, summary(n3))),
+    )
+}
+
+fn render(two: Loaded<TwoPointData>, three: Loaded<ThreePointData>) -> String {
     let mut out = String::new();
     let mut warnings = Vec::new();
     if let Some((name, data, summary)) = &two {
@@ -63,7 +92,7 @@ pub fn inspect(path: &Path) -> Result<String> {
             let _ = writeln!(out, "  - {w}");
         }
     }
-    Ok(out)
+    out
 }
 
 type Loaded<D> = Option<(PathBuf, D, Summary)>;
@@ -91,6 +120,10 @@ fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
             None
         };
         return Ok((two, three));
+    }
+    if path != Path::new("-") && super::hdf5::looks_like_hdf5(path) {
+        let (d2, d3) = super::hdf5::read_packed(path)?;
+        return Ok(loaded_pair(path, d2, d3));
     }
     let name = display_name(path);
     let mut input = BufReader::new(open(path)?);

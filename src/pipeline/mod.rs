@@ -67,7 +67,7 @@ pub fn read_data(plan: &Plan) -> Result<ReadData> {
     let opts = ReadOptions {
         keep_common_configs: spec.data.keep_common_configs,
     };
-    let ds = read_dataset(&plan.twopt, Some(&plan.threept), &opts)?;
+    let ds = read_source(plan, &opts, &|_, _| {})?;
     let mut three = ds
         .threept
         .ok_or_else(|| plan.error("data.threept", "the three-point table could not be read"))?;
@@ -123,6 +123,27 @@ pub struct ReadData {
     pub notes: Vec<String>,
 }
 
+/// Read the correlators the `data` section names (CSV tables or an HDF5 source) on common
+/// configurations, before any selection; `progress` sees (files done, files in all) of an
+/// HDF5 source.
+pub fn read_source(
+    plan: &Plan,
+    opts: &ReadOptions,
+    progress: &dyn Fn(usize, usize),
+) -> Result<crate::io::Dataset> {
+    let Some(mapping) = &plan.hdf5 else {
+        return read_dataset(&plan.twopt, Some(&plan.threept), opts);
+    };
+    let t_extent = plan.spec.ensemble.t.map(|t| t as usize);
+    let (two, three, notes) =
+        crate::io::hdf5::read_source(mapping, t_extent, progress).map_err(|e| match e {
+            crate::Error::Config { message } => plan.error("data.hdf5", message),
+            other => other,
+        })?;
+    let name = std::path::Path::new("data.hdf5");
+    crate::io::on_common_configs(two, name, three, name, notes, opts)
+}
+
 /// Refuse settings whose resampled data would not fit in memory: one value per resample for
 /// the real and imaginary part of every data point of both tables, plus the resample plan.
 fn check_memory(plan: &Plan, two: &TwoPointData, three: &ThreePointData) -> Result<()> {
@@ -157,7 +178,12 @@ pub(crate) fn check_data_rules(
 ) -> Result<()> {
     let spec = &plan.spec;
     check_memory(plan, two, three)?;
-    data_checks::check_values(two, &plan.twopt, three, &plan.threept)?;
+    let hdf5 = std::path::Path::new("data.hdf5");
+    let (twopt, threept) = match plan.hdf5 {
+        Some(_) => (hdf5, hdf5),
+        None => (plan.twopt.as_path(), plan.threept.as_path()),
+    };
+    data_checks::check_values(two, twopt, three, threept)?;
     let n_t = two.channels.values().map(|s| s.n_t).min().unwrap_or(0);
     let data_t = two.channels.values().map(|s| s.n_t).max().unwrap_or(0);
     if let Some(t) = spec

@@ -23,10 +23,12 @@ pub struct Plan {
     pub spec: PipelineSpec,
     /// `--set` arguments applied, in order.
     pub overrides: Vec<String>,
-    /// Two-point table, resolved.
+    /// Two-point table, resolved (empty with an HDF5 source).
     pub twopt: PathBuf,
-    /// Three-point table, resolved.
+    /// Three-point table, resolved (empty with an HDF5 source).
     pub threept: PathBuf,
+    /// The HDF5 source, resolved, if the data come from HDF5.
+    pub hdf5: Option<crate::io::hdf5::Mapping>,
     /// Run directory, resolved (`--out` replaces it via [`Plan::with_out_dir`]).
     pub out_dir: PathBuf,
     /// The last stage that runs (`stop_after`, else the Q² fits).
@@ -40,6 +42,17 @@ pub struct Plan {
 }
 
 impl Plan {
+    /// The data files to record in the manifest: both tables, or the packed or single HDF5
+    /// file (per-configuration files are too many to hash; their template is in the settings).
+    pub fn input_files(&self) -> Vec<PathBuf> {
+        use crate::io::hdf5::Layout;
+        match self.hdf5.as_ref().map(|m| &m.layout) {
+            None => vec![self.twopt.clone(), self.threept.clone()],
+            Some(Layout::Packed(p) | Layout::OneFile { file: p, .. }) => vec![p.clone()],
+            Some(Layout::PerConfig { .. }) => Vec::new(),
+        }
+    }
+
     /// Whether `stage` runs.
     pub fn runs(&self, stage: Stage) -> bool {
         stage <= self.last_stage
@@ -99,8 +112,20 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     let plan = Plan {
         source: path.to_path_buf(),
         source_sha256: sha256_hex(bytes),
-        twopt: resolve(&spec.data.twopt),
-        threept: resolve(&spec.data.threept),
+        twopt: spec.data.twopt.as_deref().map(resolve).unwrap_or_default(),
+        threept: spec
+            .data
+            .threept
+            .as_deref()
+            .map(resolve)
+            .unwrap_or_default(),
+        hdf5: match &spec.data.hdf5 {
+            Some(h) => Some(
+                h.resolve(&base, "data.hdf5")
+                    .map_err(|e| positions.error("data.hdf5", e))?,
+            ),
+            None => None,
+        },
         out_dir: resolve(&spec.output.dir),
         last_stage: spec.stop_after.unwrap_or(Stage::Q2Fits),
         overrides: sets.to_vec(),
@@ -159,16 +184,38 @@ fn validate(plan: &Plan) -> Result<()> {
     within("decomposition", s.decomposition.validate())?;
     within("output", s.output.validate())?;
     let err = |path: &str, msg: String| Err(plan.error(path, msg));
-    for (key, p) in [("data.twopt", &plan.twopt), ("data.threept", &plan.threept)] {
+    let csv = [&s.data.twopt, &s.data.threept].map(Option::is_some);
+    if plan.hdf5.is_some() == (csv[0] || csv[1]) || (plan.hdf5.is_none() && csv != [true; 2]) {
+        return err(
+            "data",
+            "expected either both CSV tables (`twopt` and `threept`) or an `hdf5` source".into(),
+        );
+    }
+    if let Some(
+        crate::io::hdf5::Layout::Packed(p) | crate::io::hdf5::Layout::OneFile { file: p, .. },
+    ) = plan.hdf5.as_ref().map(|m| &m.layout)
+    {
         if let Some(why) = crate::io::not_a_regular_file(p) {
             return err(
-                key,
+                "data.hdf5",
                 format!(
                     "the file `{}` {why} (paths are relative to the pipeline file)",
                     p.display()
                 ),
             );
         }
+    }
+    for (key, p) in [("data.twopt", &plan.twopt), ("data.threept", &plan.threept)] {
+        let Some(why) = crate::io::not_a_regular_file(p).filter(|_| plan.hdf5.is_none()) else {
+            continue;
+        };
+        return err(
+            key,
+            format!(
+                "the file `{}` {why} (paths are relative to the pipeline file)",
+                p.display()
+            ),
+        );
     }
     if let (Some(t_max), Some(t)) = (s.spectrum.t_max, s.ensemble.t) {
         if t_max >= t as usize {

@@ -126,14 +126,19 @@ pub struct Ensemble {
     pub twist: [f64; 3],
 }
 
-/// The correlator tables.
+/// The correlators: two CSV tables (`twopt` and `threept`) or an HDF5 source (`hdf5`).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DataSpec {
     /// Two-point table (CSV), relative to the pipeline file.
-    pub twopt: PathBuf,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub twopt: Option<PathBuf>,
     /// Three-point table (CSV), relative to the pipeline file.
-    pub threept: PathBuf,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub threept: Option<PathBuf>,
+    /// HDF5 files instead of the CSV tables (needs a build with the `hdf5` feature).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub hdf5: Option<crate::io::hdf5::Hdf5Source>,
     /// Keep only the configurations present in both tables (dropped ones are reported);
     /// otherwise a mismatch is an error.
     #[serde(default)]

@@ -23,8 +23,9 @@ pub fn manifest(plan: &Plan, results: &RunResults) -> Result<Manifest> {
     let mut m = Manifest::start(settings, seed);
     m.started = results.started;
     m.add_input(&plan.source)?;
-    m.add_input(&plan.twopt)?;
-    m.add_input(&plan.threept)?;
+    for p in plan.input_files() {
+        m.add_input(&p)?;
+    }
     for (stage, t) in &results.timings {
         m.add_stage(stage.as_str(), *t);
     }

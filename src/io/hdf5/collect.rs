@@ -1,0 +1,532 @@
+//! Gathering correlators from HDF5 files through a [`Mapping`]: find the files, walk each
+//! file's datasets once, match their paths against the templates, and fill the data model
+//! with the same rules as the CSV reader (sources averaged per configuration, duplicates and
+//! missing data refused, errors naming file and dataset path).
+
+use super::dataset::{dataset_error, open_file, read_block, Block};
+use super::mapping::{Fields, Layout, Mapping};
+use super::template::{nearest, Captures, Template};
+use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
+use crate::error::{Error, Result};
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::{Path, PathBuf};
+
+/// Deepest group nesting walked (a damaged file may link a group into itself).
+const MAX_DEPTH: usize = 32;
+
+/// What the HDF5 reader produced.
+pub struct Collected {
+    /// Two-point data.
+    pub twopt: TwoPointData,
+    /// Three-point data.
+    pub threept: ThreePointData,
+    /// One sentence per thing worth logging.
+    pub notes: Vec<String>,
+}
+
+/// Per-file progress: called with (files done, files in all).
+pub type Progress<'a> = &'a dyn Fn(usize, usize);
+
+/// The files a per-configuration template names, sorted by configuration (then path), with
+/// the values of their placeholders.
+pub fn list_files(base: &Path, tpl: &Template) -> Result<Vec<(PathBuf, Captures)>> {
+    let text = tpl.text();
+    let mut found: Vec<(PathBuf, Captures)> = vec![(
+        if text.starts_with('/') {
+            PathBuf::from("/")
+        } else {
+            base.to_path_buf()
+        },
+        Vec::new(),
+    )];
+    for comp in text.split('/').filter(|c| !c.is_empty()) {
+        let mut next = Vec::new();
+        if !comp.contains('{') {
+            for (dir, caps) in found {
+                next.push((dir.join(comp), caps));
+            }
+        } else {
+            let part = Template::parse(comp, "data.hdf5.files")?;
+            for (dir, caps) in found {
+                let Ok(entries) = std::fs::read_dir(&dir) else {
+                    continue;
+                };
+                for entry in entries.flatten() {
+                    let name = entry.file_name();
+                    let Some(name) = name.to_str() else { continue };
+                    let Some(new) = part.matches(name) else {
+                        continue;
+                    };
+                    let agrees = new
+                        .iter()
+                        .all(|(n, v)| caps.iter().all(|(m, w)| m != n || w == v));
+                    if agrees {
+                        let mut all = caps.clone();
+                        all.extend(new);
+                        next.push((dir.join(name), all));
+                    }
+                }
+            }
+        }
+        found = next;
+    }
+    found.retain(|(p, _)| p.is_file());
+    let config_of = |caps: &Captures| {
+        caps.iter()
+            .find(|(n, _)| *n == "config")
+            .and_then(|(_, v)| v.trim_start_matches('+').parse::<i64>().ok())
+    };
+    found.sort_by(|a, b| (config_of(&a.1), &a.0).cmp(&(config_of(&b.1), &b.0)));
+    if found.is_empty() {
+        return Err(Error::Table {
+            path: base.join(text),
+            message: format!(
+                "no file matches the template `{text}` (relative to {})",
+                base.display()
+            ),
+        });
+    }
+    Ok(found)
+}
+
+/// Every dataset path in `file`, depth first, sorted within each group.
+pub fn dataset_paths(file: &hdf5::File, path: &Path) -> Result<Vec<String>> {
+    fn walk(
+        g: &hdf5::Group,
+        prefix: &str,
+        depth: usize,
+        out: &mut Vec<String>,
+    ) -> hdf5::Result<()> {
+        if depth > MAX_DEPTH {
+            return Err(hdf5::Error::from(
+                "groups nested too deeply (a link cycle?)",
+            ));
+        }
+        for name in g.member_names()? {
+            let full = format!("{prefix}/{name}");
+            match g.loc_type_by_name(&name)? {
+                hdf5::LocationType::Group => walk(&g.group(&name)?, &full, depth + 1, out)?,
+                hdf5::LocationType::Dataset => out.push(full),
+                _ => {}
+            }
+        }
+        Ok(())
+    }
+    let mut out = Vec::new();
+    walk(file, "", 0, &mut out).map_err(|e| Error::Table {
+        path: path.to_path_buf(),
+        message: format!("cannot list the datasets (damaged file?): {e}"),
+    })?;
+    Ok(out)
+}
+
+/// A channel under construction: configuration-major sums and counts.
+struct Chan {
+    n_t: usize,
+    re: Vec<f64>,
+    im: Vec<f64>,
+    count: Vec<u32>,
+    sources: Vec<Vec<i64>>,
+    /// Dataset captures of the first occurrence (to name the path expected elsewhere).
+    caps: Captures,
+    first: (PathBuf, String),
+}
+
+/// Channels of one kind.
+struct Acc<K> {
+    chans: BTreeMap<K, Chan>,
+    n_cfg: usize,
+}
+
+impl<K: Ord + Clone> Acc<K> {
+    fn new(n_cfg: usize) -> Self {
+        Acc {
+            chans: BTreeMap::new(),
+            n_cfg,
+        }
+    }
+
+    /// Add block rows for configurations `cfgs` (indices into the configuration list).
+    #[allow(clippy::too_many_arguments)]
+    fn add(
+        &mut self,
+        key: K,
+        block: &Block,
+        cfgs: &[usize],
+        source: Option<i64>,
+        caps: &Captures,
+        file: &Path,
+        name: &str,
+        describe: impl Fn(&K) -> String,
+    ) -> Result<()> {
+        let n_cfg = self.n_cfg;
+        let chan = self.chans.entry(key.clone()).or_insert_with(|| Chan {
+            n_t: block.n_t,
+            re: vec![0.0; n_cfg * block.n_t],
+            im: vec![0.0; n_cfg * block.n_t],
+            count: vec![0; n_cfg],
+            sources: vec![Vec::new(); n_cfg],
+            caps: caps.clone(),
+            first: (file.to_path_buf(), name.to_string()),
+        });
+        if chan.n_t != block.n_t {
+            return Err(dataset_error(
+                file,
+                name,
+                format!(
+                    "has {} time slices where {} `{}` has {}; every dataset of a channel needs the same length",
+                    block.n_t,
+                    chan.first.0.display(),
+                    chan.first.1,
+                    chan.n_t
+                ),
+            ));
+        }
+        for (row, &c) in cfgs.iter().enumerate() {
+            let dup = match source {
+                Some(s) => chan.sources[c].contains(&s),
+                None => chan.count[c] > 0,
+            };
+            if dup {
+                let what = source.map_or(String::new(), |s| format!(" and source {s}"));
+                return Err(dataset_error(
+                    file,
+                    name,
+                    format!(
+                        "duplicate data: {} at configuration index {c}{what} was already read",
+                        describe(&key)
+                    ),
+                ));
+            }
+            if let Some(s) = source {
+                chan.sources[c].push(s);
+            }
+            chan.count[c] += 1;
+            let n_t = block.n_t;
+            for t in 0..n_t {
+                chan.re[c * n_t + t] += block.re[row * n_t + t];
+                chan.im[c * n_t + t] += block.im[row * n_t + t];
+            }
+        }
+        Ok(())
+    }
+
+    /// Average and transpose to the time-major data model; every configuration must be
+    /// present. Returns the channels and the (min, max) number of sources averaged.
+    fn finish(
+        self,
+        configs: &[i64],
+        describe: impl Fn(&K) -> String,
+    ) -> Result<(BTreeMap<K, Series>, (u32, u32))> {
+        let mut out = BTreeMap::new();
+        let (mut lo, mut hi) = (u32::MAX, 0);
+        for (key, chan) in self.chans {
+            let n_cfg = self.n_cfg;
+            if let Some(c) = chan.count.iter().position(|&n| n == 0) {
+                return Err(Error::Table {
+                    path: chan.first.0.clone(),
+                    message: format!(
+                        "{} (dataset `{}`) has no data for configuration {}",
+                        describe(&key),
+                        chan.first.1,
+                        configs[c]
+                    ),
+                });
+            }
+            let mut s = Series::zeros(chan.n_t, n_cfg);
+            for c in 0..n_cfg {
+                let n = chan.count[c];
+                lo = lo.min(n);
+                hi = hi.max(n);
+                let n = f64::from(n);
+                for t in 0..chan.n_t {
+                    s.re[t * n_cfg + c] = chan.re[c * chan.n_t + t] / n;
+                    s.im[t * n_cfg + c] = chan.im[c * chan.n_t + t] / n;
+                }
+            }
+            out.insert(key, s);
+        }
+        Ok((out, (lo.min(hi), hi)))
+    }
+}
+
+/// Which kind a dataset path belongs to.
+enum Kind {
+    Two(TwoPointKey),
+    Three(ThreePointKey),
+}
+
+/// Read the correlators a (non-packed) mapping describes. `t_extent` is the ensemble's `T`:
+/// longer two-point time axes are cut to it (without it every two-point dataset keeps its
+/// full length, which must then agree).
+pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> Result<Collected> {
+    let (Some(two_tpl), Some(three_tpl)) = (&m.twopt, &m.threept) else {
+        return Err(Error::config(
+            "data.hdf5: the dataset templates are missing",
+        ));
+    };
+    // (file, its placeholder values, the configuration indices of its rows)
+    let (files, configs, config_axis): (Vec<(PathBuf, Captures)>, Vec<i64>, bool) = match &m.layout
+    {
+        Layout::PerConfig { base, files } => {
+            let files = list_files(base, files)?;
+            let mut configs = BTreeSet::new();
+            for (p, caps) in &files {
+                let f = Fields {
+                    file: caps,
+                    dataset: &Vec::new(),
+                    fixed: &m.fixed,
+                };
+                let c = f.config().map_err(|e| Error::Table {
+                    path: p.clone(),
+                    message: e,
+                })?;
+                configs.insert(c);
+            }
+            (files, configs.into_iter().collect(), false)
+        }
+        Layout::OneFile { file, configs } => {
+            let (h5, _) = open_file(file)?;
+            let list = read_configs(&h5, file, configs)?;
+            (vec![(file.clone(), Vec::new())], list, true)
+        }
+        Layout::Packed(_) => {
+            return Err(Error::config("a packed file is read by `read_packed`"));
+        }
+    };
+    let n_cfg = configs.len();
+    let mut two: Acc<TwoPointKey> = Acc::new(n_cfg);
+    let mut three: Acc<ThreePointKey> = Acc::new(n_cfg);
+    let mut first_paths: Option<(PathBuf, usize)> = None;
+    let (mut n_datasets, mut ignored) = (0usize, 0usize);
+    for (i, (path, file_caps)) in files.iter().enumerate() {
+        let (h5, len) = open_file(path)?;
+        let names = dataset_paths(&h5, path)?;
+        // Rows of each dataset: every configuration (configuration axis) or this file's one.
+        let (rows, axis): (Vec<usize>, Option<usize>) = if config_axis {
+            ((0..n_cfg).collect(), Some(n_cfg))
+        } else {
+            let f = Fields {
+                file: file_caps,
+                dataset: &Vec::new(),
+                fixed: &m.fixed,
+            };
+            let c = f.config().unwrap_or_default();
+            (vec![configs.binary_search(&c).unwrap_or_default()], None)
+        };
+        let mut seen = 0usize;
+        for name in &names {
+            let (caps, is_two) = if let Some(c) = two_tpl.matches(name) {
+                (c, true)
+            } else if let Some(c) = three_tpl.matches(name) {
+                (c, false)
+            } else {
+                ignored += 1;
+                continue;
+            };
+            let fields = Fields {
+                file: file_caps,
+                dataset: &caps,
+                fixed: &m.fixed,
+            };
+            let bad = |e: String| dataset_error(path, name, e);
+            let kind = if is_two {
+                Kind::Two(fields.twopt_key().map_err(bad)?)
+            } else {
+                Kind::Three(fields.threept_key().map_err(bad)?)
+            };
+            let source = fields.source().map_err(bad)?;
+            if let Some(c) = fields.get("config").filter(|_| !config_axis) {
+                // A `{config}` in the dataset path must agree with the file's.
+                let fc = Fields {
+                    file: file_caps,
+                    dataset: &Vec::new(),
+                    fixed: &m.fixed,
+                };
+                if fc.get("config") != Some(c) {
+                    return Err(bad(format!(
+                        "names configuration {c} inside the file of configuration {}",
+                        fc.get("config").unwrap_or("?")
+                    )));
+                }
+            }
+            match kind {
+                Kind::Two(key) => {
+                    let block = read_block(&h5, path, len, name, axis, t_extent)?;
+                    two.add(key, &block, &rows, source, &caps, path, name, |k| {
+                        format!("two-point {}", crate::io::describe_twopt(k))
+                    })?;
+                }
+                Kind::Three(key) => {
+                    let need = key.tsep as usize + 1;
+                    let block = read_block(&h5, path, len, name, axis, Some(need))?;
+                    three.add(key, &block, &rows, source, &caps, path, name, |k| {
+                        format!("three-point {}", crate::io::describe_threept(k))
+                    })?;
+                }
+            }
+            seen += 1;
+        }
+        n_datasets += seen;
+        match &first_paths {
+            None => first_paths = Some((path.clone(), seen)),
+            Some((first, first_seen)) => {
+                if seen < *first_seen {
+                    return Err(missing_error(
+                        path, file_caps, &names, first, two_tpl, three_tpl, &two, &three,
+                    ));
+                }
+            }
+        }
+        progress(i + 1, files.len());
+    }
+    if n_datasets == 0 {
+        return Err(Error::Table {
+            path: files[0].0.clone(),
+            message: format!(
+                "no dataset matches `{}` or `{}`",
+                two_tpl.text(),
+                three_tpl.text()
+            ),
+        });
+    }
+    let (twopt, src2) = two.finish(&configs, |k| {
+        format!("two-point {}", crate::io::describe_twopt(k))
+    })?;
+    let (threept, src3) = three.finish(&configs, |k| {
+        format!("three-point {}", crate::io::describe_threept(k))
+    })?;
+    if twopt.is_empty() || threept.is_empty() {
+        let (kind, tpl) = if twopt.is_empty() {
+            ("two-point", two_tpl)
+        } else {
+            ("three-point", three_tpl)
+        };
+        return Err(Error::Table {
+            path: files[0].0.clone(),
+            message: format!("no {kind} dataset matches `{}`", tpl.text()),
+        });
+    }
+    let mut notes = vec![format!(
+        "read {n_datasets} datasets from {} HDF5 file(s) into {} two-point and {} three-point channels on {n_cfg} configurations",
+        files.len(),
+        twopt.len(),
+        threept.len()
+    )];
+    if ignored > 0 {
+        notes.push(format!(
+            "ignored {ignored} dataset(s) that match neither dataset template"
+        ));
+    }
+    if m.provides_source() {
+        let (lo, hi) = (src2.0.min(src3.0), src2.1.max(src3.1));
+        notes.push(format!(
+            "averaged between {lo} and {hi} sources per configuration and data point"
+        ));
+    }
+    Ok(Collected {
+        twopt: TwoPointData {
+            configs: configs.clone(),
+            channels: twopt,
+        },
+        threept: ThreePointData {
+            configs,
+            channels: threept,
+        },
+        notes,
+    })
+}
+
+/// The error for a file that lacks datasets the first file had: the first missing channel's
+/// expected path and the nearest path the file does have.
+#[allow(clippy::too_many_arguments)]
+fn missing_error(
+    path: &Path,
+    file_caps: &Captures,
+    names: &[String],
+    first: &Path,
+    two_tpl: &Template,
+    three_tpl: &Template,
+    two: &Acc<TwoPointKey>,
+    three: &Acc<ThreePointKey>,
+) -> Error {
+    let present: BTreeSet<&str> = names.iter().map(String::as_str).collect();
+    let expect = |tpl: &Template, caps: &Captures| {
+        tpl.expand(|n| {
+            file_caps
+                .iter()
+                .chain(caps.iter())
+                .find(|(m, _)| *m == n)
+                .map(|(_, v)| v.clone())
+        })
+    };
+    let expected = two
+        .chans
+        .values()
+        .map(|c| expect(two_tpl, &c.caps))
+        .chain(three.chans.values().map(|c| expect(three_tpl, &c.caps)))
+        .find(|p| !present.contains(p.as_str()));
+    let message = match expected {
+        Some(p) => {
+            let near = nearest(&p, names.iter().map(String::as_str))
+                .map_or("the file has no dataset".to_string(), |n| {
+                    format!("nearest existing path: `{n}`")
+                });
+            format!(
+                "dataset `{p}` is missing (the first file {} has it); {near}",
+                first.display()
+            )
+        }
+        None => format!(
+            "has fewer matching datasets than the first file {}",
+            first.display()
+        ),
+    };
+    Error::Table {
+        path: path.to_path_buf(),
+        message,
+    }
+}
+
+/// The configuration numbers of a one-file layout: a one-dimensional integer dataset.
+fn read_configs(h5: &hdf5::File, path: &Path, name: &str) -> Result<Vec<i64>> {
+    let err = |m: String| dataset_error(path, name, m);
+    let ds = h5
+        .dataset(name)
+        .map_err(|e| err(format!("cannot open the configuration list: {e}")))?;
+    let desc = ds
+        .dtype()
+        .and_then(|t| t.to_descriptor())
+        .map_err(|e| err(format!("cannot read its type: {e}")))?;
+    if !matches!(
+        desc,
+        hdf5::types::TypeDescriptor::Integer(_) | hdf5::types::TypeDescriptor::Unsigned(_)
+    ) {
+        return Err(err(format!(
+            "holds {desc}; configuration numbers must be integers"
+        )));
+    }
+    let shape = ds.shape();
+    if shape.len() != 1 {
+        return Err(err(format!("has shape {shape:?}; expected one axis")));
+    }
+    let len = std::fs::metadata(path)
+        .map_err(|e| Error::io(path, e))?
+        .len();
+    if (shape[0] as u64).saturating_mul(ds.dtype().map_or(8, |t| t.size()) as u64) > len {
+        return Err(err("is larger than the file: damaged or truncated".into()));
+    }
+    let v: Vec<i64> = ds
+        .read_raw::<i64>()
+        .map_err(|e| err(format!("cannot read: {e}")))?;
+    if v.is_empty() {
+        return Err(err("is empty".into()));
+    }
+    if let Some(w) = v.windows(2).find(|w| w[0] >= w[1]) {
+        return Err(err(format!(
+            "must list configurations in strictly ascending order; found {} then {}",
+            w[0], w[1]
+        )));
+    }
+    Ok(v)
+}

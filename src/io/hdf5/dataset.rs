@@ -1,0 +1,317 @@
+//! Reading one correlator dataset safely: the type, rank and shape are checked against what
+//! the mapping expects and against the size of the file before anything is allocated, so a
+//! damaged or foreign file gives an error, never a huge allocation, a panic or an abort.
+//!
+//! Complex values are either a trailing axis of length 2 (real, imaginary) or a compound type
+//! with two floating-point fields whose names are one of the accepted spellings. Double
+//! precision is read as is; single precision is read as `f32` and widened explicitly; integer
+//! data are refused (the library would convert them silently).
+
+use crate::error::{Error, Result};
+use hdf5::types::{FloatSize, TypeDescriptor};
+use hdf5::H5Type;
+use std::path::Path;
+
+/// The accepted spellings of the two fields of a compound complex number.
+pub const COMPLEX_FIELDS: &[(&str, &str)] = &[
+    ("re", "im"),
+    ("r", "i"),
+    ("real", "imag"),
+    ("real", "imaginary"),
+    ("Re", "Im"),
+    ("Real", "Imag"),
+];
+
+/// Deflate can shrink data at most about 1032-fold; a compressed dataset claiming more
+/// elements than this many times the file size is damaged.
+const MAX_COMPRESSION: u64 = 1100;
+
+/// A block of complex values, rows (configurations of a dataset with a configuration axis,
+/// else one) by `n_t`, row-major (`[row * n_t + t]`).
+pub struct Block {
+    /// Time slices kept.
+    pub n_t: usize,
+    /// Real parts.
+    pub re: Vec<f64>,
+    /// Imaginary parts.
+    pub im: Vec<f64>,
+}
+
+/// An error about dataset `name` of `file`.
+pub fn dataset_error(file: &Path, name: &str, message: impl std::fmt::Display) -> Error {
+    Error::Table {
+        path: file.to_path_buf(),
+        message: format!("dataset `{name}`: {message}"),
+    }
+}
+
+/// The HDF5 signature, at offset 0 or a power of two from 512 (after a user block).
+const SIGNATURE: &[u8; 8] = b"\x89HDF\r\n\x1a\n";
+
+/// Open `path` for reading after checking that it is an HDF5 file. Returns the file and its
+/// size in bytes.
+pub fn open_file(path: &Path) -> Result<(hdf5::File, u64)> {
+    use std::io::{Read, Seek, SeekFrom};
+    // Only a regular file: a FIFO would make the open wait forever.
+    let mut f = crate::io::open_regular(path)?;
+    let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
+    let mut found = false;
+    let mut offset = 0u64;
+    while offset + 8 <= len {
+        let mut sig = [0u8; 8];
+        f.seek(SeekFrom::Start(offset))
+            .and_then(|_| f.read_exact(&mut sig))
+            .map_err(|e| Error::io(path, e))?;
+        if &sig == SIGNATURE {
+            found = true;
+            break;
+        }
+        offset = if offset == 0 { 512 } else { offset * 2 };
+    }
+    if !found {
+        return Err(Error::Table {
+            path: path.to_path_buf(),
+            message: "not an HDF5 file (no HDF5 signature); expected correlators written by an HDF5 library".into(),
+        });
+    }
+    let file = hdf5::File::open(path).map_err(|e| Error::Table {
+        path: path.to_path_buf(),
+        message: format!("cannot open as HDF5 (damaged or truncated?): {e}"),
+    })?;
+    Ok((file, len))
+}
+
+macro_rules! complex_types {
+    ($( $name:ident, $t:ty, $re:literal, $im:literal; )*) => {
+        $(
+            #[derive(H5Type, Clone, Copy)]
+            #[repr(C)]
+            struct $name {
+                #[hdf5(rename = $re)]
+                re: $t,
+                #[hdf5(rename = $im)]
+                im: $t,
+            }
+        )*
+        /// Read a compound dataset whose fields are `(re, im)` of float size `size`.
+        fn read_compound(
+            ds: &hdf5::Dataset,
+            re: &str,
+            im: &str,
+            single: bool,
+        ) -> hdf5::Result<Vec<(f64, f64)>> {
+            $(
+                if re == $re && im == $im && single == (std::mem::size_of::<$t>() == 4) {
+                    return Ok(ds
+                        .read_raw::<$name>()?
+                        .into_iter()
+                        .map(|c| (f64::from(c.re), f64::from(c.im)))
+                        .collect());
+                }
+            )*
+            Err(hdf5::Error::from("no compound type for these field names"))
+        }
+    };
+}
+
+complex_types! {
+    ReIm64, f64, "re", "im"; ReIm32, f32, "re", "im";
+    RI64, f64, "r", "i"; RI32, f32, "r", "i";
+    RealImag64, f64, "real", "imag"; RealImag32, f32, "real", "imag";
+    RealImaginary64, f64, "real", "imaginary"; RealImaginary32, f32, "real", "imaginary";
+    CapReIm64, f64, "Re", "Im"; CapReIm32, f32, "Re", "Im";
+    CapRealImag64, f64, "Real", "Imag"; CapRealImag32, f32, "Real", "Imag";
+}
+
+/// How the complex values of a dataset are stored.
+enum Storage {
+    /// Float array with a trailing axis of length 2.
+    Pairs { single: bool },
+    /// Compound with two float fields (real name, imaginary name).
+    Compound {
+        re: &'static str,
+        im: &'static str,
+        single: bool,
+    },
+}
+
+fn float_single(t: &TypeDescriptor) -> Option<bool> {
+    match t {
+        TypeDescriptor::Float(FloatSize::U4) => Some(true),
+        TypeDescriptor::Float(FloatSize::U8) => Some(false),
+        _ => None,
+    }
+}
+
+fn storage_of(t: &TypeDescriptor) -> std::result::Result<Storage, String> {
+    match t {
+        TypeDescriptor::Float(_) => match float_single(t) {
+            Some(single) => Ok(Storage::Pairs { single }),
+            None => Err(format!("unsupported floating-point type {t}")),
+        },
+        TypeDescriptor::Integer(_) | TypeDescriptor::Unsigned(_) | TypeDescriptor::Boolean => {
+            Err(format!(
+                "holds integer data ({t}); correlators must be floating point (f32 or f64)"
+            ))
+        }
+        TypeDescriptor::Compound(c) => {
+            let names: Vec<&str> = c.fields.iter().map(|f| f.name.as_str()).collect();
+            let spellings = || {
+                COMPLEX_FIELDS
+                    .iter()
+                    .map(|(r, i)| format!("{{{r}, {i}}}"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            let pair = (c.fields.len() == 2)
+                .then(|| {
+                    COMPLEX_FIELDS.iter().find(|(r, i)| {
+                        (names[0] == *r && names[1] == *i) || (names[0] == *i && names[1] == *r)
+                    })
+                })
+                .flatten();
+            let Some((re, im)) = pair else {
+                return Err(format!(
+                    "compound type with fields {names:?} is not a complex number; accepted field names: {}",
+                    spellings()
+                ));
+            };
+            let types: Vec<Option<bool>> = c.fields.iter().map(|f| float_single(&f.ty)).collect();
+            match (types[0], types[1]) {
+                (Some(a), Some(b)) if a == b => Ok(Storage::Compound { re, im, single: a }),
+                _ => Err(format!(
+                    "compound fields {names:?} must both be f32 or both f64, found {} and {}",
+                    c.fields[0].ty, c.fields[1].ty
+                )),
+            }
+        }
+        other => Err(format!(
+            "has type {other}; expected complex numbers (floats with a trailing axis of 2, or a compound {{re, im}})"
+        )),
+    }
+}
+
+/// Read dataset `name` of `file` (size `file_len`) as complex numbers with `n_need` time
+/// slices kept (the time axis may be longer; it is cut). With `config_axis`, the first axis
+/// holds `rows` configurations.
+pub fn read_block(
+    file: &hdf5::File,
+    path: &Path,
+    file_len: u64,
+    name: &str,
+    config_axis: Option<usize>,
+    n_need: Option<usize>,
+) -> Result<Block> {
+    let err = |m: String| dataset_error(path, name, m);
+    let h5 = |e: hdf5::Error| dataset_error(path, name, format!("cannot read: {e}"));
+    let ds = file.dataset(name).map_err(h5)?;
+    let dtype = ds.dtype().map_err(h5)?;
+    let desc = dtype.to_descriptor().map_err(h5)?;
+    let storage = storage_of(&desc).map_err(err)?;
+    let shape = ds.shape();
+    let lead = usize::from(config_axis.is_some());
+    let pairs = matches!(storage, Storage::Pairs { .. });
+    let rank = 1 + lead + usize::from(pairs);
+    let axes = match (config_axis.is_some(), pairs) {
+        (false, true) => "(time, 2)",
+        (false, false) => "(time)",
+        (true, true) => "(configuration, time, 2)",
+        (true, false) => "(configuration, time)",
+    };
+    if shape.len() != rank {
+        return Err(err(format!(
+            "has shape {shape:?}; expected {rank} axes {axes}"
+        )));
+    }
+    if pairs && shape[rank - 1] != 2 {
+        return Err(err(format!(
+            "has shape {shape:?}; the last axis must have length 2 (real, imaginary)"
+        )));
+    }
+    let rows = if lead == 1 { shape[0] } else { 1 };
+    if let Some(n) = config_axis {
+        if rows != n {
+            return Err(err(format!(
+                "has {rows} configurations along its first axis; the configuration list has {n}"
+            )));
+        }
+    }
+    let n_t = shape[lead];
+    // Shape against file size before any allocation.
+    let elem = dtype.size() as u64;
+    let count = shape
+        .iter()
+        .try_fold(1u64, |acc, &d| acc.checked_mul(d as u64))
+        .ok_or_else(|| err(format!("has an impossible shape {shape:?}")))?;
+    let bytes = count
+        .checked_mul(elem)
+        .ok_or_else(|| err(format!("has an impossible shape {shape:?}")))?;
+    let limit = if ds.filters().is_empty() {
+        file_len
+    } else {
+        file_len.saturating_mul(MAX_COMPRESSION)
+    };
+    if bytes > limit {
+        return Err(err(format!(
+            "claims {bytes} bytes of data ({shape:?} of {elem}-byte values) in a file of {file_len} bytes: the file is damaged or truncated"
+        )));
+    }
+    if let Some(chunk) = ds.chunk() {
+        let chunk_bytes = chunk
+            .iter()
+            .try_fold(elem, |acc, &d| acc.checked_mul(d as u64));
+        if chunk_bytes.is_none_or(|b| b > limit.max(1 << 20)) {
+            return Err(err(format!(
+                "has an impossible chunk shape {chunk:?}: the file is damaged"
+            )));
+        }
+    }
+    let keep = n_need.unwrap_or(n_t);
+    if n_t < keep {
+        return Err(err(format!("has {n_t} time slices; {keep} are needed")));
+    }
+    let values: Vec<(f64, f64)> = match storage {
+        Storage::Pairs { single: false } => pairs_of(ds.read_raw::<f64>().map_err(h5)?),
+        Storage::Pairs { single: true } => pairs_of(
+            ds.read_raw::<f32>()
+                .map_err(h5)?
+                .into_iter()
+                .map(f64::from)
+                .collect(),
+        ),
+        Storage::Compound { re, im, single } => read_compound(&ds, re, im, single).map_err(h5)?,
+    };
+    if values.len() != rows * n_t {
+        return Err(err(format!(
+            "returned {} values for shape {shape:?}",
+            values.len()
+        )));
+    }
+    let mut block = Block {
+        n_t: keep,
+        re: Vec::with_capacity(rows * keep),
+        im: Vec::with_capacity(rows * keep),
+    };
+    for r in 0..rows {
+        for t in 0..keep {
+            let (re, im) = values[r * n_t + t];
+            if !re.is_finite() || !im.is_finite() {
+                let at = if lead == 1 {
+                    format!("configuration index {r}, time {t}")
+                } else {
+                    format!("time {t}")
+                };
+                return Err(err(format!(
+                    "non-finite value ({re}, {im}) at {at}; only finite numbers are allowed"
+                )));
+            }
+            block.re.push(re);
+            block.im.push(im);
+        }
+    }
+    Ok(block)
+}
+
+fn pairs_of(flat: Vec<f64>) -> Vec<(f64, f64)> {
+    flat.chunks_exact(2).map(|c| (c[0], c[1])).collect()
+}

@@ -1,0 +1,419 @@
+//! HDF5 input: fixtures written by h5py (tests/fixtures/hdf5/make_fixtures.py, an independent
+//! writer) read back exactly, the data rules of the CSV path, damaged files, the packed file,
+//! and a pipeline from HDF5 against the same pipeline from CSV.
+//!
+//! Everything that reads HDF5 needs the `hdf5` feature; a build without it is checked for
+//! its message instead.
+
+use crate::common::*;
+use formfactory::io::hdf5::Hdf5Source;
+use std::path::Path;
+
+#[cfg(not(feature = "hdf5"))]
+#[test]
+fn without_the_feature_an_hdf5_source_says_how_to_enable_it() {
+    let dir = tempdir();
+    let text = std::fs::read_to_string(repo_root().join("pipelines/pion-vector-hdf5.yaml"))
+        .unwrap()
+        .replace("../", &format!("{}/", repo_root().display()));
+    let p = dir.path().join("p.yaml");
+    std::fs::write(&p, text).unwrap();
+    let o = formfactory(dir.path(), &["check", p.to_str().unwrap()]);
+    assert!(!o.status.success());
+    let e = stderr(&o);
+    assert!(
+        e.contains("--features hdf5") && e.contains("libhdf5-dev"),
+        "{e}"
+    );
+    let o = formfactory(dir.path(), &["pack", "x", "--out", "y.h5"]);
+    assert!(stderr(&o).contains("--features hdf5"), "{}", stderr(&o));
+}
+
+#[test]
+fn mapping_errors_name_the_setting() {
+    let bad = [
+        (
+            "{twopt: '/a/{px}_{py}_{pz}', threept: /b}",
+            "exactly one of",
+        ),
+        (
+            "{files: c.h5, twopt: '/a/{px}_{py}_{pz}', threept: /b}",
+            "no `{config}`",
+        ),
+        (
+            "{files: 'c{config}.h5', twopt: '/a/{px}_{py}_{pz}/{current}', threept: /b}",
+            "does not belong",
+        ),
+        (
+            "{files: 'c{config}.h5', twopt: '/a/{px}_{py}_{pz}', threept: '/b/{tsep}'}",
+            "not in `fixed`",
+        ),
+        ("{packed: x.h5, twopt: '/a'}", "describes itself"),
+    ];
+    for (yaml, want) in bad {
+        let src: Hdf5Source = serde_yaml_ng::from_str(yaml).unwrap();
+        let e = src
+            .resolve(Path::new("."), "data.hdf5")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("data.hdf5") && e.contains(want), "{yaml}: {e}");
+    }
+}
+
+#[cfg(feature = "hdf5")]
+mod with_library {
+    use super::*;
+    use formfactory::data::{Current, Projector, ThreePointKey, TwoPointKey};
+    use formfactory::io::hdf5::{read_packed, read_source, write_packed, Mapping};
+    use std::collections::BTreeMap;
+
+    /// A mapping over the fixture directory.
+    fn mapping(yaml: &str) -> Mapping {
+        let src: Hdf5Source = serde_yaml_ng::from_str(yaml).unwrap();
+        src.resolve(&fixture("hdf5"), "data.hdf5").unwrap()
+    }
+
+    const PERCFG: &str =
+        "{files: 'percfg/conf{config}.h5', twopt: '/2pt/{smear}/p{px}_{py}_{pz}', \
+        threept: '/3pt/tsep{tsep}/{current}/{projector}/pf{pfx}{pfy}{pfz}_q{qx}_{qy}_{qz}'}";
+
+    /// The values the writer script wrote, as text parsed here (Rust's parse is correctly
+    /// rounded, so the doubles are exactly Python's).
+    fn expected() -> BTreeMap<String, Vec<[f64; 2]>> {
+        let text = std::fs::read_to_string(fixture("hdf5/expected.json")).unwrap();
+        let raw: BTreeMap<String, Vec<[String; 2]>> = serde_json::from_str(&text).unwrap();
+        raw.into_iter()
+            .map(|(k, v)| {
+                let v = v
+                    .iter()
+                    .map(|[a, b]| [a.parse().unwrap(), b.parse().unwrap()])
+                    .collect();
+                (k, v)
+            })
+            .collect()
+    }
+
+    fn key2(p: [i32; 3], smear: Option<&str>) -> TwoPointKey {
+        TwoPointKey {
+            momentum: p,
+            smear: smear.map(str::to_string),
+        }
+    }
+
+    fn key3(tsep: u32, current: Current) -> ThreePointKey {
+        ThreePointKey {
+            tsep,
+            pf: [0, 0, 0],
+            q: [0, 0, 1],
+            current,
+            projector: Projector::Unpol,
+            flavor: None,
+            diagram: None,
+        }
+    }
+
+    #[test]
+    fn per_configuration_files_read_back_what_h5py_wrote() {
+        // f64 little- and big-endian, f32 widened, complex128 as compound {r, i}; time axes
+        // longer than needed are cut (two-point to T = 8, three-point to tsep + 1); the
+        // integer dataset /meta/note (one in each file) matches no template and is ignored.
+        let (two, three, notes) = read_source(&mapping(PERCFG), Some(8), &|_, _| {}).unwrap();
+        let exp = expected();
+        assert_eq!(two.configs, vec![100, 104, 108, 112]);
+        assert_eq!(two.channels.len(), 6);
+        assert_eq!(three.channels.len(), 4);
+        let mut compared = 0;
+        for (i, cfg) in two.configs.iter().enumerate() {
+            for smear in ["SS", "SP"] {
+                for p in [[0, 0, 0], [0, 0, 1], [1, 0, 0]] {
+                    let s = &two.channels[&key2(p, Some(smear))];
+                    let want = &exp[&format!("2pt {smear} {} {} {} {cfg}", p[0], p[1], p[2])];
+                    assert_eq!(s.n_t, 8);
+                    for (t, w) in want.iter().enumerate() {
+                        assert_eq!([s.re[s.index(t, i)], s.im[s.index(t, i)]], *w);
+                        compared += 1;
+                    }
+                }
+            }
+            for tsep in [2, 3] {
+                for (cur, name) in [(Current::V4, "V4"), (Current::A3, "A3")] {
+                    let s = &three.channels[&key3(tsep, cur)];
+                    let want = &exp[&format!("3pt {tsep} {name} {cfg}")];
+                    assert_eq!(s.n_t, tsep as usize + 1);
+                    for (t, w) in want.iter().enumerate() {
+                        assert_eq!([s.re[s.index(t, i)], s.im[s.index(t, i)]], *w);
+                        compared += 1;
+                    }
+                }
+            }
+        }
+        assert_eq!(compared, 4 * (6 * 8 + 2 * 3 + 2 * 4));
+        // each of the four files holds one /meta/note
+        assert!(
+            notes.iter().any(|n| n.contains("ignored 4 dataset(s)")),
+            "{notes:?}"
+        );
+    }
+
+    #[test]
+    fn sources_in_the_path_are_averaged() {
+        let m = mapping(
+            "{files: 'sources/conf{config}.h5', twopt: '/src{source}/p{px}_{py}_{pz}', \
+             threept: '/src{source}/c3/tsep{tsep}_{current}', \
+             fixed: {projector: unpol, pfx: '0', pfy: '0', pfz: '0', qx: '0', qy: '0', qz: '1'}}",
+        );
+        let (two, three, notes) = read_source(&m, None, &|_, _| {}).unwrap();
+        let exp = expected();
+        for (i, cfg) in two.configs.iter().enumerate() {
+            for p in [[0, 0, 0], [0, 0, 1]] {
+                let s = &two.channels[&key2(p, None)];
+                let want = &exp[&format!("src {} {} {} {cfg}", p[0], p[1], p[2])];
+                for (t, w) in want.iter().enumerate() {
+                    assert_eq!([s.re[s.index(t, i)], s.im[s.index(t, i)]], *w);
+                }
+            }
+        }
+        assert_eq!(three.channels.len(), 1);
+        assert!(
+            notes.iter().any(|n| n.contains("between 2 and 2 sources")),
+            "{notes:?}"
+        );
+    }
+
+    #[test]
+    fn one_file_with_a_configuration_axis() {
+        let m = mapping(
+            "{file: onefile.h5, configs: /configs, twopt: '/c2/p{px}{py}{pz}', \
+             threept: '/c3/tsep{tsep}/{current}', \
+             fixed: {projector: unpol, pfx: '0', pfy: '0', pfz: '0', qx: '0', qy: '0', qz: '1'}}",
+        );
+        let (two, three, _) = read_source(&m, Some(8), &|_, _| {}).unwrap();
+        let exp = expected();
+        assert_eq!(two.configs, vec![100, 104, 108, 112]);
+        for (i, cfg) in two.configs.iter().enumerate() {
+            for p in [[0, 0, 0], [0, 0, 1], [1, 0, 0]] {
+                let s = &two.channels[&key2(p, None)];
+                let want = &exp[&format!("one {} {} {} {cfg}", p[0], p[1], p[2])];
+                for (t, w) in want.iter().enumerate() {
+                    assert_eq!([s.re[s.index(t, i)], s.im[s.index(t, i)]], *w);
+                }
+            }
+        }
+        assert_eq!(three.channels.len(), 2);
+    }
+
+    /// Read `file` (copied in as the only configuration) with a two-point mapping.
+    fn read_single(file: &Path) -> String {
+        let dir = tempdir();
+        std::fs::copy(file, dir.path().join("conf1.h5")).unwrap();
+        let src: Hdf5Source = serde_yaml_ng::from_str(
+            "{files: 'conf{config}.h5', twopt: '/2pt/{smear}/p{px}_{py}_{pz}', \
+             threept: '/3pt/tsep{tsep}/{current}/{projector}/pf{pfx}{pfy}{pfz}_q{qx}_{qy}_{qz}'}",
+        )
+        .unwrap();
+        let m = src.resolve(dir.path(), "data.hdf5").unwrap();
+        match read_source(&m, Some(8), &|_, _| {}) {
+            Ok(_) => String::new(),
+            Err(e) => e.to_string(),
+        }
+    }
+
+    #[test]
+    fn wrong_types_ranks_and_values_are_refused_with_file_and_dataset() {
+        for (file, want) in [
+            ("bad_integer.h5", "integer data"),
+            ("bad_compound.h5", "not a complex number"),
+            ("bad_rank.h5", "expected 2 axes (time, 2)"),
+            ("bad_nan.h5", "non-finite value"),
+            ("expected.json", "not an HDF5 file"),
+        ] {
+            let e = read_single(&fixture("hdf5").join(file));
+            assert!(e.contains("conf1.h5") && e.contains(want), "{file}: {e}");
+            if file != "expected.json" {
+                assert!(e.contains("/2pt/SS/p0_0_0"), "{file}: {e}");
+            }
+        }
+    }
+
+    #[test]
+    fn a_missing_dataset_is_named_with_the_nearest_existing_path() {
+        let m = mapping(&PERCFG.replace("percfg/", "missing/"));
+        let e = read_source(&m, Some(8), &|_, _| {})
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("conf104.h5"), "{e}");
+        assert!(e.contains("`/2pt/SP/p0_0_1` is missing"), "{e}");
+        assert!(e.contains("nearest existing path: `/2pt/SP/p0_0_0`"), "{e}");
+    }
+
+    #[test]
+    fn too_short_time_axis_and_duplicates_are_refused() {
+        let e = read_source(&mapping(PERCFG), Some(12), &|_, _| {})
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("has 10 time slices; 12 are needed"), "{e}");
+        // conf100.h5 and conf0100.h5 are both configuration 100: every dataset twice.
+        let dir = tempdir();
+        for name in ["conf100.h5", "conf0100.h5"] {
+            std::fs::copy(fixture("hdf5/percfg/conf100.h5"), dir.path().join(name)).unwrap();
+        }
+        let src: Hdf5Source = serde_yaml_ng::from_str(&PERCFG.replace("percfg/", "")).unwrap();
+        let m = src.resolve(dir.path(), "data.hdf5").unwrap();
+        let e = read_source(&m, Some(8), &|_, _| {})
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("duplicate data") && e.contains("conf100.h5"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn truncated_files_give_errors() {
+        let dir = tempdir();
+        let bytes = std::fs::read(fixture("hdf5/percfg/conf100.h5")).unwrap();
+        for cut in [0, 7, 100, 1000, bytes.len() / 2, bytes.len() - 10] {
+            let f = dir.path().join("t.h5");
+            std::fs::write(&f, &bytes[..cut]).unwrap();
+            let e = read_single(&f);
+            assert!(!e.is_empty() && e.contains("conf1.h5"), "cut {cut}: {e}");
+        }
+    }
+
+    #[test]
+    fn packed_file_round_trip_and_csv_convert() {
+        let (two, three, _) = read_source(&mapping(PERCFG), Some(8), &|_, _| {}).unwrap();
+        let dir = tempdir();
+        let packed = dir.path().join("ens.h5");
+        write_packed(&packed, &two, &three).unwrap();
+        let (two2, three2) = read_packed(&packed).unwrap();
+        assert_eq!(two, two2);
+        assert_eq!(three, three2);
+        let out = dir.path().join("csv");
+        let o = formfactory(
+            dir.path(),
+            &[
+                "convert",
+                packed.to_str().unwrap(),
+                "--out",
+                out.to_str().unwrap(),
+            ],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        let back = formfactory::io::read_dataset(
+            &out.join("twopt.csv"),
+            Some(&out.join("threept.csv")),
+            &Default::default(),
+        )
+        .unwrap();
+        assert_eq!(back.twopt, two);
+        assert_eq!(back.threept.unwrap(), three);
+        // inspect reads the packed file
+        let o = formfactory(dir.path(), &["inspect", packed.to_str().unwrap()]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        assert!(stdout(&o).contains("configurations: 4"), "{}", stdout(&o));
+    }
+
+    #[test]
+    fn pion_demo_from_hdf5_equals_the_csv_tables() {
+        // The per-configuration demo files were written by h5py from the CSV text; the packed
+        // file by `formfactory pack`. All three sources must give identical data.
+        let csv = formfactory::io::read_dataset(
+            &repo_root().join("demo-data/pion/twopt.csv"),
+            Some(&repo_root().join("demo-data/pion/threept.csv")),
+            &Default::default(),
+        )
+        .unwrap();
+        for name in ["pion-vector-hdf5", "pion-vector-packed"] {
+            let plan = formfactory::pipeline::load(
+                &repo_root().join(format!("pipelines/{name}.yaml")),
+                &[],
+            )
+            .unwrap();
+            let ds =
+                formfactory::pipeline::read_source(&plan, &Default::default(), &|_, _| {}).unwrap();
+            assert_eq!(ds.twopt, csv.twopt, "{name}");
+            assert_eq!(ds.threept, csv.threept, "{name}");
+        }
+    }
+
+    #[test]
+    fn pipeline_from_hdf5_gives_the_csv_results_bit_for_bit() {
+        let dir = tempdir();
+        let mut outputs = Vec::new();
+        for name in ["pion-vector", "pion-vector-hdf5"] {
+            let out = dir.path().join(name);
+            let p = format!("pipelines/{name}.yaml");
+            let o = formfactory(
+                &repo_root(),
+                &["run", &p, "--out", out.to_str().unwrap(), "--quiet"],
+            );
+            assert!(o.status.success(), "{name}: {}", stderr(&o));
+            let read = |f: &str| std::fs::read_to_string(out.join(f)).unwrap();
+            outputs.push((read("formfactors.csv"), read("derived.csv")));
+        }
+        assert!(outputs[0].0.lines().count() > 3);
+        assert_eq!(outputs[0], outputs[1]);
+    }
+
+    #[test]
+    fn check_and_inspect_accept_an_hdf5_pipeline() {
+        let o = formfactory(&repo_root(), &["check", "pipelines/pion-vector-hdf5.yaml"]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        assert!(stdout(&o).contains("100 configurations"), "{}", stdout(&o));
+        let o = formfactory(
+            &repo_root(),
+            &["inspect", "pipelines/pion-vector-hdf5.yaml"],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        assert!(stdout(&o).contains("momenta (6)"), "{}", stdout(&o));
+    }
+
+    #[test]
+    fn pack_refuses_to_overwrite_and_packs_csv_tables() {
+        let dir = tempdir();
+        let out = dir.path().join("p.h5");
+        std::fs::write(&out, "keep me").unwrap();
+        let o = formfactory(
+            &repo_root(),
+            &["pack", "demo-data/pion", "--out", out.to_str().unwrap()],
+        );
+        assert!(!o.status.success());
+        assert_eq!(std::fs::read_to_string(&out).unwrap(), "keep me");
+        let o = formfactory(
+            &repo_root(),
+            &[
+                "pack",
+                "demo-data/pion",
+                "--out",
+                out.to_str().unwrap(),
+                "--force",
+                "--quiet",
+            ],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        let committed = read_packed(&repo_root().join("demo-data/pion.packed.h5")).unwrap();
+        assert_eq!(read_packed(&out).unwrap(), committed);
+    }
+
+    #[test]
+    fn fuzz_corrupted_files_give_errors_never_crashes() {
+        // 1000 random corruptions (truncation, bit flips, random bytes) of an h5py
+        // per-configuration file and of a packed file, each read by the binary in its own
+        // process (tests/fixtures/hdf5/fuzz.py): every run must end with a result or a clean
+        // error, never a signal or a hang.
+        let o = std::process::Command::new("python3")
+            .arg(fixture("hdf5/fuzz.py"))
+            .arg(env!("CARGO_BIN_EXE_formfactory"))
+            .arg("1000")
+            .output()
+            .expect("python3 runs");
+        let out = String::from_utf8_lossy(&o.stdout);
+        println!("{out}");
+        assert!(o.status.success(), "{out}{}", stderr(&o));
+        assert!(
+            out.contains("fuzz: 1000 corrupted reads") && out.contains(" 0 crashes"),
+            "{out}"
+        );
+    }
+}
