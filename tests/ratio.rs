@@ -381,9 +381,19 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
         st.amp_ratio = &st.amp_ratio * 1.3;
         st.gap = &st.gap - 0.05;
     }
+    // The drawn curve of an exact fit passes through every exact ratio point (the model
+    // of methods.md §4 evaluated at the central fit).
+    let curve_matches = |fit: &two_state::TwoStateFit, ratio: &formfactory::ratio::ChannelRatio| {
+        for p in &ratio.points {
+            let (re, im) = fit.curve(p.tsep as f64, p.tau as f64);
+            assert_relative_eq!(re, p.value.re.central, max_relative = 1e-6, epsilon = 1e-9);
+            assert_relative_eq!(im, p.value.im.central, max_relative = 1e-6, epsilon = 1e-9);
+        }
+    };
     for ch in &chans {
         let ratio = ratios[&ChannelKey::of(&ch.key(6))].clone();
         let fit = two_state::two_state(&ratio, &states, &settings).unwrap();
+        curve_matches(&fit, &ratio);
         // Exact data follow the two-state form of methods.md §4 exactly.
         assert_relative_eq!(fit.m.value.re.central, ch.m.0, max_relative = 1e-8);
         assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
@@ -399,6 +409,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
             ..RatioSettings::default()
         };
         let fit = two_state::two_state(&ratio, &jittered, &floating).unwrap();
+        curve_matches(&fit, &ratio);
         assert_relative_eq!(fit.m.value.re.central, ch.m.0, max_relative = 1e-8);
         assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
         let gaps = fit.gaps.unwrap();
@@ -419,6 +430,7 @@ fn two_state_fit_recovers_the_matrix_element_and_summation_bias_is_analytic() {
             ..RatioSettings::default()
         };
         let fit = two_state::two_state(&ratio, &off, &joint).unwrap();
+        curve_matches(&fit, &ratio);
         assert_relative_eq!(fit.m.value.re.central, ch.m.0, max_relative = 1e-8);
         assert_relative_eq!(fit.m.value.im.central, ch.m.1, max_relative = 1e-8);
         let gaps = fit.gaps.unwrap();
@@ -699,7 +711,7 @@ fn missing_two_point_momentum_is_an_error() {
     c2.channels.retain(|k, _| k.momentum != MX);
     let msg =
         analysis_message(build_ratios(&c3, &c2, &plan, &RatioSettings::default()).unwrap_err());
-    assert!(msg.contains("[-1, 0, 0]") && msg.contains("V4"), "{msg}");
+    assert!(msg.contains("(-1,0,0)") && msg.contains("V4"), "{msg}");
 }
 
 #[test]

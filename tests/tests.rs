@@ -20,3 +20,4 @@ mod ratio;
 mod report;
 mod resample;
 mod spectrum;
+mod spectrum_closure;

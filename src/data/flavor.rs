@@ -101,11 +101,11 @@ pub fn combine(data: &ThreePointData, combos: &[FlavorCombo]) -> Result<ThreePoi
                     Error::analysis(
                         "kinematics",
                         format!(
-                            "flavour combination `{}`: channel tsep={} pf={:?} q={:?} {} {} has no data for flavour `{}`{}",
+                            "flavour combination `{}`: channel tsep={} pf={} q={} {} {} has no data for flavour `{}`{}",
                             combo.label,
                             b.tsep,
-                            b.pf,
-                            b.q,
+                            super::momentum_text(b.pf),
+                            super::momentum_text(b.q),
                             b.current,
                             b.projector,
                             t.flavor,
@@ -118,8 +118,8 @@ pub fn combine(data: &ThreePointData, combos: &[FlavorCombo]) -> Result<ThreePoi
                     return Err(Error::analysis(
                         "kinematics",
                         format!(
-                            "flavour combination `{}`: flavour `{}` of channel tsep={} pf={:?} q={:?} {} {} has {}x{} values, other terms {}x{}",
-                            combo.label, t.flavor, b.tsep, b.pf, b.q, b.current, b.projector, s.n_t, s.n_cfg, acc.n_t, acc.n_cfg
+                            "flavour combination `{}`: flavour `{}` of channel tsep={} pf={} q={} {} {} has {}x{} values, other terms {}x{}",
+                            combo.label, t.flavor, b.tsep, super::momentum_text(b.pf), super::momentum_text(b.q), b.current, b.projector, s.n_t, s.n_cfg, acc.n_t, acc.n_cfg
                         ),
                     ));
                 }

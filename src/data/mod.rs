@@ -30,6 +30,11 @@ pub const CHANNEL_COLUMNS: [&str; 8] = [
     "projector",
 ];
 
+/// A momentum as every message, table title and plot writes it: `(0,0,-1)`.
+pub fn momentum_text(p: Momentum) -> String {
+    format!("({},{},{})", p[0], p[1], p[2])
+}
+
 /// Squared length of an integer momentum.
 pub fn norm2(p: Momentum) -> i32 {
     p[0] * p[0] + p[1] * p[1] + p[2] * p[2]

@@ -45,8 +45,11 @@ impl ChannelValue {
     /// A readable channel name for messages.
     pub fn label(&self) -> String {
         format!(
-            "pf={:?} q={:?} {} {}",
-            self.pf, self.q, self.current, self.projector
+            "pf={} q={} {} {}",
+            crate::data::momentum_text(self.pf),
+            crate::data::momentum_text(self.q),
+            self.current,
+            self.projector
         )
     }
 }

@@ -130,7 +130,8 @@ impl KinematicSetup {
                     return Err(Error::analysis(
                         "kinematics",
                         format!(
-                            "fitted energy at momentum {p:?} has {} samples ({:?}), the mass has {n} ({:?})",
+                            "fitted energy at momentum {} has {} samples ({:?}), the mass has {n} ({:?})",
+                            crate::data::momentum_text(*p),
                             e.len(),
                             e.scheme,
                             self.mass.scheme

@@ -246,8 +246,9 @@ pub(crate) fn check_data_rules(
                 return Err(plan.error(
                     "data.twopt",
                     format!(
-                        "the ratio of three-point channel {} needs the two-point function at momentum {p:?}, which is not in the two-point data",
-                        crate::io::describe_threept(k)
+                        "the ratio of three-point channel {} needs the two-point function at momentum {}, which is not in the two-point data",
+                        crate::io::describe_threept(k),
+                        crate::data::momentum_text(p)
                     ),
                 ));
             }

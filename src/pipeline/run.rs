@@ -26,6 +26,9 @@ pub trait Observer: Sync {
     fn stage_started(&self, _stage: &str) {}
     /// A stage finished after `elapsed`.
     fn stage_finished(&self, _stage: &str, _elapsed: Duration) {}
+    /// `done` of the stage's `total` items (momenta, channels, estimators, fits) are done;
+    /// may be called from any thread, not necessarily in order.
+    fn progress(&self, _stage: &str, _done: usize, _total: usize) {}
     /// A warning was raised (it is also kept in [`RunResults::warnings`]).
     fn warning(&self, _message: &str) {}
 }
@@ -215,7 +218,12 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
 
     results.data = Some(summary);
     if plan.runs(Stage::Spectrum) {
-        let sp = rec.stage("spectrum", |_| spectrum::run(&two, &rplan, &spec.spectrum))?;
+        let obs = rec.observer;
+        let sp = rec.stage("spectrum", |_| {
+            spectrum::run_with_progress(&two, &rplan, &spec.spectrum, &|d, t| {
+                obs.progress("spectrum", d, t)
+            })
+        })?;
         for w in &sp.warnings {
             rec.warn(format!("spectrum: {w}"));
         }
@@ -228,8 +236,16 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
             .as_ref()
             .ok_or_else(|| Error::analysis("ratio", "the ratio needs the spectrum stage"))?;
         let states = two_point_states(sp);
+        let obs = rec.observer;
         let channels = rec.stage("ratio", |_| {
-            ratio::analyse_all(&three, &two, &rplan, &states, &spec.excited_states)
+            ratio::analyse_all_with_progress(
+                &three,
+                &two,
+                &rplan,
+                &states,
+                &spec.excited_states,
+                &|d, t| obs.progress("ratio", d, t),
+            )
         })?;
         for (key, c) in &channels {
             for n in &c.notes {
@@ -443,7 +459,10 @@ fn decompose_all(
         spacing_fm: Some(spec.ensemble.spacing_fm),
     };
     let mut rows = Vec::new();
-    for (method, values) in method_values(&spec.excited_states.methods, channels) {
+    let by_method = method_values(&spec.excited_states.methods, channels);
+    let total = by_method.len();
+    for (i, (method, values)) in by_method.into_iter().enumerate() {
+        rec.observer.progress("decomposition", i, total);
         if values.is_empty() {
             rec.warn(format!("decomposition {method}: no channel has a value"));
             continue;
@@ -515,7 +534,9 @@ fn q2_fits(plan: &Plan, rows: &[FormFactorRow], rec: &mut Recorder) -> Vec<Q2Fit
         spacing_fm: Some(spec.ensemble.spacing_fm),
     };
     let mut out = Vec::new();
-    for ((method, ff), points) in groups {
+    let total = groups.len();
+    for (i, ((method, ff), points)) in groups.into_iter().enumerate() {
+        rec.observer.progress("q2_fits", i, total);
         let list = &spec.q2_fits.form_factors[&ff];
         for (i, settings) in list.iter().enumerate() {
             let base = match settings.model {

@@ -140,12 +140,33 @@ pub fn analyse_all(
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
 ) -> Result<BTreeMap<ChannelKey, ChannelResult>> {
+    analyse_all_with_progress(c3, c2, plan, states, settings, &|_, _| {})
+}
+
+/// [`analyse_all`], calling `progress(done, total)` as channels finish (in any order, from
+/// any thread; the results do not depend on it).
+pub fn analyse_all_with_progress(
+    c3: &ThreePointData,
+    c2: &TwoPointData,
+    plan: &ResamplePlan,
+    states: &BTreeMap<Momentum, TwoPointStates>,
+    settings: &RatioSettings,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<BTreeMap<ChannelKey, ChannelResult>> {
     let ratios: Vec<ChannelRatio> = build_ratios(c3, c2, plan, settings)?
         .into_values()
         .collect();
+    let total = ratios.len();
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    progress(0, total);
     let results: Vec<Result<ChannelResult>> = ratios
         .into_par_iter()
-        .map(|r| analyse_channel(r, states, settings))
+        .map(|r| {
+            let out = analyse_channel(r, states, settings);
+            let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+            progress(n, total);
+            out
+        })
         .collect();
     results
         .into_iter()

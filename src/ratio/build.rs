@@ -15,7 +15,7 @@
 
 use super::lsq::CovarianceSetup;
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
-use crate::data::{Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
+use crate::data::{momentum_text, Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
 use crate::resample::{ResamplePlan, Resampled};
 use crate::{Error, Result};
 use serde::Serialize;
@@ -256,11 +256,12 @@ impl<'a> TwoPointMeans<'a> {
                 Error::analysis(
                     STAGE,
                     format!(
-                        "channel {channel}: no two-point function at momentum {p:?} (interpolator \
-                         {}); the ratio needs C2 at p_f={:?} and p_i=p_f-q={:?}",
+                        "channel {channel}: no two-point function at momentum {} (interpolator \
+                         {}); the ratio needs C2 at p_f={} and p_i=p_f-q={}",
+                        momentum_text(p),
                         self.smear.as_deref().unwrap_or("none"),
-                        channel.pf,
-                        channel.source_momentum()
+                        momentum_text(channel.pf),
+                        momentum_text(channel.source_momentum())
                     ),
                 )
             })?;
@@ -268,7 +269,8 @@ impl<'a> TwoPointMeans<'a> {
                 return Err(Error::analysis(
                     STAGE,
                     format!(
-                        "two-point function at momentum {p:?}: {} configurations, expected {} bins",
+                        "two-point function at momentum {}: {} configurations, expected {} bins",
+                        momentum_text(p),
                         series.n_cfg,
                         self.plan.n_bins()
                     ),
@@ -285,8 +287,9 @@ impl<'a> TwoPointMeans<'a> {
             return Err(Error::analysis(
                 STAGE,
                 format!(
-                    "channel {channel}, tsep {tsep}: the two-point function at momentum {p:?} has \
+                    "channel {channel}, tsep {tsep}: the two-point function at momentum {} has \
                      only {} time slices; the ratio needs t = 0..={tsep}",
+                    momentum_text(p),
                     n_t
                 ),
             ));

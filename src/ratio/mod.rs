@@ -72,7 +72,7 @@ pub mod settings;
 pub mod summation;
 pub mod two_state;
 
-pub use analyse::{analyse_all, analyse_channel, ChannelResult};
+pub use analyse::{analyse_all, analyse_all_with_progress, analyse_channel, ChannelResult};
 pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
 pub use crosscheck::{CrossCheckRow, Flag};
 pub use estimator::Estimator;
@@ -143,8 +143,11 @@ impl fmt::Display for ChannelKey {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(
             f,
-            "pf={:?} q={:?} {} {}",
-            self.pf, self.q, self.current, self.projector
+            "pf={} q={} {} {}",
+            crate::data::momentum_text(self.pf),
+            crate::data::momentum_text(self.q),
+            self.current,
+            self.projector
         )?;
         if let Some(fl) = &self.flavor {
             write!(f, " flavor={fl}")?;

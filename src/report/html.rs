@@ -5,6 +5,7 @@
 //! [`Block`]s — and every piece of text is HTML-escaped, so labels from the user's data or
 //! pipeline file cannot break the markup.
 
+use super::plot::markup;
 use super::table::{Cell, Table};
 use crate::error::{Error, Result};
 use std::fmt::Write as _;
@@ -73,7 +74,10 @@ nav ol{font-size:.95em}\
 table{border-collapse:collapse;margin:.8em 0;font-size:.9em}\
 caption{text-align:left;font-weight:600;padding-bottom:.3em}\
 th,td{border-bottom:1px solid #ddd;padding:.25em .7em;vertical-align:top}\
+td{white-space:nowrap}\
+div.t{overflow-x:auto}\
 th{background:#f2f2f2;text-align:left}\
+code{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:.92em;background:#f2f2f2;padding:0 .2em}\
 td.n{text-align:right;font-variant-numeric:tabular-nums;font-family:ui-monospace,Menlo,Consolas,monospace}\
 figure{margin:1.2em 0}\
 figure svg{max-width:100%;height:auto;border:1px solid #eee}\
@@ -144,7 +148,7 @@ impl Report {
 fn render_block(h: &mut String, b: &Block) {
     match b {
         Block::Paragraph(p) => {
-            let _ = writeln!(h, "<p>{}</p>", escape(p));
+            let _ = writeln!(h, "<p>{}</p>", text(p));
         }
         Block::Table(t) => render_table(h, t),
         Block::Svg { svg, caption } => {
@@ -153,7 +157,7 @@ fn render_block(h: &mut String, b: &Block) {
             let _ = writeln!(
                 h,
                 "\n<figcaption>{}</figcaption>\n</figure>",
-                escape(caption)
+                markup::html(&escape(caption))
             );
         }
         Block::Pre(p) => {
@@ -165,7 +169,7 @@ fn render_block(h: &mut String, b: &Block) {
         Block::Warnings(w) => {
             h.push_str("<div class=\"warnings\"><ul>\n");
             for line in w {
-                let _ = writeln!(h, "<li>{}</li>", escape(line));
+                let _ = writeln!(h, "<li>{}</li>", text(line));
             }
             h.push_str("</ul></div>\n");
         }
@@ -175,11 +179,11 @@ fn render_block(h: &mut String, b: &Block) {
 fn render_table(h: &mut String, t: &Table) {
     let _ = write!(
         h,
-        "<table>\n<caption>{}</caption>\n<thead><tr>",
+        "<div class=\"t\"><table>\n<caption>{}</caption>\n<thead><tr>",
         escape(&t.name)
     );
     for c in &t.columns {
-        let _ = write!(h, "<th>{}</th>", escape(c));
+        let _ = write!(h, "<th>{}</th>", text(c));
     }
     h.push_str("</tr></thead>\n<tbody>\n");
     for row in &t.rows {
@@ -190,11 +194,11 @@ fn render_table(h: &mut String, t: &Table) {
             } else {
                 " class=\"n\""
             };
-            let _ = write!(h, "<td{class}>{}</td>", escape(&cell.to_display()));
+            let _ = write!(h, "<td{class}>{}</td>", text(&cell.to_display()));
         }
         h.push_str("</tr>\n");
     }
-    h.push_str("</tbody>\n</table>\n");
+    h.push_str("</tbody>\n</table></div>\n");
 }
 
 /// Prepare an SVG document for inlining: drop an XML declaration or doctype in front of the
@@ -203,6 +207,29 @@ fn render_table(h: &mut String, t: &Table) {
 fn inline_svg(svg: &str) -> String {
     let body = svg.find("<svg").map_or(svg, |i| &svg[i..]);
     body.replacen(" xmlns=\"http://www.w3.org/2000/svg\"", "", 1)
+}
+
+/// Running text for the page: escaped, `code` between backticks as `<code>`, and the
+/// sub/superscript markup (`G_{E}`, `Q^{2}`) as `<sub>`/`<sup>`. An unpaired backtick
+/// stays as it is.
+fn text(s: &str) -> String {
+    let escaped = escape(s);
+    let parts: Vec<&str> = escaped.split('`').collect();
+    let mut out = String::with_capacity(escaped.len() + 16);
+    let paired = parts.len() % 2 == 1;
+    for (i, part) in parts.iter().enumerate() {
+        if i % 2 == 0 {
+            out.push_str(&markup::html(part));
+        } else if !paired && i + 1 == parts.len() {
+            out.push('`');
+            out.push_str(&markup::html(part));
+        } else {
+            out.push_str("<code>");
+            out.push_str(part);
+            out.push_str("</code>");
+        }
+    }
+    out
 }
 
 /// Escape `&`, `<`, `>`, `"` and `'` for HTML text and attribute values.
@@ -249,6 +276,16 @@ mod tests {
         assert!(html.contains("<caption>t&lt;1&gt;</caption>"));
         assert!(html.contains("<th>a&amp;b</th>"));
         assert!(html.contains("key: &quot;&lt;v&gt;&quot;"));
+    }
+
+    #[test]
+    fn backticks_and_scripts_become_markup() {
+        assert_eq!(
+            text("set `final_value.pin` for G_{E} < 1"),
+            "set <code>final_value.pin</code> for G<sub>E</sub> &lt; 1"
+        );
+        assert_eq!(text("a `b"), "a `b");
+        assert_eq!(text("plateau_tsep8"), "plateau_tsep8");
     }
 
     #[test]

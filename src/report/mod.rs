@@ -7,7 +7,8 @@
 //!   that round-trip exactly, rendered as aligned text for the terminal summary; the long
 //!   per-resample table ([`samples_table`]).
 //! - [`plot`]: SVG charts (error bars, bands, lines, reference lines, log y axis, legend).
-//! - [`html`]: the self-contained `report.html`.
+//! - [`html`]: the self-contained `report.html`; [`readable`]: tables as the page shows
+//!   them (`value(error)` columns, short numbers).
 //! - [`manifest`]: `manifest.json` with version, input digests (SHA-256), settings, seed,
 //!   stage times and warnings.
 //! - [`rundir`]: the result directory, written into a temporary sibling and renamed into
@@ -54,6 +55,7 @@
 pub mod html;
 pub mod manifest;
 pub mod plot;
+pub mod readable;
 pub mod rundir;
 mod signals;
 pub mod table;
@@ -61,6 +63,7 @@ pub mod table;
 pub use html::{Block, Report, Section};
 pub use manifest::{InputFile, Manifest};
 pub use plot::{render_svg, write_svg, Chart, Legend, ReferenceLine, Series, SeriesKind};
+pub use readable::readable;
 pub use rundir::{Marker, OutputRules, RunDir};
 pub use table::{
     render_text, samples_table, value_error, value_errors, write_csv, write_json,

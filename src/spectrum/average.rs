@@ -124,6 +124,48 @@ pub fn robust_variance(v: &Resampled) -> f64 {
     }
 }
 
+/// How far (in the fit's own ground-energy error) the effective mass at a fit's `t_min` may be
+/// shifted by states the fit leaves out before the fit counts as contaminated.
+pub const MAX_CONTAMINATION_SIGMA: f64 = 1.0;
+
+/// Mark fits with fewer states than the best physical, resolved multi-state fit (lowest
+/// Jay–Neil score) as contaminated when that fit's extra states shift the effective mass at
+/// their `t_min` by more than [`MAX_CONTAMINATION_SIGMA`] times their ground-energy error
+/// (from the central fit's parameter covariance, so the verdict is the same for jackknife and
+/// bootstrap). Such a fit's energy is biased upward by at least about its own error; without
+/// this rule the noisy chi-square of a small ensemble cannot tell it from a clean one, and
+/// one-state fits at moderate `t_min` won the average several sigma above the truth.
+fn exclude_contaminated(fits: &[WindowFit], t_min_first: usize, reasons: &mut [Option<String>]) {
+    let score = |f: &WindowFit| {
+        f.central.chi2
+            + 2.0 * f.n_params() as f64
+            + 2.0 * f.t_min.saturating_sub(t_min_first) as f64
+    };
+    let Some(reference) = fits
+        .iter()
+        .zip(reasons.iter())
+        .filter(|(f, r)| r.is_none() && f.n_states > 1)
+        .map(|(f, _)| f)
+        .min_by(|a, b| score(a).total_cmp(&score(b)))
+    else {
+        return;
+    };
+    for (f, reason) in fits.iter().zip(reasons.iter_mut()) {
+        if reason.is_some() || f.n_states >= reference.n_states {
+            continue;
+        }
+        let shift = reference.contamination_shift(f.t_min as f64, f.n_states);
+        let sigma = f.central.error(0).unwrap_or(f64::INFINITY);
+        if shift > MAX_CONTAMINATION_SIGMA * sigma {
+            *reason = Some(format!(
+                "contaminated: the {}-state fit at t_min = {} shifts the effective mass at t = {} \
+                 by {shift:.2e}, more than this fit's error {sigma:.1e}",
+                reference.n_states, reference.t_min, f.t_min
+            ));
+        }
+    }
+}
+
 /// Weighted average of per-fit values with the Jay–Neil variance, as a resampled value;
 /// returns it with the statistical and model parts of the variance.
 pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
@@ -165,7 +207,8 @@ pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
 /// [`WindowFit::exclusion`] get weight zero and keep their reason in the table; when every fit
 /// is excluded, all of them are averaged (the caller warns).
 pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
-    let reasons: Vec<Option<String>> = fits.iter().map(WindowFit::exclusion).collect();
+    let mut reasons: Vec<Option<String>> = fits.iter().map(WindowFit::exclusion).collect();
+    exclude_contaminated(fits, t_min_first, &mut reasons);
     let mut included: Vec<bool> = reasons.iter().map(Option::is_none).collect();
     if !included.contains(&true) {
         included.fill(true);

@@ -87,6 +87,16 @@ pub fn summarise(
         .filter(|(_, s)| s.small_sample)
         .map(|(p, _)| *p)
         .collect();
+    let (uncorrelated, small): (Vec<Momentum>, Vec<Momentum>) = small
+        .into_iter()
+        .partition(|p| per_momentum[p].uncorrelated);
+    if !uncorrelated.is_empty() {
+        warnings.push(format!(
+            "fewer than five resamples per fitted time slice at momenta {}: diagonal weights \
+             (uncorrelated fits) instead of a full covariance; set spectrum.covariance to choose",
+            list(uncorrelated)
+        ));
+    }
     if !small.is_empty() {
         warnings.push(format!(
             "fewer than five resamples per fitted time slice at momenta {}: the inverse covariance \

@@ -42,6 +42,7 @@
 pub mod average;
 pub mod dispersion;
 pub mod effective;
+mod frames;
 mod gates;
 pub mod gevp;
 pub mod model;
@@ -55,7 +56,7 @@ pub use window::WindowFit;
 
 use crate::data::{Momentum, TwoPointData};
 use crate::error::{Error, Result};
-use crate::fit::{Prior, Weights};
+use crate::fit::Weights;
 use crate::resample::{covariance, ResamplePlan, Resampled};
 use effective::{effective_mass, EffectiveMassKind};
 use model::Form;
@@ -108,6 +109,8 @@ pub struct MomentumSpectrum {
     pub t_max_note: Option<String>,
     /// Fewer than five resamples per point of the widest window (Hartlap bias).
     pub small_sample: bool,
+    /// The covariance was left to the stage and `small_sample` made it diagonal.
+    pub uncorrelated: bool,
 }
 
 impl MomentumSpectrum {
@@ -188,92 +191,6 @@ fn select_channels<'a>(
     Ok(out)
 }
 
-/// The settings at momentum `p`: the ground-energy prior given per momentum, or the rest-frame
-/// prior carried by the dispersion relation of `prior_frames` (rest only without `l_extent`).
-fn momentum_settings(p: Momentum, settings: &SpectrumSettings) -> SpectrumSettings {
-    let mut local = settings.clone();
-    let own = settings
-        .ground_energy_by_momentum
-        .iter()
-        .find(|(k, _)| settings::parse_momentum_key(k) == Some(p))
-        .map(|(_, prior)| *prior);
-    local.priors.ground_energy = match (own, settings.priors.ground_energy) {
-        (Some(prior), _) => Some(prior),
-        (None, Some(rest)) if p != [0, 0, 0] => match (settings.prior_frames, settings.l_extent) {
-            (PriorFrames::RestOnly, _) | (_, None) => None,
-            (frames, Some(l)) => {
-                let pl =
-                    crate::kinematics::lattice_momentum(p, l, settings.twist.unwrap_or_default());
-                let m = Resampled::constant(rest.mean, 2, crate::resample::Scheme::Bootstrap);
-                let e = match frames {
-                    PriorFrames::LatticeDispersion => dispersion::lattice_energy(&m, pl),
-                    _ => dispersion::continuum_energy(&m, pl),
-                }
-                .central;
-                // Width carried by dE/dm (numerically, so both relations share the code).
-                let h = 1e-6 * rest.mean.abs().max(1e-3);
-                let mh = Resampled::constant(rest.mean + h, 2, crate::resample::Scheme::Bootstrap);
-                let eh = match frames {
-                    PriorFrames::LatticeDispersion => dispersion::lattice_energy(&mh, pl),
-                    _ => dispersion::continuum_energy(&mh, pl),
-                }
-                .central;
-                Some(Prior::new(e, rest.width * ((eh - e) / h).abs()))
-            }
-        },
-        (None, rest) => rest.filter(|_| p == [0, 0, 0]),
-    };
-    local
-}
-
-/// What the run says about the ground-energy prior at moving frames.
-fn prior_frames_note(settings: &SpectrumSettings) -> Option<String> {
-    settings.priors.ground_energy?;
-    Some(match (settings.prior_frames, settings.l_extent) {
-        (PriorFrames::RestOnly, _) => {
-            "the ground-energy prior applies at rest only (moving frames: per-momentum priors if given)".into()
-        }
-        (_, None) => "the ground-energy prior applies at rest only: `l_extent` is not set, so it \
-                      cannot be carried to moving frames"
-            .into(),
-        (PriorFrames::ContinuumDispersion, _) => {
-            "the ground-energy prior is carried to moving frames by the continuum dispersion relation".into()
-        }
-        (PriorFrames::LatticeDispersion, _) => {
-            "the ground-energy prior is carried to moving frames by the lattice dispersion relation".into()
-        }
-    })
-}
-
-/// The last usable time slice at or below `cap`: one before the first slice from `t_from` on
-/// whose central value is not positive or whose relative error exceeds `max_rel`; with the
-/// reason when the signal cut it.
-fn signal_t_max(
-    corr: &[Resampled],
-    t_from: usize,
-    cap: usize,
-    max_rel: f64,
-) -> (usize, Option<String>) {
-    let last = cap.min(corr.len().saturating_sub(1));
-    for (t, c) in corr.iter().enumerate().take(last + 1).skip(t_from) {
-        let why = if c.central <= 0.0 {
-            format!(
-                "the correlator is {:.3e} (not positive) at t = {t}",
-                c.central
-            )
-        } else if c.error() > max_rel * c.central {
-            format!(
-                "the relative error reaches {:.2} > {max_rel} at t = {t}",
-                c.error() / c.central
-            )
-        } else {
-            continue;
-        };
-        return (t.saturating_sub(1), Some(why));
-    }
-    (cap, None)
-}
-
 /// Resample every time slice of a series with `plan`.
 pub fn resample_series(
     series: &crate::data::Series,
@@ -340,7 +257,7 @@ pub fn fit_correlator(
         .find(|(k, _)| settings::parse_momentum_key(k) == Some(momentum))
     {
         Some((_, &t)) => (t.min(n_t.saturating_sub(1)), None),
-        None => signal_t_max(corr, settings.t_min.from, cap, settings.max_relative_error),
+        None => frames::signal_t_max(corr, settings.t_min.from, cap, settings.max_relative_error),
     };
     if t_max < settings.t_min.from + 2 {
         return Err(Error::analysis(
@@ -373,6 +290,18 @@ pub fn fit_correlator(
     let widest = (t_max + 1).saturating_sub(settings.t_min.from);
     // Said once for all momenta by the caller (see `run`).
     let small_sample = n_samples < 5 * widest;
+    // Automatic choice: a full covariance needs several samples per point (Hartlap et al.
+    // 2007); below that its noise biases the fits and hides their errors (measured in
+    // tests/spectrum_closure.rs), so the weights become diagonal.
+    let uncorrelated = settings.covariance.is_none() && small_sample;
+    let cov_options = settings.covariance.unwrap_or(if uncorrelated {
+        covariance::CovarianceOptions {
+            kind: covariance::CovarianceKind::Diagonal,
+            eigen_cut: None,
+        }
+    } else {
+        covariance::CovarianceOptions::default()
+    });
     let mut fits = Vec::new();
     for t_min in settings.t_min.values().filter(|&t| t < t_max) {
         let window = &corr[t_min..=t_max];
@@ -382,7 +311,7 @@ pub fn fit_correlator(
                 format!("{name}, window [{t_min}, {t_max}]: {e}"),
             )
         };
-        let cov = covariance::estimate(window, &settings.covariance).map_err(in_window)?;
+        let cov = covariance::estimate(window, &cov_options).map_err(in_window)?;
         // The small-sample (Hartlap) warning was given once for the momentum above; repeating
         // it for every window only buries the other warnings.
         for w in cov
@@ -474,6 +403,7 @@ pub fn fit_correlator(
         t_max,
         t_max_note,
         small_sample,
+        uncorrelated,
     })
 }
 
@@ -483,6 +413,17 @@ pub fn run(
     data: &TwoPointData,
     plan: &ResamplePlan,
     settings: &SpectrumSettings,
+) -> Result<SpectrumResult> {
+    run_with_progress(data, plan, settings, &|_, _| {})
+}
+
+/// [`run`], calling `progress(done, total)` after each momentum's fits (for a progress
+/// display; the result does not depend on it).
+pub fn run_with_progress(
+    data: &TwoPointData,
+    plan: &ResamplePlan,
+    settings: &SpectrumSettings,
+    progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<SpectrumResult> {
     check_settings(settings)?;
     let mut warnings = Vec::new();
@@ -516,9 +457,10 @@ pub fn run(
         }
     } else {
         let channels = select_channels(data, settings.smear.as_deref())?;
-        for (&p, series) in &channels {
+        for (i, (&p, series)) in channels.iter().enumerate() {
+            progress(i, channels.len());
             let corr = resample_series(series, plan)?;
-            let local = momentum_settings(p, settings);
+            let local = frames::momentum_settings(p, settings);
             match fit_correlator(p, &corr, &local, &mut warnings) {
                 Ok(s) => {
                     per_momentum.insert(p, s);
@@ -527,8 +469,9 @@ pub fn run(
                 Err(e) => return Err(e),
             }
         }
+        progress(channels.len(), channels.len());
     }
-    let prior_note = prior_frames_note(settings);
+    let prior_note = frames::prior_frames_note(settings);
     gates::check(&mut per_momentum, &mut dropped)?;
     gates::summarise(&per_momentum, &dropped, &mut warnings);
     let mass = per_momentum

@@ -110,8 +110,10 @@ pub struct SpectrumSettings {
     /// Priors of the fits.
     pub priors: PriorSettings,
     /// How the covariance of each fit window is estimated from the resamples (once per
-    /// window, then frozen for every resample's fit).
-    pub covariance: CovarianceOptions,
+    /// window, then frozen for every resample's fit). Default: the full covariance where
+    /// there are at least five resamples per point of the widest window at a momentum,
+    /// otherwise diagonal weights (a full covariance from fewer samples is too noisy: docs/methods.md §2).
+    pub covariance: Option<CovarianceOptions>,
     /// Symmetric periodic form `A (e^{-Et} + e^{-E(T-t)})` (mesons with periodic time).
     pub periodic: bool,
     /// Time extent `T`; default: the number of time slices in the data. Not a key of the
@@ -198,7 +200,7 @@ impl Default for SpectrumSettings {
             ground_energy_by_momentum: BTreeMap::new(),
             n_states: IntRange { from: 1, to: 2 },
             priors: PriorSettings::default(),
-            covariance: CovarianceOptions::default(),
+            covariance: None,
             periodic: false,
             t_extent: None,
             l_extent: None,

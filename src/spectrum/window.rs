@@ -43,6 +43,30 @@ impl WindowFit {
         2 * self.n_states
     }
 
+    /// Shift of the effective mass at time `t` caused by this fit's states `k..` (central
+    /// parameters): `ln((1 + c(t)) / (1 + c(t + 1)))` with `c(t) = sum_{n >= k} (A_n / A_0)
+    /// e^{-(E_n - E_0) t}`. It is the excited-state contamination that a fit with only `k`
+    /// states would absorb into its ground energy near `t` (zero for `k >= n_states`).
+    pub fn contamination_shift(&self, t: f64, k: usize) -> f64 {
+        let e = self.energies.iter().map(|e| e.central).collect::<Vec<_>>();
+        let a = self
+            .amplitudes
+            .iter()
+            .map(|a| a.central)
+            .collect::<Vec<_>>();
+        let c = |t: f64| -> f64 {
+            (k.max(1)..self.n_states)
+                .map(|n| a[n] / a[0] * (-(e[n] - e[0]) * t).exp())
+                .sum()
+        };
+        let shift = ((1.0 + c(t)) / (1.0 + c(t + 1.0))).ln();
+        if shift.is_finite() {
+            shift
+        } else {
+            0.0
+        }
+    }
+
     /// Why this fit must not enter the model average, judged on the central fit alone (its
     /// parameter covariance), so the verdict is the same for jackknife and bootstrap: a
     /// non-positive ground energy, an amplitude of the wrong sign for a diagonal correlator

@@ -3,9 +3,11 @@
 //! `report.html` ([`page`]), `manifest.json` ([`manifest`]), and the short terminal summary
 //! ([`summary`]).
 
+mod budget_table;
 pub mod charts;
 pub mod manifest;
 pub mod page;
+mod settings_text;
 pub mod summary;
 pub mod tables;
 

@@ -11,7 +11,7 @@ use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
 use crate::ratio::Flag;
-use crate::report::{Block, Cell, Report, Section};
+use crate::report::{readable, Block, Cell, Report, Section, Table};
 
 /// A figure rendered to SVG.
 pub struct Rendered {
@@ -39,15 +39,26 @@ pub fn report_page(
         format!("formfactory run: {}", e.label)
     };
     let mut report = Report::new(title);
-    report.sections = vec![
-        final_results(results, tables, figures),
-        overview(plan, results),
-        form_factors(tables, figures),
-        spectrum(tables, figures),
-        excited_states(tables, figures),
-        Section::new("Warnings").with(Block::Warnings(results.warnings.clone())),
-        settings_and_timing(plan, results),
-    ];
+    // a stage-limited run shows the sections of the stages it ran
+    let has_form_factors = !results.form_factors.is_empty();
+    report.sections = [
+        has_form_factors.then(|| final_results(results, tables, figures)),
+        Some(overview(plan, results)),
+        has_form_factors.then(|| form_factors(tables, figures)),
+        results
+            .spectrum
+            .is_some()
+            .then(|| spectrum(tables, figures)),
+        results
+            .channels
+            .is_some()
+            .then(|| excited_states(results, tables, figures)),
+        Some(Section::new("Warnings").with(Block::Warnings(results.warnings.clone()))),
+        Some(settings_and_timing(plan, results)),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
     report
 }
 
@@ -73,7 +84,7 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
     let spec = &plan.spec;
     let e = &spec.ensemble;
     let mut text = format!(
-        "Ensemble {}^3 x {}, a = {} fm, hadron of spin {}. ",
+        "Ensemble {}³ × {}, a = {} fm, hadron of spin {}. ",
         e.l,
         e.t.map(|t| t as usize)
             .or(results.data.as_ref().map(|d| d.t_extent))
@@ -86,15 +97,27 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
     );
     if let Some(d) = &results.data {
         text.push_str(&format!(
-            "{} configurations in {} bins of {}; {:?} with {} samples. ",
-            d.n_configs, d.n_bins, spec.resampling.bin_size, spec.resampling.method, d.n_samples
+            "{} configurations in {} bins of {}; {} with {} samples. ",
+            d.n_configs,
+            d.n_bins,
+            spec.resampling.bin_size,
+            match spec.resampling.method {
+                crate::pipeline::spec::ResamplingMethod::Jackknife => "jackknife",
+                crate::pipeline::spec::ResamplingMethod::Bootstrap => "bootstrap",
+            },
+            d.n_samples
         ));
     }
-    text.push_str(&format!(
-        "Stages run up to {}. Every estimator is tabulated and cross-checked; the final \
-         values above average over them.",
-        plan.last_stage.name(),
-    ));
+    text.push_str(&format!("Stages run up to {}. ", plan.last_stage.name()));
+    text.push_str(if !results.final_results.is_empty() {
+        "Every estimator is tabulated and cross-checked; the final values above average \
+         over them."
+    } else if results.channels.is_some() {
+        "The run stopped after the ratio stage: its result is the cross-check of the \
+         excited-state estimators below."
+    } else {
+        "No matrix elements were computed."
+    });
     let mut s = Section::new("Overview").with(Block::Paragraph(text));
     if !results.form_factors.is_empty() {
         s = s.with(Block::Table(summary_table(results)));
@@ -127,30 +150,30 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
     };
     let mut blocks = vec![
         Block::Paragraph(rule),
-        Block::Table(super::summary::final_summary(results)),
+        Block::Table(super::budget_table::budget_table(results)),
     ];
     blocks.extend(figure_blocks(figures, &[Plot::FinalVariants]));
-    blocks.push(Block::Table(tables.get(TableName::FinalVariants).clone()));
+    blocks.push(Block::Table(readable(tables.get(TableName::FinalVariants))));
     section("Final results", blocks)
 }
 
 fn form_factors(tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::FormFactors]);
-    blocks.push(Block::Table(tables.get(TableName::FormFactors).clone()));
+    blocks.push(Block::Table(readable(tables.get(TableName::FormFactors))));
     let derived = tables.get(TableName::Derived);
     if !derived.rows.is_empty() {
-        blocks.push(Block::Table(derived.clone()));
+        blocks.push(Block::Table(readable(derived)));
     }
     section("Form factors", blocks)
 }
 
 fn spectrum(tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::EffectiveMass, Plot::Dispersion]);
-    blocks.push(Block::Table(tables.get(TableName::Spectrum).clone()));
+    blocks.push(Block::Table(readable(tables.get(TableName::Spectrum))));
     section("Spectrum", blocks)
 }
 
-fn excited_states(tables: &Tables, figures: &[Rendered]) -> Section {
+fn excited_states(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::Ratio, Plot::Summation]);
     let crosscheck = tables.get(TableName::CrossCheck);
     let flag = Cell::from(Flag::Above2Sigma.name());
@@ -166,18 +189,44 @@ fn excited_states(tables: &Tables, figures: &[Rendered]) -> Section {
     )));
     if tables.get(TableName::FormFactors).rows.is_empty() {
         // a run stopped after the ratio: the cross-check is its result
-        blocks.push(Block::Table(crosscheck.clone()));
+        blocks.push(Block::Table(super::summary::crosscheck_summary(results)));
+        blocks.push(Block::Table(readable(crosscheck)));
     }
     section("Excited states", blocks)
 }
 
+/// The pipeline file as written (with the `--set` overrides), every setting as resolved
+/// (defaults filled in, numbers to six significant digits) and the time per stage.
 fn settings_and_timing(plan: &Plan, results: &RunResults) -> Section {
-    let mut timing = String::new();
+    let mut timing = Table::new("time per stage", &["stage", "seconds"]);
     for (s, t) in &results.timings {
-        timing.push_str(&format!("{s:<14} {:>9.3} s\n", t.as_secs_f64()));
+        timing.rows.push(vec![
+            Cell::from(s.as_str()),
+            Cell::Text(format!("{:.3}", t.as_secs_f64())),
+        ]);
     }
-    let settings = serde_yaml_ng::to_string(&plan.spec).unwrap_or_default();
-    Section::new("Settings and timing")
-        .with(Block::Pre(settings))
-        .with(Block::Pre(timing))
+    let mut s = Section::new("Settings and timing");
+    if let Ok(written) = std::fs::read_to_string(&plan.source) {
+        s = s
+            .with(Block::Paragraph(format!(
+                "The pipeline file {} as written:",
+                plan.source.display()
+            )))
+            .with(Block::Pre(written));
+    }
+    if !plan.overrides.is_empty() {
+        s = s.with(Block::Paragraph(format!(
+            "Changed on the command line: {}.",
+            plan.overrides
+                .iter()
+                .map(|o| format!("`--set {o}`"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        )));
+    }
+    s.with(Block::Paragraph(
+        "Every setting as the run used it, defaults included:".to_string(),
+    ))
+    .with(Block::Pre(super::settings_text::resolved(&plan.spec)))
+    .with(Block::Table(timing))
 }

@@ -117,7 +117,7 @@ pub(super) fn final_summary(results: &RunResults) -> Table {
 
 /// For a run that stopped before the form factors: per estimator, how many channel
 /// comparisons of the cross-check are consistent, 1–2 sigma apart or more than 2 sigma apart.
-fn crosscheck_summary(results: &RunResults) -> Table {
+pub(super) fn crosscheck_summary(results: &RunResults) -> Table {
     use std::collections::BTreeMap;
     let mut counts: BTreeMap<(String, String), [usize; 3]> = BTreeMap::new();
     for c in results.channels.iter().flat_map(|m| m.values()) {

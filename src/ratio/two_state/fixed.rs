@@ -67,14 +67,47 @@ pub struct TwoStateFit {
     pub n_points: usize,
     /// Fitted gaps (floating-gap variant only).
     pub gaps: Option<FittedGaps>,
+    /// The two-point parameters of the central fit, for drawing the fitted curve.
+    pub shape: Gaps,
 }
 
-/// The two-point parameters of one fit at one resample (`None` = central value).
-#[derive(Clone, Copy, Debug)]
-pub(crate) struct Gaps {
+impl TwoStateFit {
+    /// The fitted ratio `(Re, Im)` at `(tsep, tau)` from the central fit (the model of the
+    /// module documentation), for drawing the curve through the data.
+    pub fn curve(&self, tsep: f64, tau: f64) -> (f64, f64) {
+        let g = self.shape;
+        let ei = (-g.d_i * tau).exp();
+        let ef = (-g.d_f * (tsep - tau)).exp();
+        let f = f2(tsep, tau, g);
+        let part = |m: f64, ci: f64, cf: f64, cif: f64| f * (m + ci * ei + cf * ef + cif * ei * ef);
+        (
+            part(
+                self.m.value.re.central,
+                self.c_i.re.central,
+                self.c_f.re.central,
+                self.c_if.re.central,
+            ),
+            part(
+                self.m.value.im.central,
+                self.c_i.im.central,
+                self.c_f.im.central,
+                self.c_if.im.central,
+            ),
+        )
+    }
+}
+
+/// The two-point parameters of one fit at one resample: amplitude ratios `a` and gaps
+/// `Delta` at the source (`i`) and sink (`f`) momenta.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Gaps {
+    /// Source amplitude ratio.
     pub a_i: f64,
+    /// Source gap.
     pub d_i: f64,
+    /// Sink amplitude ratio.
     pub a_f: f64,
+    /// Sink gap.
     pub d_f: f64,
 }
 
@@ -108,7 +141,8 @@ impl<'a> Setup<'a> {
                     STAGE,
                     format!(
                         "two-state fit of channel {key}: no two-point excited-state parameters \
-                         at the {side} momentum {p:?}"
+                         at the {side} momentum {}",
+                        crate::data::momentum_text(p)
                     ),
                 )
             })
@@ -225,6 +259,7 @@ pub fn two_state_fixed(
         it.next().ok_or_else(missing)?
     };
     let c_if = it.next().ok_or_else(missing)?;
+    let shape = setup.gaps(None);
     Ok(TwoStateFit {
         m,
         c_i,
@@ -234,6 +269,7 @@ pub fn two_state_fixed(
         tseps: setup.tseps,
         n_points: setup.points.len(),
         gaps: None,
+        shape,
     })
 }
 

@@ -154,13 +154,23 @@ impl<'a> Frame<'a> {
     }
 
     /// The result from the per-resample reports (`results[0]` central); the gaps are the
-    /// parameters at `gap_index = (source, sink)`.
+    /// parameters at `gap_index = (source, sink)`, the amplitude ratios those at
+    /// `amp_index` when they were fitted too (else the two-point stage's).
     pub fn assemble(
         self,
         results: &[FitReport],
         gap_index: (usize, usize),
+        amp_index: Option<(usize, usize)>,
         warnings: Vec<String>,
     ) -> TwoStateFit {
+        let central = &results[0].params;
+        let mut shape = self.setup.gaps(None);
+        shape.d_i = central[gap_index.0];
+        shape.d_f = central[gap_index.1];
+        if let Some((i, f)) = amp_index {
+            shape.a_i = central[i];
+            shape.a_f = central[f];
+        }
         // safe: `stacked` is non-empty (see `run`), `results` starts with the central fit.
         let scheme = self.stacked[0].scheme;
         let param = |j: usize| {
@@ -211,6 +221,7 @@ impl<'a> Frame<'a> {
                 source: param(gap_index.0),
                 sink: param(gap_index.1),
             }),
+            shape,
         }
     }
 }
@@ -277,7 +288,7 @@ pub fn two_state_floating(
     })?;
     let g = frame.parts() * frame.n_linear();
     let gap_index = if shared_gap { (g, g) } else { (g, g + 1) };
-    Ok(frame.assemble(&results, gap_index, warnings))
+    Ok(frame.assemble(&results, gap_index, None, warnings))
 }
 
 /// The ratio model with floating gaps for a fixed set of `(tsep, tau)` points.

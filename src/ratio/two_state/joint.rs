@@ -204,7 +204,8 @@ pub fn two_state_joint(
         nonlinear::fit(&model, &y, &w, &[], &start, &solver_settings())
     })?;
     let gap_index = (model.side_offset(0) + 3, model.side_offset(1) + 3);
-    Ok(frame.assemble(&results, gap_index, warnings))
+    let amp_index = (model.side_offset(0) + 2, model.side_offset(1) + 2);
+    Ok(frame.assemble(&results, gap_index, Some(amp_index), warnings))
 }
 
 #[cfg(test)]

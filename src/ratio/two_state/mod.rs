@@ -8,7 +8,7 @@ mod fixed;
 mod floating;
 mod joint;
 
-pub use fixed::{two_state_fixed, FittedGaps, TwoPointStates, TwoStateFit};
+pub use fixed::{two_state_fixed, FittedGaps, Gaps, TwoPointStates, TwoStateFit};
 
 use super::{ChannelRatio, RatioSettings, TwoStateVariant};
 use crate::data::Momentum;

@@ -2,6 +2,7 @@
 //! at its lowest-Q² shell, each variant a point with its statistical error, its weight in the
 //! legend, and the final value with its total error as a band.
 
+use super::style::{axis_label, estimator_style, file_safe, quantity, FINAL_COLOUR};
 use super::Figure;
 use crate::pipeline::final_results::FinalRow;
 use crate::pipeline::run::RunResults;
@@ -33,58 +34,43 @@ fn chart(r: &FinalRow) -> Figure {
         None => format!("final-{}", file_safe(&r.quantity)),
     };
     let what = match &r.shell {
-        Some(s) => format!("{} at shell {s}", r.quantity),
-        None => r.quantity.clone(),
+        Some(s) => format!("{} at shell {s}", quantity(&r.quantity)),
+        None => quantity(&r.quantity),
     };
     let mut chart = Chart {
-        title: format!("{what}: variants and weights ({})", b.rule),
+        title: format!("{what}: variants and weights"),
         x_label: "variant".into(),
-        y_label: if r.unit.is_empty() {
-            r.quantity.clone()
-        } else {
-            format!("{} ({})", r.quantity, r.unit)
-        },
+        y_label: axis_label(&r.quantity, &r.unit),
+        size: (800, 400),
         ..Chart::default()
     };
     let n = b.variants.len() as f64;
     let (v, t) = (b.value.central, b.total());
     chart.series.push(Series::band(
         format!("final, total error ({})", b.rule),
-        8,
+        FINAL_COLOUR,
         vec![0.5, n + 0.5],
         vec![v - t, v - t],
         vec![v + t, v + t],
     ));
     for (i, w) in b.variants.iter().enumerate() {
+        let name = format!("{} {}", w.variant.estimator, w.variant.model);
+        let name = name.trim_end();
         let label = match &w.excluded {
-            Some(why) => format!(
-                "{} {}: excluded, {why}",
-                w.variant.estimator, w.variant.model
-            ),
-            None => format!(
-                "{} {}: weight {:.2}",
-                w.variant.estimator, w.variant.model, w.weight
-            ),
+            Some(why) => format!("{name}: excluded, {why}"),
+            None => format!("{name}: weight {:.2}", w.weight),
         };
-        chart.series.push(Series::points(
-            label,
-            i,
-            vec![i as f64 + 1.0],
-            vec![w.variant.value.central],
-            vec![w.variant.value.error()],
-        ));
+        let (colour, marker) = estimator_style(w.variant.estimator);
+        chart.series.push(
+            Series::points(
+                label,
+                colour,
+                vec![i as f64 + 1.0],
+                vec![w.variant.value.central],
+                vec![w.variant.value.error()],
+            )
+            .marker(marker),
+        );
     }
     Figure::new(Plot::FinalVariants, name, chart)
-}
-
-fn file_safe(s: &str) -> String {
-    s.chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect()
 }

@@ -1,7 +1,9 @@
-//! Form factors versus Q², one chart per form factor: every estimator's points, and the
-//! final estimator's Q² fits as bands over the range of the data.
+//! Form factors versus Q², one chart per form factor: every estimator's points (in its fixed
+//! colour and marker), and the final estimator's Q² fits as bands over the range of the data.
+//! A point whose error bar would flatten the others is cut at the axis and marked.
 
 use super::figure::Figure;
+use super::style::{estimator_style, form_factor, FINAL_COLOUR};
 use crate::kinematics::HBARC_GEV_FM;
 use crate::pipeline::plan::Plan;
 use crate::pipeline::run::{FormFactorRow, RunResults};
@@ -28,21 +30,23 @@ pub(super) fn charts(plan: &Plan, results: &RunResults) -> Vec<Figure> {
         .into_iter()
         .map(|(ff, methods)| {
             let mut chart = Chart {
-                title: format!("{ff} versus Q^2"),
-                x_label: "Q^2 (GeV^2)".into(),
-                y_label: ff.to_string(),
+                title: format!("{} versus Q^{{2}}", form_factor(ff)),
+                x_label: "Q^{2} (GeV^{2})".into(),
+                y_label: form_factor(ff),
                 ..Chart::default()
             };
             for (i, (m, rows)) in methods.into_iter().enumerate() {
                 let q = |r: &FormFactorRow| r.q2_gev2.as_ref().map_or(r.q2.central, |q| q.central);
+                let (colour, marker) = estimator_style(m);
                 chart.series.push(
                     Series::points(
                         m.to_string(),
-                        i,
+                        colour,
                         rows.iter().map(|r| q(r)).collect(),
                         rows.iter().map(|r| r.value.value.central).collect(),
                         rows.iter().map(|r| r.value.error_total).collect(),
                     )
+                    .marker(marker)
                     .offset(0.004 * i as f64),
                 );
             }
@@ -61,7 +65,7 @@ pub(super) fn charts(plan: &Plan, results: &RunResults) -> Vec<Figure> {
                 let vals: Vec<Resampled> = grid.iter().map(|q| f.fit.evaluate(*q)).collect();
                 chart.series.push(Series::band(
                     format!("{} {}", f.method, f.model),
-                    7 + j,
+                    [FINAL_COLOUR, 6][j % 2],
                     grid.iter().map(|q| q * to_gev2).collect(),
                     vals.iter().map(|v| v.central - v.error()).collect(),
                     vals.iter().map(|v| v.central + v.error()).collect(),

@@ -1,10 +1,14 @@
-//! Ratio-stage plots for a few showcase channels: the ratio versus `tau` per `tsep` with the
-//! plateau bands and the final estimate, and the summed ratio versus `tsep` with its line.
+//! Ratio-stage plots for a few showcase channels: the ratio versus `τ − t_sep/2` per
+//! separation with the plateau bands, the two-state fit curve per separation and the final
+//! estimate; and the summed ratio versus `t_sep` with the summation line and its error band.
+//! Each file is named by its channel (`ratio-V4-unpol-pf0.0.0-q0.0.1.svg`).
 
 use super::figure::Figure;
+use super::style::{channel_stem, estimator_style, tsep_colour, DATA_COLOUR};
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
-use crate::ratio::{ChannelKey, ChannelResult, ReIm};
+use crate::ratio::{ChannelKey, ChannelResult, Estimator, ReIm};
+use crate::report::plot::Marker;
 use crate::report::{value_error, Chart, Series};
 use crate::resample::Resampled;
 use std::collections::BTreeSet;
@@ -55,67 +59,103 @@ pub(super) fn showcase_channels(results: &RunResults) -> Vec<(&ChannelKey, &Chan
         .collect()
 }
 
-/// `ratio-<i>`: one chart per showcase channel.
-pub(super) fn ratio_charts(shown: &[(&ChannelKey, &ChannelResult)]) -> Vec<Figure> {
+/// `ratio-<channel>`: one chart per showcase channel.
+pub(super) fn ratio_charts(shown: &[(&ChannelKey, &ChannelResult)], tau_cut: u32) -> Vec<Figure> {
     shown
         .iter()
-        .enumerate()
-        .map(|(i, (k, c))| Figure::new(Plot::Ratio, format!("ratio-{i}"), ratio_chart(k, c)))
+        .map(|(k, c)| {
+            Figure::new(
+                Plot::Ratio,
+                format!("ratio-{}", channel_stem(k)),
+                ratio_chart(k, c, tau_cut),
+            )
+        })
         .collect()
 }
 
-fn ratio_chart(k: &ChannelKey, c: &ChannelResult) -> Chart {
+fn ratio_chart(k: &ChannelKey, c: &ChannelResult, tau_cut: u32) -> Chart {
     let re = signal_part(&c.final_estimate);
     let part = if re { "Re" } else { "Im" };
     let mut chart = Chart {
-        title: format!("Ratio {part} R(tsep, tau): {k}"),
-        x_label: "tau - tsep/2".into(),
+        title: format!("Ratio {part} R(t_{{sep}}, τ): {k}"),
+        x_label: "τ − t_{sep}/2".into(),
         y_label: format!("{part} R"),
         ..Chart::default()
     };
+    let mut curve_labelled = false;
     for (i, tsep) in c.ratio.tseps().into_iter().enumerate() {
+        let colour = tsep_colour(tsep);
+        let mid = tsep as f64 / 2.0;
         // the plateau fit of this tsep as a band over its fit range, in the points' colour
         if let Some(pl) = c.plateaus.iter().find(|p| p.tsep == tsep) {
-            let mid = tsep as f64 / 2.0;
             let x = vec![pl.tau_range.0 as f64 - mid, pl.tau_range.1 as f64 - mid];
             chart
                 .series
-                .push(band(String::new(), i, x, pick(&pl.fit.value, re)));
+                .push(band(String::new(), colour, x, pick(&pl.fit.value, re)));
         }
         let pts: Vec<_> = c.ratio.points.iter().filter(|p| p.tsep == tsep).collect();
         chart.series.push(
             Series::points(
-                format!("tsep={tsep}"),
-                i,
-                pts.iter()
-                    .map(|p| p.tau as f64 - tsep as f64 / 2.0)
-                    .collect(),
+                format!("t_{{sep}} = {tsep}"),
+                colour,
+                pts.iter().map(|p| p.tau as f64 - mid).collect(),
                 pts.iter().map(|p| pick(&p.value, re).central).collect(),
                 pts.iter().map(|p| pick(&p.value, re).error()).collect(),
             )
+            .marker(Marker::Diamond)
             .offset(0.05 * i as f64),
         );
+        // the two-state fit at this tsep, over the insertion times it was fitted to
+        if let Some(ts) = c.two_state.as_ref().filter(|t| t.tseps.contains(&tsep)) {
+            let (a, b) = (tau_cut as f64, tsep as f64 - tau_cut as f64);
+            if a < b {
+                let taus: Vec<f64> = (0..=40).map(|j| a + (b - a) * j as f64 / 40.0).collect();
+                let label = if curve_labelled {
+                    String::new()
+                } else {
+                    curve_labelled = true;
+                    format!("{} fit, per t_{{sep}}", Estimator::TwoState)
+                };
+                chart.series.push(
+                    Series::line(
+                        label,
+                        colour,
+                        taus.iter().map(|t| t - mid).collect(),
+                        taus.iter()
+                            .map(|&t| {
+                                let (r, i) = ts.curve(tsep as f64, t);
+                                if re {
+                                    r
+                                } else {
+                                    i
+                                }
+                            })
+                            .collect(),
+                    )
+                    .dashed(),
+                );
+            }
+        }
     }
     let half = c.ratio.tseps().last().map_or(1.0, |t| *t as f64 / 2.0);
     chart.series.push(band(
         format!("final ({})", c.final_method),
-        6,
+        estimator_style(c.final_method).0,
         vec![-half, half],
         pick(&c.final_estimate, re),
     ));
     chart
 }
 
-/// `summation-<i>`: one chart per showcase channel that has a summation fit.
+/// `summation-<channel>`: one chart per showcase channel that has a summation fit.
 pub(super) fn summation_charts(shown: &[(&ChannelKey, &ChannelResult)]) -> Vec<Figure> {
     shown
         .iter()
-        .enumerate()
-        .filter_map(|(i, (k, c))| {
+        .filter_map(|(k, c)| {
             let chart = summation_chart(k, c)?;
             Some(Figure::new(
                 Plot::Summation,
-                format!("summation-{i}"),
+                format!("summation-{}", channel_stem(k)),
                 chart,
             ))
         })
@@ -128,25 +168,41 @@ fn summation_chart(k: &ChannelKey, c: &ChannelResult) -> Option<Chart> {
     let part = if re { "Re" } else { "Im" };
     let x: Vec<f64> = s.tseps.iter().map(|t| *t as f64).collect();
     let slope = pick(&s.slope.value, re);
-    let icpt = pick(&s.intercept, re).central;
+    let icpt = pick(&s.intercept, re);
+    // the line and its resampled error band, half a step beyond the data on each side
+    let (lo, hi) = (x.first()? - 0.5, x.last()? + 0.5);
+    let grid: Vec<f64> = (0..=24).map(|j| lo + (hi - lo) * j as f64 / 24.0).collect();
+    let line: Vec<Resampled> = grid
+        .iter()
+        .map(|&t| icpt.zip_map(slope, |i, m| i + m * t))
+        .collect();
+    let (colour, marker) = estimator_style(Estimator::Summation);
     Some(Chart {
-        title: format!("Summed ratio {part} S(tsep): {k}"),
-        x_label: "tsep".into(),
+        title: format!("Summed ratio {part} S(t_{{sep}}): {k}"),
+        x_label: "t_{sep}".into(),
         y_label: format!("{part} S"),
         series: vec![
-            Series::points(
-                "S(tsep)",
-                0,
-                x.clone(),
-                s.sums.iter().map(|v| pick(v, re).central).collect(),
-                s.sums.iter().map(|v| pick(v, re).error()).collect(),
+            Series::band(
+                String::new(),
+                colour,
+                grid.clone(),
+                line.iter().map(|v| v.central - v.error()).collect(),
+                line.iter().map(|v| v.central + v.error()).collect(),
             ),
             Series::line(
                 format!("fit, slope {}", value_error(slope.central, slope.error())),
-                1,
-                x.clone(),
-                x.iter().map(|t| icpt + slope.central * t).collect(),
+                colour,
+                grid,
+                line.iter().map(|v| v.central).collect(),
             ),
+            Series::points(
+                "S(t_{sep})",
+                DATA_COLOUR,
+                x,
+                s.sums.iter().map(|v| pick(v, re).central).collect(),
+                s.sums.iter().map(|v| pick(v, re).error()).collect(),
+            )
+            .marker(marker),
         ],
         ..Chart::default()
     })

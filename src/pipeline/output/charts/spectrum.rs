@@ -1,6 +1,7 @@
 //! Spectrum plots: effective masses with the fitted energy, and the dispersion relation.
 
 use super::figure::Figure;
+use super::style::momentum;
 use crate::data::norm2;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
@@ -17,7 +18,7 @@ pub(super) fn effective_mass(results: &RunResults) -> Option<Figure> {
     let mut chart = Chart {
         title: "Effective mass per momentum".into(),
         x_label: "t".into(),
-        y_label: "m_eff(t) (lattice units)".into(),
+        y_label: "m_{eff}(t) (lattice units)".into(),
         ..Chart::default()
     };
     for (p, m) in momenta {
@@ -36,7 +37,7 @@ pub(super) fn effective_mass(results: &RunResults) -> Option<Figure> {
             }
         }
         let en = m.ground_energy();
-        let label = format!("p=({},{},{})", p[0], p[1], p[2]);
+        let label = format!("p={}", momentum(*p));
         let (t0, t1) = (m.chosen.t_min as f64, m.chosen.t_max as f64);
         chart.series.push(Series::points(label, colour, x, y, e));
         chart.series.push(Series::band(
@@ -62,7 +63,7 @@ pub(super) fn dispersion(results: &RunResults) -> Option<Figure> {
     let x: Vec<f64> = rows.iter().map(|r| p2(r.p)).collect();
     let chart = Chart {
         title: "Dispersion relation".into(),
-        x_label: "p^2 (lattice units)".into(),
+        x_label: "p^{2} (lattice units)".into(),
         y_label: "E (lattice units)".into(),
         series: vec![
             Series::points(
