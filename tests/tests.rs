@@ -21,3 +21,4 @@ mod report;
 mod resample;
 mod spectrum;
 mod spectrum_closure;
+mod variational;

@@ -14,6 +14,7 @@ pub mod plan;
 pub mod reference;
 pub mod run;
 pub mod spec;
+pub mod variational;
 pub mod yaml;
 
 pub use plan::{load, Plan};
@@ -75,6 +76,7 @@ pub fn read_data(plan: &Plan) -> Result<ReadData> {
         three = flavor::combine(&three, std::slice::from_ref(combo))
             .map_err(|e| plan.error("ratio.flavor", e))?;
     }
+    let (two, mut three) = select_operators(plan, ds.twopt, three)?;
     let available: BTreeSet<u32> = three.channels.keys().map(|k| k.tsep).collect();
     if let Some(tseps) = &spec.ratio.tsep {
         for (i, t) in tseps.iter().enumerate() {
@@ -104,7 +106,7 @@ pub fn read_data(plan: &Plan) -> Result<ReadData> {
             .retain(|k, _| currents.iter().any(|c| c == k.current.name()));
     }
     Ok(ReadData {
-        two: ds.twopt,
+        two,
         three,
         dropped_configs: ds.dropped_configs,
         notes: ds.notes,
@@ -121,6 +123,41 @@ pub struct ReadData {
     pub dropped_configs: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
+}
+
+/// Tables with operator labels: keep them whole for the variational analysis
+/// (`spectrum.gevp`), or keep one operator's diagonal correlators (`data.operator`).
+fn select_operators(
+    plan: &Plan,
+    two: TwoPointData,
+    three: ThreePointData,
+) -> Result<(TwoPointData, ThreePointData)> {
+    let spec = &plan.spec;
+    let labelled = crate::variational::basis::has_operators(&two, &three);
+    match (&spec.data.operator, &spec.spectrum.gevp, labelled) {
+        (Some(_), Some(_), _) => Err(plan.error(
+            "data.operator",
+            "data.operator selects one operator, spectrum.gevp combines them all: set one of the two (spectrum.gevp.compare_operator shows one operator beside the optimised one)",
+        )),
+        (Some(op), None, true) => crate::variational::basis::select_operator(&two, &three, op)
+            .map_err(|e| plan.error("data.operator", e)),
+        (Some(_), None, false) => Err(plan.error(
+            "data.operator",
+            "the tables carry no operator labels (sink_op, source_op columns); remove data.operator",
+        )),
+        (None, Some(_), false) => Err(plan.error(
+            "spectrum.gevp",
+            "the variational analysis needs correlator matrices: the two-point table has no sink_op / source_op labels",
+        )),
+        (None, None, true) => Err(plan.error(
+            "data.operator",
+            format!(
+                "the tables carry operator labels (operators {:?}): set data.operator to analyse one operator, or spectrum.gevp for the variational analysis",
+                crate::variational::basis::operators(&two)
+            ),
+        )),
+        (None, _, _) => Ok((two, three)),
+    }
 }
 
 /// Read the correlators the `data` section names (CSV tables or an HDF5 source) on common

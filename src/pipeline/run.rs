@@ -122,6 +122,11 @@ pub struct Q2FitResult {
 pub struct RunResults {
     /// Read and resample summary.
     pub data: Option<DataSummary>,
+    /// Variational (GEVP) stage output, when `spectrum.gevp` is set.
+    pub variational: Option<crate::variational::VariationalResult>,
+    /// The single-operator analysis beside the optimised one
+    /// (`spectrum.gevp.compare_operator`).
+    pub comparison: Option<super::variational::Comparison>,
     /// Spectrum stage output.
     pub spectrum: Option<SpectrumResult>,
     /// Ratio stage output per channel.
@@ -147,7 +152,7 @@ pub struct RunResults {
     pub run_dir: Option<std::path::PathBuf>,
 }
 
-struct Recorder<'a> {
+pub(super) struct Recorder<'a> {
     observer: &'a dyn Observer,
     timings: Vec<(String, Duration)>,
     warnings: Vec<String>,
@@ -164,7 +169,7 @@ impl Recorder<'_> {
         out
     }
 
-    fn warn(&mut self, message: impl Into<String>) {
+    pub(super) fn warn(&mut self, message: impl Into<String>) {
         let m = message.into();
         self.observer.warning(&m);
         self.warnings.push(m);
@@ -197,6 +202,8 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     let final_method = spec.excited_states.final_method;
     let mut results = RunResults {
         data: None,
+        variational: None,
+        comparison: None,
         spectrum: None,
         channels: None,
         form_factors: Vec::new(),
@@ -211,12 +218,22 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     };
     let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
     let Prepared {
-        two,
+        mut two,
         mut three,
         plan: rplan,
     } = prepared;
 
     results.data = Some(summary);
+    let mut single = None;
+    if spec.spectrum.gevp.is_some() && plan.runs(Stage::Spectrum) {
+        let opt = rec.stage("gevp", |rec| {
+            super::variational::optimise(plan, &two, &three, &rplan, rec)
+        })?;
+        two = opt.two;
+        three = opt.three;
+        single = opt.single;
+        results.variational = Some(opt.result);
+    }
     if plan.runs(Stage::Spectrum) {
         let obs = rec.observer;
         let sp = rec.stage("spectrum", |_| {
@@ -263,6 +280,12 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         }
         results.form_factors = rows;
     }
+    if let Some(single) = single {
+        let c = rec.stage("comparison", |rec| {
+            super::variational::compare(plan, &rplan, single, &results, rec)
+        })?;
+        results.comparison = Some(c);
+    }
     if plan.runs(Stage::Q2Fits) && !spec.q2_fits.form_factors.is_empty() {
         let fits = rec.stage("q2_fits", |rec| {
             Ok(q2_fits(plan, &results.form_factors, rec))
@@ -282,7 +305,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
 }
 
 /// Remove the three-point channels whose sink or source momentum the spectrum dropped.
-fn skip_dropped_momenta(
+pub(super) fn skip_dropped_momenta(
     three: &mut ThreePointData,
     dropped: &[(Momentum, String)],
     rec: &mut Recorder,
@@ -378,7 +401,7 @@ fn config_list(configs: &[i64]) -> String {
 
 /// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,
 /// the amplitude ratio and the gap of the best multi-state fit.
-fn two_point_states(sp: &SpectrumResult) -> BTreeMap<Momentum, TwoPointStates> {
+pub(super) fn two_point_states(sp: &SpectrumResult) -> BTreeMap<Momentum, TwoPointStates> {
     sp.per_momentum
         .iter()
         .filter_map(|(p, m)| {
@@ -425,7 +448,7 @@ fn largest_plateau(rows: &[FormFactorRow]) -> Option<Estimator> {
         .max()
 }
 
-fn decompose_all(
+pub(super) fn decompose_all(
     plan: &Plan,
     results: &RunResults,
     rec: &mut Recorder,

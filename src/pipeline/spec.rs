@@ -143,6 +143,11 @@ pub struct DataSpec {
     /// otherwise a mismatch is an error.
     #[serde(default)]
     pub keep_common_configs: bool,
+    /// For tables with operator labels (`sink_op`, `source_op`) analysed without the
+    /// variational method: the operator whose diagonal correlators (sink and source both
+    /// this operator) are used. Tables with operator labels need this or `spectrum.gevp`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub operator: Option<String>,
 }
 
 /// Resampling scheme.
@@ -248,6 +253,10 @@ pub enum Plot {
     FormFactors,
     /// The analysis variants behind each final value, with their weights.
     FinalVariants,
+    /// GEVP effective energies per state with the fitted energies (variational runs).
+    GevpEnergies,
+    /// GEVP eigenvector components versus t (variational runs).
+    GevpVectors,
 }
 
 /// How the final numbers are made: by default an equal-weight average over every estimator
@@ -293,6 +302,8 @@ fn all_plots() -> Vec<Plot> {
         Plot::Summation,
         Plot::FormFactors,
         Plot::FinalVariants,
+        Plot::GevpEnergies,
+        Plot::GevpVectors,
     ]
 }
 
