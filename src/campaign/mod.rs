@@ -2,7 +2,7 @@
 //! Slurm job array, and combined into results at the physical point.
 //!
 //! A campaign file ([`spec`]) names a base pipeline, the ensembles and the variant axes;
-//! [`load`] validates it with file:line:column positions; [`expand`] turns it into tasks
+//! [`load`](mod@load) validates it with file:line:column positions; [`expand`] turns it into tasks
 //! (ensemble × variant), each an ordinary run directory made by the pipeline's run function
 //! ([`local`] runs them, [`slurm`] writes and submits the job array). [`combine`] gathers the
 //! runs' written tables ([`gather`]), fits each quantity against a² and m_π² ([`fit`]) and

@@ -99,7 +99,7 @@ pub fn fit(
 /// A linear fit whose design matrix and weights are the same for many data vectors (the
 /// resamples of a plateau or summation fit): the whitened design `W A` is factorised once and
 /// every data vector is solved by one product with the projector `P = (W A)^+ W`, the same
-/// solution as [`fit`] up to rounding (the column-scaled SVD of [`super::lstsq`]).
+/// solution as [`fit`] up to rounding (the column-scaled SVD of `fit::lstsq`).
 #[derive(Clone, Debug)]
 pub struct FixedDesign {
     /// `P`, one row per parameter, one column per point.

@@ -17,7 +17,7 @@
 //!   that carry the marker) are removed at the next start; a previous result hidden by a kill
 //!   between the two renames of a swap is put back when the final directory is missing.
 //! - SIGINT and SIGTERM remove the temporary directory before the process ends
-//!   ([`super::signals`]).
+//!   (`report::signals`).
 
 use super::signals;
 use crate::error::{Error, Result};

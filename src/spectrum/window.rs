@@ -71,7 +71,7 @@ impl WindowFit {
     /// parameter covariance), so the verdict is the same for jackknife and bootstrap: a
     /// non-positive ground energy, an amplitude of the wrong sign for a diagonal correlator
     /// (`A_n = |Z_n|^2 / 2E_n > 0`), or an extra state the data do not resolve (amplitude
-    /// consistent with zero, or a log-gap whose error exceeds [`MAX_LOG_GAP_ERROR`]). Such a
+    /// consistent with zero, or a log-gap whose error exceeds `MAX_LOG_GAP_ERROR`). Such a
     /// fit's resamples jump between solutions; the bootstrap, whose samples lie farther from
     /// the central value than the jackknife's, then sees a much wider spread than the
     /// jackknife, which is what made the two schemes disagree.

@@ -1,7 +1,7 @@
 //! Two-state fits of the ratio (docs/methods.md §4), in three variants chosen by
-//! `excited_states.two_state`: gaps fixed per resample from the two-point stage ([`fixed`],
-//! linear, closed form), gaps floating with priors ([`floating`]), or a joint fit with the
-//! two-point functions ([`joint`]). This module only dispatches; the dependencies point one
+//! `excited_states.two_state`: gaps fixed per resample from the two-point stage (`fixed`,
+//! linear, closed form), gaps floating with priors (`floating`), or a joint fit with the
+//! two-point functions (`joint`). This module only dispatches; the dependencies point one
 //! way, `joint → floating → fixed`.
 
 mod fixed;
