@@ -52,6 +52,7 @@ fn synthetic() -> ThreePointData {
                         projector,
                         flavor: None,
                         diagram: None,
+                        ops: None,
                     };
                     data.channels.insert(key, s);
                 }

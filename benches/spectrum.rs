@@ -73,6 +73,7 @@ fn synthetic(n_cfg: usize, n_t: usize) -> TwoPointData {
             TwoPointKey {
                 momentum: n,
                 smear: None,
+                ops: None,
             },
             s,
         );

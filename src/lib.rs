@@ -42,5 +42,6 @@ pub mod ratio;
 pub mod report;
 pub mod resample;
 pub mod spectrum;
+pub mod variational;
 
 pub use error::{Error, Invalid, Result};

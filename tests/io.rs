@@ -15,6 +15,7 @@ fn small_twopt() -> TwoPointData {
         TwoPointKey {
             momentum: [0, 0, 1],
             smear: None,
+            ops: None,
         },
         s,
     );
@@ -38,6 +39,7 @@ fn small_threept() -> ThreePointData {
             projector: Projector::Unpol,
             flavor: Some("u".into()),
             diagram: Some(Diagram::Connected),
+            ops: None,
         },
         s,
     );
@@ -386,6 +388,7 @@ fn random_data(seed: u64) -> (TwoPointData, ThreePointData) {
             TwoPointKey {
                 momentum,
                 smear: smear.map(String::from),
+                ops: None,
             },
             s,
         );
@@ -426,6 +429,7 @@ fn random_data(seed: u64) -> (TwoPointData, ThreePointData) {
                 projector,
                 flavor: flavor.map(String::from),
                 diagram,
+                ops: None,
             },
             s,
         );
@@ -549,6 +553,7 @@ fn inspect_data(rho: f64, negative: bool) -> (TwoPointData, ThreePointData) {
             TwoPointKey {
                 momentum,
                 smear: None,
+                ops: None,
             },
             s,
         );
@@ -574,6 +579,7 @@ fn inspect_data(rho: f64, negative: bool) -> (TwoPointData, ThreePointData) {
             projector: Projector::Unpol,
             flavor: None,
             diagram: None,
+            ops: None,
         },
         s,
     );

@@ -924,6 +924,7 @@ mod decomposition {
             projector: Projector::Unpol,
             flavor: Some(f.into()),
             diagram: d,
+            ops: None,
         };
         let series = |x: f64| {
             let mut s = Series::zeros(9, 3);

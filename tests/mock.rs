@@ -33,6 +33,7 @@ fn c2(e: &MockEnsemble, p: Momentum) -> &Series {
     &e.twopt.channels[&TwoPointKey {
         momentum: p,
         smear: None,
+        ops: None,
     }]
 }
 
@@ -52,6 +53,7 @@ fn c3(
         projector,
         flavor: None,
         diagram: None,
+        ops: None,
     }]
 }
 
@@ -288,6 +290,7 @@ fn c3_key(tsep: u32, pf: Momentum, q: Momentum, c: Current, p: Projector) -> Thr
         projector: p,
         flavor: None,
         diagram: None,
+        ops: None,
     }
 }
 
@@ -536,7 +539,7 @@ fn input_is_never_overwritten() {
 #[test]
 fn demo_data_match_their_specs() {
     let root = crate::common::repo_root().join("demo-data");
-    for name in ["nucleon", "pion"] {
+    for name in ["nucleon", "pion", "meson-gevp"] {
         let spec_path = root.join(format!("{name}.mock.yaml"));
         let text = std::fs::read_to_string(&spec_path).expect("demo spec exists");
         let e = run(&MockSpec::from_yaml(&text, name).expect("demo spec is valid"));

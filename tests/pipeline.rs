@@ -36,7 +36,7 @@ fn committed_schema_is_current() {
 #[test]
 fn fixture_pipeline_loads_with_defaults_and_overrides() {
     let plan = pipeline::load(&fixture("pipeline/minimal.yaml"), &[]).unwrap();
-    assert_eq!(plan.spec.ensemble.t, 16);
+    assert_eq!(plan.spec.ensemble.t, Some(16));
     assert_eq!(
         plan.spec.resampling.samples, 200,
         "default bootstrap samples"
@@ -287,7 +287,57 @@ fn every_example_pipeline_checks_and_runs() {
             manifest["settings"]["pipeline"]["ensemble"]["L"] == 24,
             "{name}"
         );
+        check_figures_and_page(name, &out);
     }
+}
+
+/// What a reader of the example reports must see: plot files named by channel, typeset
+/// labels, one momentum notation, the fitted curves and bands, the estimator colours, and
+/// the sections of the stages that ran.
+fn check_figures_and_page(name: &str, out: &Path) {
+    let plots: Vec<String> = std::fs::read_dir(out.join("plots"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    let read = |f: &str| std::fs::read_to_string(out.join("plots").join(f)).unwrap();
+    let ratio: Vec<&String> = plots.iter().filter(|p| p.starts_with("ratio-")).collect();
+    assert!(!ratio.is_empty(), "{name}: {plots:?}");
+    for p in &ratio {
+        // ratio-<current>-<projector>-pf<x.y.z>-q<x.y.z>.svg, never ratio-<index>.svg
+        assert!(p.contains("-pf") && p.contains("-q"), "{name}: {p}");
+        let svg = read(p);
+        assert!(svg.contains("<tspan"), "{name} {p}: no sub/superscripts");
+        assert!(svg.contains("pf=(") && !svg.contains("pf=["), "{name} {p}");
+        // one dashed two-state curve per separation, labelled once
+        assert!(svg.contains("two_state fit, per t"), "{name} {p}");
+    }
+    for p in plots.iter().filter(|p| p.starts_with("summation-")) {
+        // the summation line's error band is a filled polygon
+        assert!(read(p).contains("<polygon"), "{name} {p}");
+    }
+    let page = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(!page.contains("6.661338147750939e-15"), "{name}");
+    if name == "excited-state-study" {
+        // stop_after: ratio shows the cross-check, not empty form-factor tables
+        assert!(page.contains("<caption>crosscheck</caption>"), "{name}");
+        assert!(!page.contains(">Form factors</h2>"), "{name}");
+        return;
+    }
+    let ff: Vec<&String> = plots
+        .iter()
+        .filter(|p| p.starts_with("formfactor-"))
+        .collect();
+    assert!(!ff.is_empty(), "{name}");
+    for p in ff {
+        let svg = read(p);
+        assert!(svg.contains("Q<tspan"), "{name} {p}: Q² not typeset");
+        // two-state is the blue (#0072B2) circle in every run
+        let two_state = svg.find(">\ntwo_state\n").expect("two_state in the legend");
+        let before = &svg[..two_state];
+        let glyph = &before[before.rfind("<circle").expect("a circle marker")..];
+        assert!(glyph.contains("#0072B2"), "{name} {p}: {glyph}");
+    }
+    assert!(page.contains("final values and error budget"), "{name}");
 }
 
 #[test]
@@ -297,14 +347,16 @@ fn demo_runs_recover_the_mock_truth() {
     let dir = tempdir();
     let nucleon = Truth::read(&repo_root().join("demo-data/nucleon/truth.yaml")).unwrap();
     let pion = Truth::read(&repo_root().join("demo-data/pion/truth.yaml")).unwrap();
+    let meson = Truth::read(&repo_root().join("demo-data/meson-gevp/truth.yaml")).unwrap();
     // (pipeline, truth, form factor, least share of shells within 2 sigma). The pion's F was
     // 3-4 sigma high while its pipeline averaged in two-state fits starting at t >= 4, whose
     // gaps were poorly determined; with two-state fits from t = 1..3 every shell closes.
-    let cases: [(&str, &Truth, &str, f64); 4] = [
+    let cases: [(&str, &Truth, &str, f64); 5] = [
         ("nucleon-vector", &nucleon, "GE", 0.75),
         ("nucleon-vector", &nucleon, "GM", 0.75),
         ("nucleon-axial", &nucleon, "GA", 0.75),
         ("pion-vector", &pion, "F", 0.75),
+        ("meson-gevp", &meson, "F", 0.75),
     ];
     for (name, truth, ff, least) in cases {
         let out = dir.path().join(name);

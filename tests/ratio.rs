@@ -66,6 +66,7 @@ impl Chan {
             projector: Projector::Unpol,
             flavor: None,
             diagram: None,
+            ops: None,
         }
     }
 
@@ -164,6 +165,7 @@ fn make_data(
             TwoPointKey {
                 momentum: *p,
                 smear: None,
+                ops: None,
             },
             series,
         );

@@ -357,6 +357,7 @@ fn two_point(configs: Vec<i64>, n_t: usize, seed: u64) -> TwoPointData {
     let key = TwoPointKey {
         momentum: [0, 0, 1],
         smear: None,
+        ops: None,
     };
     let n = d.configs.len();
     d.channels.insert(key, series_of(n_t, n, seed));
@@ -419,6 +420,7 @@ fn binning_rejects_bad_bin_sizes_without_panicking() {
         projector: Projector::Unpol,
         flavor: Some("u-d".into()),
         diagram: None,
+        ops: None,
     };
     bad.channels.insert(key, series_of(9, 9, 2));
     let err = bin_threept(&bad, 2).expect_err("9 configurations against 10");

@@ -8,7 +8,7 @@ use formfactory::fit::Model;
 use formfactory::resample::{ResamplePlan, Resampled, Scheme};
 use formfactory::spectrum::effective::{cosh_mass, effective_mass, log_mass, EffectiveMassKind};
 use formfactory::spectrum::model::{Form, TwoPointModel};
-use formfactory::spectrum::{average, dispersion, gevp, run, IntRange, SpectrumSettings};
+use formfactory::spectrum::{average, dispersion, run, IntRange, SpectrumSettings};
 use nalgebra::DMatrix;
 use proptest::prelude::*;
 use rand::{Rng, SeedableRng};
@@ -94,50 +94,6 @@ fn effective_masses_of_exact_exponentials() {
     let m = effective_mass(&c, EffectiveMassKind::Log);
     assert!(m[0].is_none());
     assert!(m[1].is_none());
-}
-
-// Analytic: C(t) = Z^T diag(e^{-E_n t}) Z has GEVP eigenvalues exactly e^{-E_n (t - t0)}
-// (Blossier et al., JHEP 04 (2009) 094, the N = number of operators case).
-#[test]
-fn gevp_recovers_known_energies() {
-    let energies = [0.45, 0.8, 1.3];
-    let mut rng = ChaCha8Rng::seed_from_u64(11);
-    let z = DMatrix::from_fn(3, 3, |_, _| rng.gen_range(-1.0..1.0) + 0.2);
-    let corr = |t: f64| {
-        let d = DMatrix::from_diagonal(&nalgebra::DVector::from_iterator(
-            3,
-            energies.iter().map(|e: &f64| (-e * t).exp()),
-        ));
-        z.transpose() * d * &z
-    };
-    let t0 = 2.0;
-    for t in [3.0, 5.0, 8.0] {
-        let sol = gevp::solve(&corr(t), &corr(t0)).unwrap();
-        for (n, e) in energies.iter().enumerate() {
-            let e_fit = -sol.eigenvalues[n].ln() / (t - t0);
-            assert_relative_eq!(e_fit, *e, epsilon = 1e-10);
-        }
-    }
-    // Resampled: identical samples give the same principal correlators.
-    let n_t = 10;
-    let matrix: Vec<Vec<Resampled>> = (0..9)
-        .map(|ij| {
-            (0..n_t)
-                .map(|t| {
-                    let v = corr(t as f64)[(ij / 3, ij % 3)];
-                    Resampled::new(v, vec![v * 1.0; 4], Scheme::Jackknife)
-                })
-                .collect()
-        })
-        .collect();
-    let pc = gevp::principal_correlators(&matrix, 3, 2, 4).unwrap();
-    for (n, e) in energies.iter().enumerate() {
-        let l = &pc.lambda[n][7];
-        assert_relative_eq!(-l.central.ln() / 5.0, *e, epsilon = 1e-10);
-        assert_relative_eq!(-l.samples[3].ln() / 5.0, *e, epsilon = 1e-10);
-    }
-    // Not positive-definite C(t0): an error, not a panic.
-    assert!(gevp::solve(&corr(3.0), &DMatrix::zeros(3, 3)).is_err());
 }
 
 // Jay & Neil (PRD 103 (2021) 114502) variance: sum w s^2 + sum w mu^2 - (sum w mu)^2, each
@@ -247,6 +203,7 @@ fn synthetic(
             TwoPointKey {
                 momentum: n,
                 smear: None,
+                ops: None,
             },
             s,
         );
@@ -416,83 +373,6 @@ fn bad_data_gives_clear_errors() {
     assert!(run(&data, &plan, &closure_settings()).is_err());
 }
 
-// Closure for the variational method (Blossier et al., JHEP 04 (2009) 094): a seeded 2x2
-// correlator matrix built from two known states, noisy; the energies fitted to the principal
-// correlators agree with the truth within 2 sigma.
-#[test]
-fn gevp_stage_closure() {
-    let energies = [0.5, 0.9];
-    let z = [[1.0, 0.6], [0.5, -0.8]]; // z[operator][state]
-    let (n_cfg, n_t) = (60, 20);
-    let mut rng = ChaCha8Rng::seed_from_u64(99);
-    let mut channels = BTreeMap::new();
-    // Per-channel noise (symmetric pairs share it): a common part plus an independent part.
-    let mut noise = vec![vec![0.0; n_cfg * n_t]; 4];
-    for cfg in 0..n_cfg {
-        let mut eps = [0.0; 4];
-        for t in 0..n_t {
-            for e in eps.iter_mut() {
-                let g: f64 = (0..12).map(|_| rng.gen::<f64>()).sum::<f64>() - 6.0;
-                *e = 0.5 * *e + 0.75f64.sqrt() * g;
-            }
-            for pair in 0..3 {
-                noise[pair][t * n_cfg + cfg] =
-                    0.003 * (0.05 * t as f64).exp() * (eps[3] + 0.5 * eps[pair]);
-            }
-        }
-    }
-    let ops = ["g", "w"];
-    for (i, a) in ops.iter().enumerate() {
-        for (j, b) in ops.iter().enumerate() {
-            let mut s = Series::zeros(n_t, n_cfg);
-            for t in 0..n_t {
-                let c: f64 = (0..2)
-                    .map(|n| z[i][n] * z[j][n] * (-energies[n] * t as f64).exp())
-                    .sum();
-                for cfg in 0..n_cfg {
-                    let k = s.index(t, cfg);
-                    s.re[k] = c * (1.0 + noise[i + j][t * n_cfg + cfg]);
-                }
-            }
-            channels.insert(
-                TwoPointKey {
-                    momentum: [0, 0, 0],
-                    smear: Some(format!("{a}-{b}")),
-                },
-                s,
-            );
-        }
-    }
-    let data = TwoPointData {
-        configs: (0..n_cfg as i64).collect(),
-        channels,
-    };
-    let settings = SpectrumSettings {
-        t_min: IntRange { from: 3, to: 5 },
-        t_max: Some(12),
-        n_states: IntRange { from: 1, to: 1 },
-        gevp: Some(formfactory::spectrum::GevpSettings { t0: 2, t_ref: 4 }),
-        ..SpectrumSettings::default()
-    };
-    let r = run(&data, &ResamplePlan::jackknife(n_cfg), &settings).unwrap();
-    let g = &r.gevp[&[0, 0, 0]];
-    assert_eq!(g.operators, vec!["g".to_string(), "w".to_string()]);
-    for (n, e) in energies.iter().enumerate() {
-        let fit = g.energy(n).unwrap();
-        println!(
-            "GEVP state {n}: {:.5} +- {:.5} (truth {e})",
-            fit.central,
-            fit.error()
-        );
-        assert!(
-            (fit.central - e).abs() < 2.0 * fit.error(),
-            "state {n}: {fit:?}"
-        );
-    }
-    // The ground principal correlator stands in for the per-momentum spectrum.
-    assert!(r.per_momentum.contains_key(&[0, 0, 0]));
-}
-
 // Settings parse from YAML with defaults (the pipeline reads this block).
 #[test]
 fn settings_parse_with_defaults() {
@@ -530,6 +410,7 @@ fn periodic_closure() {
         TwoPointKey {
             momentum: [0, 0, 0],
             smear: None,
+            ops: None,
         },
         s,
     );
@@ -670,6 +551,7 @@ fn energies_below_the_rest_frame_are_dropped() {
         TwoPointKey {
             momentum: [1, 0, 0],
             smear: None,
+            ops: None,
         },
         series,
     );

@@ -234,6 +234,38 @@ pub enum Diagram {
     Disconnected,
 }
 
+/// The sink and source interpolating operators of a correlator between operators of a
+/// basis (the `sink_op` and `source_op` columns): element `(sink, source)` of a correlator
+/// matrix for the variational analysis.
+#[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+pub struct Operators {
+    /// Operator at the sink (time `t`, or `tsep` in a three-point function).
+    pub sink: String,
+    /// Operator at the source (time 0).
+    pub source: String,
+}
+
+impl Operators {
+    /// The pair `(sink, source)`.
+    pub fn new(sink: &str, source: &str) -> Self {
+        Operators {
+            sink: sink.to_string(),
+            source: source.to_string(),
+        }
+    }
+
+    /// The diagonal pair `(op, op)`.
+    pub fn diagonal(op: &str) -> Self {
+        Operators::new(op, op)
+    }
+}
+
+impl fmt::Display for Operators {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}<-{}", self.sink, self.source)
+    }
+}
+
 /// Key of a two-point channel.
 #[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 pub struct TwoPointKey {
@@ -242,6 +274,9 @@ pub struct TwoPointKey {
     /// Interpolator label (`src-snk` for a correlator matrix); `None` when the table has no
     /// `smear` column.
     pub smear: Option<String>,
+    /// Sink and source operators, when the table has `sink_op` / `source_op` columns and
+    /// the row fills them.
+    pub ops: Option<Operators>,
 }
 
 /// Key of a three-point channel; `tau` is the dense axis of its [`Series`].
@@ -261,6 +296,9 @@ pub struct ThreePointKey {
     pub flavor: Option<String>,
     /// Diagram label, if the table has one.
     pub diagram: Option<Diagram>,
+    /// Sink and source operators, when the table has `sink_op` / `source_op` columns and
+    /// the row fills them.
+    pub ops: Option<Operators>,
 }
 
 impl ThreePointKey {

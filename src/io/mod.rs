@@ -50,6 +50,7 @@
 pub mod hdf5;
 pub mod inspect;
 mod open;
+pub mod seed;
 mod table;
 mod threept;
 mod twopt;
@@ -254,10 +255,14 @@ fn select_configs(s: &Series, configs: &[i64], keep: &[i64]) -> Series {
 /// A human-readable name of a two-point channel, for messages.
 pub fn describe_twopt(key: &TwoPointKey) -> String {
     let p = key.momentum;
-    match &key.smear {
-        Some(s) => format!("p=({},{},{}) smear={s}", p[0], p[1], p[2]),
-        None => format!("p=({},{},{})", p[0], p[1], p[2]),
+    let mut s = format!("p=({},{},{})", p[0], p[1], p[2]);
+    if let Some(smear) = &key.smear {
+        s.push_str(&format!(" smear={smear}"));
     }
+    if let Some(o) = &key.ops {
+        s.push_str(&format!(" ops={o}"));
+    }
+    s
 }
 
 /// A human-readable name of a three-point channel, for messages.
@@ -282,6 +287,9 @@ pub fn describe_threept(key: &ThreePointKey) -> String {
             crate::data::Diagram::Connected => " connected",
             crate::data::Diagram::Disconnected => " disconnected",
         });
+    }
+    if let Some(o) = &key.ops {
+        s.push_str(&format!(" ops={o}"));
     }
     s
 }

@@ -261,6 +261,56 @@ impl<R: Read> TableReader<R> {
     pub fn text(&self, k: usize, schema: &[Column]) -> Result<&str> {
         std::str::from_utf8(self.raw(k)).map_err(|_| self.field_error(k, schema, "UTF-8 text"))
     }
+
+    /// Refuse a header that names one of the optional columns `a` and `b` without the other
+    /// (the operator columns come as a pair).
+    pub fn check_paired(&self, a: usize, b: usize, schema: &[Column]) -> Result<()> {
+        let (have, missing) = match (self.index[a], self.index[b]) {
+            (Some(i), None) => (i, b),
+            (None, Some(i)) => (i, a),
+            _ => return Ok(()),
+        };
+        let other = if missing == a { b } else { a };
+        Err(Error::Data {
+            location: Location {
+                file: self.file.clone(),
+                line: 1,
+                column: Some(have as u64 + 1),
+                field: Some(schema[other].name.to_string()),
+            },
+            message: format!(
+                "column `{}` needs the column `{}` as well (operator labels come in pairs)",
+                schema[other].name, schema[missing].name
+            ),
+        })
+    }
+
+    /// The sink and source operator labels of the current row from columns `sink` and
+    /// `source`: `None` when both are empty (or absent), an error when only one is filled.
+    pub fn operators(
+        &self,
+        sink: usize,
+        source: usize,
+        schema: &[Column],
+    ) -> Result<Option<(&str, &str)>> {
+        let (a, b) = (self.text(sink, schema)?, self.text(source, schema)?);
+        match (a.is_empty(), b.is_empty()) {
+            (true, true) => Ok(None),
+            (false, false) => Ok(Some((a, b))),
+            (true, false) | (false, true) => {
+                let empty = if a.is_empty() { sink } else { source };
+                Err(Error::Data {
+                    location: self.location(empty, schema[empty].name),
+                    message: format!(
+                        "`{}` is empty while `{}` is `{}`: give both operator labels or neither",
+                        schema[empty].name,
+                        schema[if empty == sink { source } else { sink }].name,
+                        crate::error::excerpt(if a.is_empty() { b } else { a }.as_bytes())
+                    ),
+                })
+            }
+        }
+    }
 }
 
 /// Parse an optionally signed decimal integer without allocating; `None` on anything else.

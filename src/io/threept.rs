@@ -7,7 +7,7 @@ use super::table::{
     display_name, key_order, no_data_rows, open, Accumulator, Column, KeyCache, Summary,
     TableReader,
 };
-use crate::data::{Current, Diagram, Projector, Series, ThreePointData, ThreePointKey};
+use crate::data::{Current, Diagram, Operators, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
 use std::io::Read;
@@ -25,8 +25,10 @@ const IM: usize = 12;
 const FLAVOR: usize = 13;
 const DIAGRAM: usize = 14;
 const SOURCE: usize = 15;
+const SINK_OP: usize = 16;
+const SOURCE_OP: usize = 17;
 /// The columns that make up a channel key.
-const KEY_COLUMNS: [usize; 11] = [
+const KEY_COLUMNS: [usize; 13] = [
     TSEP,
     PFX,
     PFX + 1,
@@ -38,6 +40,8 @@ const KEY_COLUMNS: [usize; 11] = [
     PROJECTOR,
     FLAVOR,
     DIAGRAM,
+    SINK_OP,
+    SOURCE_OP,
 ];
 
 const SCHEMA: &[Column] = &[
@@ -57,6 +61,8 @@ const SCHEMA: &[Column] = &[
     Column::optional("flavor"),
     Column::optional("diagram"),
     Column::optional("source"),
+    Column::optional("sink_op"),
+    Column::optional("source_op"),
 ];
 
 /// Read a three-point table from a file (`-` for standard input).
@@ -86,6 +92,7 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
     let with_source = rd.index[SOURCE].is_some();
     let with_flavor = rd.index[FLAVOR].is_some();
     let with_diagram = rd.index[DIAGRAM].is_some();
+    rd.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
     let mut acc = Accumulator::new(with_source);
     let mut keys: Vec<ThreePointKey> = Vec::new();
     let mut enc: Vec<u8> = Vec::with_capacity(64);
@@ -232,7 +239,15 @@ fn channel_id<R: Read>(
         Some(Diagram::Connected) => 1,
         Some(Diagram::Disconnected) => 2,
     });
+    enc.extend_from_slice(&(flavor.len() as u32).to_le_bytes());
     enc.extend_from_slice(flavor.as_bytes());
+    let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
+    if let Some((a, b)) = ops {
+        for label in [a, b] {
+            enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
+            enc.extend_from_slice(label.as_bytes());
+        }
+    }
     Ok(match acc.channel(enc) {
         Some(id) => id,
         None => {
@@ -244,6 +259,7 @@ fn channel_id<R: Read>(
                 projector,
                 flavor: (!flavor.is_empty()).then(|| flavor.to_string()),
                 diagram,
+                ops: ops.map(|(a, b)| Operators::new(a, b)),
             });
             acc.add_channel(enc, rd.line)
         }

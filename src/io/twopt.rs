@@ -7,7 +7,7 @@ use super::table::{
     display_name, key_order, no_data_rows, open, Accumulator, Column, KeyCache, Summary,
     TableReader,
 };
-use crate::data::{Series, TwoPointData, TwoPointKey};
+use crate::data::{Operators, Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
 use std::io::Read;
@@ -20,8 +20,10 @@ const RE: usize = 5;
 const IM: usize = 6;
 const SOURCE: usize = 7;
 const SMEAR: usize = 8;
+const SINK_OP: usize = 9;
+const SOURCE_OP: usize = 10;
 /// The columns that make up a channel key.
-const KEY_COLUMNS: [usize; 4] = [PX, PX + 1, PX + 2, SMEAR];
+const KEY_COLUMNS: [usize; 6] = [PX, PX + 1, PX + 2, SMEAR, SINK_OP, SOURCE_OP];
 
 const SCHEMA: &[Column] = &[
     Column::required("config"),
@@ -33,6 +35,8 @@ const SCHEMA: &[Column] = &[
     Column::required("im"),
     Column::optional("source"),
     Column::optional("smear"),
+    Column::optional("sink_op"),
+    Column::optional("source_op"),
 ];
 
 /// Read a two-point table from a file (`-` for standard input).
@@ -53,6 +57,7 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
     let mut rd = TableReader::new(input, file, SCHEMA)?;
     let with_source = rd.index[SOURCE].is_some();
     let with_smear = rd.index[SMEAR].is_some();
+    rd.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
     let mut acc = Accumulator::new(with_source);
     let mut keys: Vec<TwoPointKey> = Vec::new();
     let mut enc: Vec<u8> = Vec::with_capacity(64);
@@ -141,13 +146,22 @@ fn channel_id<R: Read>(
     } else {
         ""
     };
+    enc.extend_from_slice(&(smear.len() as u32).to_le_bytes());
     enc.extend_from_slice(smear.as_bytes());
+    let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
+    if let Some((a, b)) = ops {
+        for label in [a, b] {
+            enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
+            enc.extend_from_slice(label.as_bytes());
+        }
+    }
     Ok(match acc.channel(enc) {
         Some(id) => id,
         None => {
             keys.push(TwoPointKey {
                 momentum,
                 smear: (!smear.is_empty()).then(|| smear.to_string()),
+                ops: ops.map(|(a, b)| Operators::new(a, b)),
             });
             acc.add_channel(enc, rd.line)
         }

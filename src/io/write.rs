@@ -84,7 +84,7 @@ fn check_configs(configs: &[i64]) -> Result<()> {
     Ok(())
 }
 
-/// Write a two-point table: columns `config,px,py,pz,t,re,im[,smear]`.
+/// Write a two-point table: columns `config,px,py,pz,t,re,im[,smear][,sink_op,source_op]`.
 ///
 /// Every channel must have the same number of time slices `T` (the reader's time-axis rule).
 pub fn write_twopt<W: Write>(data: &TwoPointData, w: W) -> Result<()> {
@@ -95,12 +95,16 @@ pub fn write_twopt<W: Write>(data: &TwoPointData, w: W) -> Result<()> {
         check_shape(series, n_cfg, n_t, &super::describe_twopt(key))?;
     }
     let with_smear = data.channels.keys().any(|k| k.smear.is_some());
+    let with_ops = data.channels.keys().any(|k| k.ops.is_some());
     let mut out = csv::WriterBuilder::new()
         .buffer_capacity(1 << 16)
         .from_writer(w);
     let mut header = vec!["config", "px", "py", "pz", "t", "re", "im"];
     if with_smear {
         header.push("smear");
+    }
+    if with_ops {
+        header.extend(["sink_op", "source_op"]);
     }
     out.write_record(&header).map_err(csv_error)?;
     let mut fields: Vec<String> = vec![String::new(); header.len()];
@@ -110,6 +114,10 @@ pub fn write_twopt<W: Write>(data: &TwoPointData, w: W) -> Result<()> {
         }
         if with_smear {
             fields[7] = key.smear.clone().unwrap_or_default();
+        }
+        if with_ops {
+            let at = 7 + usize::from(with_smear);
+            write_ops(key.ops.as_ref(), &mut fields[at..]);
         }
         for t in 0..n_t {
             fields[4] = t.to_string();
@@ -128,7 +136,8 @@ pub fn write_twopt<W: Write>(data: &TwoPointData, w: W) -> Result<()> {
 }
 
 /// Write a three-point table: columns
-/// `config,tsep,tau,pfx,pfy,pfz,qx,qy,qz,current,projector,re,im[,flavor][,diagram]`.
+/// `config,tsep,tau,pfx,pfy,pfz,qx,qy,qz,current,projector,re,im[,flavor][,diagram]`
+/// `[,sink_op,source_op]`.
 ///
 /// Every channel must have `tsep + 1` insertion times (`tau = 0..=tsep`).
 pub fn write_threept<W: Write>(data: &ThreePointData, w: W) -> Result<()> {
@@ -144,6 +153,7 @@ pub fn write_threept<W: Write>(data: &ThreePointData, w: W) -> Result<()> {
     }
     let with_flavor = data.channels.keys().any(|k| k.flavor.is_some());
     let with_diagram = data.channels.keys().any(|k| k.diagram.is_some());
+    let with_ops = data.channels.keys().any(|k| k.ops.is_some());
     let mut out = csv::WriterBuilder::new()
         .buffer_capacity(1 << 16)
         .from_writer(w);
@@ -155,6 +165,9 @@ pub fn write_threept<W: Write>(data: &ThreePointData, w: W) -> Result<()> {
     }
     if with_diagram {
         header.push("diagram");
+    }
+    if with_ops {
+        header.extend(["sink_op", "source_op"]);
     }
     out.write_record(&header).map_err(csv_error)?;
     let mut fields: Vec<String> = vec![String::new(); header.len()];
@@ -177,6 +190,10 @@ pub fn write_threept<W: Write>(data: &ThreePointData, w: W) -> Result<()> {
                 Some(Diagram::Disconnected) => "disconnected".to_string(),
                 None => String::new(),
             };
+            extra += 1;
+        }
+        if with_ops {
+            write_ops(key.ops.as_ref(), &mut fields[extra..]);
         }
         for tau in 0..series.n_t {
             fields[2] = tau.to_string();
@@ -192,6 +209,15 @@ pub fn write_threept<W: Write>(data: &ThreePointData, w: W) -> Result<()> {
         }
     }
     out.flush().map_err(|e| Error::io(OUTPUT, e))
+}
+
+/// The `sink_op`, `source_op` fields of a channel (empty for a channel without operators).
+fn write_ops(ops: Option<&crate::data::Operators>, fields: &mut [String]) {
+    let (a, b) = ops.map_or((String::new(), String::new()), |o| {
+        (o.sink.clone(), o.source.clone())
+    });
+    fields[0] = a;
+    fields[1] = b;
 }
 
 #[cfg(test)]

@@ -35,12 +35,12 @@ pub struct MockEnsemble {
 }
 
 /// One three-point channel (all `tsep`) to generate.
-struct Planned {
-    pf: Momentum,
-    q: Momentum,
-    current: Current,
-    projector: Projector,
-    pi: Complex<f64>,
+pub(super) struct Planned {
+    pub(super) pf: Momentum,
+    pub(super) q: Momentum,
+    pub(super) current: Current,
+    pub(super) projector: Projector,
+    pub(super) pi: Complex<f64>,
 }
 
 /// Generate the ensemble described by `spec` (validated again here, so specs built in code
@@ -56,12 +56,26 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
         .map(|&n| (n, levels(&spec.hadron, l, n)))
         .collect();
     let (points, planned, elements) = plan_channels(spec, &pairs, &spectrum)?;
-    check_memory(spec, momenta.len(), planned.len())?;
+    let n_ops = spec.operators.as_ref().map_or(1, |b| b.basis.len());
+    check_memory(
+        spec,
+        momenta.len() * n_ops * n_ops,
+        planned.len() * n_ops * n_ops,
+    )?;
 
     let n_cfg = spec.ensemble.configs;
     let configs: Vec<i64> = (0..n_cfg as i64)
         .map(|c| spec.ensemble.first_config + c * spec.ensemble.config_step)
         .collect();
+    if let Some(basis) = &spec.operators {
+        let (twopt, threept) = matrix_data(spec, basis, &spectrum, &planned, configs);
+        let truth = truth(spec, &spectrum, points, elements);
+        return Ok(MockEnsemble {
+            twopt,
+            threept,
+            truth,
+        });
+    }
     let twopt_noise: BTreeMap<Momentum, Vec<f64>> = momenta
         .iter()
         .map(|&n| {
@@ -81,6 +95,7 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
             TwoPointKey {
                 momentum: *n,
                 smear: None,
+                ops: None,
             },
             series,
         );
@@ -103,6 +118,7 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
                 projector: p.projector,
                 flavor: None,
                 diagram: None,
+                ops: None,
             };
             let s = threept_series(spec, &spectrum, &twopt_noise[&p.pf], tsep as usize, p);
             (key, s)
@@ -121,6 +137,44 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
     })
 }
 
+/// The operator-basis data: the two-point matrix at every momentum and the three-point
+/// functions between every sink and source operator.
+fn matrix_data(
+    spec: &MockSpec,
+    basis: &super::operators::BasisSpec,
+    spectrum: &BTreeMap<Momentum, MomentumLevels>,
+    planned: &[Planned],
+    configs: Vec<i64>,
+) -> (TwoPointData, ThreePointData) {
+    use super::matrix::{threept_matrix, twopt_matrix, twopt_noise};
+    let noise: BTreeMap<Momentum, Vec<Vec<f64>>> = spectrum
+        .keys()
+        .map(|&n| (n, twopt_noise(spec, basis, n)))
+        .collect();
+    let twopt = TwoPointData {
+        configs: configs.clone(),
+        channels: spectrum
+            .iter()
+            .flat_map(|(n, levels)| twopt_matrix(spec, basis, levels, &noise[n]))
+            .collect(),
+    };
+    let jobs: Vec<(u32, &Planned)> = spec
+        .channels
+        .tseps
+        .iter()
+        .flat_map(|&tsep| planned.iter().map(move |p| (tsep, p)))
+        .collect();
+    let series: Vec<Vec<(ThreePointKey, Series)>> = jobs
+        .par_iter()
+        .map(|&(tsep, p)| threept_matrix(spec, basis, spectrum, &noise[&p.pf], tsep as usize, p))
+        .collect();
+    let threept = ThreePointData {
+        configs,
+        channels: series.into_iter().flatten().collect(),
+    };
+    (twopt, threept)
+}
+
 /// Refuse a spec whose series would not fit in memory: the two-point series and their unit
 /// noise (`momenta x T x configs`), the time-correlation factor (`T x T`) and the three-point
 /// series (`channels x (tsep + 1) x configs` per `tsep`), real and imaginary parts.
@@ -135,7 +189,7 @@ fn check_memory(spec: &MockSpec, n_momenta: usize, n_planned: usize) -> Result<(
     }
     crate::budget::check(
         &format!(
-            "mock spec: {n_cfg} configurations x T = {t} with {n_momenta} momenta and              {n_planned} three-point channels per tsep"
+            "mock spec: {n_cfg} configurations x T = {t} with {n_momenta} momenta and {n_planned} three-point channels per tsep"
         ),
         values.saturating_mul(8),
     )
@@ -229,7 +283,7 @@ fn plan_channels(
 }
 
 /// Unit noise of `n_t` time slices for the channel named `label`.
-fn unit_noise_for(spec: &MockSpec, label: &str, n_t: usize) -> Vec<f64> {
+pub(super) fn unit_noise_for(spec: &MockSpec, label: &str, n_t: usize) -> Vec<f64> {
     let noise = &spec.noise;
     let mut rng = channel_rng(spec.seed, label);
     let factor = time_correlation_factor(n_t, noise.time_correlation.0);
@@ -242,7 +296,7 @@ fn unit_noise_for(spec: &MockSpec, label: &str, n_t: usize) -> Vec<f64> {
 }
 
 /// Growth rate `g(p)` of the noise-to-signal ratio at one momentum.
-fn growth(spec: &MockSpec, levels: &MomentumLevels) -> f64 {
+pub(super) fn growth(spec: &MockSpec, levels: &MomentumLevels) -> f64 {
     match (spec.noise.growth_rate, spec.hadron.kind, spec.hadron.m_pi) {
         (Some(g), _, _) => g,
         (None, Hadron::Spin1Half, Some(m_pi)) => levels.levels[0].energy - 1.5 * m_pi.0,
@@ -334,7 +388,7 @@ fn threept_series(
 }
 
 /// Transition strengths when none are given: the ground state alone.
-fn ground_only(n_states: usize) -> Vec<Vec<f64>> {
+pub(super) fn ground_only(n_states: usize) -> Vec<Vec<f64>> {
     Transitions {
         source_excited: vec![0.0; n_states - 1],
         sink_excited: None,
@@ -345,7 +399,7 @@ fn ground_only(n_states: usize) -> Vec<Vec<f64>> {
 
 /// Round to `digits` significant digits (none: unchanged), through the decimal form so that
 /// the written number is short.
-fn round(x: f64, digits: Option<u32>) -> f64 {
+pub(super) fn round(x: f64, digits: Option<u32>) -> f64 {
     match digits {
         Some(d) if x.is_finite() && x != 0.0 => {
             format!("{:.*e}", d as usize - 1, x).parse().unwrap_or(x)
@@ -398,5 +452,6 @@ fn truth(
         points,
         matrix_elements,
         noise: spec.noise.clone(),
+        operators: spec.operators.clone(),
     }
 }

@@ -16,12 +16,15 @@
 
 mod channels;
 mod generate;
+mod matrix;
 mod model;
 mod noise;
+mod operators;
 mod spec;
 mod truth;
 
 pub use generate::{generate, MockEnsemble};
+pub use operators::{BasisSpec, OperatorSpec};
 pub use spec::{
     ChannelSpec, Correlation, EnsembleSpec, FormFactorModel, FormFactorSpec, HadronSpec, Insertion,
     MockSpec, MomentumPair, MomentumSelection, NoiseSpec, NonNegative, OutputSpec, Positive,

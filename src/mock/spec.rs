@@ -18,6 +18,7 @@ use std::collections::BTreeMap;
 #[serde(deny_unknown_fields)]
 pub struct MockSpec {
     /// Seed of the random streams; the same seed gives byte-identical files.
+    #[serde(deserialize_with = "crate::io::seed::seed")]
     pub seed: u64,
     /// Lattice size, spacing and configurations.
     pub ensemble: EnsembleSpec,
@@ -36,6 +37,12 @@ pub struct MockSpec {
     /// Output options.
     #[serde(default)]
     pub output: OutputSpec,
+    /// An operator basis: when given, the two-point functions are written as a matrix
+    /// between the operators and the three-point functions between every sink and source
+    /// operator (columns `sink_op`, `source_op`); the hadron's own `overlap`s then only set
+    /// the single-operator noise scale and the truth file.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub operators: Option<super::operators::BasisSpec>,
 }
 
 /// Lattice geometry and configurations.
@@ -567,6 +574,14 @@ impl MockSpec {
                 "hadron.states: masses and overlaps must be positive, masses strictly increasing"
                     .into(),
             );
+        }
+        if let Some(b) = &self.operators {
+            b.validate(n_states)?;
+            if self.hadron.periodic {
+                return Err(
+                    "operators: the operator basis is for the non-periodic form only".into(),
+                );
+            }
         }
         let spin = self.hadron.kind;
         if self.hadron.periodic && spin == Hadron::Spin1Half {

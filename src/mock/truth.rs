@@ -38,6 +38,9 @@ pub struct Truth {
     pub matrix_elements: Vec<TruthMatrixElement>,
     /// Noise and autocorrelation settings.
     pub noise: NoiseSpec,
+    /// The operator basis, when the ensemble has one.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub operators: Option<super::operators::BasisSpec>,
 }
 
 /// Lattice geometry.

@@ -50,6 +50,12 @@ pub struct DataSummary {
     pub n_twopt_channels: usize,
     /// Three-point channels (each `tsep` counted).
     pub n_threept_channels: usize,
+    /// Time extent of the two-point data (`T`).
+    pub t_extent: usize,
+    /// Configurations dropped because only one of the two tables had them (ascending).
+    pub dropped_not_in_both: Vec<i64>,
+    /// Trailing configurations dropped because they did not fill a whole bin.
+    pub dropped_by_binning: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
 }
@@ -116,6 +122,11 @@ pub struct Q2FitResult {
 pub struct RunResults {
     /// Read and resample summary.
     pub data: Option<DataSummary>,
+    /// Variational (GEVP) stage output, when `spectrum.gevp` is set.
+    pub variational: Option<crate::variational::VariationalResult>,
+    /// The single-operator analysis beside the optimised one
+    /// (`spectrum.gevp.compare_operator`).
+    pub comparison: Option<super::variational::Comparison>,
     /// Spectrum stage output.
     pub spectrum: Option<SpectrumResult>,
     /// Ratio stage output per channel.
@@ -141,7 +152,7 @@ pub struct RunResults {
     pub run_dir: Option<std::path::PathBuf>,
 }
 
-struct Recorder<'a> {
+pub(super) struct Recorder<'a> {
     observer: &'a dyn Observer,
     timings: Vec<(String, Duration)>,
     warnings: Vec<String>,
@@ -158,7 +169,7 @@ impl Recorder<'_> {
         out
     }
 
-    fn warn(&mut self, message: impl Into<String>) {
+    pub(super) fn warn(&mut self, message: impl Into<String>) {
         let m = message.into();
         self.observer.warning(&m);
         self.warnings.push(m);
@@ -191,6 +202,8 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     let final_method = spec.excited_states.final_method;
     let mut results = RunResults {
         data: None,
+        variational: None,
+        comparison: None,
         spectrum: None,
         channels: None,
         form_factors: Vec::new(),
@@ -205,12 +218,22 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     };
     let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
     let Prepared {
-        two,
+        mut two,
         mut three,
         plan: rplan,
     } = prepared;
 
     results.data = Some(summary);
+    let mut single = None;
+    if spec.spectrum.gevp.is_some() && plan.runs(Stage::Spectrum) {
+        let opt = rec.stage("gevp", |rec| {
+            super::variational::optimise(plan, &two, &three, &rplan, rec)
+        })?;
+        two = opt.two;
+        three = opt.three;
+        single = opt.single;
+        results.variational = Some(opt.result);
+    }
     if plan.runs(Stage::Spectrum) {
         let obs = rec.observer;
         let sp = rec.stage("spectrum", |_| {
@@ -257,6 +280,12 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         }
         results.form_factors = rows;
     }
+    if let Some(single) = single {
+        let c = rec.stage("comparison", |rec| {
+            super::variational::compare(plan, &rplan, single, &results, rec)
+        })?;
+        results.comparison = Some(c);
+    }
     if plan.runs(Stage::Q2Fits) && !spec.q2_fits.form_factors.is_empty() {
         let fits = rec.stage("q2_fits", |rec| {
             Ok(q2_fits(plan, &results.form_factors, rec))
@@ -276,7 +305,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
 }
 
 /// Remove the three-point channels whose sink or source momentum the spectrum dropped.
-fn skip_dropped_momenta(
+pub(super) fn skip_dropped_momenta(
     three: &mut ThreePointData,
     dropped: &[(Momentum, String)],
     rec: &mut Recorder,
@@ -307,17 +336,25 @@ struct Prepared {
 
 fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataSummary)> {
     let spec = &plan.spec;
-    let (two, three, notes) = super::read_data(plan)?;
+    let read = super::read_data(plan)?;
+    let (two, three, notes) = (read.two, read.three, read.notes);
     super::check_data_rules(plan, &two, &three)?;
     let n_configs = two.configs.len();
+    if !read.dropped_configs.is_empty() {
+        rec.warn(format!(
+            "data: kept the {n_configs} configurations common to both tables and dropped {}: {}",
+            read.dropped_configs.len(),
+            config_list(&read.dropped_configs)
+        ));
+    }
     let b = spec.resampling.bin_size;
     let (two, report) = bin_twopt(&two, b)?;
     let (three, _) = bin_threept(&three, b)?;
     if !report.dropped_configs.is_empty() {
         rec.warn(format!(
-            "binning by {b} dropped the last {} configuration(s): {:?}",
+            "binning by {b} dropped the last {} configuration(s): {}",
             report.dropped_configs.len(),
-            report.dropped_configs
+            config_list(&report.dropped_configs)
         ));
     }
     let n_bins = report.n_bins;
@@ -333,6 +370,9 @@ fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataS
         n_samples: rplan.n_samples(),
         n_twopt_channels: two.channels.len(),
         n_threept_channels: three.channels.len(),
+        t_extent: two.channels.values().map(|s| s.n_t).max().unwrap_or(0),
+        dropped_not_in_both: read.dropped_configs,
+        dropped_by_binning: report.dropped_configs,
         notes,
     };
     let prepared = Prepared {
@@ -343,9 +383,25 @@ fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataS
     Ok((prepared, summary))
 }
 
+/// Configuration numbers for a message: all of them up to 20, else the first 20 and a count
+/// (the manifest lists them all).
+fn config_list(configs: &[i64]) -> String {
+    const SHOWN: usize = 20;
+    let head: Vec<String> = configs.iter().take(SHOWN).map(|c| c.to_string()).collect();
+    if configs.len() > SHOWN {
+        format!(
+            "{}, … ({} more; all are listed in manifest.json)",
+            head.join(", "),
+            configs.len() - SHOWN
+        )
+    } else {
+        head.join(", ")
+    }
+}
+
 /// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,
 /// the amplitude ratio and the gap of the best multi-state fit.
-fn two_point_states(sp: &SpectrumResult) -> BTreeMap<Momentum, TwoPointStates> {
+pub(super) fn two_point_states(sp: &SpectrumResult) -> BTreeMap<Momentum, TwoPointStates> {
     sp.per_momentum
         .iter()
         .filter_map(|(p, m)| {
@@ -392,7 +448,7 @@ fn largest_plateau(rows: &[FormFactorRow]) -> Option<Estimator> {
         .max()
 }
 
-fn decompose_all(
+pub(super) fn decompose_all(
     plan: &Plan,
     results: &RunResults,
     rec: &mut Recorder,

@@ -251,6 +251,7 @@ impl<'a> TwoPointMeans<'a> {
             let key = TwoPointKey {
                 momentum: p,
                 smear: self.smear.clone(),
+                ops: None,
             };
             let series = self.c2.channels.get(&key).ok_or_else(|| {
                 Error::analysis(

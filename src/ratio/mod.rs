@@ -130,6 +130,7 @@ impl ChannelKey {
             projector: self.projector,
             flavor: self.flavor.clone(),
             diagram: self.diagram,
+            ops: None,
         }
     }
 

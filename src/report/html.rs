@@ -85,7 +85,27 @@ figcaption{font-size:.9em;color:#444;margin-top:.3em}\
 pre{background:#f7f7f7;border:1px solid #ddd;padding:.8em;overflow-x:auto;font-size:.85em}\
 .warnings{background:#fff6e0;border-left:4px solid #d08a00;padding:.5em 1em}\
 .ok{color:#2a6e2a}\
-footer{margin-top:3em;font-size:.8em;color:#777}";
+footer{margin-top:3em;font-size:.8em;color:#777}\
+th{cursor:pointer}th[data-dir=asc]::after{content:' ▲'}th[data-dir=desc]::after{content:' ▼'}";
+
+/// Sorting of every table by a click on a column heading (numbers by their value, so
+/// `0.968(18)(8)` sorts as 0.968; text in natural order; a second click reverses). Inline
+/// and without any URL, like the rest of the page; the page reads the same without it.
+const SCRIPT: &str = "\
+document.querySelectorAll('th').forEach(function(th){\
+th.title='click to sort';\
+th.addEventListener('click',function(){\
+var row=th.parentNode,body=row.closest('table').tBodies[0];\
+var i=Array.prototype.indexOf.call(row.children,th),asc=th.dataset.dir!=='asc';\
+row.querySelectorAll('th').forEach(function(h){delete h.dataset.dir;});\
+th.dataset.dir=asc?'asc':'desc';\
+var key=function(r){var t=r.cells[i]?r.cells[i].textContent.trim():'';\
+var n=parseFloat(t.replace('\\u2212','-'));return isNaN(n)?t:n;};\
+var rows=Array.prototype.slice.call(body.rows);\
+rows.sort(function(a,b){var x=key(a),y=key(b);\
+var c=(typeof x==='number'&&typeof y==='number')?x-y:String(x).localeCompare(String(y),undefined,{numeric:true});\
+return asc?c:-c;});\
+rows.forEach(function(r){body.appendChild(r);});});});";
 
 impl Report {
     /// A report with a title and no sections yet.
@@ -132,7 +152,7 @@ impl Report {
         }
         let _ = write!(
             h,
-            "<footer>Written by {} {}.</footer>\n</body>\n</html>\n",
+            "<footer>Written by {} {}.</footer>\n<script>{SCRIPT}</script>\n</body>\n</html>\n",
             env!("CARGO_PKG_NAME"),
             env!("CARGO_PKG_VERSION")
         );
@@ -269,7 +289,9 @@ mod tests {
                 .with(Block::Warnings(vec!["<w>".into()]))],
         };
         let html = r.render();
-        assert!(!html.contains("<script>"));
+        // the user's text is escaped; the one script is the page's own table sorting
+        assert!(html.contains("&lt;script&gt;"));
+        assert_eq!(html.matches("<script").count(), 1);
         assert!(!html.contains("<x>") && !html.contains("<w>") && !html.contains("<v>"));
         assert!(html.contains("<title>Run &lt;x&gt;</title>"));
         assert!(html.contains("<h2>S &amp; T</h2>"));

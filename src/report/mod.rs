@@ -7,7 +7,7 @@
 //!   that round-trip exactly, rendered as aligned text for the terminal summary; the long
 //!   per-resample table ([`samples_table`]).
 //! - [`plot`]: SVG charts (error bars, bands, lines, reference lines, log y axis, legend).
-//! - [`html`]: the self-contained `report.html`; [`readable`]: tables as the page shows
+//! - [`html`]: the self-contained `report.html`; [`readable`](mod@readable): tables as the page shows
 //!   them (`value(error)` columns, short numbers).
 //! - [`manifest`]: `manifest.json` with version, input digests (SHA-256), settings, seed,
 //!   stage times and warnings.

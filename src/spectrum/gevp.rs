@@ -5,6 +5,13 @@
 //! are computed per resample; on every sample the states are matched to the central
 //! solution by their largest `C(t0)`-overlap and the eigenvector signs are aligned with it,
 //! so the ordering and signs are consistent across resamples.
+//!
+//! Two solutions are kept (docs/methods.md §2): the per-t one (the eigenproblem solved at every
+//! `t`, principal correlators `lambda_n(t, t0)`) and the fixed-vector one (the vectors of
+//! `t_ref` applied at every `t`: `v_n(t_ref)^T C(t) v_n(t_ref)`, the correlator of the
+//! optimised operator `sum_i v_n,i O_i`). Sign convention: the largest-magnitude component of
+//! `C(t0) v_n` is positive, so for operators whose overlaps with a state share one sign the
+//! optimised operator's overlap has that sign too.
 
 use crate::error::{Error, Result};
 use crate::resample::Resampled;
@@ -14,10 +21,10 @@ use rayon::prelude::*;
 /// The solution of one generalized eigenproblem.
 #[derive(Clone, Debug, PartialEq)]
 pub struct GevpSolution {
-    /// Eigenvalues `lambda_n`, largest first (ground state first).
+    /// Eigenvalues `lambda_n`, largest first (ground state first when `t > t0`).
     pub eigenvalues: Vec<f64>,
     /// Eigenvectors `v_n` as columns, normalised to `v^T C(t0) v = 1`, sign fixed so that the
-    /// largest-magnitude component is positive.
+    /// largest-magnitude component of `C(t0) v_n` is positive.
     pub eigenvectors: DMatrix<f64>,
 }
 
@@ -58,11 +65,12 @@ pub fn solve(c_t: &DMatrix<f64>, c_t0: &DMatrix<f64>) -> Result<GevpSolution> {
     let mut order: Vec<usize> = (0..n).collect();
     order.sort_by(|&i, &j| eig.eigenvalues[j].total_cmp(&eig.eigenvalues[i]));
     let vecs = linv.transpose() * &eig.eigenvectors;
+    let metric = sym(c_t0);
     let mut eigenvectors = DMatrix::zeros(n, n);
     for (k, &i) in order.iter().enumerate() {
         let mut v = vecs.column(i).into_owned();
-        let imax = v.iamax();
-        if v[imax] < 0.0 {
+        let w = &metric * &v;
+        if w[w.iamax()] < 0.0 {
             v = -v;
         }
         eigenvectors.set_column(k, &v);
@@ -110,17 +118,80 @@ fn align(sol: GevpSolution, reference: &GevpSolution, c_t0: &DMatrix<f64>) -> Ge
 pub struct PrincipalCorrelators {
     /// The reference time `t0`.
     pub t0: usize,
-    /// `lambda[n][t]`, state `n` (ground first), every time slice `t` (`lambda[n][t0] = 1`).
-    pub lambda: Vec<Vec<Resampled>>,
-    /// `eigenvectors[n][i]`: component `i` of `v_n` at time `t_ref`, per resample.
-    pub eigenvectors: Vec<Vec<Resampled>>,
-    /// The time at which the eigenvectors are reported.
+    /// The time whose eigenvectors define the fixed-vector solution.
     pub t_ref: usize,
+    /// Per-t solution: `lambda[n][t]`, state `n` (ground first), every time slice `t`
+    /// (`lambda[n][t0] = 1`).
+    pub lambda: Vec<Vec<Resampled>>,
+    /// Fixed-vector solution: `fixed[n][t] = v_n(t_ref)^T C(t) v_n(t_ref)`.
+    pub fixed: Vec<Vec<Resampled>>,
+    /// `vectors[t][n][i]`: component `i` of `v_n(t)` per resample; `None` at `t = t0`, where
+    /// every eigenvalue is 1 and the vectors are not defined.
+    pub vectors: Vec<Option<Vec<Vec<Resampled>>>>,
+}
+
+impl PrincipalCorrelators {
+    /// Component `i` of state `n`'s eigenvector at `t_ref`, per resample.
+    pub fn vector_at_ref(&self, n: usize) -> &[Resampled] {
+        // `principal_correlators` refuses t_ref == t0, so this entry exists.
+        self.vectors[self.t_ref].as_ref().map_or(&[], |v| &v[n])
+    }
+}
+
+/// One sample's solutions at every time slice (`None` at `t0`) and its fixed-vector
+/// correlators.
+struct SampleSolution {
+    per_t: Vec<Option<GevpSolution>>,
+    fixed: Vec<Vec<f64>>,
+}
+
+/// Solve one sample (`s = None`: the central value), aligned to `reference` when given.
+fn solve_sample(
+    at: &dyn Fn(usize) -> DMatrix<f64>,
+    n_t: usize,
+    t0: usize,
+    t_ref: usize,
+    reference: Option<&[Option<GevpSolution>]>,
+) -> Result<SampleSolution> {
+    let c0 = at(t0);
+    let mut per_t = Vec::with_capacity(n_t);
+    for t in 0..n_t {
+        if t == t0 {
+            per_t.push(None);
+            continue;
+        }
+        let mut sol = solve(&at(t), &c0)?;
+        if t < t0 {
+            // Before t0 the eigenvalues grow with the energy: smallest is the ground state.
+            sol.eigenvalues.reverse();
+            let n = sol.eigenvectors.ncols();
+            sol.eigenvectors = DMatrix::from_fn(n, n, |i, k| sol.eigenvectors[(i, n - 1 - k)]);
+        }
+        per_t.push(Some(match reference.and_then(|r| r[t].as_ref()) {
+            Some(r) => align(sol, r, &c0),
+            None => sol,
+        }));
+    }
+    let v = per_t[t_ref]
+        .as_ref()
+        .map(|s| s.eigenvectors.clone())
+        .unwrap_or_else(|| DMatrix::identity(c0.nrows(), c0.nrows()));
+    let n = v.ncols();
+    let fixed = (0..n)
+        .map(|k| {
+            let col = v.column(k);
+            (0..n_t)
+                .map(|t| (col.transpose() * at(t) * col)[(0, 0)])
+                .collect()
+        })
+        .collect();
+    Ok(SampleSolution { per_t, fixed })
 }
 
 /// Principal correlators of an `n x n` correlator matrix given row-major as `matrix[i * n + j]`
-/// (each a resampled time series of equal length and resamples). The central value and every
-/// sample are solved independently (in parallel, results independent of thread count).
+/// (element `(sink i, source j)`, each a resampled time series of equal length and
+/// resamples). The central value and every sample are solved independently (in parallel,
+/// results independent of thread count). `t_ref` must differ from `t0`.
 pub fn principal_correlators(
     matrix: &[Vec<Resampled>],
     n: usize,
@@ -143,178 +214,60 @@ pub fn principal_correlators(
         .any(|c| c.len() != n_t || c.iter().any(|v| v.len() != n_s))
         || t0 >= n_t
         || t_ref >= n_t
+        || t_ref == t0
     {
         return Err(Error::analysis(
             "spectrum",
-            format!("GEVP: correlators differ in length or resamples, or t0 {t0} / t_ref {t_ref} is outside 0..{n_t}"),
+            format!("GEVP: correlators differ in length or resamples, or t0 {t0} / t_ref {t_ref} is outside 0..{n_t} or t_ref equals t0"),
         ));
     }
-    let at = |t: usize, s: Option<usize>| {
-        DMatrix::from_fn(n, n, |i, j| {
-            let v = &matrix[i * n + j][t];
-            s.map_or(v.central, |s| v.samples[s])
-        })
+    let at = |s: Option<usize>| {
+        move |t: usize| {
+            DMatrix::from_fn(n, n, |i, j| {
+                let v = &matrix[i * n + j][t];
+                s.map_or(v.central, |s| v.samples[s])
+            })
+        }
     };
-    let solve_all = |s: Option<usize>| -> Result<Vec<GevpSolution>> {
-        let c0 = at(t0, s);
-        (0..n_t).map(|t| solve(&at(t, s), &c0)).collect()
-    };
-    let central = solve_all(None)?;
-    let samples: Vec<Vec<GevpSolution>> = (0..n_s)
+    let central = solve_sample(&at(None), n_t, t0, t_ref, None)?;
+    let samples: Vec<SampleSolution> = (0..n_s)
         .into_par_iter()
         .map(|s| {
-            let c0 = at(t0, Some(s));
-            solve_all(Some(s))
-                .map(|sols| {
-                    sols.into_iter()
-                        .zip(&central)
-                        .map(|(sol, reference)| align(sol, reference, &c0))
-                        .collect()
-                })
+            solve_sample(&at(Some(s)), n_t, t0, t_ref, Some(&central.per_t))
                 .map_err(|e| Error::analysis("spectrum", format!("GEVP on resample {s}: {e}")))
         })
         .collect::<Result<_>>()?;
     let scheme = matrix[0][0].scheme;
+    let gather = |get: &dyn Fn(&SampleSolution) -> f64| {
+        Resampled::new(get(&central), samples.iter().map(get).collect(), scheme)
+    };
+    let per_t = |t: usize, f: &dyn Fn(&GevpSolution) -> f64| {
+        gather(&|s: &SampleSolution| s.per_t[t].as_ref().map_or(1.0, f))
+    };
     let lambda = (0..n)
-        .map(|k| {
-            (0..n_t)
-                .map(|t| {
-                    Resampled::new(
-                        central[t].eigenvalues[k],
-                        samples.iter().map(|s| s[t].eigenvalues[k]).collect(),
-                        scheme,
-                    )
-                })
-                .collect()
-        })
+        .map(|k| (0..n_t).map(|t| per_t(t, &|g| g.eigenvalues[k])).collect())
         .collect();
-    let eigenvectors = (0..n)
-        .map(|k| {
-            (0..n)
-                .map(|i| {
-                    Resampled::new(
-                        central[t_ref].eigenvectors[(i, k)],
-                        samples
-                            .iter()
-                            .map(|s| s[t_ref].eigenvectors[(i, k)])
-                            .collect(),
-                        scheme,
-                    )
-                })
-                .collect()
+    let fixed = (0..n)
+        .map(|k| (0..n_t).map(|t| gather(&|s| s.fixed[k][t])).collect())
+        .collect();
+    let vectors = (0..n_t)
+        .map(|t| {
+            (t != t0).then(|| {
+                (0..n)
+                    .map(|k| {
+                        (0..n)
+                            .map(|i| per_t(t, &|g| g.eigenvectors[(i, k)]))
+                            .collect()
+                    })
+                    .collect()
+            })
         })
         .collect();
     Ok(PrincipalCorrelators {
         t0,
-        lambda,
-        eigenvectors,
         t_ref,
-    })
-}
-
-/// The variational analysis at one momentum: principal correlators, eigenvectors and the
-/// energies fitted to each principal correlator (same windows, states and model average as
-/// the plain fits, with `t_min > t0`).
-#[derive(Clone, Debug, PartialEq, serde::Serialize)]
-pub struct GevpSpectrum {
-    /// Operator labels in matrix order (sorted).
-    pub operators: Vec<String>,
-    /// Reference time.
-    pub t0: usize,
-    /// Time of the reported eigenvectors.
-    pub t_ref: usize,
-    /// `eigenvectors[n][i]`: component `i` of state `n` at `t_ref`.
-    pub eigenvectors: Vec<Vec<Resampled>>,
-    /// Fits to each principal correlator (ground first); `None` where no fit succeeded
-    /// (reason in the stage warnings).
-    pub states: Vec<Option<super::MomentumSpectrum>>,
-}
-
-impl GevpSpectrum {
-    /// Energy of state `n` from its principal correlator, when fitted.
-    pub fn energy(&self, n: usize) -> Option<&Resampled> {
-        self.states.get(n)?.as_ref().map(|s| s.ground_energy())
-    }
-}
-
-/// Split a correlator-matrix label `src-snk`.
-pub fn split_label(label: &str) -> Option<(&str, &str)> {
-    let (a, b) = label.split_once('-')?;
-    (!a.is_empty() && !b.is_empty()).then_some((a, b))
-}
-
-/// Run the variational analysis on the resampled channels `(label, correlator)` of one
-/// momentum (labels `src-snk`; every pair of operators must be present).
-pub fn analyse(
-    momentum: crate::data::Momentum,
-    channels: &[(String, Vec<Resampled>)],
-    gevp: &super::GevpSettings,
-    settings: &super::SpectrumSettings,
-    warnings: &mut Vec<String>,
-) -> Result<GevpSpectrum> {
-    let name = super::label(momentum);
-    let mut ops: Vec<String> = Vec::new();
-    let mut entries = std::collections::BTreeMap::new();
-    for (label, corr) in channels {
-        let (a, b) = split_label(label).ok_or_else(|| {
-            Error::analysis(
-                "spectrum",
-                format!("{name}: smear label `{label}` is not of the form `source-sink` needed for a GEVP"),
-            )
-        })?;
-        for o in [a, b] {
-            if !ops.iter().any(|x| x == o) {
-                ops.push(o.to_string());
-            }
-        }
-        entries.insert((a.to_string(), b.to_string()), corr);
-    }
-    ops.sort();
-    let n = ops.len();
-    let mut matrix = Vec::with_capacity(n * n);
-    for a in &ops {
-        for b in &ops {
-            let c = entries
-                .get(&(a.clone(), b.clone()))
-                .or_else(|| entries.get(&(b.clone(), a.clone())))
-                .ok_or_else(|| {
-                    Error::analysis(
-                        "spectrum",
-                        format!("{name}: correlator matrix lacks `{a}-{b}` (operators {ops:?})"),
-                    )
-                })?;
-            matrix.push((*c).clone());
-        }
-    }
-    let pc = principal_correlators(&matrix, n, gevp.t0, gevp.t_ref)
-        .map_err(|e| Error::analysis("spectrum", format!("{name}: {e}")))?;
-    let fit_settings = super::SpectrumSettings {
-        t_min: super::IntRange {
-            from: settings.t_min.from.max(gevp.t0 + 1),
-            to: settings.t_min.to.max(gevp.t0 + 1),
-        },
-        periodic: false,
-        ..settings.clone()
-    };
-    let states = pc
-        .lambda
-        .iter()
-        .enumerate()
-        .map(
-            |(k, lambda)| match super::fit_correlator(momentum, lambda, &fit_settings, warnings) {
-                Ok(s) => Some(s),
-                Err(e) => {
-                    warnings.push(format!("{name}: GEVP state {k} not fitted: {e}"));
-                    None
-                }
-            },
-        )
-        .collect();
-    Ok(GevpSpectrum {
-        operators: ops,
-        t0: gevp.t0,
-        t_ref: gevp.t_ref,
-        eigenvectors: pc.eigenvectors,
-        states,
+        lambda,
+        fixed,
+        vectors,
     })
 }

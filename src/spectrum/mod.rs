@@ -51,7 +51,9 @@ mod window;
 
 pub use average::{AverageRow, ModelAverage};
 pub use dispersion::DispersionRow;
-pub use settings::{GevpSettings, IntRange, PriorFrames, PriorSettings, SpectrumSettings};
+pub use settings::{
+    GevpSettings, GevpSolutionKind, IntRange, PriorFrames, PriorSettings, SpectrumSettings,
+};
 pub use window::WindowFit;
 
 use crate::data::{Momentum, TwoPointData};
@@ -141,8 +143,6 @@ pub struct SpectrumResult {
     pub mass: Option<Resampled>,
     /// Dispersion check at every non-zero momentum (needs `l_extent` and `p = 0`).
     pub dispersion: Vec<DispersionRow>,
-    /// Variational analysis per momentum (only when `gevp` is set in the settings).
-    pub gevp: BTreeMap<Momentum, gevp::GevpSpectrum>,
     /// Momenta that could not be fitted or failed a sanity gate, with the reason; later
     /// stages skip every channel that needs them.
     pub dropped: Vec<(Momentum, String)>,
@@ -427,50 +427,22 @@ pub fn run_with_progress(
 ) -> Result<SpectrumResult> {
     check_settings(settings)?;
     let mut warnings = Vec::new();
-    let mut gevp_out = BTreeMap::new();
-    if let Some(g) = &settings.gevp {
-        let mut by_momentum: BTreeMap<Momentum, Vec<(String, Vec<Resampled>)>> = BTreeMap::new();
-        for (key, series) in &data.channels {
-            if let Some(label) = key
-                .smear
-                .as_deref()
-                .filter(|l| gevp::split_label(l).is_some())
-            {
-                by_momentum
-                    .entry(key.momentum)
-                    .or_default()
-                    .push((label.to_string(), resample_series(series, plan)?));
-            }
-        }
-        for (p, channels) in by_momentum {
-            gevp_out.insert(p, gevp::analyse(p, &channels, g, settings, &mut warnings)?);
-        }
-    }
     let mut per_momentum = BTreeMap::new();
     let mut dropped = Vec::new();
-    if settings.gevp.is_some() && settings.smear.is_none() {
-        // The ground principal correlator stands in for a single channel.
-        for (p, g) in &gevp_out {
-            if let Some(Some(s)) = g.states.first() {
-                per_momentum.insert(*p, s.clone());
+    let channels = select_channels(data, settings.smear.as_deref())?;
+    for (i, (&p, series)) in channels.iter().enumerate() {
+        progress(i, channels.len());
+        let corr = resample_series(series, plan)?;
+        let local = frames::momentum_settings(p, settings);
+        match fit_correlator(p, &corr, &local, &mut warnings) {
+            Ok(s) => {
+                per_momentum.insert(p, s);
             }
+            Err(e) if p != [0, 0, 0] => dropped.push((p, e.to_string())),
+            Err(e) => return Err(e),
         }
-    } else {
-        let channels = select_channels(data, settings.smear.as_deref())?;
-        for (i, (&p, series)) in channels.iter().enumerate() {
-            progress(i, channels.len());
-            let corr = resample_series(series, plan)?;
-            let local = frames::momentum_settings(p, settings);
-            match fit_correlator(p, &corr, &local, &mut warnings) {
-                Ok(s) => {
-                    per_momentum.insert(p, s);
-                }
-                Err(e) if p != [0, 0, 0] => dropped.push((p, e.to_string())),
-                Err(e) => return Err(e),
-            }
-        }
-        progress(channels.len(), channels.len());
     }
+    progress(channels.len(), channels.len());
     let prior_note = frames::prior_frames_note(settings);
     gates::check(&mut per_momentum, &mut dropped)?;
     gates::summarise(&per_momentum, &dropped, &mut warnings);
@@ -493,7 +465,6 @@ pub fn run_with_progress(
         per_momentum,
         mass,
         dispersion,
-        gevp: gevp_out,
         dropped,
         prior_note,
         warnings,

@@ -74,14 +74,57 @@ pub enum PriorFrames {
     RestOnly,
 }
 
-/// Variational (GEVP) analysis of a correlator matrix.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+/// Which GEVP solution the principal-correlator energy fits use.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum GevpSolutionKind {
+    /// The eigenproblem solved at every `t`: principal correlators `lambda_n(t, t0)`.
+    #[default]
+    PerT,
+    /// The eigenvectors of `t_ref` at every `t`: `v_n(t_ref)^T C(t) v_n(t_ref)`.
+    Fixed,
+}
+
+/// Variational (GEVP) analysis of correlator matrices between the operators of the
+/// `sink_op` / `source_op` columns (docs/methods.md §2). The rest of the analysis (spectrum
+/// fits, ratios, form factors) then runs on the optimised ground-state operator: every
+/// two- and three-point function projected with the ground-state eigenvector of `t_ref`.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct GevpSettings {
-    /// Reference time `t0` of `C(t) v = lambda C(t0) v`.
+    /// Reference time `t0` of `C(t) v = lambda C(t0) v`; `C(t0)` must be positive definite.
     pub t0: usize,
-    /// Time at which eigenvectors are reported.
+    /// Time whose eigenvectors define the optimised operators (fixed-vector solution);
+    /// must be later than `t0`.
     pub t_ref: usize,
+    /// Which solution the energy fits to the principal correlators use (`per_t` or
+    /// `fixed`); both are written to the tables.
+    #[serde(default)]
+    pub energies_from: GevpSolutionKind,
+    /// An operator of the basis whose diagonal correlators are analysed too, for the
+    /// side-by-side comparison with the optimised operator (ratio estimates and form
+    /// factors); none by default.
+    #[serde(default)]
+    pub compare_operator: Option<String>,
+}
+
+impl GevpSettings {
+    /// Check `t0 < t_ref`.
+    pub fn validate(&self) -> Result<(), Invalid> {
+        if self.t_ref <= self.t0 {
+            return Err(Invalid::new(
+                "gevp.t_ref",
+                format!("t_ref = {} must be later than t0 = {}", self.t_ref, self.t0),
+            ));
+        }
+        if self.compare_operator.as_deref() == Some("") {
+            return Err(Invalid::new(
+                "gevp.compare_operator",
+                "an empty operator label: expected an operator of the data's sink_op column",
+            ));
+        }
+        Ok(())
+    }
 }
 
 /// Settings of the spectrum stage.
@@ -133,7 +176,8 @@ pub struct SpectrumSettings {
     pub twist: Option<[f64; 3]>,
     /// Interpolator label (`smear` column) to fit when the data have several.
     pub smear: Option<String>,
-    /// Variational analysis of correlator matrices (channels with `smear` labels `a-b`).
+    /// Variational analysis of correlator matrices (channels with `sink_op` / `source_op`
+    /// labels); the optimised operators then replace the single ones in every later stage.
     pub gevp: Option<GevpSettings>,
     /// Levenberg–Marquardt settings; default tolerances 1e-10 (far below any statistical
     /// error, and about half the iterations of machine-precision tolerances). A block that
@@ -266,6 +310,9 @@ impl SpectrumSettings {
                     n.from, n.to
                 ),
             ));
+        }
+        if let Some(g) = &self.gevp {
+            g.validate()?;
         }
         Ok(())
     }

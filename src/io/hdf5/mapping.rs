@@ -293,6 +293,7 @@ impl<'a> Fields<'a> {
         Ok(TwoPointKey {
             momentum: self.mom(["px", "py", "pz"])?,
             smear: self.get("smear").map(str::to_string),
+            ops: None,
         })
     }
 
@@ -329,6 +330,7 @@ impl<'a> Fields<'a> {
             projector,
             flavor: self.get("flavor").map(str::to_string),
             diagram,
+            ops: None,
         })
     }
 }

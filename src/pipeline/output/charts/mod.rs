@@ -12,6 +12,7 @@
 mod figure;
 mod final_results;
 mod formfactors;
+mod gevp;
 mod ratio;
 mod spectrum;
 mod style;
@@ -41,6 +42,8 @@ pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
             Plot::Summation => out.extend(ratio::summation_charts(&shown)),
             Plot::FormFactors => out.extend(formfactors::charts(plan, results)),
             Plot::FinalVariants => out.extend(final_results::charts(results)),
+            Plot::GevpEnergies => out.extend(gevp::effective_energies(results)),
+            Plot::GevpVectors => out.extend(gevp::vectors(results)),
         }
     }
     out

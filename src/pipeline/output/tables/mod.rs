@@ -10,6 +10,7 @@
 mod cells;
 mod final_results;
 mod formfactors;
+mod gevp;
 mod ratio;
 mod spectrum;
 
@@ -45,11 +46,19 @@ pub enum TableName {
     FormFactorSamples,
     /// Per-resample values of every derived quantity.
     DerivedSamples,
+    /// GEVP principal correlators and effective energies per state.
+    GevpCorrelators,
+    /// GEVP eigenvector components versus t.
+    GevpVectors,
+    /// Energies fitted to the principal correlators.
+    GevpEnergies,
+    /// Optimised against single-operator results.
+    OperatorComparison,
 }
 
 impl TableName {
     /// Every table, in the order they are written.
-    pub const ALL: [TableName; 10] = [
+    pub const ALL: [TableName; 14] = [
         TableName::Final,
         TableName::FinalVariants,
         TableName::FormFactors,
@@ -60,6 +69,10 @@ impl TableName {
         TableName::MatrixElements,
         TableName::FormFactorSamples,
         TableName::DerivedSamples,
+        TableName::GevpCorrelators,
+        TableName::GevpVectors,
+        TableName::GevpEnergies,
+        TableName::OperatorComparison,
     ];
 
     /// The file stem (`formfactors` → `formfactors.csv`, `formfactors.json`).
@@ -75,6 +88,10 @@ impl TableName {
             TableName::MatrixElements => "matrix_elements",
             TableName::FormFactorSamples => "formfactor_samples",
             TableName::DerivedSamples => "derived_samples",
+            TableName::GevpCorrelators => "gevp_correlators",
+            TableName::GevpVectors => "gevp_vectors",
+            TableName::GevpEnergies => "gevp_energies",
+            TableName::OperatorComparison => "operator_comparison",
         }
     }
 
@@ -93,6 +110,10 @@ impl TableName {
             TableName::MatrixElements => ratio::matrix_elements(name, results),
             TableName::FormFactorSamples => Ok(formfactors::formfactor_samples(name, results)),
             TableName::DerivedSamples => Ok(formfactors::derived_samples(name, results)),
+            TableName::GevpCorrelators => gevp::correlators(name, results),
+            TableName::GevpVectors => gevp::vectors(name, results),
+            TableName::GevpEnergies => gevp::energies(name, results),
+            TableName::OperatorComparison => gevp::comparison(name, results),
         }
     }
 }

@@ -1,0 +1,119 @@
+//! The runner's part of the variational analysis: run the GEVP stage on the binned
+//! correlator matrices, hand the projected (optimised-operator) data to the later stages,
+//! and, when `spectrum.gevp.compare_operator` names one operator of the basis, run the
+//! spectrum, ratio and decomposition once more on that operator's own correlators so the
+//! report can show both side by side.
+
+use super::plan::Plan;
+use super::run::{decompose_all, skip_dropped_momenta, two_point_states, Recorder, RunResults};
+use super::spec::Stage;
+use crate::data::{ThreePointData, TwoPointData};
+use crate::ratio::{self, ChannelKey, ChannelResult};
+use crate::resample::ResamplePlan;
+use crate::spectrum::{self, SpectrumResult};
+use crate::variational::{self, basis, project, VariationalResult};
+use crate::Result;
+use std::collections::BTreeMap;
+
+/// The single-operator analysis beside the optimised one.
+#[derive(Clone, Debug)]
+pub struct Comparison {
+    /// The operator of the basis analysed alone.
+    pub operator: String,
+    /// Its spectrum.
+    pub spectrum: SpectrumResult,
+    /// Its ratio-stage results per channel (when the ratio stage ran).
+    pub channels: Option<BTreeMap<ChannelKey, ChannelResult>>,
+    /// Its form factors (when the decomposition ran).
+    pub form_factors: Vec<super::run::FormFactorRow>,
+}
+
+/// What the variational stage hands on.
+pub(super) struct Optimised {
+    /// Projected two-point functions (one channel per momentum).
+    pub two: TwoPointData,
+    /// Projected three-point functions.
+    pub three: ThreePointData,
+    /// The GEVP results.
+    pub result: VariationalResult,
+    /// The comparison operator's own data (label, two-point, three-point).
+    pub single: Option<(String, TwoPointData, ThreePointData)>,
+}
+
+/// Solve the GEVP per momentum and project both tables onto the optimised operators.
+pub(super) fn optimise(
+    plan: &Plan,
+    two: &TwoPointData,
+    three: &ThreePointData,
+    rplan: &ResamplePlan,
+    rec: &mut Recorder,
+) -> Result<Optimised> {
+    let settings = &plan.spec.spectrum;
+    let result = variational::run(two, rplan, settings)?;
+    for w in &result.warnings {
+        rec.warn(format!("gevp: {w}"));
+    }
+    let vectors = result.vectors();
+    let ops = &result.operators;
+    let p_two = project::project_twopt(two, ops, &vectors)?;
+    let p_three = project::project_threept(three, ops, &vectors)?;
+    let single = match settings
+        .gevp
+        .as_ref()
+        .and_then(|g| g.compare_operator.clone())
+    {
+        Some(op) => {
+            let (t, h) = basis::select_operator(two, three, &op)
+                .map_err(|e| plan.error("spectrum.gevp.compare_operator", e))?;
+            Some((op, t, h))
+        }
+        None => None,
+    };
+    Ok(Optimised {
+        two: p_two,
+        three: p_three,
+        result,
+        single,
+    })
+}
+
+/// Run spectrum, ratio and decomposition on one operator's correlators, as far as the plan
+/// goes. `results` holds the optimised run so far (its settings-dependent parts are reused).
+pub(super) fn compare(
+    plan: &Plan,
+    rplan: &ResamplePlan,
+    single: (String, TwoPointData, ThreePointData),
+    results: &RunResults,
+    rec: &mut Recorder,
+) -> Result<Comparison> {
+    let spec = &plan.spec;
+    let (operator, two, mut three) = single;
+    let settings = spectrum::SpectrumSettings {
+        gevp: None,
+        ..spec.spectrum.clone()
+    };
+    let sp = spectrum::run(&two, rplan, &settings)?;
+    for w in &sp.warnings {
+        rec.warn(format!("comparison `{operator}` spectrum: {w}"));
+    }
+    skip_dropped_momenta(&mut three, &sp.dropped, rec);
+    let mut out = Comparison {
+        operator,
+        spectrum: sp,
+        channels: None,
+        form_factors: Vec::new(),
+    };
+    if !plan.runs(Stage::Ratio) {
+        return Ok(out);
+    }
+    let states = two_point_states(&out.spectrum);
+    let channels = ratio::analyse_all(&three, &two, rplan, &states, &spec.excited_states)?;
+    if plan.runs(Stage::Decomposition) {
+        let mut view = results.clone();
+        view.spectrum = Some(out.spectrum.clone());
+        view.channels = Some(channels.clone());
+        out.form_factors = decompose_all(plan, &view, rec)?;
+    }
+    out.channels = Some(channels);
+    Ok(out)
+}
