@@ -97,8 +97,8 @@ fn effective_masses_of_exact_exponentials() {
 }
 
 // Jay & Neil (PRD 103 (2021) 114502) variance: sum w s^2 + sum w mu^2 - (sum w mu)^2, each
-// s^2 from the median absolute deviation of the fit's jackknife samples (sigma = 1.4826 MAD,
-// Hampel 1974; times N - 1 = 3 for the jackknife), worked by hand below.
+// s^2 the jackknife variance ((N-1)/N sum of squares) of the fit's samples within 5 robust
+// sigmas (1.4826 MAD, Hampel 1974) of their median, worked by hand below.
 #[test]
 fn model_average_variance_is_jay_neil() {
     let a = Resampled::new(1.0, vec![0.9, 1.1, 1.0, 1.0], Scheme::Jackknife);
@@ -107,14 +107,18 @@ fn model_average_variance_is_jay_neil() {
     let (avg, stat, model) = average::average(&[&a, &b], &w);
     let mean = 0.25 * 1.0 + 0.75 * 1.5;
     assert_relative_eq!(avg.central, mean, epsilon = 1e-14);
-    // a: median 1.0, |deviations| 0.1, 0, 0, 0.1 -> MAD 0.05; b: median 1.5 -> MAD 0.1.
-    let var_a = 3.0 * (1.4826f64 * 0.05).powi(2);
-    let var_b = 3.0 * (1.4826f64 * 0.1).powi(2);
+    // a: MAD 0.05, nothing clipped: 3/4 (0.01 + 0.01); b: 3/4 (0.04 + 0.04).
+    let var_a = 0.75 * 0.02;
+    let var_b = 0.75 * 0.08;
     let expect_stat = 0.25 * var_a + 0.75 * var_b;
     let expect_model = 0.25 * 1.0 + 0.75 * 2.25 - mean * mean;
     assert_relative_eq!(stat, expect_stat, epsilon = 1e-14);
     assert_relative_eq!(model, expect_model, epsilon = 1e-14);
     assert_relative_eq!(avg.variance(), expect_stat + expect_model, epsilon = 1e-12);
+    // One sample that jumped: median 1.0, MAD 0.02 (sigma 0.0297), so 5.0 is left out and the
+    // other four give the jackknife variance of the kept ones, 3/4 (0.0004 + 0.0004).
+    let c = Resampled::new(1.0, vec![1.0, 1.02, 0.98, 1.0, 5.0], Scheme::Jackknife);
+    assert_relative_eq!(average::robust_variance(&c), 0.75 * 0.0008, epsilon = 1e-14);
 }
 
 // Analytic: at p = 0 both dispersion relations give m; the energies satisfy their defining
@@ -485,11 +489,13 @@ fn jackknife_and_bootstrap_errors_agree_on_the_demo_spectrum() {
             s.energies[0].error(),
             bs.per_momentum[p].energies[0].error(),
         );
-        // Measured (2026-12-02): ratios 1.04, 1.02, 0.80, 1.05; the 15 % goal of issue 10 is
-        // met at three of four momenta; (0,0,-1) differs through the window weights (the frozen
-        // covariance is estimated from each scheme's own resamples). Held at 25 % until then.
+        // Measured (2026-12-02): ratios 1.11, 1.00, 0.85, 0.97 at (-1,-1,-1), (0,-1,-1),
+        // (0,0,-1), (0,0,0) with the clipped per-fit variance (0.80 at (0,0,-1) with 1.4826 MAD:
+        // jackknife samples are not normal, so the MAD misjudged their spread). The 15 % goal of
+        // issue 10 is met at the margin; (0,0,-1) still differs through the window weights (the
+        // frozen covariance is estimated from each scheme's own resamples), so the test holds 20 %.
         assert!(
-            (eb / ej - 1.0).abs() <= 0.25,
+            (eb / ej - 1.0).abs() <= 0.20,
             "{p:?}: jackknife {ej} bootstrap {eb}"
         );
     }

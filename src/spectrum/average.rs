@@ -87,12 +87,16 @@ fn weights_of_included(fits: &[WindowFit], t_min_first: usize, included: &[bool]
     raw.iter().map(|r| r / total).collect()
 }
 
-/// Variance of one fit's value from the median absolute deviation of its samples
-/// (`sigma = 1.4826 MAD` for a normal distribution; Hampel 1974, common practice), scaled to the
-/// scheme: jackknife samples spread `sqrt(N-1)` times less than the quantity itself. A few
-/// resample fits that land on another solution then cannot dominate the error, and the
-/// jackknife and the bootstrap, whose samples reach such solutions far more often, mean the
-/// same thing by it. Falls back to the plain variance when the MAD is zero or undefined.
+/// Variance of one fit's value without the resample fits that jumped to another solution:
+/// samples farther than [`CLIP`] robust standard deviations (`1.4826 MAD`, Hampel 1974, common
+/// practice) from the median are left out, the rest give the scheme's usual variance. A few
+/// such samples would otherwise dominate the error; the bootstrap, whose samples lie farther
+/// from the centre, reaches other solutions far more often than the jackknife, which made the
+/// two schemes disagree by a factor of 3. The clipped variance (rather than `MAD^2` itself)
+/// keeps the jackknife honest: its samples follow the data's own distribution, not a normal
+/// one, so `1.4826 MAD` misjudges their spread (the demo spectrum's jackknife/bootstrap ratio
+/// went from 0.80 to 0.85–1.11 with it). Falls back to the plain variance when the MAD is zero
+/// or undefined.
 pub fn robust_variance(v: &Resampled) -> f64 {
     let n = v.samples.len();
     let plain = v.variance();
@@ -112,17 +116,29 @@ pub fn robust_variance(v: &Resampled) -> f64 {
     let med = median(&mut x);
     let mut dev: Vec<f64> = x.iter().map(|x| (x - med).abs()).collect();
     let sigma = 1.4826 * median(&mut dev);
-    let scale = match v.scheme {
-        crate::resample::Scheme::Jackknife => (n - 1) as f64,
-        crate::resample::Scheme::Bootstrap => 1.0,
-    };
-    let robust = sigma * sigma * scale;
-    if robust.is_finite() && robust > 0.0 {
-        robust
-    } else {
-        plain
+    // Samples beyond CLIP robust sigmas of the median are fits that jumped to another
+    // solution; the variance of the others, with the scheme's own normalisation.
+    let kept: Vec<f64> = v
+        .samples
+        .iter()
+        .copied()
+        .filter(|x| (x - med).abs() <= CLIP * sigma)
+        .collect();
+    let k = kept.len();
+    if !(sigma > 0.0 && sigma.is_finite()) || k < 3 {
+        return plain;
+    }
+    let mean = kept.iter().sum::<f64>() / k as f64;
+    let ss: f64 = kept.iter().map(|x| (x - mean).powi(2)).sum();
+    match v.scheme {
+        crate::resample::Scheme::Jackknife => ss * (k - 1) as f64 / k as f64,
+        crate::resample::Scheme::Bootstrap => ss / (k - 1) as f64,
     }
 }
+
+/// Samples farther than this many robust standard deviations from the median are left out of
+/// a fit's variance.
+pub const CLIP: f64 = 4.0;
 
 /// How far (in the fit's own ground-energy error) the effective mass at a fit's `t_min` may be
 /// shifted by states the fit leaves out before the fit counts as contaminated.
