@@ -263,12 +263,35 @@ fn every_example_pipeline_checks_and_runs() {
             "formfactors.csv",
             "derived.csv",
             "spectrum.csv",
+            "spectrum_fits.csv",
+            "effective_mass.csv",
             "crosscheck.csv",
             "manifest.json",
             "report.html",
         ] {
             assert!(out.join(f).is_file(), "{name}: {f} missing");
         }
+        // Issue 10 case 7: the fits behind the energies are in a table (every window with its
+        // weight and, if left out, the reason), effective masses too, and spectrum.csv writes
+        // integers as integers with a column saying what each row is.
+        let spectrum = std::fs::read_to_string(out.join("spectrum.csv")).unwrap();
+        let mut lines = spectrum.lines();
+        assert!(lines
+            .next()
+            .unwrap()
+            .starts_with("px,py,pz,state,source,energy,error,t_min,t_max,n_states"));
+        let first: Vec<&str> = lines.next().unwrap().split(',').collect();
+        assert_eq!(first[4], "model_average", "{name}");
+        assert!(
+            first[7].parse::<usize>().is_ok(),
+            "{name}: t_min {}",
+            first[7]
+        );
+        let fits = std::fs::read_to_string(out.join("spectrum_fits.csv")).unwrap();
+        assert!(fits.starts_with("px,py,pz,t_min,t_max,n_states,chi2_dof,p_value,weight,e0,e0_error,e1,e1_error,included,excluded_reason"));
+        assert!(fits.lines().skip(1).any(|l| l.contains(",yes,")), "{name}");
+        let eff = std::fs::read_to_string(out.join("effective_mass.csv")).unwrap();
+        assert!(eff.starts_with("px,py,pz,t,value,error") && eff.lines().count() > 10);
         let header = std::fs::read_to_string(out.join("formfactors.csv")).unwrap();
         assert!(header.starts_with("method,form_factor,q2_lat,q2_gev2,value,error_stat,error_z,error_total,n_channels,chi2_dof"));
         let manifest: serde_json::Value =

@@ -41,6 +41,10 @@ pub struct AverageRow {
     pub energy: f64,
     /// Its resampled error.
     pub energy_error: f64,
+    /// First excited energy of this fit (with at least two states).
+    pub excited_energy: Option<f64>,
+    /// Its resampled error.
+    pub excited_energy_error: Option<f64>,
     /// Resamples whose fit did not converge.
     pub failed_samples: usize,
     /// Why the fit was left out of the average (weight zero), `None` when it is included.
@@ -250,6 +254,8 @@ pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
             weight,
             energy: f.energies[0].central,
             energy_error: f.energies[0].error(),
+            excited_energy: f.energies.get(1).map(|e| e.central),
+            excited_energy_error: f.energies.get(1).map(Resampled::error),
             failed_samples: f.failed_samples,
             excluded,
         })

@@ -36,6 +36,10 @@ pub enum TableName {
     Derived,
     /// Energies per momentum and state with their fit quality.
     Spectrum,
+    /// Every fit of the spectrum model average with its weight and exclusion reason.
+    SpectrumFits,
+    /// Effective mass per momentum and time slice.
+    EffectiveMass,
     /// Fitted energies against the dispersion relations.
     Dispersion,
     /// Every comparison of two estimators per channel and part.
@@ -58,12 +62,14 @@ pub enum TableName {
 
 impl TableName {
     /// Every table, in the order they are written.
-    pub const ALL: [TableName; 14] = [
+    pub const ALL: [TableName; 16] = [
         TableName::Final,
         TableName::FinalVariants,
         TableName::FormFactors,
         TableName::Derived,
         TableName::Spectrum,
+        TableName::SpectrumFits,
+        TableName::EffectiveMass,
         TableName::Dispersion,
         TableName::CrossCheck,
         TableName::MatrixElements,
@@ -83,6 +89,8 @@ impl TableName {
             TableName::FormFactors => "formfactors",
             TableName::Derived => "derived",
             TableName::Spectrum => "spectrum",
+            TableName::SpectrumFits => "spectrum_fits",
+            TableName::EffectiveMass => "effective_mass",
             TableName::Dispersion => "dispersion",
             TableName::CrossCheck => "crosscheck",
             TableName::MatrixElements => "matrix_elements",
@@ -105,6 +113,8 @@ impl TableName {
             TableName::FormFactors => formfactors::formfactors(name, &results.form_factors),
             TableName::Derived => formfactors::derived(name, results),
             TableName::Spectrum => spectrum::energies(name, results),
+            TableName::SpectrumFits => spectrum::fits(name, results),
+            TableName::EffectiveMass => spectrum::effective_mass(name, results),
             TableName::Dispersion => spectrum::dispersion(name, results),
             TableName::CrossCheck => ratio::crosscheck(name, results),
             TableName::MatrixElements => ratio::matrix_elements(name, results),

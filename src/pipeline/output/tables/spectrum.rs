@@ -6,13 +6,15 @@ use crate::report::{Cell, Table};
 use crate::spectrum::ChosenFit;
 use crate::Result;
 
-/// `spectrum`: energies per momentum and state with the quality of the fit they come from.
+/// `spectrum`: energies per momentum and state. `source` says where each row comes from:
+/// `model_average` (the ground state; the fit columns then describe the highest-weight fit of
+/// the average) or `best_multi_state_fit` (excited states, from that one fit).
 pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
     let mut t = Table::new(
         name,
         &[
-            "px", "py", "pz", "state", "energy", "error", "t_min", "t_max", "n_states", "chi2_dof",
-            "p_value",
+            "px", "py", "pz", "state", "source", "energy", "error", "t_min", "t_max", "n_states",
+            "chi2_dof", "p_value",
         ],
     );
     let Some(sp) = &results.spectrum else {
@@ -20,12 +22,13 @@ pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
     };
     for (p, m) in &sp.per_momentum {
         for (n, e) in m.energies.iter().enumerate() {
-            // the ground state is the model average; excited states come from the best
-            // multi-state fit
-            let fit = if n == 0 {
-                Some(&m.chosen)
+            let (source, fit) = if n == 0 {
+                ("model_average", Some(&m.chosen))
             } else {
-                m.excited.as_ref()
+                ("best_multi_state_fit", m.excited.as_ref())
+            };
+            let int = |f: fn(&ChosenFit) -> usize| {
+                fit.map_or(Cell::Float(f64::NAN), |x| Cell::from(f(x)))
             };
             let q = |f: fn(&ChosenFit) -> f64| opt(fit.map(f));
             t.push_row(vec![
@@ -33,14 +36,93 @@ pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
                 Cell::from(p[1]),
                 Cell::from(p[2]),
                 Cell::from(n),
+                Cell::Text(source.into()),
                 float(e.central),
                 float(e.error()),
-                q(|f| f.t_min as f64),
-                q(|f| f.t_max as f64),
-                q(|f| f.n_states as f64),
+                int(|f| f.t_min),
+                int(|f| f.t_max),
+                int(|f| f.n_states),
                 q(|f| f.chi2_per_dof),
                 q(|f| f.p_value),
             ])?;
+        }
+    }
+    Ok(t)
+}
+
+/// `spectrum_fits`: every fit window and number of states of the model average at every
+/// momentum, with its weight and, when it was left out, the reason.
+pub(super) fn fits(name: &str, results: &RunResults) -> Result<Table> {
+    let mut t = Table::new(
+        name,
+        &[
+            "px",
+            "py",
+            "pz",
+            "t_min",
+            "t_max",
+            "n_states",
+            "chi2_dof",
+            "p_value",
+            "weight",
+            "e0",
+            "e0_error",
+            "e1",
+            "e1_error",
+            "included",
+            "excluded_reason",
+        ],
+    );
+    let Some(sp) = &results.spectrum else {
+        return Ok(t);
+    };
+    for (p, m) in &sp.per_momentum {
+        for r in &m.average.table {
+            let dof = if r.dof > 0 {
+                r.chi2 / r.dof as f64
+            } else {
+                f64::NAN
+            };
+            t.push_row(vec![
+                Cell::from(p[0]),
+                Cell::from(p[1]),
+                Cell::from(p[2]),
+                Cell::from(r.t_min),
+                Cell::from(r.t_max),
+                Cell::from(r.n_states),
+                float(dof),
+                float(r.p_value),
+                float(r.weight),
+                float(r.energy),
+                float(r.energy_error),
+                opt(r.excited_energy),
+                opt(r.excited_energy_error),
+                Cell::Text(if r.excluded.is_none() { "yes" } else { "no" }.into()),
+                Cell::Text(r.excluded.clone().unwrap_or_default()),
+            ])?;
+        }
+    }
+    Ok(t)
+}
+
+/// `effective_mass`: the effective mass per momentum and time slice where it is defined.
+pub(super) fn effective_mass(name: &str, results: &RunResults) -> Result<Table> {
+    let mut t = Table::new(name, &["px", "py", "pz", "t", "value", "error"]);
+    let Some(sp) = &results.spectrum else {
+        return Ok(t);
+    };
+    for (p, m) in &sp.per_momentum {
+        for (time, v) in m.effective_mass.iter().enumerate() {
+            if let Some(v) = v {
+                t.push_row(vec![
+                    Cell::from(p[0]),
+                    Cell::from(p[1]),
+                    Cell::from(p[2]),
+                    Cell::from(time),
+                    float(v.central),
+                    float(v.error()),
+                ])?;
+            }
         }
     }
     Ok(t)
