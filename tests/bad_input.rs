@@ -232,6 +232,16 @@ fn cases() -> Vec<Case> {
         },
         // --- pipeline YAML ---
         yaml_case(
+            "seed beyond 64 bits",
+            "  bin_size: 1",
+            "  bin_size: 1\n  seed: 18446744073709551616",
+            vec![
+                "p.yaml:",
+                "seed 18446744073709551616 is out of range",
+                "2^64 - 1",
+            ],
+        ),
+        yaml_case(
             "misspelt key",
             "  bin_size: 1",
             "  bin_sise: 1",

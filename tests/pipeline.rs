@@ -36,7 +36,7 @@ fn committed_schema_is_current() {
 #[test]
 fn fixture_pipeline_loads_with_defaults_and_overrides() {
     let plan = pipeline::load(&fixture("pipeline/minimal.yaml"), &[]).unwrap();
-    assert_eq!(plan.spec.ensemble.t, 16);
+    assert_eq!(plan.spec.ensemble.t, Some(16));
     assert_eq!(
         plan.spec.resampling.samples, 200,
         "default bootstrap samples"

@@ -6,6 +6,7 @@ mod bad_input;
 mod campaign;
 mod cli;
 mod closure;
+mod data_checks;
 mod docs;
 mod fit;
 mod hdf5;

@@ -50,6 +50,7 @@
 pub mod hdf5;
 pub mod inspect;
 mod open;
+pub mod seed;
 mod table;
 mod threept;
 mod twopt;

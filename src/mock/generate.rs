@@ -189,7 +189,7 @@ fn check_memory(spec: &MockSpec, n_momenta: usize, n_planned: usize) -> Result<(
     }
     crate::budget::check(
         &format!(
-            "mock spec: {n_cfg} configurations x T = {t} with {n_momenta} momenta and              {n_planned} three-point channels per tsep"
+            "mock spec: {n_cfg} configurations x T = {t} with {n_momenta} momenta and {n_planned} three-point channels per tsep"
         ),
         values.saturating_mul(8),
     )

@@ -18,6 +18,7 @@ use std::collections::BTreeMap;
 #[serde(deny_unknown_fields)]
 pub struct MockSpec {
     /// Seed of the random streams; the same seed gives byte-identical files.
+    #[serde(deserialize_with = "crate::io::seed::seed")]
     pub seed: u64,
     /// Lattice size, spacing and configurations.
     pub ensemble: EnsembleSpec,

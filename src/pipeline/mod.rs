@@ -7,6 +7,7 @@
 //! computation. The JSON Schema of the file ([`schema_json`]) is generated from the same
 //! types, so editors can complete and check pipeline files.
 
+mod data_checks;
 pub mod final_results;
 pub mod output;
 pub mod plan;
@@ -45,7 +46,7 @@ pub fn schema_value() -> serde_json::Value {
 /// ranges, momenta the ratio needs), computing nothing; returns a short summary.
 pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
     let plan = load(path, sets)?;
-    let (two, three, _) = read_data(&plan)?;
+    let ReadData { two, three, .. } = read_data(&plan)?;
     let report = crate::resample::binning::plan_bins(&two.configs, plan.spec.resampling.bin_size)
         .map_err(|e| plan.error("resampling.bin_size", e))?;
     check_data_rules(&plan, &two, &three)?;
@@ -62,7 +63,7 @@ pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
 
 /// Read both tables, form the flavour combination and keep the selected `tsep` and
 /// currents. Errors about a selection name its YAML key.
-pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<String>)> {
+pub fn read_data(plan: &Plan) -> Result<ReadData> {
     let spec = &plan.spec;
     let opts = ReadOptions {
         keep_common_configs: spec.data.keep_common_configs,
@@ -104,7 +105,24 @@ pub fn read_data(plan: &Plan) -> Result<(TwoPointData, ThreePointData, Vec<Strin
             .channels
             .retain(|k, _| currents.iter().any(|c| c == k.current.name()));
     }
-    Ok((two, three, ds.notes))
+    Ok(ReadData {
+        two,
+        three,
+        dropped_configs: ds.dropped_configs,
+        notes: ds.notes,
+    })
+}
+
+/// The two tables of a pipeline as read and selected, with what the reader dropped.
+pub struct ReadData {
+    /// The two-point table.
+    pub two: TwoPointData,
+    /// The three-point table, after the flavour combination and the `tsep`/current selection.
+    pub three: ThreePointData,
+    /// Configurations only one table had (dropped under `data.keep_common_configs`).
+    pub dropped_configs: Vec<i64>,
+    /// What the reader did beyond plain reading.
+    pub notes: Vec<String>,
 }
 
 /// Tables with operator labels: keep them whole for the variational analysis
@@ -119,22 +137,22 @@ fn select_operators(
     match (&spec.data.operator, &spec.spectrum.gevp, labelled) {
         (Some(_), Some(_), _) => Err(plan.error(
             "data.operator",
-            "data.operator selects one operator, spectrum.gevp combines them all: set one of              the two (spectrum.gevp.compare_operator shows one operator beside the optimised one)",
+            "data.operator selects one operator, spectrum.gevp combines them all: set one of the two (spectrum.gevp.compare_operator shows one operator beside the optimised one)",
         )),
         (Some(op), None, true) => crate::variational::basis::select_operator(&two, &three, op)
             .map_err(|e| plan.error("data.operator", e)),
         (Some(_), None, false) => Err(plan.error(
             "data.operator",
-            "the tables carry no operator labels (sink_op, source_op columns); remove              data.operator",
+            "the tables carry no operator labels (sink_op, source_op columns); remove data.operator",
         )),
         (None, Some(_), false) => Err(plan.error(
             "spectrum.gevp",
-            "the variational analysis needs correlator matrices: the two-point table has no              sink_op / source_op labels",
+            "the variational analysis needs correlator matrices: the two-point table has no sink_op / source_op labels",
         )),
         (None, None, true) => Err(plan.error(
             "data.operator",
             format!(
-                "the tables carry operator labels (operators {:?}): set data.operator to                  analyse one operator, or spectrum.gevp for the variational analysis",
+                "the tables carry operator labels (operators {:?}): set data.operator to analyse one operator, or spectrum.gevp for the variational analysis",
                 crate::variational::basis::operators(&two)
             ),
         )),
@@ -153,7 +171,7 @@ pub fn read_source(
     let Some(mapping) = &plan.hdf5 else {
         return read_dataset(&plan.twopt, Some(&plan.threept), opts);
     };
-    let t_extent = Some(plan.spec.ensemble.t as usize);
+    let t_extent = plan.spec.ensemble.t.map(|t| t as usize);
     let (two, three, notes) =
         crate::io::hdf5::read_source(mapping, t_extent, progress).map_err(|e| match e {
             crate::Error::Config { message } => plan.error("data.hdf5", message),
@@ -197,15 +215,25 @@ pub(crate) fn check_data_rules(
 ) -> Result<()> {
     let spec = &plan.spec;
     check_memory(plan, two, three)?;
+    let hdf5 = std::path::Path::new("data.hdf5");
+    let (twopt, threept) = match plan.hdf5 {
+        Some(_) => (hdf5, hdf5),
+        None => (plan.twopt.as_path(), plan.threept.as_path()),
+    };
+    data_checks::check_values(two, twopt, three, threept)?;
     let n_t = two.channels.values().map(|s| s.n_t).min().unwrap_or(0);
     let data_t = two.channels.values().map(|s| s.n_t).max().unwrap_or(0);
-    if data_t > 0 && spec.ensemble.t as usize != data_t {
+    if let Some(t) = spec
+        .ensemble
+        .t
+        .filter(|&t| data_t > 0 && t as usize != data_t)
+    {
         return Err(plan.error(
             "ensemble.T",
             format!(
-                "T = {} does not match the two-point data, whose time slices run over \
-                 t = 0..{} (T = {data_t}); set ensemble.T to the lattice's time extent",
-                spec.ensemble.t,
+                "T = {t} does not match the two-point data, whose time slices run over \
+                 t = 0..{} (T = {data_t}); set ensemble.T to the lattice's time extent, or \
+                 omit it to take T from the data",
                 data_t - 1
             ),
         ));

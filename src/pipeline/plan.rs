@@ -99,7 +99,7 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     let e = &spec.ensemble;
     let fits = &mut spec.spectrum;
     fits.l_extent = Some(e.l as usize);
-    fits.t_extent = Some(e.t as usize);
+    fits.t_extent = e.t.map(|t| t as usize);
     fits.twist = (e.twist != [0.0; 3]).then_some(e.twist);
     let base = path.parent().unwrap_or(Path::new("")).to_path_buf();
     let resolve = |p: &Path| -> PathBuf {
@@ -217,11 +217,11 @@ fn validate(plan: &Plan) -> Result<()> {
             ),
         );
     }
-    if let Some(t_max) = s.spectrum.t_max {
-        if t_max >= s.ensemble.t as usize {
+    if let (Some(t_max), Some(t)) = (s.spectrum.t_max, s.ensemble.t) {
+        if t_max >= t as usize {
             return err(
                 "spectrum.t_max",
-                format!("t_max = {t_max} must be below T = {}", s.ensemble.t),
+                format!("t_max = {t_max} must be below T = {t}"),
             );
         }
     }

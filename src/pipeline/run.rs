@@ -50,6 +50,12 @@ pub struct DataSummary {
     pub n_twopt_channels: usize,
     /// Three-point channels (each `tsep` counted).
     pub n_threept_channels: usize,
+    /// Time extent of the two-point data (`T`).
+    pub t_extent: usize,
+    /// Configurations dropped because only one of the two tables had them (ascending).
+    pub dropped_not_in_both: Vec<i64>,
+    /// Trailing configurations dropped because they did not fill a whole bin.
+    pub dropped_by_binning: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
 }
@@ -333,17 +339,25 @@ struct Prepared {
 
 fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataSummary)> {
     let spec = &plan.spec;
-    let (two, three, notes) = super::read_data(plan)?;
+    let read = super::read_data(plan)?;
+    let (two, three, notes) = (read.two, read.three, read.notes);
     super::check_data_rules(plan, &two, &three)?;
     let n_configs = two.configs.len();
+    if !read.dropped_configs.is_empty() {
+        rec.warn(format!(
+            "data: kept the {n_configs} configurations common to both tables and dropped {}: {}",
+            read.dropped_configs.len(),
+            config_list(&read.dropped_configs)
+        ));
+    }
     let b = spec.resampling.bin_size;
     let (two, report) = bin_twopt(&two, b)?;
     let (three, _) = bin_threept(&three, b)?;
     if !report.dropped_configs.is_empty() {
         rec.warn(format!(
-            "binning by {b} dropped the last {} configuration(s): {:?}",
+            "binning by {b} dropped the last {} configuration(s): {}",
             report.dropped_configs.len(),
-            report.dropped_configs
+            config_list(&report.dropped_configs)
         ));
     }
     let n_bins = report.n_bins;
@@ -359,6 +373,9 @@ fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataS
         n_samples: rplan.n_samples(),
         n_twopt_channels: two.channels.len(),
         n_threept_channels: three.channels.len(),
+        t_extent: two.channels.values().map(|s| s.n_t).max().unwrap_or(0),
+        dropped_not_in_both: read.dropped_configs,
+        dropped_by_binning: report.dropped_configs,
         notes,
     };
     let prepared = Prepared {
@@ -367,6 +384,22 @@ fn read_and_resample(plan: &Plan, rec: &mut Recorder) -> Result<(Prepared, DataS
         plan: rplan,
     };
     Ok((prepared, summary))
+}
+
+/// Configuration numbers for a message: all of them up to 20, else the first 20 and a count
+/// (the manifest lists them all).
+fn config_list(configs: &[i64]) -> String {
+    const SHOWN: usize = 20;
+    let head: Vec<String> = configs.iter().take(SHOWN).map(|c| c.to_string()).collect();
+    if configs.len() > SHOWN {
+        format!(
+            "{}, … ({} more; all are listed in manifest.json)",
+            head.join(", "),
+            configs.len() - SHOWN
+        )
+    } else {
+        head.join(", ")
+    }
 }
 
 /// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,

@@ -109,9 +109,10 @@ pub struct Ensemble {
     /// Spatial extent in lattice sites.
     #[serde(rename = "L")]
     pub l: u32,
-    /// Temporal extent in lattice sites.
-    #[serde(rename = "T")]
-    pub t: u32,
+    /// Temporal extent in lattice sites. When given it must equal the two-point data's time
+    /// extent (a check against a wrong lattice); when omitted it is taken from the data.
+    #[serde(rename = "T", default, skip_serializing_if = "Option::is_none")]
+    pub t: Option<u32>,
     /// Lattice spacing in fm.
     pub spacing_fm: f64,
     /// Pion mass in lattice units (sets the z-expansion threshold).
@@ -172,8 +173,8 @@ pub struct ResamplingSpec {
     /// Number of bootstrap samples (ignored for the jackknife).
     #[serde(default = "default_samples")]
     pub samples: usize,
-    /// Seed of the bootstrap draws.
-    #[serde(default = "default_seed")]
+    /// Seed of the bootstrap draws (0 to 2^64 - 1).
+    #[serde(default = "default_seed", deserialize_with = "crate::io::seed::seed")]
     pub seed: u64,
 }
 
@@ -312,13 +313,10 @@ impl Ensemble {
         if self.l == 0 {
             return Err(Invalid::new("L", "L must be a positive number of sites"));
         }
-        if self.t < 4 {
+        if let Some(t) = self.t.filter(|&t| t < 4) {
             return Err(Invalid::new(
                 "T",
-                format!(
-                    "T = {} is too small; expected at least 4 time slices",
-                    self.t
-                ),
+                format!("T = {t} is too small; expected at least 4 time slices"),
             ));
         }
         for (key, v, what) in [

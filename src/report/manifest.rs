@@ -60,6 +60,9 @@ pub struct Manifest {
     pub stages: Vec<StageTime>,
     /// Warnings raised during the run.
     pub warnings: Vec<String>,
+    /// What was read: configurations, bins, dropped configurations (JSON null when the caller
+    /// has nothing to say).
+    pub data: serde_json::Value,
 }
 
 #[derive(Serialize)]
@@ -73,6 +76,8 @@ struct ManifestJson<'a> {
     inputs: &'a [InputFile],
     stages: &'a [StageTime],
     warnings: &'a [String],
+    #[serde(skip_serializing_if = "serde_json::Value::is_null")]
+    data: &'a serde_json::Value,
     settings: &'a serde_json::Value,
 }
 
@@ -86,6 +91,7 @@ impl Manifest {
             seed,
             stages: Vec::new(),
             warnings: Vec::new(),
+            data: serde_json::Value::Null,
         }
     }
 
@@ -117,6 +123,7 @@ impl Manifest {
             inputs: &self.inputs,
             stages: &self.stages,
             warnings: &self.warnings,
+            data: &self.data,
             settings: &self.settings,
         }
     }
@@ -129,7 +136,7 @@ impl Manifest {
 
     /// Write the manifest, finished now, to `path` as pretty-printed JSON with keys in a
     /// fixed, readable order: tool, version, started, finished, seconds, seed, inputs,
-    /// stages, warnings, settings.
+    /// stages, warnings, data, settings.
     pub fn write(&self, path: &Path) -> Result<()> {
         let file = File::create(path).map_err(|e| Error::io(path, e))?;
         let mut w = BufWriter::new(file);

@@ -57,6 +57,15 @@ pub fn bin_series(s: &Series, b: usize) -> Series {
 /// resampling is possible on one bin).
 pub fn plan_bins(configs: &[i64], b: usize) -> Result<BinReport> {
     let n = configs.len();
+    if n < 2 {
+        return Err(Error::analysis(
+            "resample",
+            format!(
+                "the data hold {n} configuration(s); resampling needs at least 2 (better many \
+                 more)"
+            ),
+        ));
+    }
     if b == 0 {
         return Err(Error::analysis(
             "resample",

@@ -283,7 +283,10 @@ pub fn estimate_with_bins(
     if let Some(i) = values.iter().position(|v| !v.is_finite()) {
         return Err(Error::analysis(
             "covariance",
-            format!("value {i} has a non-finite central value or sample"),
+            format!(
+                "fitted point {} of {d} has a non-finite central value or resample",
+                i + 1
+            ),
         ));
     }
     if let Some(c) = opts.eigen_cut {
@@ -304,7 +307,12 @@ pub fn estimate_with_bins(
     if let Some(i) = (0..d).find(|&i| full[(i, i)] <= 0.0) {
         return Err(Error::analysis(
             "covariance",
-            format!("value {i} does not fluctuate (zero variance); it cannot be weighted in a fit"),
+            format!(
+                "fitted point {} of {d} is the same on every resample (zero variance), so it \
+                 cannot be weighted in a fit; constant data, or values so small that their \
+                 squares underflow?",
+                i + 1
+            ),
         ));
     }
     // Noise terms are averages over n samples; for bootstrap they stand for n_bins bins.

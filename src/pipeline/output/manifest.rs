@@ -1,5 +1,6 @@
 //! `manifest.json` of a run: tool version, input digests, the resolved settings, the seed,
-//! the real start of the run, the time of every stage and every warning.
+//! the real start of the run, the time of every stage, every warning, and what was read
+//! (configurations, bins, and every configuration dropped, with the reason).
 
 use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
@@ -29,5 +30,20 @@ pub fn manifest(plan: &Plan, results: &RunResults) -> Result<Manifest> {
         m.add_stage(stage.as_str(), *t);
     }
     m.warnings = results.warnings.clone();
+    if let Some(d) = &results.data {
+        m.data = serde_json::json!({
+            "configurations": d.n_configs,
+            "bins": d.n_bins,
+            "resamples": d.n_samples,
+            "time_extent": d.t_extent,
+            "twopt_channels": d.n_twopt_channels,
+            "threept_channels": d.n_threept_channels,
+            "dropped_configurations": {
+                "not_in_both_tables": d.dropped_not_in_both,
+                "incomplete_last_bin": d.dropped_by_binning,
+            },
+            "notes": d.notes,
+        });
+    }
     Ok(m)
 }

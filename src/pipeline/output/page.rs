@@ -87,7 +87,9 @@ fn overview(plan: &Plan, results: &RunResults) -> Section {
     let mut text = format!(
         "Ensemble {}³ × {}, a = {} fm, hadron of spin {}. ",
         e.l,
-        e.t,
+        e.t.map(|t| t as usize)
+            .or(results.data.as_ref().map(|d| d.t_extent))
+            .unwrap_or(0),
         e.spacing_fm,
         match e.hadron {
             Hadron::Spin0 => "0",
@@ -172,7 +174,7 @@ fn variational(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> O
     let v = results.variational.as_ref()?;
     let g = &v.settings;
     let mut blocks = vec![Block::Paragraph(format!(
-        "GEVP C(t) v = lambda C(t0) v over the operators {:?} with t0 = {}; the optimised          operators use the ground-state eigenvectors of t_ref = {} (fixed-vector solution)          and replace the single operators in every later stage. gevp_correlators.csv and          gevp_vectors.csv hold the principal correlators, their effective energies and the          eigenvectors at every t.",
+        "GEVP C(t) v = lambda C(t0) v over the operators {:?} with t0 = {}; the optimised operators use the ground-state eigenvectors of t_ref = {} (fixed-vector solution) and replace the single operators in every later stage. gevp_correlators.csv and gevp_vectors.csv hold the principal correlators, their effective energies and the eigenvectors at every t.",
         v.operators, g.t0, g.t_ref
     ))];
     blocks.extend(figure_blocks(
@@ -182,7 +184,7 @@ fn variational(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> O
     blocks.push(Block::Table(tables.get(TableName::GevpEnergies).clone()));
     if let Some(c) = &results.comparison {
         blocks.push(Block::Paragraph(format!(
-            "Optimised operators beside operator `{}` alone (spectrum.gevp.compare_operator):              ground energies, matrix elements (real part) and form factors per estimator.",
+            "Optimised operators beside operator `{}` alone (spectrum.gevp.compare_operator): ground energies, matrix elements (real part) and form factors per estimator.",
             c.operator
         )));
         blocks.push(Block::Table(

@@ -1,10 +1,11 @@
 //! The short text printed on the terminal after a run: first the final values with their
 //! error budget, then the form factors by shell and estimator, the derived quantities (or,
 //! for a run stopped after the ratio, the cross-check), the warning count and where the
-//! report is.
+//! report is, and what data were analysed (configurations, bins, every configuration
+//! dropped).
 
 use super::tables::{quoted, summary_table};
-use crate::pipeline::run::RunResults;
+use crate::pipeline::run::{DataSummary, RunResults};
 use crate::report::{render_text, value_error, Cell, Table};
 use std::path::{Component, Path, PathBuf};
 
@@ -42,6 +43,9 @@ pub fn terminal_summary(results: &RunResults) -> String {
     if results.final_results.is_empty() {
         out.push_str(&format!("final method: {}\n", results.final_method));
     }
+    if let Some(d) = &results.data {
+        out.push_str(&data_line(d));
+    }
     if !results.warnings.is_empty() {
         out.push_str(&format!(
             "{} warning(s); see manifest.json and report.html\n",
@@ -53,6 +57,31 @@ pub fn terminal_summary(results: &RunResults) -> String {
         out.push_str(&format!("report: {}\n", report.display()));
     }
     out
+}
+
+/// What was analysed, and every configuration left out with the reason (the full lists are
+/// in manifest.json).
+fn data_line(d: &DataSummary) -> String {
+    let mut line = format!(
+        "data: {} configurations in {} bins, {} resamples",
+        d.n_configs, d.n_bins, d.n_samples
+    );
+    for (list, why) in [
+        (&d.dropped_not_in_both, "not in both tables"),
+        (&d.dropped_by_binning, "in an incomplete last bin"),
+    ] {
+        if !list.is_empty() {
+            let shown: Vec<String> = list.iter().take(10).map(|c| c.to_string()).collect();
+            let more = if list.len() > 10 { ", …" } else { "" };
+            line.push_str(&format!(
+                "; dropped {} {why} ({}{more})",
+                list.len(),
+                shown.join(", ")
+            ));
+        }
+    }
+    line.push('\n');
+    line
 }
 
 /// The final values: one row per quantity (form factors by shell), `value(stat)(sys)` and
