@@ -321,12 +321,23 @@ fn plateau_bias(r: &formfactory::pipeline::RunResults, truth: &formfactory::mock
 // operator of the basis.
 #[test]
 fn optimised_operators_close_and_beat_the_best_single_operator() {
+    closure_over_seeds(&[1, 2, 3]);
+}
+
+// The same closure over ten seeds (a study: run with `--ignored --nocapture` for the figures).
+#[test]
+#[ignore]
+fn closure_study_ten_seeds() {
+    closure_over_seeds(&(1..=10).collect::<Vec<u64>>());
+}
+
+fn closure_over_seeds(seeds: &[u64]) {
     use formfactory::mock::{generate, MockSpec};
     use formfactory::pipeline::{compute, load, Silent};
     let text =
         std::fs::read_to_string(crate::common::fixture("variational/closure.mock.yaml")).unwrap();
     let (mut inside, mut total) = (0usize, 0usize);
-    for seed in [1u64, 2, 3] {
+    for &seed in seeds {
         let dir = crate::common::tempdir();
         let spec_text = text.replace("seed: 1\n", &format!("seed: {seed}\n"));
         let e = generate(&MockSpec::from_yaml(&spec_text, "closure").unwrap()).unwrap();
@@ -340,7 +351,7 @@ fn optimised_operators_close_and_beat_the_best_single_operator() {
         let run = |select: &str| {
             let path = dir.path().join(format!("{select}.yaml"));
             std::fs::write(&path, closure_pipeline(dir.path(), select)).unwrap();
-            compute(&load(&path, &[]).unwrap(), &Silent).unwrap()
+            compute(&load(&path, &[]).unwrap(), &Silent).unwrap_or_else(|e| panic!("{select}: {e}"))
         };
         let opt = run("gevp");
         let bias_opt = plateau_bias(&opt, &e.truth);

@@ -252,7 +252,10 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
             .spectrum
             .as_ref()
             .ok_or_else(|| Error::analysis("ratio", "the ratio needs the spectrum stage"))?;
-        let states = two_point_states(sp);
+        let mut states = two_point_states(sp);
+        if let Some(v) = &results.variational {
+            super::variational::fill_states(&mut states, sp, v, &mut rec);
+        }
         let obs = rec.observer;
         let channels = rec.stage("ratio", |_| {
             ratio::analyse_all_with_progress(

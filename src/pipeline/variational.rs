@@ -77,6 +77,52 @@ pub(super) fn optimise(
     })
 }
 
+/// Momenta whose projected two-point function shows no resolvable excited state (the aim of
+/// the projection) get the two-state ratio model's parameters from the GEVP: the gap from
+/// the first two principal-correlator energies and the amplitude ratio 0, i.e. the projected
+/// two-point function taken as free of excited states while the three-point side keeps its
+/// fitted excited terms. Each such momentum is named in a warning.
+pub(super) fn fill_states(
+    states: &mut BTreeMap<crate::data::Momentum, ratio::TwoPointStates>,
+    sp: &SpectrumResult,
+    v: &VariationalResult,
+    rec: &mut Recorder,
+) {
+    let mut filled = Vec::new();
+    for (p, m) in &sp.per_momentum {
+        if states.contains_key(p) {
+            continue;
+        }
+        let Some(g) = v.per_momentum.get(p) else {
+            continue;
+        };
+        let (Some(e0), Some(e1)) = (g.energy(0), g.energy(1)) else {
+            continue;
+        };
+        let gap = e1 - e0;
+        if gap.central <= 0.0 {
+            continue;
+        }
+        let energy = m.ground_energy().clone();
+        let zero = energy.map(|_| 0.0);
+        states.insert(
+            *p,
+            ratio::TwoPointStates {
+                energy,
+                amp_ratio: zero,
+                gap,
+            },
+        );
+        filled.push(format!("({},{},{})", p[0], p[1], p[2]));
+    }
+    if !filled.is_empty() {
+        rec.warn(format!(
+            "gevp: the projected two-point function shows no resolvable excited state at {}:              the two-state ratio fit takes the gap from the GEVP (E1 - E0 of the principal              correlators) and the two-point amplitude ratio as 0",
+            filled.join(", ")
+        ));
+    }
+}
+
 /// Run spectrum, ratio and decomposition on one operator's correlators, as far as the plan
 /// goes. `results` holds the optimised run so far (its settings-dependent parts are reused).
 pub(super) fn compare(
