@@ -751,6 +751,21 @@ mod decomposition {
                 assert_abs_diff_eq!(gx.central, gy.central, epsilon = 1e-12);
             }
         }
+        // Issue 10 gate: an unphysical source energy (E_i = m + 2, so (E_f - E_i)² > |q|²)
+        // makes Q² < 0; that shell is skipped with the momenta named, the others carry on.
+        let mut bad = map.clone();
+        bad.insert([-1, 0, 0], mass.map(|m| m + 2.0));
+        let timelike = KinematicSetup {
+            energies: Energies::Fitted(bad),
+            ..st.clone()
+        };
+        let d = decompose(&chans, &timelike, &DecompositionSettings::default()).expect("runs");
+        assert_eq!((d.shells.len(), d.skipped.len()), (2, 1), "{:?}", d.skipped);
+        let why = &d.skipped[0].reason;
+        assert!(
+            why.contains("Q²") && why.contains("< 0") && why.contains("[-1, 0, 0]"),
+            "{why}"
+        );
         map.remove(&[0, 1, -1]);
         let missing = KinematicSetup {
             energies: Energies::Fitted(map),

@@ -489,6 +489,19 @@ fn solve_shell(
         v.iter().sum::<f64>() / v.len() as f64
     })
     .map_err(|e| e.to_string())?;
+    // Elastic form factors are spacelike: Q² = |q|² - (E_f - E_i)² >= 0 for energies that obey
+    // any dispersion relation. A negative Q² means an unphysical energy (e.g. a spurious fitted
+    // ground state); the shell is skipped, naming the momenta.
+    if q2.central < -1e-12 {
+        let c = members[used[0]];
+        return Err(format!(
+            "Q² = {:.4e} < 0 (timelike) at p_f = {:?}, p_i = {:?}: the energies are unphysical \
+             for an elastic form factor; check the spectrum fits of these momenta",
+            q2.central,
+            c.pf,
+            sub(c.pf, c.q)
+        ));
+    }
     let dof = rows.len() - (unknowns.len() - n_null);
     Ok(ShellResult {
         label: String::new(),
