@@ -97,6 +97,7 @@ mod with_library {
         TwoPointKey {
             momentum: p,
             smear: smear.map(str::to_string),
+            ops: None,
         }
     }
 
@@ -109,6 +110,7 @@ mod with_library {
             projector: Projector::Unpol,
             flavor: None,
             diagram: None,
+            ops: None,
         }
     }
 
