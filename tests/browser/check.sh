@@ -46,7 +46,7 @@ browse() { # browse PROFILE ARGS... : one headless Chromium, no network, fresh p
 }
 
 status=0
-for name in nucleon-vector nucleon-axial pion-vector excited-state-study; do
+for name in nucleon-vector nucleon-axial pion-vector excited-state-study meson-gevp; do
     out="$work/runs/$name"
     "$bin" run "$root/pipelines/$name.yaml" --out "$out" --force --quiet >/dev/null
     page="$out/report.html"
