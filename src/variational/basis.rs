@@ -79,29 +79,11 @@ pub fn select_operator(
     let want = Operators::diagonal(op);
     let two_out = TwoPointData {
         configs: two.configs.clone(),
-        channels: two
-            .channels
-            .iter()
-            .filter(|(k, _)| k.ops.as_ref() == Some(&want))
-            .map(|(k, s)| {
-                let mut k = k.clone();
-                k.ops = None;
-                (k, s.clone())
-            })
-            .collect(),
+        channels: diagonal_of(&two.channels, &want, |k| &mut k.ops),
     };
     let three_out = ThreePointData {
         configs: three.configs.clone(),
-        channels: three
-            .channels
-            .iter()
-            .filter(|(k, _)| k.ops.as_ref() == Some(&want))
-            .map(|(k, s)| {
-                let mut k = k.clone();
-                k.ops = None;
-                (k, s.clone())
-            })
-            .collect(),
+        channels: diagonal_of(&three.channels, &want, |k| &mut k.ops),
     };
     if two_out.channels.is_empty() {
         let known = operators(two);
@@ -113,4 +95,19 @@ pub fn select_operator(
         )));
     }
     Ok((two_out, three_out))
+}
+
+/// The channels whose operator pair is `want`, with the operator labels removed from the keys.
+fn diagonal_of<K: Ord + Clone>(
+    channels: &BTreeMap<K, Series>,
+    want: &Operators,
+    ops: impl Fn(&mut K) -> &mut Option<Operators>,
+) -> BTreeMap<K, Series> {
+    channels
+        .iter()
+        .filter_map(|(k, s)| {
+            let mut k = k.clone();
+            (ops(&mut k).take().as_ref() == Some(want)).then(|| (k, s.clone()))
+        })
+        .collect()
 }
