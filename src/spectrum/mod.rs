@@ -59,7 +59,7 @@ pub use window::WindowFit;
 use crate::data::{Momentum, TwoPointData};
 use crate::error::{Error, Result};
 use crate::fit::Weights;
-use crate::resample::{covariance, ResamplePlan, Resampled};
+use crate::resample::{covariance, ResamplePlan, Resampled, Scheme};
 use effective::{effective_mass, EffectiveMassKind};
 use model::Form;
 use serde::Serialize;
@@ -213,9 +213,17 @@ pub fn resample_series(
 
 /// Fit one resampled correlator: every `t_min` in range times every number of states, the
 /// model average, the chosen fits and the effective mass.
+///
+/// `weighting` is the same correlator resampled by a delete-one jackknife over the bins (or
+/// `corr` itself where the bins are not at hand): the fits' frozen covariance, the signal-based
+/// `t_max` and the small-sample rule come from it, so that jackknife and bootstrap runs fit the
+/// same windows with the same weights and differ only in the spread of their resamples.
+/// (A bootstrap estimate of the covariance carries noise of order `1/sqrt(samples)`, and the
+/// number of bootstrap samples says nothing about the number of independent measurements.)
 pub fn fit_correlator(
     momentum: Momentum,
     corr: &[Resampled],
+    weighting: &[Resampled],
     settings: &SpectrumSettings,
     warnings: &mut Vec<String>,
 ) -> Result<MomentumSpectrum> {
@@ -257,7 +265,12 @@ pub fn fit_correlator(
         .find(|(k, _)| settings::parse_momentum_key(k) == Some(momentum))
     {
         Some((_, &t)) => (t.min(n_t.saturating_sub(1)), None),
-        None => frames::signal_t_max(corr, settings.t_min.from, cap, settings.max_relative_error),
+        None => frames::signal_t_max(
+            weighting,
+            settings.t_min.from,
+            cap,
+            settings.max_relative_error,
+        ),
     };
     if t_max < settings.t_min.from + 2 {
         return Err(Error::analysis(
@@ -287,9 +300,10 @@ pub fn fit_correlator(
         label: &name,
     };
     let n_samples = corr.first().map_or(0, Resampled::len);
+    let n_measurements = weighting.first().map_or(0, Resampled::len);
     let widest = (t_max + 1).saturating_sub(settings.t_min.from);
     // Said once for all momenta by the caller (see `run`).
-    let small_sample = n_samples < 5 * widest;
+    let small_sample = n_measurements < 5 * widest;
     // Automatic choice: a full covariance needs several samples per point (Hartlap et al.
     // 2007); below that its noise biases the fits and hides their errors (measured in
     // tests/spectrum_closure.rs), so the weights become diagonal.
@@ -304,7 +318,7 @@ pub fn fit_correlator(
     });
     let mut fits = Vec::new();
     for t_min in settings.t_min.values().filter(|&t| t < t_max) {
-        let window = &corr[t_min..=t_max];
+        let window = &weighting[t_min..=t_max];
         let in_window = |e: Error| {
             Error::analysis(
                 "spectrum",
@@ -433,8 +447,12 @@ pub fn run_with_progress(
     for (i, (&p, series)) in channels.iter().enumerate() {
         progress(i, channels.len());
         let corr = resample_series(series, plan)?;
+        let weighting = match plan.scheme() {
+            Scheme::Jackknife => corr.clone(),
+            Scheme::Bootstrap => resample_series(series, &ResamplePlan::jackknife(plan.n_bins()))?,
+        };
         let local = frames::momentum_settings(p, settings);
-        match fit_correlator(p, &corr, &local, &mut warnings) {
+        match fit_correlator(p, &corr, &weighting, &local, &mut warnings) {
             Ok(s) => {
                 per_momentum.insert(p, s);
             }
