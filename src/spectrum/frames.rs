@@ -1,10 +1,12 @@
 //! Per-momentum settings of the spectrum fits: the ground-energy prior carried from the rest
-//! frame by a dispersion relation (or given per momentum), the note that says which, and the
-//! last time slice before the signal dies. Kept apart from the stage driver so that each
+//! frame by a dispersion relation (or given per momentum), the first-gap prior carried from the
+//! rest frame's fitted spectrum, the notes that say which, and the last time slice before the
+//! signal dies. Kept apart from the stage driver so that each
 //! stays short.
 
 use super::dispersion;
 use super::settings::{self, PriorFrames, SpectrumSettings};
+use super::MomentumSpectrum;
 use crate::data::Momentum;
 use crate::fit::Prior;
 use crate::resample::Resampled;
@@ -93,4 +95,86 @@ pub(super) fn signal_t_max(
         return (t.saturating_sub(1), Some(why));
     }
     (cap, None)
+}
+
+/// The rest frame's first gap as its best multi-state fit found it, to be carried to the moving
+/// frames (`SpectrumSettings::rest_frame_gap_width`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct RestGap {
+    /// Ground energy of that fit.
+    e0: f64,
+    /// First excited energy of that fit.
+    e1: f64,
+    /// Resampled error of `ln(E_1 - E_0)`.
+    log_gap_error: f64,
+}
+
+/// The rest frame's gap, when its best multi-state fit is in the model average (weight above
+/// zero: physical and resolved) and the gap is positive on the central fit.
+pub(super) fn rest_gap(rest: &MomentumSpectrum) -> Option<RestGap> {
+    let fit = rest.excited.as_ref().filter(|f| f.weight > 0.0)?;
+    let (e0, e1) = (fit.energies.first()?, fit.energies.get(1)?);
+    let log_gap = Resampled::combine(&[e0, e1], |x| (x[1] - x[0]).ln());
+    let out = RestGap {
+        e0: e0.central,
+        e1: e1.central,
+        log_gap_error: log_gap.error(),
+    };
+    (out.e1 > out.e0 && out.log_gap_error.is_finite()).then_some(out)
+}
+
+/// The first-gap prior at momentum `p`: mean `ln(E_1(p) - E_0(p))` with both rest-frame
+/// energies carried by the dispersion relation of `prior_frames`, width `width` and the
+/// rest-frame log-gap error in quadrature. `None` at rest, with `rest_only`, without `l_extent`,
+/// or when the carried gap is not positive.
+pub(super) fn carried_gap_prior(
+    p: Momentum,
+    rest: &RestGap,
+    width: f64,
+    settings: &SpectrumSettings,
+) -> Option<Prior> {
+    let l = settings.l_extent.filter(|_| p != [0, 0, 0])?;
+    let pl = crate::kinematics::lattice_momentum(p, l, settings.twist.unwrap_or_default());
+    let energy = |m: f64| match settings.prior_frames {
+        PriorFrames::RestOnly => None,
+        PriorFrames::LatticeDispersion => Some(crate::kinematics::lattice_dispersion_energy(m, pl)),
+        PriorFrames::ContinuumDispersion => Some(crate::kinematics::continuum_energy(m, pl)),
+    };
+    let gap = energy(rest.e1)? - energy(rest.e0)?;
+    (gap > 0.0 && gap.is_finite()).then(|| Prior::new(gap.ln(), width.hypot(rest.log_gap_error)))
+}
+
+/// What the run says about the carried first-gap priors.
+pub(super) fn gap_prior_note(
+    rest: Option<&RestGap>,
+    settings: &SpectrumSettings,
+) -> Option<String> {
+    let width = settings.rest_frame_gap_width?;
+    if settings.n_states.to < 2 {
+        return None;
+    }
+    Some(match rest {
+        Some(r)
+            if settings.l_extent.is_some() && settings.prior_frames != PriorFrames::RestOnly =>
+        {
+            format!(
+                "moving frames take the prior of their first gap from the rest frame (E1 - E0 = \
+                 {:.4} at rest, carried by the {} dispersion relation; log-gap width {width} \
+                 with the rest-frame error {:.2} in quadrature)",
+                rest_gap_value(r),
+                match settings.prior_frames {
+                    PriorFrames::LatticeDispersion => "lattice",
+                    _ => "continuum",
+                },
+                r.log_gap_error
+            )
+        }
+        _ => "moving frames keep the default gap prior: the rest frame has no resolved \
+              multi-state fit (or no dispersion relation is set)"
+            .into(),
+    })
+}
+
+fn rest_gap_value(r: &RestGap) -> f64 {
+    r.e1 - r.e0
 }

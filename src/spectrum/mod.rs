@@ -444,16 +444,28 @@ pub fn run_with_progress(
     let mut per_momentum = BTreeMap::new();
     let mut dropped = Vec::new();
     let channels = select_channels(data, settings.smear.as_deref())?;
-    for (i, (&p, series)) in channels.iter().enumerate() {
+    // The rest frame first: its spectrum gives the moving frames their first-gap prior.
+    let order = channels
+        .iter()
+        .filter(|(p, _)| **p == [0, 0, 0])
+        .chain(channels.iter().filter(|(p, _)| **p != [0, 0, 0]));
+    let mut rest_gap = None;
+    for (i, (&p, series)) in order.enumerate() {
         progress(i, channels.len());
         let corr = resample_series(series, plan)?;
         let weighting = match plan.scheme() {
             Scheme::Jackknife => corr.clone(),
             Scheme::Bootstrap => resample_series(series, &ResamplePlan::jackknife(plan.n_bins()))?,
         };
-        let local = frames::momentum_settings(p, settings);
+        let mut local = frames::momentum_settings(p, settings);
+        if let (Some(rest), Some(width)) = (&rest_gap, settings.rest_frame_gap_width) {
+            local.priors.first_log_gap = frames::carried_gap_prior(p, rest, width, settings);
+        }
         match fit_correlator(p, &corr, &weighting, &local, &mut warnings) {
             Ok(s) => {
+                if p == [0, 0, 0] {
+                    rest_gap = frames::rest_gap(&s);
+                }
                 per_momentum.insert(p, s);
             }
             Err(e) if p != [0, 0, 0] => dropped.push((p, e.to_string())),
@@ -461,7 +473,12 @@ pub fn run_with_progress(
         }
     }
     progress(channels.len(), channels.len());
-    let prior_note = frames::prior_frames_note(settings);
+    let notes = [
+        frames::prior_frames_note(settings),
+        frames::gap_prior_note(rest_gap.as_ref(), settings),
+    ];
+    let notes: Vec<String> = notes.into_iter().flatten().collect();
+    let prior_note = (!notes.is_empty()).then(|| notes.join("; "));
     gates::check(&mut per_momentum, &mut dropped)?;
     gates::summarise(&per_momentum, &dropped, &mut warnings);
     let mass = per_momentum

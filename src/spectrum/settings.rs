@@ -48,6 +48,12 @@ pub struct PriorSettings {
     /// `A_0` is estimated once from the effective mass at `t_min` (frozen across resamples);
     /// default mean 0.5, width 1.
     pub excited_amplitude_ratio: Option<Prior>,
+    /// Prior on the first log-gap that replaces `log_gap` for it at one momentum: set by the
+    /// stage for moving frames from the rest frame's spectrum (see
+    /// `SpectrumSettings::rest_frame_gap_width`), never read from the pipeline file.
+    #[serde(skip)]
+    #[schemars(skip)]
+    pub first_log_gap: Option<Prior>,
 }
 
 impl Default for PriorSettings {
@@ -56,6 +62,7 @@ impl Default for PriorSettings {
             ground_energy: None,
             log_gap: Some(Prior::new(0.5f64.ln(), 1.0)),
             excited_amplitude_ratio: Some(Prior::new(0.5, 1.0)),
+            first_log_gap: None,
         }
     }
 }
@@ -148,6 +155,14 @@ pub struct SpectrumSettings {
     pub prior_frames: PriorFrames,
     /// Ground-energy priors per momentum, keyed `"nx,ny,nz"`; they replace the carried prior.
     pub ground_energy_by_momentum: BTreeMap<String, Prior>,
+    /// Moving frames take the prior of their first log-gap `ln(E_1 - E_0)` from the rest
+    /// frame's fitted spectrum: both rest-frame energies of its best multi-state fit carried by
+    /// the dispersion relation of `prior_frames` (continuum unless `lattice_dispersion`), with
+    /// this width in the log-gap, the rest-frame log-gap error added in quadrature. Default
+    /// 0.3 (a gap known to about 35 %, room for states whose dispersion differs); `null` keeps
+    /// `priors.log_gap` at every momentum, as does `prior_frames: rest_only`. Used only where
+    /// the rest frame has a resolved multi-state fit; the run notes the carried gaps.
+    pub rest_frame_gap_width: Option<f64>,
     /// Range of the number of states (1 to 3).
     pub n_states: IntRange,
     /// Priors of the fits.
@@ -242,6 +257,7 @@ impl Default for SpectrumSettings {
             t_max_by_momentum: BTreeMap::new(),
             prior_frames: PriorFrames::default(),
             ground_energy_by_momentum: BTreeMap::new(),
+            rest_frame_gap_width: Some(0.3),
             n_states: IntRange { from: 1, to: 2 },
             priors: PriorSettings::default(),
             covariance: None,
@@ -293,6 +309,14 @@ impl SpectrumSettings {
                     self.max_relative_error
                 ),
             ));
+        }
+        if let Some(w) = self.rest_frame_gap_width {
+            if !(w.is_finite() && w > 0.0) {
+                return Err(Invalid::new(
+                    "rest_frame_gap_width",
+                    format!("{w} is not valid: expected a positive width (or null for none)"),
+                ));
+            }
         }
         let keys = self.t_max_by_momentum.keys();
         let keys = keys.chain(self.ground_energy_by_momentum.keys());

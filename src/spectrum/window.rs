@@ -30,10 +30,15 @@ pub struct WindowFit {
     pub amplitudes: Vec<Resampled>,
     /// Resamples whose fit did not converge (their parameters are kept but suspect).
     pub failed_samples: usize,
+    /// Whether the first gap had a prior carried from the rest frame; the amplitudes then only
+    /// need to differ from zero by one error to count as resolved (see [`Self::exclusion`]).
+    pub gap_from_rest: bool,
 }
 
 /// Significance (value over its error) below which an excited state counts as unresolved.
 const MIN_SIGNIFICANCE: f64 = 2.0;
+/// [`MIN_SIGNIFICANCE`] for fits whose first gap has a prior carried from the rest frame.
+const MIN_SIGNIFICANCE_WITH_GAP_PRIOR: f64 = 1.0;
 /// Error of a log-gap above which the gap counts as undetermined (a factor of about 2).
 const MAX_LOG_GAP_ERROR: f64 = 0.7;
 
@@ -91,9 +96,19 @@ impl WindowFit {
         if ns == 1 {
             return None;
         }
+        // With the first gap pinned by the rest frame, the ground and excited amplitudes of a
+        // near-degenerate pair are strongly anti-correlated (their sum is well determined, the
+        // split is not), and a spurious state far from the data's cannot appear; one error then
+        // suffices. Without it, two are required (issue-10 case 1: a free "ground state" far
+        // below the true one with a huge error).
+        let min_significance = if self.gap_from_rest {
+            MIN_SIGNIFICANCE_WITH_GAP_PRIOR
+        } else {
+            MIN_SIGNIFICANCE
+        };
         for n in 0..ns {
             let k = ns + n;
-            if p[k] < MIN_SIGNIFICANCE * err(k) {
+            if p[k] < min_significance * err(k) {
                 let what = if n == 0 { "ground" } else { "excited" };
                 return Some(format!(
                     "unresolved: {what} amplitude A{n} = {:.3e} +- {:.1e} is consistent with zero",
@@ -176,17 +191,21 @@ pub(crate) fn fit_window(
         .filter(|e| *e > 0.0)
         .unwrap_or(0.5);
     let a0 = spec.corr[t_min].central / spec.form.term(e0, t_min as f64).0;
-    let gap0 = spec.priors.log_gap.map_or(0.5f64.ln(), |p| p.mean);
+    let gap_prior = |n: usize| match (n, spec.priors.first_log_gap) {
+        (1, Some(first)) => Some(first),
+        _ => spec.priors.log_gap,
+    };
+    let gap0 = |n: usize| gap_prior(n).map_or(0.5f64.ln(), |p| p.mean);
     let ratio0 = spec.priors.excited_amplitude_ratio.map_or(0.5, |p| p.mean);
     let mut start = vec![e0];
-    start.extend(std::iter::repeat_n(gap0, n_states - 1));
+    start.extend((1..n_states).map(gap0));
     start.push(a0);
     start.extend(std::iter::repeat_n(ratio0 * a0, n_states - 1));
     let scale = a0.abs().max(f64::MIN_POSITIVE);
     let mut priors: Vec<Option<Prior>> = vec![None; np];
     priors[0] = spec.priors.ground_energy;
     for n in 1..n_states {
-        priors[TwoPointModel::log_gap_index(n)] = spec.priors.log_gap;
+        priors[TwoPointModel::log_gap_index(n)] = gap_prior(n);
         priors[model.amplitude_index(n)] = spec
             .priors
             .excited_amplitude_ratio
@@ -236,5 +255,6 @@ pub(crate) fn fit_window(
         energies,
         amplitudes,
         failed_samples,
+        gap_from_rest: n_states > 1 && spec.priors.first_log_gap.is_some(),
     })
 }
