@@ -141,7 +141,7 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
 /// functions between every sink and source operator.
 fn matrix_data(
     spec: &MockSpec,
-    basis: &super::operators::BasisSpec,
+    basis: &super::spec::BasisSpec,
     spectrum: &BTreeMap<Momentum, MomentumLevels>,
     planned: &[Planned],
     configs: Vec<i64>,

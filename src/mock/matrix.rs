@@ -4,7 +4,7 @@
 
 use super::generate::{ground_only, growth, round, unit_noise_for, Planned};
 use super::model::MomentumLevels;
-use super::operators::BasisSpec;
+use super::spec::BasisSpec;
 use super::spec::MockSpec;
 use crate::data::{sub, Momentum, Operators, Series, ThreePointKey, TwoPointKey};
 use std::collections::BTreeMap;
