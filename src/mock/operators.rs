@@ -1,8 +1,7 @@
 //! The correlators of an operator basis for the mock generator: several interpolating
 //! operators, each coupling to the states with its own overlaps, so the two-point functions
-//! form an `N x N` matrix
-//! and the three-point functions connect any sink operator with any source operator (the
-//! data of the variational method, docs/methods.md §2).
+//! form an `N x N` matrix and the three-point functions connect any sink operator with any
+//! source operator (the data of the variational method, docs/methods.md §2).
 //!
 //! With `Z_{a,n}(p) = Z_{a,n}(0) e^{-|p|^2 w^2 / 4}` (the hadron's smearing width `w`):
 //! - `C2_ab(t, p) = sum_n Z_{a,n}(p) Z_{b,n}(p) e^{-E_n(p) t}`,
