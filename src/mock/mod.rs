@@ -20,6 +20,7 @@ mod matrix;
 mod model;
 mod noise;
 mod operators;
+mod series;
 mod spec;
 mod truth;
 
