@@ -9,7 +9,8 @@
 //! Gamma method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143),
 //! through [`crate::resample::autocorr::gamma_method`].
 
-use super::table::{display_name, open, Summary};
+use super::accumulator::Summary;
+use super::table::{display_name, open};
 use super::{threept, twopt};
 use crate::data::{norm2, sub, Momentum, ThreePointData, TwoPointData};
 use crate::error::{Error, Result};
