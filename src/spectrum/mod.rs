@@ -221,6 +221,66 @@ pub fn fit_correlator(
 ) -> Result<MomentumSpectrum> {
     check_settings(settings)?;
     let name = label(momentum);
+    check_correlator(&name, corr)?;
+    let n_t = corr.len();
+    let t_extent = settings.t_extent.unwrap_or(n_t) as f64;
+    let form = if settings.periodic {
+        Form::Periodic { t_extent }
+    } else {
+        Form::Exponential
+    };
+    let (t_max, t_max_note) = fit_t_max(&name, momentum, corr, settings)?;
+    let spec = WindowSpec {
+        corr,
+        form,
+        priors: &settings.priors,
+        fit: &settings.fit,
+        label: &name,
+    };
+    let n_samples = corr.first().map_or(0, Resampled::len);
+    let widest = (t_max + 1).saturating_sub(settings.t_min.from);
+    // Said once for all momenta by the caller (see `run`).
+    let small_sample = n_samples < 5 * widest;
+    // Automatic choice: a full covariance needs several samples per point (Hartlap et al.
+    // 2007); below that its noise biases the fits and hides their errors (measured in
+    // tests/spectrum_closure.rs), so the weights become diagonal.
+    let uncorrelated = settings.covariance.is_none() && small_sample;
+    let cov_options = settings.covariance.unwrap_or(if uncorrelated {
+        covariance::CovarianceOptions {
+            kind: covariance::CovarianceKind::Diagonal,
+            eigen_cut: None,
+        }
+    } else {
+        covariance::CovarianceOptions::default()
+    });
+    let fits = window_fits(&spec, settings, t_max, &cov_options, small_sample, warnings)?;
+    let average = average::model_average(&fits, settings.t_min.from);
+    let (chosen, excited) = choose_fits(&name, &fits, &average)?;
+    let mut energies = chosen.energies.clone();
+    let mut amplitudes = chosen.amplitudes.clone();
+    energies[0] = average.energy.clone();
+    amplitudes[0] = average.amplitude.clone();
+    let kind = match form {
+        Form::Exponential => EffectiveMassKind::Log,
+        Form::Periodic { t_extent } => EffectiveMassKind::Cosh { t_extent },
+    };
+    Ok(MomentumSpectrum {
+        momentum,
+        energies,
+        amplitudes,
+        chosen,
+        excited,
+        average,
+        effective_mass: effective_mass(corr, kind),
+        t_max,
+        t_max_note,
+        small_sample,
+        uncorrelated,
+    })
+}
+
+/// At least three time slices, every value finite.
+fn check_correlator(name: &str, corr: &[Resampled]) -> Result<()> {
     let n_t = corr.len();
     if n_t < 3 {
         return Err(Error::analysis(
@@ -236,12 +296,19 @@ pub fn fit_correlator(
             ),
         ));
     }
-    let t_extent = settings.t_extent.unwrap_or(n_t) as f64;
-    let form = if settings.periodic {
-        Form::Periodic { t_extent }
-    } else {
-        Form::Exponential
-    };
+    Ok(())
+}
+
+/// The end of every fit window: set per momentum, or where the signal is lost (with a note
+/// saying why), capped by `t_max`; refused when no window is left or the correlator is not
+/// positive inside it.
+fn fit_t_max(
+    name: &str,
+    momentum: Momentum,
+    corr: &[Resampled],
+    settings: &SpectrumSettings,
+) -> Result<(usize, Option<String>)> {
+    let n_t = corr.len();
     let default_t_max = if settings.periodic {
         n_t / 2
     } else {
@@ -279,29 +346,21 @@ pub fn fit_correlator(
             ),
         ));
     }
-    let spec = WindowSpec {
-        corr,
-        form,
-        priors: &settings.priors,
-        fit: &settings.fit,
-        label: &name,
-    };
+    Ok((t_max, t_max_note))
+}
+
+/// Every window `[t_min, t_max]` with every number of states, each window's covariance
+/// estimated once; a fit that fails is dropped with a warning. Refused when none succeeds.
+fn window_fits(
+    spec: &WindowSpec,
+    settings: &SpectrumSettings,
+    t_max: usize,
+    cov_options: &covariance::CovarianceOptions,
+    small_sample: bool,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<WindowFit>> {
+    let (name, corr) = (spec.label, spec.corr);
     let n_samples = corr.first().map_or(0, Resampled::len);
-    let widest = (t_max + 1).saturating_sub(settings.t_min.from);
-    // Said once for all momenta by the caller (see `run`).
-    let small_sample = n_samples < 5 * widest;
-    // Automatic choice: a full covariance needs several samples per point (Hartlap et al.
-    // 2007); below that its noise biases the fits and hides their errors (measured in
-    // tests/spectrum_closure.rs), so the weights become diagonal.
-    let uncorrelated = settings.covariance.is_none() && small_sample;
-    let cov_options = settings.covariance.unwrap_or(if uncorrelated {
-        covariance::CovarianceOptions {
-            kind: covariance::CovarianceKind::Diagonal,
-            eigen_cut: None,
-        }
-    } else {
-        covariance::CovarianceOptions::default()
-    });
     let mut fits = Vec::new();
     for t_min in settings.t_min.values().filter(|&t| t < t_max) {
         let window = &corr[t_min..=t_max];
@@ -311,7 +370,7 @@ pub fn fit_correlator(
                 format!("{name}, window [{t_min}, {t_max}]: {e}"),
             )
         };
-        let cov = covariance::estimate(window, &cov_options).map_err(in_window)?;
+        let cov = covariance::estimate(window, cov_options).map_err(in_window)?;
         // The small-sample (Hartlap) warning was given once for the momentum above; repeating
         // it for every window only buries the other warnings.
         for w in cov
@@ -323,7 +382,7 @@ pub fn fit_correlator(
         }
         let w = Weights::from_covariance(&cov.matrix).map_err(in_window)?;
         for n_states in settings.n_states.values() {
-            match fit_window(&spec, t_min, t_max, n_states, &w) {
+            match fit_window(spec, t_min, t_max, n_states, &w) {
                 Ok(f) => {
                     if f.failed_samples > 0 {
                         warnings.push(format!(
@@ -350,7 +409,15 @@ pub fn fit_correlator(
             ),
         ));
     }
-    let average = average::model_average(&fits, settings.t_min.from);
+    Ok(fits)
+}
+
+/// The highest-weight fit, and the highest-weight fit with at least two states.
+fn choose_fits(
+    name: &str,
+    fits: &[WindowFit],
+    average: &ModelAverage,
+) -> Result<(ChosenFit, Option<ChosenFit>)> {
     let weights: Vec<f64> = average.table.iter().map(|r| r.weight).collect();
     // Included fits rank by weight. The excited-state parameters the ratio stage needs fall
     // back to the lowest-chi2 multi-state fit that is physical though unresolved (its
@@ -383,28 +450,7 @@ pub fn fit_correlator(
             })
     };
     let chosen = best(1).ok_or_else(|| Error::analysis("spectrum", format!("{name}: no fit")))?;
-    let excited = best(2);
-    let mut energies = chosen.energies.clone();
-    let mut amplitudes = chosen.amplitudes.clone();
-    energies[0] = average.energy.clone();
-    amplitudes[0] = average.amplitude.clone();
-    let kind = match form {
-        Form::Exponential => EffectiveMassKind::Log,
-        Form::Periodic { t_extent } => EffectiveMassKind::Cosh { t_extent },
-    };
-    Ok(MomentumSpectrum {
-        momentum,
-        energies,
-        amplitudes,
-        chosen,
-        excited,
-        average,
-        effective_mass: effective_mass(corr, kind),
-        t_max,
-        t_max_note,
-        small_sample,
-        uncorrelated,
-    })
+    Ok((chosen, best(2)))
 }
 
 /// The spectrum stage: fit every momentum of `data` (already binned) on the resamples of
