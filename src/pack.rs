@@ -110,13 +110,17 @@ pub fn convert(input: &Path, out: &Path, force: bool) -> Result<()> {
 }
 
 /// `formfactory inspect`: a pipeline file is inspected through its `data` section (so HDF5
-/// mappings can be checked), anything else by [`io::inspect::inspect`].
+/// mappings can be checked), anything else as read by [`io::inspect::read`]; the
+/// autocorrelation check comes from `resample`, the text from `io::inspect`.
 pub fn inspect(path: &Path) -> Result<String> {
     let is_yaml = path.extension().is_some_and(|e| e == "yaml" || e == "yml");
-    if !is_yaml {
-        return io::inspect::inspect(path);
-    }
-    let ds = read_input(path, &|_, _| {})?;
-    let three = ds.threept.unwrap_or_default();
-    Ok(io::inspect::inspect_data(path, ds.twopt, three))
+    let data = if is_yaml {
+        let ds = read_input(path, &|_, _| {})?;
+        let three = ds.threept.unwrap_or_default();
+        io::inspect::from_data(path, ds.twopt, three)
+    } else {
+        io::inspect::read(path)?
+    };
+    let autocorr = crate::resample::autocorr_check::check(data.twopt(), data.threept());
+    Ok(io::inspect::render(&data, &autocorr))
 }

@@ -5,7 +5,7 @@
 //! fails the case instead of the machine. Also: the output-safety sentinels (a user's
 //! directory given as `--out` with `--force` survives) and arbitrary bytes fed to the readers.
 
-use crate::common::{fixture, repo_root, tempdir};
+use crate::common::{fixture, listing, repo_root, tempdir};
 use std::path::Path;
 use std::process::{Command, Output};
 
@@ -558,15 +558,6 @@ fn project(root: &Path) {
         )
         .unwrap();
     }
-}
-
-fn listing(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    v.sort();
-    v
 }
 
 #[test]

@@ -17,49 +17,10 @@ use nalgebra::Complex;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
-/// Box–Muller standard normal from a seeded stream.
-fn normal(rng: &mut impl Rng) -> f64 {
-    let u1: f64 = rng.gen_range(f64::EPSILON..1.0);
-    let u2: f64 = rng.gen();
-    (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-}
+use crate::common::q2::{noisy_points, normal, settings};
 
 fn dipole(q2: f64, g0: f64, m2: f64) -> f64 {
     g0 / (1.0 + q2 / m2).powi(2)
-}
-
-fn settings(model: Q2Model) -> Q2FitSettings {
-    Q2FitSettings {
-        model,
-        weights: Weighting::Diagonal,
-        q2_max: None,
-        solver: Default::default(),
-    }
-}
-
-/// Points of `f` at `q2s` with per-configuration Gaussian noise (relative size `rel`),
-/// jackknife-resampled over `n_cfg` configurations.
-fn noisy_points(
-    q2s: &[f64],
-    f: impl Fn(f64) -> f64,
-    rel: f64,
-    n_cfg: usize,
-    seed: u64,
-) -> Vec<Q2Point> {
-    let plan = ResamplePlan::jackknife(n_cfg);
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    q2s.iter()
-        .map(|&q2| {
-            let v = f(q2);
-            let x: Vec<f64> = (0..n_cfg)
-                .map(|_| v * (1.0 + rel * normal(&mut rng)))
-                .collect();
-            Q2Point {
-                q2: Resampled::constant(q2, n_cfg, Scheme::Jackknife),
-                value: plan.mean(&x),
-            }
-        })
-        .collect()
 }
 
 // Standard proton dipole, M^2 = 0.71 GeV^2, gives r = sqrt(12/M^2) hbar c = 0.811 fm

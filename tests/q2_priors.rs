@@ -2,56 +2,27 @@
 //! kmax study and the pole factor (issue: honest z-expansion errors).
 
 use approx::assert_relative_eq;
-use formfactory::fit::{Prior, Weighting};
+use formfactory::fit::Prior;
 use formfactory::kinematics::HBARC_GEV_FM;
 use formfactory::q2::{fit, z, Q2FitSettings, Q2Model, Q2Point, Q2Units, TCut, ZPrior, T0};
-use formfactory::resample::{ResamplePlan, Resampled, Scheme};
+use formfactory::resample::{Resampled, Scheme};
 use nalgebra::{DMatrix, DVector};
-use rand::{Rng, SeedableRng};
-use rand_chacha::ChaCha8Rng;
 
-fn normal(rng: &mut impl Rng) -> f64 {
-    let u1: f64 = rng.gen_range(f64::EPSILON..1.0);
-    let u2: f64 = rng.gen();
-    (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-}
+use crate::common::q2::{noisy_points, settings};
 
 fn dipole(q2: f64, m2: f64) -> f64 {
     1.0 / (1.0 + q2 / m2).powi(2)
 }
 
 fn zexp(t_cut: f64, t0: T0, kmax: usize, prior: Option<ZPrior>) -> Q2FitSettings {
-    Q2FitSettings {
-        model: Q2Model::ZExpansion {
-            t_cut: TCut::Value(t_cut),
-            t0,
-            kmax,
-            prior,
-            sum_rules: 0,
-            pole_mass: None,
-        },
-        weights: Weighting::Diagonal,
-        q2_max: None,
-        solver: Default::default(),
-    }
-}
-
-/// Jackknife points of `f` with independent Gaussian noise of relative size `rel`.
-fn noisy(q2s: &[f64], f: impl Fn(f64) -> f64, rel: f64, n_cfg: usize, seed: u64) -> Vec<Q2Point> {
-    let plan = ResamplePlan::jackknife(n_cfg);
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    q2s.iter()
-        .map(|&q2| {
-            let v = f(q2);
-            let x: Vec<f64> = (0..n_cfg)
-                .map(|_| v * (1.0 + rel * normal(&mut rng)))
-                .collect();
-            Q2Point {
-                q2: Resampled::constant(q2, n_cfg, Scheme::Jackknife),
-                value: plan.mean(&x),
-            }
-        })
-        .collect()
+    settings(Q2Model::ZExpansion {
+        t_cut: TCut::Value(t_cut),
+        t0,
+        kmax,
+        prior,
+        sum_rules: 0,
+        pole_mass: None,
+    })
 }
 
 // A z-expansion fit to points from the standard dipole M^2 = 0.71 GeV^2 recovers
@@ -61,7 +32,7 @@ fn noisy(q2s: &[f64], f: impl Fn(f64) -> f64, rel: f64, n_cfg: usize, seed: u64)
 #[test]
 fn z_expansion_recovers_standard_dipole_radius() {
     let q2s: Vec<f64> = (1..=12).map(|i| 0.05 * i as f64).collect();
-    let pts = noisy(&q2s, |q2| dipole(q2, 0.71), 1e-4, 50, 11);
+    let pts = noisy_points(&q2s, |q2| dipole(q2, 0.71), 1e-4, 50, 11);
     let s = zexp(
         4.0 * 0.1396f64.powi(2),
         T0::Optimal,
@@ -181,7 +152,7 @@ fn heavy_pion_z_expansion_covers_the_truth() {
     let mut pulls = Vec::new();
     let mut ratio = Vec::new();
     for seed in 0..12 {
-        let pts = noisy(&q2s, |q2| dipole(q2, m2), 0.15, 60, 100 + seed);
+        let pts = noisy_points(&q2s, |q2| dipole(q2, m2), 0.15, 60, 100 + seed);
         let f = fit(
             &pts,
             &zexp(t_cut, T0::Zero, 3, Some(ZPrior::default())),
@@ -211,7 +182,7 @@ fn heavy_pion_z_expansion_covers_the_truth() {
 #[test]
 fn prior_dominated_coefficient_is_warned_and_carries_the_prior_width() {
     let q2s = [0.05, 0.1, 0.15, 0.2];
-    let pts = noisy(&q2s, |q2| dipole(q2, 0.71), 0.02, 40, 3);
+    let pts = noisy_points(&q2s, |q2| dipole(q2, 0.71), 0.02, 40, 3);
     let s = zexp(
         0.078,
         T0::Zero,
@@ -240,7 +211,7 @@ fn pole_factor_is_exact_on_pole_times_line() {
     let b1 = -0.7;
     let g = |q2: f64| (1.0 + b1 * z(q2, t_cut, 0.0)) / (1.0 + q2 / (m * m));
     let q2s: Vec<f64> = (1..=6).map(|i| 0.1 * i as f64).collect();
-    let pts = noisy(&q2s, g, 1e-7, 30, 5);
+    let pts = noisy_points(&q2s, g, 1e-7, 30, 5);
     let mut s = zexp(
         t_cut,
         T0::Zero,

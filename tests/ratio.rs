@@ -840,11 +840,14 @@ fn averaging_equivalent_channels_with_signs() {
         assert_relative_eq!(p.value.re.central, 0.7, max_relative = 1e-10);
         assert_relative_eq!(p.value.im.central, -0.3, max_relative = 1e-10);
     }
-    let missing = vec![(ChannelKey::of(&chans[0].key(6)).clone(), 1.0), {
-        let mut k = ChannelKey::of(&chans[0].key(6));
-        k.current = Current::V1;
-        (k, 1.0)
-    }];
+    let other_current = ThreePointKey {
+        current: Current::V1,
+        ..chans[0].key(6)
+    };
+    let missing = vec![
+        (ChannelKey::of(&chans[0].key(6)), 1.0),
+        (ChannelKey::of(&other_current), 1.0),
+    ];
     let msg = analysis_message(average::average_channels(&ratios, &missing).unwrap_err());
     assert!(msg.contains("V1"), "{msg}");
 }

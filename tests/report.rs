@@ -12,6 +12,8 @@ use formfactory::report::table::{samples_table, write_csv, write_json, Cell, Tab
 use formfactory::resample::{Resampled, Scheme};
 use std::path::Path;
 
+use crate::common::listing;
+
 fn mixed_table() -> Table {
     let mut t = Table::new("form_factors", &["channel", "n", "value", "error"]);
     let rows: Vec<Vec<Cell>> = vec![
@@ -458,15 +460,6 @@ fn snapshot(dir: &Path) -> Vec<(String, Vec<u8>)> {
     out
 }
 
-fn entries(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    v.sort();
-    v
-}
-
 #[test]
 fn failed_run_leaves_previous_results_byte_identical() {
     let root = tempfile::tempdir().unwrap();
@@ -479,7 +472,7 @@ fn failed_run_leaves_previous_results_byte_identical() {
         // The run fails here: the RunDir is dropped without commit.
     }
     assert_eq!(snapshot(&out), before);
-    assert_eq!(entries(root.path()), vec!["results"]);
+    assert_eq!(listing(root.path()), vec!["results"]);
 }
 
 #[test]
@@ -494,7 +487,7 @@ fn existing_results_are_refused_without_force() {
         "{err}"
     );
     assert_eq!(snapshot(&out), before);
-    assert_eq!(entries(root.path()), vec!["results"]);
+    assert_eq!(listing(root.path()), vec!["results"]);
 }
 
 #[test]
@@ -524,5 +517,5 @@ fn force_replaces_previous_results_completely() {
         "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
     );
     assert_eq!(manifest["inputs"][0]["sha256"], sha256_hex(b"abc"));
-    assert_eq!(entries(root.path()), vec!["in.csv", "results"]);
+    assert_eq!(listing(root.path()), vec!["in.csv", "results"]);
 }

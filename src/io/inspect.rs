@@ -5,41 +5,55 @@
 //! momenta, `T`, `tsep` values, currents, projectors, labels) and whether the data need care:
 //! non-positive two-point values at small `t`, configuration-number gaps, momenta of the
 //! three-point table that the two-point table lacks, and autocorrelation in Monte Carlo time.
-//! The integrated autocorrelation time of a few representative points is estimated with the
-//! Gamma method with automatic windowing (U. Wolff, Comput. Phys. Commun. 156 (2004) 143),
-//! through [`crate::resample::autocorr::gamma_method`].
+//! The integrated autocorrelation time of a few representative points is estimated by the
+//! caller with `resample::autocorr_check` (the Gamma method with automatic windowing, U.
+//! Wolff, Comput. Phys. Commun. 156 (2004) 143) and only written here.
 
-use super::table::{display_name, open, Summary};
+use super::accumulator::Summary;
+use super::table::{display_name, open};
 use super::{threept, twopt};
 use crate::data::{norm2, sub, Momentum, ThreePointData, TwoPointData};
 use crate::error::{Error, Result};
+use crate::resample::autocorr_check::{CheckedPoint, PointAutocorr, TAU_INT_WARN, WINDOW_S};
 use std::collections::BTreeSet;
 use std::fmt::Write as _;
 use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
 
-/// Wolff's windowing factor `S` (his recommended default).
-const WINDOW_S: f64 = crate::resample::autocorr::DEFAULT_S;
-/// Above this integrated autocorrelation time, binning is advisable (common practice: with
-/// `tau_int` well above 1/2 the naive error is too small by `sqrt(2 tau_int)`).
-const TAU_INT_WARN: f64 = 1.5;
 /// Two-point values are checked for positivity at `t < SMALL_T`.
 const SMALL_T: usize = 3;
 /// At most this many items are listed in one warning or summary line.
 const LIST_MAX: usize = 8;
 
-/// Summarise a data directory (`twopt.csv` and/or `threept.csv` inside), one table (its
-/// kind told by its header; `-` reads standard input) or a packed HDF5 file as text for the
-/// terminal.
-pub fn inspect(path: &Path) -> Result<String> {
-    let (two, three) = load(path)?;
-    Ok(render(two, three))
+/// The data `formfactory inspect` describes, as read.
+pub struct Inspected {
+    two: Loaded<TwoPointData>,
+    three: Loaded<ThreePointData>,
 }
 
-/// Summarise data already read (e.g. from an HDF5 source), `name` standing for its origin.
-pub fn inspect_data(name: &Path, two: TwoPointData, three: ThreePointData) -> String {
+impl Inspected {
+    /// The two-point data, if any were read.
+    pub fn twopt(&self) -> Option<&TwoPointData> {
+        self.two.as_ref().map(|t| &t.1)
+    }
+
+    /// The three-point data, if any were read.
+    pub fn threept(&self) -> Option<&ThreePointData> {
+        self.three.as_ref().map(|t| &t.1)
+    }
+}
+
+/// Read a data directory (`twopt.csv` and/or `threept.csv` inside), one table (its kind told
+/// by its header; `-` reads standard input) or a packed HDF5 file.
+pub fn read(path: &Path) -> Result<Inspected> {
+    let (two, three) = load(path)?;
+    Ok(Inspected { two, three })
+}
+
+/// Data already read (e.g. from an HDF5 source), `name` standing for its origin.
+pub fn from_data(name: &Path, two: TwoPointData, three: ThreePointData) -> Inspected {
     let (two, three) = loaded_pair(name, two, three);
-    render(two, three)
+    Inspected { two, three }
 }
 
 /// Both kinds of data from one origin, with the number of values in place of rows.
@@ -60,30 +74,28 @@ fn loaded_pair(
     )
 }
 
-fn render(two: Loaded<TwoPointData>, three: Loaded<ThreePointData>) -> String {
+/// The summary for the terminal, with warnings; `autocorr` is the autocorrelation check of
+/// the same data (`resample::autocorr_check::check`).
+pub fn render(data: &Inspected, autocorr: &[PointAutocorr]) -> String {
+    let (two, three) = (&data.two, &data.three);
     let mut out = String::new();
     let mut warnings = Vec::new();
-    if let Some((name, data, summary)) = &two {
+    if let Some((name, data, summary)) = two {
         describe_twopt(&mut out, name, data, summary);
         check_twopt(data, &mut warnings);
         config_gaps(&data.configs, name, &mut warnings);
     }
-    if let Some((name, data, summary)) = &three {
+    if let Some((name, data, summary)) = three {
         describe_threept(&mut out, name, data, summary);
         let same_configs = two.as_ref().is_some_and(|t| t.1.configs == data.configs);
         if !same_configs {
             config_gaps(&data.configs, name, &mut warnings);
         }
     }
-    if let (Some((n2, d2, _)), Some((n3, d3, _))) = (&two, &three) {
+    if let (Some((n2, d2, _)), Some((n3, d3, _))) = (two, three) {
         compare_tables(n2, d2, n3, d3, &mut warnings);
     }
-    autocorrelation(
-        &mut out,
-        two.as_ref().map(|t| &t.1),
-        three.as_ref().map(|t| &t.1),
-        &mut warnings,
-    );
+    autocorrelation(&mut out, autocorr, &mut warnings);
     if warnings.is_empty() {
         out.push_str("warnings: none\n");
     } else {
@@ -386,45 +398,9 @@ fn compare_tables(
     }
 }
 
-/// Integrated autocorrelation times of a few representative points.
-fn autocorrelation(
-    out: &mut String,
-    two: Option<&TwoPointData>,
-    three: Option<&ThreePointData>,
-    warnings: &mut Vec<String>,
-) {
-    let mut points: Vec<(String, Vec<f64>)> = Vec::new();
-    if let Some(d) = two {
-        let chosen = d
-            .channels
-            .iter()
-            .find(|(k, _)| k.momentum == [0, 0, 0])
-            .or_else(|| d.channels.iter().next());
-        if let Some((k, s)) = chosen {
-            let ts: BTreeSet<usize> = [1, s.n_t / 4, s.n_t / 2]
-                .into_iter()
-                .filter(|&t| t < s.n_t)
-                .collect();
-            for t in ts {
-                let name = format!("Re C2 {} t={t}", super::describe_twopt(k));
-                points.push((name, s.re_at(t).to_vec()));
-            }
-        }
-    }
-    if let Some(d) = three {
-        if let Some((k, s)) = d.channels.iter().next() {
-            let tau = s.n_t.saturating_sub(1) / 2;
-            let (re, im) = (s.re_at(tau), s.im_at(tau));
-            let size = |x: &[f64]| x.iter().sum::<f64>().abs();
-            let (part, x) = if size(im) > size(re) {
-                ("Im", im)
-            } else {
-                ("Re", re)
-            };
-            let name = format!("{part} C3 {} tau={tau}", super::describe_threept(k));
-            points.push((name, x.to_vec()));
-        }
-    }
+/// The integrated autocorrelation times of the representative points, with a warning where
+/// binning is advised.
+fn autocorrelation(out: &mut String, points: &[PointAutocorr], warnings: &mut Vec<String>) {
     if points.is_empty() {
         return;
     }
@@ -432,8 +408,9 @@ fn autocorrelation(
         out,
         "autocorrelation in Monte Carlo time (Gamma method, Wolff 2004, S = {WINDOW_S}):"
     );
-    for (name, x) in points {
-        match crate::resample::autocorr::gamma_method(&x, WINDOW_S) {
+    for p in points {
+        let name = point_name(&p.point);
+        match &p.result {
             Ok(r) => {
                 let _ = writeln!(
                     out,
@@ -441,7 +418,7 @@ fn autocorrelation(
                     r.tau_int, r.tau_int_error, r.window
                 );
                 warnings.extend(r.warnings.iter().map(|w| format!("{name}: {w}")));
-                if r.tau_int > TAU_INT_WARN {
+                if p.binning_advised() {
                     warnings.push(format!(
                         "{name}: tau_int = {:.2} > {TAU_INT_WARN}; bin the configurations \
                          (bin size of a few tau_int) before resampling",
@@ -452,6 +429,21 @@ fn autocorrelation(
             Err(e) => {
                 let _ = writeln!(out, "  {name}: not estimated ({e})");
             }
+        }
+    }
+}
+
+/// A representative point in words: `Re C2 <channel> t=3`, `Im C3 <channel> tau=4`.
+fn point_name(p: &CheckedPoint) -> String {
+    match p {
+        CheckedPoint::TwoPoint { key, t } => format!("Re C2 {} t={t}", super::describe_twopt(key)),
+        CheckedPoint::ThreePoint {
+            key,
+            tau,
+            imaginary,
+        } => {
+            let part = if *imaginary { "Im" } else { "Re" };
+            format!("{part} C3 {} tau={tau}", super::describe_threept(key))
         }
     }
 }

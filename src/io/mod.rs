@@ -47,6 +47,7 @@
 //! the `benches/read.rs` table (2.88 million rows, 218 MB) the reader needs about 1.5 s of
 //! CPU time (about 1.9 million rows/s, 140 MB/s) and keeps only the data model in memory.
 
+mod accumulator;
 pub mod hdf5;
 pub mod inspect;
 mod open;
@@ -205,7 +206,7 @@ pub fn on_common_configs(
     })
 }
 
-fn read_note(path: &Path, s: &table::Summary, channels: usize, configs: usize) -> String {
+fn read_note(path: &Path, s: &accumulator::Summary, channels: usize, configs: usize) -> String {
     format!(
         "{}: read {} rows into {channels} channels on {configs} configurations",
         path.display(),
@@ -213,7 +214,7 @@ fn read_note(path: &Path, s: &table::Summary, channels: usize, configs: usize) -
     )
 }
 
-fn source_note(path: &Path, s: &table::Summary) -> Option<String> {
+fn source_note(path: &Path, s: &accumulator::Summary) -> Option<String> {
     let (lo, hi) = s.sources?;
     Some(if lo == hi {
         format!(

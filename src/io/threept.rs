@@ -3,10 +3,8 @@
 //! Time-axis rule: each channel (one `tsep`) has every insertion time `tau = 0..=tsep` for
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
-use super::table::{
-    display_name, key_order, no_data_rows, open, Accumulator, Column, KeyCache, Summary,
-    TableReader,
-};
+use super::accumulator::{key_order, Accumulator, Summary};
+use super::table::{display_name, no_data_rows, open, Column, KeyCache, TableReader};
 use crate::data::{Current, Diagram, Operators, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;

@@ -3,10 +3,8 @@
 //! Time-axis rule: `T = max t + 1` over the whole table, and every channel must have every
 //! `t = 0..T-1` for every configuration.
 
-use super::table::{
-    display_name, key_order, no_data_rows, open, Accumulator, Column, KeyCache, Summary,
-    TableReader,
-};
+use super::accumulator::{key_order, Accumulator, Summary};
+use super::table::{display_name, no_data_rows, open, Column, KeyCache, TableReader};
 use crate::data::{Operators, Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;

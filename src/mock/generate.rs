@@ -2,19 +2,17 @@
 //! add the noise, and collect everything in the [`crate::data`] model and a [`Truth`].
 
 use super::channels::momentum_pairs;
-use super::model::{
-    envelope, form_factor, levels, threept_mean, twopt_mean, FormFactorContext, MomentumLevels,
-};
-use super::noise::{channel_rng, time_correlation_factor, unit_noise};
-use super::spec::{MockSpec, Transitions};
+use super::matrix::{threept_matrix, twopt_matrix, twopt_noise};
+use super::model::{form_factor, levels, FormFactorContext, MomentumLevels};
+use super::series::{threept_series, twopt_series, unit_noise_for, Planned};
+use super::spec::{BasisSpec, MockSpec};
 use super::truth::{
     Truth, TruthConfigs, TruthHadron, TruthLattice, TruthLevels, TruthMatrixElement, TruthPoint,
 };
 use crate::data::{
-    sub, Current, Momentum, Projector, Series, ThreePointData, ThreePointKey, TwoPointData,
-    TwoPointKey,
+    sub, Momentum, Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey,
 };
-use crate::kinematics::{self, Hadron, OnShell};
+use crate::kinematics::{self, OnShell};
 use crate::{Error, Result};
 use nalgebra::Complex;
 use rayon::prelude::*;
@@ -32,15 +30,6 @@ pub struct MockEnsemble {
     pub threept: ThreePointData,
     /// What they were generated from.
     pub truth: Truth,
-}
-
-/// One three-point channel (all `tsep`) to generate.
-pub(super) struct Planned {
-    pub(super) pf: Momentum,
-    pub(super) q: Momentum,
-    pub(super) current: Current,
-    pub(super) projector: Projector,
-    pub(super) pi: Complex<f64>,
 }
 
 /// Generate the ensemble described by `spec` (validated again here, so specs built in code
@@ -141,12 +130,11 @@ pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
 /// functions between every sink and source operator.
 fn matrix_data(
     spec: &MockSpec,
-    basis: &super::operators::BasisSpec,
+    basis: &BasisSpec,
     spectrum: &BTreeMap<Momentum, MomentumLevels>,
     planned: &[Planned],
     configs: Vec<i64>,
 ) -> (TwoPointData, ThreePointData) {
-    use super::matrix::{threept_matrix, twopt_matrix, twopt_noise};
     let noise: BTreeMap<Momentum, Vec<Vec<f64>>> = spectrum
         .keys()
         .map(|&n| (n, twopt_noise(spec, basis, n)))
@@ -280,132 +268,6 @@ fn plan_channels(
         });
     }
     Ok((points, planned, elements))
-}
-
-/// Unit noise of `n_t` time slices for the channel named `label`.
-pub(super) fn unit_noise_for(spec: &MockSpec, label: &str, n_t: usize) -> Vec<f64> {
-    let noise = &spec.noise;
-    let mut rng = channel_rng(spec.seed, label);
-    let factor = time_correlation_factor(n_t, noise.time_correlation.0);
-    unit_noise(
-        &mut rng,
-        &factor,
-        spec.ensemble.configs,
-        noise.autocorrelation.0,
-    )
-}
-
-/// Growth rate `g(p)` of the noise-to-signal ratio at one momentum.
-pub(super) fn growth(spec: &MockSpec, levels: &MomentumLevels) -> f64 {
-    match (spec.noise.growth_rate, spec.hadron.kind, spec.hadron.m_pi) {
-        (Some(g), _, _) => g,
-        (None, Hadron::Spin1Half, Some(m_pi)) => levels.levels[0].energy - 1.5 * m_pi.0,
-        _ => 0.0,
-    }
-}
-
-/// One two-point series: mean times `(1 + s e^{g t} eta)` in the real part, noise of the same
-/// size in the imaginary part (whose mean is zero).
-fn twopt_series(spec: &MockSpec, levels: &MomentumLevels, eta_re: &[f64]) -> Series {
-    let (n_t, n_cfg) = (spec.ensemble.t, spec.ensemble.configs);
-    let mut s = Series::zeros(n_t, n_cfg);
-    let size = spec.noise.twopt.0;
-    let g = growth(spec, levels);
-    let eta_im = if size > 0.0 {
-        unit_noise_for(spec, &format!("twopt im {:?}", levels.n), n_t)
-    } else {
-        vec![0.0; n_t * n_cfg]
-    };
-    let digits = spec.output.significant_digits;
-    for t in 0..n_t {
-        let mean = twopt_mean(levels, t, n_t, spec.hadron.periodic);
-        let sigma = size * (g * t as f64).exp() * mean.abs();
-        for c in 0..n_cfg {
-            let i = s.index(t, c);
-            s.re[i] = round(mean + sigma * eta_re[i], digits);
-            s.im[i] = round(sigma * eta_im[i], digits);
-        }
-    }
-    s
-}
-
-/// One three-point series over `tau = 0..=tsep`. The noise is the ground-state envelope times
-/// `s e^{g_f (tsep - tau) + g_i tau}`; in the part that carries the signal it shares the
-/// component `k eta_2(tsep)` with the two-point function `C2(tsep; p_f)` that divides it.
-fn threept_series(
-    spec: &MockSpec,
-    spectrum: &BTreeMap<Momentum, MomentumLevels>,
-    eta_twopt_sink: &[f64],
-    tsep: usize,
-    p: &Planned,
-) -> Series {
-    let n_cfg = spec.ensemble.configs;
-    let n_t = tsep + 1;
-    let (sink, source) = (&spectrum[&p.pf], &spectrum[&sub(p.pf, p.q)]);
-    let n_states = spec.hadron.states.len();
-    let r = spec
-        .transitions
-        .for_kind(p.current.kind())
-        .map(|t| t.matrix(n_states))
-        .unwrap_or_else(|| ground_only(n_states));
-    let size = spec.noise.threept.0;
-    let label = format!(
-        "threept {tsep} {:?} {:?} {} {}",
-        p.pf, p.q, p.current, p.projector
-    );
-    let (eta_re, eta_im) = if size > 0.0 {
-        (
-            unit_noise_for(spec, &format!("{label} re"), n_t),
-            unit_noise_for(spec, &format!("{label} im"), n_t),
-        )
-    } else {
-        (vec![0.0; n_t * n_cfg], vec![0.0; n_t * n_cfg])
-    };
-    let k = spec.noise.twopt_threept_correlation.0;
-    let own = (1.0 - k * k).sqrt();
-    let signal_in_re = p.pi.re.abs() >= p.pi.im.abs();
-    let (g_f, g_i) = (growth(spec, sink), growth(spec, source));
-    let digits = spec.output.significant_digits;
-    let mut s = Series::zeros(n_t, n_cfg);
-    for tau in 0..n_t {
-        let mean = threept_mean(sink, source, tsep, tau, p.pi, &r);
-        let sigma = size
-            * (g_f * (tsep - tau) as f64 + g_i * tau as f64).exp()
-            * envelope(sink, source, tsep, tau);
-        for c in 0..n_cfg {
-            let i = s.index(tau, c);
-            let shared = k * eta_twopt_sink[tsep * n_cfg + c];
-            let (nr, ni) = if signal_in_re {
-                (shared + own * eta_re[i], eta_im[i])
-            } else {
-                (eta_re[i], shared + own * eta_im[i])
-            };
-            s.re[i] = round(mean.re + sigma * nr, digits);
-            s.im[i] = round(mean.im + sigma * ni, digits);
-        }
-    }
-    s
-}
-
-/// Transition strengths when none are given: the ground state alone.
-pub(super) fn ground_only(n_states: usize) -> Vec<Vec<f64>> {
-    Transitions {
-        source_excited: vec![0.0; n_states - 1],
-        sink_excited: None,
-        both_excited: Vec::new(),
-    }
-    .matrix(n_states)
-}
-
-/// Round to `digits` significant digits (none: unchanged), through the decimal form so that
-/// the written number is short.
-pub(super) fn round(x: f64, digits: Option<u32>) -> f64 {
-    match digits {
-        Some(d) if x.is_finite() && x != 0.0 => {
-            format!("{:.*e}", d as usize - 1, x).parse().unwrap_or(x)
-        }
-        _ => x,
-    }
 }
 
 fn truth(

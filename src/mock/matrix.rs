@@ -2,11 +2,10 @@
 //! per-configuration two-point matrix at every momentum and the three-point functions
 //! between every sink and source operator, labelled with `sink_op` / `source_op`.
 
-use super::generate::{ground_only, growth, round, unit_noise_for, Planned};
 use super::model::MomentumLevels;
-use super::operators::BasisSpec;
-use super::spec::MockSpec;
-use crate::data::{sub, Momentum, Operators, Series, ThreePointKey, TwoPointKey};
+use super::series::{growth, round, unit_noise_for, Planned, ThreePointSetup};
+use super::spec::{BasisSpec, MockSpec};
+use crate::data::{Momentum, Operators, Series, ThreePointKey, TwoPointKey};
 use std::collections::BTreeMap;
 
 /// Unit noise of element `(a, b)`: the shared part `common` with weight `k`, plus an own part
@@ -99,29 +98,13 @@ pub(super) fn threept_matrix(
     tsep: usize,
     p: &Planned,
 ) -> Vec<(ThreePointKey, Series)> {
-    let n_cfg = spec.ensemble.configs;
-    let n_t = tsep + 1;
-    let (sink, source) = (&spectrum[&p.pf], &spectrum[&sub(p.pf, p.q)]);
-    let n_states = spec.hadron.states.len();
-    let r = spec
-        .transitions
-        .for_kind(p.current.kind())
-        .map(|t| t.matrix(n_states))
-        .unwrap_or_else(|| ground_only(n_states));
+    let setup = ThreePointSetup::new(spec, spectrum, tsep, p);
+    let (n_t, n_cfg, label) = (setup.n_t, spec.ensemble.configs, &setup.label);
+    let (sink, source) = (setup.sink, setup.source);
     let w = spec.hadron.smearing_width.0;
-    let size = spec.noise.threept.0;
-    let label = format!(
-        "threept {tsep} {:?} {:?} {} {}",
-        p.pf, p.q, p.current, p.projector
-    );
     let k_ops = basis.noise_correlation.0;
     let common_re = unit_noise_for(spec, &format!("{label} re"), n_t);
     let common_im = unit_noise_for(spec, &format!("{label} im"), n_t);
-    let k = spec.noise.twopt_threept_correlation.0;
-    let own = (1.0 - k * k).sqrt();
-    let signal_in_re = p.pi.re.abs() >= p.pi.im.abs();
-    let (g_f, g_i) = (growth(spec, sink), growth(spec, source));
-    let digits = spec.output.significant_digits;
     let (e_f, e_i) = (sink.levels[0].energy, source.levels[0].energy);
     let ops = &basis.basis;
     let mut out = Vec::new();
@@ -134,22 +117,11 @@ pub(super) fn threept_matrix(
             let scale = basis.norm(a, sink, w) * basis.norm(b, source, w);
             let mut s = Series::zeros(n_t, n_cfg);
             for tau in 0..n_t {
-                let factor = basis.threept_factor((a, b), sink, source, w, tsep, tau, &r);
+                let factor = basis.threept_factor((a, b), sink, source, w, tsep, tau, &setup.r);
                 let mean = p.pi * factor;
                 let decay = (-e_f * (tsep - tau) as f64 - e_i * tau as f64).exp();
-                let sigma =
-                    size * (g_f * (tsep - tau) as f64 + g_i * tau as f64).exp() * scale * decay;
-                for c in 0..n_cfg {
-                    let i = s.index(tau, c);
-                    let shared = k * eta2[tsep * n_cfg + c];
-                    let (nr, ni) = if signal_in_re {
-                        (shared + own * eta_re[i], eta_im[i])
-                    } else {
-                        (eta_re[i], shared + own * eta_im[i])
-                    };
-                    s.re[i] = round(mean.re + sigma * nr, digits);
-                    s.im[i] = round(mean.im + sigma * ni, digits);
-                }
+                let sigma = setup.size * setup.noise_growth(tau) * scale * decay;
+                setup.fill(&mut s, tau, mean, sigma, (&eta_re, &eta_im), eta2);
             }
             let key = ThreePointKey {
                 tsep: tsep as u32,

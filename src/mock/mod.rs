@@ -20,15 +20,15 @@ mod matrix;
 mod model;
 mod noise;
 mod operators;
+mod series;
 mod spec;
 mod truth;
 
 pub use generate::{generate, MockEnsemble};
-pub use operators::{BasisSpec, OperatorSpec};
 pub use spec::{
-    ChannelSpec, Correlation, EnsembleSpec, FormFactorModel, FormFactorSpec, HadronSpec, Insertion,
-    MockSpec, MomentumPair, MomentumSelection, NoiseSpec, NonNegative, OutputSpec, Positive,
-    StateSpec, TransitionSpec, Transitions,
+    BasisSpec, ChannelSpec, Correlation, EnsembleSpec, FormFactorModel, FormFactorSpec, HadronSpec,
+    Insertion, MockSpec, MomentumPair, MomentumSelection, NoiseSpec, NonNegative, OperatorSpec,
+    OutputSpec, Positive, StateSpec, TransitionSpec, Transitions,
 };
 pub use truth::{
     Truth, TruthConfigs, TruthHadron, TruthLattice, TruthLevels, TruthMatrixElement, TruthPoint,

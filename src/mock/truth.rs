@@ -40,7 +40,7 @@ pub struct Truth {
     pub noise: NoiseSpec,
     /// The operator basis, when the ensemble has one.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub operators: Option<super::operators::BasisSpec>,
+    pub operators: Option<super::spec::BasisSpec>,
 }
 
 /// Lattice geometry.

@@ -3,26 +3,13 @@
 //! module only gathers the variants from the run's results; the averaging rule lives in
 //! `error_budget`.
 
-use super::run::RunResults;
-use crate::error_budget::{self, Budget, Variant};
+pub use super::results::FinalRow;
+
+use super::results::RunResults;
+use crate::error_budget::{self, Variant};
 use crate::kinematics::FormFactor;
 use crate::ratio::Estimator;
 use std::collections::BTreeMap;
-
-/// The final value of one quantity.
-#[derive(Clone, Debug)]
-pub struct FinalRow {
-    /// `GE`, `GM`, ... for a form factor at a shell; `r_GE`, `GM(0)`, ... for a derived one.
-    pub quantity: String,
-    /// The form factor's shell (`None` for a derived quantity).
-    pub shell: Option<String>,
-    /// Q² of the shell in lattice units and in GeV² (central values).
-    pub q2: Option<(f64, Option<f64>)>,
-    /// Unit of the value (empty when dimensionless).
-    pub unit: String,
-    /// The value and its error budget.
-    pub budget: Budget,
-}
 
 /// The final value of every form factor at every shell (ordered by form factor, then Q²),
 /// then of every derived quantity; `pin` fixes one estimator.

@@ -9,11 +9,14 @@
 
 mod data_checks;
 pub mod final_results;
+mod observer;
 pub mod output;
 pub mod plan;
 pub mod reference;
+mod results;
 pub mod run;
 pub mod spec;
+mod stages;
 pub mod variational;
 pub mod yaml;
 

@@ -4,29 +4,21 @@
 //! spectrum, ratio and decomposition once more on that operator's own correlators so the
 //! report can show both side by side.
 
+pub use super::results::Comparison;
+
+use super::observer::Recorder;
 use super::plan::Plan;
-use super::run::{decompose_all, skip_dropped_momenta, two_point_states, Recorder, RunResults};
+use super::results::RunResults;
 use super::spec::Stage;
+use super::stages::decomposition::decompose_all;
+use super::stages::ratio_inputs::{skip_dropped_momenta, two_point_states};
 use crate::data::{ThreePointData, TwoPointData};
-use crate::ratio::{self, ChannelKey, ChannelResult};
+use crate::ratio;
 use crate::resample::ResamplePlan;
 use crate::spectrum::{self, SpectrumResult};
 use crate::variational::{self, basis, project, VariationalResult};
 use crate::Result;
 use std::collections::BTreeMap;
-
-/// The single-operator analysis beside the optimised one.
-#[derive(Clone, Debug)]
-pub struct Comparison {
-    /// The operator of the basis analysed alone.
-    pub operator: String,
-    /// Its spectrum.
-    pub spectrum: SpectrumResult,
-    /// Its ratio-stage results per channel (when the ratio stage ran).
-    pub channels: Option<BTreeMap<ChannelKey, ChannelResult>>,
-    /// Its form factors (when the decomposition ran).
-    pub form_factors: Vec<super::run::FormFactorRow>,
-}
 
 /// What the variational stage hands on.
 pub(super) struct Optimised {

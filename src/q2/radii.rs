@@ -4,7 +4,8 @@
 //! Dirac/Pauli decomposition is what many comparisons quote, and it needs both fits and the
 //! hadron mass on the same resamples.
 
-use super::{q2_error, Q2Fit};
+use super::q2_error;
+use super::result::Q2Fit;
 use crate::resample::Resampled;
 use crate::Result;
 use serde::Serialize;

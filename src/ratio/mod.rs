@@ -81,7 +81,7 @@ pub use settings::{NegativeRootPolicy, RatioSettings, TwoStateVariant};
 pub use summation::SummationFit;
 pub use two_state::{FittedGaps, TwoPointStates, TwoStateFit};
 
-use crate::data::{Current, Diagram, Momentum, Projector, ThreePointKey};
+use crate::data::ThreePointKey;
 use crate::resample::Resampled;
 use serde::Serialize;
 use std::fmt;
@@ -91,52 +91,53 @@ pub(crate) const STAGE: &str = "ratio";
 
 /// A three-point channel without its source–sink separation: the unit of excited-state
 /// analysis (all `tsep` of one channel are fitted together).
-#[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
-pub struct ChannelKey {
-    /// Sink momentum.
-    pub pf: Momentum,
-    /// Momentum injected by the current; the source momentum is `pf - q`.
-    pub q: Momentum,
-    /// The inserted current.
-    pub current: Current,
-    /// The spin projector.
-    pub projector: Projector,
-    /// Flavour label, if any.
-    pub flavor: Option<String>,
-    /// Diagram label, if any.
-    pub diagram: Option<Diagram>,
-}
+///
+/// It holds the channel's [`ThreePointKey`] with `tsep = 0` and no operators (the ratio
+/// stage works on single-operator or projected data), so the channel fields are written once;
+/// they are read through `Deref` (`key.pf`, `key.current`, ...). The order is that of the
+/// fields `pf, q, current, projector, flavor, diagram`.
+#[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct ChannelKey(ThreePointKey);
 
 impl ChannelKey {
-    /// The channel of a three-point key (its `tsep` dropped).
+    /// The channel of a three-point key (its `tsep` and operators dropped).
     pub fn of(key: &ThreePointKey) -> Self {
-        ChannelKey {
-            pf: key.pf,
-            q: key.q,
-            current: key.current,
-            projector: key.projector,
-            flavor: key.flavor.clone(),
-            diagram: key.diagram,
-        }
+        ChannelKey(ThreePointKey {
+            tsep: 0,
+            ops: None,
+            ..key.clone()
+        })
     }
 
     /// The three-point key of this channel at separation `tsep`.
     pub fn at(&self, tsep: u32) -> ThreePointKey {
         ThreePointKey {
             tsep,
-            pf: self.pf,
-            q: self.q,
-            current: self.current,
-            projector: self.projector,
-            flavor: self.flavor.clone(),
-            diagram: self.diagram,
-            ops: None,
+            ..self.0.clone()
         }
     }
+}
 
-    /// Source momentum `p_i = p_f - q`.
-    pub fn source_momentum(&self) -> Momentum {
-        crate::data::sub(self.pf, self.q)
+/// The channel fields (`tsep` is always 0 here: use [`ChannelKey::at`] for a separation).
+impl std::ops::Deref for ChannelKey {
+    type Target = ThreePointKey;
+    fn deref(&self) -> &ThreePointKey {
+        &self.0
+    }
+}
+
+/// Written as the six channel fields, as before the key held a [`ThreePointKey`].
+impl Serialize for ChannelKey {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        use serde::ser::SerializeStruct;
+        let mut st = s.serialize_struct("ChannelKey", 6)?;
+        st.serialize_field("pf", &self.pf)?;
+        st.serialize_field("q", &self.q)?;
+        st.serialize_field("current", &self.current)?;
+        st.serialize_field("projector", &self.projector)?;
+        st.serialize_field("flavor", &self.flavor)?;
+        st.serialize_field("diagram", &self.diagram)?;
+        st.end()
     }
 }
 

@@ -20,6 +20,7 @@
 //! - [`autocorr`]: the Gamma method and binning studies.
 
 pub mod autocorr;
+pub mod autocorr_check;
 pub mod binning;
 pub mod covariance;
 pub mod plan;

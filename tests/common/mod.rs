@@ -2,6 +2,7 @@
 #![allow(dead_code)]
 
 pub mod alloc;
+pub mod q2;
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -39,4 +40,19 @@ pub fn repo_root() -> PathBuf {
 /// A file under `tests/fixtures/`.
 pub fn fixture(rel: &str) -> PathBuf {
     repo_root().join("tests").join("fixtures").join(rel)
+}
+
+/// The names in directory `dir`, sorted.
+pub fn listing(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .expect("the directory can be listed")
+        .map(|e| {
+            e.expect("a directory entry")
+                .file_name()
+                .to_string_lossy()
+                .into_owned()
+        })
+        .collect();
+    v.sort();
+    v
 }

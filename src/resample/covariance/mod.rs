@@ -40,156 +40,20 @@
 //! `N < 5 d`. A singular or badly conditioned matrix is reported in `warnings` and
 //! [`CovarianceEstimate::inverse`] refuses it: nothing is inverted silently.
 
+mod options;
+mod shrinkage;
+
+pub use options::{CovarianceKind, CovarianceOptions, ShrinkageTarget};
+
 use super::value::{Resampled, Scheme};
 use crate::{Error, Result};
 use nalgebra::{DMatrix, SymmetricEigen};
-use schemars::gen::SchemaGenerator;
-use schemars::schema::{InstanceType, Schema, SchemaObject};
-use schemars::JsonSchema;
-use serde::{Deserialize, Serialize};
 
 /// Condition number of the correlation matrix above which a warning is given.
 pub const WARN_CONDITION: f64 = 1e8;
 /// Condition number of the correlation matrix above which [`CovarianceEstimate::inverse`]
 /// refuses to invert.
 pub const MAX_CONDITION: f64 = 1e13;
-
-/// What a shrinkage estimate shrinks toward.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "lowercase")]
-pub enum ShrinkageTarget {
-    /// The diagonal of the covariance: the correlation matrix is shrunk toward the identity.
-    #[default]
-    Diagonal,
-    /// The scaled identity `μ I`, `μ = tr(C)/d` (Ledoit & Wolf 2004 as published).
-    Identity,
-}
-
-/// Which covariance to use. In YAML: `full`, `diagonal`, `shrinkage` (diagonal target,
-/// Ledoit–Wolf intensity) or `{shrinkage: {target: identity, intensity: 0.3}}`.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Deserialize)]
-#[serde(try_from = "KindRepr")]
-pub enum CovarianceKind {
-    /// The full covariance of the resamples.
-    #[default]
-    Full,
-    /// Only the variances (uncorrelated weights).
-    Diagonal,
-    /// Shrinkage toward `target`.
-    Shrinkage {
-        /// What to shrink toward.
-        target: ShrinkageTarget,
-        /// `None`: the Ledoit–Wolf optimal intensity; `Some(λ)`, `0 <= λ <= 1`: fixed.
-        intensity: Option<f64>,
-    },
-}
-
-/// The YAML forms of a covariance kind: a bare name, or `{shrinkage: {...}}`.
-#[derive(Deserialize, JsonSchema)]
-#[serde(untagged)]
-enum KindRepr {
-    /// `full`, `diagonal` or `shrinkage` (diagonal target, Ledoit–Wolf intensity).
-    #[schemars(schema_with = "kind_name_schema")]
-    Name(String),
-    /// `{shrinkage: {target: diagonal|identity, intensity: 0..1}}`.
-    Tagged(TaggedKind),
-}
-
-/// A kind with settings.
-#[derive(Deserialize, JsonSchema)]
-#[serde(rename_all = "lowercase")]
-enum TaggedKind {
-    /// The full covariance.
-    Full,
-    /// Only the variances.
-    Diagonal,
-    /// Shrinkage with explicit settings.
-    Shrinkage(ShrinkageSpec),
-}
-
-/// Settings of a shrinkage covariance.
-#[derive(Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-struct ShrinkageSpec {
-    /// What to shrink toward (default `diagonal`).
-    #[serde(default)]
-    target: ShrinkageTarget,
-    /// Fixed intensity from 0 to 1; omit for the Ledoit–Wolf optimum.
-    #[serde(default)]
-    intensity: Option<f64>,
-}
-
-fn kind_name_schema(_: &mut SchemaGenerator) -> Schema {
-    SchemaObject {
-        instance_type: Some(InstanceType::String.into()),
-        enum_values: Some(vec!["full".into(), "diagonal".into(), "shrinkage".into()]),
-        ..Default::default()
-    }
-    .into()
-}
-
-/// Written in the form it is read: `full`, `diagonal`, `{shrinkage: {target, intensity}}`.
-impl Serialize for CovarianceKind {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
-        use serde::ser::SerializeMap;
-        match *self {
-            CovarianceKind::Full => s.serialize_str("full"),
-            CovarianceKind::Diagonal => s.serialize_str("diagonal"),
-            CovarianceKind::Shrinkage { target, intensity } => {
-                let mut m = s.serialize_map(Some(1))?;
-                m.serialize_entry("shrinkage", &ShrinkageSpec { target, intensity })?;
-                m.end()
-            }
-        }
-    }
-}
-
-impl JsonSchema for CovarianceKind {
-    fn schema_name() -> String {
-        "CovarianceKind".to_string()
-    }
-    fn json_schema(gen: &mut SchemaGenerator) -> Schema {
-        KindRepr::json_schema(gen)
-    }
-}
-
-impl TryFrom<KindRepr> for CovarianceKind {
-    type Error = String;
-    fn try_from(r: KindRepr) -> std::result::Result<Self, String> {
-        let shrink = |s: ShrinkageSpec| CovarianceKind::Shrinkage {
-            target: s.target,
-            intensity: s.intensity,
-        };
-        match r {
-            KindRepr::Name(n) => match n.as_str() {
-                "full" => Ok(CovarianceKind::Full),
-                "diagonal" => Ok(CovarianceKind::Diagonal),
-                "shrinkage" => Ok(shrink(ShrinkageSpec {
-                    target: ShrinkageTarget::Diagonal,
-                    intensity: None,
-                })),
-                other => Err(format!(
-                    "unknown covariance kind `{other}`; expected `full`, `diagonal` or \
-                     `shrinkage` (or `{{shrinkage: {{target: diagonal|identity, intensity: \
-                     0..1}}}}`)"
-                )),
-            },
-            KindRepr::Tagged(TaggedKind::Full) => Ok(CovarianceKind::Full),
-            KindRepr::Tagged(TaggedKind::Diagonal) => Ok(CovarianceKind::Diagonal),
-            KindRepr::Tagged(TaggedKind::Shrinkage(s)) => Ok(shrink(s)),
-        }
-    }
-}
-
-/// How to estimate a covariance (a pipeline YAML block).
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(default, deny_unknown_fields)]
-pub struct CovarianceOptions {
-    /// Full, diagonal or shrinkage.
-    pub kind: CovarianceKind,
-    /// Raise correlation-matrix eigenvalues below `eigen_cut * λ_max` to that floor.
-    pub eigen_cut: Option<f64>,
-}
 
 /// An estimated covariance with the diagnostics a fit report needs.
 #[derive(Clone, Debug, PartialEq)]
@@ -258,6 +122,46 @@ pub fn estimate_with_bins(
     opts: &CovarianceOptions,
     n_bins: usize,
 ) -> Result<CovarianceEstimate> {
+    check_inputs(values, opts, n_bins)?;
+    let n = values[0].len();
+    let y = deviations(values);
+    let full = sample_covariance(&y, values[0].scheme)?;
+    // Noise terms are averages over n samples; for bootstrap they stand for n_bins bins.
+    let noise_scale = n as f64 / n_bins as f64;
+    let (mut matrix, shrinkage) = match opts.kind {
+        CovarianceKind::Full => (full, None),
+        CovarianceKind::Diagonal => (DMatrix::from_diagonal(&full.diagonal()), None),
+        CovarianceKind::Shrinkage { target, intensity } => {
+            let (m, lambda) = shrinkage::shrink(full, &y, target, intensity, noise_scale)?;
+            (m, Some(lambda))
+        }
+    };
+    let mut n_eigen_cut = 0;
+    if let Some(c) = opts.eigen_cut {
+        let (m, k) = eigen_floor(&matrix, c);
+        matrix = m;
+        n_eigen_cut = k;
+    }
+    let condition_number = correlation_condition(&matrix);
+    let warnings = diagnose(
+        condition_number,
+        opts,
+        shrinkage.is_some(),
+        n_bins,
+        values.len(),
+    );
+    Ok(CovarianceEstimate {
+        matrix,
+        condition_number,
+        shrinkage,
+        n_eigen_cut,
+        warnings,
+    })
+}
+
+/// Refuse what no covariance can be estimated from: one plan, at least two samples and
+/// bins (a jackknife's samples are its bins), finite values, an eigenvalue cut in (0, 1).
+fn check_inputs(values: &[Resampled], opts: &CovarianceOptions, n_bins: usize) -> Result<()> {
     Resampled::check_compatible(values, "covariance")?;
     let d = values.len();
     let n = values[0].len();
@@ -297,13 +201,18 @@ pub fn estimate_with_bins(
             ));
         }
     }
+    Ok(())
+}
 
-    let y = deviations(values);
+/// The sample covariance `C` of the deviations `y` (module docs), refused when a value has
+/// zero variance.
+fn sample_covariance(y: &DMatrix<f64>, scheme: Scheme) -> Result<DMatrix<f64>> {
+    let (n, d) = y.shape();
     let norm = match scheme {
         Scheme::Jackknife => 1.0 / (n as f64 * (n as f64 - 1.0)),
         Scheme::Bootstrap => 1.0 / (n as f64 - 1.0),
     };
-    let full = y.transpose() * &y * norm;
+    let full = y.transpose() * y * norm;
     if let Some(i) = (0..d).find(|&i| full[(i, i)] <= 0.0) {
         return Err(Error::analysis(
             "covariance",
@@ -315,50 +224,19 @@ pub fn estimate_with_bins(
             ),
         ));
     }
-    // Noise terms are averages over n samples; for bootstrap they stand for n_bins bins.
-    let noise_scale = n as f64 / n_bins as f64;
+    Ok(full)
+}
 
+/// What a user should know before trusting the inverse: a singular or badly conditioned
+/// matrix, and the small-sample bias of the inverse (Hartlap et al. 2007).
+fn diagnose(
+    condition_number: f64,
+    opts: &CovarianceOptions,
+    shrunk: bool,
+    n_bins: usize,
+    d: usize,
+) -> Vec<String> {
     let mut warnings = Vec::new();
-    let (mut matrix, shrinkage) = match opts.kind {
-        CovarianceKind::Full => (full, None),
-        CovarianceKind::Diagonal => (DMatrix::from_diagonal(&full.diagonal()), None),
-        CovarianceKind::Shrinkage { target, intensity } => {
-            let lambda = match intensity {
-                Some(l) if (0.0..=1.0).contains(&l) => l,
-                Some(l) => {
-                    return Err(Error::analysis(
-                        "covariance",
-                        format!("shrinkage intensity {l}; expected a number from 0 to 1"),
-                    ))
-                }
-                None => match target {
-                    ShrinkageTarget::Diagonal => diagonal_target_intensity(&y, noise_scale),
-                    ShrinkageTarget::Identity => identity_target_intensity(&y, noise_scale),
-                },
-            };
-            let m = match target {
-                ShrinkageTarget::Diagonal => {
-                    let mut m = full.clone() * (1.0 - lambda);
-                    m.set_diagonal(&full.diagonal());
-                    m
-                }
-                ShrinkageTarget::Identity => {
-                    let mu = full.trace() / d as f64;
-                    full * (1.0 - lambda) + DMatrix::identity(d, d) * (lambda * mu)
-                }
-            };
-            (m, Some(lambda))
-        }
-    };
-
-    let mut n_eigen_cut = 0;
-    if let Some(c) = opts.eigen_cut {
-        let (m, k) = eigen_floor(&matrix, c);
-        matrix = m;
-        n_eigen_cut = k;
-    }
-
-    let condition_number = correlation_condition(&matrix);
     if condition_number.is_nan() || condition_number > MAX_CONDITION {
         warnings.push(format!(
             "the covariance is singular or nearly so (condition number {condition_number:.3e} of \
@@ -377,7 +255,7 @@ pub fn estimate_with_bins(
             Some(h) => format!("biased high by about {:.2} times", 1.0 / h),
             None => "not even unbiasedly estimable (N <= d + 2)".to_string(),
         };
-        let advice = if shrinkage.is_some() {
+        let advice = if shrunk {
             "shrinkage reduces this bias by an amount not quantified here"
         } else {
             "consider shrinkage, a diagonal covariance or fewer points"
@@ -387,13 +265,7 @@ pub fn estimate_with_bins(
              inverse is {bias} (Hartlap et al. 2007); {advice}"
         ));
     }
-    Ok(CovarianceEstimate {
-        matrix,
-        condition_number,
-        shrinkage,
-        n_eigen_cut,
-        warnings,
-    })
+    warnings
 }
 
 /// Deviation matrix `y` (`n × d`): per-configuration-like deviations of every sample.
@@ -406,63 +278,6 @@ fn deviations(values: &[Resampled]) -> DMatrix<f64> {
     DMatrix::from_fn(n, values.len(), |k, i| {
         (values[i].samples[k] - means[i]) * scale
     })
-}
-
-/// Ledoit–Wolf intensity for shrinking the correlation matrix toward the identity.
-fn diagonal_target_intensity(y: &DMatrix<f64>, noise_scale: f64) -> f64 {
-    let (n, d) = y.shape();
-    let nf = n as f64;
-    let sd: Vec<f64> = (0..d)
-        .map(|i| (y.column(i).norm_squared() / nf).sqrt())
-        .collect();
-    let z = DMatrix::from_fn(n, d, |k, i| y[(k, i)] / sd[i]);
-    let r = z.transpose() * &z / nf;
-    let (mut noise, mut signal) = (0.0, 0.0);
-    for i in 0..d {
-        for j in 0..d {
-            if i == j {
-                continue;
-            }
-            let var: f64 = (0..n)
-                .map(|k| (z[(k, i)] * z[(k, j)] - r[(i, j)]).powi(2))
-                .sum::<f64>()
-                / (nf * nf);
-            noise += var * noise_scale;
-            signal += r[(i, j)].powi(2);
-        }
-    }
-    ratio_intensity(noise, signal)
-}
-
-/// Ledoit–Wolf (2004) intensity for shrinking toward the scaled identity.
-fn identity_target_intensity(y: &DMatrix<f64>, noise_scale: f64) -> f64 {
-    let (n, d) = y.shape();
-    let nf = n as f64;
-    let s = y.transpose() * y / nf;
-    let mu = s.trace() / d as f64;
-    let delta2 = (&s - DMatrix::identity(d, d) * mu).norm_squared();
-    let mut b2 = 0.0;
-    for k in 0..n {
-        let row = y.row(k);
-        for i in 0..d {
-            for j in 0..d {
-                b2 += (row[i] * row[j] - s[(i, j)]).powi(2);
-            }
-        }
-    }
-    b2 *= noise_scale / (nf * nf);
-    ratio_intensity(b2.min(delta2), delta2)
-}
-
-/// `noise / signal` clipped to [0, 1]; no signal to keep means full shrinkage.
-fn ratio_intensity(noise: f64, signal: f64) -> f64 {
-    if signal > 0.0 {
-        (noise / signal).clamp(0.0, 1.0)
-    } else if noise > 0.0 {
-        1.0
-    } else {
-        0.0
-    }
 }
 
 /// `D^{-1/2} m D^{-1/2}` and the diagonal scale `D^{1/2}`.

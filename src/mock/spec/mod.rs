@@ -6,8 +6,15 @@
 //! form factors for the chosen currents, `tsep < T`, one transition strength per excited
 //! state) are checked by [`MockSpec::validate`], whose errors name the dotted key.
 
+mod fields;
+mod operators;
+mod validate;
+
+pub use fields::{Correlation, NonNegative, Positive};
+pub use operators::{BasisSpec, OperatorSpec};
+
 use crate::data::{Current, CurrentKind, Momentum, Projector};
-use crate::kinematics::{Dispersion, FormFactor, Hadron};
+use crate::kinematics::{Dispersion, Hadron};
 use crate::{Error, Result};
 use schemars::JsonSchema;
 use serde::{Deserialize, Deserializer, Serialize};
@@ -42,7 +49,7 @@ pub struct MockSpec {
     /// operator (columns `sink_op`, `source_op`); the hadron's own `overlap`s then only set
     /// the single-operator noise scale and the truth file.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub operators: Option<super::operators::BasisSpec>,
+    pub operators: Option<BasisSpec>,
 }
 
 /// Lattice geometry and configurations.
@@ -50,21 +57,21 @@ pub struct MockSpec {
 #[serde(deny_unknown_fields)]
 pub struct EnsembleSpec {
     /// Spatial extent in lattice units.
-    #[serde(rename = "L", deserialize_with = "positive_usize")]
+    #[serde(rename = "L", deserialize_with = "fields::positive_usize")]
     pub l: usize,
     /// Time extent in lattice units.
-    #[serde(rename = "T", deserialize_with = "positive_usize")]
+    #[serde(rename = "T", deserialize_with = "fields::positive_usize")]
     pub t: usize,
     /// Lattice spacing in fm (used only to quote physical units in the truth file).
     pub a_fm: Positive,
     /// Number of configurations to generate.
-    #[serde(deserialize_with = "positive_usize")]
+    #[serde(deserialize_with = "fields::positive_usize")]
     pub configs: usize,
     /// Number of the first configuration (default 1).
-    #[serde(default = "one")]
+    #[serde(default = "fields::one")]
     pub first_config: i64,
     /// Step between configuration numbers (default 1).
-    #[serde(default = "one", deserialize_with = "positive_i64")]
+    #[serde(default = "fields::one", deserialize_with = "fields::positive_i64")]
     pub config_step: i64,
 }
 
@@ -274,7 +281,7 @@ pub struct ChannelSpec {
     /// group with every projector of the group).
     pub insertions: Vec<Insertion>,
     /// Leave out channels whose kinematic factors all vanish (default true).
-    #[serde(default = "yes")]
+    #[serde(default = "fields::yes")]
     pub skip_vanishing: bool,
 }
 
@@ -306,14 +313,17 @@ impl ChannelSpec {
 #[serde(deny_unknown_fields)]
 pub struct Insertion {
     /// Currents (`V1`..`V4`, `A1`..`A4`, `S`, `P`, `T12`..`T34`).
-    #[serde(deserialize_with = "currents", serialize_with = "current_names")]
+    #[serde(
+        deserialize_with = "fields::currents",
+        serialize_with = "fields::current_names"
+    )]
     #[schemars(with = "Vec<String>")]
     pub currents: Vec<Current>,
     /// Projectors (`unpol`, `pol1`..`pol3` for spin 1/2; for spin 0 leave out, or `none`).
     #[serde(
         default,
-        deserialize_with = "projectors",
-        serialize_with = "projector_names"
+        deserialize_with = "fields::projectors",
+        serialize_with = "fields::projector_names"
     )]
     #[schemars(with = "Vec<String>")]
     pub projectors: Vec<Projector>,
@@ -334,7 +344,7 @@ pub struct MomentumSelection {
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub max_q2: Option<u32>,
     /// With `sink`: keep one `q` per `(|n_q|^2, |n_i|^2)` shell and sink momentum (default true).
-    #[serde(default = "yes")]
+    #[serde(default = "fields::yes")]
     pub representatives: bool,
 }
 
@@ -385,87 +395,6 @@ pub struct OutputSpec {
     pub significant_digits: Option<u32>,
 }
 
-/// A finite number `> 0`.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize, JsonSchema)]
-#[serde(transparent)]
-pub struct Positive(pub f64);
-
-/// A finite number `>= 0`.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, JsonSchema)]
-#[serde(transparent)]
-pub struct NonNegative(pub f64);
-
-/// A correlation coefficient strictly inside `(-1, 1)`.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, JsonSchema)]
-#[serde(transparent)]
-pub struct Correlation(pub f64);
-
-impl<'de> Deserialize<'de> for Positive {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> std::result::Result<Self, D::Error> {
-        let x = f64::deserialize(d)?;
-        if x.is_finite() && x > 0.0 {
-            Ok(Positive(x))
-        } else {
-            Err(serde::de::Error::custom(format!(
-                "expected a positive number, found {x}"
-            )))
-        }
-    }
-}
-
-impl<'de> Deserialize<'de> for NonNegative {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> std::result::Result<Self, D::Error> {
-        let x = f64::deserialize(d)?;
-        if x.is_finite() && x >= 0.0 {
-            Ok(NonNegative(x))
-        } else {
-            Err(serde::de::Error::custom(format!(
-                "expected a number >= 0, found {x}"
-            )))
-        }
-    }
-}
-
-impl<'de> Deserialize<'de> for Correlation {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> std::result::Result<Self, D::Error> {
-        let x = f64::deserialize(d)?;
-        if x.is_finite() && x.abs() < 1.0 {
-            Ok(Correlation(x))
-        } else {
-            Err(serde::de::Error::custom(format!(
-                "expected a correlation coefficient strictly between -1 and 1, found {x}"
-            )))
-        }
-    }
-}
-
-fn one() -> i64 {
-    1
-}
-
-fn yes() -> bool {
-    true
-}
-
-fn positive_usize<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<usize, D::Error> {
-    let n = i64::deserialize(d)?;
-    usize::try_from(n)
-        .ok()
-        .filter(|&n| n > 0)
-        .ok_or_else(|| serde::de::Error::custom(format!("expected a positive integer, found {n}")))
-}
-
-fn positive_i64<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<i64, D::Error> {
-    let n = i64::deserialize(d)?;
-    if n > 0 {
-        Ok(n)
-    } else {
-        Err(serde::de::Error::custom(format!(
-            "expected a positive integer, found {n}"
-        )))
-    }
-}
-
 fn states<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<Vec<StateSpec>, D::Error> {
     let s = Vec::<StateSpec>::deserialize(d)?;
     if s.is_empty() || s.len() > 3 {
@@ -481,46 +410,6 @@ fn states<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<Vec<StateSpec>
         )));
     }
     Ok(s)
-}
-
-fn currents<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<Vec<Current>, D::Error> {
-    Vec::<String>::deserialize(d)?
-        .iter()
-        .map(|s| {
-            Current::parse(s).ok_or_else(|| {
-                serde::de::Error::custom(format!(
-                    "`currents`: unknown current `{s}`; expected one of V1..V4, A1..A4, S, P, T12, T13, T14, T23, T24, T34"
-                ))
-            })
-        })
-        .collect()
-}
-
-fn current_names<S: serde::Serializer>(
-    c: &[Current],
-    s: S,
-) -> std::result::Result<S::Ok, S::Error> {
-    s.collect_seq(c.iter().map(|c| c.name()))
-}
-
-fn projector_names<S: serde::Serializer>(
-    p: &[Projector],
-    s: S,
-) -> std::result::Result<S::Ok, S::Error> {
-    s.collect_seq(p.iter().map(|p| p.name()))
-}
-
-fn projectors<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<Vec<Projector>, D::Error> {
-    Vec::<String>::deserialize(d)?
-        .iter()
-        .map(|s| {
-            Projector::parse(s).ok_or_else(|| {
-                serde::de::Error::custom(format!(
-                    "`projectors`: unknown projector `{s}`; expected unpol, pol1, pol2, pol3 or none"
-                ))
-            })
-        })
-        .collect()
 }
 
 impl MockSpec {
@@ -546,189 +435,6 @@ impl MockSpec {
         spec.validate()
             .map_err(|m| Error::config(format!("mock spec {origin}: {m}")))?;
         Ok(spec)
-    }
-
-    /// Checks that tie several keys together; the message names the dotted key and says
-    /// what would be valid.
-    pub fn validate(&self) -> std::result::Result<(), String> {
-        let n_states = self.hadron.states.len();
-        // Also checked while reading YAML; repeated for specs built in code.
-        if !(1..=3).contains(&n_states) {
-            return Err(format!(
-                "hadron.states: expected 1 to 3 states, found {n_states}"
-            ));
-        }
-        let numbers = self
-            .hadron
-            .states
-            .iter()
-            .flat_map(|s| [s.mass.0, s.overlap.0]);
-        if numbers.clone().any(|x| !(x.is_finite() && x > 0.0))
-            || self
-                .hadron
-                .states
-                .windows(2)
-                .any(|w| w[1].mass.0 <= w[0].mass.0)
-        {
-            return Err(
-                "hadron.states: masses and overlaps must be positive, masses strictly increasing"
-                    .into(),
-            );
-        }
-        if let Some(b) = &self.operators {
-            b.validate(n_states)?;
-            if self.hadron.periodic {
-                return Err(
-                    "operators: the operator basis is for the non-periodic form only".into(),
-                );
-            }
-        }
-        let spin = self.hadron.kind;
-        if self.hadron.periodic && spin == Hadron::Spin1Half {
-            return Err("hadron.periodic: the periodic symmetric form is for spin 0 only".into());
-        }
-        let ch = &self.channels;
-        let m = &ch.momenta;
-        if m.sink.is_empty() != m.max_q2.is_none() {
-            return Err(
-                "channels.momenta: `sink` and `max_q2` go together; give both or neither".into(),
-            );
-        }
-        if m.pairs.is_empty() && m.sink.is_empty() {
-            return Err("channels.momenta: give `pairs`, or `sink` with `max_q2`, or both".into());
-        }
-        if ch.tseps.is_empty() {
-            return Err("channels.tseps: give at least one source–sink separation".into());
-        }
-        if let Some(&bad) = ch
-            .tseps
-            .iter()
-            .find(|&&t| t < 2 || t as usize >= self.ensemble.t)
-        {
-            return Err(format!(
-                "channels.tseps: {bad} is outside 2..{} (T = {})",
-                self.ensemble.t, self.ensemble.t
-            ));
-        }
-        if ch.insertions.is_empty() {
-            return Err("channels.insertions: give at least one group of currents".into());
-        }
-        let given = self.form_factors.by_name();
-        for (i, g) in ch.insertions.iter().enumerate() {
-            let at = format!("channels.insertions[{i}]");
-            if g.currents.is_empty() {
-                return Err(format!("{at}.currents: give at least one current"));
-            }
-            match spin {
-                Hadron::Spin0 => {
-                    if let Some(c) = g.currents.iter().find(|c| c.kind() != CurrentKind::Vector) {
-                        return Err(format!(
-                            "{at}.currents: {c} has no form factor for a spin-0 hadron; use V1..V4"
-                        ));
-                    }
-                    if g.projectors.iter().any(|&p| p != Projector::None) {
-                        return Err(format!(
-                            "{at}.projectors: a spin-0 hadron takes only `none` (or no projectors)"
-                        ));
-                    }
-                }
-                Hadron::Spin1Half => {
-                    if g.projectors.is_empty() || g.projectors.contains(&Projector::None) {
-                        return Err(format!(
-                            "{at}.projectors: give projectors among unpol, pol1, pol2, pol3"
-                        ));
-                    }
-                }
-            }
-            for c in &g.currents {
-                for need in FormFactor::of(spin, c.kind()).iter().map(|f| f.name()) {
-                    if !given.contains_key(need) {
-                        return Err(format!(
-                            "form_factors.{need}: current {c} needs a model for {need}"
-                        ));
-                    }
-                }
-            }
-        }
-        for (name, model) in &given {
-            match model {
-                FormFactorModel::PionPole => {
-                    if *name != "GP" {
-                        return Err(format!(
-                            "form_factors.{name}: pion_pole is a model for GP only"
-                        ));
-                    }
-                    let has_ga = given
-                        .get("GA")
-                        .is_some_and(|m| **m != FormFactorModel::PionPole);
-                    if self.hadron.m_pi.is_none() || !has_ga {
-                        return Err(
-                            "form_factors.GP: pion_pole needs hadron.m_pi and a model for GA"
-                                .into(),
-                        );
-                    }
-                }
-                FormFactorModel::ZExpansion {
-                    t_cut,
-                    t0,
-                    coefficients,
-                } => {
-                    if *t0 >= t_cut.0 {
-                        return Err(format!(
-                            "form_factors.{name}.z_expansion: t0 = {t0} must be below t_cut = {}",
-                            t_cut.0
-                        ));
-                    }
-                    if coefficients.is_empty() {
-                        return Err(format!(
-                            "form_factors.{name}.z_expansion.coefficients: give at least a_0"
-                        ));
-                    }
-                }
-                FormFactorModel::Dipole { .. } => {}
-            }
-        }
-        for (kind, tr) in self.transitions.all() {
-            let Some(tr) = tr else { continue };
-            let excited = n_states - 1;
-            if tr.source_excited.len() != excited {
-                return Err(format!(
-                    "transitions.{kind}.source_excited: {} entries for {excited} excited state(s); give one per excited state",
-                    tr.source_excited.len()
-                ));
-            }
-            if let Some(s) = &tr.sink_excited {
-                if s.len() != excited {
-                    return Err(format!(
-                        "transitions.{kind}.sink_excited: {} entries for {excited} excited state(s)",
-                        s.len()
-                    ));
-                }
-            }
-            let square = tr.both_excited.len() == excited
-                && tr.both_excited.iter().all(|r| r.len() == excited);
-            if !(square || tr.both_excited.is_empty()) {
-                return Err(format!(
-                    "transitions.{kind}.both_excited: expected a {excited} x {excited} matrix (or nothing)"
-                ));
-            }
-        }
-        if spin == Hadron::Spin1Half
-            && self.noise.growth_rate.is_none()
-            && self.hadron.m_pi.is_none()
-            && (self.noise.twopt.0 > 0.0 || self.noise.threept.0 > 0.0)
-        {
-            return Err(
-                "noise.growth_rate: not set, and the default E_0(p) - 3 m_pi / 2 needs hadron.m_pi"
-                    .into(),
-            );
-        }
-        if let Some(d) = self.output.significant_digits {
-            if !(1..=17).contains(&d) {
-                return Err(format!("output.significant_digits: {d} is outside 1..=17"));
-            }
-        }
-        Ok(())
     }
 }
 

@@ -1,0 +1,255 @@
+//! The accumulator of the CSV readers: it interns channels and configurations, averages
+//! sources, detects duplicate rows and, at the end, checks that every channel has every
+//! time slice for every configuration. Its memory follows the rows it has seen.
+
+use crate::error::{Error, Location, Result};
+use std::collections::{HashMap, HashSet};
+
+/// Sum of the rows seen for one (channel, time, configuration).
+#[derive(Clone, Copy, Default)]
+struct Cell {
+    re: f64,
+    im: f64,
+    count: u32,
+}
+
+/// Cells of one channel: `cells[t][cfg]`, configurations in first-seen order. The dense
+/// part grows with the rows the channel has seen (at most [`Channel::dense_limit`] time
+/// slices), so a few rows at a huge time cannot make the reader allocate memory out of
+/// proportion to the file; a row beyond it waits in `overflow` until the dense part reaches it.
+struct Channel {
+    cells: Vec<Vec<Cell>>,
+    overflow: HashMap<(u32, u32), Cell>,
+    rows: usize,
+    first_line: u64,
+}
+
+impl Channel {
+    /// Time slices the dense part may span after `rows` rows.
+    fn dense_limit(rows: usize) -> usize {
+        2 * rows + 1024
+    }
+
+    /// The cell of `(t, cfg)`, growing the dense part when the channel's row count allows.
+    fn cell(&mut self, t: u32, cfg: u32) -> &mut Cell {
+        self.rows += 1;
+        let t_us = t as usize;
+        if t_us >= self.cells.len() && t_us < Self::dense_limit(self.rows) {
+            self.cells.resize_with(t_us + 1, Vec::new);
+            let len = self.cells.len() as u32;
+            let moved: Vec<_> = self
+                .overflow
+                .keys()
+                .filter(|(t, _)| *t < len)
+                .copied()
+                .collect();
+            for key in moved {
+                if let Some(cell) = self.overflow.remove(&key) {
+                    let row = &mut self.cells[key.0 as usize];
+                    if row.len() <= key.1 as usize {
+                        row.resize(key.1 as usize + 1, Cell::default());
+                    }
+                    row[key.1 as usize] = cell;
+                }
+            }
+        }
+        match self.cells.get_mut(t_us) {
+            Some(row) => {
+                if row.len() <= cfg as usize {
+                    row.resize(cfg as usize + 1, Cell::default());
+                }
+                &mut row[cfg as usize]
+            }
+            None => self.overflow.entry((t, cfg)).or_default(),
+        }
+    }
+
+    /// The cell of `(t, cfg)` if any row gave it.
+    fn get(&self, t: usize, cfg: usize) -> Option<Cell> {
+        match self.cells.get(t) {
+            Some(row) => row.get(cfg).copied(),
+            None => self.overflow.get(&(t as u32, cfg as u32)).copied(),
+        }
+    }
+}
+
+/// Collects rows into channels and checks the one-row-per-point rule.
+pub(crate) struct Accumulator {
+    ids: HashMap<Vec<u8>, u32>,
+    channels: Vec<Channel>,
+    cfg_ids: HashMap<i64, u32>,
+    /// Configuration numbers in first-seen order.
+    configs: Vec<i64>,
+    last_cfg: u32,
+    /// `(channel, t, cfg, source)` seen, when the table has a `source` column.
+    sources: Option<HashSet<(u32, u32, u32, i64)>>,
+    rows: u64,
+}
+
+/// What became of the rows: source averaging and counts.
+pub(crate) struct Summary {
+    /// Number of data rows read.
+    pub rows: u64,
+    /// Smallest and largest number of sources averaged into one value.
+    pub sources: Option<(u32, u32)>,
+}
+
+/// A completed channel: its values in ascending configuration order.
+pub(crate) struct Finished {
+    pub configs: Vec<i64>,
+    /// Per channel id: `(re, im)` time-major, configurations contiguous.
+    pub values: Vec<(Vec<f64>, Vec<f64>)>,
+    pub summary: Summary,
+}
+
+impl Accumulator {
+    pub fn new(with_source: bool) -> Self {
+        Accumulator {
+            ids: HashMap::new(),
+            channels: Vec::new(),
+            cfg_ids: HashMap::new(),
+            configs: Vec::new(),
+            last_cfg: 0,
+            sources: with_source.then(HashSet::new),
+            rows: 0,
+        }
+    }
+
+    /// The channel id of an encoded key, if known.
+    pub fn channel(&self, key: &[u8]) -> Option<u32> {
+        self.ids.get(key).copied()
+    }
+
+    /// Register a new channel under an encoded key; returns its id.
+    pub fn add_channel(&mut self, key: &[u8], line: u64) -> u32 {
+        let id = self.channels.len() as u32;
+        self.ids.insert(key.to_vec(), id);
+        self.channels.push(Channel {
+            cells: Vec::new(),
+            overflow: HashMap::new(),
+            rows: 0,
+            first_line: line,
+        });
+        id
+    }
+
+    fn config_index(&mut self, config: i64) -> u32 {
+        let n = self.configs.len() as u32;
+        // Tables are usually written with configurations cycling in a fixed order.
+        for guess in [self.last_cfg, self.last_cfg + 1, 0] {
+            if guess < n && self.configs[guess as usize] == config {
+                self.last_cfg = guess;
+                return guess;
+            }
+        }
+        let idx = *self.cfg_ids.entry(config).or_insert(n);
+        if idx == n {
+            self.configs.push(config);
+        }
+        self.last_cfg = idx;
+        idx
+    }
+
+    /// Add one row. `describe` names the data point in a duplicate message.
+    #[allow(clippy::too_many_arguments)]
+    pub fn add(
+        &mut self,
+        id: u32,
+        t: u32,
+        config: i64,
+        source: Option<i64>,
+        re: f64,
+        im: f64,
+        location: impl FnOnce() -> Location,
+        describe: impl FnOnce() -> String,
+    ) -> Result<()> {
+        self.rows += 1;
+        let cfg = self.config_index(config);
+        let cell = self.channels[id as usize].cell(t, cfg);
+        let duplicate = match (&mut self.sources, source) {
+            (Some(seen), Some(s)) => !seen.insert((id, t, cfg, s)),
+            _ => cell.count > 0,
+        };
+        if duplicate {
+            let what = match source {
+                Some(s) => format!(" and source {s}"),
+                None => String::new(),
+            };
+            return Err(Error::Data {
+                location: location(),
+                message: format!(
+                    "duplicate row: {} at configuration {config}{what} was already given",
+                    describe()
+                ),
+            });
+        }
+        cell.re += re;
+        cell.im += im;
+        cell.count += 1;
+        Ok(())
+    }
+
+    /// Check completeness and average. `order` lists channel ids in key order, `n_t` gives
+    /// each channel's number of time slices, `missing` builds the error for the first gap
+    /// `(channel, t, config, first line of the channel)`.
+    pub fn finish(
+        self,
+        order: &[u32],
+        n_t: impl Fn(u32) -> usize,
+        missing: impl Fn(u32, usize, i64, u64) -> Error,
+    ) -> Result<Finished> {
+        let mut sorted: Vec<(i64, usize)> = self
+            .configs
+            .iter()
+            .enumerate()
+            .map(|(i, &c)| (c, i))
+            .collect();
+        sorted.sort_unstable();
+        let n_cfg = sorted.len();
+        let mut values: Vec<(Vec<f64>, Vec<f64>)> =
+            vec![(Vec::new(), Vec::new()); self.channels.len()];
+        let (mut smin, mut smax) = (u32::MAX, 0u32);
+        for &id in order {
+            let chan = &self.channels[id as usize];
+            let nt = n_t(id);
+            // Reserve only once the channel is known to reach its last time slice, so a
+            // corrupt time value cannot trigger a huge allocation before the gap is found.
+            let cap = if chan.cells.len() == nt {
+                nt * n_cfg
+            } else {
+                0
+            };
+            let mut re = Vec::with_capacity(cap);
+            let mut im = Vec::with_capacity(cap);
+            for t in 0..nt {
+                for &(config, i) in &sorted {
+                    let cell = chan.get(t, i).unwrap_or_default();
+                    if cell.count == 0 {
+                        return Err(missing(id, t, config, chan.first_line));
+                    }
+                    smin = smin.min(cell.count);
+                    smax = smax.max(cell.count);
+                    let n = f64::from(cell.count);
+                    re.push(cell.re / n);
+                    im.push(cell.im / n);
+                }
+            }
+            values[id as usize] = (re, im);
+        }
+        Ok(Finished {
+            configs: sorted.into_iter().map(|(c, _)| c).collect(),
+            values,
+            summary: Summary {
+                rows: self.rows,
+                sources: self.sources.as_ref().map(|_| (smin.min(smax), smax)),
+            },
+        })
+    }
+}
+
+/// Channel ids `0..keys.len()` ordered by their keys, the order of the output map.
+pub(crate) fn key_order<K: Ord>(keys: &[K]) -> Vec<u32> {
+    let mut order: Vec<u32> = (0..keys.len() as u32).collect();
+    order.sort_by(|&a, &b| keys[a as usize].cmp(&keys[b as usize]));
+    order
+}

@@ -1,0 +1,400 @@
+//! Solving one Q² shell: the real linear system of its channels (real and imaginary parts
+//! whose coefficients do not all vanish), whitened by the data covariance and solved by SVD
+//! on the central value and on every resample; form factors mixing with a direction the
+//! channels do not determine are left out.
+
+use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
+use crate::data::{sub, Current, CurrentKind};
+use crate::fit::{Weighting, Weights};
+use crate::kinematics::factors::{coefficients, FormFactor};
+use crate::kinematics::momentum::q2_to_gev2;
+use crate::kinematics::setup::{at, KinematicSetup};
+use crate::kinematics::OnShell;
+use crate::resample::Resampled;
+use nalgebra::{Complex, DMatrix, DVector};
+use rayon::prelude::*;
+use std::collections::BTreeMap;
+
+type Outcome<T> = std::result::Result<T, String>;
+
+/// One real equation: channel index and real (false) or imaginary (true) part.
+type Row = (usize, bool);
+
+/// The solve at one sample: the form factors of the unknowns, chi², the condition number,
+/// which unknowns are determined, and the number of undetermined directions.
+type Solved = (DVector<f64>, f64, f64, Vec<bool>, usize);
+
+/// Solve one shell; `Err` carries the reason it could not be solved.
+pub(super) fn solve_shell(
+    members: &[&ChannelValue],
+    kind: CurrentKind,
+    setup: &KinematicSetup,
+    weights: Weighting,
+    phases: &BTreeMap<Current, Complex<f64>>,
+    n: usize,
+) -> Outcome<ShellResult> {
+    let all = FormFactor::of(setup.hadron, kind);
+    check_shell(members, kind, setup, all)?;
+    let system = ShellSystem::new(members, setup, all, weights, phases)?;
+    let (g0, chi2, condition, determined, n_null) = system.solve(None)?;
+    if !determined.iter().any(|d| *d) {
+        return Err(format!(
+            "the coefficient matrix is singular: the channels determine none of {} alone (needs another q direction or projector)",
+            names(system.unknowns.iter().map(|&j| all[j]))
+        ));
+    }
+    let per_sample = (0..n)
+        .into_par_iter()
+        .map(|s| system.solve(Some(s)).map(|(g, ..)| g))
+        .collect::<Outcome<Vec<_>>>()?;
+    let (form_factors, undetermined) = system.form_factors(&g0, &per_sample, &determined);
+    let q2 = system.q2()?;
+    let dof = system.rows.len() - (system.unknowns.len() - n_null);
+    Ok(ShellResult {
+        label: String::new(),
+        kind,
+        q2_gev2: setup.spacing_fm.map(|a| q2.map(|x| q2_to_gev2(x, a))),
+        q2,
+        form_factors,
+        n_channels: system.used.len(),
+        n_dropped: members.len() - system.used.len(),
+        dof,
+        chi2_dof: (dof > 0).then(|| chi2 / dof as f64),
+        condition,
+        undetermined,
+    })
+}
+
+/// Shells no decomposition can solve: no form factors for this hadron and current, or a
+/// tensor current away from `q = 0`.
+fn check_shell(
+    members: &[&ChannelValue],
+    kind: CurrentKind,
+    setup: &KinematicSetup,
+    all: &[FormFactor],
+) -> Outcome<()> {
+    if all.is_empty() {
+        return Err(format!(
+            "a {:?} hadron has no form factors for a {kind:?} current",
+            setup.hadron
+        ));
+    }
+    if kind == CurrentKind::Tensor && members.iter().any(|c| c.q != [0, 0, 0]) {
+        return Err(
+            "the tensor vertex sigma_mu_nu g_T holds for forward matrix elements only (q = 0)"
+                .into(),
+        );
+    }
+    Ok(())
+}
+
+/// The linear system of one shell: which parts of which channels enter, which form factors
+/// are unknowns, the data per row and their whitening, and the central kinematics.
+struct ShellSystem<'a> {
+    members: &'a [&'a ChannelValue],
+    setup: &'a KinematicSetup,
+    all: &'a [FormFactor],
+    rows: Vec<Row>,
+    /// Channels with at least one row.
+    used: Vec<usize>,
+    /// Indices into `all` of the form factors some row constrains.
+    unknowns: Vec<usize>,
+    data: Vec<Resampled>,
+    w: Weights,
+    /// Kinematics and coefficients of every used channel on the central value.
+    central: BTreeMap<usize, (OnShell, Vec<Complex<f64>>)>,
+}
+
+impl<'a> ShellSystem<'a> {
+    fn new(
+        members: &'a [&'a ChannelValue],
+        setup: &'a KinematicSetup,
+        all: &'a [FormFactor],
+        weights: Weighting,
+        phases: &BTreeMap<Current, Complex<f64>>,
+    ) -> Outcome<Self> {
+        let coeffs = |c: &ChannelValue, s: Option<usize>| channel_coefficients(setup, all, c, s);
+        let (rows, used, unknowns) = structure(members, all.len(), coeffs)?;
+        let data = row_data(&rows, members, phases);
+        let w = whitening(&data, &rows, members, weights)?;
+        let mut central = BTreeMap::new();
+        for &ci in &used {
+            let c = members[ci];
+            let k = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
+            central.insert(ci, (k, coeffs(c, None)?));
+        }
+        Ok(ShellSystem {
+            members,
+            setup,
+            all,
+            rows,
+            used,
+            unknowns,
+            data,
+            w,
+            central,
+        })
+    }
+
+    /// The coefficient matrix (rows x unknowns) at sample `s`.
+    fn matrix(&self, s: Option<usize>) -> Outcome<DMatrix<f64>> {
+        let mut k = DMatrix::zeros(self.rows.len(), self.unknowns.len());
+        // Coefficients per used channel; reuse the central ones when the kinematics of this
+        // sample are the central kinematics (exact masses and energies).
+        let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
+        for &ci in &self.used {
+            let c = self.members[ci];
+            let k = self
+                .setup
+                .on_shell(c.pf, c.q, s)
+                .map_err(|e| e.to_string())?;
+            let kc = match self.central.get(&ci) {
+                Some((k0, kc0)) if *k0 == k => kc0.clone(),
+                _ => channel_coefficients(self.setup, self.all, c, s)?,
+            };
+            cache.insert(ci, kc);
+        }
+        for (r, &(ci, imag)) in self.rows.iter().enumerate() {
+            let kc = &cache[&ci];
+            for (col, &j) in self.unknowns.iter().enumerate() {
+                k[(r, col)] = if imag { kc[j].im } else { kc[j].re };
+            }
+        }
+        Ok(k)
+    }
+
+    /// The whitened system at sample `s` solved by SVD, singular directions cut.
+    fn solve(&self, s: Option<usize>) -> Outcome<Solved> {
+        let k = self.matrix(s)?;
+        let y = DVector::from_iterator(self.rows.len(), self.data.iter().map(|d| at(d, s)));
+        let a = self.w.whiten_matrix(&k);
+        let mut b = DVector::zeros(self.rows.len());
+        self.w.whiten(y.as_slice(), b.as_mut_slice());
+        let which = || s.map_or("the central value".to_string(), |s| format!("resample {s}"));
+        if a.iter().chain(b.iter()).any(|x| !x.is_finite()) {
+            return Err(format!(
+                "{}: the shell's equations hold a non-finite value (a NaN or infinite energy, \
+                 kinematic factor or matrix element from an earlier stage)",
+                which()
+            ));
+        }
+        // The unordered decomposition never sorts, so it cannot panic on a NaN singular value.
+        let svd = nalgebra::SVD::try_new_unordered(a.clone(), true, true, f64::EPSILON, 10_000)
+            .ok_or_else(|| format!("{}: the decomposition's SVD did not converge", which()))?;
+        let smax = svd.singular_values.max();
+        if svd.singular_values.iter().any(|v| !v.is_finite()) {
+            return Err(format!(
+                "{}: the decomposition's SVD gave a non-finite singular value",
+                which()
+            ));
+        }
+        if smax <= 0.0 {
+            return Err("the coefficient matrix is zero".into());
+        }
+        let cut = smax * SINGULAR_THRESHOLD;
+        let kept_min = svd
+            .singular_values
+            .iter()
+            .copied()
+            .filter(|v| *v > cut)
+            .fold(f64::INFINITY, f64::min);
+        let g = svd.solve(&b, cut).map_err(|e| e.to_string())?;
+        let chi2 = (&a * &g - &b).norm_squared();
+        let null: Vec<usize> = (0..svd.singular_values.len())
+            .filter(|&i| svd.singular_values[i] <= cut)
+            .collect();
+        let v_t = svd
+            .v_t
+            .as_ref()
+            .ok_or("the SVD gave no right singular vectors")?;
+        let determined: Vec<bool> = (0..self.unknowns.len())
+            .map(|col| {
+                null.iter()
+                    .map(|&i| v_t[(i, col)].powi(2))
+                    .sum::<f64>()
+                    .sqrt()
+                    < NULL_OVERLAP
+            })
+            .collect();
+        Ok((g, chi2, smax / kept_min, determined, null.len()))
+    }
+
+    /// The determined form factors (central value `g0` and one solution per resample), and
+    /// the undetermined ones.
+    fn form_factors(
+        &self,
+        g0: &DVector<f64>,
+        per_sample: &[DVector<f64>],
+        determined: &[bool],
+    ) -> (Vec<(FormFactor, Resampled)>, Vec<FormFactor>) {
+        let samples: Vec<Vec<f64>> = (0..self.unknowns.len())
+            .map(|col| per_sample.iter().map(|g| g[col]).collect())
+            .collect();
+        let scheme = self.setup.mass.scheme;
+        let form_factors = self
+            .unknowns
+            .iter()
+            .zip(samples)
+            .enumerate()
+            .filter(|(col, _)| determined[*col])
+            .map(|(col, (&j, smp))| (self.all[j], Resampled::new(g0[col], smp, scheme)))
+            .collect();
+        let undetermined = self
+            .unknowns
+            .iter()
+            .zip(determined)
+            .filter(|(_, d)| !**d)
+            .map(|(&j, _)| self.all[j])
+            .collect();
+        (form_factors, undetermined)
+    }
+
+    /// Q² of the shell: the mean over its used channels, per resample; refused when timelike.
+    fn q2(&self) -> Outcome<Resampled> {
+        let q2s = self
+            .used
+            .iter()
+            .map(|&ci| {
+                self.setup
+                    .q2(self.members[ci].pf, self.members[ci].q)
+                    .map_err(|e| e.to_string())
+            })
+            .collect::<Outcome<Vec<_>>>()?;
+        let refs: Vec<&Resampled> = q2s.iter().collect();
+        let q2 = Resampled::try_combine(&refs, "Q² of the shell's channels", |v| {
+            v.iter().sum::<f64>() / v.len() as f64
+        })
+        .map_err(|e| e.to_string())?;
+        // Elastic form factors are spacelike: Q² = |q|² - (E_f - E_i)² >= 0 for energies that
+        // obey any dispersion relation. A negative Q² means an unphysical energy (e.g. a
+        // spurious fitted ground state); the shell is skipped, naming the momenta.
+        if q2.central < -1e-12 {
+            let c = self.members[self.used[0]];
+            return Err(format!(
+                "Q² = {:.4e} < 0 (timelike) at p_f = {:?}, p_i = {:?}: the energies are \
+                 unphysical for an elastic form factor; check the spectrum fits of these momenta",
+                q2.central,
+                c.pf,
+                sub(c.pf, c.q)
+            ));
+        }
+        Ok(q2)
+    }
+}
+
+/// The coefficients of every form factor of `all` in channel `c` at sample `s`.
+fn channel_coefficients(
+    setup: &KinematicSetup,
+    all: &[FormFactor],
+    c: &ChannelValue,
+    s: Option<usize>,
+) -> Outcome<Vec<Complex<f64>>> {
+    let k = setup.on_shell(c.pf, c.q, s).map_err(|e| e.to_string())?;
+    let list = coefficients(setup.hadron, c.projector, c.current, &k);
+    Ok(if list.is_empty() {
+        vec![Complex::new(0.0, 0.0); all.len()]
+    } else {
+        list.into_iter().map(|(_, v)| v).collect()
+    })
+}
+
+/// Structure from the central kinematics: which parts carry information (the rows), which
+/// channels have a row, which of the `n_all` form factors are constrained at all (the
+/// unknowns); refused with too few equations.
+fn structure(
+    members: &[&ChannelValue],
+    n_all: usize,
+    coeffs: impl Fn(&ChannelValue, Option<usize>) -> Outcome<Vec<Complex<f64>>>,
+) -> Outcome<(Vec<Row>, Vec<usize>, Vec<usize>)> {
+    let mut rows: Vec<Row> = Vec::new();
+    let mut used: Vec<usize> = Vec::new();
+    let mut active = vec![false; n_all];
+    for (ci, c) in members.iter().enumerate() {
+        let k = coeffs(c, None)?;
+        let mut kept = false;
+        for imag in [false, true] {
+            let part = |z: &Complex<f64>| if imag { z.im } else { z.re };
+            if k.iter().any(|z| part(z) != 0.0) {
+                rows.push((ci, imag));
+                kept = true;
+                for (a, z) in active.iter_mut().zip(&k) {
+                    *a |= part(z) != 0.0;
+                }
+            }
+        }
+        if kept {
+            used.push(ci);
+        }
+    }
+    let unknowns: Vec<usize> = (0..n_all).filter(|&j| active[j]).collect();
+    if unknowns.is_empty() {
+        return Err(format!(
+            "all {} channels have vanishing coefficients",
+            members.len()
+        ));
+    }
+    if rows.len() < unknowns.len() {
+        return Err(format!(
+            "{} real equations for {} form factors: add channels (other projectors or momenta)",
+            rows.len(),
+            unknowns.len()
+        ));
+    }
+    Ok((rows, used, unknowns))
+}
+
+/// Data with the phase convention applied, one resampled value per row.
+fn row_data(
+    rows: &[Row],
+    members: &[&ChannelValue],
+    phases: &BTreeMap<Current, Complex<f64>>,
+) -> Vec<Resampled> {
+    rows.iter()
+        .map(|&(ci, imag)| {
+            let c = members[ci];
+            let ph = phases
+                .get(&c.current)
+                .copied()
+                .unwrap_or(Complex::new(1.0, 0.0));
+            c.re.zip_map(&c.im, |re, im| {
+                let z = ph * Complex::new(re, im);
+                if imag {
+                    z.im
+                } else {
+                    z.re
+                }
+            })
+        })
+        .collect()
+}
+
+fn names(list: impl Iterator<Item = FormFactor>) -> String {
+    list.map(|f| f.name()).collect::<Vec<_>>().join(", ")
+}
+
+/// Whitening of the stacked parts: inverse errors, or the (shrunk) covariance estimated from
+/// the resamples (`resample::covariance`), inverted by `fit::Weights`.
+fn whitening(
+    data: &[Resampled],
+    rows: &[Row],
+    members: &[&ChannelValue],
+    weights: Weighting,
+) -> std::result::Result<Weights, String> {
+    for (d, &(ci, imag)) in data.iter().zip(rows) {
+        let v = d.variance();
+        if !(v > 0.0 && v.is_finite()) {
+            return Err(format!(
+                "channel {} ({} part) has variance {v}; positive finite variance expected",
+                members[ci].label(),
+                if imag { "imaginary" } else { "real" }
+            ));
+        }
+    }
+    weights.weights(data).map_err(|e| {
+        format!(
+            "{e} ({} stacked parts, {} samples); use diagonal or shrinkage weights",
+            data.len(),
+            data[0].len()
+        )
+    })
+}
