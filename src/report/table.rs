@@ -385,7 +385,8 @@ pub fn value_errors(value: f64, errors: &[f64]) -> String {
     let unit = 10f64.powi(-decimals);
     let digits = |e: f64| {
         if e.is_finite() {
-            format!("({:.0})", (e / unit).round())
+            // in units of the last digit of the value, or in full when that digit is 10 or more
+            format!("({:.0})", (e / unit).round() * unit.max(1.0))
         } else {
             "(?)".to_string()
         }
@@ -415,7 +416,9 @@ mod tests {
         // an error larger than the value: the largest error keeps two digits, the smaller
         // one is rounded to the same last digit (was `1.1(122)(5)`)
         assert_eq!(value_errors(1.1, &[12.2, 0.5]), "1(12)(1)");
-        assert_eq!(value_errors(1.234, &[0.5, 0.0012]), "1.2(5)(0)");
+        assert_eq!(value_errors(1.234, &[0.5, 0.0012]), "1.23(50)(0)");
+        // errors of 100 and more are written in full, as by value_error
+        assert_eq!(value_errors(1.3, &[9723.12, 0.03]), "0(9700)(0)");
         assert_eq!(value_errors(0.5, &[0.0996, 0.02]), "0.50(10)(2)");
     }
 
