@@ -361,6 +361,48 @@ fn check_figures_and_page(name: &str, out: &Path) {
         assert!(glyph.contains("#0072B2"), "{name} {p}: {glyph}");
     }
     assert!(page.contains("final values and error budget"), "{name}");
+    for p in plots.iter().filter(|p| p.starts_with("gevp-")) {
+        // gevp-energies-p0.0.1.svg: named by momentum, never by index
+        assert!(p.contains("-p"), "{name}: {p}");
+    }
+    // The final-value rule of docs/methods.md §4: next to the summation and two-state results
+    // the plateaus carry no weight, and the excited-state error of a form factor at a shell is
+    // the full difference between those two (also when the cross-check left one out).
+    let variants = read_rows(&out.join("final_variants.csv"));
+    let mut checked = 0;
+    for f in read_rows(&out.join("final.csv")) {
+        if f["shell"].is_empty() {
+            continue;
+        }
+        let same = |v: &&std::collections::BTreeMap<String, String>| {
+            v["quantity"] == f["quantity"] && v["shell"] == f["shell"]
+        };
+        let of = |m: &str| variants.iter().filter(same).find(|v| v["method"] == m);
+        let (Some(s), Some(t)) = (of("summation"), of("two_state")) else {
+            continue;
+        };
+        let diff = (num(s, "value") - num(t, "value")).abs();
+        if !diff.is_finite() {
+            continue;
+        }
+        assert!(
+            (num(&f, "error_excited_states") - diff).abs() <= 1e-12 * (1.0 + diff),
+            "{name}: {f:?}"
+        );
+        assert!(
+            variants
+                .iter()
+                .filter(same)
+                .filter(|v| v["method"].starts_with("plateau"))
+                .all(|v| num(v, "weight") == 0.0),
+            "{name}: {f:?}"
+        );
+        checked += 1;
+    }
+    assert!(
+        checked > 0,
+        "{name}: no shell with summation and two-state results"
+    );
 }
 
 #[test]

@@ -364,29 +364,29 @@ pub fn value_error(value: f64, error: f64) -> String {
 }
 
 /// `value(e1)(e2)...`, e.g. `0.968(18)(8)` for a statistical and a systematic error: the
-/// largest error gets two significant digits and every positive error at least one (common
-/// practice); each error is written in units of the last digit of the value.
+/// largest error sets the last digit of the value with two significant digits (the Particle
+/// Data Group's rounding of a value to its error), and every error is written in units of
+/// that digit, so a much smaller error shows as `(1)` or `(0)` rather than giving the largest
+/// one three or more digits (`1(12)(1)`, not `1.1(122)(5)`).
 pub fn value_errors(value: f64, errors: &[f64]) -> String {
-    let positive = || errors.iter().copied().filter(|e| e.is_finite() && *e > 0.0);
-    let largest = positive().fold(0.0, f64::max);
-    let smallest = positive().fold(f64::INFINITY, f64::min);
+    let largest = errors
+        .iter()
+        .copied()
+        .filter(|e| e.is_finite() && *e > 0.0)
+        .fold(0.0, f64::max);
     if !value.is_finite() || largest <= 0.0 {
         return value_error(value, largest);
     }
-    let decimals_for = |e: f64, sig: i32| {
-        let d = sig - 1 - e.log10().floor() as i32;
-        // rounding may add a digit (0.0996 → 0.10)
-        if (e * 10f64.powi(d)).round() >= 10f64.powi(sig) {
-            d - 1
-        } else {
-            d
-        }
-    };
-    let decimals = decimals_for(largest, 2).max(decimals_for(smallest, 1));
+    // two significant digits of the largest error; rounding may add a digit (0.0996 → 0.10)
+    let mut decimals = 1 - largest.log10().floor() as i32;
+    if (largest * 10f64.powi(decimals)).round() >= 100.0 {
+        decimals -= 1;
+    }
     let unit = 10f64.powi(-decimals);
     let digits = |e: f64| {
         if e.is_finite() {
-            format!("({:.0})", e / unit)
+            // in units of the last digit of the value, or in full when that digit is 10 or more
+            format!("({:.0})", (e / unit).round() * unit.max(1.0))
         } else {
             "(?)".to_string()
         }
@@ -413,6 +413,13 @@ mod tests {
         assert_eq!(value_errors(12.34, &[1.5, 0.27]), "12.3(15)(3)");
         assert_eq!(value_errors(3.571, &[0.24, 0.33]), "3.57(24)(33)");
         assert_eq!(value_errors(1.0, &[]), "1.00000");
+        // an error larger than the value: the largest error keeps two digits, the smaller
+        // one is rounded to the same last digit (was `1.1(122)(5)`)
+        assert_eq!(value_errors(1.1, &[12.2, 0.5]), "1(12)(1)");
+        assert_eq!(value_errors(1.234, &[0.5, 0.0012]), "1.23(50)(0)");
+        // errors of 100 and more are written in full, as by value_error
+        assert_eq!(value_errors(1.3, &[9723.12, 0.03]), "0(9700)(0)");
+        assert_eq!(value_errors(0.5, &[0.0996, 0.02]), "0.50(10)(2)");
     }
 
     #[test]

@@ -4,7 +4,9 @@ For a form factor at a shell the truth is the value at the truth point with p_f 
 |q|^2 = nq2 of the shell label; G_E(0), G_M(0) are the truth at q = 0; for the dipole form
 factors of the spec, r = sqrt(12) / M * a (fm) and kappa = G_M(0) - G_E(0).
 Coverage is compared with the normal 68.3 % and 95.4 % and judged with the binomial
-standard deviation of the count.
+standard deviation of the count. Also printed: the pulls per quantity, the pulls of each
+estimator alone (statistical error only) for G_E and G_M at the shells, and the mean weight
+each estimator received in the final values of the shells (and how often it was excluded).
 """
 import csv
 import math
@@ -37,7 +39,9 @@ def truth_values(truth, spec):
 def main():
     work = sys.argv[1]
     pulls = []  # (quantity, pull)
-    variant_pulls = {}  # estimator -> pulls of its form factors at every shell (stat error)
+    variant_pulls = {}  # (estimator, form factor) -> pulls at every shell (stat error)
+    weights = {}  # estimator -> weights in the final values at the shells
+    excluded = {}  # estimator -> number of shells where it was excluded
     runs = 0
     for seed_dir in sorted(os.listdir(work)):
         d = os.path.join(work, seed_dir)
@@ -58,7 +62,10 @@ def main():
                 err = float(row["error"])
                 if key in want and err > 0:
                     p = (float(row["value"]) - want[key]) / err
-                    variant_pulls.setdefault(row["method"], []).append(p)
+                    variant_pulls.setdefault((row["method"], row["quantity"]), []).append(p)
+                weights.setdefault(row["method"], []).append(float(row["weight"]))
+                if row["excluded"] and not row["excluded"].startswith("final value pinned"):
+                    excluded[row["method"]] = excluded.get(row["method"], 0) + 1
         with open(final) as f:
             for row in csv.DictReader(f):
                 q = row["quantity"]
@@ -78,6 +85,9 @@ def main():
     if n == 0:
         print("no pulls")
         return 1
+    allp = [p for _, p in pulls]
+    print(f"all: n {n}, mean pull {sum(allp) / n:+.2f}, "
+          f"pull rms {math.sqrt(sum(p * p for p in allp) / n):.2f}")
     for k, expected in ((1, 0.6827), (2, 0.9545)):
         inside = sum(1 for _, p in pulls if abs(p) < k)
         sd = math.sqrt(expected * (1 - expected) / n)
@@ -94,14 +104,20 @@ def main():
         mean = sum(ps) / len(ps)
         rms = math.sqrt(sum(p * p for p in ps) / len(ps))
         print(f"  {q:<14} {len(ps):3d} {w1:3d} {w2:3d} {mean:+.2f} {rms:.2f}")
-    print("each estimator alone (form factors at every shell, statistical error):")
-    for m in sorted(variant_pulls):
-        ps = variant_pulls[m]
+    print("each estimator alone at every shell (statistical error): "
+          "n, within 1 and 2 sigma, mean pull, rms pull")
+    for m, ff in sorted(variant_pulls):
+        ps = variant_pulls[(m, ff)]
         w1 = sum(abs(p) < 1 for p in ps)
         w2 = sum(abs(p) < 2 for p in ps)
         mean = sum(ps) / len(ps)
         rms = math.sqrt(sum(p * p for p in ps) / len(ps))
-        print(f"  {m:<14} {len(ps):3d} {w1 / len(ps):.2f} {w2 / len(ps):.2f} {mean:+.2f} {rms:.2f}")
+        print(f"  {m:<14} {ff:<3} {len(ps):3d} {w1 / len(ps):.2f} {w2 / len(ps):.2f} "
+              f"{mean:+.2f} {rms:.2f}")
+    print("weights in the final values at the shells: estimator, mean weight, times excluded")
+    for m in sorted(weights):
+        ws = weights[m]
+        print(f"  {m:<14} {sum(ws) / len(ws):.3f} {excluded.get(m, 0):3d}/{len(ws)}")
     return 0
 
 

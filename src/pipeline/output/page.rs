@@ -135,13 +135,15 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
     };
     let rule = match &first.budget.rule {
         crate::error_budget::Rule::EqualWeights => format!(
-            "Each value is an equal-weight average over the analysis variants of the run \
-             (plateau separations within the plateau, the estimators, the Q² models), \
-             written value(stat)(sys). The systematic error adds in quadrature the spread of \
-             the estimators (exc), of the plateau separations (fit), of the Q² models \
-             (model) and the renormalization error (Z). Variants more than {} sigma from \
-             the two-state (else summation) result are excluded; final_variants.csv lists \
-             every variant with its weight.",
+            "Each value is an equal-weight average of the summation and two-state results \
+             (over the Q² models too), written value(stat)(sys); the plateaus are shown as a \
+             check of the trend in tsep and carry weight only when neither of the others \
+             exists. The systematic error adds in quadrature the full difference between \
+             the summation and two-state results (exc), the spread of the plateau \
+             separations when plateaus make the value (fit), the spread of the Q² models \
+             (model) and the renormalization error (Z). A summation result more than {} sigma \
+             from the two-state result is left out of the value but still counts in the \
+             excited-state error; final_variants.csv lists every variant with its weight.",
             crate::error_budget::CROSSCHECK_SIGMA
         ),
         crate::error_budget::Rule::Pinned(e) => format!(

@@ -139,6 +139,21 @@ where
         y_hi: y_ends.1,
     };
     let y_area = y_label_area(y_ends, chart.log_y, y_tick);
+    // A counting axis: at most one label per whole number (plotters then steps by 1, 2, 5, …),
+    // and no label at a fraction.
+    let x_labels = if chart.integer_x {
+        ((xr.end - xr.start).floor() as usize + 1).clamp(2, 10)
+    } else {
+        10
+    };
+    let integer_x = chart.integer_x;
+    let x_tick = move |v: &f64| {
+        if integer_x && (v - v.round()).abs() > 1e-9 {
+            String::new()
+        } else {
+            tick(*v)
+        }
+    };
     let mut ctx = ChartBuilder::on(root)
         .margin(12)
         .margin_right(24)
@@ -148,9 +163,9 @@ where
     ctx.configure_mesh()
         .x_desc(&chart.x_label)
         .y_desc(&chart.y_label)
-        .x_labels(10)
+        .x_labels(x_labels)
         .y_labels(8)
-        .x_label_formatter(&|v| tick(*v))
+        .x_label_formatter(&x_tick)
         .y_label_formatter(&|v| y_tick(*v))
         .label_style((FONT, 14))
         .axis_desc_style((FONT, 16))

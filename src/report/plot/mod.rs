@@ -77,6 +77,8 @@ pub struct Chart {
     pub log_y: bool,
     /// Fixed x range instead of the data range (with 4 % padding).
     pub x_range: Option<(f64, f64)>,
+    /// The x axis counts items (variant 1, 2, …): ticks only at whole numbers.
+    pub integer_x: bool,
     /// Fixed y range instead of the data range (with 6 % padding).
     pub y_range: Option<(f64, f64)>,
     /// Legend position.
@@ -95,6 +97,7 @@ impl Default for Chart {
             reference_lines: Vec::new(),
             log_y: false,
             x_range: None,
+            integer_x: false,
             y_range: None,
             legend: Legend::Outside,
             size: (800, 500),

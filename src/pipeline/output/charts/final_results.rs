@@ -42,6 +42,7 @@ fn chart(r: &FinalRow) -> Figure {
         x_label: "variant".into(),
         y_label: axis_label(&r.quantity, &r.unit),
         size: (800, 400),
+        integer_x: true,
         ..Chart::default()
     };
     let n = b.variants.len() as f64;

@@ -1,8 +1,10 @@
 //! Variational-method plots: effective energies of each state's principal correlator (per-t
 //! solution, with the fitted energy as a band) and the eigenvector components versus t,
-//! one chart per momentum (at most three momenta, smallest |n|² first).
+//! one chart per momentum (at most three momenta, smallest |n|² first), each file named by its
+//! momentum (`gevp-energies-p0.0.1.svg`).
 
 use super::figure::Figure;
+use super::style::momentum_stem;
 use crate::data::norm2;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
@@ -28,7 +30,7 @@ fn label(p: [i32; 3]) -> String {
 /// Effective energies per state with the fitted energies.
 pub(super) fn effective_energies(results: &RunResults) -> Vec<Figure> {
     let mut out = Vec::new();
-    for (i, g) in shown(results).into_iter().enumerate() {
+    for g in shown(results) {
         let mut chart = Chart {
             title: format!("GEVP effective energies per state, {}", label(g.momentum)),
             x_label: "t".into(),
@@ -62,7 +64,7 @@ pub(super) fn effective_energies(results: &RunResults) -> Vec<Figure> {
         }
         out.push(Figure::new(
             Plot::GevpEnergies,
-            format!("gevp-energies-{i}"),
+            format!("gevp-energies-p{}", momentum_stem(g.momentum)),
             chart,
         ));
     }
@@ -75,7 +77,7 @@ pub(super) fn vectors(results: &RunResults) -> Vec<Figure> {
         return Vec::new();
     };
     let mut out = Vec::new();
-    for (i, g) in shown(results).into_iter().enumerate() {
+    for g in shown(results) {
         let mut chart = Chart {
             title: format!("GEVP eigenvector components, {}", label(g.momentum)),
             x_label: "t".into(),
@@ -108,7 +110,7 @@ pub(super) fn vectors(results: &RunResults) -> Vec<Figure> {
         }
         out.push(Figure::new(
             Plot::GevpVectors,
-            format!("gevp-vectors-{i}"),
+            format!("gevp-vectors-p{}", momentum_stem(g.momentum)),
             chart,
         ));
     }

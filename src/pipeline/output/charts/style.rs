@@ -94,21 +94,24 @@ pub(super) fn file_safe(s: &str) -> String {
     out
 }
 
+/// The file stem part of a momentum: `0.0.1`, negative components as `m1` (`m1.0.0`).
+pub(super) fn momentum_stem(v: [i32; 3]) -> String {
+    v.iter()
+        .map(|c| {
+            if *c < 0 {
+                format!("m{}", -c)
+            } else {
+                c.to_string()
+            }
+        })
+        .collect::<Vec<_>>()
+        .join(".")
+}
+
 /// The file stem part of a channel: `V4-unpol-pf0.0.0-q0.0.1` (negative components as `m1`),
 /// with the flavour and diagram when the channel has them.
 pub(super) fn channel_stem(k: &ChannelKey) -> String {
-    let p = |v: [i32; 3]| {
-        v.iter()
-            .map(|c| {
-                if *c < 0 {
-                    format!("m{}", -c)
-                } else {
-                    c.to_string()
-                }
-            })
-            .collect::<Vec<_>>()
-            .join(".")
-    };
+    let p = momentum_stem;
     let mut stem = format!("{}-{}-pf{}-q{}", k.current, k.projector, p(k.pf), p(k.q));
     if let Some(fl) = &k.flavor {
         stem.push_str(&format!("-{}", file_safe(&fl.to_string())));
