@@ -8,12 +8,15 @@ use crate::error::{Error, Result};
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
 
+/// Files with the values their path gave to the placeholders.
+pub type FileList = Vec<(PathBuf, Captures)>;
+
 /// Deepest group nesting walked (a damaged file may link a group into itself).
 const MAX_DEPTH: usize = 32;
 
 /// The files of a (non-packed) layout with their placeholder values, the configuration
 /// numbers in ascending order, and whether datasets hold a configuration axis.
-pub fn layout_files(m: &Mapping) -> Result<(Vec<(PathBuf, Captures)>, Vec<i64>, bool)> {
+pub fn layout_files(m: &Mapping) -> Result<(FileList, Vec<i64>, bool)> {
     Ok(match &m.layout {
         Layout::PerConfig { base, files } => {
             let files = list_files(base, files)?;
@@ -45,7 +48,7 @@ pub fn layout_files(m: &Mapping) -> Result<(Vec<(PathBuf, Captures)>, Vec<i64>, 
 
 /// The files a per-configuration template names, sorted by configuration (then path), with
 /// the values of their placeholders.
-pub fn list_files(base: &Path, tpl: &Template) -> Result<Vec<(PathBuf, Captures)>> {
+pub fn list_files(base: &Path, tpl: &Template) -> Result<FileList> {
     let text = tpl.text();
     let mut found: Vec<(PathBuf, Captures)> = vec![(
         if text.starts_with('/') {
