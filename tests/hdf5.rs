@@ -63,7 +63,7 @@ fn mapping_errors_name_the_setting() {
 #[cfg(feature = "hdf5")]
 mod with_library {
     use super::*;
-    use formfactory::data::{Current, Projector, ThreePointKey, TwoPointKey};
+    use formfactory::data::{Current, Operators, Projector, ThreePointKey, TwoPointKey};
     use formfactory::io::hdf5::{read_packed, read_source, write_packed, Mapping};
     use std::collections::BTreeMap;
 
@@ -314,6 +314,81 @@ mod with_library {
         let o = formfactory(dir.path(), &["inspect", packed.to_str().unwrap()]);
         assert!(o.status.success(), "{}", stderr(&o));
         assert!(stdout(&o).contains("configurations: 4"), "{}", stdout(&o));
+    }
+
+    /// `operator_value` of tests/fixtures/hdf5/make_fixtures.py (dyadic, so exact).
+    fn operator_value(cfg_index: usize, pair: usize, t: usize) -> [f64; 2] {
+        let (c, p, t) = (cfg_index as f64, pair as f64, t as f64);
+        [1.0 + c / 4.0 + t / 8.0 + 2.0 * p, -t / 16.0 - p / 32.0]
+    }
+
+    #[test]
+    fn operator_labels_in_the_path_survive_pack_and_convert() {
+        let m = mapping(
+            "{files: 'operators/conf{config}.h5', \
+             twopt: '/2pt/p{px}_{py}_{pz}/snk_{sink_op}/src_{source_op}', \
+             threept: '/3pt/tsep{tsep}/{current}/snk_{sink_op}/src_{source_op}', \
+             fixed: {projector: unpol, pfx: '0', pfy: '0', pfz: '0', qx: '0', qy: '0', qz: '1'}}",
+        );
+        let (two, three, _) = read_source(&m, None, &|_, _| {}).unwrap();
+        assert_eq!(two.configs, vec![100, 104]);
+        assert_eq!((two.channels.len(), three.channels.len()), (4, 2));
+        let ops = ["g5", "g4g5"];
+        for (a, sink) in ops.iter().enumerate() {
+            for (b, source) in ops.iter().enumerate() {
+                let pair = 2 * a + b;
+                let mut k = key2([0, 0, 0], None);
+                k.ops = Some(Operators::new(sink, source));
+                let s = &two.channels[&k];
+                let mut k3 = key3(2, Current::V4);
+                k3.ops = Some(Operators::new(sink, source));
+                let s3 = three.channels.get(&k3);
+                assert_eq!(s3.is_some(), a == b, "{k3:?}");
+                for i in 0..2 {
+                    for t in 0..4 {
+                        let got = [s.re[s.index(t, i)], s.im[s.index(t, i)]];
+                        assert_eq!(got, operator_value(i, pair, t));
+                    }
+                    for (tau, s3) in s3.iter().flat_map(|s| (0..3).map(move |t| (t, s))) {
+                        let got = [s3.re[s3.index(tau, i)], s3.im[s3.index(tau, i)]];
+                        assert_eq!(got, operator_value(i, pair + 8, tau));
+                    }
+                }
+            }
+        }
+        // pack, read back, convert to CSV (sink_op / source_op columns) and read that back
+        let dir = tempdir();
+        let packed = dir.path().join("ops.h5");
+        write_packed(&packed, &two, &three).unwrap();
+        assert_eq!(read_packed(&packed).unwrap(), (two.clone(), three.clone()));
+        let out = dir.path().join("csv");
+        let o = formfactory(
+            dir.path(),
+            &[
+                "convert",
+                packed.to_str().unwrap(),
+                "--out",
+                out.to_str().unwrap(),
+            ],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        let header = std::fs::read_to_string(out.join("twopt.csv")).unwrap();
+        assert!(
+            header
+                .lines()
+                .next()
+                .unwrap()
+                .ends_with("sink_op,source_op"),
+            "{header}"
+        );
+        let back = formfactory::io::read_dataset(
+            &out.join("twopt.csv"),
+            Some(&out.join("threept.csv")),
+            &Default::default(),
+        )
+        .unwrap();
+        assert_eq!(back.twopt, two);
+        assert_eq!(back.threept.unwrap(), three);
     }
 
     #[test]

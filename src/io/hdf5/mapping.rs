@@ -5,7 +5,9 @@
 //! and validates the section (and then says how to enable the feature).
 
 use super::template::{Captures, Template};
-use crate::data::{Current, Diagram, Projector, ThreePointKey, TwoPointKey};
+use crate::data::{
+    Current, Diagram, Operators, Projector, ThreePointKey, TwoPointKey, CHANNEL_COLUMNS,
+};
 use crate::error::{Error, Result};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -78,22 +80,38 @@ pub struct Mapping {
     pub fixed: BTreeMap<String, String>,
 }
 
-const TWOPT_FIELDS: &[&str] = &["config", "source", "px", "py", "pz", "smear"];
-const THREEPT_FIELDS: &[&str] = &[
-    "config",
-    "source",
-    "pfx",
-    "pfy",
-    "pfz",
-    "qx",
-    "qy",
-    "qz",
-    "tsep",
-    "current",
-    "projector",
-    "flavor",
-    "diagram",
-];
+/// Placeholders every layout may use: the configuration, the source position and the
+/// operator labels of the variational method (CSV columns `sink_op`, `source_op`; both or
+/// neither).
+const COMMON_FIELDS: [&str; 4] = ["config", "source", "sink_op", "source_op"];
+/// The operator-label pair.
+const OPERATOR_FIELDS: [&str; 2] = ["sink_op", "source_op"];
+/// The two-point channel fields every mapping must fill.
+const TWOPT_REQUIRED: [&str; 3] = ["px", "py", "pz"];
+/// Optional channel fields of the three-point table beside the channel columns.
+const THREEPT_OPTIONAL: [&str; 2] = ["flavor", "diagram"];
+
+/// The three-point channel fields every mapping must fill: the columns that name a channel
+/// in every table ([`CHANNEL_COLUMNS`]) and `tsep`.
+fn threept_required() -> impl Iterator<Item = &'static str> {
+    CHANNEL_COLUMNS.into_iter().chain(["tsep"])
+}
+
+/// The placeholders a two-point dataset template may use.
+fn twopt_fields() -> Vec<&'static str> {
+    let mut f = COMMON_FIELDS.to_vec();
+    f.extend(TWOPT_REQUIRED);
+    f.push("smear");
+    f
+}
+
+/// The placeholders a three-point dataset template (or a file template) may use.
+fn threept_fields() -> Vec<&'static str> {
+    let mut f = COMMON_FIELDS.to_vec();
+    f.extend(threept_required());
+    f.extend(THREEPT_OPTIONAL);
+    f
+}
 
 impl Hdf5Source {
     /// Check the section and resolve paths against `base` (the pipeline's directory). `key`
@@ -142,13 +160,16 @@ impl Hdf5Source {
             }
             Ok(tpl)
         };
-        let twopt = parse(&self.twopt, "twopt", TWOPT_FIELDS)?;
-        let threept = parse(&self.threept, "threept", THREEPT_FIELDS)?;
+        let twopt = parse(&self.twopt, "twopt", &twopt_fields())?;
+        let threept = parse(&self.threept, "threept", &threept_fields())?;
+        let mut fixable = threept_fields();
+        fixable.retain(|f| *f != "config");
+        fixable.push("smear");
         for name in self.fixed.keys() {
-            if name == "config" || !THREEPT_FIELDS.contains(&name.as_str()) && name != "smear" {
+            if !fixable.contains(&name.as_str()) {
                 return Err(Error::config(format!(
-                    "{key}.fixed: `{name}` is not a channel field that can be fixed; expected one of smear, {}",
-                    THREEPT_FIELDS[1..].join(", ")
+                    "{key}.fixed: `{name}` is not a channel field that can be fixed; expected one of {}",
+                    fixable.join(", ")
                 )));
             }
         }
@@ -159,7 +180,7 @@ impl Hdf5Source {
                     "{key}.files: `{f}` has no `{{config}}` placeholder; per-configuration files must name their configuration"
                 )));
             }
-            check_fields(&files, &format!("{key}.files"), THREEPT_FIELDS)?;
+            check_fields(&files, &format!("{key}.files"), &threept_fields())?;
             Layout::PerConfig {
                 base: base.to_path_buf(),
                 files,
@@ -179,29 +200,28 @@ impl Hdf5Source {
             threept: Some(threept),
             fixed: self.fixed.clone(),
         };
-        for (kind, fields) in [
-            ("twopt", &["px", "py", "pz"][..]),
-            (
-                "threept",
-                &[
-                    "pfx",
-                    "pfy",
-                    "pfz",
-                    "qx",
-                    "qy",
-                    "qz",
-                    "tsep",
-                    "current",
-                    "projector",
-                ][..],
-            ),
-        ] {
+        let required = [
+            ("twopt", TWOPT_REQUIRED.to_vec()),
+            ("threept", threept_required().collect()),
+        ];
+        for (kind, fields) in required {
             for f in fields {
                 if !mapping.provides(kind, f) {
                     return Err(Error::config(format!(
                         "{key}.{kind}: the channel field `{f}` is in no template and not in `fixed`"
                     )));
                 }
+            }
+            let [sink, source] = OPERATOR_FIELDS.map(|f| mapping.provides(kind, f));
+            if sink != source {
+                let [have, lack] = if sink {
+                    OPERATOR_FIELDS
+                } else {
+                    [OPERATOR_FIELDS[1], OPERATOR_FIELDS[0]]
+                };
+                return Err(Error::config(format!(
+                    "{key}.{kind}: `{have}` needs `{lack}` as well (operator labels come in pairs; give both in a template or in `fixed`, or neither)"
+                )));
             }
         }
         Ok(mapping)
@@ -288,12 +308,18 @@ impl<'a> Fields<'a> {
         self.get("source").map(|_| self.int("source")).transpose()
     }
 
+    /// The operator pair, when the mapping gives both labels (checked when it was resolved).
+    fn operators(&self) -> Option<Operators> {
+        let [sink, source] = OPERATOR_FIELDS.map(|f| self.get(f));
+        Some(Operators::new(sink?, source?))
+    }
+
     /// The two-point key.
     pub fn twopt_key(&self) -> std::result::Result<TwoPointKey, String> {
         Ok(TwoPointKey {
             momentum: self.mom(["px", "py", "pz"])?,
             smear: self.get("smear").map(str::to_string),
-            ops: None,
+            ops: self.operators(),
         })
     }
 
@@ -330,7 +356,53 @@ impl<'a> Fields<'a> {
             projector,
             flavor: self.get("flavor").map(str::to_string),
             diagram,
-            ops: None,
+            ops: self.operators(),
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_channel_field_is_a_template_placeholder() {
+        for name in twopt_fields().into_iter().chain(threept_fields()) {
+            assert!(
+                super::super::template::FIELDS
+                    .iter()
+                    .any(|f| f.name == name),
+                "{name}"
+            );
+        }
+    }
+
+    #[test]
+    fn operator_labels_come_in_pairs() {
+        let src = |yaml: &str| serde_yaml_ng::from_str::<Hdf5Source>(yaml).unwrap();
+        let one = src(
+            "{files: 'c{config}.h5', twopt: '/a/p{px}_{py}_{pz}/{sink_op}', \
+             threept: '/b/{tsep}/{current}/{projector}/{pfx}_{pfy}_{pfz}_{qx}_{qy}_{qz}'}",
+        );
+        let e = one.resolve(Path::new("."), "data.hdf5").unwrap_err();
+        assert!(e.to_string().contains("`sink_op` needs `source_op`"), "{e}");
+        // `fixed` holds for both tables: here the three-point table would get a source label only.
+        let fixed = src(
+            "{files: 'c{config}.h5', twopt: '/a/p{px}_{py}_{pz}/{sink_op}', \
+             threept: '/b/{tsep}/{current}/{projector}/{pfx}_{pfy}_{pfz}_{qx}_{qy}_{qz}', \
+             fixed: {source_op: g5}}",
+        );
+        let e = fixed.resolve(Path::new("."), "data.hdf5").unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("threept: `source_op` needs `sink_op`"),
+            "{e}"
+        );
+        let both = src(
+            "{files: 'c{config}.h5', twopt: '/a/p{px}_{py}_{pz}/{sink_op}/{source_op}', \
+             threept: '/b/{tsep}/{current}/{projector}/{pfx}_{pfy}_{pfz}_{qx}_{qy}_{qz}'}",
+        );
+        let m = both.resolve(Path::new("."), "data.hdf5").unwrap();
+        assert!(m.provides("twopt", "sink_op") && !m.provides("threept", "sink_op"));
     }
 }

@@ -52,6 +52,8 @@ pub const FIELDS: &[Field] = &[
     text("projector"),
     text("flavor"),
     text("diagram"),
+    text("sink_op"),
+    text("source_op"),
 ];
 
 #[derive(Clone, Debug, PartialEq, Eq)]
