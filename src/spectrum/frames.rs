@@ -161,7 +161,7 @@ pub(super) fn gap_prior_note(
                 "moving frames take the prior of their first gap from the rest frame (E1 - E0 = \
                  {:.4} at rest, carried by the {} dispersion relation; log-gap width {width} \
                  with the rest-frame error {:.2} in quadrature)",
-                rest_gap_value(r),
+                r.e1 - r.e0,
                 match settings.prior_frames {
                     PriorFrames::LatticeDispersion => "lattice",
                     _ => "continuum",
@@ -173,8 +173,4 @@ pub(super) fn gap_prior_note(
               multi-state fit (or no dispersion relation is set)"
             .into(),
     })
-}
-
-fn rest_gap_value(r: &RestGap) -> f64 {
-    r.e1 - r.e0
 }
