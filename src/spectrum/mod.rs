@@ -241,15 +241,20 @@ pub fn run_with_progress(
     for (i, (&p, series)) in order.enumerate() {
         progress(i, channels.len());
         let corr = resample_series(series, plan)?;
-        let weighting = match plan.scheme() {
-            Scheme::Jackknife => corr.clone(),
-            Scheme::Bootstrap => resample_series(series, &ResamplePlan::jackknife(plan.n_bins()))?,
+        // A jackknife run is its own weighting; a bootstrap run adds a jackknife over the bins.
+        let jackknife = match plan.scheme() {
+            Scheme::Jackknife => None,
+            Scheme::Bootstrap => Some(resample_series(
+                series,
+                &ResamplePlan::jackknife(plan.n_bins()),
+            )?),
         };
+        let weighting = jackknife.as_deref().unwrap_or(&corr);
         let mut local = frames::momentum_settings(p, settings);
         if let (Some(rest), Some(width)) = (&rest_gap, settings.rest_frame_gap_width) {
             local.priors.first_log_gap = frames::carried_gap_prior(p, rest, width, settings);
         }
-        match fit_correlator(p, &corr, &weighting, &local, &mut warnings) {
+        match fit_correlator(p, &corr, weighting, &local, &mut warnings) {
             Ok(s) => {
                 if p == [0, 0, 0] {
                     rest_gap = frames::rest_gap(&s);
