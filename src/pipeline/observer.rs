@@ -14,7 +14,7 @@ pub trait Observer: Sync {
     /// `done` of the stage's `total` items (momenta, channels, estimators, fits) are done;
     /// may be called from any thread, not necessarily in order.
     fn progress(&self, _stage: &str, _done: usize, _total: usize) {}
-    /// A warning was raised (it is also kept in [`RunResults::warnings`]).
+    /// A warning was raised (it is also kept in [`RunResults::warnings`](super::RunResults::warnings)).
     fn warning(&self, _message: &str) {}
 }
 
