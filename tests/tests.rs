@@ -19,6 +19,7 @@ mod q2_priors;
 mod ratio;
 mod report;
 mod resample;
+mod run_autocorrelation;
 mod spectrum;
 mod spectrum_closure;
 mod variational;

@@ -434,7 +434,7 @@ fn autocorrelation(out: &mut String, points: &[PointAutocorr], warnings: &mut Ve
 }
 
 /// A representative point in words: `Re C2 <channel> t=3`, `Im C3 <channel> tau=4`.
-fn point_name(p: &CheckedPoint) -> String {
+pub(crate) fn point_name(p: &CheckedPoint) -> String {
     match p {
         CheckedPoint::TwoPoint { key, t } => format!("Re C2 {} t={t}", super::describe_twopt(key)),
         CheckedPoint::ThreePoint {

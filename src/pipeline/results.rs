@@ -7,6 +7,7 @@ use crate::error_budget::Budget;
 use crate::kinematics::{FormFactor, Renormalized};
 use crate::q2::Q2Fit;
 use crate::ratio::{ChannelKey, ChannelResult, Estimator};
+use crate::resample::autocorr::{AutocorrResult, BinningPoint};
 use crate::resample::Resampled;
 use crate::spectrum::SpectrumResult;
 use std::collections::BTreeMap;
@@ -17,6 +18,8 @@ use std::time::Duration;
 pub struct DataSummary {
     /// Configurations read (common to both tables).
     pub n_configs: usize,
+    /// Configurations per bin.
+    pub bin_size: usize,
     /// Bins after binning.
     pub n_bins: usize,
     /// Resamples.
@@ -33,6 +36,23 @@ pub struct DataSummary {
     pub dropped_by_binning: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
+    /// The integrated autocorrelation time and binning study of a few representative data
+    /// points, on the configurations before binning.
+    pub autocorrelation: Vec<AutocorrPoint>,
+}
+
+/// The Monte Carlo history of one representative data point: its integrated
+/// autocorrelation time (Gamma method) and the error of its mean against the bin size.
+#[derive(Clone, Debug)]
+pub struct AutocorrPoint {
+    /// The point in words (`Re C2 p=(0,0,0) t=12`).
+    pub point: String,
+    /// Configurations in the history.
+    pub n: usize,
+    /// The Gamma-method result, or why it could not be estimated.
+    pub result: std::result::Result<AutocorrResult, String>,
+    /// The naive error of the mean of bins of `bin_size` configurations, from 1 upwards.
+    pub binning: Vec<BinningPoint>,
 }
 
 /// One form factor on one Q² shell from one excited-state method.

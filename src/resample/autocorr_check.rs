@@ -2,9 +2,10 @@
 //! data set (the zero-momentum two-point function at `t = 1, T/4, T/2`, the first
 //! three-point channel at `tau = tsep/2` in its larger part) and the integrated
 //! autocorrelation time of each by the Gamma method ([`super::autocorr::gamma_method`],
-//! Wolff's default window factor). The text is written by `io::inspect`.
+//! Wolff's default window factor). The text is written by `io::inspect`; a run writes the
+//! same points with their binning study ([`study`]) into its tables and report.
 
-use super::autocorr::{gamma_method, AutocorrResult, DEFAULT_S};
+use super::autocorr::{binning_study, gamma_method, AutocorrResult, BinningPoint, DEFAULT_S};
 use crate::data::{ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::error::Result;
 use std::collections::BTreeSet;
@@ -58,6 +59,63 @@ pub fn check<'a>(
     two: Option<&'a TwoPointData>,
     three: Option<&'a ThreePointData>,
 ) -> Vec<PointAutocorr<'a>> {
+    representative_points(two, three)
+        .into_iter()
+        .map(|(point, x)| PointAutocorr {
+            point,
+            result: gamma_method(&x, WINDOW_S),
+        })
+        .collect()
+}
+
+/// One representative point with its integrated autocorrelation time and its binning study.
+#[derive(Debug)]
+pub struct PointStudy<'a> {
+    /// The point and its Gamma-method result.
+    pub autocorr: PointAutocorr<'a>,
+    /// The naive error of the mean against the bin size, from 1 up to an eighth of the
+    /// configurations (at least eight bins remain).
+    pub binning: Vec<BinningPoint>,
+}
+
+/// The bin sizes a binning study tries on `n` configurations: up to `n / 8`, so that the
+/// largest still leaves eight bins for its error estimate (common practice: with fewer bins
+/// the error of the error exceeds a quarter).
+pub fn study_bin_sizes(n: usize) -> usize {
+    (n / 8).max(1)
+}
+
+/// [`check`] with a binning study of every point, on the unbinned configurations.
+pub fn study<'a>(
+    two: Option<&'a TwoPointData>,
+    three: Option<&'a ThreePointData>,
+) -> Vec<PointStudy<'a>> {
+    representative_points(two, three)
+        .into_iter()
+        .map(|(point, x)| PointStudy {
+            binning: binning_study(&x, study_bin_sizes(x.len())),
+            autocorr: PointAutocorr {
+                point,
+                result: gamma_method(&x, WINDOW_S),
+            },
+        })
+        .collect()
+}
+
+/// Whether bins of `bin_size` configurations are too small for an integrated
+/// autocorrelation time `tau_int` ± `tau_int_error`: the bins should span about `2 tau_int`
+/// (then the binned error contains the autocorrelation, common practice); the check asks for
+/// more than the estimate's own error, `2 (tau_int - error) > bin_size`, so that independent
+/// data (`tau_int = 1/2`) are not flagged by noise.
+pub fn bins_too_small(bin_size: usize, tau_int: f64, tau_int_error: f64) -> bool {
+    2.0 * (tau_int - tau_int_error) > bin_size as f64
+}
+
+/// The points `check` and `study` look at, each with its Monte Carlo history.
+fn representative_points<'a>(
+    two: Option<&'a TwoPointData>,
+    three: Option<&'a ThreePointData>,
+) -> Vec<(CheckedPoint<'a>, Vec<f64>)> {
     let mut points: Vec<(CheckedPoint<'a>, Vec<f64>)> = Vec::new();
     if let Some(d) = two {
         let chosen = d
@@ -91,10 +149,4 @@ pub fn check<'a>(
         }
     }
     points
-        .into_iter()
-        .map(|(point, x)| PointAutocorr {
-            point,
-            result: gamma_method(&x, WINDOW_S),
-        })
-        .collect()
 }

@@ -1,11 +1,15 @@
-//! The first stage of a run: read both tables, apply the data rules, bin, and build the one
-//! resample plan every later stage uses.
+//! The first stage of a run: read both tables, apply the data rules, study the
+//! autocorrelation of a few representative points, bin, and build the one resample plan
+//! every later stage uses.
 
 use crate::data::{ThreePointData, TwoPointData};
+use crate::io::inspect::point_name;
 use crate::pipeline::observer::Recorder;
 use crate::pipeline::plan::Plan;
-use crate::pipeline::results::DataSummary;
+use crate::pipeline::results::{AutocorrPoint, DataSummary};
 use crate::pipeline::spec::ResamplingMethod;
+use crate::resample::autocorr::AutocorrResult;
+use crate::resample::autocorr_check;
 use crate::resample::binning::{bin_threept, bin_twopt};
 use crate::resample::ResamplePlan;
 use crate::Result;
@@ -35,6 +39,10 @@ pub(in crate::pipeline) fn read_and_resample(
         ));
     }
     let b = spec.resampling.bin_size;
+    let autocorrelation = autocorrelation(&two, &three);
+    if let Some(w) = bin_size_warning(&autocorrelation, b) {
+        rec.warn(w);
+    }
     let (two, report) = bin_twopt(&two, b)?;
     let (three, _) = bin_threept(&three, b)?;
     if !report.dropped_configs.is_empty() {
@@ -53,6 +61,7 @@ pub(in crate::pipeline) fn read_and_resample(
     };
     let summary = DataSummary {
         n_configs,
+        bin_size: b,
         n_bins,
         n_samples: rplan.n_samples(),
         n_twopt_channels: two.channels.len(),
@@ -61,6 +70,7 @@ pub(in crate::pipeline) fn read_and_resample(
         dropped_not_in_both: read.dropped_configs,
         dropped_by_binning: report.dropped_configs,
         notes,
+        autocorrelation,
     };
     let prepared = Prepared {
         two,
@@ -68,6 +78,44 @@ pub(in crate::pipeline) fn read_and_resample(
         plan: rplan,
     };
     Ok((prepared, summary))
+}
+
+/// The autocorrelation study of the representative points, on the unbinned data.
+fn autocorrelation(two: &TwoPointData, three: &ThreePointData) -> Vec<AutocorrPoint> {
+    autocorr_check::study(Some(two), Some(three))
+        .into_iter()
+        .map(|s| AutocorrPoint {
+            point: point_name(&s.autocorr.point),
+            n: two.configs.len(),
+            result: s.autocorr.result.map_err(|e| e.to_string()),
+            binning: s.binning,
+        })
+        .collect()
+}
+
+/// One warning when the bins are shorter than about twice the integrated autocorrelation
+/// time at any representative point (beyond the estimate's error), naming the worst.
+fn bin_size_warning(points: &[AutocorrPoint], bin_size: usize) -> Option<String> {
+    let flagged: Vec<(&str, &AutocorrResult)> = points
+        .iter()
+        .filter_map(|p| p.result.as_ref().ok().map(|r| (p.point.as_str(), r)))
+        .filter(|(_, r)| autocorr_check::bins_too_small(bin_size, r.tau_int, r.tau_int_error))
+        .collect();
+    let (worst, r) = flagged
+        .iter()
+        .max_by(|a, b| a.1.tau_int.total_cmp(&b.1.tau_int))?;
+    let suggested = (2.0 * r.tau_int).ceil().max(1.0);
+    Some(format!(
+        "autocorrelation: bins of {bin_size} configuration(s) are shorter than 2 tau_int at \
+         {} of {} representative points (largest: tau_int = {:.2} +- {:.2} at {worst}); errors \
+         may be too small by up to a factor {:.2}; consider resampling.bin_size: {suggested} \
+         (see autocorrelation.csv and binning_study.csv)",
+        flagged.len(),
+        points.len(),
+        r.tau_int,
+        r.tau_int_error,
+        (2.0 * r.tau_int / bin_size as f64).sqrt(),
+    ))
 }
 
 /// Configuration numbers for a message: all of them up to 20, else the first 20 and a count

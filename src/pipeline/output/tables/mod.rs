@@ -7,6 +7,7 @@
 //! stage it shows, and call it from [`TableName::build`]. It is then written as CSV and JSON
 //! and available to the page through [`Tables::get`].
 
+mod autocorrelation;
 mod cells;
 mod final_results;
 mod formfactors;
@@ -58,11 +59,15 @@ pub enum TableName {
     GevpEnergies,
     /// Optimised against single-operator results.
     OperatorComparison,
+    /// Integrated autocorrelation time of representative data points.
+    Autocorrelation,
+    /// Error of the mean of representative data points against the bin size.
+    BinningStudy,
 }
 
 impl TableName {
     /// Every table, in the order they are written.
-    pub const ALL: [TableName; 16] = [
+    pub const ALL: [TableName; 18] = [
         TableName::Final,
         TableName::FinalVariants,
         TableName::FormFactors,
@@ -79,6 +84,8 @@ impl TableName {
         TableName::GevpVectors,
         TableName::GevpEnergies,
         TableName::OperatorComparison,
+        TableName::Autocorrelation,
+        TableName::BinningStudy,
     ];
 
     /// The file stem (`formfactors` → `formfactors.csv`, `formfactors.json`).
@@ -100,6 +107,8 @@ impl TableName {
             TableName::GevpVectors => "gevp_vectors",
             TableName::GevpEnergies => "gevp_energies",
             TableName::OperatorComparison => "operator_comparison",
+            TableName::Autocorrelation => "autocorrelation",
+            TableName::BinningStudy => "binning_study",
         }
     }
 
@@ -124,6 +133,8 @@ impl TableName {
             TableName::GevpVectors => gevp::vectors(name, results),
             TableName::GevpEnergies => gevp::energies(name, results),
             TableName::OperatorComparison => gevp::comparison(name, results),
+            TableName::Autocorrelation => autocorrelation::autocorrelation(name, results),
+            TableName::BinningStudy => autocorrelation::binning_study(name, results),
         }
     }
 }
