@@ -13,6 +13,7 @@ mod hdf5;
 mod io;
 mod kinematics;
 mod mock;
+mod outputs;
 mod pipeline;
 mod q2;
 mod q2_priors;
