@@ -7,6 +7,7 @@ mod campaign;
 mod cli;
 mod closure;
 mod data_checks;
+mod defaults;
 mod docs;
 mod fit;
 mod hdf5;
