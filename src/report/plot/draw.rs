@@ -5,8 +5,8 @@
 //! leave the range.
 
 use super::axes::{tick, y_label_area};
-use super::markup;
 use super::chart::{colour_of, Chart, Legend, Marker, Series, SeriesKind, FONT, GREY};
+use super::markup;
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::coord::Shift;
 use plotters::prelude::*;
