@@ -13,6 +13,7 @@ mod fit;
 mod hdf5;
 mod io;
 mod kinematics;
+mod layout;
 mod mock;
 mod outputs;
 mod pipeline;
