@@ -202,7 +202,7 @@ fn run_example(name: &str, out: &Path, extra: &[&str]) {
 }
 
 /// Rows of a CSV file as maps from column name to field.
-fn read_rows(path: &Path) -> Vec<std::collections::BTreeMap<String, String>> {
+pub(crate) fn read_rows(path: &Path) -> Vec<std::collections::BTreeMap<String, String>> {
     let mut r = csv::Reader::from_path(path).unwrap();
     let header: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
     r.records()
@@ -216,7 +216,7 @@ fn read_rows(path: &Path) -> Vec<std::collections::BTreeMap<String, String>> {
         .collect()
 }
 
-fn num(row: &std::collections::BTreeMap<String, String>, col: &str) -> f64 {
+pub(crate) fn num(row: &std::collections::BTreeMap<String, String>, col: &str) -> f64 {
     row[col].parse().unwrap()
 }
 
@@ -262,6 +262,8 @@ fn every_example_pipeline_checks_and_runs() {
         for f in [
             "formfactors.csv",
             "derived.csv",
+            "q2_fits.csv",
+            "negative_roots.csv",
             "spectrum.csv",
             "spectrum_fits.csv",
             "effective_mass.csv",
@@ -311,6 +313,7 @@ fn every_example_pipeline_checks_and_runs() {
             "{name}"
         );
         check_figures_and_page(name, &out);
+        crate::outputs::check_tables(name, &out);
     }
 }
 

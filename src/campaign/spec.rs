@@ -161,7 +161,7 @@ pub struct QuantitySpec {
 }
 
 fn default_method() -> String {
-    "two_state".into()
+    crate::ratio::Estimator::TwoState.to_string()
 }
 
 fn default_model() -> String {

@@ -171,93 +171,40 @@ pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> 
         ));
     };
     let (files, configs, config_axis) = layout_files(m)?;
-    let n_cfg = configs.len();
-    let mut two: Acc<TwoPointKey> = Acc::new(n_cfg);
-    let mut three: Acc<ThreePointKey> = Acc::new(n_cfg);
+    let mut walk = Walk {
+        m,
+        two_tpl,
+        three_tpl,
+        t_extent,
+        config_axis,
+        two: Acc::new(configs.len()),
+        three: Acc::new(configs.len()),
+        n_datasets: 0,
+        ignored: 0,
+    };
     let mut first_paths: Option<(PathBuf, usize)> = None;
-    let (mut n_datasets, mut ignored) = (0usize, 0usize);
     for (i, (path, file_caps)) in files.iter().enumerate() {
-        let (h5, len) = open_file(path)?;
-        let names = dataset_paths(&h5, path)?;
-        // Rows of each dataset: every configuration (configuration axis) or this file's one.
-        let (rows, axis): (Vec<usize>, Option<usize>) = if config_axis {
-            ((0..n_cfg).collect(), Some(n_cfg))
-        } else {
-            let f = Fields {
-                file: file_caps,
-                dataset: &Vec::new(),
-                fixed: &m.fixed,
-            };
-            let c = f.config().unwrap_or_default();
-            (vec![configs.binary_search(&c).unwrap_or_default()], None)
-        };
-        let mut seen = 0usize;
-        for name in &names {
-            let (caps, is_two) = if let Some(c) = two_tpl.matches(name) {
-                (c, true)
-            } else if let Some(c) = three_tpl.matches(name) {
-                (c, false)
-            } else {
-                ignored += 1;
-                continue;
-            };
-            let fields = Fields {
-                file: file_caps,
-                dataset: &caps,
-                fixed: &m.fixed,
-            };
-            let bad = |e: String| dataset_error(path, name, e);
-            let kind = if is_two {
-                Kind::Two(fields.twopt_key().map_err(bad)?)
-            } else {
-                Kind::Three(fields.threept_key().map_err(bad)?)
-            };
-            let source = fields.source().map_err(bad)?;
-            if let Some(c) = fields.get("config").filter(|_| !config_axis) {
-                // A `{config}` in the dataset path must agree with the file's.
-                let fc = Fields {
-                    file: file_caps,
-                    dataset: &Vec::new(),
-                    fixed: &m.fixed,
-                };
-                if fc.get("config") != Some(c) {
-                    return Err(bad(format!(
-                        "names configuration {c} inside the file of configuration {}",
-                        fc.get("config").unwrap_or("?")
-                    )));
-                }
-            }
-            match kind {
-                Kind::Two(key) => {
-                    let block = read_block(&h5, path, len, name, axis, t_extent)?;
-                    two.add(key, &block, &rows, source, &caps, path, name, |k| {
-                        format!("two-point {}", crate::io::describe_twopt(k))
-                    })?;
-                }
-                Kind::Three(key) => {
-                    let need = key.tsep as usize + 1;
-                    let block = read_block(&h5, path, len, name, axis, Some(need))?;
-                    three.add(key, &block, &rows, source, &caps, path, name, |k| {
-                        format!("three-point {}", crate::io::describe_threept(k))
-                    })?;
-                }
-            }
-            seen += 1;
-        }
-        n_datasets += seen;
+        let (names, seen) = walk.file(path, file_caps, &configs)?;
         match &first_paths {
             None => first_paths = Some((path.clone(), seen)),
             Some((first, first_seen)) => {
                 if seen < *first_seen {
                     return Err(missing_error(
-                        path, file_caps, &names, first, two_tpl, three_tpl, &two, &three,
+                        path,
+                        file_caps,
+                        &names,
+                        first,
+                        two_tpl,
+                        three_tpl,
+                        &walk.two,
+                        &walk.three,
                     ));
                 }
             }
         }
         progress(i + 1, files.len());
     }
-    if n_datasets == 0 {
+    if walk.n_datasets == 0 {
         return Err(Error::Table {
             path: files[0].0.clone(),
             message: format!(
@@ -267,51 +214,185 @@ pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> 
             ),
         });
     }
-    let (twopt, src2) = two.finish(&configs, |k| {
-        format!("two-point {}", crate::io::describe_twopt(k))
-    })?;
-    let (threept, src3) = three.finish(&configs, |k| {
-        format!("three-point {}", crate::io::describe_threept(k))
-    })?;
-    if twopt.is_empty() || threept.is_empty() {
-        let (kind, tpl) = if twopt.is_empty() {
-            ("two-point", two_tpl)
+    walk.finish(&files[0].0, files.len(), configs)
+}
+
+/// The state of one walk over the files of a mapping: the templates, the channels gathered
+/// so far and the counts for the notes.
+struct Walk<'a> {
+    m: &'a Mapping,
+    two_tpl: &'a Template,
+    three_tpl: &'a Template,
+    t_extent: Option<usize>,
+    config_axis: bool,
+    two: Acc<TwoPointKey>,
+    three: Acc<ThreePointKey>,
+    n_datasets: usize,
+    ignored: usize,
+}
+
+impl Walk<'_> {
+    /// Read every matching dataset of one file. Returns the file's dataset paths and how
+    /// many of them matched a template.
+    fn file(
+        &mut self,
+        path: &Path,
+        file_caps: &Captures,
+        configs: &[i64],
+    ) -> Result<(Vec<String>, usize)> {
+        let (h5, len) = open_file(path)?;
+        let names = dataset_paths(&h5, path)?;
+        let n_cfg = configs.len();
+        // Rows of each dataset: every configuration (configuration axis) or this file's one.
+        let (rows, axis): (Vec<usize>, Option<usize>) = if self.config_axis {
+            ((0..n_cfg).collect(), Some(n_cfg))
         } else {
-            ("three-point", three_tpl)
+            let f = Fields {
+                file: file_caps,
+                dataset: &Vec::new(),
+                fixed: &self.m.fixed,
+            };
+            let c = f.config().unwrap_or_default();
+            (vec![configs.binary_search(&c).unwrap_or_default()], None)
         };
-        return Err(Error::Table {
-            path: files[0].0.clone(),
-            message: format!("no {kind} dataset matches `{}`", tpl.text()),
-        });
+        let file = OpenFile {
+            h5: &h5,
+            path,
+            len,
+            caps: file_caps,
+            rows: &rows,
+            axis,
+        };
+        let mut seen = 0usize;
+        for name in &names {
+            if self.dataset(&file, name)? {
+                seen += 1;
+            } else {
+                self.ignored += 1;
+            }
+        }
+        self.n_datasets += seen;
+        Ok((names, seen))
     }
-    let mut notes = vec![format!(
-        "read {n_datasets} datasets from {} HDF5 file(s) into {} two-point and {} three-point channels on {n_cfg} configurations",
-        files.len(),
-        twopt.len(),
-        threept.len()
-    )];
-    if ignored > 0 {
-        notes.push(format!(
-            "ignored {ignored} dataset(s) that match neither dataset template"
-        ));
+
+    /// Match one dataset path against the templates and, when it matches, read it into its
+    /// channel. Returns whether it matched.
+    fn dataset(&mut self, file: &OpenFile, name: &str) -> Result<bool> {
+        let (caps, is_two) = if let Some(c) = self.two_tpl.matches(name) {
+            (c, true)
+        } else if let Some(c) = self.three_tpl.matches(name) {
+            (c, false)
+        } else {
+            return Ok(false);
+        };
+        let fields = Fields {
+            file: file.caps,
+            dataset: &caps,
+            fixed: &self.m.fixed,
+        };
+        let bad = |e: String| dataset_error(file.path, name, e);
+        let kind = if is_two {
+            Kind::Two(fields.twopt_key().map_err(bad)?)
+        } else {
+            Kind::Three(fields.threept_key().map_err(bad)?)
+        };
+        let source = fields.source().map_err(bad)?;
+        if let Some(c) = fields.get("config").filter(|_| !self.config_axis) {
+            // A `{config}` in the dataset path must agree with the file's.
+            let fc = Fields {
+                file: file.caps,
+                dataset: &Vec::new(),
+                fixed: &self.m.fixed,
+            };
+            if fc.get("config") != Some(c) {
+                return Err(bad(format!(
+                    "names configuration {c} inside the file of configuration {}",
+                    fc.get("config").unwrap_or("?")
+                )));
+            }
+        }
+        let (h5, path, len, axis, rows) = (file.h5, file.path, file.len, file.axis, file.rows);
+        match kind {
+            Kind::Two(key) => {
+                let block = read_block(h5, path, len, name, axis, self.t_extent)?;
+                self.two
+                    .add(key, &block, rows, source, &caps, path, name, describe_two)?;
+            }
+            Kind::Three(key) => {
+                let need = key.tsep as usize + 1;
+                let block = read_block(h5, path, len, name, axis, Some(need))?;
+                self.three
+                    .add(key, &block, rows, source, &caps, path, name, describe_three)?;
+            }
+        }
+        Ok(true)
     }
-    if m.provides_source() {
-        let (lo, hi) = (src2.0.min(src3.0), src2.1.max(src3.1));
-        notes.push(format!(
-            "averaged between {lo} and {hi} sources per configuration and data point"
-        ));
+
+    /// Average the gathered channels into the data model and write the notes. `first` is
+    /// the first file (named by the errors about missing kinds).
+    fn finish(self, first: &Path, n_files: usize, configs: Vec<i64>) -> Result<Collected> {
+        let n_cfg = configs.len();
+        let (twopt, src2) = self.two.finish(&configs, describe_two)?;
+        let (threept, src3) = self.three.finish(&configs, describe_three)?;
+        if twopt.is_empty() || threept.is_empty() {
+            let (kind, tpl) = if twopt.is_empty() {
+                ("two-point", self.two_tpl)
+            } else {
+                ("three-point", self.three_tpl)
+            };
+            return Err(Error::Table {
+                path: first.to_path_buf(),
+                message: format!("no {kind} dataset matches `{}`", tpl.text()),
+            });
+        }
+        let mut notes = vec![format!(
+            "read {} datasets from {n_files} HDF5 file(s) into {} two-point and {} three-point channels on {n_cfg} configurations",
+            self.n_datasets,
+            twopt.len(),
+            threept.len()
+        )];
+        if self.ignored > 0 {
+            notes.push(format!(
+                "ignored {} dataset(s) that match neither dataset template",
+                self.ignored
+            ));
+        }
+        if self.m.provides_source() {
+            let (lo, hi) = (src2.0.min(src3.0), src2.1.max(src3.1));
+            notes.push(format!(
+                "averaged between {lo} and {hi} sources per configuration and data point"
+            ));
+        }
+        Ok(Collected {
+            twopt: TwoPointData {
+                configs: configs.clone(),
+                channels: twopt,
+            },
+            threept: ThreePointData {
+                configs,
+                channels: threept,
+            },
+            notes,
+        })
     }
-    Ok(Collected {
-        twopt: TwoPointData {
-            configs: configs.clone(),
-            channels: twopt,
-        },
-        threept: ThreePointData {
-            configs,
-            channels: threept,
-        },
-        notes,
-    })
+}
+
+/// One open file and where its datasets' rows go.
+struct OpenFile<'a> {
+    h5: &'a hdf5::File,
+    path: &'a Path,
+    len: u64,
+    caps: &'a Captures,
+    rows: &'a [usize],
+    axis: Option<usize>,
+}
+
+fn describe_two(k: &TwoPointKey) -> String {
+    format!("two-point {}", crate::io::describe_twopt(k))
+}
+
+fn describe_three(k: &ThreePointKey) -> String {
+    format!("three-point {}", crate::io::describe_threept(k))
 }
 
 /// The error for a file that lacks datasets the first file had: the first missing channel's

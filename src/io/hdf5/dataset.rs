@@ -209,6 +209,29 @@ pub fn read_block(
     let desc = dtype.to_descriptor().map_err(h5)?;
     let storage = storage_of(&desc).map_err(err)?;
     let shape = ds.shape();
+    let (rows, n_t) = block_shape(&shape, &storage, config_axis).map_err(err)?;
+    check_size(&ds, dtype.size() as u64, &shape, file_len).map_err(err)?;
+    let keep = n_need.unwrap_or(n_t);
+    if n_t < keep {
+        return Err(err(format!("has {n_t} time slices; {keep} are needed")));
+    }
+    let values = read_values(&ds, storage).map_err(h5)?;
+    if values.len() != rows * n_t {
+        return Err(err(format!(
+            "returned {} values for shape {shape:?}",
+            values.len()
+        )));
+    }
+    finite_block(&values, rows, n_t, keep, config_axis.is_some()).map_err(err)
+}
+
+/// Check the dataset's axes against the layout (`(time[, 2])` per configuration, or
+/// `(configuration, time[, 2])` with `config_axis`); returns (rows, time slices).
+fn block_shape(
+    shape: &[usize],
+    storage: &Storage,
+    config_axis: Option<usize>,
+) -> std::result::Result<(usize, usize), String> {
     let lead = usize::from(config_axis.is_some());
     let pairs = matches!(storage, Storage::Pairs { .. });
     let rank = 1 + lead + usize::from(pairs);
@@ -219,74 +242,81 @@ pub fn read_block(
         (true, false) => "(configuration, time)",
     };
     if shape.len() != rank {
-        return Err(err(format!(
-            "has shape {shape:?}; expected {rank} axes {axes}"
-        )));
+        return Err(format!("has shape {shape:?}; expected {rank} axes {axes}"));
     }
     if pairs && shape[rank - 1] != 2 {
-        return Err(err(format!(
+        return Err(format!(
             "has shape {shape:?}; the last axis must have length 2 (real, imaginary)"
-        )));
+        ));
     }
     let rows = if lead == 1 { shape[0] } else { 1 };
     if let Some(n) = config_axis {
         if rows != n {
-            return Err(err(format!(
+            return Err(format!(
                 "has {rows} configurations along its first axis; the configuration list has {n}"
-            )));
+            ));
         }
     }
-    let n_t = shape[lead];
-    // Shape against file size before any allocation.
-    let elem = dtype.size() as u64;
+    Ok((rows, shape[lead]))
+}
+
+/// The shape and chunk shape against the file size, before anything is allocated (a
+/// compressed dataset may hold up to `MAX_COMPRESSION` times the file size).
+fn check_size(
+    ds: &hdf5::Dataset,
+    elem: u64,
+    shape: &[usize],
+    file_len: u64,
+) -> std::result::Result<(), String> {
     let count = shape
         .iter()
         .try_fold(1u64, |acc, &d| acc.checked_mul(d as u64))
-        .ok_or_else(|| err(format!("has an impossible shape {shape:?}")))?;
+        .ok_or_else(|| format!("has an impossible shape {shape:?}"))?;
     let bytes = count
         .checked_mul(elem)
-        .ok_or_else(|| err(format!("has an impossible shape {shape:?}")))?;
+        .ok_or_else(|| format!("has an impossible shape {shape:?}"))?;
     let limit = if ds.filters().is_empty() {
         file_len
     } else {
         file_len.saturating_mul(MAX_COMPRESSION)
     };
     if bytes > limit {
-        return Err(err(format!(
+        return Err(format!(
             "claims {bytes} bytes of data ({shape:?} of {elem}-byte values) in a file of {file_len} bytes: the file is damaged or truncated"
-        )));
+        ));
     }
     if let Some(chunk) = ds.chunk() {
         let chunk_bytes = chunk
             .iter()
             .try_fold(elem, |acc, &d| acc.checked_mul(d as u64));
         if chunk_bytes.is_none_or(|b| b > limit.max(1 << 20)) {
-            return Err(err(format!(
+            return Err(format!(
                 "has an impossible chunk shape {chunk:?}: the file is damaged"
-            )));
+            ));
         }
     }
-    let keep = n_need.unwrap_or(n_t);
-    if n_t < keep {
-        return Err(err(format!("has {n_t} time slices; {keep} are needed")));
-    }
-    let values: Vec<(f64, f64)> = match storage {
-        Storage::Pairs { single: false } => pairs_of(ds.read_raw::<f64>().map_err(h5)?),
-        Storage::Pairs { single: true } => pairs_of(
-            ds.read_raw::<f32>()
-                .map_err(h5)?
-                .into_iter()
-                .map(f64::from)
-                .collect(),
-        ),
-        Storage::Compound { re, im, single } => read_compound(&ds, re, im, single).map_err(h5)?,
-    };
-    if values.len() != rows * n_t {
-        return Err(err(format!(
-            "returned {} values for shape {shape:?}",
-            values.len()
-        )));
-    }
+    Ok(())
+}
+
+/// All values of the dataset as (re, im) pairs, widened to `f64`.
+fn read_values(ds: &hdf5::Dataset, storage: Storage) -> hdf5::Result<Vec<(f64, f64)>> {
+    Ok(match storage {
+        Storage::Pairs { single: false } => pairs_of(ds.read_raw::<f64>()?),
+        Storage::Pairs { single: true } => {
+            pairs_of(ds.read_raw::<f32>()?.into_iter().map(f64::from).collect())
+        }
+        Storage::Compound { re, im, single } => read_compound(ds, re, im, single)?,
+    })
+}
+
+/// The first `keep` of `n_t` time slices of each of `rows` rows, refusing non-finite values.
+fn finite_block(
+    values: &[(f64, f64)],
+    rows: usize,
+    n_t: usize,
+    keep: usize,
+    config_axis: bool,
+) -> std::result::Result<Block, String> {
     let mut block = Block {
         n_t: keep,
         re: Vec::with_capacity(rows * keep),
@@ -296,14 +326,14 @@ pub fn read_block(
         for t in 0..keep {
             let (re, im) = values[r * n_t + t];
             if !re.is_finite() || !im.is_finite() {
-                let at = if lead == 1 {
+                let at = if config_axis {
                     format!("configuration index {r}, time {t}")
                 } else {
                     format!("time {t}")
                 };
-                return Err(err(format!(
+                return Err(format!(
                     "non-finite value ({re}, {im}) at {at}; only finite numbers are allowed"
-                )));
+                ));
             }
             block.re.push(re);
             block.im.push(im);

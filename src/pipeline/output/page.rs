@@ -10,7 +10,7 @@ use crate::kinematics::Hadron;
 use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
-use crate::ratio::Flag;
+use crate::ratio::{Flag, NegativeRootPolicy};
 use crate::report::{readable, Block, Cell, Report, Section, Table};
 
 /// A figure rendered to SVG.
@@ -54,7 +54,7 @@ pub fn report_page(
         results
             .channels
             .is_some()
-            .then(|| excited_states(results, tables, figures)),
+            .then(|| excited_states(plan, results, tables, figures)),
         Some(Section::new("Warnings").with(Block::Warnings(results.warnings.clone()))),
         Some(settings_and_timing(plan, results)),
     ]
@@ -220,7 +220,12 @@ fn spectrum(tables: &Tables, figures: &[Rendered]) -> Section {
     section("Spectrum", blocks)
 }
 
-fn excited_states(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> Section {
+fn excited_states(
+    plan: &Plan,
+    results: &RunResults,
+    tables: &Tables,
+    figures: &[Rendered],
+) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::Ratio, Plot::Summation]);
     let crosscheck = tables.get(TableName::CrossCheck);
     let flag = Cell::from(Flag::Above2Sigma.name());
@@ -234,12 +239,57 @@ fn excited_states(results: &RunResults, tables: &Tables, figures: &[Rendered]) -
          difference from its own resamples); see crosscheck.csv.",
         crosscheck.rows.len()
     )));
+    blocks.extend(negative_roots(plan, results, tables));
     if tables.get(TableName::FormFactors).rows.is_empty() {
         // a run stopped after the ratio: the cross-check is its result
         blocks.push(Block::Table(super::summary::crosscheck_summary(results)));
         blocks.push(Block::Table(readable(crosscheck)));
     }
     section("Excited states", blocks)
+}
+
+/// One sentence on the negative products under the ratio's square root, and the rows of
+/// `negative_roots.csv` that have any.
+fn negative_roots(plan: &Plan, results: &RunResults, tables: &Tables) -> Vec<Block> {
+    let Some(channels) = &results.channels else {
+        return Vec::new();
+    };
+    let counts: Vec<_> = channels.values().map(|c| c.ratio.negative_root).collect();
+    let affected = counts.iter().filter(|n| n.samples > 0).count();
+    if affected == 0 {
+        return vec![Block::Paragraph(format!(
+            "Negative products under the square root of the ratio: none in {} channels.",
+            counts.len()
+        ))];
+    }
+    let values: usize = counts.iter().map(|n| n.samples).sum();
+    let points: usize = counts.iter().map(|n| n.points_affected).sum();
+    let dropped: usize = counts.iter().map(|n| n.points_dropped).sum();
+    let policy = match plan.spec.excited_states.negative_root {
+        NegativeRootPolicy::AbsValue => {
+            "`negative_root: abs_value` took the root of the absolute value".to_string()
+        }
+        NegativeRootPolicy::DropPoint => format!(
+            "`negative_root: drop_point` dropped {dropped} points and took the root of the \
+             absolute value for the other samples"
+        ),
+    };
+    let table = tables.get(TableName::NegativeRoots);
+    let mut shown = table.clone();
+    // the column `negative_values`, after the channel columns and `points`
+    let at = table.columns.iter().position(|c| c == "negative_values");
+    shown
+        .rows
+        .retain(|r| at.is_some_and(|i| r.get(i) != Some(&Cell::from(0usize))));
+    vec![
+        Block::Paragraph(format!(
+            "Negative products under the square root of the ratio: {values} values (central or \
+             resamples) in {points} (tsep, tau) points of {affected} of {} channels; {policy}. \
+             See negative_roots.csv.",
+            counts.len()
+        )),
+        Block::Table(shown),
+    ]
 }
 
 /// The pipeline file as written (with the `--set` overrides), every setting as resolved

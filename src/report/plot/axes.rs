@@ -2,7 +2,7 @@
 //! flatten the plot), the width of the y label column, and tick texts with a typographic
 //! minus sign and Unicode powers of ten.
 
-use super::{Chart, SeriesKind};
+use super::chart::{Chart, SeriesKind};
 use crate::report::table::{significant, trim_zeros};
 use std::ops::Range;
 

@@ -1,11 +1,12 @@
-//! The plotters calls behind [`super::render_svg`]: the page layout (title, legend column),
-//! the axes, then reference lines, bands, lines and points in that order, so points stay
-//! visible. Nothing is drawn outside the axes: points outside are marked by an arrow at the
-//! edge, error bars and bands are cut, lines are broken where they leave the range.
+//! The plotters calls behind the renderer (`render_svg`, in this module's parent): the page
+//! layout (title, legend column), the axes, then reference lines, bands, lines and points in
+//! that order, so points stay visible. Nothing is drawn outside the axes: points outside are
+//! marked by an arrow at the edge, error bars and bands are cut, lines are broken where they
+//! leave the range.
 
 use super::axes::{tick, y_label_area};
+use super::chart::{colour_of, Chart, Legend, Marker, Series, SeriesKind, FONT, GREY};
 use super::markup;
-use super::{colour_of, Chart, Legend, Marker, Series, SeriesKind, FONT, GREY};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
 use plotters::coord::Shift;
 use plotters::prelude::*;

@@ -18,7 +18,7 @@ mod spectrum;
 mod style;
 
 pub use figure::Figure;
-pub(in crate::pipeline::output) use style::{quantity as typeset_quantity, unit as typeset_unit};
+pub(super) use style::{quantity as typeset_quantity, unit as typeset_unit};
 
 use crate::pipeline::plan::Plan;
 use crate::pipeline::run::RunResults;

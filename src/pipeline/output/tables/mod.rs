@@ -12,6 +12,7 @@ mod cells;
 mod final_results;
 mod formfactors;
 mod gevp;
+mod q2_fits;
 mod ratio;
 mod spectrum;
 
@@ -35,6 +36,8 @@ pub enum TableName {
     FormFactors,
     /// Quantities derived from the Q² fits (charges, radii).
     Derived,
+    /// Every parameter of every Q² fit with the fit's quality.
+    Q2Fits,
     /// Energies per momentum and state with their fit quality.
     Spectrum,
     /// Every fit of the spectrum model average with its weight and exclusion reason.
@@ -47,6 +50,8 @@ pub enum TableName {
     CrossCheck,
     /// The bare matrix element per channel and estimator.
     MatrixElements,
+    /// Negative products under the ratio's square root, per channel.
+    NegativeRoots,
     /// Per-resample values of every form factor.
     FormFactorSamples,
     /// Per-resample values of every derived quantity.
@@ -72,12 +77,14 @@ impl TableName {
         TableName::FinalVariants,
         TableName::FormFactors,
         TableName::Derived,
+        TableName::Q2Fits,
         TableName::Spectrum,
         TableName::SpectrumFits,
         TableName::EffectiveMass,
         TableName::Dispersion,
         TableName::CrossCheck,
         TableName::MatrixElements,
+        TableName::NegativeRoots,
         TableName::FormFactorSamples,
         TableName::DerivedSamples,
         TableName::GevpCorrelators,
@@ -95,12 +102,14 @@ impl TableName {
             TableName::FinalVariants => "final_variants",
             TableName::FormFactors => "formfactors",
             TableName::Derived => "derived",
+            TableName::Q2Fits => "q2_fits",
             TableName::Spectrum => "spectrum",
             TableName::SpectrumFits => "spectrum_fits",
             TableName::EffectiveMass => "effective_mass",
             TableName::Dispersion => "dispersion",
             TableName::CrossCheck => "crosscheck",
             TableName::MatrixElements => "matrix_elements",
+            TableName::NegativeRoots => "negative_roots",
             TableName::FormFactorSamples => "formfactor_samples",
             TableName::DerivedSamples => "derived_samples",
             TableName::GevpCorrelators => "gevp_correlators",
@@ -121,12 +130,14 @@ impl TableName {
             TableName::FinalVariants => final_results::final_variants(name, results),
             TableName::FormFactors => formfactors::formfactors(name, &results.form_factors),
             TableName::Derived => formfactors::derived(name, results),
+            TableName::Q2Fits => q2_fits::q2_fits(name, results),
             TableName::Spectrum => spectrum::energies(name, results),
             TableName::SpectrumFits => spectrum::fits(name, results),
             TableName::EffectiveMass => spectrum::effective_mass(name, results),
             TableName::Dispersion => spectrum::dispersion(name, results),
             TableName::CrossCheck => ratio::crosscheck(name, results),
             TableName::MatrixElements => ratio::matrix_elements(name, results),
+            TableName::NegativeRoots => ratio::negative_roots(name, results),
             TableName::FormFactorSamples => Ok(formfactors::formfactor_samples(name, results)),
             TableName::DerivedSamples => Ok(formfactors::derived_samples(name, results)),
             TableName::GevpCorrelators => gevp::correlators(name, results),

@@ -101,3 +101,34 @@ pub(super) fn matrix_elements(name: &str, results: &RunResults) -> Result<Table>
     }
     Ok(t)
 }
+
+/// `negative_roots`: per channel, how often the product of two-point functions under the
+/// ratio's square root was negative (`excited_states.negative_root` decides what was done
+/// about it). `points` counts the channel's `(tsep, tau)` points kept, `negative_values` the
+/// values (central and samples, over all points) with a negative product, `points_affected`
+/// the points with at least one, `points_dropped` those dropped under `drop_point`.
+pub(super) fn negative_roots(name: &str, results: &RunResults) -> Result<Table> {
+    let mut cols: Vec<&str> = CHANNEL_COLUMNS.to_vec();
+    cols.extend([
+        "points",
+        "negative_values",
+        "points_affected",
+        "points_dropped",
+    ]);
+    let mut t = Table::new(name, &cols);
+    let Some(channels) = &results.channels else {
+        return Ok(t);
+    };
+    for (k, c) in channels {
+        let n = c.ratio.negative_root;
+        let mut cells = channel_cells(k);
+        cells.extend([
+            Cell::from(c.ratio.points.len()),
+            Cell::from(n.samples),
+            Cell::from(n.points_affected),
+            Cell::from(n.points_dropped),
+        ]);
+        t.push_row(cells)?;
+    }
+    Ok(t)
+}
