@@ -72,7 +72,7 @@ pub enum TableName {
 
 impl TableName {
     /// Every table, in the order they are written.
-    pub const ALL: [TableName; 18] = [
+    pub const ALL: [TableName; 20] = [
         TableName::Final,
         TableName::FinalVariants,
         TableName::FormFactors,
