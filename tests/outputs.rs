@@ -155,18 +155,9 @@ fn q2_fits(name: &str, out: &Path, derived: &[Row], spacing: f64) {
 fn negative_roots(name: &str, out: &Path) {
     let rows = read_rows(&out.join("negative_roots.csv"));
     let channel = |r: &Row| {
-        [
-            "pfx",
-            "pfy",
-            "pfz",
-            "qx",
-            "qy",
-            "qz",
-            "current",
-            "projector",
-        ]
-        .map(|c| r[c].clone())
-        .join(",")
+        formfactory::data::CHANNEL_COLUMNS
+            .map(|c| r[c].clone())
+            .join(",")
     };
     let channels: std::collections::BTreeSet<String> = read_rows(&out.join("matrix_elements.csv"))
         .iter()

@@ -6,6 +6,7 @@
 //! error of a mean rises with the bin size towards sqrt(2 tau_int) = 2 times the naive one.
 
 use crate::common::{fixture, formfactory, stderr, tempdir};
+use crate::pipeline::read_rows;
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -36,20 +37,6 @@ stop_after: spectrum
 output:
   dir: run
 ";
-
-fn rows(path: &Path) -> Vec<BTreeMap<String, String>> {
-    let mut r = csv::Reader::from_path(path).unwrap();
-    let header: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
-    r.records()
-        .map(|rec| {
-            header
-                .iter()
-                .cloned()
-                .zip(rec.unwrap().iter().map(String::from))
-                .collect()
-        })
-        .collect()
-}
 
 fn number(row: &BTreeMap<String, String>, column: &str) -> f64 {
     row[column]
@@ -84,7 +71,7 @@ fn a_run_measures_tau_int_studies_binning_and_warns_when_bins_are_short() {
     let o = formfactory(dir.path(), &["run", "p.yaml", "--quiet"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let run = dir.path().join("run");
-    let table = rows(&run.join("autocorrelation.csv"));
+    let table = read_rows(&run.join("autocorrelation.csv"));
     assert_eq!(
         table.len(),
         4,
@@ -102,7 +89,7 @@ fn a_run_measures_tau_int_studies_binning_and_warns_when_bins_are_short() {
         let ratio = number(r, "gamma_sigma") / number(r, "naive_sigma");
         assert!((1.5..2.6).contains(&ratio), "{}: {ratio}", r["point"]);
     }
-    let study = rows(&run.join("binning_study.csv"));
+    let study = read_rows(&run.join("binning_study.csv"));
     assert_eq!(study.len(), 4 * 50, "bins of 1 to n/8 = 50 for every point");
     // AR(1), bins of 20: the variance ratio to unbinned is
     // (1 + rho)/(1 - rho) - 2 rho (1 - rho^b) / (b (1 - rho)^2) = 3.63 (analytic), an error
@@ -154,7 +141,7 @@ fn a_run_measures_tau_int_studies_binning_and_warns_when_bins_are_short() {
         "{:?}",
         warnings(&run)
     );
-    for r in rows(&run.join("autocorrelation.csv")) {
+    for r in read_rows(&run.join("autocorrelation.csv")) {
         assert_eq!(r["bins_long_enough"], "yes", "{}", r["point"]);
         assert_eq!(r["bin_size"], "8");
         assert!(number(&r, "binned_sigma") > 1.4 * number(&r, "naive_sigma"));
