@@ -33,6 +33,8 @@ pub struct DataSummary {
     pub dropped_by_binning: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
+    /// Digests of the input tables computed while reading them, for the manifest.
+    pub input_digests: Vec<crate::io::FileDigest>,
 }
 
 /// One form factor on one Q² shell from one excited-state method.
