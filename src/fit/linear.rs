@@ -280,7 +280,8 @@ impl Workspace {
             bj.iter_mut().zip(v.iter()).for_each(|(q, p)| *q -= f * p);
             v[0] = alpha;
         }
-        if !(rmin > rmax * 1e-13) {
+        // A NaN ratio counts as deficient too.
+        if rmin.partial_cmp(&(rmax * 1e-13)) != Some(std::cmp::Ordering::Greater) {
             return Err(deficient());
         }
         // Back substitution R x = (Q^T b)[..np], then undo the column scaling.
