@@ -45,15 +45,18 @@
 //! A row that continues the previous row's channel is matched on the raw bytes of its key
 //! fields (one comparison per run of adjacent key columns) and not parsed again;
 //! configurations are matched by predicting the next one; plain decimals take Clinger's exact
-//! fast path (`parse_float` in `table.rs`, bit for bit the standard parser); the SHA-256 of each
+//! fast path (`number.rs`, bit for bit the standard parser); the SHA-256 of each
 //! table for the run manifest is computed from the bytes as they are read. On the
 //! `benches/read.rs` table (2.88 million rows, 218 MB) the reader needed about 1.5 s of CPU
 //! time (about 1.9 million rows/s, 140 MB/s) before these changes, and keeps only the data
 //! model in memory.
 
 mod accumulator;
+mod digest;
 pub mod hdf5;
 pub mod inspect;
+mod key_cache;
+mod number;
 mod open;
 pub mod seed;
 mod table;
@@ -61,8 +64,8 @@ mod threept;
 mod twopt;
 mod write;
 
+pub use digest::FileDigest;
 pub use open::{not_a_regular_file, open_regular, read_text_file, MAX_SPEC_BYTES};
-pub use table::FileDigest;
 pub use threept::{read_threept, read_threept_from};
 pub use twopt::{read_twopt, read_twopt_from};
 pub use write::{write_threept, write_twopt};

@@ -1,5 +1,6 @@
-//! Shared machinery of the CSV readers: header mapping, field parsing with precise error
-//! locations, and the cache that recognises a row continuing the previous row's channel.
+//! Shared machinery of the CSV readers: header mapping and field parsing with precise error
+//! locations (numbers in `number.rs`, the key cache in `key_cache.rs`, the digest taken while
+//! reading in `digest.rs`).
 //! The rows go into the accumulator of `accumulator.rs`.
 
 use crate::error::{Error, Location, Result};
@@ -47,55 +48,6 @@ pub(crate) fn open(path: &Path) -> Result<Box<dyn Read>> {
         Ok(Box::new(std::io::stdin()))
     } else {
         Ok(Box::new(super::open::open_table(path)?))
-    }
-}
-
-/// The SHA-256 digest (FIPS 180-4) and size of an input, computed from the bytes the reader
-/// consumed, so the run manifest needs no second pass over the file.
-#[derive(Clone, Debug, PartialEq, Eq)]
-pub struct FileDigest {
-    /// The path as the user gave it.
-    pub path: PathBuf,
-    /// Size in bytes.
-    pub bytes: u64,
-    /// SHA-256 of the contents, lower-case hex.
-    pub sha256: String,
-}
-
-/// A reader that hashes every byte it passes on.
-pub(crate) struct Hashing<R> {
-    inner: R,
-    hasher: sha2::Sha256,
-    bytes: u64,
-}
-
-impl<R: Read> Hashing<R> {
-    pub fn new(inner: R) -> Self {
-        Hashing {
-            inner,
-            hasher: sha2::Digest::new(),
-            bytes: 0,
-        }
-    }
-
-    /// The digest of everything read so far, recorded under `path`.
-    pub fn finish(self, path: &Path) -> FileDigest {
-        let digest = sha2::Digest::finalize(self.hasher);
-        let sha256 = digest.iter().map(|b| format!("{b:02x}")).collect();
-        FileDigest {
-            path: path.to_path_buf(),
-            bytes: self.bytes,
-            sha256,
-        }
-    }
-}
-
-impl<R: Read> Read for Hashing<R> {
-    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let n = self.inner.read(buf)?;
-        sha2::Digest::update(&mut self.hasher, &buf[..n]);
-        self.bytes += n as u64;
-        Ok(n)
     }
 }
 
@@ -289,7 +241,8 @@ impl<R: Read> TableReader<R> {
     /// Schema column `k` as a finite float.
     pub fn float(&self, k: usize, schema: &[Column]) -> Result<f64> {
         let raw = self.raw(k);
-        let v: f64 = parse_float(raw).ok_or_else(|| self.field_error(k, schema, "a number"))?;
+        let v: f64 = super::number::parse_float(raw)
+            .ok_or_else(|| self.field_error(k, schema, "a number"))?;
         if !v.is_finite() {
             return Err(Error::Data {
                 location: self.location(k, schema[k].name),
@@ -384,83 +337,6 @@ fn parse_int(b: &[u8]) -> Option<i64> {
     Some(v)
 }
 
-/// Parse a float as `str::parse::<f64>` does, bit for bit. Plain decimals with at most 19
-/// mantissa digits whose value `m` is below `2^53` and whose decimal exponent `e` satisfies
-/// `|e| <= 22` take Clinger's fast path (W. D. Clinger, "How to read floating point numbers
-/// accurately", PLDI 1990): `m` and `10^|e|` are exact doubles, so one correctly rounded
-/// multiplication or division gives the correctly rounded result. Everything else goes to
-/// the standard library.
-pub(crate) fn parse_float(b: &[u8]) -> Option<f64> {
-    const POW10: [f64; 23] = [
-        1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
-        1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
-    ];
-    let slow = || std::str::from_utf8(b).ok().and_then(|s| s.parse().ok());
-    let (neg, rest) = match b.first() {
-        Some(b'-') => (true, &b[1..]),
-        Some(b'+') => (false, &b[1..]),
-        _ => (false, b),
-    };
-    let mut m: u64 = 0;
-    let (mut digits, mut frac, mut i) = (0u32, 0i64, 0);
-    let mut seen_point = false;
-    while i < rest.len() {
-        match rest[i] {
-            c @ b'0'..=b'9' => {
-                if digits > 0 || c != b'0' {
-                    digits += 1;
-                }
-                if digits > 19 {
-                    return slow();
-                }
-                m = m * 10 + u64::from(c - b'0');
-                if seen_point {
-                    frac += 1;
-                }
-            }
-            b'.' if !seen_point => seen_point = true,
-            _ => break,
-        }
-        i += 1;
-    }
-    let mantissa_chars = i - usize::from(seen_point);
-    if mantissa_chars == 0 {
-        return slow();
-    }
-    let mut exp: i64 = 0;
-    if i < rest.len() {
-        if rest[i] != b'e' && rest[i] != b'E' {
-            return slow();
-        }
-        let tail = &rest[i + 1..];
-        let (eneg, edigits) = match tail.first() {
-            Some(b'-') => (true, &tail[1..]),
-            Some(b'+') => (false, &tail[1..]),
-            _ => (false, tail),
-        };
-        if edigits.is_empty() || edigits.len() > 4 || !edigits.iter().all(u8::is_ascii_digit) {
-            return slow();
-        }
-        exp = edigits
-            .iter()
-            .fold(0i64, |a, &c| a * 10 + i64::from(c - b'0'));
-        if eneg {
-            exp = -exp;
-        }
-    }
-    let e = exp - frac;
-    if m >= 1 << 53 || e.abs() > 22 {
-        return slow();
-    }
-    let v = m as f64;
-    let v = if e >= 0 {
-        v * POW10[e as usize]
-    } else {
-        v / POW10[(-e) as usize]
-    };
-    Some(if neg { -v } else { v })
-}
-
 fn schema_list(schema: &[Column]) -> String {
     schema
         .iter()
@@ -500,208 +376,10 @@ fn csv_error(file: &Path, e: csv::Error) -> Error {
     }
 }
 
-/// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
-/// channel (the usual case in long tables) skips parsing its key fields again. Key columns
-/// that sit side by side in the file are compared as one span of bytes (with their field
-/// boundaries), so a row costs one comparison per run of adjacent key columns, not one per
-/// field.
-#[derive(Default)]
-pub(crate) struct KeyCache {
-    /// Runs of adjacent key fields, `(first, last)` record indices, set on first use.
-    runs: Option<Vec<(usize, usize)>>,
-    /// The spans of the remembered row, run after run.
-    last: Vec<u8>,
-    /// Field ends of the remembered row relative to the start of their run.
-    ends: Vec<usize>,
-    valid: bool,
-    /// Channel id of the remembered row.
-    last_id: Option<u32>,
-}
-
-impl KeyCache {
-    /// The channel id of the current row: the remembered one when its key columns `cols`
-    /// repeat those of the previous row (tables are usually grouped by channel), otherwise
-    /// `lookup()`'s, which is then remembered. `cols` must be the same on every call.
-    pub fn channel_id<R: Read>(
-        &mut self,
-        rd: &TableReader<R>,
-        cols: &[usize],
-        lookup: impl FnOnce() -> Result<u32>,
-    ) -> Result<u32> {
-        if self.runs.is_none() {
-            self.runs = Some(runs(rd, cols));
-        }
-        if let Some(id) = self.last_id {
-            if self.same_as_last(rd) {
-                return Ok(id);
-            }
-        }
-        let id = lookup()?;
-        self.remember(rd);
-        self.last_id = Some(id);
-        Ok(id)
-    }
-
-    /// Whether the key fields of the current row are byte-identical to those of the
-    /// remembered row. Compares in place, without copying.
-    fn same_as_last<R: Read>(&self, rd: &TableReader<R>) -> bool {
-        let (Some(runs), true) = (&self.runs, self.valid) else {
-            return false;
-        };
-        let rec = &rd.record;
-        let bytes = rec.as_slice();
-        let (mut at, mut ends) = (0, self.ends.iter());
-        for &(a, b) in runs {
-            let (Some(first), Some(last)) = (rec.range(a), rec.range(b)) else {
-                return false;
-            };
-            for i in a..=b {
-                let end = rec.range(i).map(|r| r.end - first.start);
-                if end != ends.next().copied() {
-                    return false;
-                }
-            }
-            let span = &bytes[first.start..last.end];
-            if self.last.get(at..at + span.len()) != Some(span) {
-                return false;
-            }
-            at += span.len();
-        }
-        true
-    }
-
-    /// Remember the key fields of the current row.
-    fn remember<R: Read>(&mut self, rd: &TableReader<R>) {
-        self.last.clear();
-        self.ends.clear();
-        self.valid = false;
-        let Some(runs) = &self.runs else {
-            return;
-        };
-        let rec = &rd.record;
-        for &(a, b) in runs {
-            let (Some(first), Some(last)) = (rec.range(a), rec.range(b)) else {
-                return;
-            };
-            for i in a..=b {
-                match rec.range(i) {
-                    Some(r) => self.ends.push(r.end - first.start),
-                    None => return,
-                }
-            }
-            self.last
-                .extend_from_slice(&rec.as_slice()[first.start..last.end]);
-        }
-        self.valid = true;
-    }
-}
-
-/// The record indices of the schema columns `cols` present in the header, as runs of
-/// adjacent indices `(first, last)`.
-fn runs<R: Read>(rd: &TableReader<R>, cols: &[usize]) -> Vec<(usize, usize)> {
-    let mut idx: Vec<usize> = cols.iter().filter_map(|&k| rd.index[k]).collect();
-    idx.sort_unstable();
-    idx.dedup();
-    let mut out: Vec<(usize, usize)> = Vec::new();
-    for i in idx {
-        match out.last_mut() {
-            Some((_, last)) if *last + 1 == i => *last = i,
-            _ => out.push((i, i)),
-        }
-    }
-    out
-}
-
 /// The error for a table with a header and no data rows.
 pub(crate) fn no_data_rows(path: PathBuf) -> Error {
     Error::Table {
         path,
         message: "the table has a header but no data rows".into(),
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::parse_float;
-    use rand::{Rng, SeedableRng};
-    use rand_chacha::ChaCha8Rng;
-
-    // Reference: the standard library's correctly rounded parser; the fast path must agree
-    // bit for bit on every input, including those it hands back to the standard library.
-    #[test]
-    fn parse_float_equals_the_standard_parser_bit_for_bit() {
-        let fixed = [
-            "0",
-            "-0",
-            "+0",
-            "0.0",
-            "-0.0",
-            "1",
-            "-1",
-            "0.00227233",
-            "-0.000445675",
-            "1.5e-3",
-            "2E+5",
-            "1e22",
-            "1e23",
-            "9007199254740993",
-            "9007199254740992",
-            "123456789012345678",
-            "1234567890123456789",
-            "12345678901234567890",
-            "0.1",
-            "1.",
-            ".5",
-            "-.5",
-            ".",
-            "",
-            "-",
-            "e5",
-            "1e",
-            "1e+",
-            "1x",
-            "1.2.3",
-            "inf",
-            "-inf",
-            "NaN",
-            "nan",
-            "1e-400",
-            "1e400",
-            "4.9e-324",
-            "1.7976931348623157e308",
-            "00000000000000000000001",
-            "0.0000000000000000000000001",
-            "1_0",
-            " 1",
-            "1 ",
-            "+-1",
-            "1e99999",
-        ];
-        let check = |s: &str| {
-            let want = s.parse::<f64>().ok();
-            let got = parse_float(s.as_bytes());
-            assert_eq!(got.map(f64::to_bits), want.map(f64::to_bits), "`{s}`");
-        };
-        for s in fixed {
-            check(s);
-        }
-        // Seeded random decimals in the forms tables use: fixed and scientific notation
-        // with 1 to 19 significant digits and exponents around the fast path's limits.
-        let mut rng = ChaCha8Rng::seed_from_u64(14);
-        for _ in 0..200_000 {
-            let digits: u32 = rng.gen_range(1..=19);
-            let m: u64 = rng.gen_range(0..10u64.pow(digits));
-            let sign = if rng.gen_bool(0.5) { "-" } else { "" };
-            let s = match rng.gen_range(0..3) {
-                0 => {
-                    let text = m.to_string();
-                    let point = rng.gen_range(0..=text.len());
-                    format!("{sign}{}.{}", &text[..point], &text[point..])
-                }
-                1 => format!("{sign}{m}e{}", rng.gen_range(-30..=30)),
-                _ => format!("{sign}0.{:0>w$}", m, w = rng.gen_range(1..=25)),
-            };
-            check(&s);
-        }
     }
 }

@@ -4,9 +4,9 @@
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::table::{
-    display_name, no_data_rows, open, Column, FileDigest, Hashing, KeyCache, TableReader,
-};
+use super::digest::{FileDigest, Hashing};
+use super::key_cache::KeyCache;
+use super::table::{display_name, no_data_rows, open, Column, TableReader};
 use crate::data::{Current, Diagram, Operators, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;

@@ -4,9 +4,9 @@
 //! `t = 0..T-1` for every configuration.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::table::{
-    display_name, no_data_rows, open, Column, FileDigest, Hashing, KeyCache, TableReader,
-};
+use super::digest::{FileDigest, Hashing};
+use super::key_cache::KeyCache;
+use super::table::{display_name, no_data_rows, open, Column, TableReader};
 use crate::data::{Operators, Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
