@@ -439,3 +439,72 @@ fn fixed_design_correlated_line_agrees_with_per_vector_fit() {
     let e = fixed.solve_many(&refs).unwrap_err().to_string();
     assert!(e.contains("data point 2"), "{e}");
 }
+
+// Source: NIST StRD linear regression, Longley (certified coefficients), as above. The
+// per-vector QR workspace (designs that change per resample, as in the fixed-gap two-state
+// fit) gives the certified parameters and agrees with the SVD fit to rounding; reused for a
+// second, correlated problem (analytic GLS: the SVD fit) it agrees to 1e-12 relative.
+#[test]
+fn qr_workspace_matches_certified_values_and_the_svd_fit() {
+    let rows = rows("Longley.csv");
+    let n = rows.len();
+    let v: Vec<Vec<f64>> = rows
+        .iter()
+        .map(|r| r.iter().map(|s| s.parse().unwrap()).collect())
+        .collect();
+    let design = DMatrix::from_fn(n, 7, |i, j| if j == 0 { 1.0 } else { v[i][j - 1] });
+    let y: Vec<f64> = v.iter().map(|r| r[6]).collect();
+    let w = Weights::unit(n);
+    let mut work = linear::Workspace::new(n, 7);
+    let mut x = vec![0.0; 7];
+    work.solve(&design, &y, &w, &mut x).unwrap();
+    let c = certified("Longley");
+    let svd = linear::fit(&design, &y, &w, &[]).unwrap();
+    for k in 0..7 {
+        assert_relative_eq!(x[k], c[&format!("B{k}")].0, max_relative = 1e-7);
+        assert_relative_eq!(x[k], svd.params[k], max_relative = 1e-8);
+    }
+
+    let cov = DMatrix::from_fn(5, 5, |i, j| {
+        0.04 * 0.6f64.powi((i as i32 - j as i32).abs()) * (1.0 + 0.1 * i as f64)
+    });
+    let cov = (&cov + cov.transpose()) * 0.5;
+    let w = Weights::from_covariance(&cov).unwrap();
+    let mut work = linear::Workspace::new(5, 3);
+    let mut x = vec![0.0; 3];
+    for k in 0..4 {
+        let t: Vec<f64> = (0..5).map(|i| 8.0 + 2.0 * i as f64).collect();
+        let g = 0.3 + 0.05 * k as f64;
+        let design = DMatrix::from_fn(5, 3, |i, j| (-g * j as f64 * t[i]).exp());
+        let y: Vec<f64> = t
+            .iter()
+            .map(|&t| 1.1 - 0.4 * (-g * t).exp() + 0.01 * ((t as usize * (k + 3)) % 7) as f64)
+            .collect();
+        work.solve(&design, &y, &w, &mut x).unwrap();
+        let svd = linear::fit(&design, &y, &w, &[]).unwrap();
+        for (a, b) in x.iter().zip(&svd.params) {
+            assert_relative_eq!(*a, *b, max_relative = 1e-12);
+        }
+    }
+    // Errors as for the SVD fit: a non-finite point, a rank-deficient design.
+    let mut bad = vec![1.0; 5];
+    bad[3] = f64::INFINITY;
+    let design = DMatrix::from_fn(5, 3, |i, j| (j + i) as f64);
+    let e = work
+        .solve(&design, &bad, &w, &mut x)
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("data point 3"), "{e}");
+    let design = DMatrix::from_fn(5, 3, |i, j| {
+        if j == 2 {
+            2.0 * i as f64
+        } else {
+            (i * (j + 1)) as f64
+        }
+    });
+    let e = work
+        .solve(&design, &[1.0; 5], &w, &mut x)
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("rank deficient"), "{e}");
+}

@@ -768,3 +768,51 @@ fn rows_at_a_huge_time_do_not_allocate_per_time_slice() {
         csv.len()
     );
 }
+
+// Definition (data-format.md: a channel is the tuple of its key columns): rows whose adjacent
+// key fields hold the same bytes split differently (`1,12` and `11,2`) are different channels,
+// though the reader compares runs of adjacent key columns as one span; a key column that is
+// not adjacent to the others (`smear`, after `re`/`im`) is compared too.
+#[test]
+fn key_fields_are_compared_with_their_boundaries() {
+    let d = twopt_text(
+        "config,px,py,pz,t,re,im,smear\n\
+         1,1,12,0,0,1,0,a\n1,11,2,0,0,2,0,a\n1,11,2,0,0,3,0,ab\n1,11,2,0,1,4,0,ab\n\
+         1,1,12,0,1,5,0,a\n1,11,2,0,1,6,0,a\n1,11,2,0,0,7,0,b\n1,11,2,0,1,8,0,b\n",
+    )
+    .unwrap();
+    let got: Vec<([i32; 3], Option<String>, Vec<f64>)> = d
+        .channels
+        .iter()
+        .map(|(k, s)| (k.momentum, k.smear.clone(), s.re.clone()))
+        .collect();
+    assert_eq!(
+        got,
+        vec![
+            ([1, 12, 0], Some("a".into()), vec![1.0, 5.0]),
+            ([11, 2, 0], Some("a".into()), vec![2.0, 6.0]),
+            ([11, 2, 0], Some("ab".into()), vec![3.0, 4.0]),
+            ([11, 2, 0], Some("b".into()), vec![7.0, 8.0]),
+        ]
+    );
+}
+
+// Reference: the manifest's streaming SHA-256 of the whole file (report::manifest::sha256_file,
+// checked against the FIPS 180-4 test vectors in its unit tests); the digest taken while
+// reading must be the same, with the same size.
+#[test]
+fn tables_are_hashed_while_read() {
+    let root = crate::common::repo_root();
+    let two = root.join("demo-data/pion/twopt.csv");
+    let three = root.join("demo-data/pion/threept.csv");
+    let ds = io::read_dataset(&two, Some(&three), &io::ReadOptions::default()).unwrap();
+    assert_eq!(ds.digests.len(), 2);
+    for (d, p) in ds.digests.iter().zip([&two, &three]) {
+        let (sha, bytes) = formfactory::report::manifest::sha256_file(p).unwrap();
+        assert_eq!((&d.path, &d.sha256, d.bytes), (p, &sha, bytes));
+    }
+    let one = f("twopt_sources.csv");
+    let ds = io::read_dataset(&one, None, &io::ReadOptions::default()).unwrap();
+    let (sha, _) = formfactory::report::manifest::sha256_file(&one).unwrap();
+    assert_eq!(ds.digests[0].sha256, sha);
+}

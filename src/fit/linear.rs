@@ -174,6 +174,131 @@ impl FixedDesign {
     }
 }
 
+/// Buffers for solving many linear fits whose design changes from one data vector to the next
+/// (the fixed-gap two-state fit, whose design depends on the resampled gaps) without
+/// allocating per vector: each vector is solved by Householder QR of the column-scaled,
+/// whitened design (Golub & Van Loan, "Matrix Computations", 4th ed., §5.2 and §5.3.3). The
+/// solution equals [`fit`]'s (column-scaled SVD) up to rounding of order the condition number
+/// times the machine epsilon; both are backward stable and neither forms `A^T A`.
+#[derive(Clone, Debug)]
+pub struct Workspace {
+    /// Whitened, column-scaled design, overwritten by its QR factorisation.
+    a: DMatrix<f64>,
+    /// Whitened data, overwritten by `Q^T W y`.
+    b: Vec<f64>,
+    /// Column norms of the whitened design.
+    scale: Vec<f64>,
+}
+
+impl Workspace {
+    /// Buffers for designs of `n` points and `np` parameters.
+    pub fn new(n: usize, np: usize) -> Workspace {
+        Workspace {
+            a: DMatrix::zeros(n, np),
+            b: vec![0.0; n],
+            scale: vec![1.0; np],
+        }
+    }
+
+    /// Solve `min |W (design x - y)|` into `out` (one value per parameter). Errors as [`fit`]
+    /// does for mismatched sizes, a non-finite data point, or a rank-deficient or non-finite
+    /// design (the smallest diagonal of `R` below `1e-13` times the largest, the column-scaled
+    /// analogue of [`fit`]'s singular-value ratio).
+    pub fn solve(
+        &mut self,
+        design: &DMatrix<f64>,
+        y: &[f64],
+        w: &Weights,
+        out: &mut [f64],
+    ) -> Result<()> {
+        let (n, np) = self.a.shape();
+        if design.shape() != (n, np) || y.len() != n || w.len() != n || out.len() != np {
+            return Err(Error::analysis(
+                "fit",
+                format!(
+                    "linear fit: design is {}x{}, {} data, {} weights, {} outputs; expected a {n}x{np} design",
+                    design.nrows(),
+                    design.ncols(),
+                    y.len(),
+                    w.len(),
+                    out.len()
+                ),
+            ));
+        }
+        if let Some(i) = y.iter().position(|v| !v.is_finite()) {
+            return Err(Error::analysis(
+                "fit",
+                format!("linear fit: data point {i} is {}", y[i]),
+            ));
+        }
+        let deficient = || {
+            Error::analysis(
+                "fit",
+                "linear fit: design is rank deficient or not finite; parameters are not determined by the data",
+            )
+        };
+        if np == 0 || n < np {
+            return Err(deficient());
+        }
+        w.whiten_into(design, &mut self.a);
+        w.whiten(y, &mut self.b);
+        let a = self.a.as_mut_slice();
+        for (j, s) in self.scale.iter_mut().enumerate() {
+            let col = &mut a[j * n..(j + 1) * n];
+            let norm = col.iter().map(|x| x * x).sum::<f64>().sqrt();
+            if !norm.is_finite() {
+                return Err(deficient());
+            }
+            *s = if norm > 0.0 { norm } else { 1.0 };
+            let inv = 1.0 / *s;
+            col.iter_mut().for_each(|x| *x *= inv);
+        }
+        // Householder QR, the reflectors applied to the remaining columns and to b at once.
+        let mut rmax = 0.0f64;
+        let mut rmin = f64::INFINITY;
+        for j in 0..np {
+            let (done, rest) = a.split_at_mut((j + 1) * n);
+            let v = &mut done[j * n + j..];
+            let norm = v.iter().map(|x| x * x).sum::<f64>().sqrt();
+            let alpha = if v[0] > 0.0 { -norm } else { norm };
+            let (rabs, v0) = (alpha.abs(), v[0] - alpha);
+            rmax = rmax.max(rabs);
+            rmin = rmin.min(rabs);
+            if rabs == 0.0 {
+                return Err(deficient());
+            }
+            v[0] = v0;
+            // H = I - 2 v v^T / (v^T v), v^T v = 2 norm (norm + |a_jj|) = -2 alpha v0.
+            let vtv = -alpha * v0;
+            for c in rest.chunks_mut(n) {
+                let c = &mut c[j..];
+                let f = v.iter().zip(c.iter()).map(|(p, q)| p * q).sum::<f64>() / vtv;
+                c.iter_mut().zip(v.iter()).for_each(|(q, p)| *q -= f * p);
+            }
+            let bj = &mut self.b[j..];
+            let f = v.iter().zip(bj.iter()).map(|(p, q)| p * q).sum::<f64>() / vtv;
+            bj.iter_mut().zip(v.iter()).for_each(|(q, p)| *q -= f * p);
+            v[0] = alpha;
+        }
+        // A NaN ratio counts as deficient too.
+        if rmin.partial_cmp(&(rmax * 1e-13)) != Some(std::cmp::Ordering::Greater) {
+            return Err(deficient());
+        }
+        // Back substitution R x = (Q^T b)[..np], then undo the column scaling.
+        for j in (0..np).rev() {
+            let mut v = self.b[j];
+            for (k, o) in out.iter().enumerate().skip(j + 1) {
+                v -= a[k * n + j] * o;
+            }
+            out[j] = v / a[j * n + j];
+        }
+        for (o, s) in out.iter_mut().zip(&self.scale) {
+            *o /= s;
+        }
+        Ok(())
+    }
+}
+
 /// Correlated constant fit `y_i = c` (the plateau, docs/methods.md §4).
 pub fn constant(y: &[f64], w: &Weights) -> Result<LinearFit> {
     fit(&DMatrix::from_element(y.len(), 1, 1.0), y, w, &[])

@@ -193,11 +193,13 @@ impl Accumulator {
     /// each channel's number of time slices, `missing` builds the error for the first gap
     /// `(channel, t, config, first line of the channel)`.
     pub fn finish(
-        self,
+        mut self,
         order: &[u32],
         n_t: impl Fn(u32) -> usize,
         missing: impl Fn(u32, usize, i64, u64) -> Error,
     ) -> Result<Finished> {
+        // The duplicate check is done; its set (one entry per row) goes before the values grow.
+        let with_sources = self.sources.take().is_some();
         let mut sorted: Vec<(i64, usize)> = self
             .configs
             .iter()
@@ -210,7 +212,17 @@ impl Accumulator {
             vec![(Vec::new(), Vec::new()); self.channels.len()];
         let (mut smin, mut smax) = (u32::MAX, 0u32);
         for &id in order {
-            let chan = &self.channels[id as usize];
+            // Each channel's cells are released once its values are out, so the cells and
+            // the values of the whole table are never held at once.
+            let chan = std::mem::replace(
+                &mut self.channels[id as usize],
+                Channel {
+                    cells: Vec::new(),
+                    overflow: HashMap::new(),
+                    rows: 0,
+                    first_line: 0,
+                },
+            );
             let nt = n_t(id);
             // Reserve only once the channel is known to reach its last time slice, so a
             // corrupt time value cannot trigger a huge allocation before the gap is found.
@@ -241,7 +253,7 @@ impl Accumulator {
             values,
             summary: Summary {
                 rows: self.rows,
-                sources: self.sources.as_ref().map(|_| (smin.min(smax), smax)),
+                sources: with_sources.then(|| (smin.min(smax), smax)),
             },
         })
     }

@@ -1,5 +1,6 @@
-//! Shared machinery of the CSV readers: header mapping, field parsing with precise error
-//! locations, and the cache that recognises a row continuing the previous row's channel.
+//! Shared machinery of the CSV readers: header mapping and field parsing with precise error
+//! locations (numbers in `number.rs`, the key cache in `key_cache.rs`, the digest taken while
+//! reading in `digest.rs`).
 //! The rows go into the accumulator of `accumulator.rs`.
 
 use crate::error::{Error, Location, Result};
@@ -240,9 +241,7 @@ impl<R: Read> TableReader<R> {
     /// Schema column `k` as a finite float.
     pub fn float(&self, k: usize, schema: &[Column]) -> Result<f64> {
         let raw = self.raw(k);
-        let v: f64 = std::str::from_utf8(raw)
-            .ok()
-            .and_then(|s| s.parse().ok())
+        let v: f64 = super::number::parse_float(raw)
             .ok_or_else(|| self.field_error(k, schema, "a number"))?;
         if !v.is_finite() {
             return Err(Error::Data {
@@ -374,71 +373,6 @@ fn csv_error(file: &Path, e: csv::Error) -> Error {
             },
             message: format!("malformed CSV: {other:?}"),
         },
-    }
-}
-
-/// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
-/// channel (the usual case in long tables) skips parsing its key fields again.
-#[derive(Default)]
-pub(crate) struct KeyCache {
-    /// Length-prefixed key fields of the remembered row (so different field splits never
-    /// compare equal).
-    last: Vec<u8>,
-    valid: bool,
-    /// Channel id of the remembered row.
-    last_id: Option<u32>,
-}
-
-impl KeyCache {
-    /// The channel id of the current row: the remembered one when its key columns `cols`
-    /// repeat those of the previous row (tables are usually grouped by channel), otherwise
-    /// `lookup()`'s, which is then remembered.
-    pub fn channel_id<R: Read>(
-        &mut self,
-        rd: &TableReader<R>,
-        cols: &[usize],
-        lookup: impl FnOnce() -> Result<u32>,
-    ) -> Result<u32> {
-        if let Some(id) = self.last_id {
-            if self.same_as_last(rd, cols) {
-                return Ok(id);
-            }
-        }
-        let id = lookup()?;
-        self.remember(rd, cols);
-        self.last_id = Some(id);
-        Ok(id)
-    }
-
-    /// Whether the key columns `cols` of the current row are byte-identical to those of the
-    /// remembered row. Compares in place, without copying.
-    fn same_as_last<R: Read>(&self, rd: &TableReader<R>, cols: &[usize]) -> bool {
-        if !self.valid {
-            return false;
-        }
-        let mut rest = &self.last[..];
-        for &k in cols {
-            let b = rd.raw(k);
-            let Some((len, tail)) = rest.split_first_chunk::<4>() else {
-                return false;
-            };
-            if u32::from_le_bytes(*len) as usize != b.len() || !tail.starts_with(b) {
-                return false;
-            }
-            rest = &tail[b.len()..];
-        }
-        rest.is_empty()
-    }
-
-    /// Remember the key columns `cols` of the current row.
-    fn remember<R: Read>(&mut self, rd: &TableReader<R>, cols: &[usize]) {
-        self.last.clear();
-        for &k in cols {
-            let b = rd.raw(k);
-            self.last.extend_from_slice(&(b.len() as u32).to_le_bytes());
-            self.last.extend_from_slice(b);
-        }
-        self.valid = true;
     }
 }
 

@@ -4,7 +4,9 @@
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::table::{display_name, no_data_rows, open, Column, KeyCache, TableReader};
+use super::digest::{FileDigest, Hashing};
+use super::key_cache::KeyCache;
+use super::table::{display_name, no_data_rows, open, Column, TableReader};
 use crate::data::{Current, Diagram, Operators, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -75,6 +77,15 @@ pub fn read_threept_from<R: Read>(input: R, name: &Path) -> Result<ThreePointDat
 
 pub(crate) fn read_with_summary(path: &Path) -> Result<(ThreePointData, Summary)> {
     read_inner(open(path)?, display_name(path))
+}
+
+/// [`read_with_summary`] plus the digest of the bytes read (for the run manifest).
+pub(crate) fn read_hashed(path: &Path) -> Result<(ThreePointData, Summary, FileDigest)> {
+    let mut input = Hashing::new(open(path)?);
+    let (data, summary) = read_inner(&mut input, display_name(path))?;
+    // The reader stops at the end of the input; anything it left unread still counts.
+    std::io::copy(&mut input, &mut std::io::sink()).map_err(|e| Error::io(path, e))?;
+    Ok((data, summary, input.finish(path)))
 }
 
 fn current_names() -> String {

@@ -4,7 +4,9 @@
 //! `t = 0..T-1` for every configuration.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::table::{display_name, no_data_rows, open, Column, KeyCache, TableReader};
+use super::digest::{FileDigest, Hashing};
+use super::key_cache::KeyCache;
+use super::table::{display_name, no_data_rows, open, Column, TableReader};
 use crate::data::{Operators, Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -49,6 +51,15 @@ pub fn read_twopt_from<R: Read>(input: R, name: &Path) -> Result<TwoPointData> {
 
 pub(crate) fn read_with_summary(path: &Path) -> Result<(TwoPointData, Summary)> {
     read_inner(open(path)?, display_name(path))
+}
+
+/// [`read_with_summary`] plus the digest of the bytes read (for the run manifest).
+pub(crate) fn read_hashed(path: &Path) -> Result<(TwoPointData, Summary, FileDigest)> {
+    let mut input = Hashing::new(open(path)?);
+    let (data, summary) = read_inner(&mut input, display_name(path))?;
+    // The reader stops at the end of the input; anything it left unread still counts.
+    std::io::copy(&mut input, &mut std::io::sink()).map_err(|e| Error::io(path, e))?;
+    Ok((data, summary, input.finish(path)))
 }
 
 pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointData, Summary)> {

@@ -113,6 +113,7 @@ pub fn read_data(plan: &Plan) -> Result<ReadData> {
         three,
         dropped_configs: ds.dropped_configs,
         notes: ds.notes,
+        digests: ds.digests,
     })
 }
 
@@ -126,6 +127,8 @@ pub struct ReadData {
     pub dropped_configs: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
+    /// Digests of the tables computed while reading them (none for HDF5 sources).
+    pub digests: Vec<crate::io::FileDigest>,
 }
 
 /// Tables with operator labels: keep them whole for the variational analysis

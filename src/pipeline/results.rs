@@ -36,6 +36,8 @@ pub struct DataSummary {
     pub dropped_by_binning: Vec<i64>,
     /// What the reader did beyond plain reading.
     pub notes: Vec<String>,
+    /// Digests of the input tables computed while reading them, for the manifest.
+    pub input_digests: Vec<crate::io::FileDigest>,
     /// The integrated autocorrelation time and binning study of a few representative data
     /// points, on the configurations before binning.
     pub autocorrelation: Vec<AutocorrPoint>,

@@ -4,7 +4,8 @@
 //! resample is fitted in closed form ([`crate::fit::linear`]). A design that is the same for
 //! every resample (plateau, summation) is factorised once and applied to all resamples as one
 //! product ([`linear::FixedDesign`]); only a design that changes per resample (the fixed-gap
-//! two-state fit, whose gaps are resampled) is solved resample by resample.
+//! two-state fit, whose gaps are resampled) is solved resample by resample, by QR in buffers
+//! allocated once per fit ([`linear::Workspace`]).
 
 use super::{FitQuality, ReIm, ReImFit, STAGE};
 use crate::fit::{linear, Weights};
@@ -41,15 +42,21 @@ pub(crate) fn weights(
 pub(crate) enum Design<'a> {
     /// One matrix for the central value and every resample: factorised once.
     Fixed(DMatrix<f64>),
-    /// A matrix per resample: `f(None)` for the central value, `f(Some(k))` for sample `k`.
-    PerSample(&'a dyn Fn(Option<usize>) -> DMatrix<f64>),
+    /// A matrix per resample of `params` columns: `fill(None, a)` writes the central value's
+    /// into `a`, `fill(Some(k), a)` that of sample `k` (`a` has one row per point).
+    PerSample {
+        /// Number of parameters (columns).
+        params: usize,
+        /// Writes the design of one resample into its second argument.
+        fill: &'a dyn Fn(Option<usize>, &mut DMatrix<f64>),
+    },
 }
 
 impl Design<'_> {
     fn n_params(&self) -> usize {
         match self {
             Design::Fixed(a) => a.ncols(),
-            Design::PerSample(f) => f(None).ncols(),
+            Design::PerSample { params, .. } => *params,
         }
     }
 }
@@ -65,7 +72,11 @@ pub(crate) fn fit_resampled(
     let y: Vec<f64> = points.iter().map(|p| p.central).collect();
     let central = match design {
         Design::Fixed(a) => linear::fit(a, &y, w, &[]),
-        Design::PerSample(f) => linear::fit(&f(None), &y, w, &[]),
+        Design::PerSample { params, fill } => {
+            let mut a = DMatrix::zeros(points.len(), *params);
+            fill(None, &mut a);
+            linear::fit(&a, &y, w, &[])
+        }
     }
     .map_err(wrap(what))?;
     let per_param = match design {
@@ -75,17 +86,22 @@ pub(crate) fn fit_resampled(
                 .and_then(|f| f.solve_many(&columns))
                 .map_err(wrap(what))?
         }
-        Design::PerSample(f) => {
+        Design::PerSample { params, fill } => {
+            // Buffers allocated once per fit; every resample is solved in place.
             let n_samples = points.first().map_or(0, Resampled::len);
-            let mut per_param = vec![Vec::with_capacity(n_samples); central.params.len()];
+            let mut per_param = vec![Vec::with_capacity(n_samples); *params];
             let mut y = vec![0.0; points.len()];
+            let mut a = DMatrix::zeros(points.len(), *params);
+            let mut x = vec![0.0; *params];
+            let mut work = linear::Workspace::new(points.len(), *params);
             for s in 0..n_samples {
                 for (y, p) in y.iter_mut().zip(points) {
                     *y = p.samples[s];
                 }
-                let fit = linear::fit(&f(Some(s)), &y, w, &[]).map_err(wrap(what))?;
-                for (out, v) in per_param.iter_mut().zip(fit.params) {
-                    out.push(v);
+                fill(Some(s), &mut a);
+                work.solve(&a, &y, w, &mut x).map_err(wrap(what))?;
+                for (out, v) in per_param.iter_mut().zip(&x) {
+                    out.push(*v);
                 }
             }
             per_param

@@ -23,8 +23,17 @@ pub fn manifest(plan: &Plan, results: &RunResults) -> Result<Manifest> {
     let mut m = Manifest::start(settings, seed);
     m.started = results.started;
     m.add_input(&plan.source)?;
+    // Tables hashed while they were read are not read a second time.
+    let read: &[crate::io::FileDigest] = results.data.as_ref().map_or(&[], |d| &d.input_digests);
     for p in plan.input_files() {
-        m.add_input(&p)?;
+        match read.iter().find(|d| d.path == p) {
+            Some(d) => m.inputs.push(crate::report::manifest::InputFile {
+                path: d.path.clone(),
+                bytes: d.bytes,
+                sha256: d.sha256.clone(),
+            }),
+            None => m.add_input(&p)?,
+        }
     }
     for (stage, t) in &results.timings {
         m.add_stage(stage.as_str(), *t);

@@ -28,7 +28,7 @@ pub(in crate::pipeline) fn read_and_resample(
 ) -> Result<(Prepared, DataSummary)> {
     let spec = &plan.spec;
     let read = crate::pipeline::read_data(plan)?;
-    let (two, three, notes) = (read.two, read.three, read.notes);
+    let (two, three, notes, input_digests) = (read.two, read.three, read.notes, read.digests);
     crate::pipeline::check_data_rules(plan, &two, &three)?;
     let n_configs = two.configs.len();
     if !read.dropped_configs.is_empty() {
@@ -43,8 +43,9 @@ pub(in crate::pipeline) fn read_and_resample(
     if let Some(w) = bin_size_warning(&autocorrelation, b) {
         rec.warn(w);
     }
-    let (two, report) = bin_twopt(&two, b)?;
-    let (three, _) = bin_threept(&three, b)?;
+    // Each unbinned table is dropped as soon as its binned copy exists (lower peak memory).
+    let (two, report) = bin_twopt(&{ two }, b)?;
+    let (three, _) = bin_threept(&{ three }, b)?;
     if !report.dropped_configs.is_empty() {
         rec.warn(format!(
             "binning by {b} dropped the last {} configuration(s): {}",
@@ -71,6 +72,7 @@ pub(in crate::pipeline) fn read_and_resample(
         dropped_by_binning: report.dropped_configs,
         notes,
         autocorrelation,
+        input_digests,
     };
     let prepared = Prepared {
         two,

@@ -113,11 +113,26 @@ pub struct Gaps {
 
 /// `F2(tsep, tau)` of the module documentation.
 pub(crate) fn f2(tsep: f64, tau: f64, g: Gaps) -> f64 {
-    let ci = |t: f64| 1.0 + g.a_i * (-g.d_i * t).exp();
-    let cf = |t: f64| 1.0 + g.a_f * (-g.d_f * t).exp();
+    f2_with(tsep, tau, g, |t| (-g.d_i * t).exp(), |t| (-g.d_f * t).exp())
+}
+
+/// `F2` with `exp_i(t) = e^{-Delta_i t}` and `exp_f(t) = e^{-Delta_f t}` supplied (tabulated
+/// by [`Setup::design_into`]); the same operations in the same order as [`f2`].
+fn f2_with(
+    tsep: f64,
+    tau: f64,
+    g: Gaps,
+    exp_i: impl Fn(f64) -> f64,
+    exp_f: impl Fn(f64) -> f64,
+) -> f64 {
+    let ci = |t: f64| 1.0 + g.a_i * exp_i(t);
+    let cf = |t: f64| 1.0 + g.a_f * exp_f(t);
     let root = (ci(tsep - tau) * cf(tau) * cf(tsep)) / (cf(tsep - tau) * ci(tau) * ci(tsep));
     root.abs().sqrt() / cf(tsep)
 }
+
+/// Largest time for which [`Setup::design_into`] tabulates `e^{-Delta t}` on the stack.
+const EXP_TABLE: usize = 64;
 
 /// The fitted points and the two-point inputs of one channel.
 pub(crate) struct Setup<'a> {
@@ -208,16 +223,58 @@ impl<'a> Setup<'a> {
             .all(|s| fixed(&s.amp_ratio) && fixed(&s.gap))
     }
 
+    /// Number of linear parameters: `(M, c_i, c_f, c_if)`, or `(M, c_i = c_f, c_if)` when
+    /// symmetric.
+    pub fn n_params(&self) -> usize {
+        if self.symmetric {
+            3
+        } else {
+            4
+        }
+    }
+
     /// Design matrix of the linear parameters for gaps `g`: columns `F2 * (1, e_i, e_f, e_i e_f)`,
     /// or `F2 * (1, e_i + e_f, e_i e_f)` when symmetric.
     pub fn design(&self, g: Gaps) -> DMatrix<f64> {
-        let k = if self.symmetric { 3 } else { 4 };
-        let mut x = DMatrix::zeros(self.points.len(), k);
+        let mut x = DMatrix::zeros(self.points.len(), self.n_params());
+        self.design_into(g, &mut x);
+        x
+    }
+
+    /// [`Setup::design`] written into `x` (`points` rows, [`Setup::n_params`] columns) without
+    /// allocating. `e^{-Delta t}` is evaluated once per integer time up to the largest `tsep`
+    /// (when that fits [`EXP_TABLE`]), not once per use: the same values bit for bit, since
+    /// `tau`, `tsep` and `tsep - tau` are the same integers either way.
+    pub fn design_into(&self, g: Gaps, x: &mut DMatrix<f64>) {
+        let t_max = self.points.iter().map(|p| p.tsep).max().unwrap_or(0) as usize;
+        let tabulated = t_max < EXP_TABLE && self.points.iter().all(|p| p.tau <= p.tsep);
+        let (mut table_i, mut table_f) = ([0.0; EXP_TABLE], [0.0; EXP_TABLE]);
+        if tabulated {
+            for t in 0..=t_max {
+                table_i[t] = (-g.d_i * t as f64).exp();
+                table_f[t] = (-g.d_f * t as f64).exp();
+            }
+        }
+        // `t` is a whole number in 0..=t_max here (a time or a difference of two).
+        let exp_i = |t: f64| {
+            if tabulated {
+                table_i[t as usize]
+            } else {
+                (-g.d_i * t).exp()
+            }
+        };
+        let exp_f = |t: f64| {
+            if tabulated {
+                table_f[t as usize]
+            } else {
+                (-g.d_f * t).exp()
+            }
+        };
         for (row, p) in self.points.iter().enumerate() {
             let (tsep, tau) = (p.tsep as f64, p.tau as f64);
-            let f = f2(tsep, tau, g);
-            let ei = (-g.d_i * tau).exp();
-            let ef = (-g.d_f * (tsep - tau)).exp();
+            let f = f2_with(tsep, tau, g, exp_i, exp_f);
+            let ei = exp_i(tau);
+            let ef = exp_f(tsep - tau);
             x[(row, 0)] = f;
             if self.symmetric {
                 x[(row, 1)] = f * (ei + ef);
@@ -228,7 +285,6 @@ impl<'a> Setup<'a> {
                 x[(row, 3)] = f * ei * ef;
             }
         }
-        x
     }
 }
 
@@ -241,13 +297,16 @@ pub fn two_state_fixed(
     let setup = Setup::new(ratio, states, settings)?;
     let what = format!("two-state fit of channel {}", ratio.key);
     let values: Vec<&ReIm> = setup.points.iter().map(|p| &p.value).collect();
-    let per_sample = |s| setup.design(setup.gaps(s));
+    let fill = |s, x: &mut DMatrix<f64>| setup.design_into(setup.gaps(s), x);
     // Two-point inputs without spread (fixed by hand, or a degenerate ensemble) give one
     // design for every resample: factorised once.
     let design = if setup.gaps_are_fixed() {
-        Design::Fixed(per_sample(None))
+        Design::Fixed(setup.design(setup.gaps(None)))
     } else {
-        Design::PerSample(&per_sample)
+        Design::PerSample {
+            params: setup.n_params(),
+            fill: &fill,
+        }
     };
     let (params, m) = fit_re_im(&values, design, ratio.covariance(settings), &what)?;
     let mut it = params.into_iter().skip(1);
@@ -298,6 +357,69 @@ pub(crate) mod jacobian_check {
             for i in 0..n {
                 let fd = (up[i] - down[i]) / (2.0 * h);
                 assert_relative_eq!(jac[(i, j)], fd, epsilon = 1e-7, max_relative = 1e-6);
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::resample::Scheme;
+
+    // Definition (module documentation): the design's columns are F2 * (1, e_i, e_f, e_i e_f)
+    // with e_i = e^{-Delta_i tau}, e_f = e^{-Delta_f (tsep - tau)}; the tabulated exponentials
+    // must give the directly evaluated values bit for bit.
+    #[test]
+    fn tabulated_design_equals_the_direct_formula_bit_for_bit() {
+        let value = || {
+            let r = Resampled::constant(1.0, 3, Scheme::Jackknife);
+            ReIm {
+                re: r.clone(),
+                im: r,
+            }
+        };
+        let points: Vec<RatioPoint> = [(8u32, 2u32), (8, 6), (12, 3), (16, 8), (16, 14)]
+            .iter()
+            .map(|&(tsep, tau)| RatioPoint {
+                tsep,
+                tau,
+                value: value(),
+            })
+            .collect();
+        let states = TwoPointStates {
+            energy: Resampled::constant(0.5, 3, Scheme::Jackknife),
+            amp_ratio: Resampled::constant(0.7, 3, Scheme::Jackknife),
+            gap: Resampled::constant(0.3, 3, Scheme::Jackknife),
+        };
+        let g = Gaps {
+            a_i: 0.83,
+            d_i: 0.317,
+            a_f: -0.21,
+            d_f: 0.291,
+        };
+        for symmetric in [false, true] {
+            let setup = Setup {
+                points: points.iter().collect(),
+                tseps: vec![8, 12, 16],
+                source: &states,
+                sink: &states,
+                symmetric,
+            };
+            let x = setup.design(g);
+            for (row, p) in points.iter().enumerate() {
+                let (tsep, tau) = (p.tsep as f64, p.tau as f64);
+                let f = f2(tsep, tau, g);
+                let ei = (-g.d_i * tau).exp();
+                let ef = (-g.d_f * (tsep - tau)).exp();
+                let want = if symmetric {
+                    vec![f, f * (ei + ef), f * ei * ef]
+                } else {
+                    vec![f, f * ei, f * ef, f * ei * ef]
+                };
+                for (col, w) in want.iter().enumerate() {
+                    assert_eq!(x[(row, col)].to_bits(), w.to_bits(), "row {row} col {col}");
+                }
             }
         }
     }

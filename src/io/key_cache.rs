@@ -1,0 +1,118 @@
+//! The cache that recognises a row continuing the previous row's channel, so that long tables
+//! grouped by channel parse their key fields once per channel, not once per row.
+
+use super::table::TableReader;
+use crate::error::Result;
+use std::io::Read;
+
+/// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
+/// channel (the usual case in long tables) skips parsing its key fields again. Key columns
+/// that sit side by side in the file are compared as one span of bytes (with their field
+/// boundaries), so a row costs one comparison per run of adjacent key columns, not one per
+/// field.
+#[derive(Default)]
+pub(crate) struct KeyCache {
+    /// Runs of adjacent key fields, `(first, last)` record indices, set on first use.
+    runs: Option<Vec<(usize, usize)>>,
+    /// The spans of the remembered row, run after run.
+    last: Vec<u8>,
+    /// Field ends of the remembered row relative to the start of their run.
+    ends: Vec<usize>,
+    valid: bool,
+    /// Channel id of the remembered row.
+    last_id: Option<u32>,
+}
+
+impl KeyCache {
+    /// The channel id of the current row: the remembered one when its key columns `cols`
+    /// repeat those of the previous row (tables are usually grouped by channel), otherwise
+    /// `lookup()`'s, which is then remembered. `cols` must be the same on every call.
+    pub fn channel_id<R: Read>(
+        &mut self,
+        rd: &TableReader<R>,
+        cols: &[usize],
+        lookup: impl FnOnce() -> Result<u32>,
+    ) -> Result<u32> {
+        if self.runs.is_none() {
+            self.runs = Some(runs(rd, cols));
+        }
+        if let Some(id) = self.last_id {
+            if self.same_as_last(rd) {
+                return Ok(id);
+            }
+        }
+        let id = lookup()?;
+        self.remember(rd);
+        self.last_id = Some(id);
+        Ok(id)
+    }
+
+    /// Whether the key fields of the current row are byte-identical to those of the
+    /// remembered row. Compares in place, without copying.
+    fn same_as_last<R: Read>(&self, rd: &TableReader<R>) -> bool {
+        let (Some(runs), true) = (&self.runs, self.valid) else {
+            return false;
+        };
+        let rec = &rd.record;
+        let bytes = rec.as_slice();
+        let (mut at, mut ends) = (0, self.ends.iter());
+        for &(a, b) in runs {
+            let (Some(first), Some(last)) = (rec.range(a), rec.range(b)) else {
+                return false;
+            };
+            for i in a..=b {
+                let end = rec.range(i).map(|r| r.end - first.start);
+                if end != ends.next().copied() {
+                    return false;
+                }
+            }
+            let span = &bytes[first.start..last.end];
+            if self.last.get(at..at + span.len()) != Some(span) {
+                return false;
+            }
+            at += span.len();
+        }
+        true
+    }
+
+    /// Remember the key fields of the current row.
+    fn remember<R: Read>(&mut self, rd: &TableReader<R>) {
+        self.last.clear();
+        self.ends.clear();
+        self.valid = false;
+        let Some(runs) = &self.runs else {
+            return;
+        };
+        let rec = &rd.record;
+        for &(a, b) in runs {
+            let (Some(first), Some(last)) = (rec.range(a), rec.range(b)) else {
+                return;
+            };
+            for i in a..=b {
+                match rec.range(i) {
+                    Some(r) => self.ends.push(r.end - first.start),
+                    None => return,
+                }
+            }
+            self.last
+                .extend_from_slice(&rec.as_slice()[first.start..last.end]);
+        }
+        self.valid = true;
+    }
+}
+
+/// The record indices of the schema columns `cols` present in the header, as runs of
+/// adjacent indices `(first, last)`.
+fn runs<R: Read>(rd: &TableReader<R>, cols: &[usize]) -> Vec<(usize, usize)> {
+    let mut idx: Vec<usize> = cols.iter().filter_map(|&k| rd.index[k]).collect();
+    idx.sort_unstable();
+    idx.dedup();
+    let mut out: Vec<(usize, usize)> = Vec::new();
+    for i in idx {
+        match out.last_mut() {
+            Some((_, last)) if *last + 1 == i => *last = i,
+            _ => out.push((i, i)),
+        }
+    }
+    out
+}
