@@ -120,6 +120,15 @@ fn a_run_measures_tau_int_studies_binning_and_warns_when_bins_are_short() {
     );
     let page = std::fs::read_to_string(run.join("report.html")).unwrap();
     assert!(page.contains("Autocorrelation") && page.contains("binning study"));
+    // the binning study's figure: one series of points per representative point
+    let svg = std::fs::read_to_string(run.join("plots/binning-study.svg")).unwrap();
+    for r in &table {
+        assert!(
+            svg.contains(&r["point"]),
+            "{} not in the figure",
+            r["point"]
+        );
+    }
 
     // bins of eight configurations span 4 tau_int: no warning
     let o = formfactory(

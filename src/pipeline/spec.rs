@@ -257,6 +257,8 @@ pub enum Plot {
     GevpEnergies,
     /// GEVP eigenvector components versus t (variational runs).
     GevpVectors,
+    /// The error of representative means against the bin size, with `sqrt(2 tau_int)`.
+    Binning,
 }
 
 /// How the final numbers are made: by default an equal-weight average over every estimator
@@ -304,6 +306,7 @@ fn all_plots() -> Vec<Plot> {
         Plot::FinalVariants,
         Plot::GevpEnergies,
         Plot::GevpVectors,
+        Plot::Binning,
     ]
 }
 

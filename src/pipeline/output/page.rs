@@ -45,7 +45,10 @@ pub fn report_page(
         has_form_factors.then(|| final_results(results, tables, figures)),
         Some(overview(plan, results)),
         has_form_factors.then(|| form_factors(tables, figures)),
-        results.data.is_some().then(|| autocorrelation(tables)),
+        results
+            .data
+            .is_some()
+            .then(|| autocorrelation(tables, figures)),
         variational(results, tables, figures),
         results
             .spectrum
@@ -198,19 +201,20 @@ fn variational(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> O
 }
 
 /// The integrated autocorrelation times and the binning study of the representative points.
-fn autocorrelation(tables: &Tables) -> Section {
-    let blocks = vec![
+fn autocorrelation(tables: &Tables, figures: &[Rendered]) -> Section {
+    let mut blocks = vec![
         Block::Paragraph(
             "Integrated autocorrelation time (Gamma method, Wolff 2004) of a few representative \
              data points on the configurations before binning, and the binned error at the \
              run's bin size; bins should span about 2 tau_int (column bins_long_enough). The \
-             binning study below shows the error of each mean against the bin size: it levels \
-             off near sqrt(2 tau_int) times the unbinned error once bins are long enough."
+             binning study (binning_study.csv, and the figure) shows the error of each mean \
+             against the bin size: it levels off near sqrt(2 tau_int) times the unbinned error \
+             once bins are long enough."
                 .to_string(),
         ),
         Block::Table(readable(tables.get(TableName::Autocorrelation))),
-        Block::Table(readable(tables.get(TableName::BinningStudy))),
     ];
+    blocks.extend(figure_blocks(figures, &[Plot::Binning]));
     section("Autocorrelation", blocks)
 }
 

@@ -9,6 +9,7 @@
 //! charts in the submodule of the stage it shows, call it from [`figures`], and place the
 //! kind in a section of the page (`page.rs`).
 
+mod autocorrelation;
 mod figure;
 mod final_results;
 mod formfactors;
@@ -44,6 +45,7 @@ pub fn figures(plan: &Plan, results: &RunResults) -> Vec<Figure> {
             Plot::FinalVariants => out.extend(final_results::charts(results)),
             Plot::GevpEnergies => out.extend(gevp::effective_energies(results)),
             Plot::GevpVectors => out.extend(gevp::vectors(results)),
+            Plot::Binning => out.extend(autocorrelation::binning(results)),
         }
     }
     out
