@@ -123,6 +123,7 @@ fn shell_rows(method: Estimator, shell: &ShellResult, z: &ZFactors) -> Vec<FormF
             value: renormalize(v, z.get(shell.kind)),
             n_channels: shell.n_channels,
             chi2_dof: shell.chi2_dof,
+            condition: shell.condition,
         })
         .collect()
 }
