@@ -70,8 +70,8 @@ pub(in crate::pipeline) fn decompose_all(
     let setup = KinematicSetup {
         hadron: spec.ensemble.hadron,
         l: spec.ensemble.l as usize,
-        twist_sink: spec.ensemble.twist,
-        twist_source: spec.ensemble.twist,
+        twist_sink: spec.ensemble.sink_twist(),
+        twist_source: spec.ensemble.source_twist(),
         mass,
         energies: d.energies.energies(fitted),
         spacing_fm: Some(spec.ensemble.spacing_fm),
