@@ -627,3 +627,34 @@ fn scalar_and_tensor_forward_values() {
         max_relative = 1e-12
     );
 }
+
+#[test]
+fn twists_move_sink_and_source_momenta_and_must_agree_on_shared_momenta() {
+    // tests/fixtures/twist/mock.yaml: sink twist (0, 0, -5.5) on L = 16, m = 0.48, continuum
+    // dispersion. The sink (0,0,1) has p_z = (2 pi - 5.5) / 16 (lattice_momentum) and
+    // E = sqrt(m² + p²); the source at rest stays untwisted.
+    let text = std::fs::read_to_string(fixture("twist/mock.yaml")).expect("fixture exists");
+    let e = run(&from_text(&text));
+    let pz = (2.0 * PI - 5.5) / 16.0;
+    let sink = e.truth.levels([0, 0, 1]).expect("sink levels");
+    assert_relative_eq!(sink.p[2], pz, max_relative = 1e-14);
+    assert_relative_eq!(
+        sink.energies[0],
+        (0.48_f64.powi(2) + pz * pz).sqrt(),
+        max_relative = 1e-14
+    );
+    let rest = e.truth.levels([0, 0, 0]).expect("source levels");
+    assert_eq!(rest.p, [0.0; 3]);
+    assert_relative_eq!(rest.energies[0], 0.48, max_relative = 1e-14);
+    // a momentum used as sink and as source cannot carry two twists in one two-point table
+    let shared = text.replace(
+        "      - {pf: [0, 0, 1], q: [0, 0, 1]}",
+        "      - {pf: [0, 0, 1], q: [0, 0, 1]}\n      - {pf: [0, 0, 0], q: [0, 0, 0]}",
+    );
+    assert_ne!(shared, text);
+    let err = generate(&from_text(&shared)).unwrap_err().to_string();
+    assert!(
+        err.contains("twist_sink") && err.contains("(0,0,0)"),
+        "{err}"
+    );
+}

@@ -296,6 +296,12 @@ fn every_example_pipeline_checks_and_runs() {
         assert!(eff.starts_with("px,py,pz,t,value,error") && eff.lines().count() > 10);
         let header = std::fs::read_to_string(out.join("formfactors.csv")).unwrap();
         assert!(header.starts_with("method,form_factor,q2_lat,q2_gev2,value,error_stat,error_z,error_total,n_channels,chi2_dof"));
+        // The condition number of each shell's system (issue 11 item 6): a ratio of singular
+        // values, largest over smallest kept, so finite and at least 1 by definition.
+        for r in read_rows(&out.join("formfactors.csv")) {
+            let c = num(&r, "condition");
+            assert!(c.is_finite() && c >= 1.0, "{name}: condition {c}");
+        }
         let manifest: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(out.join("manifest.json")).unwrap())
                 .unwrap();

@@ -25,4 +25,5 @@ mod resample;
 mod run_autocorrelation;
 mod spectrum;
 mod spectrum_closure;
+mod twist;
 mod variational;

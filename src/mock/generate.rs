@@ -37,13 +37,9 @@ pub struct MockEnsemble {
 pub fn generate(spec: &MockSpec) -> Result<MockEnsemble> {
     spec.validate()
         .map_err(|m| Error::config(format!("mock spec: {m}")))?;
-    let l = spec.ensemble.l;
     let pairs = momentum_pairs(&spec.channels.momenta);
     let momenta: BTreeSet<Momentum> = pairs.iter().flat_map(|&(pf, q)| [pf, sub(pf, q)]).collect();
-    let spectrum: BTreeMap<Momentum, MomentumLevels> = momenta
-        .iter()
-        .map(|&n| (n, levels(&spec.hadron, l, n)))
-        .collect();
+    let spectrum = twisted_spectrum(spec, &pairs)?;
     let (points, planned, elements) = plan_channels(spec, &pairs, &spectrum)?;
     let n_ops = spec.operators.as_ref().map_or(1, |b| b.basis.len());
     check_memory(
@@ -184,6 +180,34 @@ fn check_memory(spec: &MockSpec, n_momenta: usize, n_planned: usize) -> Result<(
     .map_err(Error::config)
 }
 
+/// The spectrum at every momentum of `pairs`, with the sink twist at sink momenta and the
+/// source twist at source momenta; a momentum on both sides needs equal twists, since the
+/// two-point table holds one function per integer momentum.
+fn twisted_spectrum(
+    spec: &MockSpec,
+    pairs: &[(Momentum, Momentum)],
+) -> Result<BTreeMap<Momentum, MomentumLevels>> {
+    let e = &spec.ensemble;
+    let mut twists: BTreeMap<Momentum, [f64; 3]> = BTreeMap::new();
+    let sides = pairs
+        .iter()
+        .flat_map(|&(pf, q)| [(pf, e.twist_sink), (sub(pf, q), e.twist_source)]);
+    for (n, twist) in sides {
+        if *twists.entry(n).or_insert(twist) != twist {
+            return Err(Error::config(format!(
+                "mock spec: momentum {} is both a sink and a source momentum, so \
+                 ensemble.twist_sink and ensemble.twist_source must be equal (the two-point \
+                 table holds one function per momentum); choose sink momenta no source uses",
+                crate::data::momentum_text(n)
+            )));
+        }
+    }
+    Ok(twists
+        .into_iter()
+        .map(|(n, twist)| (n, levels(&spec.hadron, e.l, n, twist)))
+        .collect())
+}
+
 type Plan = (Vec<TruthPoint>, Vec<Planned>, Vec<TruthMatrixElement>);
 
 /// Form factors at every `(p_f, q)` and the matrix element of every channel to generate.
@@ -283,6 +307,8 @@ fn truth(
         lattice: TruthLattice {
             l: spec.ensemble.l,
             t: spec.ensemble.t,
+            twist_sink: spec.ensemble.twist_sink,
+            twist_source: spec.ensemble.twist_source,
             a_fm: spec.ensemble.a_fm.0,
         },
         configs: TruthConfigs {

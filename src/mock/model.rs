@@ -33,15 +33,16 @@ pub struct Level {
 pub struct MomentumLevels {
     /// Integer momentum.
     pub n: Momentum,
-    /// Lattice momentum `2 pi n / L`.
+    /// Lattice momentum `(2 pi n + theta) / L`.
     pub p: [f64; 3],
     /// Ground state first.
     pub levels: Vec<Level>,
 }
 
-/// The spectrum of `hadron` at integer momentum `n` on an `L^3` lattice.
-pub fn levels(hadron: &HadronSpec, l: usize, n: Momentum) -> MomentumLevels {
-    let p = kinematics::lattice_momentum(n, l, [0.0; 3]);
+/// The spectrum of `hadron` at integer momentum `n` on an `L^3` lattice with twist angles
+/// `twist` (radians): lattice momentum `p = (2 pi n + theta) / L`.
+pub fn levels(hadron: &HadronSpec, l: usize, n: Momentum, twist: [f64; 3]) -> MomentumLevels {
+    let p = kinematics::lattice_momentum(n, l, twist);
     let p2: f64 = p.iter().map(|x| x * x).sum();
     let w = hadron.smearing_width.0;
     let levels = hadron

@@ -53,8 +53,18 @@ pub struct TruthLattice {
     /// Time extent.
     #[serde(rename = "T")]
     pub t: usize,
+    /// Twist angles of the sink momenta (radians; absent when zero).
+    #[serde(default, skip_serializing_if = "is_untwisted")]
+    pub twist_sink: [f64; 3],
+    /// Twist angles of the source momenta (radians; absent when zero).
+    #[serde(default, skip_serializing_if = "is_untwisted")]
+    pub twist_source: [f64; 3],
     /// Lattice spacing in fm.
     pub a_fm: f64,
+}
+
+fn is_untwisted(twist: &[f64; 3]) -> bool {
+    twist.iter().all(|t| *t == 0.0)
 }
 
 /// Configuration numbering: `first, first + step, ...`, `count` of them.
@@ -95,7 +105,7 @@ pub struct TruthHadron {
 pub struct TruthLevels {
     /// Integer momentum.
     pub momentum: Momentum,
-    /// Lattice momentum `2 pi n / L`.
+    /// Lattice momentum `(2 pi n + theta) / L` (with the twist of the side it is used on).
     pub p: [f64; 3],
     /// `E_n(p)`, ground first.
     pub energies: Vec<f64>,

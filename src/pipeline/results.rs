@@ -78,6 +78,9 @@ pub struct FormFactorRow {
     pub n_channels: usize,
     /// chi²/dof of the decomposition (`None` when exactly determined).
     pub chi2_dof: Option<f64>,
+    /// Condition number of the shell's whitened coefficient matrix (central value): the
+    /// largest singular value over the smallest one kept.
+    pub condition: f64,
 }
 
 /// A quantity derived from a Q² fit (radius, moment, charge).

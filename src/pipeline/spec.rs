@@ -124,6 +124,16 @@ pub struct Ensemble {
     /// source and sink: momenta are `p = (2 pi n + theta) / L`.
     #[serde(default)]
     pub twist: [f64; 3],
+    /// Twist angles of the sink momenta when they differ from the source's (radians; default
+    /// `twist`). With different sink and source twists the energies must come from a
+    /// dispersion relation (`decomposition.energies`), the two-point function at a sink
+    /// momentum is taken to carry the sink twist, and the mass from the untwisted fit at rest.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub twist_sink: Option<[f64; 3]>,
+    /// Twist angles of the source momenta when they differ from the sink's (radians; default
+    /// `twist`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub twist_source: Option<[f64; 3]>,
 }
 
 /// The correlators: two CSV tables (`twopt` and `threept`) or an HDF5 source (`hdf5`).
@@ -337,13 +347,29 @@ impl Ensemble {
                 ));
             }
         }
-        if let Some(i) = self.twist.iter().position(|t| !t.is_finite()) {
-            return Err(Invalid::new(
-                format!("twist[{i}]"),
-                "twist angles must be finite numbers (radians)",
-            ));
+        for (key, twist) in [
+            ("twist", self.twist),
+            ("twist_sink", self.sink_twist()),
+            ("twist_source", self.source_twist()),
+        ] {
+            if let Some(i) = twist.iter().position(|t| !t.is_finite()) {
+                return Err(Invalid::new(
+                    format!("{key}[{i}]"),
+                    "twist angles must be finite numbers (radians)",
+                ));
+            }
         }
         Ok(())
+    }
+
+    /// The twist angles of the sink momenta (`twist_sink`, else `twist`).
+    pub fn sink_twist(&self) -> [f64; 3] {
+        self.twist_sink.unwrap_or(self.twist)
+    }
+
+    /// The twist angles of the source momenta (`twist_source`, else `twist`).
+    pub fn source_twist(&self) -> [f64; 3] {
+        self.twist_source.unwrap_or(self.twist)
     }
 }
 

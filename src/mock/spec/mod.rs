@@ -73,6 +73,16 @@ pub struct EnsembleSpec {
     /// Step between configuration numbers (default 1).
     #[serde(default = "fields::one", deserialize_with = "fields::positive_i64")]
     pub config_step: i64,
+    /// Twist angles `theta` (radians, per direction) of the sink momentum: twisted boundary
+    /// conditions, momenta `p = (2 pi n + theta) / L` (docs/methods.md §1). The two-point
+    /// function at a sink momentum carries this twist.
+    #[serde(default)]
+    pub twist_sink: [f64; 3],
+    /// Twist angles `theta` (radians, per direction) of the source momentum. A momentum used
+    /// at both sink and source needs equal twists (the two-point table holds one function per
+    /// momentum).
+    #[serde(default)]
+    pub twist_source: [f64; 3],
 }
 
 /// The hadron and its spectrum.

@@ -14,6 +14,7 @@ impl MockSpec {
     /// what would be valid.
     pub fn validate(&self) -> Checked {
         self.check_states()?;
+        self.check_twists()?;
         self.check_channels()?;
         let given = self.form_factors.by_name();
         for (i, g) in self.channels.insertions.iter().enumerate() {
@@ -22,6 +23,22 @@ impl MockSpec {
         self.check_models(&given)?;
         self.check_transitions()?;
         self.check_noise_and_output()
+    }
+
+    /// `ensemble.twist_sink` and `ensemble.twist_source`: finite angles.
+    fn check_twists(&self) -> Checked {
+        let e = &self.ensemble;
+        for (key, twist) in [
+            ("twist_sink", e.twist_sink),
+            ("twist_source", e.twist_source),
+        ] {
+            if let Some(i) = twist.iter().position(|t| !t.is_finite()) {
+                return Err(format!(
+                    "ensemble.{key}[{i}]: twist angles must be finite numbers (radians)"
+                ));
+            }
+        }
+        Ok(())
     }
 
     /// `hadron.states`, the operator basis and the periodic form.

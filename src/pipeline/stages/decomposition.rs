@@ -70,8 +70,8 @@ pub(in crate::pipeline) fn decompose_all(
     let setup = KinematicSetup {
         hadron: spec.ensemble.hadron,
         l: spec.ensemble.l as usize,
-        twist_sink: spec.ensemble.twist,
-        twist_source: spec.ensemble.twist,
+        twist_sink: spec.ensemble.sink_twist(),
+        twist_source: spec.ensemble.source_twist(),
         mass,
         energies: d.energies.energies(fitted),
         spacing_fm: Some(spec.ensemble.spacing_fm),
@@ -123,6 +123,7 @@ fn shell_rows(method: Estimator, shell: &ShellResult, z: &ZFactors) -> Vec<FormF
             value: renormalize(v, z.get(shell.kind)),
             n_channels: shell.n_channels,
             chi2_dof: shell.chi2_dof,
+            condition: shell.condition,
         })
         .collect()
 }

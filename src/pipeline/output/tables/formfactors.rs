@@ -27,6 +27,7 @@ pub(super) fn formfactors(name: &str, rows: &[FormFactorRow]) -> Result<Table> {
             "chi2_dof",
             "current",
             "shell",
+            "condition",
         ],
     );
     for r in rows {
@@ -43,6 +44,7 @@ pub(super) fn formfactors(name: &str, rows: &[FormFactorRow]) -> Result<Table> {
             opt(r.chi2_dof),
             Cell::from(format!("{:?}", r.kind).to_lowercase()),
             Cell::from(r.shell.as_str()),
+            float(r.condition),
         ])?;
     }
     Ok(t)
