@@ -240,14 +240,8 @@ fn nist_linear_norris() {
 // Source: NIST StRD linear regression, Longley (ill-conditioned; certified coefficients).
 #[test]
 fn nist_linear_longley() {
-    let rows = rows("Longley.csv");
-    let n = rows.len();
-    let v: Vec<Vec<f64>> = rows
-        .iter()
-        .map(|r| r.iter().map(|s| s.parse().unwrap()).collect())
-        .collect();
-    let design = DMatrix::from_fn(n, 7, |i, j| if j == 0 { 1.0 } else { v[i][j - 1] });
-    let y: Vec<f64> = v.iter().map(|r| r[6]).collect();
+    let (design, y) = longley();
+    let n = y.len();
     let r = linear::fit(&design, &y, &Weights::unit(n), &[]).unwrap();
     let c = certified("Longley");
     for k in 0..7 {
@@ -361,19 +355,25 @@ fn bad_input_is_reported_not_a_panic() {
     assert!(fit::p_value(1.0, 0).is_nan());
 }
 
+/// The NIST StRD Longley data: the design (a constant and six predictors) and the response.
+fn longley() -> (DMatrix<f64>, Vec<f64>) {
+    let rows = rows("Longley.csv");
+    let v: Vec<Vec<f64>> = rows
+        .iter()
+        .map(|r| r.iter().map(|s| s.parse().unwrap()).collect())
+        .collect();
+    let design = DMatrix::from_fn(v.len(), 7, |i, j| if j == 0 { 1.0 } else { v[i][j - 1] });
+    let y: Vec<f64> = v.iter().map(|r| r[6]).collect();
+    (design, y)
+}
+
 // Source: NIST StRD linear regression, Longley (certified coefficients). The factorise-once
 // path must give the certified parameters too, and agree with the per-vector fit to rounding
 // on several data vectors (the resamples of a plateau or summation fit).
 #[test]
 fn fixed_design_matches_certified_values_and_the_per_vector_fit() {
-    let rows = rows("Longley.csv");
-    let n = rows.len();
-    let v: Vec<Vec<f64>> = rows
-        .iter()
-        .map(|r| r.iter().map(|s| s.parse().unwrap()).collect())
-        .collect();
-    let design = DMatrix::from_fn(n, 7, |i, j| if j == 0 { 1.0 } else { v[i][j - 1] });
-    let y: Vec<f64> = v.iter().map(|r| r[6]).collect();
+    let (design, y) = longley();
+    let n = y.len();
     let w = Weights::unit(n);
     let fixed = linear::FixedDesign::new(&design, &w).unwrap();
     // Three data vectors: the certified one and two perturbed copies.
@@ -446,14 +446,8 @@ fn fixed_design_correlated_line_agrees_with_per_vector_fit() {
 // second, correlated problem (analytic GLS: the SVD fit) it agrees to 1e-12 relative.
 #[test]
 fn qr_workspace_matches_certified_values_and_the_svd_fit() {
-    let rows = rows("Longley.csv");
-    let n = rows.len();
-    let v: Vec<Vec<f64>> = rows
-        .iter()
-        .map(|r| r.iter().map(|s| s.parse().unwrap()).collect())
-        .collect();
-    let design = DMatrix::from_fn(n, 7, |i, j| if j == 0 { 1.0 } else { v[i][j - 1] });
-    let y: Vec<f64> = v.iter().map(|r| r[6]).collect();
+    let (design, y) = longley();
+    let n = y.len();
     let w = Weights::unit(n);
     let mut work = linear::Workspace::new(n, 7);
     let mut x = vec![0.0; 7];

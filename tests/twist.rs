@@ -5,23 +5,9 @@
 //! which the generator computes with the twisted momenta p = (2 pi n + theta) / L.
 
 use crate::common::{fixture, formfactory, stderr, tempdir};
+use crate::pipeline::read_rows;
 use formfactory::mock::Truth;
 use std::collections::BTreeMap;
-use std::path::Path;
-
-fn rows(path: &Path) -> Vec<BTreeMap<String, String>> {
-    let mut r = csv::Reader::from_path(path).unwrap();
-    let header: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
-    r.records()
-        .map(|rec| {
-            header
-                .iter()
-                .cloned()
-                .zip(rec.unwrap().iter().map(String::from))
-                .collect()
-        })
-        .collect()
-}
 
 fn num(row: &BTreeMap<String, String>, col: &str) -> f64 {
     row[col].parse().unwrap()
@@ -57,7 +43,7 @@ fn sink_twist_closes_at_every_shell() {
     assert!((near_zero.q2 - q2_small).abs() < 1e-12, "{}", near_zero.q2);
     assert!(q2_small < 0.003);
 
-    let all = rows(&dir.path().join("run/formfactors.csv"));
+    let all = read_rows(&dir.path().join("run/formfactors.csv"));
     let final_method = all
         .iter()
         .map(|r| r["method"].clone())
