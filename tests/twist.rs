@@ -25,6 +25,30 @@ fn sink_twist_closes_at_every_shell() {
     std::fs::copy(fixture("twist/pipeline.yaml"), dir.path().join("p.yaml")).unwrap();
     let o = formfactory(dir.path(), &["run", "p.yaml", "--out", "run", "--quiet"]);
     assert!(o.status.success(), "run: {}", stderr(&o));
+    // Issue 10 case 7 (warnings once per kind): one-state spectrum fits leave the two-state
+    // ratio fit without excited-state parameters in all 24 channels; that is said once per
+    // source momentum with the channel count, not once per channel.
+    let manifest: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("run/manifest.json")).unwrap(),
+    )
+    .unwrap();
+    let said: Vec<&str> = manifest["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|w| w.as_str())
+        .filter(|w| w.contains("no two-point excited-state parameters"))
+        .collect();
+    assert_eq!(said.len(), 4, "{said:?}");
+    let counted: usize = said
+        .iter()
+        .map(|w| {
+            assert!(w.starts_with("ratio: two-state fit: "), "{w}");
+            let n = w.split(", in ").nth(1).and_then(|r| r.split(' ').next());
+            n.and_then(|n| n.parse::<usize>().ok()).unwrap_or(0)
+        })
+        .sum();
+    assert_eq!(counted, 24, "{said:?}");
     let truth = Truth::read(&dir.path().join("mock/truth.yaml")).unwrap();
     assert_eq!(truth.lattice.twist_sink, [0.0, 0.0, -5.5]);
 

@@ -18,10 +18,11 @@ use super::stages::decomposition::{decompose_all, largest_plateau};
 use super::stages::q2_fits::{derived_rows, dirac_pauli_rows, q2_fits};
 use super::stages::ratio_inputs::{skip_dropped_momenta, two_point_states};
 use crate::data::{ThreePointData, TwoPointData};
-use crate::ratio;
+use crate::ratio::{self, ChannelKey, ChannelResult};
 use crate::resample::ResamplePlan;
 use crate::spectrum;
 use crate::{Error, Result};
+use std::collections::BTreeMap;
 
 /// Compute every stage the plan asks for (no files written; see [`super::run()`] for the
 /// whole run with its run directory). With `jobs` the stages run on a dedicated rayon pool
@@ -135,13 +136,44 @@ fn ratio_stage(
             &|d, t| obs.progress("ratio", d, t),
         )
     })?;
-    for (key, c) in &channels {
-        for n in &c.notes {
-            rec.warn(format!("ratio {key}: {n}"));
-        }
+    for w in grouped_notes(&channels) {
+        rec.warn(w);
     }
     results.channels = Some(channels);
     Ok(())
+}
+
+/// The ratio stage's notes as warnings, one per kind: a note that recurs in several channels
+/// (its channel named in it) is said once with the count and the first channels.
+fn grouped_notes(channels: &BTreeMap<ChannelKey, ChannelResult>) -> Vec<String> {
+    const SHOWN: usize = 6;
+    let mut kinds: Vec<(String, Vec<String>)> = Vec::new();
+    for (key, c) in channels {
+        let name = key.to_string();
+        for n in &c.notes {
+            let kind = n.replace(&format!(" of channel {name}"), "");
+            let kind = kind.strip_prefix("ratio: ").unwrap_or(&kind);
+            let kind = kind.replace(&name, "<channel>");
+            match kinds.iter_mut().find(|(k, _)| *k == kind) {
+                Some((_, keys)) => keys.push(name.clone()),
+                None => kinds.push((kind, vec![name.clone()])),
+            }
+        }
+    }
+    kinds
+        .into_iter()
+        .map(|(kind, keys)| match keys.as_slice() {
+            [one] => format!("ratio {one}: {}", kind.replace("<channel>", one)),
+            _ => {
+                let more = keys.len().saturating_sub(SHOWN);
+                let mut list = keys[..keys.len().min(SHOWN)].join("; ");
+                if more > 0 {
+                    list.push_str(&format!("; … ({more} more)"));
+                }
+                format!("ratio: {kind}, in {} channels ({list})", keys.len())
+            }
+        })
+        .collect()
 }
 
 /// Form factors per estimator and shell; `plateau` as the final method becomes the plateau
