@@ -282,6 +282,22 @@ mod with_library {
         }
     }
 
+    /// `formfactory convert PACKED --out DIR/csv`; the CSV directory.
+    fn convert_to_csv(dir: &std::path::Path, packed: &std::path::Path) -> std::path::PathBuf {
+        let out = dir.join("csv");
+        let o = formfactory(
+            dir,
+            &[
+                "convert",
+                packed.to_str().unwrap(),
+                "--out",
+                out.to_str().unwrap(),
+            ],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        out
+    }
+
     #[test]
     fn packed_file_round_trip_and_csv_convert() {
         let (two, three, _) = read_source(&mapping(PERCFG), Some(8), &|_, _| {}).unwrap();
@@ -291,17 +307,7 @@ mod with_library {
         let (two2, three2) = read_packed(&packed).unwrap();
         assert_eq!(two, two2);
         assert_eq!(three, three2);
-        let out = dir.path().join("csv");
-        let o = formfactory(
-            dir.path(),
-            &[
-                "convert",
-                packed.to_str().unwrap(),
-                "--out",
-                out.to_str().unwrap(),
-            ],
-        );
-        assert!(o.status.success(), "{}", stderr(&o));
+        let out = convert_to_csv(dir.path(), &packed);
         let back = formfactory::io::read_dataset(
             &out.join("twopt.csv"),
             Some(&out.join("threept.csv")),
@@ -361,17 +367,7 @@ mod with_library {
         let packed = dir.path().join("ops.h5");
         write_packed(&packed, &two, &three).unwrap();
         assert_eq!(read_packed(&packed).unwrap(), (two.clone(), three.clone()));
-        let out = dir.path().join("csv");
-        let o = formfactory(
-            dir.path(),
-            &[
-                "convert",
-                packed.to_str().unwrap(),
-                "--out",
-                out.to_str().unwrap(),
-            ],
-        );
-        assert!(o.status.success(), "{}", stderr(&o));
+        let out = convert_to_csv(dir.path(), &packed);
         let header = std::fs::read_to_string(out.join("twopt.csv")).unwrap();
         assert!(
             header

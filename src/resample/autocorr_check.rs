@@ -47,7 +47,15 @@ pub struct PointAutocorr<'a> {
     pub result: Result<AutocorrResult>,
 }
 
-impl PointAutocorr<'_> {
+impl<'a> PointAutocorr<'a> {
+    /// The Gamma-method result of one point's Monte Carlo history `x`.
+    fn of(point: CheckedPoint<'a>, x: &[f64]) -> Self {
+        PointAutocorr {
+            point,
+            result: gamma_method(x, WINDOW_S),
+        }
+    }
+
     /// Whether `tau_int` is large enough that the configurations should be binned.
     pub fn binning_advised(&self) -> bool {
         self.result.as_ref().is_ok_and(|r| r.tau_int > TAU_INT_WARN)
@@ -61,10 +69,7 @@ pub fn check<'a>(
 ) -> Vec<PointAutocorr<'a>> {
     representative_points(two, three)
         .into_iter()
-        .map(|(point, x)| PointAutocorr {
-            point,
-            result: gamma_method(&x, WINDOW_S),
-        })
+        .map(|(point, x)| PointAutocorr::of(point, &x))
         .collect()
 }
 
@@ -78,10 +83,10 @@ pub struct PointStudy<'a> {
     pub binning: Vec<BinningPoint>,
 }
 
-/// The bin sizes a binning study tries on `n` configurations: up to `n / 8`, so that the
-/// largest still leaves eight bins for its error estimate (common practice: with fewer bins
-/// the error of the error exceeds a quarter).
-pub fn study_bin_sizes(n: usize) -> usize {
+/// The largest bin size a binning study tries on `n` configurations: `n / 8`, so that it
+/// still leaves eight bins for its error estimate (common practice: with fewer bins the
+/// error of the error exceeds a quarter).
+fn largest_study_bin(n: usize) -> usize {
     (n / 8).max(1)
 }
 
@@ -93,11 +98,8 @@ pub fn study<'a>(
     representative_points(two, three)
         .into_iter()
         .map(|(point, x)| PointStudy {
-            binning: binning_study(&x, study_bin_sizes(x.len())),
-            autocorr: PointAutocorr {
-                point,
-                result: gamma_method(&x, WINDOW_S),
-            },
+            binning: binning_study(&x, largest_study_bin(x.len())),
+            autocorr: PointAutocorr::of(point, &x),
         })
         .collect()
 }
