@@ -121,7 +121,7 @@ fn ratio_stage(
         .spectrum
         .as_ref()
         .ok_or_else(|| Error::analysis("ratio", "the ratio needs the spectrum stage"))?;
-    let mut states = two_point_states(sp);
+    let mut states = two_point_states(sp, rec);
     if let Some(v) = &results.variational {
         super::variational::fill_states(&mut states, sp, v, rec);
     }

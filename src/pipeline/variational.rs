@@ -144,7 +144,7 @@ pub(super) fn compare(
     if !plan.runs(Stage::Ratio) {
         return Ok(out);
     }
-    let states = two_point_states(&out.spectrum);
+    let states = two_point_states(&out.spectrum, rec);
     let channels = ratio::analyse_all(&three, &two, rplan, &states, &spec.excited_states)?;
     if plan.runs(Stage::Decomposition) {
         let mut view = results.clone();

@@ -24,6 +24,7 @@ pub mod autocorr_check;
 pub mod binning;
 pub mod covariance;
 pub mod plan;
+pub mod robust;
 pub mod value;
 
 pub use plan::{Part, ResamplePlan};

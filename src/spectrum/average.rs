@@ -4,10 +4,11 @@
 //! the central fits and normalised to one over the fits that are physical and resolved (see
 //! `WindowFit::exclusion`; the others are listed with their reason and weight zero). The averaged value is `sum w_i mu_i` and its
 //! variance `sum w_i sigma_i^2 + sum w_i mu_i^2 - (sum w_i mu_i)^2`, each `sigma_i` from the
-//! median absolute deviation of fit `i`'s samples ([`robust_variance`]).
+//! median absolute deviation of fit `i`'s samples ([`Resampled::robust_variance`]).
 //!
 //! As a [`Resampled`]: the weights are fixed from the central fits; sample `s` is first
-//! `sum w_i mu_i,s`; then its deviations from the sample mean are scaled by one common factor
+//! `sum w_i mu_i,s`, where a fit that jumped to another solution on that sample enters with
+//! its central value moved like the others (`impute_jumped_samples`); then its deviations from the sample mean are scaled by one common factor
 //! so that the resampled variance equals the Jay–Neil variance above (statistical part plus
 //! the model spread). The central value is `sum w_i mu_i` on the central fits. Correlations
 //! with other resampled quantities keep their sign and shape.
@@ -91,59 +92,6 @@ fn weights_of_included(fits: &[WindowFit], t_min_first: usize, included: &[bool]
     raw.iter().map(|r| r / total).collect()
 }
 
-/// Variance of one fit's value without the resample fits that jumped to another solution:
-/// samples farther than [`CLIP`] robust standard deviations (`1.4826 MAD`, Hampel 1974, common
-/// practice) from the median are left out, the rest give the scheme's usual variance. A few
-/// such samples would otherwise dominate the error; the bootstrap, whose samples lie farther
-/// from the centre, reaches other solutions far more often than the jackknife, which made the
-/// two schemes disagree by a factor of 3. The clipped variance (rather than `MAD^2` itself)
-/// keeps the jackknife honest: its samples follow the data's own distribution, not a normal
-/// one, so `1.4826 MAD` misjudges their spread (the demo spectrum's jackknife/bootstrap ratio
-/// went from 0.80 to 0.85–1.11 with it). Falls back to the plain variance when the MAD is zero
-/// or undefined.
-pub fn robust_variance(v: &Resampled) -> f64 {
-    let n = v.samples.len();
-    let plain = v.variance();
-    if n < 3 {
-        return plain;
-    }
-    let median = |x: &mut Vec<f64>| {
-        x.sort_by(f64::total_cmp);
-        let m = x.len() / 2;
-        if x.len().is_multiple_of(2) {
-            0.5 * (x[m - 1] + x[m])
-        } else {
-            x[m]
-        }
-    };
-    let mut x = v.samples.clone();
-    let med = median(&mut x);
-    let mut dev: Vec<f64> = x.iter().map(|x| (x - med).abs()).collect();
-    let sigma = 1.4826 * median(&mut dev);
-    // Samples beyond CLIP robust sigmas of the median are fits that jumped to another
-    // solution; the variance of the others, with the scheme's own normalisation.
-    let kept: Vec<f64> = v
-        .samples
-        .iter()
-        .copied()
-        .filter(|x| (x - med).abs() <= CLIP * sigma)
-        .collect();
-    let k = kept.len();
-    if !(sigma > 0.0 && sigma.is_finite()) || k < 3 {
-        return plain;
-    }
-    let mean = kept.iter().sum::<f64>() / k as f64;
-    let ss: f64 = kept.iter().map(|x| (x - mean).powi(2)).sum();
-    match v.scheme {
-        crate::resample::Scheme::Jackknife => ss * (k - 1) as f64 / k as f64,
-        crate::resample::Scheme::Bootstrap => ss / (k - 1) as f64,
-    }
-}
-
-/// Samples farther than this many robust standard deviations from the median are left out of
-/// a fit's variance.
-pub const CLIP: f64 = 4.0;
-
 /// How far (in the fit's own ground-energy error) the effective mass at a fit's `t_min` may be
 /// shifted by states the fit leaves out before the fit counts as contaminated.
 pub const MAX_CONTAMINATION_SIGMA: f64 = 1.0;
@@ -201,7 +149,7 @@ pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
     let stat: f64 = values
         .iter()
         .zip(w)
-        .map(|(v, w)| w * robust_variance(v))
+        .map(|(v, w)| w * v.robust_variance().0)
         .sum();
     let second: f64 = values
         .iter()
@@ -211,6 +159,7 @@ pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
     let model = (second - mean_c * mean_c).max(0.0);
     let mut avg = Resampled::combine(values, |x| x.iter().zip(w).map(|(x, w)| w * x).sum());
     avg.central = mean_c;
+    impute_jumped_samples(&mut avg, values, w);
     let var_avg = avg.variance();
     let target = stat + model;
     if var_avg > 0.0 && target.is_finite() {
@@ -221,6 +170,41 @@ pub fn average(values: &[&Resampled], w: &[f64]) -> (Resampled, f64, f64) {
         }
     }
     (avg, stat, model)
+}
+
+/// Where fit `i` jumped to another solution on sample `s` (its value outside the fit's
+/// [`Resampled::inlier_band`]), the averaged sample takes `c_i + d_s` in its place: the fit's
+/// central value moved by the weighted mean deviation `d_s` of the fits that did not jump on
+/// that sample (zero when all did). Without this, a jump in one window of small weight passed
+/// its whole size into the averaged energy's samples and from there into every kinematic
+/// factor and form factor downstream.
+fn impute_jumped_samples(avg: &mut Resampled, values: &[&Resampled], w: &[f64]) {
+    let bands: Vec<_> = values.iter().map(|v| v.inlier_band()).collect();
+    if avg.samples.len() != values.first().map_or(0, |v| v.samples.len()) {
+        return;
+    }
+    for (s, out) in avg.samples.iter_mut().enumerate() {
+        let inlier = |i: usize| bands[i].as_ref().is_none_or(|b| b(values[i].samples[s]));
+        if (0..values.len()).all(inlier) {
+            continue;
+        }
+        let (mut dev, mut w_in) = (0.0, 0.0);
+        for i in (0..values.len()).filter(|&i| inlier(i)) {
+            dev += w[i] * (values[i].samples[s] - values[i].central);
+            w_in += w[i];
+        }
+        let d = if w_in > 0.0 { dev / w_in } else { 0.0 };
+        *out = (0..values.len())
+            .map(|i| {
+                let x = if inlier(i) {
+                    values[i].samples[s]
+                } else {
+                    values[i].central + d
+                };
+                w[i] * x
+            })
+            .sum();
+    }
 }
 
 /// The model average of `fits` (non-empty; all on the same correlator). Fits with a
@@ -253,9 +237,9 @@ pub fn model_average(fits: &[WindowFit], t_min_first: usize) -> ModelAverage {
             p_value: f.central.p_value,
             weight,
             energy: f.energies[0].central,
-            energy_error: f.energies[0].error(),
+            energy_error: f.energies[0].robust_error(),
             excited_energy: f.energies.get(1).map(|e| e.central),
-            excited_energy_error: f.energies.get(1).map(Resampled::error),
+            excited_energy_error: f.energies.get(1).map(Resampled::robust_error),
             failed_samples: f.failed_samples,
             excluded,
         })

@@ -38,7 +38,9 @@ pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
                 Cell::from(n),
                 Cell::Text(source.into()),
                 float(e.central),
-                float(e.error()),
+                // The model average's error is its Jay–Neil error; an excited energy is one
+                // fit's, quoted like every fit's without the resamples that jumped.
+                float(if n == 0 { e.error() } else { e.robust_error() }),
                 int(|f| f.t_min),
                 int(|f| f.t_max),
                 int(|f| f.n_states),
