@@ -68,11 +68,6 @@ impl Resampled {
     pub fn robust_error(&self) -> f64 {
         self.robust_variance().0.sqrt()
     }
-
-    /// How many samples [`Resampled::robust_variance`] leaves out.
-    pub fn outlying_samples(&self) -> usize {
-        self.robust_variance().1
-    }
 }
 
 /// Median of `x` (sorted in place); `x` is non-empty.
