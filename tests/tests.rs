@@ -6,6 +6,7 @@ mod bad_input;
 mod campaign;
 mod cli;
 mod closure;
+mod csv_blocks;
 mod data_checks;
 mod defaults;
 mod docs;

@@ -1,9 +1,8 @@
 //! The cache that recognises a row continuing the previous row's channel, so that long tables
 //! grouped by channel parse their key fields once per channel, not once per row.
 
-use super::table::TableReader;
+use super::row::Row;
 use crate::error::Result;
-use std::io::Read;
 
 /// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
 /// channel (the usual case in long tables) skips parsing its key fields again. Key columns
@@ -27,9 +26,9 @@ impl KeyCache {
     /// The channel id of the current row: the remembered one when its key columns `cols`
     /// repeat those of the previous row (tables are usually grouped by channel), otherwise
     /// `lookup()`'s, which is then remembered. `cols` must be the same on every call.
-    pub fn channel_id<R: Read>(
+    pub fn channel_id(
         &mut self,
-        rd: &TableReader<R>,
+        rd: &Row,
         cols: &[usize],
         lookup: impl FnOnce() -> Result<u32>,
     ) -> Result<u32> {
@@ -49,24 +48,23 @@ impl KeyCache {
 
     /// Whether the key fields of the current row are byte-identical to those of the
     /// remembered row. Compares in place, without copying.
-    fn same_as_last<R: Read>(&self, rd: &TableReader<R>) -> bool {
+    fn same_as_last(&self, rd: &Row) -> bool {
         let (Some(runs), true) = (&self.runs, self.valid) else {
             return false;
         };
-        let rec = &rd.record;
-        let bytes = rec.as_slice();
+        let bytes = rd.bytes;
         let (mut at, mut ends) = (0, self.ends.iter());
         for &(a, b) in runs {
-            let (Some(first), Some(last)) = (rec.range(a), rec.range(b)) else {
+            let (Some(first), Some(last)) = (rd.range(a), rd.range(b)) else {
                 return false;
             };
             for i in a..=b {
-                let end = rec.range(i).map(|r| r.end - first.start);
+                let end = rd.range(i).map(|r| r.1 - first.0);
                 if end != ends.next().copied() {
                     return false;
                 }
             }
-            let span = &bytes[first.start..last.end];
+            let span = &bytes[first.0..last.1];
             if self.last.get(at..at + span.len()) != Some(span) {
                 return false;
             }
@@ -76,26 +74,24 @@ impl KeyCache {
     }
 
     /// Remember the key fields of the current row.
-    fn remember<R: Read>(&mut self, rd: &TableReader<R>) {
+    fn remember(&mut self, rd: &Row) {
         self.last.clear();
         self.ends.clear();
         self.valid = false;
         let Some(runs) = &self.runs else {
             return;
         };
-        let rec = &rd.record;
         for &(a, b) in runs {
-            let (Some(first), Some(last)) = (rec.range(a), rec.range(b)) else {
+            let (Some(first), Some(last)) = (rd.range(a), rd.range(b)) else {
                 return;
             };
             for i in a..=b {
-                match rec.range(i) {
-                    Some(r) => self.ends.push(r.end - first.start),
+                match rd.range(i) {
+                    Some(r) => self.ends.push(r.1 - first.0),
                     None => return,
                 }
             }
-            self.last
-                .extend_from_slice(&rec.as_slice()[first.start..last.end]);
+            self.last.extend_from_slice(&rd.bytes[first.0..last.1]);
         }
         self.valid = true;
     }
@@ -103,8 +99,8 @@ impl KeyCache {
 
 /// The record indices of the schema columns `cols` present in the header, as runs of
 /// adjacent indices `(first, last)`.
-fn runs<R: Read>(rd: &TableReader<R>, cols: &[usize]) -> Vec<(usize, usize)> {
-    let mut idx: Vec<usize> = cols.iter().filter_map(|&k| rd.index[k]).collect();
+fn runs(rd: &Row, cols: &[usize]) -> Vec<(usize, usize)> {
+    let mut idx: Vec<usize> = cols.iter().filter_map(|&k| rd.header.index[k]).collect();
     idx.sort_unstable();
     idx.dedup();
     let mut out: Vec<(usize, usize)> = Vec::new();

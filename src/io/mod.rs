@@ -52,12 +52,14 @@
 //! model in memory.
 
 mod accumulator;
+mod blocks;
 mod digest;
 pub mod hdf5;
 pub mod inspect;
 mod key_cache;
 mod number;
 mod open;
+mod row;
 pub mod seed;
 mod table;
 mod threept;

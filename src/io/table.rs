@@ -1,37 +1,14 @@
-//! Shared machinery of the CSV readers: header mapping and field parsing with precise error
-//! locations (numbers in `number.rs`, the key cache in `key_cache.rs`, the digest taken while
-//! reading in `digest.rs`).
-//! The rows go into the accumulator of `accumulator.rs`.
+//! Shared machinery of the CSV readers: opening an input, the general CSV reader (quoted
+//! fields, any line terminator) that takes over where the parallel block splitter of
+//! `blocks.rs` does not apply, and the table-level errors. Rows and their field parsing are in
+//! `row.rs`, numbers in `number.rs`, the key cache in `key_cache.rs`, the digest taken while
+//! reading in `digest.rs`; the rows go into the accumulator of `accumulator.rs`.
 
+pub(crate) use super::row::Column;
+use super::row::{Header, Row};
 use crate::error::{Error, Location, Result};
 use std::io::Read;
 use std::path::{Path, PathBuf};
-
-/// One column of a table schema.
-pub(crate) struct Column {
-    /// Header name.
-    pub name: &'static str,
-    /// Whether the table must have it.
-    pub required: bool,
-}
-
-impl Column {
-    /// A column every table must have.
-    pub const fn required(name: &'static str) -> Column {
-        Column {
-            name,
-            required: true,
-        }
-    }
-
-    /// A column a table may leave out.
-    pub const fn optional(name: &'static str) -> Column {
-        Column {
-            name,
-            required: false,
-        }
-    }
-}
 
 /// The display name of an input: the path, or `<stdin>` for `-`.
 pub(crate) fn display_name(path: &Path) -> PathBuf {
@@ -51,115 +28,94 @@ pub(crate) fn open(path: &Path) -> Result<Box<dyn Read>> {
     }
 }
 
-/// A CSV reader over `input` plus the header mapped onto `schema`.
+/// The general CSV reader (quoted fields, any line terminator): the path for tables the
+/// block splitter of `blocks.rs` does not take. It yields [`Row`]s over its current record.
 pub(crate) struct TableReader<R: Read> {
     csv: csv::Reader<R>,
     file: PathBuf,
-    /// For each schema column, its 0-based index in the records, if present.
-    pub index: Vec<Option<usize>>,
     n_fields: usize,
-    /// The current record.
-    pub record: csv::ByteRecord,
+    record: csv::ByteRecord,
+    bounds: Vec<(usize, usize)>,
+    /// Line of the input's first line in the file (1 when the input starts at the header).
+    first_line: u64,
     /// 1-based line of the current record.
     pub line: u64,
 }
 
+fn csv_reader<R: Read>(input: R) -> csv::Reader<R> {
+    csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .buffer_capacity(1 << 18)
+        .from_reader(input)
+}
+
 impl<R: Read> TableReader<R> {
     /// Read the header and map it onto `schema`.
-    pub fn new(input: R, file: PathBuf, schema: &[Column]) -> Result<Self> {
-        let mut csv = csv::ReaderBuilder::new()
-            .has_headers(false)
-            .flexible(true)
-            .buffer_capacity(1 << 18)
-            .from_reader(input);
+    pub fn new(input: R, file: PathBuf, schema: &[Column]) -> Result<(Self, Header)> {
+        let mut csv = csv_reader(input);
         let mut header = csv::ByteRecord::new();
         let got = csv
             .read_byte_record(&mut header)
-            .map_err(|e| csv_error(&file, e))?;
+            .map_err(|e| csv_error(&file, 0, e))?;
         if !got {
             return Err(Error::Table {
                 path: file,
                 message: format!(
                     "the file is empty; expected a header line with the columns {}",
-                    schema_list(schema)
+                    super::row::schema_list(schema)
                 ),
             });
         }
-        let mut index = vec![None; schema.len()];
-        for (i, raw) in header.iter().enumerate() {
-            let raw = if i == 0 {
-                raw.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(raw)
-            } else {
-                raw
-            };
-            let name = String::from_utf8_lossy(raw);
-            let loc = Location {
-                file: file.clone(),
-                line: 1,
-                column: Some(i as u64 + 1),
-                field: Some(crate::error::excerpt(raw)),
-            };
-            let Some(k) = schema.iter().position(|c| c.name == name) else {
-                return Err(Error::Data {
-                    location: loc,
-                    message: format!(
-                        "unknown column `{}`; allowed columns are {}",
-                        crate::error::excerpt(raw),
-                        schema_list(schema)
-                    ),
-                });
-            };
-            if index[k].is_some() {
-                return Err(Error::Data {
-                    location: loc,
-                    message: format!("column `{name}` appears twice in the header"),
-                });
-            }
-            index[k] = Some(i);
-        }
-        if let Some(k) = (0..schema.len()).find(|&k| schema[k].required && index[k].is_none()) {
-            return Err(Error::Data {
-                location: Location {
-                    file: file.clone(),
-                    line: 1,
-                    column: None,
-                    field: Some(schema[k].name.to_string()),
-                },
-                message: format!(
-                    "required column `{}` is missing; the header must name {}",
-                    schema[k].name,
-                    required_list(schema)
-                ),
-            });
-        }
-        Ok(TableReader {
+        let header = Header::map(header.iter(), file.clone(), schema)?;
+        let reader = TableReader {
             csv,
             file,
-            index,
-            n_fields: header.len(),
+            n_fields: header.n_fields,
             record: csv::ByteRecord::new(),
+            bounds: Vec::new(),
+            first_line: 1,
             line: 1,
-        })
+        };
+        Ok((reader, header))
     }
 
-    /// The file name used in messages.
-    pub fn file(&self) -> &Path {
-        &self.file
+    /// Go on reading data rows from `input`, whose first byte starts line `first_line` of the
+    /// table `header` describes.
+    pub fn resume(input: R, header: &Header, first_line: u64) -> Self {
+        TableReader {
+            csv: csv_reader(input),
+            file: header.file.clone(),
+            n_fields: header.n_fields,
+            record: csv::ByteRecord::new(),
+            bounds: Vec::new(),
+            first_line,
+            line: first_line.saturating_sub(1),
+        }
     }
 
     /// Advance to the next record; `false` at the end of the input.
     pub fn next(&mut self) -> Result<bool> {
+        let offset = self.first_line - 1;
         let got = self
             .csv
             .read_byte_record(&mut self.record)
-            .map_err(|e| csv_error(&self.file, e))?;
+            .map_err(|e| csv_error(&self.file, offset, e))?;
         if !got {
             return Ok(false);
         }
-        self.line = self.record.position().map_or(self.line + 1, |p| p.line());
+        self.line = self
+            .record
+            .position()
+            .map_or(self.line + 1, |p| p.line() + offset);
         if self.record.len() != self.n_fields {
             return Err(Error::Data {
-                location: self.row_location(),
+                location: Location {
+                    file: self.file.clone(),
+                    line: self.line,
+                    column: None,
+                    field: None,
+                },
                 message: format!(
                     "row has {} fields, the header has {}",
                     self.record.len(),
@@ -167,201 +123,26 @@ impl<R: Read> TableReader<R> {
                 ),
             });
         }
+        self.bounds.clear();
+        let record = &self.record;
+        self.bounds
+            .extend((0..record.len()).filter_map(|i| record.range(i).map(|r| (r.start, r.end))));
         Ok(true)
     }
 
-    /// Location of the whole current row.
-    pub fn row_location(&self) -> Location {
-        Location {
-            file: self.file.clone(),
+    /// The current record as a row of the table `header` describes.
+    pub fn row<'a>(&'a self, header: &'a Header) -> Row<'a> {
+        Row {
+            header,
+            bytes: self.record.as_slice(),
+            bounds: &self.bounds,
             line: self.line,
-            column: None,
-            field: None,
-        }
-    }
-
-    /// Location of schema column `k` in the current row.
-    pub fn location(&self, k: usize, name: &str) -> Location {
-        Location {
-            file: self.file.clone(),
-            line: self.line,
-            column: self.index[k].map(|i| i as u64 + 1),
-            field: Some(name.to_string()),
-        }
-    }
-
-    /// Raw bytes of schema column `k` (empty when the column is absent).
-    pub fn raw(&self, k: usize) -> &[u8] {
-        match self.index[k] {
-            Some(i) => self.record.get(i).unwrap_or(b""),
-            None => b"",
-        }
-    }
-
-    fn field_error(&self, k: usize, schema: &[Column], expected: &str) -> Error {
-        let name = schema[k].name;
-        Error::Data {
-            location: self.location(k, name),
-            message: format!(
-                "cannot read `{}` as {expected}",
-                crate::error::excerpt(self.raw(k))
-            ),
-        }
-    }
-
-    /// Schema column `k` as an integer.
-    pub fn int(&self, k: usize, schema: &[Column]) -> Result<i64> {
-        parse_int(self.raw(k)).ok_or_else(|| self.field_error(k, schema, "an integer"))
-    }
-
-    /// Schema column `k` as a time value in `0..=MAX_TIME`.
-    pub fn time(&self, k: usize, schema: &[Column]) -> Result<u32> {
-        let v = self.int(k, schema)?;
-        if v < 0 || v > i64::from(super::MAX_TIME) {
-            return Err(Error::Data {
-                location: self.location(k, schema[k].name),
-                message: format!(
-                    "`{}` = {v} is out of range; expected 0 <= {} <= {}",
-                    schema[k].name,
-                    schema[k].name,
-                    super::MAX_TIME
-                ),
-            });
-        }
-        Ok(v as u32)
-    }
-
-    /// Schema column `k` as a momentum component.
-    pub fn mom(&self, k: usize, schema: &[Column]) -> Result<i32> {
-        let v = self.int(k, schema)?;
-        i32::try_from(v)
-            .map_err(|_| self.field_error(k, schema, "a momentum component (32-bit integer)"))
-    }
-
-    /// Schema column `k` as a finite float.
-    pub fn float(&self, k: usize, schema: &[Column]) -> Result<f64> {
-        let raw = self.raw(k);
-        let v: f64 = super::number::parse_float(raw)
-            .ok_or_else(|| self.field_error(k, schema, "a number"))?;
-        if !v.is_finite() {
-            return Err(Error::Data {
-                location: self.location(k, schema[k].name),
-                message: format!(
-                    "non-finite value `{}`; the format allows finite numbers only",
-                    crate::error::excerpt(raw)
-                ),
-            });
-        }
-        Ok(v)
-    }
-
-    /// Schema column `k` as text (must be UTF-8).
-    pub fn text(&self, k: usize, schema: &[Column]) -> Result<&str> {
-        std::str::from_utf8(self.raw(k)).map_err(|_| self.field_error(k, schema, "UTF-8 text"))
-    }
-
-    /// Refuse a header that names one of the optional columns `a` and `b` without the other
-    /// (the operator columns come as a pair).
-    pub fn check_paired(&self, a: usize, b: usize, schema: &[Column]) -> Result<()> {
-        let (have, missing) = match (self.index[a], self.index[b]) {
-            (Some(i), None) => (i, b),
-            (None, Some(i)) => (i, a),
-            _ => return Ok(()),
-        };
-        let other = if missing == a { b } else { a };
-        Err(Error::Data {
-            location: Location {
-                file: self.file.clone(),
-                line: 1,
-                column: Some(have as u64 + 1),
-                field: Some(schema[other].name.to_string()),
-            },
-            message: format!(
-                "column `{}` needs the column `{}` as well (operator labels come in pairs)",
-                schema[other].name, schema[missing].name
-            ),
-        })
-    }
-
-    /// The sink and source operator labels of the current row from columns `sink` and
-    /// `source`: `None` when both are empty (or absent), an error when only one is filled.
-    pub fn operators(
-        &self,
-        sink: usize,
-        source: usize,
-        schema: &[Column],
-    ) -> Result<Option<(&str, &str)>> {
-        let (a, b) = (self.text(sink, schema)?, self.text(source, schema)?);
-        match (a.is_empty(), b.is_empty()) {
-            (true, true) => Ok(None),
-            (false, false) => Ok(Some((a, b))),
-            (true, false) | (false, true) => {
-                let empty = if a.is_empty() { sink } else { source };
-                Err(Error::Data {
-                    location: self.location(empty, schema[empty].name),
-                    message: format!(
-                        "`{}` is empty while `{}` is `{}`: give both operator labels or neither",
-                        schema[empty].name,
-                        schema[if empty == sink { source } else { sink }].name,
-                        crate::error::excerpt(if a.is_empty() { b } else { a }.as_bytes())
-                    ),
-                })
-            }
         }
     }
 }
 
-/// Parse an optionally signed decimal integer without allocating; `None` on anything else.
-fn parse_int(b: &[u8]) -> Option<i64> {
-    let (neg, digits) = match b.first() {
-        Some(b'-') => (true, &b[1..]),
-        Some(b'+') => (false, &b[1..]),
-        _ => (false, b),
-    };
-    if digits.is_empty() {
-        return None;
-    }
-    let mut v: i64 = 0;
-    for &c in digits {
-        if !c.is_ascii_digit() {
-            return None;
-        }
-        let d = i64::from(c - b'0');
-        v = v.checked_mul(10)?;
-        v = if neg {
-            v.checked_sub(d)?
-        } else {
-            v.checked_add(d)?
-        };
-    }
-    Some(v)
-}
-
-fn schema_list(schema: &[Column]) -> String {
-    schema
-        .iter()
-        .map(|c| {
-            if c.required {
-                c.name.to_string()
-            } else {
-                format!("{} (optional)", c.name)
-            }
-        })
-        .collect::<Vec<_>>()
-        .join(", ")
-}
-
-fn required_list(schema: &[Column]) -> String {
-    schema
-        .iter()
-        .filter(|c| c.required)
-        .map(|c| c.name)
-        .collect::<Vec<_>>()
-        .join(", ")
-}
-
-fn csv_error(file: &Path, e: csv::Error) -> Error {
-    let line = e.position().map_or(0, |p| p.line());
+fn csv_error(file: &Path, offset: u64, e: csv::Error) -> Error {
+    let line = e.position().map_or(0, |p| p.line() + offset);
     match e.into_kind() {
         csv::ErrorKind::Io(io) => Error::io(file, io),
         other => Error::Data {

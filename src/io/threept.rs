@@ -4,9 +4,11 @@
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
 use super::accumulator::{key_order, Accumulator, Summary};
+use super::blocks::{open_rows, LocalKeys, ParsedRow, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
-use super::table::{display_name, no_data_rows, open, Column, TableReader};
+use super::row::Row;
+use super::table::{display_name, no_data_rows, open, Column};
 use crate::data::{Current, Diagram, Operators, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -97,55 +99,21 @@ fn current_names() -> String {
 }
 
 pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePointData, Summary)> {
-    let mut rd = TableReader::new(input, file, SCHEMA)?;
-    let with_source = rd.index[SOURCE].is_some();
-    let with_flavor = rd.index[FLAVOR].is_some();
-    let with_diagram = rd.index[DIAGRAM].is_some();
-    rd.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
-    let mut acc = Accumulator::new(with_source);
+    let (header, rows) = open_rows(input, file, SCHEMA)?;
+    header.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
+    let parser = Parser {
+        with_source: header.index[SOURCE].is_some(),
+        with_flavor: header.index[FLAVOR].is_some(),
+        with_diagram: header.index[DIAGRAM].is_some(),
+    };
+    let mut acc = Accumulator::new(parser.with_source);
     let mut keys: Vec<ThreePointKey> = Vec::new();
-    let mut enc: Vec<u8> = Vec::with_capacity(64);
-    let mut cache = KeyCache::default();
-    while rd.next()? {
-        let config = rd.int(CONFIG, SCHEMA)?;
-        let id = cache.channel_id(&rd, &KEY_COLUMNS, || {
-            channel_id(
-                &rd,
-                &mut acc,
-                &mut keys,
-                &mut enc,
-                with_flavor,
-                with_diagram,
-            )
-        })?;
-        let k = &keys[id as usize];
-        let tsep = k.tsep;
-        let tau = rd.time(TAU, SCHEMA)?;
-        if tau > tsep {
-            return Err(Error::Data {
-                location: rd.location(TAU, "tau"),
-                message: format!("tau = {tau} lies outside [0, tsep] = [0, {tsep}]"),
-            });
-        }
-        let re = rd.float(RE, SCHEMA)?;
-        let im = rd.float(IM, SCHEMA)?;
-        let source = if with_source {
-            Some(rd.int(SOURCE, SCHEMA)?)
-        } else {
-            None
-        };
-        acc.add(
-            id,
-            tau,
-            config,
-            source,
-            re,
-            im,
-            || rd.row_location(),
-            || format!("three-point {} tau={tau}", super::describe_threept(k)),
-        )?;
-    }
-    let file = rd.file().to_path_buf();
+    rows.for_each_batch(&header, &parser, |batch| {
+        batch.merge(&mut acc, &mut keys, &header, |k, tau| {
+            format!("three-point {} tau={tau}", super::describe_threept(k))
+        })
+    })?;
+    let file = header.file.clone();
     if keys.is_empty() {
         return Err(no_data_rows(file));
     }
@@ -178,99 +146,133 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
     ))
 }
 
-/// Parse the key columns of the current row and return its channel id, registering a new
-/// channel when the key is new.
-fn channel_id<R: Read>(
-    rd: &TableReader<R>,
-    acc: &mut Accumulator,
-    keys: &mut Vec<ThreePointKey>,
-    enc: &mut Vec<u8>,
+/// What the three-point table's header says about its rows.
+struct Parser {
+    with_source: bool,
     with_flavor: bool,
     with_diagram: bool,
-) -> Result<u32> {
-    let tsep = rd.time(TSEP, SCHEMA)?;
-    let mut pf = [0i32; 3];
-    let mut q = [0i32; 3];
-    for i in 0..3 {
-        pf[i] = rd.mom(PFX + i, SCHEMA)?;
-        q[i] = rd.mom(QX + i, SCHEMA)?;
+}
+
+impl RowParser for Parser {
+    type Key = ThreePointKey;
+
+    fn parse(
+        &self,
+        rd: &Row,
+        cache: &mut KeyCache,
+        keys: &mut LocalKeys<ThreePointKey>,
+    ) -> Result<ParsedRow> {
+        let config = rd.int(CONFIG, SCHEMA)?;
+        let key = cache.channel_id(rd, &KEY_COLUMNS, || self.channel_key(rd, keys))?;
+        let tsep = keys.get(key).tsep;
+        let tau = rd.time(TAU, SCHEMA)?;
+        if tau > tsep {
+            return Err(Error::Data {
+                location: rd.location(TAU, "tau"),
+                message: format!("tau = {tau} lies outside [0, tsep] = [0, {tsep}]"),
+            });
+        }
+        let re = rd.float(RE, SCHEMA)?;
+        let im = rd.float(IM, SCHEMA)?;
+        let source = if self.with_source {
+            Some(rd.int(SOURCE, SCHEMA)?)
+        } else {
+            None
+        };
+        Ok(ParsedRow {
+            key,
+            t: tau,
+            config,
+            source,
+            re,
+            im,
+            line: rd.line,
+        })
     }
-    let name = rd.text(CURRENT, SCHEMA)?;
-    let current = Current::parse(name).ok_or_else(|| Error::Data {
-        location: rd.location(CURRENT, "current"),
-        message: format!(
-            "unknown current `{}`; expected one of {}",
-            crate::error::excerpt(name.as_bytes()),
-            current_names()
-        ),
-    })?;
-    let name = rd.text(PROJECTOR, SCHEMA)?;
-    let projector = Projector::parse(name).ok_or_else(|| Error::Data {
-        location: rd.location(PROJECTOR, "projector"),
-        message: format!(
-            "unknown projector `{}`; expected one of unpol, pol1, pol2, pol3, none",
-            crate::error::excerpt(name.as_bytes())
-        ),
-    })?;
-    let diagram = if with_diagram {
-        match rd.raw(DIAGRAM) {
-            b"" => None,
-            b"connected" => Some(Diagram::Connected),
-            b"disconnected" => Some(Diagram::Disconnected),
-            other => {
-                return Err(Error::Data {
-                    location: rd.location(DIAGRAM, "diagram"),
-                    message: format!(
-                        "unknown diagram `{}`; expected connected, disconnected or an \
+}
+
+impl Parser {
+    /// Parse the key columns of the row and return its batch-local key index, registering a
+    /// new key when it is new.
+    fn channel_key(&self, rd: &Row, keys: &mut LocalKeys<ThreePointKey>) -> Result<u32> {
+        let tsep = rd.time(TSEP, SCHEMA)?;
+        let mut pf = [0i32; 3];
+        let mut q = [0i32; 3];
+        for i in 0..3 {
+            pf[i] = rd.mom(PFX + i, SCHEMA)?;
+            q[i] = rd.mom(QX + i, SCHEMA)?;
+        }
+        let name = rd.text(CURRENT, SCHEMA)?;
+        let current = Current::parse(name).ok_or_else(|| Error::Data {
+            location: rd.location(CURRENT, "current"),
+            message: format!(
+                "unknown current `{}`; expected one of {}",
+                crate::error::excerpt(name.as_bytes()),
+                current_names()
+            ),
+        })?;
+        let name = rd.text(PROJECTOR, SCHEMA)?;
+        let projector = Projector::parse(name).ok_or_else(|| Error::Data {
+            location: rd.location(PROJECTOR, "projector"),
+            message: format!(
+                "unknown projector `{}`; expected one of unpol, pol1, pol2, pol3, none",
+                crate::error::excerpt(name.as_bytes())
+            ),
+        })?;
+        let diagram = if self.with_diagram {
+            match rd.raw(DIAGRAM) {
+                b"" => None,
+                b"connected" => Some(Diagram::Connected),
+                b"disconnected" => Some(Diagram::Disconnected),
+                other => {
+                    return Err(Error::Data {
+                        location: rd.location(DIAGRAM, "diagram"),
+                        message: format!(
+                            "unknown diagram `{}`; expected connected, disconnected or an \
                              empty field",
-                        crate::error::excerpt(other)
-                    ),
-                })
+                            crate::error::excerpt(other)
+                        ),
+                    })
+                }
+            }
+        } else {
+            None
+        };
+        let flavor = if self.with_flavor {
+            rd.text(FLAVOR, SCHEMA)?
+        } else {
+            ""
+        };
+        let mut enc = Vec::with_capacity(64);
+        enc.extend_from_slice(&tsep.to_le_bytes());
+        for p in pf.iter().chain(q.iter()) {
+            enc.extend_from_slice(&p.to_le_bytes());
+        }
+        enc.push(current as u8);
+        enc.extend_from_slice(projector.name().as_bytes());
+        enc.push(match diagram {
+            None => 0,
+            Some(Diagram::Connected) => 1,
+            Some(Diagram::Disconnected) => 2,
+        });
+        enc.extend_from_slice(&(flavor.len() as u32).to_le_bytes());
+        enc.extend_from_slice(flavor.as_bytes());
+        let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
+        if let Some((a, b)) = ops {
+            for label in [a, b] {
+                enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
+                enc.extend_from_slice(label.as_bytes());
             }
         }
-    } else {
-        None
-    };
-    let flavor = if with_flavor {
-        rd.text(FLAVOR, SCHEMA)?
-    } else {
-        ""
-    };
-    enc.clear();
-    enc.extend_from_slice(&tsep.to_le_bytes());
-    for p in pf.iter().chain(q.iter()) {
-        enc.extend_from_slice(&p.to_le_bytes());
+        Ok(keys.id(&enc, || ThreePointKey {
+            tsep,
+            pf,
+            q,
+            current,
+            projector,
+            flavor: (!flavor.is_empty()).then(|| flavor.to_string()),
+            diagram,
+            ops: ops.map(|(a, b)| Operators::new(a, b)),
+        }))
     }
-    enc.push(current as u8);
-    enc.extend_from_slice(projector.name().as_bytes());
-    enc.push(match diagram {
-        None => 0,
-        Some(Diagram::Connected) => 1,
-        Some(Diagram::Disconnected) => 2,
-    });
-    enc.extend_from_slice(&(flavor.len() as u32).to_le_bytes());
-    enc.extend_from_slice(flavor.as_bytes());
-    let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
-    if let Some((a, b)) = ops {
-        for label in [a, b] {
-            enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
-            enc.extend_from_slice(label.as_bytes());
-        }
-    }
-    Ok(match acc.channel(enc) {
-        Some(id) => id,
-        None => {
-            keys.push(ThreePointKey {
-                tsep,
-                pf,
-                q,
-                current,
-                projector,
-                flavor: (!flavor.is_empty()).then(|| flavor.to_string()),
-                diagram,
-                ops: ops.map(|(a, b)| Operators::new(a, b)),
-            });
-            acc.add_channel(enc, rd.line)
-        }
-    })
 }

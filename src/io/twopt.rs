@@ -4,9 +4,11 @@
 //! `t = 0..T-1` for every configuration.
 
 use super::accumulator::{key_order, Accumulator, Summary};
+use super::blocks::{open_rows, LocalKeys, ParsedRow, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
-use super::table::{display_name, no_data_rows, open, Column, TableReader};
+use super::row::Row;
+use super::table::{display_name, no_data_rows, open, Column};
 use crate::data::{Operators, Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -63,42 +65,22 @@ pub(crate) fn read_hashed(path: &Path) -> Result<(TwoPointData, Summary, FileDig
 }
 
 pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointData, Summary)> {
-    let mut rd = TableReader::new(input, file, SCHEMA)?;
-    let with_source = rd.index[SOURCE].is_some();
-    let with_smear = rd.index[SMEAR].is_some();
-    rd.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
-    let mut acc = Accumulator::new(with_source);
+    let (header, rows) = open_rows(input, file, SCHEMA)?;
+    header.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
+    let parser = Parser {
+        with_source: header.index[SOURCE].is_some(),
+        with_smear: header.index[SMEAR].is_some(),
+    };
+    let mut acc = Accumulator::new(parser.with_source);
     let mut keys: Vec<TwoPointKey> = Vec::new();
-    let mut enc: Vec<u8> = Vec::with_capacity(64);
     let mut max_t: Option<u32> = None;
-    let mut cache = KeyCache::default();
-    while rd.next()? {
-        let config = rd.int(CONFIG, SCHEMA)?;
-        let id = cache.channel_id(&rd, &KEY_COLUMNS, || {
-            channel_id(&rd, &mut acc, &mut keys, &mut enc, with_smear)
-        })?;
-        let t = rd.time(T, SCHEMA)?;
-        let re = rd.float(RE, SCHEMA)?;
-        let im = rd.float(IM, SCHEMA)?;
-        let source = if with_source {
-            Some(rd.int(SOURCE, SCHEMA)?)
-        } else {
-            None
-        };
-        max_t = max_t.max(Some(t));
-        let k = &keys[id as usize];
-        acc.add(
-            id,
-            t,
-            config,
-            source,
-            re,
-            im,
-            || rd.row_location(),
-            || format!("two-point {} t={t}", super::describe_twopt(k)),
-        )?;
-    }
-    let file = rd.file().to_path_buf();
+    rows.for_each_batch(&header, &parser, |batch| {
+        max_t = max_t.max(batch.rows.iter().map(|r| r.t).max());
+        batch.merge(&mut acc, &mut keys, &header, |k, t| {
+            format!("two-point {} t={t}", super::describe_twopt(k))
+        })
+    })?;
+    let file = header.file.clone();
     let Some(max_t) = max_t else {
         return Err(no_data_rows(file));
     };
@@ -133,46 +115,73 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
     ))
 }
 
-/// Parse the key columns of the current row and return its channel id, registering a new
-/// channel when the key is new.
-fn channel_id<R: Read>(
-    rd: &TableReader<R>,
-    acc: &mut Accumulator,
-    keys: &mut Vec<TwoPointKey>,
-    enc: &mut Vec<u8>,
+/// What the two-point table's header says about its rows.
+struct Parser {
+    with_source: bool,
     with_smear: bool,
-) -> Result<u32> {
-    let mut momentum = [0i32; 3];
-    for (i, p) in momentum.iter_mut().enumerate() {
-        *p = rd.mom(PX + i, SCHEMA)?;
+}
+
+impl RowParser for Parser {
+    type Key = TwoPointKey;
+
+    fn parse(
+        &self,
+        rd: &Row,
+        cache: &mut KeyCache,
+        keys: &mut LocalKeys<TwoPointKey>,
+    ) -> Result<ParsedRow> {
+        let config = rd.int(CONFIG, SCHEMA)?;
+        let key = cache.channel_id(rd, &KEY_COLUMNS, || self.channel_key(rd, keys))?;
+        let t = rd.time(T, SCHEMA)?;
+        let re = rd.float(RE, SCHEMA)?;
+        let im = rd.float(IM, SCHEMA)?;
+        let source = if self.with_source {
+            Some(rd.int(SOURCE, SCHEMA)?)
+        } else {
+            None
+        };
+        Ok(ParsedRow {
+            key,
+            t,
+            config,
+            source,
+            re,
+            im,
+            line: rd.line,
+        })
     }
-    enc.clear();
-    for p in momentum {
-        enc.extend_from_slice(&p.to_le_bytes());
-    }
-    let smear = if with_smear {
-        rd.text(SMEAR, SCHEMA)?
-    } else {
-        ""
-    };
-    enc.extend_from_slice(&(smear.len() as u32).to_le_bytes());
-    enc.extend_from_slice(smear.as_bytes());
-    let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
-    if let Some((a, b)) = ops {
-        for label in [a, b] {
-            enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
-            enc.extend_from_slice(label.as_bytes());
+}
+
+impl Parser {
+    /// Parse the key columns of the row and return its batch-local key index, registering a
+    /// new key when it is new.
+    fn channel_key(&self, rd: &Row, keys: &mut LocalKeys<TwoPointKey>) -> Result<u32> {
+        let mut momentum = [0i32; 3];
+        for (i, p) in momentum.iter_mut().enumerate() {
+            *p = rd.mom(PX + i, SCHEMA)?;
         }
-    }
-    Ok(match acc.channel(enc) {
-        Some(id) => id,
-        None => {
-            keys.push(TwoPointKey {
-                momentum,
-                smear: (!smear.is_empty()).then(|| smear.to_string()),
-                ops: ops.map(|(a, b)| Operators::new(a, b)),
-            });
-            acc.add_channel(enc, rd.line)
+        let mut enc = Vec::with_capacity(32);
+        for p in momentum {
+            enc.extend_from_slice(&p.to_le_bytes());
         }
-    })
+        let smear = if self.with_smear {
+            rd.text(SMEAR, SCHEMA)?
+        } else {
+            ""
+        };
+        enc.extend_from_slice(&(smear.len() as u32).to_le_bytes());
+        enc.extend_from_slice(smear.as_bytes());
+        let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
+        if let Some((a, b)) = ops {
+            for label in [a, b] {
+                enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
+                enc.extend_from_slice(label.as_bytes());
+            }
+        }
+        Ok(keys.id(&enc, || TwoPointKey {
+            momentum,
+            smear: (!smear.is_empty()).then(|| smear.to_string()),
+            ops: ops.map(|(a, b)| Operators::new(a, b)),
+        }))
+    }
 }
