@@ -57,15 +57,27 @@ pub fn twists_by_side(
             let first = *used.entry(n).or_insert(this);
             if first.sink != on_sink && sink != source {
                 let twist = |u: &Use| if u.sink { sink } else { source };
+                let sides = if (first.pf, first.q) == (pf, q) {
+                    format!(
+                        "both the sink and the source momentum of the forward channel p_f = \
+                         {}, q = {} (sink twist {sink:?}, source twist {source:?})",
+                        momentum_text(pf),
+                        momentum_text(q)
+                    )
+                } else {
+                    format!(
+                        "{}\n  and {}",
+                        first.describe(twist(&first)),
+                        this.describe(twist(&this))
+                    )
+                };
                 // one line per part: the CLI shortens lines of more than 400 characters
                 return Err(Error::config(format!(
                     "twisted boundary conditions: momentum {n} is used on both sides with \
-                     different twists:\n  {}\n  and {}.\nThe two-point data have no column \
-                     saying which twist a function carries, so one two-point function at {n} \
-                     cannot serve both sides: choose sink momenta that no channel uses as a \
-                     source momentum, or equal sink and source twists",
-                    first.describe(twist(&first)),
-                    this.describe(twist(&this)),
+                     different twists:\n  {sides}.\nThe two-point data have no column saying \
+                     which twist a function carries, so one two-point function at {n} cannot \
+                     serve both sides: choose sink momenta that no channel uses as a source \
+                     momentum, or equal sink and source twists",
                     n = momentum_text(n),
                 )));
             }
