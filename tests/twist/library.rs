@@ -234,3 +234,27 @@ fn the_gate_compares_with_the_mass_of_a_twisted_rest_frame() {
     assert!(r.dropped.is_empty(), "{:?}", r.dropped);
     assert!(e1.central > r.mass.as_ref().unwrap().central);
 }
+
+// A rest-frame ground-energy prior on the twisted fit at (0,0,0), centred on its analytic
+// E(theta/L) and narrower than the data's error (1e-5 against about 2e-5), reaches the sink
+// (0,0,1) through the mass: centred on sqrt(m² + p²) there, so E(0,0,1) stays within 1e-3 of
+// the truth. Carried as if E(0) were the mass, its centre would sit 0.015 too high
+// (sqrt(0.496² + 0.175²) against sqrt(0.48² + 0.175²)) and pull the fit there.
+#[test]
+fn a_rest_frame_prior_is_carried_through_the_mass() {
+    let m_true = 0.48;
+    let twists = fixture_twists();
+    let data = synthetic(m_true, Dispersion::Continuum, &twists, 80);
+    let p0 = lattice_momentum([0, 0, 0], L, SOURCE);
+    let mut s = settings(twists, Dispersion::Continuum);
+    s.priors.ground_energy = Some(formfactory::fit::Prior::new(
+        continuum_energy(m_true, p0),
+        1e-5,
+    ));
+    let r = run(&data, &ResamplePlan::jackknife(80), &s).unwrap();
+    let p1 = lattice_momentum([0, 0, 1], L, SINK);
+    let e1 = r.per_momentum[&[0, 0, 1]].ground_energy();
+    let truth = continuum_energy(m_true, p1);
+    println!("E(0,0,1) = {e1}, truth {truth}");
+    assert!((e1.central - truth).abs() < 1e-3, "{e1} vs {truth}");
+}
