@@ -124,7 +124,7 @@ impl KinematicSetup {
 
     /// Check that the setup can serve `n_samples` resamples; returns the number of samples.
     /// (Fitted energies with different sink and source twists are checked against the
-    /// channels in [`super::decompose`]: every momentum must be used on one side only.)
+    /// channels in `decompose`: every momentum must be used on one side only.)
     pub fn validate(&self) -> Result<usize> {
         let n = self.mass.len();
         if self.l == 0 {
