@@ -20,6 +20,7 @@ mod momentum;
 mod phase;
 pub mod renorm;
 mod setup;
+mod twists;
 
 pub use decompose::{
     decompose, ChannelValue, Decomposition, DecompositionSettings, ShellResult, SkippedShell,
@@ -28,9 +29,10 @@ pub use decompose::{
 pub use phase::Phase;
 pub use renorm::{renormalize, Renormalized, ZFactor, ZFactors};
 pub use setup::{Dispersion, Energies, EnergySource, KinematicSetup};
+pub use twists::twists_by_side;
 
 pub use factors::{coefficients, FormFactor, Hadron};
 pub use momentum::{
-    continuum_energy, energy_to_gev, lattice_dispersion_energy, lattice_momentum, q2_to_gev2,
-    q_squared, OnShell, HBARC_GEV_FM,
+    continuum_energy, continuum_mass, energy_to_gev, lattice_dispersion_energy,
+    lattice_dispersion_mass, lattice_momentum, q2_to_gev2, q_squared, OnShell, HBARC_GEV_FM,
 };

@@ -46,6 +46,28 @@ pub fn lattice_dispersion_energy(mass: f64, p: [f64; 3]) -> f64 {
     2.0 * s.sqrt().asinh()
 }
 
+/// The mass from an energy `e` at momentum `p` by the inverted continuum relation
+/// `m² = E² - p²`; NaN when `E² <= p²` (no mass has that energy there).
+pub fn continuum_mass(e: f64, p: [f64; 3]) -> f64 {
+    let m2 = e * e - dot(p, p);
+    if m2 > 0.0 {
+        m2.sqrt()
+    } else {
+        f64::NAN
+    }
+}
+
+/// The mass from an energy `e` at momentum `p` by the inverted lattice relation
+/// `sinh²(m/2) = sinh²(E/2) - sum_i sin²(p_i/2)`; NaN when the right side is not positive.
+pub fn lattice_dispersion_mass(e: f64, p: [f64; 3]) -> f64 {
+    let s = (e / 2.0).sinh().powi(2) - p.iter().map(|x| (x / 2.0).sin().powi(2)).sum::<f64>();
+    if s > 0.0 {
+        2.0 * s.sqrt().asinh()
+    } else {
+        f64::NAN
+    }
+}
+
 /// `Q² = |p_f - p_i|² - (E_f - E_i)²`, which equals `q.q` of the Euclidean four-vector
 /// `q = P_f - P_i` with `P = (p, iE)`.
 pub fn q_squared(k: &OnShell) -> f64 {

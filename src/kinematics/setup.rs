@@ -2,7 +2,8 @@
 //! the two-point fits or from a dispersion relation (the user's choice, docs/methods.md §5), Q².
 
 use super::momentum::{
-    continuum_energy, lattice_dispersion_energy, lattice_momentum, q_squared, OnShell,
+    continuum_energy, continuum_mass, lattice_dispersion_energy, lattice_dispersion_mass,
+    lattice_momentum, q_squared, OnShell,
 };
 use super::Hadron;
 use crate::data::{sub, Momentum};
@@ -12,10 +13,13 @@ use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 
 /// Which dispersion relation turns a mass and a momentum into an energy.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
+#[derive(
+    Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "lowercase")]
 pub enum Dispersion {
     /// `E² = m² + p²`.
+    #[default]
     Continuum,
     /// `sinh²(E/2) = sinh²(m/2) + sum_i sin²(p_i/2)`.
     Lattice,
@@ -27,6 +31,23 @@ impl Dispersion {
         match self {
             Dispersion::Continuum => continuum_energy(mass, p),
             Dispersion::Lattice => lattice_dispersion_energy(mass, p),
+        }
+    }
+
+    /// The mass of a hadron whose energy at momentum `p` is `energy`: the relation inverted
+    /// (NaN where no positive mass has that energy).
+    pub fn mass(self, energy: f64, p: [f64; 3]) -> f64 {
+        match self {
+            Dispersion::Continuum => continuum_mass(energy, p),
+            Dispersion::Lattice => lattice_dispersion_mass(energy, p),
+        }
+    }
+
+    /// The relation's name as the run states it.
+    pub fn name(self) -> &'static str {
+        match self {
+            Dispersion::Continuum => "continuum",
+            Dispersion::Lattice => "lattice",
         }
     }
 }
@@ -102,6 +123,8 @@ impl KinematicSetup {
     }
 
     /// Check that the setup can serve `n_samples` resamples; returns the number of samples.
+    /// (Fitted energies with different sink and source twists are checked against the
+    /// channels in `decompose`: every momentum must be used on one side only.)
     pub fn validate(&self) -> Result<usize> {
         let n = self.mass.len();
         if self.l == 0 {
@@ -119,12 +142,6 @@ impl KinematicSetup {
             ));
         }
         if let Energies::Fitted(map) = &self.energies {
-            if self.twist_sink != self.twist_source {
-                return Err(Error::config(
-                    "kinematics: fitted energies are keyed by integer momentum, so sink and source \
-                     twists must be equal; use a dispersion relation with different twists",
-                ));
-            }
             for (p, e) in map {
                 if e.len() != n || e.scheme != self.mass.scheme {
                     return Err(Error::analysis(

@@ -297,6 +297,8 @@ pub(crate) fn check_data_rules(
             }
         }
     }
+    // one twist per two-point function when sink and source twists differ
+    stages::spectrum_inputs::spectrum_settings(plan, two, three)?;
     Ok(())
 }
 

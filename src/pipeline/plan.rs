@@ -100,7 +100,14 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Plan> {
     let fits = &mut spec.spectrum;
     fits.l_extent = Some(e.l as usize);
     fits.t_extent = e.t.map(|t| t as usize);
-    fits.twist = (e.twist != [0.0; 3]).then_some(e.twist);
+    // momenta no three-point channel uses carry the sink twist; the others get theirs from
+    // the channels when the spectrum stage starts (stages/spectrum_inputs.rs)
+    let sink = e.sink_twist();
+    fits.twist = (sink != [0.0; 3]).then_some(sink);
+    fits.mass_dispersion = match spec.decomposition.energies {
+        crate::kinematics::EnergySource::Lattice => crate::kinematics::Dispersion::Lattice,
+        _ => crate::kinematics::Dispersion::Continuum,
+    };
     let base = path.parent().unwrap_or(Path::new("")).to_path_buf();
     let resolve = |p: &Path| -> PathBuf {
         if p.is_absolute() {

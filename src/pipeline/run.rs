@@ -17,6 +17,7 @@ use super::stages::data::{read_and_resample, Prepared};
 use super::stages::decomposition::{decompose_all, largest_plateau};
 use super::stages::q2_fits::{derived_rows, dirac_pauli_rows, q2_fits};
 use super::stages::ratio_inputs::{skip_dropped_momenta, two_point_states};
+use super::stages::spectrum_inputs::spectrum_settings;
 use crate::data::{ThreePointData, TwoPointData};
 use crate::ratio::{self, ChannelKey, ChannelResult};
 use crate::resample::ResamplePlan;
@@ -95,8 +96,9 @@ fn spectrum_stage(
     results: &mut RunResults,
 ) -> Result<()> {
     let obs = rec.observer;
+    let settings = spectrum_settings(plan, two, three)?;
     let sp = rec.stage("spectrum", |_| {
-        spectrum::run_with_progress(two, rplan, &plan.spec.spectrum, &|d, t| {
+        spectrum::run_with_progress(two, rplan, &settings, &|d, t| {
             obs.progress("spectrum", d, t)
         })
     })?;

@@ -125,9 +125,13 @@ pub struct Ensemble {
     #[serde(default)]
     pub twist: [f64; 3],
     /// Twist angles of the sink momenta when they differ from the source's (radians; default
-    /// `twist`). With different sink and source twists the energies must come from a
-    /// dispersion relation (`decomposition.energies`), the two-point function at a sink
-    /// momentum is taken to carry the sink twist, and the mass from the untwisted fit at rest.
+    /// `twist`). The two-point function at a momentum carries the twist of the side the
+    /// three-point channels use it on: the sink twist at every sink momentum `p_f`, the source
+    /// twist at every source momentum `p_i = p_f - q`, the sink twist at momenta no channel
+    /// uses. The two-point data have no column saying which twist a function carries, so a
+    /// momentum used on both sides with different twists is refused. When (0,0,0) carries a
+    /// twist, the mass comes from its fit per resample by the inverted dispersion relation
+    /// (`m² = E² - p²`; the lattice form with `decomposition.energies: lattice`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub twist_sink: Option<[f64; 3]>,
     /// Twist angles of the source momenta when they differ from the sink's (radians; default

@@ -12,6 +12,7 @@ use super::results::RunResults;
 use super::spec::Stage;
 use super::stages::decomposition::decompose_all;
 use super::stages::ratio_inputs::{skip_dropped_momenta, two_point_states};
+use super::stages::spectrum_inputs::spectrum_settings;
 use crate::data::{ThreePointData, TwoPointData};
 use crate::ratio;
 use crate::resample::ResamplePlan;
@@ -128,7 +129,7 @@ pub(super) fn compare(
     let (operator, two, mut three) = single;
     let settings = spectrum::SpectrumSettings {
         gevp: None,
-        ..spec.spectrum.clone()
+        ..spectrum_settings(plan, &two, &three)?
     };
     let sp = spectrum::run(&two, rplan, &settings)?;
     for w in &sp.warnings {

@@ -2,14 +2,25 @@
 //! frame by a dispersion relation (or given per momentum), the first-gap prior carried from the
 //! rest frame's fitted spectrum, the notes that say which, and the last time slice before the
 //! signal dies. Kept apart from the stage driver so that each
-//! stays short.
+//! stays short. Momenta carry the twist of their two-point function
+//! (`SpectrumSettings::twist_at`); a twisted fit at (0,0,0) is carried through the mass that
+//! the relation gives it (`rest_mass`).
 
-use super::dispersion;
+use super::rest_mass;
 use super::settings::{self, PriorFrames, SpectrumSettings};
 use super::MomentumSpectrum;
 use crate::data::Momentum;
 use crate::fit::Prior;
+use crate::kinematics::Dispersion;
 use crate::resample::Resampled;
+
+/// The dispersion relation that carries a prior to moving frames.
+fn relation_of(frames: PriorFrames) -> Dispersion {
+    match frames {
+        PriorFrames::LatticeDispersion => Dispersion::Lattice,
+        _ => Dispersion::Continuum,
+    }
+}
 
 /// The settings at momentum `p`: the ground-energy prior given per momentum, or the rest-frame
 /// prior carried by the dispersion relation of `prior_frames` (rest only without `l_extent`).
@@ -25,23 +36,14 @@ pub(super) fn momentum_settings(p: Momentum, settings: &SpectrumSettings) -> Spe
         (None, Some(rest)) if p != [0, 0, 0] => match (settings.prior_frames, settings.l_extent) {
             (PriorFrames::RestOnly, _) | (_, None) => None,
             (frames, Some(l)) => {
-                let pl =
-                    crate::kinematics::lattice_momentum(p, l, settings.twist.unwrap_or_default());
-                let m = Resampled::constant(rest.mean, 2, crate::resample::Scheme::Bootstrap);
-                let e = match frames {
-                    PriorFrames::LatticeDispersion => dispersion::lattice_energy(&m, pl),
-                    _ => dispersion::continuum_energy(&m, pl),
-                }
-                .central;
+                let pl = crate::kinematics::lattice_momentum(p, l, settings.twist_at(p));
+                let relation = relation_of(frames);
+                let e = rest_mass::carried_energy(rest.mean, pl, relation, settings);
                 // Width carried by dE/dm (numerically, so both relations share the code).
                 let h = 1e-6 * rest.mean.abs().max(1e-3);
-                let mh = Resampled::constant(rest.mean + h, 2, crate::resample::Scheme::Bootstrap);
-                let eh = match frames {
-                    PriorFrames::LatticeDispersion => dispersion::lattice_energy(&mh, pl),
-                    _ => dispersion::continuum_energy(&mh, pl),
-                }
-                .central;
-                Some(Prior::new(e, rest.width * ((eh - e) / h).abs()))
+                let eh = rest_mass::carried_energy(rest.mean + h, pl, relation, settings);
+                let width = rest.width * ((eh - e) / h).abs();
+                (e.is_finite() && width.is_finite()).then(|| Prior::new(e, width))
             }
         },
         (None, rest) => rest.filter(|_| p == [0, 0, 0]),
@@ -134,11 +136,15 @@ pub(super) fn carried_gap_prior(
     settings: &SpectrumSettings,
 ) -> Option<Prior> {
     let l = settings.l_extent.filter(|_| p != [0, 0, 0])?;
-    let pl = crate::kinematics::lattice_momentum(p, l, settings.twist.unwrap_or_default());
-    let energy = |m: f64| match settings.prior_frames {
+    let pl = crate::kinematics::lattice_momentum(p, l, settings.twist_at(p));
+    let energy = |e_rest: f64| match settings.prior_frames {
         PriorFrames::RestOnly => None,
-        PriorFrames::LatticeDispersion => Some(crate::kinematics::lattice_dispersion_energy(m, pl)),
-        PriorFrames::ContinuumDispersion => Some(crate::kinematics::continuum_energy(m, pl)),
+        frames => Some(rest_mass::carried_energy(
+            e_rest,
+            pl,
+            relation_of(frames),
+            settings,
+        )),
     };
     let gap = energy(rest.e1)? - energy(rest.e0)?;
     (gap > 0.0 && gap.is_finite()).then(|| Prior::new(gap.ln(), width.hypot(rest.log_gap_error)))

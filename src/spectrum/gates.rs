@@ -1,14 +1,16 @@
 //! Sanity gates on the fitted spectrum and the stage's warnings said once per kind.
 //!
 //! A rest-frame energy that is not positive stops the run (nothing downstream can use it);
-//! a moving-frame energy below the rest-frame one by more than [`MAX_SIGMA_BELOW_REST`] errors of
-//! the resampled difference cannot be a ground state (`E(p) = sqrt(m^2 + p^2) >= m` for any
-//! dispersion relation), so that momentum is dropped with the fit that produced it, and the
-//! later stages skip the channels that need it.
+//! a moving-frame energy below the mass (the rest-frame energy, or the mass from a twisted
+//! rest frame) by more than [`MAX_SIGMA_BELOW_REST`] errors of the resampled difference cannot
+//! be a ground state (`E(p) = sqrt(m^2 + p^2) >= m` for any dispersion relation), so that
+//! momentum is dropped with the fit that produced it, and the later stages skip the channels
+//! that need it.
 
 use super::MomentumSpectrum;
 use crate::data::Momentum;
 use crate::error::{Error, Result};
+use crate::resample::Resampled;
 use std::collections::BTreeMap;
 
 /// How far (in errors of the difference) `E(p)` may fall below `E(0)` before it is refused.
@@ -25,16 +27,13 @@ fn fit_of(s: &MomentumSpectrum) -> String {
     )
 }
 
-/// Apply the gates: an error for `E(0) <= 0`, momenta with `E(p) < E(0)` moved to `dropped`.
-pub fn check(
-    per_momentum: &mut BTreeMap<Momentum, MomentumSpectrum>,
-    dropped: &mut Vec<(Momentum, String)>,
-) -> Result<()> {
-    let Some(rest) = per_momentum.get(&[0, 0, 0]).map(|s| s.energies[0].clone()) else {
+/// The rest-frame gate: an error for `E(0) <= 0` (or NaN).
+pub fn check_rest(per_momentum: &BTreeMap<Momentum, MomentumSpectrum>) -> Result<()> {
+    let Some(s) = per_momentum.get(&[0, 0, 0]) else {
         return Ok(());
     };
+    let rest = &s.energies[0];
     if rest.central.is_nan() || rest.central <= 0.0 {
-        let s = &per_momentum[&[0, 0, 0]];
         return Err(Error::analysis(
             "spectrum",
             format!(
@@ -45,22 +44,34 @@ pub fn check(
             ),
         ));
     }
+    Ok(())
+}
+
+/// The `E(p) >= m` gate: momenta whose ground energy lies below `mass` by more than
+/// [`MAX_SIGMA_BELOW_REST`] errors of the difference move to `dropped`. `reference` names the
+/// mass in the reason (`E(0)` when it is the untwisted rest energy).
+pub fn drop_below(
+    per_momentum: &mut BTreeMap<Momentum, MomentumSpectrum>,
+    dropped: &mut Vec<(Momentum, String)>,
+    mass: &Resampled,
+    reference: &str,
+) {
     let below: Vec<(Momentum, String)> = per_momentum
         .iter()
         .filter(|(p, _)| **p != [0, 0, 0])
         .filter_map(|(p, s)| {
             let e = &s.energies[0];
-            let d = e.try_zip_map(&rest, "E(p) - E(0)", |a, b| a - b).ok()?;
+            let d = e.try_zip_map(mass, "E(p) - m", |a, b| a - b).ok()?;
             let sigma = d.error();
             (d.central < -MAX_SIGMA_BELOW_REST * sigma || !e.central.is_finite()).then(|| {
                 (
                     *p,
                     format!(
-                        "E{} = {:.4}({:.4}) lies below E(0) = {:.4} by {:.1} sigma ({})",
+                        "E{} = {:.4}({:.4}) lies below {reference} = {:.4} by {:.1} sigma ({})",
                         fmt_p(*p),
                         e.central,
                         e.error(),
-                        rest.central,
+                        mass.central,
                         -d.central / sigma,
                         fit_of(s)
                     ),
@@ -72,7 +83,6 @@ pub fn check(
         per_momentum.remove(&p);
         dropped.push((p, why));
     }
-    Ok(())
 }
 
 /// One warning per kind, naming the momenta it concerns.

@@ -7,7 +7,8 @@
 //! # Stage output (consumed by the ratio and kinematics stages)
 //!
 //! [`run`] returns a [`SpectrumResult`]: one [`MomentumSpectrum`] per integer momentum plus
-//! the mass (ground-state energy at zero momentum), the dispersion table and warnings. Every
+//! the mass (ground-state energy at zero momentum; with a twist there, the mass from it by the
+//! inverted dispersion relation), the dispersion table and warnings. Every
 //! number is a [`Resampled`] on the same resamples as the input plan, so later stages combine
 //! them sample by sample. In a [`MomentumSpectrum`]:
 //!
@@ -47,6 +48,7 @@ mod frames;
 mod gates;
 pub mod gevp;
 pub mod model;
+mod rest_mass;
 pub mod settings;
 mod window;
 
@@ -137,9 +139,12 @@ impl MomentumSpectrum {
 pub struct SpectrumResult {
     /// Spectrum at every momentum in the data.
     pub per_momentum: BTreeMap<Momentum, MomentumSpectrum>,
-    /// Ground-state energy at zero momentum (model-averaged), when the data have `p = 0`.
+    /// The hadron mass, when the data have `n = (0,0,0)`: the model-averaged ground energy
+    /// there, or, when that two-point function carries a twist, the mass from it by the
+    /// inverted dispersion relation (`SpectrumSettings::mass_dispersion`), per resample.
     pub mass: Option<Resampled>,
-    /// Dispersion check at every non-zero momentum (needs `l_extent` and `p = 0`).
+    /// Dispersion check at every non-zero integer momentum, each at the twisted lattice
+    /// momentum of its two-point function (needs `l_extent` and `n = 0`).
     pub dispersion: Vec<DispersionRow>,
     /// Momenta that could not be fitted or failed a sanity gate, with the reason; later
     /// stages skip every channel that needs them.
@@ -272,18 +277,30 @@ pub fn run_with_progress(
     ];
     let notes: Vec<String> = notes.into_iter().flatten().collect();
     let prior_note = (!notes.is_empty()).then(|| notes.join("; "));
-    gates::check(&mut per_momentum, &mut dropped)?;
+    gates::check_rest(&per_momentum)?;
+    let mass = match per_momentum.get(&rest_mass::REST) {
+        Some(s) => {
+            let (mass, note) = rest_mass::mass(&s.energies[0], settings)?;
+            warnings.extend(note);
+            Some(mass)
+        }
+        None => None,
+    };
+    if let Some(m) = &mass {
+        let reference = match rest_mass::twisted_rest(settings) {
+            Some(_) => "the mass m",
+            None => "E(0)",
+        };
+        gates::drop_below(&mut per_momentum, &mut dropped, m, reference);
+    }
     gates::summarise(&per_momentum, &dropped, &mut warnings);
-    let mass = per_momentum
-        .get(&[0, 0, 0])
-        .map(|s: &MomentumSpectrum| s.energies[0].clone());
     let mut dispersion = Vec::new();
     match (settings.l_extent, &mass) {
-        (Some(l), Some(m)) => {
+        (Some(_), Some(m)) => {
             for (p, s) in per_momentum.iter().filter(|(p, _)| **p != [0, 0, 0]) {
-                let pl =
-                    crate::kinematics::lattice_momentum(*p, l, settings.twist.unwrap_or_default());
-                dispersion.push(dispersion::check(*p, pl, &s.energies[0], m));
+                if let Some(pl) = settings.lattice_momentum(*p) {
+                    dispersion.push(dispersion::check(*p, pl, &s.energies[0], m));
+                }
             }
         }
         (None, _) => warnings.push("no dispersion check: `l_extent` (L) is not set".into()),

@@ -184,11 +184,24 @@ pub struct SpectrumSettings {
     #[serde(skip)]
     #[schemars(skip)]
     pub l_extent: Option<usize>,
-    /// Twist angles `theta` (radians): `p = (2 pi n + theta) / L`. Not a key of the
-    /// pipeline file: the pipeline sets it from `ensemble.twist`.
+    /// Twist angles `theta` (radians): `p = (2 pi n + theta) / L`, at every momentum that
+    /// `twists` does not name. Not a key of the pipeline file: the pipeline sets it from the
+    /// sink twist (`ensemble.twist_sink`, else `ensemble.twist`).
     #[serde(skip)]
     #[schemars(skip)]
     pub twist: Option<[f64; 3]>,
+    /// The twist of the two-point function at each momentum, when sink and source differ
+    /// (`kinematics::twists_by_side`). Not a key of the pipeline file: the pipeline fills it
+    /// from the three-point channels.
+    #[serde(skip)]
+    #[schemars(skip)]
+    pub twists: BTreeMap<[i32; 3], [f64; 3]>,
+    /// The dispersion relation that turns a twisted fit at momentum (0,0,0) into the mass
+    /// (`m² = E² - p²` or its lattice form). Not a key of the pipeline file: the pipeline sets
+    /// it from `decomposition.energies` (lattice there, lattice here; continuum otherwise).
+    #[serde(skip)]
+    #[schemars(skip)]
+    pub mass_dispersion: crate::kinematics::Dispersion,
     /// Interpolator label (`smear` column) to fit when the data have several.
     pub smear: Option<String>,
     /// Variational analysis of correlator matrices (channels with `sink_op` / `source_op`
@@ -265,6 +278,8 @@ impl Default for SpectrumSettings {
             t_extent: None,
             l_extent: None,
             twist: None,
+            twists: BTreeMap::new(),
+            mass_dispersion: crate::kinematics::Dispersion::Continuum,
             smear: None,
             gevp: None,
             fit: FitSettings {
@@ -278,6 +293,22 @@ impl Default for SpectrumSettings {
 }
 
 impl SpectrumSettings {
+    /// The twist angles of the two-point function at integer momentum `n`.
+    pub fn twist_at(&self, n: [i32; 3]) -> [f64; 3] {
+        self.twists
+            .get(&n)
+            .copied()
+            .or(self.twist)
+            .unwrap_or_default()
+    }
+
+    /// The lattice momentum `(2 pi n + theta) / L` of the two-point function at `n` (`None`
+    /// without `l_extent`).
+    pub fn lattice_momentum(&self, n: [i32; 3]) -> Option<[f64; 3]> {
+        let l = self.l_extent?;
+        Some(crate::kinematics::lattice_momentum(n, l, self.twist_at(n)))
+    }
+
     /// Check the ranges that need nothing but these settings.
     pub fn validate(&self) -> Result<(), Invalid> {
         let (t_min, n) = (self.t_min, self.n_states);

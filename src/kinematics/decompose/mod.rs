@@ -18,7 +18,8 @@ pub use settings::DecompositionSettings;
 
 use super::factors::FormFactor;
 use super::phase::Phase;
-use super::setup::KinematicSetup;
+use super::setup::{Energies, KinematicSetup};
+use super::twists::twists_by_side;
 use crate::data::{Current, CurrentKind, Momentum, Projector};
 use crate::resample::Resampled;
 use crate::{Error, Result};
@@ -126,6 +127,11 @@ pub fn decompose(
     settings: &DecompositionSettings,
 ) -> Result<Decomposition> {
     let n = setup.validate()?;
+    if matches!(setup.energies, Energies::Fitted(_)) && setup.twist_sink != setup.twist_source {
+        // Fitted energies are keyed by integer momentum: each must stand for one twist.
+        let pairs = channels.iter().map(|c| (c.pf, c.q));
+        twists_by_side(pairs, [], setup.twist_sink, setup.twist_source)?;
+    }
     let phases = parse_phases(&settings.phases)?;
     for c in channels {
         for part in [&c.re, &c.im] {

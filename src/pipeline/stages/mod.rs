@@ -6,3 +6,4 @@ pub(super) mod data;
 pub(super) mod decomposition;
 pub(super) mod q2_fits;
 pub(super) mod ratio_inputs;
+pub(super) mod spectrum_inputs;
