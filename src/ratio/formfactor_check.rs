@@ -14,8 +14,8 @@
 //! 1. it lies more than [`BIAS_DISTANCE`] of its *own* statistical errors from the reference
 //!    (the reference is the best estimate of the truth the run has, so this asks directly
 //!    whether the plateau is more than 2σ from it; the significance of the difference alone,
-//!    `|d| / σ_d`, is dominated by the reference's error, which is 1.5 to 7 times the
-//!    plateau's, and missed about 40 % of the biased plateaus on the mock study);
+//!    `|d| / σ_d`, is dominated by the reference's error, about 1 to 7 times the plateau's,
+//!    and missed a third or more of the biased plateaus on the mock study);
 //! 2. or it differs from the plateau at the next larger separation by more than
 //!    [`TREND_SIGMA`] standard deviations of that difference (the value still moves with
 //!    `tsep`);
@@ -24,9 +24,10 @@
 //!    much, with a smaller error.
 //!
 //! Measured on mock ensembles with strong excited states (`tests/studies/ff_crosscheck.sh`,
-//! DEVELOPERS.md § closure tests): the rule flags 80–90 % of the plateau form factors that lie
-//! more than 2σ from the truth, and 5–12 % of its flags fall on plateaus within 2σ; no rule
-//! fed with a reference of this precision reaches 90 % with 10 % false alarms.
+//! docs/methods.md §4): the rule flags 77–89 % of the plateau form factors that lie more than
+//! 2σ from the truth, and 5–12 % of its flags fall on plateaus within 2σ (17–42 % of those
+//! plateaus are flagged); no rule fed with a reference of this precision reaches 90 % with
+//! 10 % false alarms.
 //!
 //! Pure computation: estimates in, comparisons out.
 
@@ -274,4 +275,136 @@ pub fn tally<'a>(rows: impl IntoIterator<Item = &'a FfComparison>) -> Tally {
         }
     }
     t
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::resample::Scheme;
+
+    fn value(central: f64, shifts: &[f64]) -> Resampled {
+        Resampled::new(
+            central,
+            shifts.iter().map(|s| central + s).collect(),
+            Scheme::Jackknife,
+        )
+    }
+
+    const NOISE: [f64; 4] = [0.01, -0.01, 0.02, -0.02];
+
+    fn row(rows: &[FfComparison], c: Comparison, m: Estimator) -> &FfComparison {
+        rows.iter()
+            .find(|r| r.comparison == c && r.method == m)
+            .unwrap_or_else(|| panic!("no {} row of {m}", c.name()))
+    }
+
+    #[test]
+    fn the_error_of_a_difference_comes_from_its_resamples() {
+        // Two perfectly correlated estimates (the same fluctuation on every resample): the
+        // difference has error 0, although each has error 0.05 alone.
+        let p = value(0.9, &NOISE);
+        let r = value(1.0, &NOISE);
+        let rows = check(&[(Estimator::plateau_at(10), &p), (Estimator::TwoState, &r)]);
+        let d = row(&rows, Comparison::Reference, Estimator::plateau_at(10))
+            .difference
+            .clone()
+            .unwrap_or_else(|| panic!("no difference"));
+        assert!(d.error.abs() < 1e-15, "{}", d.error);
+        assert!(d.sigma.is_infinite());
+        // Hand computation (jackknife, N = 4): the difference's shifts are NOISE − 2·NOISE =
+        // −NOISE, mean 0, so sigma² = 3/4 · (1 + 1 + 4 + 4)e-4 = 7.5e-4; its own error is
+        // that of NOISE, the same number.
+        let r = value(1.0, &NOISE.map(|x| 2.0 * x));
+        let rows = check(&[(Estimator::plateau_at(10), &p), (Estimator::TwoState, &r)]);
+        let c = row(&rows, Comparison::Reference, Estimator::plateau_at(10));
+        let d = c.difference.as_ref().unwrap_or_else(|| panic!("none"));
+        let hand = (0.75f64 * 10.0e-4).sqrt();
+        assert!((d.error - hand).abs() < 1e-15);
+        assert!((c.own_error - hand).abs() < 1e-15);
+        assert!((d.sigma - 0.1 / hand).abs() < 1e-9);
+        assert!((c.distance - 0.1 / hand).abs() < 1e-9);
+    }
+
+    #[test]
+    fn verdicts_follow_the_three_rules() {
+        // Plateaus below the reference 1.0, each with error sqrt(3/4 · 10e-4) = 0.0274 and
+        // different fluctuations: tsep 14 at 0.07 = 2.6 own errors (rule 1); 12 and 10 within
+        // 2 own errors and within 1 sigma of their larger neighbour (rule 3 flags them below
+        // 14); 8 far (rule 1). Hand-computed trend errors: 0.0387 for 12→14 and 10→12.
+        let r = value(1.0, &[0.1, -0.1, 0.05, -0.05]);
+        let n2 = [0.02, -0.02, -0.01, 0.01];
+        let p8 = value(0.7, &NOISE);
+        let p10 = value(0.95, &n2);
+        let p12 = value(0.96, &NOISE.map(|x| -x));
+        let p14 = value(0.93, &n2.map(|x| -x));
+        let rows = check(&[
+            (Estimator::plateau_at(12), &p12),
+            (Estimator::plateau_at(8), &p8),
+            (Estimator::TwoState, &r),
+            (Estimator::plateau_at(14), &p14),
+            (Estimator::plateau_at(10), &p10),
+        ]);
+        let verdict = |t| {
+            row(&rows, Comparison::Reference, Estimator::plateau_at(t))
+                .verdict
+                .clone()
+        };
+        assert!(matches!(verdict(14), Some(Verdict::FarFromReference(_))));
+        assert_eq!(verdict(12), Some(Verdict::LargerSeparation(14)));
+        assert_eq!(verdict(10), Some(Verdict::LargerSeparation(14)));
+        assert!(matches!(verdict(8), Some(Verdict::FarFromReference(_))));
+        let trend = row(&rows, Comparison::Trend, Estimator::plateau_at(14));
+        let d = trend.difference.as_ref().unwrap_or_else(|| panic!("none"));
+        assert!((d.error - 15.0e-4f64.sqrt()).abs() < 1e-15);
+        // the trend: 10 − 8 moves by 0.25 with zero error (same fluctuation) → infinitely
+        // significant; without a reference that alone flags tsep 8 (rule 2), and the largest
+        // separation, with nothing above it, stays clean
+        let p10 = value(0.95, &NOISE);
+        let rows = check(&[
+            (Estimator::plateau_at(8), &p8),
+            (Estimator::plateau_at(10), &p10),
+        ]);
+        let trend = row(&rows, Comparison::Trend, Estimator::plateau_at(10));
+        assert_eq!(trend.reference, Some(Estimator::plateau_at(8)));
+        assert!(trend.difference.as_ref().is_some_and(|d| d.sigma > 1e6));
+        let v8 = row(&rows, Comparison::Reference, Estimator::plateau_at(8));
+        assert!(v8.reference.is_none() && v8.distance.is_nan() && !v8.counts());
+        assert!(matches!(v8.verdict, Some(Verdict::Trend(_, 10))));
+        let v10 = row(&rows, Comparison::Reference, Estimator::plateau_at(10));
+        assert_eq!(v10.verdict, Some(Verdict::Clean));
+    }
+
+    #[test]
+    fn counts_are_not_doubled() {
+        // 2 plateaus + summation against two-state = 3 reference comparisons, 1 trend step,
+        // 2 plateau verdicts; a value with NaN is left out, not counted
+        let r = value(1.0, &[0.1, -0.1, 0.05, -0.05]);
+        let s = value(0.5, &[0.02, -0.02, 0.01, -0.01]);
+        let p8 = value(0.7, &NOISE);
+        let p10 = value(0.99, &NOISE);
+        let bad = value(f64::NAN, &NOISE);
+        let rows = check(&[
+            (Estimator::plateau_at(8), &p8),
+            (Estimator::plateau_at(10), &p10),
+            (Estimator::plateau_at(12), &bad),
+            (Estimator::Summation, &s),
+            (Estimator::TwoState, &r),
+        ]);
+        assert_eq!(rows.len(), 4);
+        let t = tally(&rows);
+        assert_eq!(
+            (t.reference, t.trend, t.plateaus),
+            (3, 1, 2),
+            "{t:?}: {rows:?}"
+        );
+        // above 2 sigma: the summation (0.5 off, error 0.1) and the plateau at 8 (0.3 off,
+        // error ~0.1); the plateau at 10 is 0.01 off
+        assert_eq!(t.reference_above_2sigma, 2, "{rows:?}");
+        assert_eq!(t.biased, 1);
+        // two shells tallied together give twice the counts, never more
+        let both = tally(rows.iter().chain(&rows));
+        assert_eq!(both.reference, 2 * t.reference);
+        assert_eq!(both.biased, 2 * t.biased);
+        assert_eq!(tally(&check(&[])), Tally::default());
+    }
 }
