@@ -86,6 +86,9 @@ def main():
         for t in tseps:
             print(line(f"tsep {t}", [r for r in rs if r[0] == t], pick))
         print(line("all", rs, pick))
+    print("the verdict by the error of the difference over the plateau's own error")
+    for lo, hi in ((0.0, 1.5), (1.5, 3.0), (3.0, float("inf"))):
+        print(line(f"{lo:g}-{hi:g}", [r for r in rs if lo <= r[4] < hi], lambda r: r[2]))
     print("median error of the difference / own error, per tsep: " + ", ".join(
         f"{t}: {statistics.median(r[4] for r in rs if r[0] == t):.2f}" for t in tseps))
     return 0

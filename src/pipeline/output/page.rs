@@ -161,10 +161,12 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
     ];
     blocks.extend(figure_blocks(figures, &[Plot::FinalVariants]));
     blocks.push(Block::Table(readable(tables.get(TableName::FinalVariants))));
-    blocks.push(formfactor_crosscheck_text(results));
-    blocks.push(Block::Table(readable(
-        tables.get(TableName::FormFactorCrossCheck),
-    )));
+    let ff_check = tables.get(TableName::FormFactorCrossCheck);
+    if !ff_check.rows.is_empty() {
+        // (no rows when the run computed one estimator only)
+        blocks.push(formfactor_crosscheck_text(results));
+        blocks.push(Block::Table(readable(ff_check)));
+    }
     section("Final results", blocks)
 }
 
