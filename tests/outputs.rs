@@ -24,6 +24,7 @@ pub(crate) fn check_tables(name: &str, out: &Path) {
     let derived = read_rows(&out.join("derived.csv"));
     q2_fits(name, out, &derived, spacing);
     negative_roots(name, out);
+    formfactor_crosscheck(name, out);
     if name == "nucleon-vector" {
         dirac_pauli(out, &derived, spacing);
     }
@@ -380,4 +381,101 @@ fn negative_roots_are_counted_per_channel_and_reported() {
             "{d:?}"
         );
     }
+}
+
+/// `formfactor_crosscheck.csv` (issue 11 item 3): each difference is the two estimates of
+/// `formfactors.csv` subtracted, `sigma = |difference| / error`, a plateau more than 2 of its
+/// own errors from the reference is flagged biased (rule 1 of `ratio::formfactor_check`), every
+/// plateau far from the mock's truth is flagged, and the report's sentence carries the
+/// table's counts, each comparison once.
+fn formfactor_crosscheck(name: &str, out: &Path) {
+    let rows = read_rows(&out.join("formfactor_crosscheck.csv"));
+    let ffs = read_rows(&out.join("formfactors.csv"));
+    assert_eq!(rows.is_empty(), ffs.is_empty(), "{name}");
+    if rows.is_empty() {
+        return;
+    }
+    let value_of = |method: &str, ff: &str, shell: &str| {
+        ffs.iter()
+            .find(|r| r["method"] == method && r["form_factor"] == ff && r["shell"] == shell)
+            .map(|r| num(r, "value"))
+            .unwrap_or_else(|| panic!("{name}: no {method} {ff} {shell} in formfactors.csv"))
+    };
+    let truth = (name == "nucleon-vector").then(|| {
+        formfactory::mock::Truth::read(
+            &crate::common::repo_root().join("demo-data/nucleon/truth.yaml"),
+        )
+        .unwrap()
+    });
+    let (mut compared, mut above, mut steps, mut steps_above) = (0, 0, 0, 0);
+    let (mut plateaus, mut biased, mut far_from_truth) = (0, 0, 0);
+    for r in &rows {
+        let (ff, shell) = (r["form_factor"].as_str(), r["shell"].as_str());
+        let value = num(r, "value");
+        assert_eq!(value, value_of(&r["method"], ff, shell), "{name}: {r:?}");
+        if r["reference"].is_empty() {
+            continue;
+        }
+        let d = num(r, "difference");
+        assert!(
+            close(d, value - value_of(&r["reference"], ff, shell), 1e-12),
+            "{name}: {r:?}"
+        );
+        assert!(close(num(r, "sigma"), d.abs() / num(r, "error"), 1e-12));
+        let is_above = r["flag"] == "above2sigma";
+        assert_eq!(is_above, num(r, "sigma") > 2.0, "{name}: {r:?}");
+        match r["comparison"].as_str() {
+            "reference" => {
+                compared += 1;
+                above += usize::from(is_above);
+            }
+            "trend" => {
+                steps += 1;
+                steps_above += usize::from(is_above);
+            }
+            other => panic!("{name}: comparison {other}"),
+        }
+        if r["comparison"] != "reference" || !r["method"].starts_with("plateau") {
+            assert_eq!(r["biased"], "", "{name}: {r:?}");
+            continue;
+        }
+        plateaus += 1;
+        let flagged = r["biased"] == "yes";
+        biased += usize::from(flagged);
+        if num(r, "distance") > 2.0 {
+            assert!(flagged, "{name}: {r:?}");
+        }
+        // the demo's truth (nearest true Q², as the closure test): a plateau 5 of its own
+        // errors from it is strongly biased and must be flagged
+        if let Some(t) = &truth {
+            let q2 = num(r, "q2_lat");
+            let tv = t
+                .points
+                .iter()
+                .filter_map(|p| p.form_factors.get(ff).map(|v| (p.q2, *v)))
+                .min_by(|a, b| (a.0 - q2).abs().total_cmp(&(b.0 - q2).abs()))
+                .map(|(_, v)| v)
+                .expect("the truth has this form factor");
+            if (value - tv).abs() > 5.0 * num(r, "own_error") {
+                assert!(flagged, "{name}: {r:?} is far from the truth {tv}");
+                far_from_truth += 1;
+            }
+        }
+    }
+    assert!(
+        truth.is_none() || far_from_truth > 0,
+        "{name}: no biased plateau"
+    );
+    let page = std::fs::read_to_string(out.join("report.html")).unwrap();
+    let expected = format!(
+        "{compared} comparisons with the reference (two-state if present, else summation), \
+         {above} of them more than 2 sigma apart, and {steps} steps of the plateaus between \
+         neighbouring tsep, {steps_above} of them above 2 sigma"
+    );
+    assert!(
+        page.contains(&expected),
+        "{name}: report lacks `{expected}`"
+    );
+    let flagged = format!("flagged as biased by excited states: {biased} of {plateaus}");
+    assert!(page.contains(&flagged), "{name}: report lacks `{flagged}`");
 }

@@ -8,6 +8,7 @@ pub use super::results::FinalRow;
 use super::results::RunResults;
 use crate::error_budget::{self, Variant};
 use crate::kinematics::FormFactor;
+use crate::ratio::formfactor_check::{self, FfComparison};
 use crate::ratio::Estimator;
 use std::collections::BTreeMap;
 
@@ -92,4 +93,52 @@ fn relative(error: f64, value: f64) -> f64 {
     } else {
         0.0
     }
+}
+
+/// The estimator comparisons of one form factor at one shell
+/// ([`crate::ratio::formfactor_check`]).
+#[derive(Clone, Debug)]
+pub struct ShellCheck {
+    /// The form factor.
+    pub form_factor: FormFactor,
+    /// Shell label.
+    pub shell: String,
+    /// Q² of the shell (lattice units, central value of the first estimator).
+    pub q2: f64,
+    /// The comparisons, reference rows first, then the trend in `tsep`.
+    pub rows: Vec<FfComparison>,
+}
+
+/// The cross-check of every form factor at every shell, ordered like the final values (by
+/// form factor, then Q²).
+pub fn formfactor_checks(results: &RunResults) -> Vec<ShellCheck> {
+    let mut shells: BTreeMap<(FormFactor, String), Vec<usize>> = BTreeMap::new();
+    for (i, r) in results.form_factors.iter().enumerate() {
+        shells
+            .entry((r.form_factor, r.shell.clone()))
+            .or_default()
+            .push(i);
+    }
+    let mut out: Vec<ShellCheck> = shells
+        .into_iter()
+        .map(|((form_factor, shell), idx)| {
+            let estimates: Vec<(Estimator, &crate::resample::Resampled)> = idx
+                .iter()
+                .map(|&i| {
+                    let r = &results.form_factors[i];
+                    (r.method, &r.value.value)
+                })
+                .collect();
+            ShellCheck {
+                form_factor,
+                shell,
+                q2: results.form_factors[idx[0]].q2.central,
+                rows: formfactor_check::check(&estimates),
+            }
+        })
+        .collect();
+    out.sort_by(|a, b| {
+        (a.form_factor.name().cmp(b.form_factor.name())).then(a.q2.total_cmp(&b.q2))
+    });
+    out
 }

@@ -17,7 +17,9 @@
 //!   with the two-point functions sharing energies, gaps and amplitude ratios.
 //!
 //! [`crosscheck`] compares them with the error of each difference taken from the resamples of
-//! the difference (the estimates share the same data and are correlated), and the
+//! the difference (the estimates share the same data and are correlated); [`formfactor_check`]
+//! does the same per form factor and Q² shell after the decomposition and flags plateaus biased
+//! by excited states; the
 //! `final_method` [`Estimator`] picks the number that feeds the decomposition (where the
 //! renormalization is applied, in `kinematics::renorm`); [`average`] averages equivalent
 //! channels (same kinematic factor up to sign) before any fit.
@@ -66,6 +68,7 @@ pub mod average;
 pub mod build;
 pub mod crosscheck;
 pub mod estimator;
+pub mod formfactor_check;
 mod lsq;
 pub mod plateau;
 pub mod settings;

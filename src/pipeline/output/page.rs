@@ -161,7 +161,47 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
     ];
     blocks.extend(figure_blocks(figures, &[Plot::FinalVariants]));
     blocks.push(Block::Table(readable(tables.get(TableName::FinalVariants))));
+    let ff_check = tables.get(TableName::FormFactorCrossCheck);
+    if !ff_check.rows.is_empty() {
+        // (no rows when the run computed one estimator only)
+        blocks.push(formfactor_crosscheck_text(results));
+        blocks.push(Block::Table(readable(ff_check)));
+    }
     section("Final results", blocks)
+}
+
+/// The counts of the form-factor cross-check (each comparison once) and what the final
+/// values did with the plateaus.
+fn formfactor_crosscheck_text(results: &RunResults) -> Block {
+    use crate::ratio::formfactor_check::{tally, BIAS_DISTANCE, TREND_SIGMA};
+    let checks = crate::pipeline::final_results::formfactor_checks(results);
+    let t = tally(checks.iter().flat_map(|c| &c.rows));
+    let plateau_weighted = results
+        .final_results
+        .iter()
+        .flat_map(|r| &r.budget.variants)
+        .any(|w| w.weight > 0.0 && w.variant.estimator.tsep().is_some());
+    let use_of_plateaus = match results.final_results.first().map(|r| &r.budget.rule) {
+        Some(crate::error_budget::Rule::Pinned(e)) => {
+            format!("The final values are pinned to {e} (final_value.pin).")
+        }
+        _ if plateau_weighted => "Some final values rest on plateaus (no summation or \
+             two-state result there): read their flags."
+            .to_string(),
+        _ => "The final values leave the plateaus out and use the summation and two-state \
+             results (rule above); the flags show what the plateaus would have cost."
+            .to_string(),
+    };
+    Block::Paragraph(format!(
+        "Cross-check per form factor and Q² shell (formfactor_crosscheck.csv): {} comparisons \
+         with the reference (two-state if present, else summation), {} of them more than 2 \
+         sigma apart, and {} steps of the plateaus between neighbouring tsep, {} of them above \
+         2 sigma (the error of each difference from its own resamples). Plateau form factors \
+         flagged as biased by excited states: {} of {} (more than {BIAS_DISTANCE} of its own \
+         errors from the reference, or more than {TREND_SIGMA} sigma from the plateau at the \
+         next larger tsep, or below a flagged plateau). {use_of_plateaus}",
+        t.reference, t.reference_above_2sigma, t.trend, t.trend_above_2sigma, t.biased, t.plateaus
+    ))
 }
 
 fn form_factors(tables: &Tables, figures: &[Rendered]) -> Section {

@@ -1,5 +1,5 @@
 //! The short text printed on the terminal after a run: first the final values with their
-//! error budget, then the form factors by shell and estimator, the derived quantities (or,
+//! error budget and the count of plateau form factors flagged as biased, then the form factors by shell and estimator, the derived quantities (or,
 //! for a run stopped after the ratio, the cross-check), the warning count and where the
 //! report is, and what data were analysed (configurations, bins, every configuration
 //! dropped).
@@ -18,6 +18,15 @@ pub fn terminal_summary(results: &RunResults) -> String {
             out.push_str(&format!(
                 "final values: {}; errors (stat)(sys), sys = excited states, fit range, Q² model, Z in quadrature\n\n",
                 r.budget.rule
+            ));
+        }
+        let checks = crate::pipeline::final_results::formfactor_checks(results);
+        let t = crate::ratio::formfactor_check::tally(checks.iter().flat_map(|c| &c.rows));
+        if t.plateaus > 0 {
+            out.push_str(&format!(
+                "plateau form factors flagged as biased by excited states: {} of {} \
+                 (formfactor_crosscheck.csv)\n\n",
+                t.biased, t.plateaus
             ));
         }
     }

@@ -10,6 +10,7 @@
 mod autocorrelation;
 mod cells;
 mod final_results;
+mod formfactor_check;
 mod formfactors;
 mod gevp;
 mod q2_fits;
@@ -48,6 +49,9 @@ pub enum TableName {
     Dispersion,
     /// Every comparison of two estimators per channel and part.
     CrossCheck,
+    /// Every comparison of two estimators per form factor and Q² shell, with the plateau
+    /// verdicts.
+    FormFactorCrossCheck,
     /// The bare matrix element per channel and estimator.
     MatrixElements,
     /// Negative products under the ratio's square root, per channel.
@@ -72,9 +76,10 @@ pub enum TableName {
 
 impl TableName {
     /// Every table, in the order they are written.
-    pub const ALL: [TableName; 20] = [
+    pub const ALL: [TableName; 21] = [
         TableName::Final,
         TableName::FinalVariants,
+        TableName::FormFactorCrossCheck,
         TableName::FormFactors,
         TableName::Derived,
         TableName::Q2Fits,
@@ -108,6 +113,7 @@ impl TableName {
             TableName::EffectiveMass => "effective_mass",
             TableName::Dispersion => "dispersion",
             TableName::CrossCheck => "crosscheck",
+            TableName::FormFactorCrossCheck => "formfactor_crosscheck",
             TableName::MatrixElements => "matrix_elements",
             TableName::NegativeRoots => "negative_roots",
             TableName::FormFactorSamples => "formfactor_samples",
@@ -136,6 +142,9 @@ impl TableName {
             TableName::EffectiveMass => spectrum::effective_mass(name, results),
             TableName::Dispersion => spectrum::dispersion(name, results),
             TableName::CrossCheck => ratio::crosscheck(name, results),
+            TableName::FormFactorCrossCheck => {
+                formfactor_check::formfactor_crosscheck(name, results)
+            }
             TableName::MatrixElements => ratio::matrix_elements(name, results),
             TableName::NegativeRoots => ratio::negative_roots(name, results),
             TableName::FormFactorSamples => Ok(formfactors::formfactor_samples(name, results)),
