@@ -185,35 +185,19 @@ impl Weights {
     /// finite leaves its column unchanged, as does a missing one.
     pub fn rescaled(&self, scales: &[f64]) -> Weights {
         let mut out = self.clone();
-        self.rescaled_into(scales, &mut out);
-        out
-    }
-
-    /// [`Weights::rescaled`] written into `out`, which must have as many points as `self`
-    /// (reused across resamples; no allocation). A size mismatch copies `self` unchanged.
-    pub fn rescaled_into(&self, scales: &[f64], out: &mut Weights) {
-        if out.whitening.shape() != self.whitening.shape() {
-            *out = self.clone();
-            return;
-        }
-        out.condition = self.condition;
         let n = self.len();
-        let src = self.whitening.as_slice();
-        let dst = out.whitening.as_mut_slice();
-        for j in 0..n {
+        for (j, column) in out
+            .whitening
+            .as_mut_slice()
+            .chunks_mut(n.max(1))
+            .enumerate()
+        {
             let s = scales.get(j).copied().unwrap_or(1.0);
-            let f = if s > 0.0 && s.is_finite() {
-                1.0 / s
-            } else {
-                1.0
-            };
-            for (d, v) in dst[j * n..(j + 1) * n]
-                .iter_mut()
-                .zip(&src[j * n..(j + 1) * n])
-            {
-                *d = v * f;
+            if s > 0.0 && s.is_finite() {
+                column.iter_mut().for_each(|v| *v /= s);
             }
         }
+        out
     }
 
     /// Number of data points.
