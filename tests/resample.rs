@@ -5,13 +5,14 @@ use approx::{assert_abs_diff_eq, assert_relative_eq};
 use formfactory::data::{Current, Projector};
 use formfactory::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use formfactory::resample::autocorr::{
-    binning_study, gamma_method, rho, sample_autocorrelation, DEFAULT_S,
+    binning_study, gamma_method, pooled_gamma_method, rho, sample_autocorrelation, DEFAULT_S,
 };
 use formfactory::resample::binning::{bin_series, bin_threept, bin_twopt, bin_values};
 use formfactory::resample::covariance::{
     estimate, estimate_with_bins, hartlap_factor, CovarianceKind, CovarianceOptions,
     ShrinkageTarget,
 };
+use formfactory::resample::inflation::{self, Inflation};
 use formfactory::resample::{fmt_value_error, Part, ResamplePlan, Resampled, Scheme};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -819,6 +820,185 @@ fn gamma_method_on_ar1_chains() {
         assert_relative_eq!(study[0].error, naive, max_relative = 0.03);
         assert_relative_eq!(study[199].error, true_error, max_relative = 0.15);
     }
+}
+
+#[test]
+fn pooled_tau_int_of_ar1_chains_binned_and_unbinned() {
+    // Analytic: an AR(1) chain with coefficient rho has tau_int = (1 + rho) / (2 (1 - rho))
+    // (methods.md §7); its bins of 2 have tau_int = 1 / (2 (1 - rho)) (the error of the mean
+    // does not depend on the binning, and a bin of two has (1 + rho)/2 of one value's
+    // variance), and independent data have 1/2. 64 chains of 200 values at rho = 0.3,
+    // pooled: 0.929 unbinned, 0.714 in bins of 2. The pooled estimate must land within 0.06
+    // of each (a third of the distance between the three values; the one-chain error of 0.2
+    // at N = 100 would not separate them), and within its own quoted (one-chain) error.
+    let rho_ar = 0.3;
+    let chains: Vec<Vec<f64>> = (0..64).map(|k| ar1(200, rho_ar, 7700 + k)).collect();
+    let binned: Vec<Vec<f64>> = chains.iter().map(|c| bin_values(c, 2)).collect();
+    let white: Vec<Vec<f64>> = (0..64).map(|k| gaussian(100, 7800 + k)).collect();
+    for (what, data, tau) in [
+        ("unbinned", &chains, (1.0 + rho_ar) / (2.0 * (1.0 - rho_ar))),
+        ("bins of 2", &binned, 1.0 / (2.0 * (1.0 - rho_ar))),
+        ("independent", &white, 0.5),
+    ] {
+        let views: Vec<&[f64]> = data.iter().map(Vec::as_slice).collect();
+        let r = pooled_gamma_method(&views, DEFAULT_S).expect("pooled");
+        println!(
+            "{what}: tau_int {:.3} +- {:.3} (W {}) vs {tau:.3}",
+            r.tau_int, r.tau_int_error, r.window
+        );
+        assert_eq!((r.chains, r.n), (64, data[0].len()));
+        assert!((r.tau_int - tau).abs() < 0.06, "{what}: {r:?} vs {tau}");
+        assert!((r.tau_int - tau).abs() < r.tau_int_error, "{what}: {r:?}");
+    }
+    // Chains of different lengths are refused; constant chains are skipped.
+    let mixed = [chains[0].as_slice(), binned[0].as_slice()];
+    assert!(pooled_gamma_method(&mixed, DEFAULT_S).is_err());
+    let flat = vec![1.0; 200];
+    let with_flat = [chains[0].as_slice(), flat.as_slice()];
+    assert_eq!(
+        pooled_gamma_method(&with_flat, DEFAULT_S)
+            .expect("one left")
+            .chains,
+        1
+    );
+    assert!(pooled_gamma_method(&[flat.as_slice()], DEFAULT_S).is_err());
+}
+
+fn mom_key(n: i32) -> TwoPointKey {
+    TwoPointKey {
+        momentum: [n, 0, 0],
+        smear: None,
+        ops: None,
+    }
+}
+
+#[test]
+fn inflation_decision_and_its_effect_on_errors() {
+    // 40 two-point time series of 400 bins of 2 configurations from AR(1) chains at rho = 0.3:
+    // pooled tau_int of the bins near 1/(2 (1 - rho)) = 0.714 (analytic, see above), beyond
+    // 1/2 by more than its one-chain error (about 0.14 at N = 400; at N = 50 it would be 0.34
+    // and `auto` would only mention it), so `auto` inflates by sqrt(2 tau_int) ~ 1.2 and
+    // `never` only warns. Inflating the bins' deviations scales the jackknife error of every
+    // mean by exactly that factor (identity: the jackknife deviations are linear in the bins'
+    // deviations).
+    let (n_t, n_cfg) = (4, 800);
+    let mut two = TwoPointData {
+        configs: (0..n_cfg as i64).collect(),
+        channels: Default::default(),
+    };
+    for c in 0..10 {
+        let mut s = Series::zeros(n_t, n_cfg);
+        for t in 0..n_t {
+            let x = ar1(n_cfg, 0.3, 9100 + 10 * c + t as u64);
+            s.re[t * n_cfg..(t + 1) * n_cfg].copy_from_slice(&x);
+        }
+        two.channels.insert(mom_key(c as i32), s);
+    }
+    let (mut binned, _) = bin_twopt(&two, 2).expect("bins");
+    let measured = inflation::measure(&binned, &ThreePointData::default());
+    assert!(measured.threept.is_err(), "no three-point data");
+    let r = measured.twopt.as_ref().expect("measured").clone();
+    assert_eq!((r.chains, r.n), (40, 400));
+    assert!((r.tau_int - 0.714).abs() < 0.05, "{r:?}");
+    let auto = inflation::decide(&measured, Inflation::Auto, 2);
+    let f = auto.factor.expect("auto inflates");
+    assert_relative_eq!(f, (2.0 * r.tau_int).sqrt(), max_relative = 1e-12);
+    assert!(
+        auto.message
+            .as_deref()
+            .is_some_and(|m| m.contains("inflated")),
+        "{auto:?}"
+    );
+    let never = inflation::decide(&measured, Inflation::Never, 2);
+    assert_eq!(never.factor, None);
+    assert!(
+        never
+            .message
+            .as_deref()
+            .is_some_and(|m| m.contains("short")),
+        "{never:?}"
+    );
+    let plan = ResamplePlan::jackknife(400);
+    let key = mom_key(3);
+    let before: Vec<Resampled> = plan
+        .means_of_series(&binned.channels[&key], Part::Re)
+        .unwrap();
+    inflation::inflate_all(&mut binned, &mut ThreePointData::default(), f);
+    let after: Vec<Resampled> = plan
+        .means_of_series(&binned.channels[&key], Part::Re)
+        .unwrap();
+    for (b, a) in before.iter().zip(&after) {
+        assert_relative_eq!(a.central, b.central, max_relative = 1e-12);
+        assert_relative_eq!(a.error(), f * b.error(), max_relative = 1e-9);
+    }
+    // Independent data: tau_int near 1/2, nothing to do under `auto`.
+    let mut white = TwoPointData {
+        configs: (0..50).collect(),
+        channels: Default::default(),
+    };
+    for c in 0..10 {
+        let mut s = Series::zeros(n_t, 50);
+        for t in 0..n_t {
+            s.re[t * 50..(t + 1) * 50].copy_from_slice(&gaussian(50, 9300 + 10 * c + t as u64));
+        }
+        white.channels.insert(mom_key(c as i32), s);
+    }
+    let measured = inflation::measure(&white, &ThreePointData::default());
+    assert_eq!(
+        inflation::decide(&measured, Inflation::Auto, 1).factor,
+        None,
+        "{measured:?}"
+    );
+}
+
+#[test]
+fn sample_variances_are_the_variances_of_each_samples_bins() {
+    // Definition: jackknife sample j keeps every bin but j; bootstrap sample k holds the bins
+    // it drew, with multiplicity. Reference: the unbiased variance of those bins computed
+    // directly (times N/(N-1) for the bootstrap, whose samples' variance has expectation
+    // (N-1)/N of the bins' variance: the variance of the empirical distribution).
+    let x = gaussian(12, 41);
+    let n = x.len();
+    let var = |v: &[f64]| {
+        let (_, s) = mean_sd(v);
+        s * s
+    };
+    let jack = ResamplePlan::jackknife(n).sample_variances(&x);
+    for (j, v) in jack.iter().enumerate() {
+        let kept: Vec<f64> = (0..n).filter(|&i| i != j).map(|i| x[i]).collect();
+        assert_relative_eq!(*v, var(&kept), max_relative = 1e-12);
+    }
+    let boot = ResamplePlan::bootstrap(n, 4000, 5);
+    let vb = boot.sample_variances(&x);
+    let ResamplePlan::Bootstrap { counts, .. } = &boot else {
+        unreachable!("a bootstrap plan")
+    };
+    for (k, v) in vb.iter().enumerate().take(20) {
+        let drawn: Vec<f64> = counts[k * n..(k + 1) * n]
+            .iter()
+            .zip(&x)
+            .flat_map(|(&c, &xi)| std::iter::repeat_n(xi, c as usize))
+            .collect();
+        assert_relative_eq!(
+            *v,
+            var(&drawn) * n as f64 / (n as f64 - 1.0),
+            max_relative = 1e-12
+        );
+    }
+    // Their average over 4000 samples is the bins' variance (expectation identity above;
+    // the relative spread of one sample's variance is about sqrt(2/N) = 0.4, so 4000 samples
+    // pin the mean to about 0.7 %; 3 % allowed).
+    let mean_vb = vb.iter().sum::<f64>() / vb.len() as f64;
+    assert_relative_eq!(mean_vb, var(&x), max_relative = 0.03);
+    let scales = boot.sample_error_scales(&x);
+    assert_relative_eq!(scales[3], (vb[3] / var(&x)).sqrt(), max_relative = 1e-12);
+    // Too few bins, or a length that does not match the plan: NaN, no panic.
+    assert!(ResamplePlan::jackknife(2).sample_variances(&x[..2])[0].is_nan());
+    assert!(ResamplePlan::jackknife(5).sample_variances(&x)[0].is_nan());
+    assert!(ResamplePlan::jackknife(n)
+        .sample_error_scales(&[1.0; 12])
+        .iter()
+        .all(|s| *s == 1.0));
 }
 
 #[test]

@@ -6,14 +6,18 @@
 //! An honest analysis puts 68.3 % of the ground-state energies within 1 sigma and 95.4 %
 //! within 2 sigma of the truth (normal distribution), and the root-mean-square pull is 1.
 //! Issue 10 asks for at least 85 % within 2 sigma and a pull rms of at most 1.15 over
-//! several seeds. [`fast_closure_on_a_hard_mock`] checks one seed of the three-state mock in the
-//! default suite (binomial bounds, as `tests/closure.rs`); [`closure_study`] (ignored,
-//! about 15 s in release) runs every mock over ten seeds and prints the table that the
-//! docs quote (`cargo test --release --test tests -- --ignored closure_study --nocapture`).
+//! several seeds (issue 11 the same pull rms for the spin-0 mock). [`fast_closure_on_a_hard_mock`]
+//! checks one seed of the three-state mock in the default suite (binomial bounds, as
+//! `tests/closure.rs`); [`few_bins_errors_include_the_weights_noise`] checks the per-resample
+//! weights on many tiny ensembles; [`closure_study`] (ignored, about 40 s in release) runs
+//! every mock over twenty seeds and prints the table that the docs quote
+//! (`cargo test --release --test tests -- --ignored closure_study --nocapture`).
 
 use crate::common::fixture;
+use formfactory::data::ThreePointData;
 use formfactory::mock::{generate, MockSpec};
 use formfactory::resample::binning::bin_twopt;
+use formfactory::resample::inflation::{self, Inflation};
 use formfactory::resample::ResamplePlan;
 use formfactory::spectrum::{self, IntRange, SpectrumSettings};
 
@@ -25,28 +29,51 @@ struct Case {
     bin: usize,
     /// Largest `t_max` (the stage lowers it per momentum where the signal dies).
     t_max: usize,
+    /// `resampling.autocorrelation_inflation` of the run.
+    inflation: Inflation,
+    /// Whether the study holds this case to the targets (the spin-0 mock under `auto` is
+    /// shown for comparison: its 25 bins are too few for `auto` to see their autocorrelation).
+    held_to_target: bool,
 }
 
-const CASES: [Case; 4] = [
+const CASES: [Case; 5] = [
     Case {
         file: "strong_excited.yaml",
         bin: 1,
         t_max: 16,
+        inflation: Inflation::Auto,
+        held_to_target: true,
     },
     Case {
         file: "three_states.yaml",
         bin: 1,
         t_max: 16,
+        inflation: Inflation::Auto,
+        held_to_target: true,
     },
     Case {
         file: "heavy_pion.yaml",
         bin: 1,
         t_max: 16,
+        inflation: Inflation::Auto,
+        held_to_target: true,
     },
     Case {
         file: "spin0_autocorrelated.yaml",
         bin: 2,
         t_max: 22,
+        inflation: Inflation::Auto,
+        held_to_target: false,
+    },
+    // The same with inflation asked for: with 25 bins the one-chain error of tau_int (about
+    // 0.35) hides the autocorrelation left in bins of 2 from `auto`, but an analyst who has
+    // seen tau_int = 0.93 of the unbinned data (`formfactory inspect`) knows it is there.
+    Case {
+        file: "spin0_autocorrelated.yaml",
+        bin: 2,
+        t_max: 22,
+        inflation: Inflation::Always,
+        held_to_target: true,
     },
 ];
 
@@ -67,13 +94,22 @@ struct Outcome {
     n2: Vec<i32>,
     /// Momenta dropped by the stage (not in `pulls`).
     dropped: usize,
+    /// The factor the resampled deviations were inflated by for autocorrelation (1: none).
+    inflation: f64,
 }
 
 /// Generate, bin, jackknife and fit one mock; pulls of every ground-state energy.
 fn run_case(case: &Case, seed: u64, verbose: bool) -> Outcome {
     let spec = load(case.file, seed);
     let e = generate(&spec).expect("mock generation");
-    let (c2, report) = bin_twopt(&e.twopt, case.bin).expect("binning");
+    let (mut c2, report) = bin_twopt(&e.twopt, case.bin).expect("binning");
+    // As the run's data stage: autocorrelation left in the bins, measured on the two-point
+    // table, and the deviations inflated for it as the setting says.
+    let measured = inflation::measure(&c2, &ThreePointData::default());
+    let factor = inflation::decide(&measured, case.inflation, case.bin).factor;
+    if let Some(f) = factor {
+        inflation::inflate_all(&mut c2, &mut ThreePointData::default(), f);
+    }
     let plan = ResamplePlan::jackknife(report.n_bins);
     let settings = SpectrumSettings {
         t_min: IntRange { from: 2, to: 8 },
@@ -85,6 +121,7 @@ fn run_case(case: &Case, seed: u64, verbose: bool) -> Outcome {
     let r = spectrum::run(&c2, &plan, &settings).expect("the spectrum stage runs");
     let mut out = Outcome {
         dropped: r.dropped.len(),
+        inflation: factor.unwrap_or(1.0),
         ..Outcome::default()
     };
     for (p, s) in &r.per_momentum {
@@ -145,38 +182,53 @@ fn fast_closure_on_a_hard_mock() {
     assert!(worst <= 4.0, "a pull of {worst:.2}");
 }
 
-// The multi-seed study of issue 10: every mock, ten seeds each. Targets: at least 85 % of
-// the ground-state energies within 2 sigma and a pull rms of at most 1.15 per mock. Prints one
-// row per mock and, below it, the same figures per |n|^2 (where failures concentrate).
+// The multi-seed study of issue 10: every mock, twenty seeds each (FF_CLOSURE_SEEDS to
+// change). Targets: at least 85 % of the ground-state energies within 2 sigma and a pull rms
+// of at most 1.15 per mock held to them. Prints one row per mock and, below it, the same
+// figures per |n|^2 (where failures concentrate).
 #[test]
-#[ignore = "closure study, about 15 s in release; run with --ignored --nocapture"]
+#[ignore = "closure study, about 40 s in release; run with --ignored --nocapture"]
 fn closure_study() {
-    let seeds: Vec<u64> = (7000..7010).collect();
+    // FF_CLOSURE_SEEDS overrides the number of seeds (20 by default).
+    let n_seeds = std::env::var("FF_CLOSURE_SEEDS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(20u64);
+    let seeds: Vec<u64> = (7000..7000 + n_seeds).collect();
     let mut failures = Vec::new();
     println!(
-        "| mock | estimates | dropped | within 1 sigma | within 2 sigma | pull rms | mean pull |"
+        "| mock | inflation | estimates | dropped | within 1 sigma | within 2 sigma | pull rms | mean pull |"
     );
-    println!("|---|---|---|---|---|---|---|");
+    println!("|---|---|---|---|---|---|---|---|");
     for case in &CASES {
-        let (mut pulls, mut n2s, mut dropped) = (Vec::new(), Vec::new(), 0);
+        let (mut pulls, mut n2s, mut dropped, mut factors) =
+            (Vec::new(), Vec::new(), 0, Vec::new());
         for &s in &seeds {
             let out = run_case(case, s, false);
             pulls.extend(out.pulls);
             n2s.extend(out.n2);
             dropped += out.dropped;
+            factors.push(out.inflation);
         }
-        let row = |label: &str, pulls: &[f64], dropped: String| {
+        let inflated = factors.iter().filter(|f| **f > 1.0).count();
+        let mean_factor = factors.iter().sum::<f64>() / factors.len().max(1) as f64;
+        let how = format!(
+            "{}: {inflated}/{} seeds, mean factor {mean_factor:.3}",
+            case.inflation.name(),
+            seeds.len()
+        );
+        let row = |label: &str, how: &str, pulls: &[f64], dropped: String| {
             let (w1, w2, rms) = summary(pulls);
             let mean = pulls.iter().sum::<f64>() / pulls.len().max(1) as f64;
             println!(
-                "| {label} | {} | {dropped} | {:.1} % | {:.1} % | {rms:.2} | {mean:+.2} |",
+                "| {label} | {how} | {} | {dropped} | {:.1} % | {:.1} % | {rms:.2} | {mean:+.2} |",
                 pulls.len(),
                 100.0 * w1,
                 100.0 * w2
             );
             (w2, rms)
         };
-        let (w2, rms) = row(case.file, &pulls, dropped.to_string());
+        let (w2, rms) = row(case.file, &how, &pulls, dropped.to_string());
         for k in 0..4 {
             let sel: Vec<f64> = pulls
                 .iter()
@@ -184,11 +236,88 @@ fn closure_study() {
                 .filter(|(_, n)| **n == k)
                 .map(|(p, _)| *p)
                 .collect();
-            row(&format!("  |n|^2 = {k}"), &sel, String::new());
+            row(&format!("  |n|^2 = {k}"), "", &sel, String::new());
         }
-        if w2 < 0.85 || rms > 1.15 {
+        if case.held_to_target && (w2 < 0.85 || rms > 1.15) {
             failures.push(case.file);
         }
     }
     assert!(failures.is_empty(), "below the targets: {failures:?}");
+}
+
+/// A spin-0 mock of one momentum with few configurations and no autocorrelation.
+const FEW_BINS: &str = "
+seed: 1
+ensemble: {L: 16, T: 32, a_fm: 0.09, configs: 12}
+hadron:
+  kind: spin0
+  dispersion: lattice
+  smearing_width: 2.0
+  states:
+    - {mass: 0.30, overlap: 1.0}
+form_factors:
+  F: {model: dipole, value_at_zero: 1.0, mass: 0.5}
+channels:
+  momenta: {sink: [[0, 0, 0]], max_q2: 0, representatives: false}
+  tseps: [4]
+  insertions:
+    - {currents: [V4]}
+noise:
+  twopt: 0.02
+  threept: 0.03
+  growth_rate: 0.1
+  time_correlation: 2.0
+";
+
+// Weights estimated from few bins are noisy, and a fit weighted by them scatters more than
+// one with exact weights; a resampled error includes that scatter only when every resample
+// weights its points by the errors of its own bins, as the central fit did with all of them.
+// Over 150 independent ensembles of 12 configurations (one momentum, one state, diagonal
+// weights, jackknife), the pulls of the ground energy against the generator's truth must
+// have an rms consistent with 1 (normal distribution: 150 pulls give an rms within 0.85-1.15
+// at better than 99 %, from the chi-square distribution with 150 degrees of freedom) with
+// the per-resample weights, and frozen weights must give smaller errors on most ensembles
+// (the rescaling is what widens them).
+#[test]
+fn few_bins_errors_include_the_weights_noise() {
+    use formfactory::spectrum::{fit_correlator, resample_series};
+    let settings = SpectrumSettings {
+        t_min: IntRange { from: 2, to: 4 },
+        t_max: Some(14),
+        n_states: IntRange { from: 1, to: 1 },
+        ..SpectrumSettings::default()
+    };
+    let (mut own, mut frozen, mut wider) = (Vec::new(), Vec::new(), 0);
+    let n_ensembles = 150;
+    for seed in 0..n_ensembles {
+        let mut spec = MockSpec::from_yaml(FEW_BINS, "few bins").expect("valid spec");
+        spec.seed = 5000 + seed;
+        let e = generate(&spec).expect("mock generation");
+        let truth = e.truth.levels([0, 0, 0]).expect("truth").energies[0];
+        let series = e.twopt.channels.values().next().expect("one channel");
+        let plan = ResamplePlan::jackknife(series.n_cfg);
+        let corr = resample_series(series, &plan).expect("resampled");
+        let scales: Vec<Vec<f64>> = (0..series.n_t)
+            .map(|t| plan.sample_error_scales(series.re_at(t)))
+            .collect();
+        let fit = |scales: Option<&[Vec<f64>]>| {
+            let s = fit_correlator([0, 0, 0], &corr, &corr, scales, &settings, &mut Vec::new())
+                .expect("fits");
+            s.ground_energy().clone()
+        };
+        let (a, b) = (fit(Some(&scales)), fit(None));
+        own.push((a.central - truth) / a.error());
+        frozen.push((b.central - truth) / b.error());
+        if a.error() > b.error() {
+            wider += 1;
+        }
+    }
+    let rms = |p: &[f64]| (p.iter().map(|x| x * x).sum::<f64>() / p.len() as f64).sqrt();
+    println!(
+        "pull rms: own weights {:.3}, frozen weights {:.3}; own errors wider on {wider} of {n_ensembles}",
+        rms(&own),
+        rms(&frozen)
+    );
+    assert!((0.85..=1.15).contains(&rms(&own)), "rms {}", rms(&own));
+    assert!(wider > n_ensembles / 2, "{wider} of {n_ensembles}");
 }

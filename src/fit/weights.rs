@@ -177,6 +177,29 @@ impl Weights {
         Weights::diagonal(&vec![1.0; n])
     }
 
+    /// The same weights for data whose standard deviations are `scales[i]` times those these
+    /// weights were built for, with the correlations unchanged: `Cov' = S Cov S` with
+    /// `S = diag(scales)`, so `W' = W S^{-1}` (column `i` of `W` divided by `scales[i]`).
+    /// A resample's fit uses it to weight its points by that resample's own errors (see
+    /// [`crate::resample::ResamplePlan::sample_variances`]). A scale that is not positive and
+    /// finite leaves its column unchanged, as does a missing one.
+    pub fn rescaled(&self, scales: &[f64]) -> Weights {
+        let mut out = self.clone();
+        let n = self.len();
+        for (j, column) in out
+            .whitening
+            .as_mut_slice()
+            .chunks_mut(n.max(1))
+            .enumerate()
+        {
+            let s = scales.get(j).copied().unwrap_or(1.0);
+            if s > 0.0 && s.is_finite() {
+                column.iter_mut().for_each(|v| *v /= s);
+            }
+        }
+        out
+    }
+
     /// Number of data points.
     pub fn len(&self) -> usize {
         self.whitening.nrows()
@@ -247,6 +270,17 @@ mod tests {
             DMatrix::from_row_slice(3, 3, &[4.0, 1.2, 0.003, 1.2, 9.0, 0.02, 0.003, 0.02, 1e-4]);
         let w = Weights::from_covariance(&cov).unwrap();
         let prod = w.matrix().transpose() * w.matrix() * &cov;
+        assert_relative_eq!(prod, DMatrix::identity(3, 3), epsilon = 1e-9);
+    }
+
+    #[test]
+    fn rescaled_weights_whiten_the_rescaled_covariance() {
+        // W'^T W' = (S Cov S)^{-1} (definition of whitening, with S = diag(scales)).
+        let cov = DMatrix::from_row_slice(3, 3, &[4.0, 1.2, 0.3, 1.2, 9.0, 0.2, 0.3, 0.2, 1.0]);
+        let scales = [0.8, 1.3, 1.05];
+        let s = DMatrix::from_diagonal(&nalgebra::DVector::from_row_slice(&scales));
+        let w = Weights::from_covariance(&cov).unwrap().rescaled(&scales);
+        let prod = w.matrix().transpose() * w.matrix() * (&s * &cov * &s);
         assert_relative_eq!(prod, DMatrix::identity(3, 3), epsilon = 1e-9);
     }
 

@@ -41,6 +41,10 @@ pub struct DataSummary {
     /// The integrated autocorrelation time and binning study of a few representative data
     /// points, on the configurations before binning.
     pub autocorrelation: Vec<AutocorrPoint>,
+    /// The integrated autocorrelation time of the binned data, pooled per table.
+    pub binned_autocorrelation: crate::resample::inflation::BinnedAutocorrelation,
+    /// The factor every resampled deviation was inflated by for it (`None`: not inflated).
+    pub inflation: Option<f64>,
 }
 
 /// The Monte Carlo history of one representative data point: its integrated

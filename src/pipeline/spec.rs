@@ -190,6 +190,12 @@ pub struct ResamplingSpec {
     /// Seed of the bootstrap draws (0 to 2^64 - 1).
     #[serde(default = "default_seed", deserialize_with = "crate::io::seed::seed")]
     pub seed: u64,
+    /// Autocorrelation left in the bins: its tau_int is measured on the binned data (Gamma
+    /// method, pooled over every time slice of every channel) and every resampled deviation
+    /// is inflated by sqrt(2 tau_int) when it exceeds 1/2 by more than its error (`auto`),
+    /// whenever it exceeds 1/2 (`always`), or `never`.
+    #[serde(default)]
+    pub autocorrelation_inflation: crate::resample::inflation::Inflation,
 }
 
 impl Default for ResamplingSpec {
@@ -199,6 +205,7 @@ impl Default for ResamplingSpec {
             bin_size: 1,
             samples: default_samples(),
             seed: default_seed(),
+            autocorrelation_inflation: Default::default(),
         }
     }
 }

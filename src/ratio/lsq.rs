@@ -1,16 +1,20 @@
 //! Correlated linear least squares on resampled data, shared by the plateau, summation and
 //! fixed-gap two-state fits: the covariance is estimated once from the resamples
-//! ([`crate::resample::covariance`]) and frozen (common practice, docs/methods.md §2), then every
-//! resample is fitted in closed form ([`crate::fit::linear`]). A design that is the same for
-//! every resample (plateau, summation) is factorised once and applied to all resamples as one
-//! product ([`linear::FixedDesign`]); only a design that changes per resample (the fixed-gap
-//! two-state fit, whose gaps are resampled) is solved resample by resample, by QR in buffers
-//! allocated once per fit ([`linear::Workspace`]).
+//! ([`crate::resample::covariance`]) and its correlations frozen (common practice,
+//! docs/methods.md §2), then every resample is fitted in closed form ([`crate::fit::linear`]).
+//! In a jackknife run each resample weights its points by its own errors (the variances
+//! rescaled by the spread of the jackknife pseudo-values it keeps, as the spectrum stage does
+//! with its bins), because weights estimated from few bins vary with the data and frozen ones
+//! leave that variation out of the error; every resample is then solved on its own, by QR in
+//! buffers allocated once per fit ([`linear::Workspace`]). Bootstrap samples have no per-bin
+//! values to rescale by: their weights stay frozen, and a design that is the same for every
+//! resample (plateau, summation) is factorised once and applied to all resamples as one
+//! product ([`linear::FixedDesign`]).
 
 use super::{FitQuality, ReIm, ReImFit, STAGE};
 use crate::fit::{linear, Weights};
 use crate::resample::covariance::{estimate_with_bins, CovarianceOptions};
-use crate::resample::Resampled;
+use crate::resample::{ResamplePlan, Resampled, Scheme};
 use crate::{Error, Result};
 use nalgebra::DMatrix;
 
@@ -61,12 +65,47 @@ impl Design<'_> {
     }
 }
 
-/// Fit `points` with `design`, weights `w` frozen. Returns one resampled value per parameter
-/// and the quality of the central fit.
+/// Per point and jackknife sample, the error of the bins that sample keeps relative to all
+/// bins, from the jackknife pseudo-values `x_c + (N-1)(x_c - x_j)` (for a mean they are the
+/// bins themselves; for a derived quantity, such as the ratio, its linearised value per bin):
+/// [`ResamplePlan::sample_error_scales`] of them. `None` for bootstrap samples (no per-bin
+/// values to take them from) and when a scale is not finite.
+pub(crate) fn jackknife_sample_scales(points: &[Resampled]) -> Option<Vec<Vec<f64>>> {
+    let first = points.first()?;
+    if first.scheme != Scheme::Jackknife || first.len() < 3 {
+        return None;
+    }
+    let n = first.len();
+    let plan = ResamplePlan::jackknife(n);
+    let k = n as f64 - 1.0;
+    let per_point: Vec<Vec<f64>> = points
+        .iter()
+        .map(|p| {
+            let pseudo: Vec<f64> = p
+                .samples
+                .iter()
+                .map(|x| p.central + k * (p.central - x))
+                .collect();
+            plan.sample_error_scales(&pseudo)
+        })
+        .collect();
+    let finite = per_point
+        .iter()
+        .all(|s| s.len() == n && s.iter().all(|v| v.is_finite() && *v > 0.0));
+    finite.then_some(per_point)
+}
+
+/// Fit `points` with `design`, weights `w` (their correlations frozen). With `scales` (per
+/// point, per sample: see [`jackknife_sample_scales`]) each resample weights its points by its
+/// own errors, `W S^{-1}` with `S = diag(scales)` (rows of the design and the data divided by
+/// the scales before the whitening), so every resample is solved on its own; without, a fixed
+/// design is factorised once for all resamples. Returns one resampled value per parameter and
+/// the quality of the central fit.
 pub(crate) fn fit_resampled(
     points: &[Resampled],
     design: &Design<'_>,
     w: &Weights,
+    scales: Option<&[Vec<f64>]>,
     what: &str,
 ) -> Result<(Vec<Resampled>, FitQuality)> {
     let y: Vec<f64> = points.iter().map(|p| p.central).collect();
@@ -79,33 +118,14 @@ pub(crate) fn fit_resampled(
         }
     }
     .map_err(wrap(what))?;
-    let per_param = match design {
-        Design::Fixed(a) => {
+    let per_param = match (design, scales) {
+        (Design::Fixed(a), None) => {
             let columns: Vec<&[f64]> = points.iter().map(|p| p.samples.as_slice()).collect();
             linear::FixedDesign::new(a, w)
                 .and_then(|f| f.solve_many(&columns))
                 .map_err(wrap(what))?
         }
-        Design::PerSample { params, fill } => {
-            // Buffers allocated once per fit; every resample is solved in place.
-            let n_samples = points.first().map_or(0, Resampled::len);
-            let mut per_param = vec![Vec::with_capacity(n_samples); *params];
-            let mut y = vec![0.0; points.len()];
-            let mut a = DMatrix::zeros(points.len(), *params);
-            let mut x = vec![0.0; *params];
-            let mut work = linear::Workspace::new(points.len(), *params);
-            for s in 0..n_samples {
-                for (y, p) in y.iter_mut().zip(points) {
-                    *y = p.samples[s];
-                }
-                fill(Some(s), &mut a);
-                work.solve(&a, &y, w, &mut x).map_err(wrap(what))?;
-                for (out, v) in per_param.iter_mut().zip(&x) {
-                    out.push(*v);
-                }
-            }
-            per_param
-        }
+        _ => per_sample(points, design, w, scales, what)?,
     };
     // safe: the central fit above succeeded, so there is at least one point.
     let scheme = points[0].scheme;
@@ -123,6 +143,47 @@ pub(crate) fn fit_resampled(
             p_value: central.p_value,
         },
     ))
+}
+
+/// Every resample solved on its own (buffers allocated once per fit), its design and data
+/// rows divided by its scales when given.
+fn per_sample(
+    points: &[Resampled],
+    design: &Design<'_>,
+    w: &Weights,
+    scales: Option<&[Vec<f64>]>,
+    what: &str,
+) -> Result<Vec<Vec<f64>>> {
+    let params = design.n_params();
+    let n_samples = points.first().map_or(0, Resampled::len);
+    let mut per_param = vec![Vec::with_capacity(n_samples); params];
+    let mut y = vec![0.0; points.len()];
+    let mut a = DMatrix::zeros(points.len(), params);
+    let mut x = vec![0.0; params];
+    let mut work = linear::Workspace::new(points.len(), params);
+    for s in 0..n_samples {
+        for (y, p) in y.iter_mut().zip(points) {
+            *y = p.samples[s];
+        }
+        match design {
+            Design::Fixed(fixed) => a.copy_from(fixed),
+            Design::PerSample { fill, .. } => fill(Some(s), &mut a),
+        }
+        if let Some(scales) = scales {
+            for (i, point_scales) in scales.iter().enumerate() {
+                let f = 1.0 / point_scales[s];
+                y[i] *= f;
+                for c in 0..params {
+                    a[(i, c)] *= f;
+                }
+            }
+        }
+        work.solve(&a, &y, w, &mut x).map_err(wrap(what))?;
+        for (out, v) in per_param.iter_mut().zip(&x) {
+            out.push(*v);
+        }
+    }
+    Ok(per_param)
 }
 
 /// Fit the real and the imaginary parts of `points` separately with the same design (see
@@ -164,7 +225,10 @@ pub(crate) fn fit_re_im(
         }
         let (w, warn) = weights(&values, cov, &what)?;
         warnings.extend(warn.into_iter().map(|m| format!("{what}: {m}")));
-        fit_resampled(&values, &design, &w, &what)
+        // Each jackknife resample weights its points by its own errors (as the spectrum
+        // stage); bootstrap samples have no per-bin values to take them from.
+        let scales = jackknife_sample_scales(&values);
+        fit_resampled(&values, &design, &w, scales.as_deref(), &what)
     };
     let (re, quality_re) = part(points.iter().map(|p| p.re.clone()).collect(), "real")?;
     let (im, quality_im) = part(points.iter().map(|p| p.im.clone()).collect(), "imaginary")?;
@@ -186,4 +250,62 @@ pub(crate) fn fit_re_im(
             warnings,
         },
     ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn bins(seed: u64, n: usize) -> Vec<f64> {
+        // A fixed, irregular sequence (no random generator needed).
+        (0..n)
+            .map(|i| 1.0 + 0.1 * ((i as f64 + 0.3) * (seed as f64 + 1.7)).sin())
+            .collect()
+    }
+
+    #[test]
+    fn scales_of_a_mean_are_those_of_its_bins_and_fits_follow_them() {
+        let n = 9;
+        let plan = ResamplePlan::jackknife(n);
+        let data: Vec<Vec<f64>> = (0..4).map(|k| bins(k, n)).collect();
+        let points: Vec<Resampled> = data.iter().map(|x| plan.mean(x)).collect();
+        // Identity: the jackknife pseudo-values of a mean are its bins.
+        let scales = jackknife_sample_scales(&points).expect("jackknife scales");
+        for (s, x) in scales.iter().zip(&data) {
+            for (a, b) in s.iter().zip(plan.sample_error_scales(x)) {
+                assert_relative_eq!(*a, b, max_relative = 1e-9);
+            }
+        }
+        let errors: Vec<f64> = points.iter().map(Resampled::error).collect();
+        let w = Weights::diagonal(&errors);
+        let design = Design::Fixed(DMatrix::from_element(4, 1, 1.0));
+        // Scales of 1 give the factorised (frozen-weight) fit.
+        let ones = vec![vec![1.0; n]; 4];
+        let (frozen, _) = fit_resampled(&points, &design, &w, None, "test").unwrap();
+        let (same, _) = fit_resampled(&points, &design, &w, Some(&ones), "test").unwrap();
+        for (a, b) in frozen[0].samples.iter().zip(&same[0].samples) {
+            assert_relative_eq!(*a, *b, max_relative = 1e-12);
+        }
+        // With its own scales, sample j of a constant fit is the weighted mean with weights
+        // 1/(sigma_i s_ij)^2 (definition of the weighted least-squares constant).
+        let (own, _) = fit_resampled(&points, &design, &w, Some(&scales), "test").unwrap();
+        for (j, fitted) in own[0].samples.iter().enumerate() {
+            let wts: Vec<f64> = errors
+                .iter()
+                .zip(&scales)
+                .map(|(e, s)| (e * s[j]).powi(-2))
+                .collect();
+            let mean = wts
+                .iter()
+                .zip(&points)
+                .map(|(w, p)| w * p.samples[j])
+                .sum::<f64>()
+                / wts.iter().sum::<f64>();
+            assert_relative_eq!(*fitted, mean, max_relative = 1e-10);
+        }
+        // Bootstrap samples: no scales.
+        let boot = ResamplePlan::bootstrap(n, 20, 1);
+        assert!(jackknife_sample_scales(&[boot.mean(&data[0])]).is_none());
+    }
 }

@@ -170,8 +170,9 @@ pub struct RatioSettings {
     /// Which estimator feeds the final result (default: `two_state`; `plateau` means the
     /// plateau at the largest `tsep` with a fit).
     pub final_method: Estimator,
-    /// Covariance of the fitted points, estimated once from the resamples and frozen
-    /// (default: diagonal — the closure tests in `tests/closure.rs` found that full-covariance
+    /// Covariance of the fitted points, estimated once from the resamples; its correlations
+    /// are frozen, and in a jackknife run each resample of a plateau, summation or fixed-gap
+    /// two-state fit rescales the variances by its own (default: diagonal — the closure tests in `tests/closure.rs` found that full-covariance
     /// weights over the 30–50 points of a two-state fit with ~100 samples under-quote the
     /// errors, as docs/methods.md §2 warns; the resampled error stays honest with diagonal weights).
     /// YAML as in the resample stage: `kind: full | diagonal | shrinkage` or

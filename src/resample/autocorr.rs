@@ -53,6 +53,23 @@ pub struct AutocorrResult {
     pub warnings: Vec<String>,
 }
 
+/// Result of [`pooled_gamma_method`]: the integrated autocorrelation time many chains share.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PooledAutocorr {
+    /// Integrated autocorrelation time (bias corrected); `1/2` for independent data.
+    pub tau_int: f64,
+    /// Statistical error of `tau_int` (the one-chain formula; see [`pooled_gamma_method`]).
+    pub tau_int_error: f64,
+    /// The summation window `W` chosen.
+    pub window: usize,
+    /// Length of each chain.
+    pub n: usize,
+    /// Number of chains pooled (constant ones are skipped).
+    pub chains: usize,
+    /// As for one chain: window not found, chains short compared with `tau_int`.
+    pub warnings: Vec<String>,
+}
+
 /// One point of a binning study.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct BinningPoint {
@@ -154,21 +171,49 @@ pub fn gamma_method(x: &[f64], s: f64) -> Result<AutocorrResult> {
         ));
     }
     let mean = check_chain(x)?;
-    let n = x.len();
-    let nf = n as f64;
-    let w_max = n / 2;
     let dev = deviations(x, mean);
-    // Γ(t) is computed lag by lag, only up to the window (O(N W), not O(N²)).
-    let mut g = vec![gamma_at(&dev, 0)];
-    if g[0] <= 0.0 {
+    if gamma_at(&dev, 0) <= 0.0 {
         return Err(constant_chain());
     }
+    // Γ(t) is computed lag by lag, only up to the window (O(N W), not O(N²)).
+    let w = windowed(x.len(), s, |t| gamma_at(&dev, t))?;
+    Ok(AutocorrResult {
+        mean,
+        error: (w.c_f / x.len() as f64).sqrt(),
+        tau_int: w.tau_int,
+        tau_int_error: w.tau_int_error,
+        window: w.window,
+        n: x.len(),
+        warnings: w.warnings,
+    })
+}
 
+/// What the automatic window gives for one autocorrelation function.
+pub(crate) struct Windowed {
+    /// Bias-corrected `τ_int`.
+    pub tau_int: f64,
+    /// Its statistical error (Madras–Sokal).
+    pub tau_int_error: f64,
+    /// The summation window `W`.
+    pub window: usize,
+    /// `C_F = Γ(0) + 2 Σ_{t=1}^{W} Γ(t)` after the bias correction.
+    pub c_f: f64,
+    /// Window not found; chain short compared with `τ_int`.
+    pub warnings: Vec<String>,
+}
+
+/// Wolff's automatic window, bias correction and error of `τ_int` for an autocorrelation
+/// function `gamma(t)` of a chain of `n` values (`gamma(0) > 0`, asked lag by lag up to the
+/// window, at most `n/2`), with windowing factor `s`. See the module docs.
+pub(crate) fn windowed(n: usize, s: f64, mut gamma: impl FnMut(usize) -> f64) -> Result<Windowed> {
+    let nf = n as f64;
+    let w_max = n / 2;
+    let mut g = vec![gamma(0)];
     let mut warnings = Vec::new();
     let mut window = None;
     let mut tau_int = 0.5;
     for w in 1..=w_max {
-        let gw = gamma_at(&dev, w);
+        let gw = gamma(w);
         g.push(gw);
         tau_int += gw / g[0];
         let tau = if tau_int > 0.5 {
@@ -217,14 +262,60 @@ pub fn gamma_method(x: &[f64], s: f64) -> Result<AutocorrResult> {
             100.0 * tau_int
         ));
     }
-    Ok(AutocorrResult {
-        mean,
-        error: (cf / nf).sqrt(),
+    Ok(Windowed {
         tau_int,
         tau_int_error,
         window,
-        n,
+        c_f: cf,
         warnings,
+    })
+}
+
+/// `τ_int` shared by many chains of the same length (e.g. every time slice of every channel
+/// of one ensemble), from their normalised autocorrelation functions averaged with equal
+/// weight, `ρ̄(t) = mean_c Γ_c(t)/Γ_c(0)`, then Wolff's automatic window, bias correction and
+/// error as for one chain ([`gamma_method`]). Averaging over chains lowers the noise of `ρ̄`;
+/// the error quoted is the one-chain formula for `N` values, which is an upper bound when the
+/// chains are correlated with one another (as the channels of one ensemble are) and
+/// conservative otherwise. Constant chains are skipped; errors when every chain is constant,
+/// when the lengths differ, a chain is shorter than [`MIN_LENGTH`] or holds a non-finite
+/// value, or `s` is not positive.
+pub fn pooled_gamma_method(chains: &[&[f64]], s: f64) -> Result<PooledAutocorr> {
+    if !(s > 0.0 && s.is_finite()) {
+        return Err(Error::analysis(
+            "autocorrelation",
+            format!("windowing factor S = {s}; expected a positive number (default 1.5)"),
+        ));
+    }
+    let n = chains.first().map_or(0, |c| c.len());
+    let mut devs = Vec::with_capacity(chains.len());
+    for c in chains {
+        if c.len() != n {
+            return Err(Error::analysis(
+                "autocorrelation",
+                format!("chains of {} and {n} values cannot be pooled", c.len()),
+            ));
+        }
+        let dev = deviations(c, check_chain(c)?);
+        let g0 = gamma_at(&dev, 0);
+        if g0 > 0.0 {
+            devs.push((dev, g0));
+        }
+    }
+    if devs.is_empty() {
+        return Err(constant_chain());
+    }
+    let k = devs.len() as f64;
+    let w = windowed(n, s, |t| {
+        devs.iter().map(|(d, g0)| gamma_at(d, t) / g0).sum::<f64>() / k
+    })?;
+    Ok(PooledAutocorr {
+        tau_int: w.tau_int,
+        tau_int_error: w.tau_int_error,
+        window: w.window,
+        n,
+        chains: devs.len(),
+        warnings: w.warnings,
     })
 }
 

@@ -18,11 +18,13 @@
 //! - [`binning`]: block averages of per-configuration data.
 //! - [`covariance`]: full, diagonal and Ledoit–Wolf shrinkage covariance with an eigenvalue cut.
 //! - [`autocorr`]: the Gamma method and binning studies.
+//! - [`inflation`]: autocorrelation left in the bins, and the errors widened for it.
 
 pub mod autocorr;
 pub mod autocorr_check;
 pub mod binning;
 pub mod covariance;
+pub mod inflation;
 pub mod plan;
 pub mod robust;
 pub mod value;

@@ -143,6 +143,74 @@ impl ResamplePlan {
         Resampled::new(central, samples, self.scheme())
     }
 
+    /// Per sample, the variance of the per-bin values `x` among the bins that sample contains,
+    /// as an estimate of the same quantity as the unbiased variance `s²` of all bins (the
+    /// per-point variance behind the weights of a fit): for the jackknife the unbiased
+    /// variance of the `N - 1` bins it keeps; for the bootstrap `N/(N-1)` times the unbiased
+    /// variance of the `N` bins it draws (with their multiplicities), because a bootstrap
+    /// sample's unbiased variance has expectation `(N-1)/N s²` (the variance of the empirical
+    /// distribution). Either way the average over samples is close to `s²`, and the spread
+    /// of these variances is what a fit that recomputed its weights on every resample would
+    /// see. Wrong lengths or fewer than three bins give NaN (see [`ResamplePlan::mean`]).
+    pub fn sample_variances(&self, x: &[f64]) -> Vec<f64> {
+        let n = x.len();
+        if n < 3 || n != self.n_bins() {
+            return vec![f64::NAN; self.n_samples()];
+        }
+        let m = stable_mean(x);
+        let dev: Vec<f64> = x.iter().map(|v| v - m).collect();
+        match self {
+            ResamplePlan::Jackknife { .. } => {
+                // Leave-one-out sums of squares about the full mean, shifted to the sample's
+                // own mean: sum_{i != j} (x_i - m_j)^2 = Q - d_j^2 - (N-1) (m_j - m)^2 with
+                // m_j - m = -d_j / (N-1).
+                let q: f64 = dev.iter().map(|d| d * d).sum();
+                let k = n as f64 - 1.0;
+                dev.iter()
+                    .map(|d| ((q - d * d - d * d / k) / (k - 1.0)).max(0.0))
+                    .collect()
+            }
+            ResamplePlan::Bootstrap { counts, .. } => {
+                let nf = n as f64;
+                counts
+                    .chunks(n)
+                    .map(|row| {
+                        let shift: f64 = row
+                            .iter()
+                            .zip(&dev)
+                            .map(|(&c, d)| c as f64 * d)
+                            .sum::<f64>()
+                            / nf;
+                        let q: f64 = row
+                            .iter()
+                            .zip(&dev)
+                            .map(|(&c, d)| c as f64 * (d - shift) * (d - shift))
+                            .sum();
+                        q / (nf - 1.0) * nf / (nf - 1.0)
+                    })
+                    .collect()
+            }
+        }
+    }
+
+    /// Per sample, the standard deviation of the bins it contains relative to that of all
+    /// bins, `sqrt(sample_variances / s²)`: the factor by which a fit's weights for this point
+    /// would change had they been estimated on that sample. 1 for every sample when the bins
+    /// do not vary; NaN where [`ResamplePlan::sample_variances`] gives NaN.
+    pub fn sample_error_scales(&self, x: &[f64]) -> Vec<f64> {
+        let v = self.sample_variances(x);
+        let n = x.len() as f64;
+        let m = stable_mean(x);
+        let s2 = x.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / (n - 1.0);
+        if s2.is_nan() || s2 <= 0.0 {
+            return v
+                .iter()
+                .map(|v| if v.is_nan() { *v } else { 1.0 })
+                .collect();
+        }
+        v.into_iter().map(|v| (v / s2).sqrt()).collect()
+    }
+
     /// [`ResamplePlan::mean`] after checking that `x` has one value per bin and that there are
     /// at least two bins; `what` names the data in the error message.
     pub fn checked_mean(&self, x: &[f64], what: &str) -> Result<Resampled> {

@@ -23,10 +23,21 @@ use crate::resample::{covariance, Resampled};
 /// same windows with the same weights and differ only in the spread of their resamples.
 /// (A bootstrap estimate of the covariance carries noise of order `1/sqrt(samples)`, and the
 /// number of bootstrap samples says nothing about the number of independent measurements.)
+///
+/// `sample_scales`, when given, holds per time slice and per resample the standard deviation
+/// of the bins that resample contains relative to that of all bins
+/// ([`crate::resample::ResamplePlan::sample_error_scales`]); each resample's fit then weights
+/// its points by its own errors (the frozen weights rescaled, correlations kept) rather than by
+/// the central data's. Weights estimated from the data vary with the data, and a resampled
+/// error only includes that part of the estimator's spread when every resample re-estimates
+/// them as the central fit did; with frozen weights the errors of small ensembles come out
+/// short (measured in `tests/spectrum_closure.rs`). `None` keeps the frozen weights (the
+/// variational method's principal correlators, which have no bins of their own).
 pub fn fit_correlator(
     momentum: Momentum,
     corr: &[Resampled],
     weighting: &[Resampled],
+    sample_scales: Option<&[Vec<f64>]>,
     settings: &SpectrumSettings,
     warnings: &mut Vec<String>,
 ) -> Result<MomentumSpectrum> {
@@ -47,6 +58,7 @@ pub fn fit_correlator(
         priors: &settings.priors,
         fit: &settings.fit,
         label: &name,
+        sample_scales,
     };
     let n_measurements = weighting.first().map_or(0, Resampled::len);
     let widest = (t_max + 1).saturating_sub(settings.t_min.from);

@@ -255,11 +255,15 @@ pub fn run_with_progress(
             )?),
         };
         let weighting = jackknife.as_deref().unwrap_or(&corr);
+        // Every resample's fit weights its points by the spread of its own bins.
+        let scales: Vec<Vec<f64>> = (0..series.n_t)
+            .map(|t| plan.sample_error_scales(series.re_at(t)))
+            .collect();
         let mut local = frames::momentum_settings(p, settings);
         if let (Some(rest), Some(width)) = (&rest_gap, settings.rest_frame_gap_width) {
             local.priors.first_log_gap = frames::carried_gap_prior(p, rest, width, settings);
         }
-        match fit_correlator(p, &corr, weighting, &local, &mut warnings) {
+        match fit_correlator(p, &corr, weighting, Some(&scales), &local, &mut warnings) {
             Ok(s) => {
                 if p == [0, 0, 0] {
                     rest_gap = frames::rest_gap(&s);

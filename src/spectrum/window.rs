@@ -143,6 +143,9 @@ pub(crate) struct WindowSpec<'a> {
     pub fit: &'a FitSettings,
     /// What to call the correlator in messages.
     pub label: &'a str,
+    /// Per time slice and resample, the factor by which that resample's errors differ from
+    /// the central data's (see [`super::fit_correlator`]); `None`: frozen weights.
+    pub sample_scales: Option<&'a [Vec<f64>]>,
 }
 
 fn effective_kind(form: Form) -> EffectiveMassKind {
@@ -223,10 +226,19 @@ pub(crate) fn fit_window(
         ));
     }
     let n_s = window[0].len();
+    let window_scales = spec.sample_scales.and_then(|s| s.get(t_min..=t_max));
     let samples: Vec<FitReport> = (0..n_s)
         .into_par_iter()
         .map(|s| {
             let y: Vec<f64> = window.iter().map(|c| c.samples[s]).collect();
+            let own = window_scales.map(|scales| {
+                let f: Vec<f64> = scales
+                    .iter()
+                    .map(|t| t.get(s).copied().unwrap_or(1.0))
+                    .collect();
+                w.rescaled(&f)
+            });
+            let w = own.as_ref().unwrap_or(w);
             nonlinear::fit_without_covariance(&model, &y, w, &priors, &central.params, spec.fit)
         })
         .collect();

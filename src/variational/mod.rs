@@ -126,7 +126,7 @@ pub fn run(
             .iter()
             .enumerate()
             .map(
-                |(k, c)| match fit_correlator(p, c, c, &fit_settings, &mut warnings) {
+                |(k, c)| match fit_correlator(p, c, c, None, &fit_settings, &mut warnings) {
                     Ok(s) => Some(s),
                     Err(e) => {
                         warnings.push(format!("{name}: GEVP state {k} not fitted: {e}"));

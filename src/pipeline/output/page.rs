@@ -249,7 +249,11 @@ fn autocorrelation(tables: &Tables, figures: &[Rendered]) -> Section {
              run's bin size; bins should span about 2 tau_int (column bins_long_enough). The \
              binning study (binning_study.csv, and the figure) shows the error of each mean \
              against the bin size: it levels off near sqrt(2 tau_int) times the unbinned error \
-             once bins are long enough."
+             once bins are long enough. The last rows give tau_int of the binned data, pooled \
+             over every time series of each table (n_configs is then the number of bins); \
+             where it exceeds 1/2 the bins are still autocorrelated, and the note says whether \
+             every resampled deviation was inflated by sqrt(2 tau_int) for it \
+             (resampling.autocorrelation_inflation)."
                 .to_string(),
         ),
         Block::Table(readable(tables.get(TableName::Autocorrelation))),

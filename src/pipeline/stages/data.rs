@@ -11,6 +11,7 @@ use crate::pipeline::spec::ResamplingMethod;
 use crate::resample::autocorr::AutocorrResult;
 use crate::resample::autocorr_check;
 use crate::resample::binning::{bin_threept, bin_twopt};
+use crate::resample::inflation;
 use crate::resample::ResamplePlan;
 use crate::Result;
 
@@ -44,8 +45,20 @@ pub(in crate::pipeline) fn read_and_resample(
         rec.warn(w);
     }
     // Each unbinned table is dropped as soon as its binned copy exists (lower peak memory).
-    let (two, report) = bin_twopt(&{ two }, b)?;
-    let (three, _) = bin_threept(&{ three }, b)?;
+    let (mut two, report) = bin_twopt(&{ two }, b)?;
+    let (mut three, _) = bin_threept(&{ three }, b)?;
+    let binned_autocorrelation = inflation::measure(&two, &three);
+    let decision = inflation::decide(
+        &binned_autocorrelation,
+        spec.resampling.autocorrelation_inflation,
+        b,
+    );
+    if let Some(f) = decision.factor {
+        inflation::inflate_all(&mut two, &mut three, f);
+    }
+    if let Some(m) = decision.message {
+        rec.warn(m);
+    }
     if !report.dropped_configs.is_empty() {
         rec.warn(format!(
             "binning by {b} dropped the last {} configuration(s): {}",
@@ -72,6 +85,8 @@ pub(in crate::pipeline) fn read_and_resample(
         dropped_by_binning: report.dropped_configs,
         notes,
         autocorrelation,
+        binned_autocorrelation,
+        inflation: decision.factor,
         input_digests,
     };
     let prepared = Prepared {

@@ -9,7 +9,9 @@ use crate::Result;
 
 /// `autocorrelation`: per representative point, `tau_int` (Gamma method) with its error and
 /// window, the naive error of the mean, the Gamma-method error, the binned error at the run's
-/// bin size, and whether those bins span about `2 tau_int`.
+/// bin size, and whether those bins span about `2 tau_int`; then one row per table for
+/// `tau_int` of the binned data pooled over all its time series
+/// ([`crate::resample::inflation`]), with the inflation applied for it in the note.
 pub(super) fn autocorrelation(name: &str, results: &RunResults) -> Result<Table> {
     let mut t = Table::new(
         name,
@@ -73,7 +75,60 @@ pub(super) fn autocorrelation(name: &str, results: &RunResults) -> Result<Table>
             Cell::Text(note),
         ])?;
     }
+    binned_rows(&mut t, d)?;
     Ok(t)
+}
+
+/// The rows of the binned tables' pooled `tau_int`: `bins_long_enough` is "no" when it
+/// exceeds 1/2 by more than its error.
+fn binned_rows(t: &mut Table, d: &crate::pipeline::results::DataSummary) -> Result<()> {
+    let b = &d.binned_autocorrelation;
+    for (table, r) in [("two-point", &b.twopt), ("three-point", &b.threept)] {
+        let inflated = d
+            .inflation
+            .map(|f| format!("resampled deviations inflated by {f:.4}"));
+        let (tau, tau_err, window, enough, n, note) = match r {
+            Ok(r) => (
+                float(r.tau_int),
+                float(r.tau_int_error),
+                Cell::from(r.window),
+                if r.tau_int - r.tau_int_error > 0.5 {
+                    "no"
+                } else {
+                    "yes"
+                },
+                Cell::from(r.n),
+                [Some(format!("{} time series pooled", r.chains)), inflated]
+                    .into_iter()
+                    .flatten()
+                    .chain(r.warnings.iter().cloned())
+                    .collect::<Vec<_>>()
+                    .join("; "),
+            ),
+            Err(e) => (
+                opt(None),
+                opt(None),
+                Cell::Text(String::new()),
+                "unknown",
+                Cell::from(d.n_bins),
+                e.clone(),
+            ),
+        };
+        t.push_row(vec![
+            Cell::Text(format!("binned {table} data")),
+            n,
+            tau,
+            tau_err,
+            window,
+            opt(None),
+            opt(None),
+            Cell::from(d.bin_size),
+            opt(None),
+            Cell::from(enough),
+            Cell::Text(note),
+        ])?;
+    }
+    Ok(())
 }
 
 /// `binning_study`: per representative point and bin size, the number of bins, the naive
