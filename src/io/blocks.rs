@@ -70,6 +70,13 @@ impl<K> LocalKeys<K> {
     }
 }
 
+/// Append `label` to a channel-key encoding, length first (so no two label lists share an
+/// encoding).
+pub(crate) fn push_label(enc: &mut Vec<u8>, label: &str) {
+    enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
+    enc.extend_from_slice(label.as_bytes());
+}
+
 /// A table's row parser, run on any thread.
 pub(crate) trait RowParser: Sync {
     /// The channel key.

@@ -4,7 +4,7 @@
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::blocks::{open_rows, LocalKeys, ParsedRow, RowParser};
+use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
 use super::row::Row;
@@ -255,14 +255,11 @@ impl Parser {
             Some(Diagram::Connected) => 1,
             Some(Diagram::Disconnected) => 2,
         });
-        enc.extend_from_slice(&(flavor.len() as u32).to_le_bytes());
-        enc.extend_from_slice(flavor.as_bytes());
+        push_label(&mut enc, flavor);
         let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
         if let Some((a, b)) = ops {
-            for label in [a, b] {
-                enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
-                enc.extend_from_slice(label.as_bytes());
-            }
+            push_label(&mut enc, a);
+            push_label(&mut enc, b);
         }
         Ok(keys.id(&enc, || ThreePointKey {
             tsep,

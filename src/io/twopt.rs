@@ -4,7 +4,7 @@
 //! `t = 0..T-1` for every configuration.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::blocks::{open_rows, LocalKeys, ParsedRow, RowParser};
+use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
 use super::row::Row;
@@ -169,14 +169,11 @@ impl Parser {
         } else {
             ""
         };
-        enc.extend_from_slice(&(smear.len() as u32).to_le_bytes());
-        enc.extend_from_slice(smear.as_bytes());
+        push_label(&mut enc, smear);
         let ops = rd.operators(SINK_OP, SOURCE_OP, SCHEMA)?;
         if let Some((a, b)) = ops {
-            for label in [a, b] {
-                enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
-                enc.extend_from_slice(label.as_bytes());
-            }
+            push_label(&mut enc, a);
+            push_label(&mut enc, b);
         }
         Ok(keys.id(&enc, || TwoPointKey {
             momentum,

@@ -16,13 +16,7 @@ use std::collections::BTreeMap;
 /// then of every derived quantity; `pin` fixes one estimator.
 pub fn final_results(results: &RunResults, pin: Option<Estimator>) -> Vec<FinalRow> {
     let mut out = Vec::new();
-    let mut shells: BTreeMap<(FormFactor, String), Vec<usize>> = BTreeMap::new();
-    for (i, r) in results.form_factors.iter().enumerate() {
-        shells
-            .entry((r.form_factor, r.shell.clone()))
-            .or_default()
-            .push(i);
-    }
+    let shells = shells(results);
     let mut ff_rows = Vec::new();
     for ((ff, shell), idx) in shells {
         let rows: Vec<_> = idx.iter().map(|&i| &results.form_factors[i]).collect();
@@ -112,13 +106,7 @@ pub struct ShellCheck {
 /// The cross-check of every form factor at every shell, ordered like the final values (by
 /// form factor, then Q²).
 pub fn formfactor_checks(results: &RunResults) -> Vec<ShellCheck> {
-    let mut shells: BTreeMap<(FormFactor, String), Vec<usize>> = BTreeMap::new();
-    for (i, r) in results.form_factors.iter().enumerate() {
-        shells
-            .entry((r.form_factor, r.shell.clone()))
-            .or_default()
-            .push(i);
-    }
+    let shells = shells(results);
     let mut out: Vec<ShellCheck> = shells
         .into_iter()
         .map(|((form_factor, shell), idx)| {
@@ -141,4 +129,16 @@ pub fn formfactor_checks(results: &RunResults) -> Vec<ShellCheck> {
         (a.form_factor.name().cmp(b.form_factor.name())).then(a.q2.total_cmp(&b.q2))
     });
     out
+}
+
+/// The indices of `results.form_factors` per form factor and shell.
+fn shells(results: &RunResults) -> BTreeMap<(FormFactor, String), Vec<usize>> {
+    let mut shells: BTreeMap<(FormFactor, String), Vec<usize>> = BTreeMap::new();
+    for (i, r) in results.form_factors.iter().enumerate() {
+        shells
+            .entry((r.form_factor, r.shell.clone()))
+            .or_default()
+            .push(i);
+    }
+    shells
 }
