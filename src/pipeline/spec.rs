@@ -193,7 +193,7 @@ pub struct ResamplingSpec {
     /// Autocorrelation left in the bins: its tau_int is measured on the binned data (Gamma
     /// method, pooled over every time slice of every channel) and every resampled deviation
     /// is inflated by sqrt(2 tau_int) when it exceeds 1/2 by more than its error (`auto`),
-    /// whenever it exceeds 1/2 (`always`), or `never`.
+    /// whenever it exceeds 1/2 (`always`, the default), or `never`.
     #[serde(default)]
     pub autocorrelation_inflation: crate::resample::inflation::Inflation,
 }

@@ -18,15 +18,16 @@
 //! `sqrt(2 τ_int)` (common practice for autocorrelated data; [`inflate`] scales each bin's
 //! deviation from its time slice's mean, which scales every jackknife and bootstrap deviation
 //! of every quantity computed from the data by the same factor) when `τ_int` exceeds 1/2 by
-//! more than its error (`auto`), whenever it exceeds 1/2 (`always`), or never.
+//! more than its error (`auto`), whenever it exceeds 1/2 (`always`, the default), or never.
 
 use super::autocorr::{pooled_gamma_method, PooledAutocorr, DEFAULT_S};
 use crate::data::{Series, ThreePointData, TwoPointData};
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-/// Above this `sqrt(2 τ_int)` a `τ_int` that is not significant is still mentioned under
-/// `auto` (errors 5 % short; a pooled estimate of independent data stays well below it).
+/// Above this `sqrt(2 τ_int)` a `τ_int` that is not significant is still mentioned (under
+/// `auto`: errors 5 % short; under `always`: inflated by more than 5 %); a pooled estimate of
+/// independent data stays well below it.
 const POSSIBLE: f64 = 1.05;
 
 /// When the resampled deviations are inflated for autocorrelation left in the bins
@@ -36,9 +37,10 @@ const POSSIBLE: f64 = 1.05;
 pub enum Inflation {
     /// Inflate by `sqrt(2 tau_int)` when `tau_int` of the binned data exceeds 1/2 by more
     /// than its error.
-    #[default]
     Auto,
-    /// Inflate by `sqrt(2 tau_int)` whenever `tau_int` of the binned data exceeds 1/2.
+    /// Inflate by `sqrt(2 tau_int)` whenever `tau_int` of the binned data exceeds 1/2 (the
+    /// default: a few dozen bins rarely make the excess significant, yet it is real).
+    #[default]
     Always,
     /// Never inflate (a warning still says when `auto` would have).
     Never,
@@ -131,14 +133,16 @@ pub fn decide(measured: &BinnedAutocorrelation, mode: Inflation, bin_size: usize
          {:.2} (Gamma method on the {} bins, pooled over the {} time series of the {table} table)",
         r.tau_int, r.tau_int_error, r.n, r.chains
     );
-    let message = if inflate {
+    // A factor within a few per cent of 1 is what independent bins give half the time: it is
+    // applied and written to autocorrelation.csv, but not worth a warning.
+    let message = if inflate && (significant || factor > POSSIBLE) {
         Some(format!(
             "autocorrelation: {what}; every resampled deviation is inflated by sqrt(2 tau_int) = \
              {factor:.3} (resampling.autocorrelation_inflation: {}); larger bins would make \
              this unnecessary",
             mode.name()
         ))
-    } else if significant {
+    } else if significant && !inflate {
         Some(format!(
             "autocorrelation: {what}; errors are short by about sqrt(2 tau_int) = {factor:.3}; \
              set resampling.autocorrelation_inflation: auto, or use larger bins"
