@@ -730,11 +730,23 @@ fn summation_with_one_separation_is_an_error() {
     // The channel analysis still runs (plateau as final method), noting the skipped methods.
     let s = RatioSettings {
         final_method: Estimator::Plateau { tsep: None },
-        ..settings
+        ..settings.clone()
     };
-    let r = analyse_channel(ratio, &BTreeMap::new(), &s).unwrap();
+    let r = analyse_channel(ratio.clone(), &BTreeMap::new(), &s).unwrap();
     assert_eq!(r.notes.len(), 2, "{:?}", r.notes);
     assert!(r.summation.is_none() && r.two_state.is_none());
+    // With the two-state fit as final method (the default) the channel does not stop the run:
+    // the plateau stands in for its final estimate, and a note says so.
+    assert_eq!(settings.final_method, Estimator::TwoState);
+    let r = analyse_channel(ratio, &BTreeMap::new(), &settings).unwrap();
+    assert_eq!(r.final_method, Estimator::plateau_at(8));
+    assert_eq!(r.final_estimate, r.plateaus[0].fit.value);
+    assert_eq!(r.notes.len(), 3, "{:?}", r.notes);
+    assert!(
+        r.notes[2].contains("`two_state` could not run") && r.notes[2].contains("plateau"),
+        "{:?}",
+        r.notes
+    );
 }
 
 #[test]
@@ -755,7 +767,7 @@ fn tau_cut_that_leaves_no_points_is_an_error() {
         "{msg}"
     );
     let msg = analysis_message(analyse_channel(ratio, &BTreeMap::new(), &settings).unwrap_err());
-    assert!(msg.contains("could not run"), "{msg}");
+    assert!(msg.contains("no excited-state method could run"), "{msg}");
 }
 
 #[test]

@@ -1,7 +1,9 @@
 //! The per-channel driver: plateau at every `tsep`, summation, two-state, cross-check and the
 //! final estimate chosen by the `final_method` [`Estimator`]. A method that cannot run on a channel (one
-//! separation only, no two-point parameters, ...) is skipped with a note; only the method that
-//! feeds the final result is required.
+//! separation only, no two-point parameters, a fit that does not converge, ...) is skipped with
+//! a note; a channel is an error only when no method runs. When the `final_method` is among the
+//! skipped, the next of two-state, summation and plateau stands in for the channel's final
+//! estimate (its ratio plot), with a note.
 
 use super::crosscheck::{cross_check, CrossCheckRow};
 use super::plateau::{plateau, PlateauFit};
@@ -61,15 +63,13 @@ pub fn analyse_channel(
         .map_err(|e| notes.push(e.to_string()))
         .ok();
     let crosscheck = cross_check(&plateaus, summation.as_ref(), two_state.as_ref());
-    let chosen = pick(&plateaus, &summation, &two_state, settings.final_method)
-        .map(|(method, fit)| (method, fit.value.clone()));
-    let Some((final_method, final_estimate)) = chosen else {
+    let Some((final_method, fit)) = choose(&plateaus, &summation, &two_state, settings, &mut notes)
+    else {
         return Err(Error::analysis(
             STAGE,
             format!(
-                "channel {}: the final method `{}` could not run ({})",
+                "channel {}: no excited-state method could run ({})",
                 ratio.key,
-                settings.final_method,
                 if notes.is_empty() {
                     "no data".to_string()
                 } else {
@@ -78,6 +78,7 @@ pub fn analyse_channel(
             ),
         ));
     };
+    let final_estimate = fit.value.clone();
     Ok(ChannelResult {
         key: ratio.key.clone(),
         ratio,
@@ -89,6 +90,36 @@ pub fn analyse_channel(
         final_estimate,
         notes,
     })
+}
+
+/// The channel's final estimate: the `final_method`'s, or, when it could not run on this
+/// channel (e.g. a two-state fit that did not converge), the first that did among two-state,
+/// summation and the plateau at the largest `tsep`, with a note saying so. The channel's
+/// other estimates are unaffected: each method's form factors use the channels it ran on.
+fn choose<'a>(
+    plateaus: &'a [PlateauFit],
+    summation: &'a Option<SummationFit>,
+    two_state: &'a Option<TwoStateFit>,
+    settings: &RatioSettings,
+    notes: &mut Vec<String>,
+) -> Option<(Estimator, &'a ReImFit)> {
+    let wanted = settings.final_method;
+    if let Some(found) = pick(plateaus, summation, two_state, wanted) {
+        return Some(found);
+    }
+    let fallback = [
+        Estimator::TwoState,
+        Estimator::Summation,
+        Estimator::Plateau { tsep: None },
+    ]
+    .into_iter()
+    .find_map(|e| pick(plateaus, summation, two_state, e))?;
+    notes.push(format!(
+        "the final method `{wanted}` could not run, so `{}` stands in for it in this \
+         channel's ratio plot",
+        fallback.0
+    ));
+    Some(fallback)
 }
 
 /// The fit of estimator `e` among a channel's fits, made concrete (`plateau`: the largest
