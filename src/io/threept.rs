@@ -4,7 +4,7 @@
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser};
+use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser, ValueColumns};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
 use super::row::Row;
@@ -172,22 +172,12 @@ impl RowParser for Parser {
                 message: format!("tau = {tau} lies outside [0, tsep] = [0, {tsep}]"),
             });
         }
-        let re = rd.float(RE, SCHEMA)?;
-        let im = rd.float(IM, SCHEMA)?;
-        let source = if self.with_source {
-            Some(rd.int(SOURCE, SCHEMA)?)
-        } else {
-            None
+        let cols = ValueColumns {
+            re: RE,
+            im: IM,
+            source: self.with_source.then_some(SOURCE),
         };
-        Ok(ParsedRow {
-            key,
-            t: tau,
-            config,
-            source,
-            re,
-            im,
-            line: rd.line,
-        })
+        ParsedRow::read(rd, (key, tau, config), &cols, SCHEMA)
     }
 }
 

@@ -4,7 +4,7 @@
 //! `t = 0..T-1` for every configuration.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser};
+use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser, ValueColumns};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
 use super::row::Row;
@@ -133,22 +133,12 @@ impl RowParser for Parser {
         let config = rd.int(CONFIG, SCHEMA)?;
         let key = cache.channel_id(rd, &KEY_COLUMNS, || self.channel_key(rd, keys))?;
         let t = rd.time(T, SCHEMA)?;
-        let re = rd.float(RE, SCHEMA)?;
-        let im = rd.float(IM, SCHEMA)?;
-        let source = if self.with_source {
-            Some(rd.int(SOURCE, SCHEMA)?)
-        } else {
-            None
+        let cols = ValueColumns {
+            re: RE,
+            im: IM,
+            source: self.with_source.then_some(SOURCE),
         };
-        Ok(ParsedRow {
-            key,
-            t,
-            config,
-            source,
-            re,
-            im,
-            line: rd.line,
-        })
+        ParsedRow::read(rd, (key, t, config), &cols, SCHEMA)
     }
 }
 
