@@ -375,8 +375,10 @@ fn check_figures_and_page(name: &str, out: &Path) {
         assert!(p.contains("-p"), "{name}: {p}");
     }
     // The final-value rule of docs/methods.md §4: next to the summation and two-state results
-    // the plateaus carry no weight, and the excited-state error of a form factor at a shell is
-    // the full difference between those two (also when the cross-check left one out).
+    // the value is the two-state result (the only variant with weight) and the excited-state
+    // error of a form factor at a shell is sqrt(max(0, d² - σ_d²)) with d the difference of
+    // the two; since σ_d ≤ σ_s + σ_t (triangle inequality), it lies between
+    // sqrt(max(0, d² - (σ_s + σ_t)²)) and |d|.
     let variants = read_rows(&out.join("final_variants.csv"));
     let mut checked = 0;
     for f in read_rows(&out.join("final.csv")) {
@@ -394,10 +396,16 @@ fn check_figures_and_page(name: &str, out: &Path) {
         if !diff.is_finite() {
             continue;
         }
+        let exc = num(&f, "error_excited_states");
+        let noise = num(s, "error") + num(t, "error");
+        let lower = (diff * diff - noise * noise).max(0.0).sqrt();
         assert!(
-            (num(&f, "error_excited_states") - diff).abs() <= 1e-12 * (1.0 + diff),
+            exc <= diff * (1.0 + 1e-12) && exc >= lower * (1.0 - 1e-12),
             "{name}: {f:?}"
         );
+        assert_eq!(num(t, "weight"), 1.0, "{name}: {f:?}");
+        assert_eq!(num(s, "weight"), 0.0, "{name}: {f:?}");
+        assert_eq!(num(&f, "value"), num(t, "value"), "{name}: {f:?}");
         assert!(
             variants
                 .iter()

@@ -282,9 +282,9 @@ pub enum Plot {
     Binning,
 }
 
-/// How the final numbers are made: by default an equal-weight average over every estimator
-/// and Q² model the run computed, their spread quoted as systematic errors; `pin` fixes one
-/// estimator instead.
+/// How the final numbers are made: by default the two-state result (else summation, else
+/// plateaus) averaged over the Q² models, the differences quoted as systematic errors
+/// (`error_budget`); `pin` fixes one estimator instead.
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FinalValueSpec {

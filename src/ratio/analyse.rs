@@ -3,7 +3,8 @@
 //! separation only, no two-point parameters, a fit that does not converge, ...) is skipped with
 //! a note; a channel is an error only when no method runs. When the `final_method` is among the
 //! skipped, the next of two-state, summation and plateau stands in for the channel's final
-//! estimate (its ratio plot), with a note.
+//! estimate (its ratio plot), with a note; a final method that runs on no channel at all is an
+//! error (a setting that does not fit the data).
 
 use super::crosscheck::{cross_check, CrossCheckRow};
 use super::plateau::{plateau, PlateauFit};
@@ -199,8 +200,30 @@ pub fn analyse_all_with_progress(
             out
         })
         .collect();
-    results
+    let channels: BTreeMap<ChannelKey, ChannelResult> = results
         .into_iter()
         .map(|r| r.map(|c| (c.key.clone(), c)))
-        .collect()
+        .collect::<Result<_>>()?;
+    final_method_ran_somewhere(&channels, settings.final_method)?;
+    Ok(channels)
+}
+
+/// A final method that could run on no channel at all is a setting that does not fit the
+/// data (e.g. `summation` with one separation), not a channel's accident: an error that says
+/// why, with the first channel's reason.
+fn final_method_ran_somewhere(
+    channels: &BTreeMap<ChannelKey, ChannelResult>,
+    wanted: Estimator,
+) -> Result<()> {
+    if channels.is_empty() || channels.values().any(|c| wanted.selects(c.final_method)) {
+        return Ok(());
+    }
+    let first = channels.values().next().map(|c| c.notes.join("; "));
+    Err(Error::analysis(
+        STAGE,
+        format!(
+            "the final method `{wanted}` could not run on any channel ({})",
+            first.unwrap_or_default()
+        ),
+    ))
 }

@@ -138,18 +138,15 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
         ));
     };
     let rule = match &first.budget.rule {
-        crate::error_budget::Rule::EqualWeights => format!(
-            "Each value is an equal-weight average of the summation and two-state results \
-             (over the Q² models too), written value(stat)(sys); the plateaus are shown as a \
-             check of the trend in tsep and carry weight only when neither of the others \
-             exists. The systematic error adds in quadrature the full difference between \
-             the summation and two-state results (exc), the spread of the plateau \
-             separations when plateaus make the value (fit), the spread of the Q² models \
-             (model) and the renormalization error (Z). A summation result more than {} sigma \
-             from the two-state result is left out of the value but still counts in the \
-             excited-state error; final_variants.csv lists every variant with its weight.",
-            crate::error_budget::CROSSCHECK_SIGMA
-        ),
+        crate::error_budget::Rule::Reference => "Each value is the two-state result (the \
+             summation result where there is no two-state fit), averaged with equal weights \
+             over the Q² models, written value(stat)(sys); the summation result and the \
+             plateaus are checks. The systematic error adds in quadrature the part of the \
+             summation − two-state difference that its own statistical error does not \
+             explain (exc), the spread of the plateau separations when plateaus make the value \
+             (fit), the spread of the Q² models (model) and the renormalization error (Z); \
+             final_variants.csv lists every variant with its weight or why it has none."
+            .to_string(),
         crate::error_budget::Rule::Pinned(e) => format!(
             "The final values are pinned to the {e} estimator (final_value.pin); the \
              systematic error holds only the Q² model spread and the renormalization error."
