@@ -80,7 +80,7 @@ pub enum Rule {
 impl std::fmt::Display for Rule {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
-            Rule::Reference => f.write_str("reference estimator, equal-weight models"),
+            Rule::Reference => f.write_str("two-state (else summation) value, Q² models averaged"),
             Rule::Pinned(e) => write!(f, "pinned to {e}"),
         }
     }

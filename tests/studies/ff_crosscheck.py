@@ -14,19 +14,12 @@ import statistics
 import sys
 
 import yaml
+from mock_truth import shell_truth
 
 
 def truth_values(path):
     with open(path) as f:
-        truth = yaml.safe_load(f)
-    out = {}
-    for p in truth["points"]:
-        if p["pf"] != [0, 0, 0]:
-            continue
-        nq2 = sum(c * c for c in p["q"])
-        for name, v in p["form_factors"].items():
-            out.setdefault((name, nq2), v)
-    return out
+        return shell_truth(yaml.safe_load(f))
 
 
 def rows(work):

@@ -17,46 +17,8 @@
 # release build). Needs python3 with PyYAML.
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
-root=$(cd "$here/../.." && pwd)
-bin=${1:-$root/target/release/formfactory}
-n=${2:-10}
-configs=${3:--}
-spec=${4:-$root/demo-data/nucleon.mock.yaml}
-base=${5:-9000}
-if [ -n "${FF_KEEP:-}" ]; then
-    work=$FF_KEEP
-    rm -rf "$work"
-    mkdir -p "$work"
-else
-    work=$(mktemp -d /tmp/ff-xcheck.XXXXXX)
-    trap 'rm -rf "$work"' EXIT
-fi
-extra=""
-for s in ${FF_SET:-}; do
-    extra="$extra --set $s"
-done
-
-seed=1
-while [ "$seed" -le "$n" ]; do
-    d="$work/s$seed"
-    mkdir -p "$d"
-    if [ "$configs" = "-" ]; then
-        sed -e "s/^seed: .*/seed: $((base + seed))/" \
-            -e '/currents: \[A1, A2, A3, A4\]/d' "$spec" >"$d/spec.yaml"
-    else
-        sed -e "s/^seed: .*/seed: $((base + seed))/" \
-            -e "s/^  configs: .*/  configs: $configs/" \
-            -e '/currents: \[A1, A2, A3, A4\]/d' "$spec" >"$d/spec.yaml"
-    fi
-    "$bin" mock "$d/spec.yaml" --out "$d/data" >/dev/null
-    # shellcheck disable=SC2086 # $extra is a list of arguments
-    if "$bin" run "$root/pipelines/nucleon-vector.yaml" --out "$d/run" --quiet \
-        --set "data.twopt=$d/data/twopt.csv" --set "data.threept=$d/data/threept.csv" \
-        --set "output.plots=[]" $extra >/dev/null 2>"$d/err"; then
-        :
-    else
-        echo "seed $seed: run failed: $(head -c 300 "$d/err")" >&2
-    fi
-    seed=$((seed + 1))
-done
+n_default=10
+prefix=ff-xcheck
+# shellcheck source=tests/studies/nucleon_seeds.sh
+. "$here/nucleon_seeds.sh"
 python3 "$here/ff_crosscheck.py" "$work"

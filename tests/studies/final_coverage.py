@@ -14,16 +14,11 @@ import os
 import sys
 
 import yaml
+from mock_truth import shell_truth
 
 
 def truth_values(truth, spec):
-    out = {}
-    for p in truth["points"]:
-        if p["pf"] != [0, 0, 0]:
-            continue
-        nq2 = sum(c * c for c in p["q"])
-        for name, v in p["form_factors"].items():
-            out.setdefault((name, nq2), v)
+    out = shell_truth(truth)
     a = truth["lattice"]["a_fm"]
     ffs = spec["form_factors"]
     out[("GE(0)", None)] = out[("GE", 0)]

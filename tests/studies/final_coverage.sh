@@ -18,46 +18,8 @@
 # PyYAML.
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
-root=$(cd "$here/../.." && pwd)
-bin=${1:-$root/target/release/formfactory}
-n=${2:-20}
-configs=${3:--}
-spec=${4:-$root/demo-data/nucleon.mock.yaml}
-if [ -n "${FF_KEEP:-}" ]; then
-    work=$FF_KEEP
-    rm -rf "$work"
-    mkdir -p "$work"
-else
-    work=$(mktemp -d /tmp/ff-coverage.XXXXXX)
-    trap 'rm -rf "$work"' EXIT
-fi
-extra=""
-for s in ${FF_SET:-}; do
-    extra="$extra --set $s"
-done
-
-seed=1
-while [ "$seed" -le "$n" ]; do
-    d="$work/s$seed"
-    mkdir -p "$d"
-    # the spec with another seed and ensemble size, without axial insertions
-    if [ "$configs" = "-" ]; then
-        sed -e "s/^seed: .*/seed: $((9000 + seed))/" \
-            -e '/currents: \[A1, A2, A3, A4\]/d' "$spec" >"$d/spec.yaml"
-    else
-        sed -e "s/^seed: .*/seed: $((9000 + seed))/" \
-            -e "s/^  configs: .*/  configs: $configs/" \
-            -e '/currents: \[A1, A2, A3, A4\]/d' "$spec" >"$d/spec.yaml"
-    fi
-    "$bin" mock "$d/spec.yaml" --out "$d/data" >/dev/null
-    # shellcheck disable=SC2086 # $extra is a list of arguments
-    if "$bin" run "$root/pipelines/nucleon-vector.yaml" --out "$d/run" --quiet \
-        --set "data.twopt=$d/data/twopt.csv" --set "data.threept=$d/data/threept.csv" \
-        --set "output.plots=[]" $extra >/dev/null 2>"$d/err"; then
-        :
-    else
-        echo "seed $seed: run failed: $(head -c 300 "$d/err")" >&2
-    fi
-    seed=$((seed + 1))
-done
+n_default=20
+prefix=ff-coverage
+# shellcheck source=tests/studies/nucleon_seeds.sh
+. "$here/nucleon_seeds.sh"
 python3 "$here/final_coverage.py" "$work"
