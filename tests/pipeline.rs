@@ -349,6 +349,17 @@ fn check_figures_and_page(name: &str, out: &Path) {
     }
     let page = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(!page.contains("6.661338147750939e-15"), "{name}");
+    // Issue 11 item 1: every z-expansion's prior and its kmax + 1 refit are on the page.
+    let pipeline = std::fs::read_to_string(repo_root().join(format!("pipelines/{name}.yaml")))
+        .unwrap_or_default();
+    if pipeline.contains("z-expansion") {
+        assert!(
+            page.contains("<caption>z_expansion_choices</caption>")
+                && page.contains("N(0, ")
+                && page.contains("kmax + 1"),
+            "{name}: no z-expansion prior or kmax study on the page"
+        );
+    }
     if name == "excited-state-study" {
         // stop_after: ratio shows the cross-check, not empty form-factor tables
         assert!(page.contains("<caption>crosscheck</caption>"), "{name}");
