@@ -799,16 +799,33 @@ mod decomposition {
             .filter(|c| c.projector == Projector::Pol(3))
             .cloned()
             .collect();
-        let d = decompose(&pol3, &st, &DecompositionSettings::default()).expect("runs");
-        assert!(d.shells.iter().all(|s| s.form_factors.is_empty()), "{d:?}");
-        assert_eq!(d.skipped.len(), 1, "{d:?}");
-        let reason = &d.skipped[0].reason;
-        assert!(
-            reason.contains("GA")
-                && reason.contains("GP")
-                && reason.contains("q direction or projector"),
-            "{reason}"
-        );
+        // With fitted energies the A3 and A4 rows are proportional only up to the energies'
+        // noise: here 0.3 % above the continuum value at |n|^2 = 1 (a fitted energy a few
+        // tenths of a sigma off), which before the on-shell rank left a condition number of
+        // a few hundred and reported G_A and G_P from the noise (issue 11 item 2, the
+        // nucleon-axial demo: G_A = 1.7(118), G_P = 20(166) at this shell).
+        let mut map = std::collections::BTreeMap::new();
+        for p in all_momenta(1) {
+            let pv = lattice_momentum(p, L, [0.0; 3]);
+            let off = if p == [0, 0, 0] { 1.0 } else { 1.003 };
+            map.insert(p, st.mass.map(|m| off * continuum_energy(m, pv)));
+        }
+        let off_shell = KinematicSetup {
+            energies: Energies::Fitted(map),
+            ..st.clone()
+        };
+        for setup in [&st, &off_shell] {
+            let d = decompose(&pol3, setup, &DecompositionSettings::default()).expect("runs");
+            assert!(d.shells.iter().all(|s| s.form_factors.is_empty()), "{d:?}");
+            assert_eq!(d.skipped.len(), 1, "{d:?}");
+            let reason = &d.skipped[0].reason;
+            assert!(
+                reason.contains("GA")
+                    && reason.contains("GP")
+                    && reason.contains("q direction or projector"),
+                "{reason}"
+            );
+        }
         let both: Vec<ChannelValue> = all
             .iter()
             .filter(|c| matches!(c.projector, Projector::Pol(1) | Projector::Pol(3)))

@@ -349,6 +349,17 @@ fn check_figures_and_page(name: &str, out: &Path) {
     }
     let page = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(!page.contains("6.661338147750939e-15"), "{name}");
+    // Issue 11 item 1: every z-expansion's prior and its kmax + 1 refit are on the page.
+    let pipeline = std::fs::read_to_string(repo_root().join(format!("pipelines/{name}.yaml")))
+        .unwrap_or_default();
+    if pipeline.contains("z-expansion") {
+        assert!(
+            page.contains("<caption>z_expansion_choices</caption>")
+                && page.contains("N(0, ")
+                && page.contains("kmax + 1"),
+            "{name}: no z-expansion prior or kmax study on the page"
+        );
+    }
     if name == "excited-state-study" {
         // stop_after: ratio shows the cross-check, not empty form-factor tables
         assert!(page.contains("<caption>crosscheck</caption>"), "{name}");
@@ -465,6 +476,29 @@ fn demo_runs_recover_the_mock_truth() {
         (num(&f0, "value") - 1.0).abs() <= 2.0 * num(&f0, "error_total"),
         "{f0:?}"
     );
+    // Issue 11 item 2: the nucleon-axial demo's shell q = (0,0,1) with only the pol3
+    // projector determines one combination of G_A and G_P on shell (its A3 and A4 rows are
+    // proportional, methods §5 check values); no estimator reports a value from it, and the
+    // run says which shell and what it needs.
+    let axial = dir.path().join("nucleon-axial");
+    let singular = "nf2=0 ni2=1 nq2=1";
+    let rows = read_rows(&axial.join("formfactors.csv"));
+    assert!(rows.iter().any(|r| r["form_factor"] == "GA"));
+    assert!(
+        rows.iter().all(|r| r["shell"] != singular),
+        "a value from the singular shell"
+    );
+    let manifest: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(axial.join("manifest.json")).unwrap())
+            .unwrap();
+    let warned = manifest["warnings"].as_array().is_some_and(|w| {
+        w.iter().filter_map(|x| x.as_str()).any(|x| {
+            x.contains("two_state")
+                && x.contains(singular)
+                && x.contains("needs another q direction or projector")
+        })
+    });
+    assert!(warned, "{}", manifest["warnings"]);
     // the axial charge from the z-expansion of the final method, against the truth's G_A(0)
     let derived = read_rows(&dir.path().join("nucleon-axial/derived.csv"));
     let ga0 = derived

@@ -2,12 +2,19 @@
 //! whose coefficients do not all vanish), whitened by the data covariance and solved by SVD
 //! on the central value and on every resample; form factors mixing with a direction the
 //! channels do not determine are left out.
+//!
+//! Which directions the channels determine is decided on on-shell kinematics (continuum
+//! energies `E = sqrt(m² + p²)` at the central mass), not on the fitted energies: rows that
+//! are proportional on shell (e.g. `A_3` and `A_4` with the `pol3` projector at `q = (0,0,1)`,
+//! sink at rest) differ at the fitted energies only by the energies' noise, which would leave
+//! a condition number of a few hundred and a meaningless solution above any fixed threshold.
+//! The numeric solve then keeps only as many singular directions as the on-shell system has.
 
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
 use crate::kinematics::factors::{coefficients, FormFactor};
-use crate::kinematics::momentum::q2_to_gev2;
+use crate::kinematics::momentum::{continuum_energy, q2_to_gev2};
 use crate::kinematics::setup::{at, KinematicSetup};
 use crate::kinematics::OnShell;
 use crate::resample::Resampled;
@@ -36,7 +43,8 @@ pub(super) fn solve_shell(
     let all = FormFactor::of(setup.hadron, kind);
     check_shell(members, kind, setup, all)?;
     let system = ShellSystem::new(members, setup, all, weights, phases)?;
-    let (g0, chi2, condition, determined, n_null) = system.solve(None)?;
+    let rank = system.on_shell_rank()?;
+    let (g0, chi2, condition, determined, n_null) = system.solve(None, rank)?;
     if !determined.iter().any(|d| *d) {
         return Err(format!(
             "the coefficient matrix is singular: the channels determine none of {} alone (needs another q direction or projector)",
@@ -45,7 +53,7 @@ pub(super) fn solve_shell(
     }
     let per_sample = (0..n)
         .into_par_iter()
-        .map(|s| system.solve(Some(s)).map(|(g, ..)| g))
+        .map(|s| system.solve(Some(s), rank).map(|(g, ..)| g))
         .collect::<Outcome<Vec<_>>>()?;
     let (form_factors, undetermined) = system.form_factors(&g0, &per_sample, &determined);
     let q2 = system.q2()?;
@@ -163,8 +171,46 @@ impl<'a> ShellSystem<'a> {
         Ok(k)
     }
 
-    /// The whitened system at sample `s` solved by SVD, singular directions cut.
-    fn solve(&self, s: Option<usize>) -> Outcome<Solved> {
+    /// The rank of the coefficient matrix on shell: continuum energies at the central mass,
+    /// each row scaled to unit length, singular values above [`SINGULAR_THRESHOLD`] of the
+    /// largest.
+    fn on_shell_rank(&self) -> Outcome<usize> {
+        let mass = self.setup.mass.central;
+        let mut k = DMatrix::zeros(self.rows.len(), self.unknowns.len());
+        let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
+        for &ci in &self.used {
+            let (mut on, _) = self.central[&ci].clone();
+            on.ef = continuum_energy(mass, on.pf);
+            on.ei = continuum_energy(mass, on.pi);
+            let c = self.members[ci];
+            let list = coefficients(self.setup.hadron, c.projector, c.current, &on);
+            cache.insert(ci, list.into_iter().map(|(_, v)| v).collect());
+        }
+        for (r, &(ci, imag)) in self.rows.iter().enumerate() {
+            let kc = &cache[&ci];
+            for (col, &j) in self.unknowns.iter().enumerate() {
+                let z = kc.get(j).copied().unwrap_or_default();
+                k[(r, col)] = if imag { z.im } else { z.re };
+            }
+            let norm = k.row(r).norm();
+            if norm > 0.0 {
+                k.row_mut(r).unscale_mut(norm);
+            }
+        }
+        if k.iter().any(|x| !x.is_finite()) {
+            return Err("the on-shell coefficients are not finite".into());
+        }
+        let sv = k.singular_values();
+        let smax = sv.max();
+        Ok(sv
+            .iter()
+            .filter(|v| **v > smax * SINGULAR_THRESHOLD)
+            .count())
+    }
+
+    /// The whitened system at sample `s` solved by SVD, singular directions cut: those below
+    /// [`SINGULAR_THRESHOLD`] of the largest and all beyond the `rank` largest.
+    fn solve(&self, s: Option<usize>, rank: usize) -> Outcome<Solved> {
         let k = self.matrix(s)?;
         let y = DVector::from_iterator(self.rows.len(), self.data.iter().map(|d| at(d, s)));
         let a = self.w.whiten_matrix(&k);
@@ -191,7 +237,9 @@ impl<'a> ShellSystem<'a> {
         if smax <= 0.0 {
             return Err("the coefficient matrix is zero".into());
         }
-        let cut = smax * SINGULAR_THRESHOLD;
+        let mut sorted: Vec<f64> = svd.singular_values.iter().copied().collect();
+        sorted.sort_by(|a, b| b.total_cmp(a));
+        let cut = (smax * SINGULAR_THRESHOLD).max(sorted.get(rank).copied().unwrap_or(0.0));
         let kept_min = svd
             .singular_values
             .iter()

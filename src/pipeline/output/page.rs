@@ -44,7 +44,7 @@ pub fn report_page(
     report.sections = [
         has_form_factors.then(|| final_results(results, tables, figures)),
         Some(overview(plan, results)),
-        has_form_factors.then(|| form_factors(tables, figures)),
+        has_form_factors.then(|| form_factors(results, tables, figures)),
         results
             .data
             .is_some()
@@ -201,14 +201,86 @@ fn formfactor_crosscheck_text(results: &RunResults) -> Block {
     ))
 }
 
-fn form_factors(tables: &Tables, figures: &[Rendered]) -> Section {
+fn form_factors(results: &RunResults, tables: &Tables, figures: &[Rendered]) -> Section {
     let mut blocks = figure_blocks(figures, &[Plot::FormFactors]);
     blocks.push(Block::Table(readable(tables.get(TableName::FormFactors))));
     let derived = tables.get(TableName::Derived);
     if !derived.rows.is_empty() {
         blocks.push(Block::Table(readable(derived)));
     }
+    blocks.extend(z_expansion_choices(results));
     section("Form factors", blocks)
+}
+
+/// Every z-expansion's prior and its `kmax + 1` refit side by side (docs/methods.md §6), so
+/// a reader sees how much the prior and the truncation decide.
+fn z_expansion_choices(results: &RunResults) -> Vec<Block> {
+    use crate::q2::Shape;
+    let mut t = Table::new(
+        "z_expansion_choices",
+        &[
+            "method",
+            "form_factor",
+            "model",
+            "prior",
+            "kmax",
+            "G0",
+            "G0_error",
+            "r2_fm2",
+            "r2_fm2_error",
+            "kmax_next",
+            "G0_next",
+            "G0_next_error",
+            "r2_next_fm2",
+            "r2_next_fm2_error",
+            "G0_shift_sigma",
+            "r2_shift_sigma",
+        ],
+    );
+    for f in &results.q2_fits {
+        let (Shape::ZExpansion(e), Some(k)) = (&f.fit.shape, &f.fit.kmax_study) else {
+            continue;
+        };
+        let fm2 = f.fit.units.length2_to_fm2().unwrap_or(f64::NAN);
+        let prior = e.prior.map_or("none".to_string(), |p| {
+            format!("N({}, {:.4}²)", p.mean, p.width)
+        });
+        let row = vec![
+            Cell::from(f.method.to_string()),
+            Cell::from(f.form_factor.name()),
+            Cell::from(f.model.as_str()),
+            Cell::from(prior),
+            Cell::from(e.kmax),
+            Cell::Float(f.fit.g0.central),
+            Cell::Float(f.fit.g0.error()),
+            Cell::Float(f.fit.r2.central * fm2),
+            Cell::Float(f.fit.r2.error() * fm2),
+            Cell::from(k.kmax),
+            Cell::Float(k.g0.central),
+            Cell::Float(k.g0.error()),
+            Cell::Float(k.r2.central * fm2),
+            Cell::Float(k.r2.error() * fm2),
+            Cell::Float(k.g0_shift_sigma),
+            Cell::Float(k.r2_shift_sigma),
+        ];
+        if t.push_row(row).is_err() {
+            return Vec::new();
+        }
+    }
+    if t.rows.is_empty() {
+        return Vec::new();
+    }
+    vec![
+        Block::Paragraph(
+            "z-expansion choices: the Gaussian prior on every a_k/a_0 (prior: auto takes the \
+             width max(5, 2 max_k |c_k/c_0|), c_k the central dipole fit expanded in z with the \
+             same t_cut, t0 and kmax; the prior's uncertainty enters every resample), and the \
+             same fit with kmax + 1; a shift of G(0) or r² by more than 1 sigma of the kmax \
+             fit is also a warning."
+                .to_string(),
+        ),
+        Block::Table(readable(&t)),
+    ]
 }
 
 /// The variational analysis: GEVP figures, fitted energies, and the optimised against the

@@ -72,6 +72,16 @@ pub(in crate::pipeline) fn q2_fits(
                             fit.n_failed
                         ));
                     }
+                    if let (Some(r2), None) = (&fit.r2_fm2, fit.radius_fm()) {
+                        let below = r2.samples.iter().filter(|x| **x <= 0.0).count();
+                        rec.warn(format!(
+                            "q2_fits {method} {ff} {model}: r_{ff} not reported: r2 = {:.4} fm^2 \
+                             is not positive on the central value or on {below} of {} resamples \
+                             (r2_{ff} in derived.csv has its value and error)",
+                            r2.central,
+                            r2.samples.len()
+                        ));
+                    }
                     let z = spec.renormalization.get(ff.current_kind());
                     out.push(Q2FitResult {
                         method,
