@@ -224,23 +224,37 @@ impl<R: Read> Rows<R> {
     ) -> Result<()> {
         let mut rows = self;
         let mut pending = rows.read_batch(header)?;
+        // Three batches in flight: while the workers parse one, the calling thread merges the
+        // one parsed before it and then reads the next. Merges stay in file order, and an
+        // error of an earlier batch is reported before a read error of a later one.
+        let mut parsed: Vec<Batch<P::Key>> = Vec::new();
         while !pending.is_empty() {
-            let mut parsed: Vec<Batch<P::Key>> = Vec::new();
+            let mut fresh: Vec<Batch<P::Key>> = Vec::new();
+            let mut merged = Ok(());
             let mut next = Ok(Vec::new());
             rayon::in_place_scope(|s| {
                 s.spawn(|_| {
-                    parsed = pending
+                    fresh = pending
                         .into_par_iter()
                         .map(|b| parse_block(b, header, parser))
                         .collect();
                 });
-                next = rows.read_batch(header);
+                merged = parsed.drain(..).try_for_each(&mut merge);
+                if merged.is_ok() {
+                    next = rows.read_batch(header);
+                }
             });
-            for batch in parsed {
-                merge(batch)?;
+            merged?;
+            parsed = fresh;
+            match next {
+                Ok(blocks) => pending = blocks,
+                Err(e) => {
+                    parsed.into_iter().try_for_each(&mut merge)?;
+                    return Err(e);
+                }
             }
-            pending = next?;
         }
+        parsed.into_iter().try_for_each(&mut merge)?;
         if let Rows::Csv(mut rd) = rows {
             loop {
                 let batch = csv_batch(&mut rd, header, parser);
