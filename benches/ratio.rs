@@ -68,6 +68,7 @@ fn ensemble() -> Ensemble {
             TwoPointKey {
                 momentum: p,
                 smear: None,
+                ops: None,
             },
             s,
         );
@@ -102,6 +103,7 @@ fn ensemble() -> Ensemble {
                     projector: Projector::Unpol,
                     flavor: None,
                     diagram: None,
+                    ops: None,
                 };
                 c3.channels.insert(key, s);
             }

@@ -7,8 +7,10 @@
 //! non-converged [`FitReport`] with a message, never as a panic.
 
 use super::{check_priors, lstsq, p_value, FitReport, Model, Prior, Weights};
-use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
-use nalgebra::{DMatrix, DVector, Dyn, Owned};
+use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt, MinimizationReport};
+use nalgebra::allocator::Allocator;
+use nalgebra::{Const, DMatrix, DVector, DefaultAllocator, Dim, Dyn, OMatrix, OVector, Owned};
+use std::cell::RefCell;
 
 /// Solver settings (see the `levenberg-marquardt` crate / MINPACK `lmder` for their meaning).
 #[derive(
@@ -61,41 +63,60 @@ impl FitSettings {
     }
 }
 
-struct Problem<'a> {
+/// One fit as the solver sees it. `N` is the parameter dimension: a compile-time size for
+/// the common parameter counts (the solver's parameter-sized vectors then live on the stack
+/// instead of being allocated at every step; the arithmetic is the same generic code, so the
+/// results are the same bits as with `Dyn`), `Dyn` otherwise.
+struct Problem<'a, N: Dim>
+where
+    DefaultAllocator: Allocator<N>,
+{
     model: &'a dyn Model,
     y: &'a [f64],
     weights: &'a Weights,
     priors: Vec<(usize, Prior)>,
-    x: DVector<f64>,
+    x: OVector<f64, N>,
+    /// Model values, then residuals before whitening (one buffer per fit, not per step).
+    values: RefCell<Vec<f64>>,
+    /// The model's Jacobian before whitening.
+    model_jacobian: RefCell<DMatrix<f64>>,
 }
 
-impl Problem<'_> {
+impl<N: Dim> Problem<'_, N>
+where
+    DefaultAllocator: Allocator<N>,
+{
     fn n_rows(&self) -> usize {
         self.y.len() + self.priors.len()
     }
 }
 
-impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
+impl<N: Dim> LeastSquaresProblem<f64, Dyn, N> for Problem<'_, N>
+where
+    DefaultAllocator: Allocator<N> + Allocator<Dyn> + Allocator<Dyn, N>,
+{
     type ResidualStorage = Owned<f64, Dyn>;
-    type JacobianStorage = Owned<f64, Dyn, Dyn>;
-    type ParameterStorage = Owned<f64, Dyn>;
+    type JacobianStorage = Owned<f64, Dyn, N>;
+    type ParameterStorage = Owned<f64, N>;
 
-    fn set_params(&mut self, x: &DVector<f64>) {
+    fn set_params(&mut self, x: &OVector<f64, N>) {
         self.x.copy_from(x);
     }
 
-    fn params(&self) -> DVector<f64> {
+    fn params(&self) -> OVector<f64, N> {
         self.x.clone()
     }
 
     fn residuals(&self) -> Option<DVector<f64>> {
         let n = self.y.len();
-        let mut f = vec![0.0; n];
+        let mut f = self.values.borrow_mut();
+        f.clear();
+        f.resize(n, 0.0);
         self.model.eval(self.x.as_slice(), &mut f);
         for (fi, yi) in f.iter_mut().zip(self.y) {
             *fi -= yi;
         }
-        let mut r = DVector::zeros(self.n_rows());
+        let mut r = DVector::<f64>::zeros(self.n_rows());
         self.weights.whiten(&f, &mut r.as_mut_slice()[..n]);
         for (k, (j, p)) in self.priors.iter().enumerate() {
             r[n + k] = (self.x[*j] - p.mean) / p.width;
@@ -103,13 +124,15 @@ impl LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_> {
         r.iter().all(|v| v.is_finite()).then_some(r)
     }
 
-    fn jacobian(&self) -> Option<DMatrix<f64>> {
+    fn jacobian(&self) -> Option<OMatrix<f64, Dyn, N>> {
         let n = self.y.len();
-        let np = self.x.len();
-        let mut jm = DMatrix::zeros(n, np);
+        let (rows, np) = (Dyn(self.n_rows()), self.x.shape_generic().0);
+        let mut jm = self.model_jacobian.borrow_mut();
+        jm.fill(0.0);
         self.model.jacobian(self.x.as_slice(), &mut jm);
-        let mut j = DMatrix::zeros(self.n_rows(), np);
-        self.weights.whiten_into(&jm, &mut j);
+        let mut j = OMatrix::<f64, Dyn, N>::zeros_generic(rows, np);
+        self.weights
+            .whiten_columns(jm.as_slice(), n, j.as_mut_slice(), rows.value());
         for (k, (col, p)) in self.priors.iter().enumerate() {
             j[(n + k, *col)] = 1.0 / p.width;
         }
@@ -206,28 +229,30 @@ fn solve(
             ),
         );
     }
-    let problem = Problem {
-        model,
-        y,
-        weights: w,
-        priors,
-        x: DVector::from_column_slice(start),
-    };
     let lm = LevenbergMarquardt::new()
         .with_ftol(settings.ftol)
         .with_xtol(settings.xtol)
         .with_gtol(settings.gtol)
         .with_patience(settings.patience)
         .with_stepbound(settings.stepbound);
-    let (problem, report) = lm.minimize(problem);
-    let params: Vec<f64> = problem.x.iter().copied().collect();
-    let (chi2, covariance) = match problem.residuals() {
-        Some(r) if with_covariance => match problem.jacobian() {
-            Some(j) => (r.norm_squared(), lstsq(&j, &r).map(|(_, cov)| cov)),
-            None => (f64::NAN, None),
-        },
-        Some(r) => (r.norm_squared(), None),
-        None => (f64::NAN, None),
+    let parts = Parts {
+        model,
+        y,
+        weights: w,
+        priors,
+        start,
+    };
+    let (params, residuals, jacobian, report) = match np {
+        2 => minimise(parts, Const::<2>, &lm, with_covariance),
+        4 => minimise(parts, Const::<4>, &lm, with_covariance),
+        6 => minimise(parts, Const::<6>, &lm, with_covariance),
+        _ => minimise(parts, Dyn(np), &lm, with_covariance),
+    };
+    let (chi2, covariance) = match (residuals, jacobian) {
+        (Some(r), Some(j)) => (r.norm_squared(), lstsq(&j, &r).map(|(_, cov)| cov)),
+        (Some(_), None) if with_covariance => (f64::NAN, None),
+        (Some(r), None) => (r.norm_squared(), None),
+        (None, _) => (f64::NAN, None),
     };
     let converged = report.termination.was_successful() && chi2.is_finite();
     let message = if converged {
@@ -245,4 +270,54 @@ fn solve(
         message,
         covariance,
     }
+}
+
+/// The checked inputs of one fit.
+struct Parts<'a> {
+    model: &'a dyn Model,
+    y: &'a [f64],
+    weights: &'a Weights,
+    priors: Vec<(usize, Prior)>,
+    start: &'a [f64],
+}
+
+/// Result of [`minimise`]: parameters, residuals at the minimum, the Jacobian there (only
+/// when asked for the covariance) and the solver's report.
+type Minimum = (
+    Vec<f64>,
+    Option<DVector<f64>>,
+    Option<DMatrix<f64>>,
+    MinimizationReport<f64>,
+);
+
+/// Run the solver with parameter dimension `np` (see [`Problem`]).
+fn minimise<N: Dim>(
+    parts: Parts,
+    np: N,
+    lm: &LevenbergMarquardt<f64>,
+    with_covariance: bool,
+) -> Minimum
+where
+    DefaultAllocator: Allocator<N> + Allocator<Dyn> + Allocator<Dyn, N>,
+{
+    let n = parts.y.len();
+    let problem = Problem {
+        model: parts.model,
+        y: parts.y,
+        weights: parts.weights,
+        priors: parts.priors,
+        x: OVector::<f64, N>::from_iterator_generic(np, Const::<1>, parts.start.iter().copied()),
+        values: RefCell::new(Vec::with_capacity(n)),
+        model_jacobian: RefCell::new(DMatrix::zeros(n, np.value())),
+    };
+    let (problem, report) = lm.minimize(problem);
+    let params: Vec<f64> = problem.x.iter().copied().collect();
+    let residuals = problem.residuals();
+    let jacobian = match residuals {
+        Some(_) if with_covariance => problem
+            .jacobian()
+            .map(|j| DMatrix::from_column_slice(j.nrows(), j.ncols(), j.as_slice())),
+        _ => None,
+    };
+    (params, residuals, jacobian, report)
 }

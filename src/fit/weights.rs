@@ -243,9 +243,23 @@ impl Weights {
     /// Write `W A` into the first `len()` rows of `out` (same number of columns as `A`,
     /// at least `len()` rows); rows below are left untouched. No allocation.
     pub fn whiten_into(&self, a: &DMatrix<f64>, out: &mut DMatrix<f64>) {
-        let (n, rows_a, rows_out) = (self.len(), a.nrows().max(1), out.nrows().max(1));
-        let columns_out = out.as_mut_slice().chunks_mut(rows_out);
-        for (c, o) in a.as_slice().chunks(rows_a).zip(columns_out) {
+        let (rows_a, rows_out) = (a.nrows(), out.nrows());
+        self.whiten_columns(a.as_slice(), rows_a, out.as_mut_slice(), rows_out);
+    }
+
+    /// [`Self::whiten_into`] on column-major storage: `a` holds columns of `rows_a` values,
+    /// `out` columns of `rows_out >= len()` values; column `c` of `out` gets `W` times column
+    /// `c` of `a` in its first `len()` rows.
+    pub(crate) fn whiten_columns(
+        &self,
+        a: &[f64],
+        rows_a: usize,
+        out: &mut [f64],
+        rows_out: usize,
+    ) {
+        let n = self.len();
+        let columns_out = out.chunks_mut(rows_out.max(1));
+        for (c, o) in a.chunks(rows_a.max(1)).zip(columns_out) {
             self.whiten(c, &mut o[..n]);
         }
     }

@@ -5,12 +5,33 @@
 use crate::error::{Error, Location, Result};
 use std::collections::{HashMap, HashSet};
 
-/// Sum of the rows seen for one (channel, time, configuration).
-#[derive(Clone, Copy, Default)]
+/// Sum of the rows seen for one (channel, time, configuration): 16 bytes, the size of the
+/// values it becomes, so the read holds no more than twice the table's values. A cell no row
+/// has reached holds [`Cell::EMPTY`] in `re`; how many rows a cell holds beyond the first is
+/// kept aside ([`Accumulator`]'s `extra_rows`), which only tables with a `source` column have.
+#[derive(Clone, Copy)]
 struct Cell {
     re: f64,
     im: f64,
-    count: u32,
+}
+
+impl Cell {
+    /// A signalling NaN with its own payload: parsing never gives one and arithmetic turns
+    /// any NaN into a quiet one, so no sum of data equals it bit for bit.
+    const EMPTY: u64 = 0x7ff0_0000_dead_0001;
+
+    fn is_empty(&self) -> bool {
+        self.re.to_bits() == Self::EMPTY
+    }
+}
+
+impl Default for Cell {
+    fn default() -> Self {
+        Cell {
+            re: f64::from_bits(Self::EMPTY),
+            im: 0.0,
+        }
+    }
 }
 
 /// Cells of one channel: `cells[t][cfg]`, configurations in first-seen order. The dense
@@ -83,6 +104,8 @@ pub(crate) struct Accumulator {
     last_cfg: u32,
     /// `(channel, t, cfg, source)` seen, when the table has a `source` column.
     sources: Option<HashSet<(u32, u32, u32, i64)>>,
+    /// Rows beyond the first averaged into a `(channel, t, cfg)` (sources).
+    extra_rows: HashMap<(u32, u32, u32), u32>,
     rows: u64,
 }
 
@@ -111,6 +134,7 @@ impl Accumulator {
             configs: Vec::new(),
             last_cfg: 0,
             sources: with_source.then(HashSet::new),
+            extra_rows: HashMap::new(),
             rows: 0,
         }
     }
@@ -168,7 +192,7 @@ impl Accumulator {
         let cell = self.channels[id as usize].cell(t, cfg);
         let duplicate = match (&mut self.sources, source) {
             (Some(seen), Some(s)) => !seen.insert((id, t, cfg, s)),
-            _ => cell.count > 0,
+            _ => !cell.is_empty(),
         };
         if duplicate {
             let what = match source {
@@ -183,9 +207,13 @@ impl Accumulator {
                 ),
             });
         }
-        cell.re += re;
-        cell.im += im;
-        cell.count += 1;
+        if cell.is_empty() {
+            *cell = Cell { re, im };
+        } else {
+            cell.re += re;
+            cell.im += im;
+            *self.extra_rows.entry((id, t, cfg)).or_insert(0) += 1;
+        }
         Ok(())
     }
 
@@ -211,6 +239,7 @@ impl Accumulator {
         let mut values: Vec<(Vec<f64>, Vec<f64>)> =
             vec![(Vec::new(), Vec::new()); self.channels.len()];
         let (mut smin, mut smax) = (u32::MAX, 0u32);
+        let averaged = !self.extra_rows.is_empty();
         for &id in order {
             // Each channel's cells are released once its values are out, so the cells and
             // the values of the whole table are never held at once.
@@ -236,12 +265,16 @@ impl Accumulator {
             for t in 0..nt {
                 for &(config, i) in &sorted {
                     let cell = chan.get(t, i).unwrap_or_default();
-                    if cell.count == 0 {
+                    if cell.is_empty() {
                         return Err(missing(id, t, config, chan.first_line));
                     }
-                    smin = smin.min(cell.count);
-                    smax = smax.max(cell.count);
-                    let n = f64::from(cell.count);
+                    let count = match averaged {
+                        true => 1 + self.extra_rows.get(&(id, t as u32, i as u32)).unwrap_or(&0),
+                        false => 1,
+                    };
+                    smin = smin.min(count);
+                    smax = smax.max(count);
+                    let n = f64::from(count);
                     re.push(cell.re / n);
                     im.push(cell.im / n);
                 }

@@ -10,7 +10,7 @@
 
 use super::accumulator::Accumulator;
 use super::key_cache::KeyCache;
-use super::row::{Header, Row};
+use super::row::{Header, ParsedRow, Row};
 use super::table::{Column, TableReader};
 use crate::error::{Error, Location, Result};
 use rayon::prelude::*;
@@ -24,54 +24,6 @@ const BLOCK: usize = 1 << 20;
 const BATCH: usize = 4;
 /// Rows per batch on the general CSV path.
 const CSV_BATCH: usize = 1 << 16;
-
-/// One data row parsed on a worker thread: the channel as a batch-local key index, the time
-/// (`t` or `tau`), configuration, source and value, and the row's line.
-pub(crate) struct ParsedRow {
-    pub key: u32,
-    pub t: u32,
-    pub config: i64,
-    pub source: Option<i64>,
-    pub re: f64,
-    pub im: f64,
-    pub line: u64,
-}
-
-/// Where a table keeps the value columns of a row (indices into its schema).
-pub(crate) struct ValueColumns {
-    pub re: usize,
-    pub im: usize,
-    /// The source-position column, when the header has it.
-    pub source: Option<usize>,
-}
-
-impl ParsedRow {
-    /// The row with its key, time and configuration already parsed: the real and imaginary
-    /// parts and the source position are read here, in that order (the first bad field is
-    /// the one reported).
-    pub(crate) fn read(
-        rd: &Row,
-        (key, t, config): (u32, u32, i64),
-        cols: &ValueColumns,
-        schema: &[Column],
-    ) -> Result<ParsedRow> {
-        let re = rd.float(cols.re, schema)?;
-        let im = rd.float(cols.im, schema)?;
-        let source = match cols.source {
-            Some(c) => Some(rd.int(c, schema)?),
-            None => None,
-        };
-        Ok(ParsedRow {
-            key,
-            t,
-            config,
-            source,
-            re,
-            im,
-            line: rd.line,
-        })
-    }
-}
 
 /// The channel keys a batch has met, in first-seen order, each with its byte encoding.
 pub(crate) struct LocalKeys<K> {
@@ -260,23 +212,37 @@ impl<R: Read> Rows<R> {
     ) -> Result<()> {
         let mut rows = self;
         let mut pending = rows.read_batch(header)?;
+        // Three batches in flight: while the workers parse one, the calling thread merges the
+        // one parsed before it and then reads the next. Merges stay in file order, and an
+        // error of an earlier batch is reported before a read error of a later one.
+        let mut parsed: Vec<Batch<P::Key>> = Vec::new();
         while !pending.is_empty() {
-            let mut parsed: Vec<Batch<P::Key>> = Vec::new();
+            let mut fresh: Vec<Batch<P::Key>> = Vec::new();
+            let mut merged = Ok(());
             let mut next = Ok(Vec::new());
             rayon::in_place_scope(|s| {
                 s.spawn(|_| {
-                    parsed = pending
+                    fresh = pending
                         .into_par_iter()
                         .map(|b| parse_block(b, header, parser))
                         .collect();
                 });
-                next = rows.read_batch(header);
+                merged = parsed.drain(..).try_for_each(&mut merge);
+                if merged.is_ok() {
+                    next = rows.read_batch(header);
+                }
             });
-            for batch in parsed {
-                merge(batch)?;
+            merged?;
+            parsed = fresh;
+            match next {
+                Ok(blocks) => pending = blocks,
+                Err(e) => {
+                    parsed.into_iter().try_for_each(&mut merge)?;
+                    return Err(e);
+                }
             }
-            pending = next?;
         }
+        parsed.into_iter().try_for_each(&mut merge)?;
         if let Rows::Csv(mut rd) = rows {
             loop {
                 let batch = csv_batch(&mut rd, header, parser);

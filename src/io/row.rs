@@ -314,3 +314,51 @@ fn required_list(schema: &[Column]) -> String {
         .collect::<Vec<_>>()
         .join(", ")
 }
+
+/// One data row parsed on a worker thread: the channel as a batch-local key index, the time
+/// (`t` or `tau`), configuration, source and value, and the row's line.
+pub(crate) struct ParsedRow {
+    pub key: u32,
+    pub t: u32,
+    pub config: i64,
+    pub source: Option<i64>,
+    pub re: f64,
+    pub im: f64,
+    pub line: u64,
+}
+
+/// Where a table keeps the value columns of a row (indices into its schema).
+pub(crate) struct ValueColumns {
+    pub re: usize,
+    pub im: usize,
+    /// The source-position column, when the header has it.
+    pub source: Option<usize>,
+}
+
+impl ParsedRow {
+    /// The row with its key, time and configuration already parsed: the real and imaginary
+    /// parts and the source position are read here, in that order (the first bad field is
+    /// the one reported).
+    pub(crate) fn read(
+        rd: &Row,
+        (key, t, config): (u32, u32, i64),
+        cols: &ValueColumns,
+        schema: &[Column],
+    ) -> Result<ParsedRow> {
+        let re = rd.float(cols.re, schema)?;
+        let im = rd.float(cols.im, schema)?;
+        let source = match cols.source {
+            Some(c) => Some(rd.int(c, schema)?),
+            None => None,
+        };
+        Ok(ParsedRow {
+            key,
+            t,
+            config,
+            source,
+            re,
+            im,
+            line: rd.line,
+        })
+    }
+}

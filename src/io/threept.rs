@@ -4,10 +4,11 @@
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser, ValueColumns};
+use super::blocks::{open_rows, push_label, LocalKeys, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
 use super::row::Row;
+use super::row::{ParsedRow, ValueColumns};
 use super::table::{display_name, no_data_rows, open, Column};
 use crate::data::{Current, Diagram, Operators, Projector, Series, ThreePointData, ThreePointKey};
 use crate::error::{Error, Result};

@@ -4,10 +4,11 @@
 //! `t = 0..T-1` for every configuration.
 
 use super::accumulator::{key_order, Accumulator, Summary};
-use super::blocks::{open_rows, push_label, LocalKeys, ParsedRow, RowParser, ValueColumns};
+use super::blocks::{open_rows, push_label, LocalKeys, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
 use super::row::Row;
+use super::row::{ParsedRow, ValueColumns};
 use super::table::{display_name, no_data_rows, open, Column};
 use crate::data::{Operators, Series, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};

@@ -23,8 +23,8 @@ mod setup;
 mod twists;
 
 pub use decompose::{
-    decompose, ChannelValue, Decomposition, DecompositionSettings, ShellResult, SkippedShell,
-    SINGULAR_THRESHOLD,
+    decompose, decompose_cached, ChannelValue, CoefficientCache, Decomposition,
+    DecompositionSettings, ShellResult, SkippedShell, SINGULAR_THRESHOLD,
 };
 pub use phase::Phase;
 pub use renorm::{renormalize, Renormalized, ZFactor, ZFactors};

@@ -10,10 +10,12 @@
 //! are dropped and counted; form factors that no channel of the shell constrains are left out
 //! of that shell.
 
+mod cache;
 mod settings;
 mod shells;
 mod solve;
 
+pub use cache::CoefficientCache;
 pub use settings::DecompositionSettings;
 
 use super::factors::FormFactor;
@@ -126,6 +128,18 @@ pub fn decompose(
     setup: &KinematicSetup,
     settings: &DecompositionSettings,
 ) -> Result<Decomposition> {
+    decompose_cached(channels, setup, settings, &CoefficientCache::new())
+}
+
+/// [`decompose`] with the kinematic coefficients taken from (and added to) `cache`, which
+/// must belong to `setup`: the decompositions of several methods with one setup compute them
+/// once.
+pub fn decompose_cached(
+    channels: &[ChannelValue],
+    setup: &KinematicSetup,
+    settings: &DecompositionSettings,
+    cache: &CoefficientCache,
+) -> Result<Decomposition> {
     let n = setup.validate()?;
     if matches!(setup.energies, Energies::Fitted(_)) && setup.twist_sink != setup.twist_source {
         // Fitted energies are keyed by integer momentum: each must stand for one twist.
@@ -151,7 +165,7 @@ pub fn decompose(
     }
     let mut out = Decomposition::default();
     for (label, kind, members) in shells::shells(channels, setup, settings.q2_tolerance)? {
-        match solve::solve_shell(&members, kind, setup, settings.weights, &phases, n) {
+        match solve::solve_shell(&members, kind, setup, settings.weights, &phases, n, cache) {
             Ok(mut r) => {
                 r.label = label;
                 out.shells.push(r);

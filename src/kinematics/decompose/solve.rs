@@ -10,6 +10,7 @@
 //! a condition number of a few hundred and a meaningless solution above any fixed threshold.
 //! The numeric solve then keeps only as many singular directions as the on-shell system has.
 
+use super::cache::{channel_coefficients, CoefficientCache, Coefficients};
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
@@ -21,6 +22,7 @@ use crate::resample::Resampled;
 use nalgebra::{Complex, DMatrix, DVector};
 use rayon::prelude::*;
 use std::collections::BTreeMap;
+use std::sync::Arc;
 
 type Outcome<T> = std::result::Result<T, String>;
 
@@ -39,10 +41,11 @@ pub(super) fn solve_shell(
     weights: Weighting,
     phases: &BTreeMap<Current, Complex<f64>>,
     n: usize,
+    cache: &CoefficientCache,
 ) -> Outcome<ShellResult> {
     let all = FormFactor::of(setup.hadron, kind);
     check_shell(members, kind, setup, all)?;
-    let system = ShellSystem::new(members, setup, all, weights, phases)?;
+    let system = ShellSystem::new(members, setup, all, weights, phases)?.with_samples(cache, n);
     let rank = system.on_shell_rank()?;
     let (g0, chi2, condition, determined, n_null) = system.solve(None, rank)?;
     if !determined.iter().any(|d| *d) {
@@ -111,6 +114,8 @@ struct ShellSystem<'a> {
     w: Weights,
     /// Kinematics and coefficients of every used channel on the central value.
     central: BTreeMap<usize, (OnShell, Vec<Complex<f64>>)>,
+    /// Coefficients of every used channel per resample.
+    per_sample: BTreeMap<usize, Arc<Vec<Coefficients>>>,
 }
 
 impl<'a> ShellSystem<'a> {
@@ -141,29 +146,43 @@ impl<'a> ShellSystem<'a> {
             data,
             w,
             central,
+            per_sample: BTreeMap::new(),
         })
+    }
+
+    /// The coefficients of every used channel on each of `n` resamples, from `cache`.
+    fn with_samples(mut self, cache: &CoefficientCache, n: usize) -> Self {
+        for &ci in &self.used {
+            let c = self.members[ci];
+            let central = self.central.get(&ci);
+            let samples = cache.samples(self.setup, self.all, c, central, n);
+            self.per_sample.insert(ci, samples);
+        }
+        self
     }
 
     /// The coefficient matrix (rows x unknowns) at sample `s`.
     fn matrix(&self, s: Option<usize>) -> Outcome<DMatrix<f64>> {
         let mut k = DMatrix::zeros(self.rows.len(), self.unknowns.len());
-        // Coefficients per used channel; reuse the central ones when the kinematics of this
-        // sample are the central kinematics (exact masses and energies).
-        let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
+        // Coefficients per used channel: the central ones, or those of the resample (see
+        // [`CoefficientCache::samples`]).
+        let mut cache: BTreeMap<usize, &[Complex<f64>]> = BTreeMap::new();
         for &ci in &self.used {
-            let c = self.members[ci];
-            let k = self
-                .setup
-                .on_shell(c.pf, c.q, s)
-                .map_err(|e| e.to_string())?;
-            let kc = match self.central.get(&ci) {
-                Some((k0, kc0)) if *k0 == k => kc0.clone(),
-                _ => channel_coefficients(self.setup, self.all, c, s)?,
+            let kc = match s {
+                None => self.central.get(&ci).map(|(_, kc)| kc.as_slice()),
+                Some(s) => match self.per_sample.get(&ci).and_then(|v| v.get(s)) {
+                    Some(Ok(kc)) => Some(kc.as_slice()),
+                    Some(Err(e)) => return Err(e.clone()),
+                    None => None,
+                },
             };
+            let kc = kc.ok_or_else(|| {
+                format!("no coefficients for channel {}", self.members[ci].label())
+            })?;
             cache.insert(ci, kc);
         }
         for (r, &(ci, imag)) in self.rows.iter().enumerate() {
-            let kc = &cache[&ci];
+            let kc = cache[&ci];
             for (col, &j) in self.unknowns.iter().enumerate() {
                 k[(r, col)] = if imag { kc[j].im } else { kc[j].re };
             }
@@ -328,22 +347,6 @@ impl<'a> ShellSystem<'a> {
         }
         Ok(q2)
     }
-}
-
-/// The coefficients of every form factor of `all` in channel `c` at sample `s`.
-fn channel_coefficients(
-    setup: &KinematicSetup,
-    all: &[FormFactor],
-    c: &ChannelValue,
-    s: Option<usize>,
-) -> Outcome<Vec<Complex<f64>>> {
-    let k = setup.on_shell(c.pf, c.q, s).map_err(|e| e.to_string())?;
-    let list = coefficients(setup.hadron, c.projector, c.current, &k);
-    Ok(if list.is_empty() {
-        vec![Complex::new(0.0, 0.0); all.len()]
-    } else {
-        list.into_iter().map(|(_, v)| v).collect()
-    })
 }
 
 /// Structure from the central kinematics: which parts carry information (the rows), which

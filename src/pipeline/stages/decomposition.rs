@@ -78,6 +78,8 @@ pub(in crate::pipeline) fn decompose_all(
     };
     let mut rows = Vec::new();
     let by_method = method_values(&spec.excited_states.methods, channels);
+    // One setup for every method: their kinematic coefficients are computed once.
+    let cache = kinematics::CoefficientCache::new();
     let total = by_method.len();
     for (i, (method, values)) in by_method.into_iter().enumerate() {
         rec.observer.progress("decomposition", i, total);
@@ -85,7 +87,7 @@ pub(in crate::pipeline) fn decompose_all(
             rec.warn(format!("decomposition {method}: no channel has a value"));
             continue;
         }
-        let dec = kinematics::decompose(&values, &setup, d)?;
+        let dec = kinematics::decompose_cached(&values, &setup, d, &cache)?;
         for s in &dec.skipped {
             rec.warn(format!(
                 "decomposition {method}: shell {} ({:?}) skipped: {}",

@@ -1,0 +1,88 @@
+//! The kinematic coefficients of every channel on every resample, computed once and shared by
+//! the decompositions of all excited-state methods of a run: they depend on the channel's
+//! momenta, current and projector and on the resampled energies, never on the method's
+//! matrix elements. (They were the larger part of the decomposition's time, recomputed once
+//! per method.)
+
+use super::ChannelValue;
+use crate::data::{Current, Momentum, Projector};
+use crate::kinematics::factors::{coefficients, FormFactor};
+use crate::kinematics::setup::KinematicSetup;
+use nalgebra::Complex;
+use rayon::prelude::*;
+use std::collections::HashMap;
+use std::sync::{Arc, Mutex};
+
+/// What the coefficients of a channel depend on besides the setup: sink momentum, momentum
+/// transfer, current, projector.
+type Key = (Momentum, Momentum, Current, Projector);
+
+/// The coefficients of every form factor at one sample, or why they could not be computed.
+pub(super) type Coefficients = Result<Vec<Complex<f64>>, String>;
+
+/// Coefficients per channel and resample, filled on first use. One cache belongs to one
+/// [`KinematicSetup`]: pass the same setup to every decomposition that shares it.
+#[derive(Default)]
+pub struct CoefficientCache {
+    samples: Mutex<HashMap<Key, Arc<Vec<Coefficients>>>>,
+}
+
+impl CoefficientCache {
+    /// A new, empty cache.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// The coefficients of `c` at every one of `n` resamples (in parallel on first use, in
+    /// sample order). A resample whose kinematics equal the central ones reuses `central`,
+    /// computed from the same numbers.
+    pub(super) fn samples(
+        &self,
+        setup: &KinematicSetup,
+        all: &[FormFactor],
+        c: &ChannelValue,
+        central: Option<&(crate::kinematics::OnShell, Vec<Complex<f64>>)>,
+        n: usize,
+    ) -> Arc<Vec<Coefficients>> {
+        let key = (c.pf, c.q, c.current, c.projector);
+        if let Some(found) = self.lock().get(&key) {
+            return Arc::clone(found);
+        }
+        let computed: Vec<Coefficients> = (0..n)
+            .into_par_iter()
+            .map(|s| {
+                let k = setup
+                    .on_shell(c.pf, c.q, Some(s))
+                    .map_err(|e| e.to_string())?;
+                match central {
+                    Some((k0, kc0)) if *k0 == k => Ok(kc0.clone()),
+                    _ => channel_coefficients(setup, all, c, Some(s)),
+                }
+            })
+            .collect();
+        let computed = Arc::new(computed);
+        self.lock().insert(key, Arc::clone(&computed));
+        computed
+    }
+
+    fn lock(&self) -> std::sync::MutexGuard<'_, HashMap<Key, Arc<Vec<Coefficients>>>> {
+        // A panic elsewhere cannot leave the map half-written: entries are inserted whole.
+        self.samples.lock().unwrap_or_else(|e| e.into_inner())
+    }
+}
+
+/// The coefficients of every form factor of `all` in channel `c` at sample `s`.
+pub(super) fn channel_coefficients(
+    setup: &KinematicSetup,
+    all: &[FormFactor],
+    c: &ChannelValue,
+    s: Option<usize>,
+) -> Coefficients {
+    let k = setup.on_shell(c.pf, c.q, s).map_err(|e| e.to_string())?;
+    let list = coefficients(setup.hadron, c.projector, c.current, &k);
+    Ok(if list.is_empty() {
+        vec![Complex::new(0.0, 0.0); all.len()]
+    } else {
+        list.into_iter().map(|(_, v)| v).collect()
+    })
+}
