@@ -4,7 +4,8 @@
 # from the packed file against the same run from CSV. Every timing gives wall and CPU (user +
 # system) seconds side by side, with a warm page cache; CPU is what to compare on a shared
 # machine. Reading is timed as `formfactory inspect` of the packed file (read + a short
-# summary) and `check` of the pipeline (read + data rules), each the best of REPEAT runs.
+# summary) and `check` of the pipeline (read + data rules), each the mean of REPEAT runs;
+# `pack` is compared with libhdf5's per-dataset minimum (benches/hdf5_minimum.c).
 #
 # Usage: benches/hdf5.sh [CONFIGS] [BINARY]
 #   CONFIGS  configurations of the mock ensemble (default 200)
@@ -74,12 +75,29 @@ cat "$WORK/pack.out"
 datasets=$(sed -n 's/^read \([0-9]*\) datasets.*/\1/p' "$WORK/pack.out")
 cpu=$(echo "$u + $s" | bc -l)
 echo "pack: $datasets datasets in $w s wall, $cpu s CPU = $(echo "scale=1; $cpu * 1000000 / $datasets" | bc -l) µs CPU per dataset (whole process)"
+# libhdf5's per-dataset minimum on the same files (benches/hdf5_minimum.c: open, type, shape,
+# read, close; each file opened once), when a C compiler and the library's headers are here.
+if cc -O2 "$ROOT/benches/hdf5_minimum.c" -o "$WORK/hdf5_minimum" $(pkg-config --cflags --libs hdf5) 2> /dev/null; then
+    f=$(mktemp)
+    /usr/bin/time -f "%e %U %S" -o "$f" "$WORK/hdf5_minimum" "$WORK"/h5/*.h5 > /dev/null
+    read -r w u s < "$f"
+    rm -f "$f"
+    cpu=$(echo "$u + $s" | bc -l)
+    echo "libhdf5 minimum: $w s wall, $cpu s CPU = $(echo "scale=1; $cpu * 1000000 / $datasets" | bc -l) µs CPU per dataset"
+else
+    echo "libhdf5 minimum: not measured (needs cc and pkg-config hdf5)"
+fi
 echo "packed file: $(stat -c %s "$WORK/packed.h5") bytes"
 
 cat "$WORK/packed.h5" > /dev/null
 timed "cat of the packed file" cat "$WORK/packed.h5"
 cat_cpu=$CPU cat_wall=$WALL
 timed "inspect of the packed file (read + summary)" "$BIN" inspect "$WORK/packed.h5"
+echo "  inspect / cat: $(ratio "$CPU" "$cat_cpu")x CPU, $(ratio "$WALL" "$cat_wall")x wall"
+# The read's cost is the page faults of its fresh memory; glibc's transparent-huge-page
+# malloc (glibc >= 2.35) takes most of them away (DEVELOPERS.md, HDF5).
+GLIBC_TUNABLES=glibc.malloc.hugetlb=1 timed "  the same, GLIBC_TUNABLES=glibc.malloc.hugetlb=1" \
+    "$BIN" inspect "$WORK/packed.h5"
 echo "  inspect / cat: $(ratio "$CPU" "$cat_cpu")x CPU, $(ratio "$WALL" "$cat_wall")x wall"
 timed "check from the packed file (read + data rules)" "$BIN" check "$WORK/packed.yaml"
 echo "  check / cat: $(ratio "$CPU" "$cat_cpu")x CPU, $(ratio "$WALL" "$cat_wall")x wall"

@@ -6,7 +6,10 @@
 #   benches/production.sh [CONFIGS] [JOBS]      (defaults: 1000 configurations, 2 threads)
 #
 # Environment: FORMFACTORY (binary; default target/release/formfactory, build it first with
-# `cargo build --release`), SCRATCH (default /tmp/formfactory-production). The generated data
+# `cargo build --release`), SCRATCH (default /tmp/formfactory-production), SOURCE (`csv`, the
+# default, or `packed`: the tables packed once with `formfactory pack` into
+# SCRATCH/data-CONFIGS/ensemble.packed.h5 and the runs read that; needs a binary built with
+# `--features hdf5`). The generated data
 # are kept in SCRATCH and reused by later runs of the same size. CPU time is user + system time
 # of the whole process; per-stage figures are differences between consecutive prefixes, so
 # they are noisy on a loaded machine: compare before/after runs made side by side.
@@ -27,7 +30,19 @@ if [ ! -f "$data/threept.csv" ]; then
         > "$scratch/spec-$configs.yaml"
     "$bin" mock "$scratch/spec-$configs.yaml" --out "$data" > /dev/null
 fi
-pipeline=$scratch/production-$configs.yaml
+source=${SOURCE:-csv}
+case $source in
+    csv) data_section="  twopt: $data/twopt.csv
+  threept: $data/threept.csv" ;;
+    packed)
+        if [ ! -f "$data/ensemble.packed.h5" ]; then
+            "$bin" pack "$data" --out "$data/ensemble.packed.h5" --quiet > /dev/null
+        fi
+        data_section="  hdf5:
+    packed: $data/ensemble.packed.h5" ;;
+    *) echo "SOURCE must be csv or packed, not $source" >&2; exit 1 ;;
+esac
+pipeline=$scratch/production-$configs-$source.yaml
 cat > "$pipeline" <<YAML
 ensemble:
   label: production-scale mock
@@ -37,8 +52,7 @@ ensemble:
   pion_mass: 0.14
   hadron: spin1half
 data:
-  twopt: $data/twopt.csv
-  threept: $data/threept.csv
+$data_section
 resampling:
   method: jackknife
   bin_size: 1
@@ -70,7 +84,10 @@ output:
 YAML
 bytes=$(( $(stat -c %s "$data/twopt.csv") + $(stat -c %s "$data/threept.csv") ))
 rows=$(( $(wc -l < "$data/twopt.csv") + $(wc -l < "$data/threept.csv") - 2 ))
-echo "data: $configs configurations, $rows rows, $((bytes / 1000000)) MB of CSV; --jobs $jobs"
+echo "data: $configs configurations, $rows rows, $((bytes / 1000000)) MB of CSV; --jobs $jobs; read from $source"
+if [ "$source" = packed ]; then
+    echo "packed file: $(( $(stat -c %s "$data/ensemble.packed.h5") / 1000000 )) MB"
+fi
 echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg)"
 printf "%-14s %9s %9s %9s %9s %10s\n" stage "wall s" "CPU s" "cum wall" "cum CPU" "peak RSS"
 prev_wall=0

@@ -7,7 +7,7 @@ use formfactory::data::{Series, ThreePointData, ThreePointKey, TwoPointData, Two
 use formfactory::resample::autocorr::{
     binning_study, gamma_method, pooled_gamma_method, rho, sample_autocorrelation, DEFAULT_S,
 };
-use formfactory::resample::binning::{bin_series, bin_threept, bin_twopt, bin_values};
+use formfactory::resample::binning::{bin_series, bin_tables, bin_threept, bin_twopt, bin_values};
 use formfactory::resample::covariance::{
     estimate, estimate_with_bins, hartlap_factor, CovarianceKind, CovarianceOptions,
     ShrinkageTarget,
@@ -434,6 +434,43 @@ fn binning_rejects_bad_bin_sizes_without_panicking() {
         (b.configs.clone(), r.dropped_configs),
         (vec![0, 3, 6], vec![9])
     );
+}
+
+#[test]
+fn binning_tables_by_one_keeps_every_bit_and_every_check() {
+    // The mean of one value is that value (analytic): bin_tables with b = 1 returns the
+    // tables it was given, and they must equal bin_twopt / bin_threept bit for bit, also for
+    // -0.0 and a subnormal (values where a sum from +0.0 would differ).
+    let mut two = two_point((0..7).collect(), 3, 11);
+    for s in two.channels.values_mut() {
+        s.re[0] = -0.0;
+        s.im[1] = 4e-320;
+    }
+    let three = ThreePointData {
+        configs: two.configs.clone(),
+        ..Default::default()
+    };
+    let bits = |d: &TwoPointData| -> Vec<u64> {
+        d.channels
+            .values()
+            .flat_map(|s| s.re.iter().chain(&s.im).map(|v| v.to_bits()))
+            .collect()
+    };
+    let (copied, r_copied) = bin_twopt(&two, 1).expect("b = 1");
+    let (kept, _, r_kept) = bin_tables(two.clone(), three.clone(), 1).expect("b = 1");
+    assert_eq!(bits(&kept), bits(&copied));
+    assert_eq!(bits(&kept), bits(&two));
+    assert_eq!((kept.configs, r_kept), (copied.configs, r_copied));
+    // Other bin sizes go through the copying binning.
+    let (by2, _, r2) = bin_tables(two.clone(), three.clone(), 2).expect("b = 2");
+    assert_eq!((by2, r2), bin_twopt(&two, 2).expect("b = 2"));
+    // The checks still run with b = 1: a series that does not match the configurations.
+    let mut bad = two.clone();
+    for s in bad.channels.values_mut() {
+        *s = series_of(3, 6, 2);
+    }
+    let err = bin_tables(bad, three, 1).expect_err("6 configurations against 7");
+    assert!(err.to_string().contains("6 configurations"), "{err}");
 }
 
 // ---------------------------------------------------------------------------------------

@@ -101,8 +101,27 @@ fn bin_channels<K: Ord + Clone + Debug>(
     channels: &BTreeMap<K, Series>,
     b: usize,
 ) -> Result<(Vec<i64>, BTreeMap<K, Series>, BinReport)> {
+    let report = check_channels(configs, channels, b)?;
+    let out = channels
+        .iter()
+        .map(|(key, s)| (key.clone(), bin_series(s, b)))
+        .collect();
+    let first: Vec<i64> = configs
+        .iter()
+        .step_by(b)
+        .take(report.n_bins)
+        .copied()
+        .collect();
+    Ok((first, out, report))
+}
+
+/// [`plan_bins`], and every series checked against the configuration list.
+fn check_channels<K: Debug>(
+    configs: &[i64],
+    channels: &BTreeMap<K, Series>,
+    b: usize,
+) -> Result<BinReport> {
     let report = plan_bins(configs, b)?;
-    let mut out = BTreeMap::new();
     for (key, s) in channels {
         if s.n_cfg != configs.len() || s.re.len() != s.n_t * s.n_cfg || s.im.len() != s.re.len() {
             return Err(Error::analysis(
@@ -116,15 +135,26 @@ fn bin_channels<K: Ord + Clone + Debug>(
                 ),
             ));
         }
-        out.insert(key.clone(), bin_series(s, b));
     }
-    let first: Vec<i64> = configs
-        .iter()
-        .step_by(b)
-        .take(report.n_bins)
-        .copied()
-        .collect();
-    Ok((first, out, report))
+    Ok(report)
+}
+
+/// [`bin_twopt`] and [`bin_threept`] for tables that are not needed unbinned afterwards:
+/// with `b == 1` each bin is its one configuration (the mean of one value is that value, bit
+/// for bit), so the checked tables are returned as they are instead of copied.
+pub fn bin_tables(
+    two: TwoPointData,
+    three: ThreePointData,
+    b: usize,
+) -> Result<(TwoPointData, ThreePointData, BinReport)> {
+    if b != 1 {
+        let (two, report) = bin_twopt(&{ two }, b)?;
+        let (three, _) = bin_threept(&{ three }, b)?;
+        return Ok((two, three, report));
+    }
+    let report = check_channels(&two.configs, &two.channels, b)?;
+    check_channels(&three.configs, &three.channels, b)?;
+    Ok((two, three, report))
 }
 
 /// Bin every two-point channel with bin size `b`. The configuration axis becomes the first

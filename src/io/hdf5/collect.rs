@@ -3,7 +3,7 @@
 //! with the same rules as the CSV reader (sources averaged per configuration, duplicates and
 //! missing data refused, errors naming file and dataset path).
 
-use super::dataset::{dataset_error, open_file, read_block, Block};
+use super::dataset::{dataset_error, open_file, read_block, Block, TypeCache};
 use super::files::{dataset_paths, layout_files};
 use super::mapping::{Fields, Mapping};
 use super::template::{nearest, Captures, Template};
@@ -181,6 +181,7 @@ pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> 
         three: Acc::new(configs.len()),
         n_datasets: 0,
         ignored: 0,
+        types: TypeCache::default(),
     };
     let mut first_paths: Option<(PathBuf, usize)> = None;
     for (i, (path, file_caps)) in files.iter().enumerate() {
@@ -229,6 +230,8 @@ struct Walk<'a> {
     three: Acc<ThreePointKey>,
     n_datasets: usize,
     ignored: usize,
+    /// The dataset type seen last (see [`TypeCache`]).
+    types: TypeCache,
 }
 
 impl Walk<'_> {
@@ -314,13 +317,13 @@ impl Walk<'_> {
         let (h5, path, len, axis, rows) = (file.h5, file.path, file.len, file.axis, file.rows);
         match kind {
             Kind::Two(key) => {
-                let block = read_block(h5, path, len, name, axis, self.t_extent)?;
+                let block = read_block(h5, path, len, name, axis, self.t_extent, &mut self.types)?;
                 self.two
                     .add(key, &block, rows, source, &caps, path, name, describe_two)?;
             }
             Kind::Three(key) => {
                 let need = key.tsep as usize + 1;
-                let block = read_block(h5, path, len, name, axis, Some(need))?;
+                let block = read_block(h5, path, len, name, axis, Some(need), &mut self.types)?;
                 self.three
                     .add(key, &block, rows, source, &caps, path, name, describe_three)?;
             }

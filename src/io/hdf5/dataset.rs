@@ -93,20 +93,12 @@ macro_rules! complex_types {
                 im: $t,
             }
         )*
-        /// Read a compound dataset whose fields are `(re, im)` of float size `size`.
-        fn read_compound(
-            ds: &hdf5::Dataset,
-            re: &str,
-            im: &str,
-            single: bool,
-        ) -> hdf5::Result<Vec<(f64, f64)>> {
+        /// The memory type of a compound `(re, im)` of floats (`f32` when `single`): the
+        /// two fields in this order, so a value reads as two consecutive floats.
+        fn compound_mem_type(re: &str, im: &str, single: bool) -> hdf5::Result<hdf5::Datatype> {
             $(
                 if re == $re && im == $im && single == (std::mem::size_of::<$t>() == 4) {
-                    return Ok(ds
-                        .read_raw::<$name>()?
-                        .into_iter()
-                        .map(|c| (f64::from(c.re), f64::from(c.im)))
-                        .collect());
+                    return hdf5::Datatype::from_type::<$name>();
                 }
             )*
             Err(hdf5::Error::from("no compound type for these field names"))
@@ -124,6 +116,7 @@ complex_types! {
 }
 
 /// How the complex values of a dataset are stored.
+#[derive(Clone, Copy)]
 enum Storage {
     /// Float array with a trailing axis of length 2.
     Pairs { single: bool },
@@ -191,6 +184,50 @@ fn storage_of(t: &TypeDescriptor) -> std::result::Result<Storage, String> {
     }
 }
 
+/// The file type of the datasets read last, what it was found to hold and the memory type it
+/// is read as. Correlator files repeat one type for thousands of datasets: comparing a
+/// dataset's type with this one (`H5Tequal`) costs far less than describing the type and
+/// building the memory type again for every dataset.
+#[derive(Default)]
+pub struct TypeCache {
+    last: Option<KnownType>,
+}
+
+struct KnownType {
+    file: hdf5::Datatype,
+    storage: Storage,
+    mem: hdf5::Datatype,
+}
+
+impl TypeCache {
+    /// The storage and memory type of `dtype`, described only when it differs from the last.
+    fn get(&mut self, dtype: hdf5::Datatype) -> std::result::Result<&KnownType, TypeError> {
+        if !self.last.as_ref().is_some_and(|known| known.file == dtype) {
+            let desc = dtype.to_descriptor().map_err(TypeError::Library)?;
+            let storage = storage_of(&desc).map_err(TypeError::Refused)?;
+            let mem = match storage {
+                Storage::Pairs { single: false } => hdf5::Datatype::from_type::<f64>(),
+                Storage::Pairs { single: true } => hdf5::Datatype::from_type::<f32>(),
+                Storage::Compound { re, im, single } => compound_mem_type(re, im, single),
+            }
+            .map_err(TypeError::Library)?;
+            self.last = Some(KnownType {
+                file: dtype,
+                storage,
+                mem,
+            });
+        }
+        self.last
+            .as_ref()
+            .ok_or_else(|| TypeError::Refused("no type".into()))
+    }
+}
+
+enum TypeError {
+    Library(hdf5::Error),
+    Refused(String),
+}
+
 /// Read dataset `name` of `file` (size `file_len`) as complex numbers with `n_need` time
 /// slices kept (the time axis may be longer; it is cut). With `config_axis`, the first axis
 /// holds `rows` configurations.
@@ -201,27 +238,24 @@ pub fn read_block(
     name: &str,
     config_axis: Option<usize>,
     n_need: Option<usize>,
+    types: &mut TypeCache,
 ) -> Result<Block> {
     let err = |m: String| dataset_error(path, name, m);
     let h5 = |e: hdf5::Error| dataset_error(path, name, format!("cannot read: {e}"));
     let ds = file.dataset(name).map_err(h5)?;
-    let dtype = ds.dtype().map_err(h5)?;
-    let desc = dtype.to_descriptor().map_err(h5)?;
-    let storage = storage_of(&desc).map_err(err)?;
+    let known = types.get(ds.dtype().map_err(h5)?).map_err(|e| match e {
+        TypeError::Library(e) => h5(e),
+        TypeError::Refused(m) => err(m),
+    })?;
+    let storage = known.storage;
     let shape = ds.shape();
     let (rows, n_t) = block_shape(&shape, &storage, config_axis).map_err(err)?;
-    check_size(&ds, dtype.size() as u64, &shape, file_len).map_err(err)?;
+    check_size(&ds, known.file.size() as u64, &shape, file_len).map_err(err)?;
     let keep = n_need.unwrap_or(n_t);
     if n_t < keep {
         return Err(err(format!("has {n_t} time slices; {keep} are needed")));
     }
-    let values = read_values(&ds, storage).map_err(h5)?;
-    if values.len() != rows * n_t {
-        return Err(err(format!(
-            "returned {} values for shape {shape:?}",
-            values.len()
-        )));
-    }
+    let values = read_values(&ds, storage, &known.mem, 2 * rows * n_t).map_err(h5)?;
     finite_block(&values, rows, n_t, keep, config_axis.is_some()).map_err(err)
 }
 
@@ -275,7 +309,21 @@ fn check_size(
     let bytes = count
         .checked_mul(elem)
         .ok_or_else(|| format!("has an impossible shape {shape:?}"))?;
-    let limit = if ds.filters().is_empty() {
+    // A dataset with a file offset is contiguous and stored in this file (filters and
+    // chunks need the chunked layout), so its bytes must fit after that offset; that spares
+    // the copy of the creation property list that the other layouts need.
+    if let Some(offset) = ds.offset() {
+        if bytes > file_len.saturating_sub(offset) {
+            return Err(format!(
+                "claims {bytes} bytes of data ({shape:?} of {elem}-byte values) at offset {offset} in a file of {file_len} bytes: the file is damaged or truncated"
+            ));
+        }
+        return Ok(());
+    }
+    let dcpl = ds
+        .dcpl()
+        .map_err(|e| format!("cannot read its storage properties: {e}"))?;
+    let limit = if dcpl.filters().is_empty() {
         file_len
     } else {
         file_len.saturating_mul(MAX_COMPRESSION)
@@ -285,7 +333,7 @@ fn check_size(
             "claims {bytes} bytes of data ({shape:?} of {elem}-byte values) in a file of {file_len} bytes: the file is damaged or truncated"
         ));
     }
-    if let Some(chunk) = ds.chunk() {
+    if let Some(chunk) = dcpl.chunk() {
         let chunk_bytes = chunk
             .iter()
             .try_fold(elem, |acc, &d| acc.checked_mul(d as u64));
@@ -298,20 +346,62 @@ fn check_size(
     Ok(())
 }
 
-/// All values of the dataset as (re, im) pairs, widened to `f64`.
-fn read_values(ds: &hdf5::Dataset, storage: Storage) -> hdf5::Result<Vec<(f64, f64)>> {
-    Ok(match storage {
-        Storage::Pairs { single: false } => pairs_of(ds.read_raw::<f64>()?),
-        Storage::Pairs { single: true } => {
-            pairs_of(ds.read_raw::<f32>()?.into_iter().map(f64::from).collect())
-        }
-        Storage::Compound { re, im, single } => read_compound(ds, re, im, single)?,
-    })
+/// All values of the dataset, `floats` of them (real and imaginary parts interleaved),
+/// widened to `f64`. `mem` is the memory type of `storage` (two floats per value).
+fn read_values(
+    ds: &hdf5::Dataset,
+    storage: Storage,
+    mem: &hdf5::Datatype,
+    floats: usize,
+) -> hdf5::Result<Vec<f64>> {
+    let single = match storage {
+        Storage::Pairs { single } | Storage::Compound { single, .. } => single,
+    };
+    if single {
+        Ok(read_all::<f32>(ds, mem, floats)?
+            .into_iter()
+            .map(f64::from)
+            .collect())
+    } else {
+        read_all::<f64>(ds, mem, floats)
+    }
 }
 
-/// The first `keep` of `n_t` time slices of each of `rows` rows, refusing non-finite values.
+/// The whole dataset read as memory type `mem` into `floats` values of `T` (one library
+/// call: the crate's `read_raw` builds the memory type and a transfer property list for every
+/// read, which costs more than the read of a small dataset).
+fn read_all<T: Copy + Default>(
+    ds: &hdf5::Dataset,
+    mem: &hdf5::Datatype,
+    floats: usize,
+) -> hdf5::Result<Vec<T>> {
+    use hdf5_sys::{h5d::H5Dread, h5p::H5P_DEFAULT, h5s::H5S_ALL};
+    if mem.size() != 2 * std::mem::size_of::<T>() && mem.size() != std::mem::size_of::<T>() {
+        return Err(hdf5::Error::from("memory type does not match the buffer"));
+    }
+    let mut buf = vec![T::default(); floats];
+    // SAFETY: `buf` holds `floats` values of `T`, which is what the whole dataset takes in
+    // memory type `mem`: the caller checked the shape (`2 * rows * n_t` floats, the trailing
+    // axis of 2 or two fields per compound value) and `mem` is one `T` or a pair of them.
+    hdf5::sync::sync(|| {
+        hdf5::h5check(unsafe {
+            H5Dread(
+                ds.id(),
+                mem.id(),
+                H5S_ALL,
+                H5S_ALL,
+                H5P_DEFAULT,
+                buf.as_mut_ptr().cast(),
+            )
+        })
+    })?;
+    Ok(buf)
+}
+
+/// The first `keep` of `n_t` time slices of each of `rows` rows of interleaved real and
+/// imaginary parts, refusing non-finite values.
 fn finite_block(
-    values: &[(f64, f64)],
+    values: &[f64],
     rows: usize,
     n_t: usize,
     keep: usize,
@@ -324,7 +414,7 @@ fn finite_block(
     };
     for r in 0..rows {
         for t in 0..keep {
-            let (re, im) = values[r * n_t + t];
+            let (re, im) = (values[2 * (r * n_t + t)], values[2 * (r * n_t + t) + 1]);
             if !re.is_finite() || !im.is_finite() {
                 let at = if config_axis {
                     format!("configuration index {r}, time {t}")
@@ -340,8 +430,4 @@ fn finite_block(
         }
     }
     Ok(block)
-}
-
-fn pairs_of(flat: Vec<f64>) -> Vec<(f64, f64)> {
-    flat.chunks_exact(2).map(|c| (c[0], c[1])).collect()
 }

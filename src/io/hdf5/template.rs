@@ -133,7 +133,7 @@ impl Template {
     pub fn matches(&self, path: &str) -> Option<Captures> {
         let mut caps = Vec::new();
         if match_from(&self.pieces, path, &mut caps) {
-            Some(caps)
+            Some(caps.into_iter().map(|(n, v)| (n, v.to_string())).collect())
         } else {
             None
         }
@@ -160,7 +160,12 @@ impl Template {
     }
 }
 
-fn match_from(pieces: &[Piece], s: &str, caps: &mut Captures) -> bool {
+/// Match `s` against `pieces`, capturing slices of `s`. A hole tries the longest value
+/// first and backtracks to shorter ones; values that cannot lead to a match are skipped
+/// without recursing: an integer hole only tries ends inside its leading run of sign and
+/// digits, and a hole followed by a literal only ends where that literal starts (the
+/// recursion would refuse every other end at once, so the result is the same).
+fn match_from<'s>(pieces: &[Piece], s: &'s str, caps: &mut Vec<(&'static str, &'s str)>) -> bool {
     let Some((first, rest)) = pieces.split_first() else {
         return s.is_empty();
     };
@@ -169,10 +174,22 @@ fn match_from(pieces: &[Piece], s: &str, caps: &mut Captures) -> bool {
             .strip_prefix(lit.as_str())
             .is_some_and(|tail| match_from(rest, tail, caps)),
         Piece::Hole(f) => {
-            let limit = s.find('/').unwrap_or(s.len());
+            let mut limit = s.find('/').unwrap_or(s.len());
+            if f.integer {
+                let sign = usize::from(s.starts_with(['-', '+']));
+                let digits = s.as_bytes()[sign..limit]
+                    .iter()
+                    .take_while(|b| b.is_ascii_digit())
+                    .count();
+                limit = sign + digits;
+            }
+            let next = match rest.first() {
+                Some(Piece::Literal(lit)) => Some(lit.as_str()),
+                _ => None,
+            };
             // Try the longest capture first; backtrack to shorter ones.
             for end in (1..=limit).rev() {
-                if !s.is_char_boundary(end) {
+                if !s.is_char_boundary(end) || next.is_some_and(|l| !s[end..].starts_with(l)) {
                     continue;
                 }
                 let value = &s[..end];
@@ -180,11 +197,11 @@ fn match_from(pieces: &[Piece], s: &str, caps: &mut Captures) -> bool {
                     continue;
                 }
                 if let Some((_, v)) = caps.iter().find(|(n, _)| *n == f.name) {
-                    if v != value {
+                    if *v != value {
                         continue;
                     }
                 }
-                caps.push((f.name, value.to_string()));
+                caps.push((f.name, value));
                 if match_from(rest, &s[end..], caps) {
                     return true;
                 }

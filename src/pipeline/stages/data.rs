@@ -10,7 +10,7 @@ use crate::pipeline::results::{AutocorrPoint, DataSummary};
 use crate::pipeline::spec::ResamplingMethod;
 use crate::resample::autocorr::AutocorrResult;
 use crate::resample::autocorr_check;
-use crate::resample::binning::{bin_threept, bin_twopt};
+use crate::resample::binning::bin_tables;
 use crate::resample::inflation;
 use crate::resample::ResamplePlan;
 use crate::Result;
@@ -44,9 +44,9 @@ pub(in crate::pipeline) fn read_and_resample(
     if let Some(w) = bin_size_warning(&autocorrelation, b) {
         rec.warn(w);
     }
-    // Each unbinned table is dropped as soon as its binned copy exists (lower peak memory).
-    let (mut two, report) = bin_twopt(&{ two }, b)?;
-    let (mut three, _) = bin_threept(&{ three }, b)?;
+    // Each unbinned table is dropped as soon as its binned copy exists (lower peak memory);
+    // with bin size 1 the tables are kept as they are (no copy).
+    let (mut two, mut three, report) = bin_tables(two, three, b)?;
     let binned_autocorrelation = inflation::measure(&two, &three);
     let decision = inflation::decide(
         &binned_autocorrelation,
