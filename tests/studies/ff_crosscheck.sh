@@ -17,8 +17,15 @@
 # release build). Needs python3 with PyYAML.
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
-n_default=10
+root=$(cd "$here/../.." && pwd)
+bin=${1:-$root/target/release/formfactory}
+n=${2:-10}
+configs=${3:--}
+spec=${4:-$root/demo-data/nucleon.mock.yaml}
+base=${5:-9000}
+pipeline=$root/pipelines/nucleon-vector.yaml
 prefix=ff-xcheck
-# shellcheck source=tests/studies/nucleon_seeds.sh
-. "$here/nucleon_seeds.sh"
+edit='/currents: \[A1, A2, A3, A4\]/d' # vector insertions only
+# shellcheck source=tests/studies/mock_seeds.sh
+. "$here/mock_seeds.sh"
 python3 "$here/ff_crosscheck.py" "$work"

@@ -18,8 +18,15 @@
 # PyYAML.
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
-n_default=20
+root=$(cd "$here/../.." && pwd)
+bin=${1:-$root/target/release/formfactory}
+n=${2:-20}
+configs=${3:--}
+spec=${4:-$root/demo-data/nucleon.mock.yaml}
+base=${5:-9000}
+pipeline=$root/pipelines/nucleon-vector.yaml
 prefix=ff-coverage
-# shellcheck source=tests/studies/nucleon_seeds.sh
-. "$here/nucleon_seeds.sh"
+edit='/currents: \[A1, A2, A3, A4\]/d' # vector insertions only
+# shellcheck source=tests/studies/mock_seeds.sh
+. "$here/mock_seeds.sh"
 python3 "$here/final_coverage.py" "$work"

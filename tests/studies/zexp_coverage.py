@@ -22,6 +22,7 @@ import statistics
 import sys
 
 import yaml
+from mock_truth import shell_truth
 
 
 def z_of(q2, t_cut, t0):
@@ -46,21 +47,9 @@ def truth_of(model, a_fm):
     return None
 
 
-def point_truth(truth):
-    """(form factor, nq2) -> truth at the p_f = 0 point of the shell."""
-    out = {}
-    for p in truth["points"]:
-        if p["pf"] != [0, 0, 0]:
-            continue
-        nq2 = sum(c * c for c in p["q"])
-        for name, v in p["form_factors"].items():
-            out.setdefault((name, nq2), v)
-    return out
-
-
 def point_pulls(run, truth, methods, out):
     """Pulls of the points in formfactors.csv, appended to out[(method, form factor)]."""
-    want = point_truth(truth)
+    want = shell_truth(truth)
     with open(os.path.join(run, "formfactors.csv")) as f:
         for row in csv.DictReader(f):
             if row["method"] not in methods or not row["shell"]:

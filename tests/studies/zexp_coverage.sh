@@ -27,33 +27,9 @@ n=${2:-10}
 spec=${3:-$here/heavy_vector.mock.yaml}
 pipeline=${4:-$here/heavy_vector.pipeline.yaml}
 base=${5:-7100}
-if [ -n "${FF_KEEP:-}" ]; then
-    work=$FF_KEEP
-    rm -rf "$work"
-    mkdir -p "$work"
-else
-    work=$(mktemp -d /tmp/ff-zexp.XXXXXX)
-    trap 'rm -rf "$work"' EXIT
-fi
-extra=""
-for s in ${FF_SET:-}; do
-    extra="$extra --set $s"
-done
-
-seed=1
-while [ "$seed" -le "$n" ]; do
-    d="$work/s$seed"
-    mkdir -p "$d"
-    sed -e "s/^seed: .*/seed: $((base + seed))/" "$spec" >"$d/spec.yaml"
-    "$bin" mock "$d/spec.yaml" --out "$d/data" >/dev/null
-    # shellcheck disable=SC2086 # $extra is a list of arguments
-    if "$bin" run "$pipeline" --out "$d/run" --quiet \
-        --set "data.twopt=$d/data/twopt.csv" --set "data.threept=$d/data/threept.csv" \
-        --set "output.plots=[]" $extra >/dev/null 2>"$d/err"; then
-        :
-    else
-        echo "seed $((base + seed)): run failed: $(head -c 300 "$d/err")" >&2
-    fi
-    seed=$((seed + 1))
-done
+configs=-
+prefix=ff-zexp
+edit=""
+# shellcheck source=tests/studies/mock_seeds.sh
+. "$here/mock_seeds.sh"
 python3 "$here/zexp_coverage.py" "$work" ${FF_METHODS:-two_state}
