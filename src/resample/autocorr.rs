@@ -103,15 +103,15 @@ fn deviations(x: &[f64], mean: f64) -> Vec<f64> {
     x.iter().map(|v| v - mean).collect()
 }
 
+/// `Γ(t)` of stored deviations (`a - 0.0` is `a` exactly, so this is [`gamma_about`] bit for
+/// bit).
 fn gamma_at(dev: &[f64], t: usize) -> f64 {
-    let n = dev.len();
-    let s: f64 = dev[..n - t].iter().zip(&dev[t..]).map(|(a, b)| a * b).sum();
-    s / (n - t) as f64
+    gamma_about(dev, 0.0, t)
 }
 
-/// [`gamma_at`] of the deviations of `x` from `mean`, each deviation formed where it is used
-/// (the same operations in the same order, so the same bits) instead of stored: pooling every
-/// time series of a table would otherwise copy the whole table.
+/// `Γ(t)` of the deviations of `x` from `mean`, each deviation formed where it is used
+/// instead of stored: pooling every time series of a table would otherwise copy the whole
+/// table.
 fn gamma_about(x: &[f64], mean: f64, t: usize) -> f64 {
     let n = x.len();
     let s: f64 = x[..n - t]

@@ -8,6 +8,7 @@ use super::ChannelValue;
 use crate::data::{Current, Momentum, Projector};
 use crate::kinematics::factors::{coefficients, FormFactor};
 use crate::kinematics::setup::KinematicSetup;
+use crate::kinematics::OnShell;
 use nalgebra::Complex;
 use rayon::prelude::*;
 use std::collections::HashMap;
@@ -41,7 +42,7 @@ impl CoefficientCache {
         setup: &KinematicSetup,
         all: &[FormFactor],
         c: &ChannelValue,
-        central: Option<&(crate::kinematics::OnShell, Vec<Complex<f64>>)>,
+        central: Option<&(OnShell, Vec<Complex<f64>>)>,
         n: usize,
     ) -> Arc<Vec<Coefficients>> {
         let key = (c.pf, c.q, c.current, c.projector);
@@ -79,10 +80,21 @@ pub(super) fn channel_coefficients(
     s: Option<usize>,
 ) -> Coefficients {
     let k = setup.on_shell(c.pf, c.q, s).map_err(|e| e.to_string())?;
-    let list = coefficients(setup.hadron, c.projector, c.current, &k);
-    Ok(if list.is_empty() {
+    Ok(coefficients_at(setup, all, c, &k))
+}
+
+/// The coefficients of every form factor of `all` in channel `c` at kinematics `k` (zeros when
+/// the channel has none).
+pub(super) fn coefficients_at(
+    setup: &KinematicSetup,
+    all: &[FormFactor],
+    c: &ChannelValue,
+    k: &OnShell,
+) -> Vec<Complex<f64>> {
+    let list = coefficients(setup.hadron, c.projector, c.current, k);
+    if list.is_empty() {
         vec![Complex::new(0.0, 0.0); all.len()]
     } else {
         list.into_iter().map(|(_, v)| v).collect()
-    })
+    }
 }

@@ -10,11 +10,11 @@
 //! a condition number of a few hundred and a meaningless solution above any fixed threshold.
 //! The numeric solve then keeps only as many singular directions as the on-shell system has.
 
-use super::cache::{channel_coefficients, CoefficientCache, Coefficients};
+use super::cache::{channel_coefficients, coefficients_at, CoefficientCache, Coefficients};
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
-use crate::kinematics::factors::{coefficients, FormFactor};
+use crate::kinematics::factors::FormFactor;
 use crate::kinematics::momentum::{continuum_energy, q2_to_gev2};
 use crate::kinematics::setup::{at, KinematicSetup};
 use crate::kinematics::OnShell;
@@ -201,9 +201,10 @@ impl<'a> ShellSystem<'a> {
             let (mut on, _) = self.central[&ci].clone();
             on.ef = continuum_energy(mass, on.pf);
             on.ei = continuum_energy(mass, on.pi);
-            let c = self.members[ci];
-            let list = coefficients(self.setup.hadron, c.projector, c.current, &on);
-            cache.insert(ci, list.into_iter().map(|(_, v)| v).collect());
+            cache.insert(
+                ci,
+                coefficients_at(self.setup, self.all, self.members[ci], &on),
+            );
         }
         for (r, &(ci, imag)) in self.rows.iter().enumerate() {
             let kc = &cache[&ci];
