@@ -105,11 +105,13 @@ impl<'a> ThreePointSetup<'a> {
         ThreePointSetup {
             sink,
             source,
-            r: spec
-                .transitions
-                .for_kind(p.current.kind())
-                .map(|t| t.matrix(n_states))
-                .unwrap_or_else(|| ground_only(n_states)),
+            r: conserve_charge(
+                spec.transitions
+                    .for_kind(p.current.kind())
+                    .map(|t| t.matrix(n_states))
+                    .unwrap_or_else(|| ground_only(n_states)),
+                p,
+            ),
             label: format!(
                 "threept {tsep} {:?} {:?} {} {}",
                 p.pf, p.q, p.current, p.projector
@@ -190,6 +192,23 @@ pub(super) fn threept_series(
 }
 
 /// Transition strengths when none are given: the ground state alone.
+/// The transition strengths of one channel with current conservation imposed: at `q = 0`
+/// (equal sink and source momenta, hence equal twists) the charge `V4` connects no two
+/// different states, since `q_mu <m|V^mu|n> = (E_m - E_n) <m|V_4|n> = 0` there (methods §8).
+/// The diagonal strengths are left as the spec gives them.
+fn conserve_charge(mut r: Vec<Vec<f64>>, p: &Planned) -> Vec<Vec<f64>> {
+    if p.current == Current::V4 && p.q == [0, 0, 0] {
+        for (m, row) in r.iter_mut().enumerate() {
+            for (n, strength) in row.iter_mut().enumerate() {
+                if m != n {
+                    *strength = 0.0;
+                }
+            }
+        }
+    }
+    r
+}
+
 fn ground_only(n_states: usize) -> Vec<Vec<f64>> {
     Transitions {
         source_excited: vec![0.0; n_states - 1],

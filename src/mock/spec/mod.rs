@@ -33,7 +33,8 @@ pub struct MockSpec {
     pub hadron: HadronSpec,
     /// Form-factor models of the ground-to-ground matrix element, by form factor.
     pub form_factors: FormFactorSpec,
-    /// Excited-state transition strengths relative to the ground-state matrix element.
+    /// Excited-state transition strengths relative to the ground-state matrix element (the
+    /// charge `V4` at `q = 0` keeps only the diagonal ones: current conservation).
     #[serde(default)]
     pub transitions: TransitionSpec,
     /// Which two- and three-point channels to write.
