@@ -281,6 +281,60 @@ fn two_state_ratio_follows_the_two_state_form() {
     }
 }
 
+// Current conservation (methods.md §8): `q_mu <m|V^mu|n> = (E_m - E_n) <m|V_4|n> = 0` at equal
+// sink and source momenta, so at q = 0 the charge V_4 connects no two different states and
+// the ratio of the two-state form above keeps only its b_if term: with a = A_1/A_0 and
+// D = E_1 - E_0 at p_f, R = Pi (1 + r_11 a e^{-D tsep}) / (1 + a e^{-D tsep}) at every tau
+// (analytic, from the form above with b_i = b_f = 0, a_i = a_f, D_i = D_f). A spatial current
+// at q = 0 is not constrained and keeps its tau dependence.
+#[test]
+fn charge_at_zero_momentum_transfer_connects_no_two_states() {
+    let text = fixture_text("two_state.yaml").replace(
+        "      - {pf: [0, 0, 1], q: [0, 1, 0]}\n",
+        "      - {pf: [0, 0, 1], q: [0, 1, 0]}\n      - {pf: [0, 0, 1], q: [0, 0, 0]}\n",
+    );
+    let e = run(&from_text(&text));
+    let (pf, q) = ([0, 0, 1], [0, 0, 0]);
+    let levels = e.truth.levels(pf).expect("spectrum at p_f");
+    let a = levels.amplitudes[1] / levels.amplitudes[0];
+    let d = levels.energies[1] - levels.energies[0];
+    let pi = e
+        .truth
+        .matrix_element(pf, q, Current::V4, Projector::Unpol)
+        .expect("charge channel generated");
+    for tsep in [6u32, 10, 20] {
+        let key = c3_key(tsep, pf, q, Current::V4, Projector::Unpol);
+        let decay = a * (-d * tsep as f64).exp();
+        let want = pi.re * (1.0 + 0.5 * decay) / (1.0 + decay);
+        for tau in 1..tsep as usize {
+            assert_relative_eq!(ratio(&e, &key, tau).0, want, max_relative = 1e-9);
+        }
+    }
+    let spatial: Vec<&ThreePointKey> = e
+        .threept
+        .channels
+        .keys()
+        .filter(|k| k.q == q && k.tsep == 10 && k.current != Current::V4)
+        .filter(|k| k.current.name().starts_with('V'))
+        .collect();
+    assert!(!spatial.is_empty(), "a spatial vector channel at q = 0");
+    for key in spatial {
+        let part = |tau| {
+            let (re, im) = ratio(&e, key, tau);
+            if re.abs() >= im.abs() {
+                re
+            } else {
+                im
+            }
+        };
+        let (early, middle) = (part(1), part(5));
+        assert!(
+            (early - middle).abs() > 1e-3 * middle.abs(),
+            "{key:?} keeps its transitions: {early} vs {middle}"
+        );
+    }
+}
+
 fn c3_key(tsep: u32, pf: Momentum, q: Momentum, c: Current, p: Projector) -> ThreePointKey {
     ThreePointKey {
         tsep,
