@@ -370,11 +370,13 @@ fn assert_form_factor_closure(pulls: &[(String, FormFactor, f64)], what: &str) {
 // tsep e^{-Delta tsep}, a few per mille) cover the truth like Gaussians (binomial coverage,
 // see assert_coverage); the plateau at tsep = 4 carries a bias of about
 // 2 b e^{-Delta tsep / 2} = 0.36 of the matrix element, tens of its errors, so it is off by
-// more than 2 sigma in (nearly) every channel, and the cross-check (plateau(4) against
-// two-state, error of the difference from its resamples) flags above 2 sigma exactly the
-// channels whose plateau is off.
-// Observed (seed 4102): two-state 11/19 within 1 sigma and 17/19 within 2; summation 10/19
-// and 18/19; plateau(4) off by 64 to 850 sigma in 19/19, flagged in exactly those 19.
+// more than 2 sigma in (nearly) every channel with q != 0, and the cross-check (plateau(4)
+// against two-state, error of the difference from its resamples) flags above 2 sigma exactly
+// the channels whose plateau is off. The charge at q = 0 has no contamination (current
+// conservation, methods.md §8): its plateau and its cross-check are within errors.
+// Observed (seed 4102): two-state 12/19 within 1 sigma and 17/19 within 2; summation 13/19
+// and 19/19; plateau(4) off by 70 to 152 sigma in 18/18, flagged in exactly those 18; the
+// charge's plateau(4) at -0.46 sigma.
 #[test]
 fn ratio_closure_with_strong_contamination() {
     let spec = load("strong_contamination.yaml");
@@ -417,20 +419,33 @@ fn ratio_closure_with_strong_contamination() {
         );
         two.push(ts);
         sum.push(sm);
+        if k.q == [0, 0, 0] {
+            // The charge at q = 0 is not contaminated (current conservation, methods.md §8):
+            // its plateau is the matrix element within errors, and the check says so.
+            assert!(pl.abs() < 3.0, "charge plateau(4) pull {pl}");
+            assert!(row.re.sigma < 3.0, "charge cross-check {}", row.re.sigma);
+            continue;
+        }
         let off = pl.abs() > 2.0;
         plateau_off += usize::from(off);
         let flagged = row.flag >= Flag::Above2Sigma;
         flag_agrees += usize::from(flagged == off);
     }
-    println!("plateau(4) off by 2 sigma in {plateau_off}/{n}; flags agree in {flag_agrees}/{n}");
+    println!(
+        "plateau(4) off by 2 sigma in {plateau_off}/{}; flags agree in {flag_agrees}/{}",
+        n - 1,
+        n - 1
+    );
     assert_coverage(&two, "two-state");
     assert_coverage(&sum, "summation");
     assert!(
-        plateau_off >= 17,
-        "plateau(4) off by 2 sigma in {plateau_off} of {n}"
+        plateau_off >= 16,
+        "plateau(4) off by 2 sigma in {plateau_off} of {}",
+        n - 1
     );
     assert_eq!(
-        flag_agrees, n,
+        flag_agrees,
+        n - 1,
         "the cross-check flags exactly the plateaus that are off"
     );
 }

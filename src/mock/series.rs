@@ -194,15 +194,14 @@ pub(super) fn threept_series(
 /// Transition strengths when none are given: the ground state alone.
 /// The transition strengths of one channel with current conservation imposed: at `q = 0`
 /// (equal sink and source momenta, hence equal twists) the charge `V4` connects no two
-/// different states, since `q_mu <m|V^mu|n> = (E_m - E_n) <m|V_4|n> = 0` there (methods §8).
-/// The diagonal strengths are left as the spec gives them.
+/// different states, since `q_mu <m|V^mu|n> = (E_m - E_n) <m|V_4|n> = 0` there, and it counts
+/// the same charge in every state, so `r[n][n] = r[0][0] = 1`: the ratio of the charge is then
+/// exactly the ground state's matrix element at every `tau` and `tsep` (methods §8).
 fn conserve_charge(mut r: Vec<Vec<f64>>, p: &Planned) -> Vec<Vec<f64>> {
     if p.current == Current::V4 && p.q == [0, 0, 0] {
         for (m, row) in r.iter_mut().enumerate() {
             for (n, strength) in row.iter_mut().enumerate() {
-                if m != n {
-                    *strength = 0.0;
-                }
+                *strength = if m == n { 1.0 } else { 0.0 };
             }
         }
     }

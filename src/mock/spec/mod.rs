@@ -33,8 +33,9 @@ pub struct MockSpec {
     pub hadron: HadronSpec,
     /// Form-factor models of the ground-to-ground matrix element, by form factor.
     pub form_factors: FormFactorSpec,
-    /// Excited-state transition strengths relative to the ground-state matrix element (the
-    /// charge `V4` at `q = 0` keeps only the diagonal ones: current conservation).
+    /// Excited-state transition strengths relative to the ground-state matrix element (not
+    /// used by the charge `V4` at `q = 0`, which current conservation makes diagonal with
+    /// strength 1 in every state).
     #[serde(default)]
     pub transitions: TransitionSpec,
     /// Which two- and three-point channels to write.
