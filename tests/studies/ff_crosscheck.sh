@@ -14,7 +14,8 @@
 # SEED_BASE+N (default base 9000, the seeds of final_coverage.sh; use another base for a
 # fresh set). Environment as final_coverage.sh: FF_KEEP=DIR keeps the runs, FF_SET="key=value
 # ..." adds `--set` overrides. Not part of the test suite (well under a second per seed with a
-# release build). Needs python3 with PyYAML.
+# release build). Needs python3 with PyYAML. Other rules for the verdict can be scored offline
+# on kept runs: python3 tests/studies/ff_crossrule.py DIR [DIR ...].
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
 root=$(cd "$here/../.." && pwd)
