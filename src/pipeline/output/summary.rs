@@ -6,8 +6,31 @@
 
 use super::tables::{quoted, summary_table};
 use crate::pipeline::run::{DataSummary, RunResults};
+use crate::ratio::Estimator;
 use crate::report::{render_text, value_error, Cell, Table};
+use std::collections::BTreeMap;
 use std::path::{Component, Path, PathBuf};
+
+/// The final method of a run without final values, with the channels where another method
+/// stood in for it (their ratio plots and final estimates; the run's warnings say why), from
+/// the estimator each channel used.
+fn final_method_line(wanted: Estimator, used: impl Iterator<Item = Estimator>) -> String {
+    let mut stood_in: BTreeMap<String, usize> = BTreeMap::new();
+    for e in used.filter(|e| e.kind() != wanted.kind()) {
+        *stood_in.entry(e.kind().to_string()).or_default() += 1;
+    }
+    if stood_in.is_empty() {
+        return format!("final method: {wanted}\n");
+    }
+    let list: Vec<String> = stood_in
+        .iter()
+        .map(|(e, n)| format!("{e} on {n} channel(s)"))
+        .collect();
+    format!(
+        "final method: {wanted} ({} stood in for it; see the warnings)\n",
+        list.join(", ")
+    )
+}
 
 /// Text for the terminal after a run.
 pub fn terminal_summary(results: &RunResults) -> String {
@@ -50,7 +73,11 @@ pub fn terminal_summary(results: &RunResults) -> String {
         out.push_str(&render_text(&t, 40));
     }
     if results.final_results.is_empty() {
-        out.push_str(&format!("final method: {}\n", results.final_method));
+        let used = results.channels.iter().flat_map(|c| c.values());
+        out.push_str(&final_method_line(
+            results.final_method,
+            used.map(|c| c.final_method),
+        ));
     }
     if let Some(d) = &results.data {
         out.push_str(&data_line(d));
@@ -175,4 +202,34 @@ fn tidy_for_display(p: &Path) -> PathBuf {
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn final_method_line_names_the_methods_that_stood_in() {
+        let two = Estimator::TwoState;
+        let all_ran = [two, two].into_iter();
+        assert_eq!(final_method_line(two, all_ran), "final method: two_state\n");
+        let used = [
+            two,
+            Estimator::Summation,
+            Estimator::plateau_at(12),
+            Estimator::plateau_at(14),
+        ];
+        assert_eq!(
+            final_method_line(two, used.into_iter()),
+            "final method: two_state (plateau on 2 channel(s), summation on 1 channel(s) stood \
+             in for it; see the warnings)\n"
+        );
+        // A plateau made concrete per channel is still the plateau.
+        let plateau = Estimator::Plateau { tsep: None };
+        let used = [Estimator::plateau_at(8), Estimator::plateau_at(14)];
+        assert_eq!(
+            final_method_line(plateau, used.into_iter()),
+            "final method: plateau\n"
+        );
+    }
 }
