@@ -77,6 +77,7 @@ pub(in crate::pipeline) fn decompose_all(
         spacing_fm: Some(spec.ensemble.spacing_fm),
     };
     let mut rows = Vec::new();
+    let mut shell_warnings = SharedWarnings::default();
     let by_method = method_values(&spec.excited_states.methods, channels);
     // One setup for every method: their kinematic coefficients are computed once.
     let cache = kinematics::CoefficientCache::new();
@@ -89,26 +90,63 @@ pub(in crate::pipeline) fn decompose_all(
         }
         let dec = kinematics::decompose_cached(&values, &setup, d, &cache)?;
         for s in &dec.skipped {
-            rec.warn(format!(
-                "decomposition {method}: shell {} ({:?}) skipped: {}",
-                s.label, s.kind, s.reason
-            ));
+            shell_warnings.add(
+                method,
+                format!("shell {} ({:?}) skipped: {}", s.label, s.kind, s.reason),
+            );
         }
         for shell in &dec.shells {
             if !shell.undetermined.is_empty() {
                 let names: Vec<&str> = shell.undetermined.iter().map(|f| f.name()).collect();
-                rec.warn(format!(
-                    "decomposition {method}: shell {} ({:?}) does not determine {} (a singular value below {:e} of the largest): not reported; needs another q direction or projector",
-                    shell.label,
-                    shell.kind,
-                    names.join(", "),
-                    kinematics::SINGULAR_THRESHOLD
-                ));
+                shell_warnings.add(
+                    method,
+                    format!(
+                        "shell {} ({:?}) does not determine {} (a singular value below {:e} of the largest): not reported; needs another q direction or projector",
+                        shell.label,
+                        shell.kind,
+                        names.join(", "),
+                        kinematics::SINGULAR_THRESHOLD
+                    ),
+                );
             }
             rows.extend(shell_rows(method, shell, &spec.renormalization));
         }
     }
+    for w in shell_warnings.lines() {
+        rec.warn(w);
+    }
     Ok(rows)
+}
+
+/// Warnings about a shell, each said once with every estimator it concerns: a shell's
+/// kinematics are the same for all estimators, so a singular shell is singular for each.
+#[derive(Default)]
+struct SharedWarnings {
+    /// In the order first seen: the message and the estimators that gave it.
+    entries: Vec<(String, Vec<Estimator>)>,
+}
+
+impl SharedWarnings {
+    fn add(&mut self, method: Estimator, message: String) {
+        match self.entries.iter_mut().find(|(m, _)| *m == message) {
+            Some((_, methods)) => methods.push(method),
+            None => self.entries.push((message, vec![method])),
+        }
+    }
+
+    /// `decomposition two_state: ...`, or `decomposition (plateau_tsep8, two_state): ...`.
+    fn lines(&self) -> Vec<String> {
+        self.entries
+            .iter()
+            .map(|(message, methods)| {
+                let names: Vec<String> = methods.iter().map(|m| m.to_string()).collect();
+                match names.as_slice() {
+                    [one] => format!("decomposition {one}: {message}"),
+                    _ => format!("decomposition ({}): {message}", names.join(", ")),
+                }
+            })
+            .collect()
+    }
 }
 
 fn shell_rows(method: Estimator, shell: &ShellResult, z: &ZFactors) -> Vec<FormFactorRow> {
@@ -128,4 +166,24 @@ fn shell_rows(method: Estimator, shell: &ShellResult, z: &ZFactors) -> Vec<FormF
             condition: shell.condition,
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_shell_warning_is_said_once_with_every_estimator() {
+        let mut w = SharedWarnings::default();
+        w.add(Estimator::plateau_at(8), "shell A singular".into());
+        w.add(Estimator::Summation, "shell B skipped".into());
+        w.add(Estimator::TwoState, "shell A singular".into());
+        assert_eq!(
+            w.lines(),
+            [
+                "decomposition (plateau_tsep8, two_state): shell A singular",
+                "decomposition summation: shell B skipped",
+            ]
+        );
+    }
 }
