@@ -191,7 +191,6 @@ pub(super) fn threept_series(
     s
 }
 
-/// Transition strengths when none are given: the ground state alone.
 /// The transition strengths of one channel with current conservation imposed: at `q = 0`
 /// (equal sink and source momenta, hence equal twists) the charge `V4` connects no two
 /// different states, since `q_mu <m|V^mu|n> = (E_m - E_n) <m|V_4|n> = 0` there, and it counts
@@ -208,6 +207,7 @@ fn conserve_charge(mut r: Vec<Vec<f64>>, p: &Planned) -> Vec<Vec<f64>> {
     r
 }
 
+/// Transition strengths when none are given: the ground state alone.
 fn ground_only(n_states: usize) -> Vec<Vec<f64>> {
     Transitions {
         source_excited: vec![0.0; n_states - 1],
