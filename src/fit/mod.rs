@@ -11,9 +11,11 @@
 
 pub mod linear;
 pub mod nonlinear;
+mod response;
 mod weights;
 
 pub use nonlinear::FitSettings;
+pub use response::Response;
 pub use weights::{Weighting, Weights};
 
 use nalgebra::{DMatrix, DVector};

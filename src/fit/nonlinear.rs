@@ -8,8 +8,11 @@
 
 use super::{check_priors, lstsq, p_value, FitReport, Model, Prior, Weights};
 use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt, MinimizationReport};
-use nalgebra::allocator::Allocator;
-use nalgebra::{Const, DMatrix, DVector, DefaultAllocator, Dim, Dyn, OMatrix, OVector, Owned};
+use nalgebra::allocator::{Allocator, Reallocator};
+use nalgebra::{
+    Const, DMatrix, DVector, DefaultAllocator, Dim, DimMax, DimMaximum, DimMin, Dyn, OMatrix,
+    OVector, Owned,
+};
 use std::cell::RefCell;
 
 /// Solver settings (see the `levenberg-marquardt` crate / MINPACK `lmder` for their meaning).
@@ -63,11 +66,12 @@ impl FitSettings {
     }
 }
 
-/// One fit as the solver sees it. `N` is the parameter dimension: a compile-time size for
-/// the common parameter counts (the solver's parameter-sized vectors then live on the stack
-/// instead of being allocated at every step; the arithmetic is the same generic code, so the
+/// One fit as the solver sees it. `M` is the number of residual rows (data points plus
+/// priors) and `N` the parameter dimension: compile-time sizes for the common shapes (the
+/// solver's vectors and matrices then live on the stack instead of being allocated at every
+/// step, and its loops have known trip counts; the arithmetic is the same generic code, so the
 /// results are the same bits as with `Dyn`), `Dyn` otherwise.
-struct Problem<'a, N: Dim>
+struct Problem<'a, M: Dim, N: Dim>
 where
     DefaultAllocator: Allocator<N>,
 {
@@ -76,27 +80,19 @@ where
     weights: &'a Weights,
     priors: Vec<(usize, Prior)>,
     x: OVector<f64, N>,
+    rows: M,
     /// Model values, then residuals before whitening (one buffer per fit, not per step).
     values: RefCell<Vec<f64>>,
     /// The model's Jacobian before whitening.
     model_jacobian: RefCell<DMatrix<f64>>,
 }
 
-impl<N: Dim> Problem<'_, N>
+impl<M: Dim, N: Dim> LeastSquaresProblem<f64, M, N> for Problem<'_, M, N>
 where
-    DefaultAllocator: Allocator<N>,
+    DefaultAllocator: Allocator<N> + Allocator<M> + Allocator<M, N>,
 {
-    fn n_rows(&self) -> usize {
-        self.y.len() + self.priors.len()
-    }
-}
-
-impl<N: Dim> LeastSquaresProblem<f64, Dyn, N> for Problem<'_, N>
-where
-    DefaultAllocator: Allocator<N> + Allocator<Dyn> + Allocator<Dyn, N>,
-{
-    type ResidualStorage = Owned<f64, Dyn>;
-    type JacobianStorage = Owned<f64, Dyn, N>;
+    type ResidualStorage = Owned<f64, M>;
+    type JacobianStorage = Owned<f64, M, N>;
     type ParameterStorage = Owned<f64, N>;
 
     fn set_params(&mut self, x: &OVector<f64, N>) {
@@ -107,7 +103,7 @@ where
         self.x.clone()
     }
 
-    fn residuals(&self) -> Option<DVector<f64>> {
+    fn residuals(&self) -> Option<OVector<f64, M>> {
         let n = self.y.len();
         let mut f = self.values.borrow_mut();
         f.clear();
@@ -116,27 +112,27 @@ where
         for (fi, yi) in f.iter_mut().zip(self.y) {
             *fi -= yi;
         }
-        let mut r = DVector::<f64>::zeros(self.n_rows());
+        let mut r = OVector::<f64, M>::zeros_generic(self.rows, Const::<1>);
         self.weights.whiten(&f, &mut r.as_mut_slice()[..n]);
         for (k, (j, p)) in self.priors.iter().enumerate() {
             r[n + k] = (self.x[*j] - p.mean) / p.width;
         }
-        r.iter().all(|v| v.is_finite()).then_some(r)
+        r.as_slice().iter().all(|v| v.is_finite()).then_some(r)
     }
 
-    fn jacobian(&self) -> Option<OMatrix<f64, Dyn, N>> {
+    fn jacobian(&self) -> Option<OMatrix<f64, M, N>> {
         let n = self.y.len();
-        let (rows, np) = (Dyn(self.n_rows()), self.x.shape_generic().0);
+        let np = self.x.shape_generic().0;
         let mut jm = self.model_jacobian.borrow_mut();
         jm.fill(0.0);
         self.model.jacobian(self.x.as_slice(), &mut jm);
-        let mut j = OMatrix::<f64, Dyn, N>::zeros_generic(rows, np);
+        let mut j = OMatrix::<f64, M, N>::zeros_generic(self.rows, np);
         self.weights
-            .whiten_columns(jm.as_slice(), n, j.as_mut_slice(), rows.value());
+            .whiten_columns(jm.as_slice(), n, j.as_mut_slice(), self.rows.value());
         for (k, (col, p)) in self.priors.iter().enumerate() {
             j[(n + k, *col)] = 1.0 / p.width;
         }
-        j.iter().all(|v| v.is_finite()).then_some(j)
+        j.as_slice().iter().all(|v| v.is_finite()).then_some(j)
     }
 }
 
@@ -242,12 +238,7 @@ fn solve(
         priors,
         start,
     };
-    let (params, residuals, jacobian, report) = match np {
-        2 => minimise(parts, Const::<2>, &lm, with_covariance),
-        4 => minimise(parts, Const::<4>, &lm, with_covariance),
-        6 => minimise(parts, Const::<6>, &lm, with_covariance),
-        _ => minimise(parts, Dyn(np), &lm, with_covariance),
-    };
+    let (params, residuals, jacobian, report) = dispatch(parts, &lm, with_covariance);
     let (chi2, covariance) = match (residuals, jacobian) {
         (Some(r), Some(j)) => (r.norm_squared(), lstsq(&j, &r).map(|(_, cov)| cov)),
         (Some(_), None) if with_covariance => (f64::NAN, None),
@@ -290,15 +281,40 @@ type Minimum = (
     MinimizationReport<f64>,
 );
 
-/// Run the solver with parameter dimension `np` (see [`Problem`]).
-fn minimise<N: Dim>(
+/// Run the solver with compile-time sizes where the shape is a common one (see [`Problem`]):
+/// 2, 4 or 6 parameters (one to three states of a two-point fit, a dipole) on up to 16
+/// residual rows (data points plus priors); `Dyn` rows or parameters otherwise.
+fn dispatch(parts: Parts, lm: &LevenbergMarquardt<f64>, with_covariance: bool) -> Minimum {
+    let np = parts.start.len();
+    let m = parts.y.len() + parts.priors.len();
+    macro_rules! rows {
+        ($n:literal: $($r:literal)*) => {
+            match m {
+                $($r => minimise(parts, Const::<$r>, Const::<$n>, lm, with_covariance),)*
+                _ => minimise(parts, Dyn(m), Const::<$n>, lm, with_covariance),
+            }
+        };
+    }
+    match np {
+        2 => rows!(2: 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16),
+        4 => rows!(4: 4 5 6 7 8 9 10 11 12 13 14 15 16),
+        6 => rows!(6: 6 7 8 9 10 11 12 13 14 15 16),
+        _ => minimise(parts, Dyn(m), Dyn(np), lm, with_covariance),
+    }
+}
+
+/// Run the solver with `rows` residual rows and parameter dimension `np` (see [`Problem`]).
+fn minimise<M, N: Dim>(
     parts: Parts,
+    rows: M,
     np: N,
     lm: &LevenbergMarquardt<f64>,
     with_covariance: bool,
 ) -> Minimum
 where
-    DefaultAllocator: Allocator<N> + Allocator<Dyn> + Allocator<Dyn, N>,
+    M: DimMin<N> + DimMax<N>,
+    DefaultAllocator:
+        Allocator<N> + Allocator<M> + Allocator<M, N> + Reallocator<f64, M, N, DimMaximum<M, N>, N>,
 {
     let n = parts.y.len();
     let problem = Problem {
@@ -307,12 +323,15 @@ where
         weights: parts.weights,
         priors: parts.priors,
         x: OVector::<f64, N>::from_iterator_generic(np, Const::<1>, parts.start.iter().copied()),
+        rows,
         values: RefCell::new(Vec::with_capacity(n)),
         model_jacobian: RefCell::new(DMatrix::zeros(n, np.value())),
     };
     let (problem, report) = lm.minimize(problem);
     let params: Vec<f64> = problem.x.iter().copied().collect();
-    let residuals = problem.residuals();
+    let residuals = problem
+        .residuals()
+        .map(|r| DVector::from_column_slice(r.as_slice()));
     let jacobian = match residuals {
         Some(_) if with_covariance => problem
             .jacobian()
@@ -320,4 +339,96 @@ where
         _ => None,
     };
     (params, residuals, jacobian, report)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// `a e^{-b t} + c e^{-d t}` at `t = 0..n`.
+    struct TwoExp(usize);
+
+    impl Model for TwoExp {
+        fn n_params(&self) -> usize {
+            4
+        }
+        fn n_points(&self) -> usize {
+            self.0
+        }
+        fn eval(&self, p: &[f64], out: &mut [f64]) {
+            for (t, o) in out.iter_mut().enumerate() {
+                let t = t as f64;
+                *o = p[0] * (-p[1] * t).exp() + p[2] * (-p[3] * t).exp();
+            }
+        }
+        fn jacobian(&self, p: &[f64], out: &mut DMatrix<f64>) {
+            for i in 0..self.0 {
+                let t = i as f64;
+                let (e1, e2) = ((-p[1] * t).exp(), (-p[3] * t).exp());
+                out[(i, 0)] = e1;
+                out[(i, 1)] = -t * p[0] * e1;
+                out[(i, 2)] = e2;
+                out[(i, 3)] = -t * p[2] * e2;
+            }
+        }
+    }
+
+    #[test]
+    fn compile_time_sizes_give_the_same_bits_as_dynamic_ones() {
+        // The crate's generic code does the same operations for Const and Dyn shapes, so the
+        // fixed-size dispatch must not move a bit (from the design of `dispatch`).
+        let n = 11;
+        let model = TwoExp(n);
+        let y: Vec<f64> = (0..n)
+            .map(|t| {
+                let t = t as f64;
+                1.3 * (-0.4 * t).exp() + 0.7 * (-1.1 * t).exp() + 1e-4 * (2.1 * t).sin()
+            })
+            .collect();
+        let cov = DMatrix::from_fn(n, n, |i, j| {
+            let d = (i as f64 - j as f64).abs();
+            1e-6 * y[i] * y[j] * 0.5f64.powf(d) + if i == j { 1e-10 } else { 0.0 }
+        });
+        let Ok(w) = Weights::from_covariance(&cov) else {
+            panic!("test covariance refused")
+        };
+        let lm = LevenbergMarquardt::new();
+        let priors = vec![(3, Prior::new(1.0, 0.5))];
+        let parts = || Parts {
+            model: &model,
+            y: &y,
+            weights: &w,
+            priors: priors.clone(),
+            start: &[1.0, 0.3, 0.5, 1.0],
+        };
+        let (p_fixed, r_fixed, j_fixed, rep_fixed) =
+            minimise(parts(), Const::<12>, Const::<4>, &lm, true);
+        let (p_dyn, r_dyn, j_dyn, rep_dyn) = minimise(parts(), Dyn(12), Dyn(4), &lm, true);
+        assert!(rep_fixed.termination.was_successful());
+        assert_eq!(
+            rep_fixed.number_of_evaluations,
+            rep_dyn.number_of_evaluations
+        );
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&p_fixed), bits(&p_dyn));
+        let (Some(r_fixed), Some(r_dyn)) = (r_fixed, r_dyn) else {
+            panic!("no residuals")
+        };
+        assert_eq!(bits(r_fixed.as_slice()), bits(r_dyn.as_slice()));
+        let (Some(j_fixed), Some(j_dyn)) = (j_fixed, j_dyn) else {
+            panic!("no Jacobian")
+        };
+        assert_eq!(bits(j_fixed.as_slice()), bits(j_dyn.as_slice()));
+        // And `fit` (which dispatches to the fixed sizes) reports that minimum.
+        let report = fit(
+            &model,
+            &y,
+            &w,
+            &[None, None, None, Some(Prior::new(1.0, 0.5))],
+            &[1.0, 0.3, 0.5, 1.0],
+            &FitSettings::default(),
+        );
+        assert!(report.converged, "{}", report.message);
+        assert_eq!(bits(&report.params), bits(&p_dyn));
+    }
 }

@@ -222,14 +222,26 @@ impl Weights {
 
     /// `out = W r` (lower-triangular product).
     pub fn whiten(&self, r: &[f64], out: &mut [f64]) {
-        let n = self.len().min(r.len()).min(out.len());
-        out[..n].fill(0.0);
-        // Column by column: `W` is stored column-major, so this walks memory in order.
-        for (j, rj) in r.iter().enumerate().take(n) {
+        let len = self.len();
+        let n = len.min(r.len()).min(out.len());
+        let w = self.whitening.as_slice();
+        macro_rules! fixed {
+            ($($k:literal)*) => {
+                match n {
+                    $($k => whiten_fixed::<$k>(w, len, r, out),)*
+                    _ => whiten_any(w, len, n, r, out),
+                }
+            };
+        }
+        fixed!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    }
+
+    /// `out = W^T u` (upper-triangular product).
+    pub fn whiten_transposed(&self, u: &[f64], out: &mut [f64]) {
+        let n = self.len().min(u.len()).min(out.len());
+        for (j, o) in out.iter_mut().enumerate().take(n) {
             let col = &self.whitening.as_slice()[j * self.len()..(j + 1) * self.len()];
-            for (o, w) in out[j..n].iter_mut().zip(&col[j..n]) {
-                *o += w * rj;
-            }
+            *o = col[j..n].iter().zip(&u[j..n]).map(|(w, x)| w * x).sum();
         }
     }
 
@@ -272,6 +284,33 @@ impl Weights {
     }
 }
 
+/// `out[..n] = W r` for the `n x n` lower triangle of the column-major `w` (columns of `len`
+/// values): every `out[i]` sums `W[i][j] r[j]` over `j = 0..=i` in that order, starting from
+/// zero. [`whiten_fixed`] does the same operations in the same order with the size known at
+/// compile time (its loops unrolled), so both give the same bits.
+fn whiten_any(w: &[f64], len: usize, n: usize, r: &[f64], out: &mut [f64]) {
+    out[..n].fill(0.0);
+    // Column by column: `W` is stored column-major, so this walks memory in order.
+    for (j, rj) in r.iter().enumerate().take(n) {
+        let col = &w[j * len..(j + 1) * len];
+        for (o, w) in out[j..n].iter_mut().zip(&col[j..n]) {
+            *o += w * rj;
+        }
+    }
+}
+
+/// [`whiten_any`] for `n = N` (the caller checks that `w`, `r` and `out` are long enough).
+fn whiten_fixed<const N: usize>(w: &[f64], len: usize, r: &[f64], out: &mut [f64]) {
+    let mut acc = [0.0; N];
+    for (j, rj) in r.iter().enumerate().take(N) {
+        let col = &w[j * len..j * len + N];
+        for i in j..N {
+            acc[i] += col[i] * rj;
+        }
+    }
+    out[..N].copy_from_slice(&acc);
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -296,6 +335,29 @@ mod tests {
         let w = Weights::from_covariance(&cov).unwrap().rescaled(&scales);
         let prod = w.matrix().transpose() * w.matrix() * (&s * &cov * &s);
         assert_relative_eq!(prod, DMatrix::identity(3, 3), epsilon = 1e-9);
+    }
+
+    #[test]
+    fn whitening_of_every_size_is_the_plain_triangular_product_bit_for_bit() {
+        // Definition: out[i] = sum_{j <= i} W[i][j] r[j], summed in order of j from zero; the
+        // compile-time-size kernels must do exactly that (same bits as the loop below).
+        for n in 1..=18 {
+            let cov = DMatrix::from_fn(n, n, |i, j| {
+                let d = (i as f64 - j as f64).abs();
+                (0.6f64).powf(d) * (1.0 + 0.1 * i as f64) * (1.0 + 0.1 * j as f64)
+            });
+            let w = Weights::from_covariance(&cov).unwrap();
+            let r: Vec<f64> = (0..n).map(|i| (1.3 * i as f64 + 0.7).sin()).collect();
+            let mut got = vec![0.0; n];
+            w.whiten(&r, &mut got);
+            for (i, g) in got.iter().enumerate() {
+                let mut want = 0.0;
+                for (j, rj) in r.iter().enumerate().take(i + 1) {
+                    want += w.matrix()[(i, j)] * rj;
+                }
+                assert_eq!(g.to_bits(), want.to_bits(), "n {n}, row {i}");
+            }
+        }
     }
 
     #[test]

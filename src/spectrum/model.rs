@@ -94,10 +94,16 @@ impl TwoPointModel {
 
     /// Energies `E_0 .. E_{N-1}` from the parameters.
     pub fn energies(&self, params: &[f64]) -> Vec<f64> {
-        let mut e = Vec::with_capacity(self.n_states);
-        e.push(params[0]);
+        self.energy_array(params)[..self.n_states].to_vec()
+    }
+
+    /// [`Self::energies`] without allocating (entries past `n_states` are zero): the fit
+    /// evaluates the model several times per resample.
+    fn energy_array(&self, params: &[f64]) -> [f64; MAX_STATES] {
+        let mut e = [0.0; MAX_STATES];
+        e[0] = params[0];
         for n in 1..self.n_states {
-            e.push(e[n - 1] + params[n].exp());
+            e[n] = e[n - 1] + params[n].exp();
         }
         e
     }
@@ -167,7 +173,7 @@ impl Model for TwoPointModel {
     }
 
     fn eval(&self, params: &[f64], out: &mut [f64]) {
-        let e = self.energies(params);
+        let e = self.energy_array(params);
         let a = self.amplitudes(params);
         out.fill(0.0);
         for (&en, &an) in e.iter().zip(a) {
@@ -181,7 +187,7 @@ impl Model for TwoPointModel {
 
     fn jacobian(&self, params: &[f64], out: &mut DMatrix<f64>) {
         let ns = self.n_states;
-        let e = self.energies(params);
+        let e = self.energy_array(params);
         let a = self.amplitudes(params);
         // Column n + ns: d/dA_n = term; column 0 for now collects A_n d term / dE_n per state
         // n in its own column n, then E_m's dependence on E_0 (slope 1) and on l_k for
@@ -192,9 +198,10 @@ impl Model for TwoPointModel {
                 out[(i, n)] = a[n] * dv;
             });
         }
-        let slopes: Vec<f64> = (0..ns)
-            .map(|k| if k == 0 { 1.0 } else { params[k].exp() })
-            .collect();
+        let mut slopes = [1.0; MAX_STATES];
+        for (k, slope) in slopes.iter_mut().enumerate().take(ns).skip(1) {
+            *slope = params[k].exp();
+        }
         for i in 0..self.times.len() {
             let mut tail = 0.0;
             for k in (0..ns).rev() {

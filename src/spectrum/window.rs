@@ -9,7 +9,7 @@ use super::effective::{effective_mass_value, EffectiveMassKind};
 use super::model::{Form, TwoPointModel};
 use super::settings::PriorSettings;
 use crate::error::{Error, Result};
-use crate::fit::{nonlinear, FitReport, FitSettings, Prior, Weights};
+use crate::fit::{nonlinear, FitReport, FitSettings, Prior, Response, Weights};
 use crate::resample::Resampled;
 use rayon::prelude::*;
 
@@ -225,6 +225,7 @@ pub(crate) fn fit_window(
             ),
         ));
     }
+    let response = Response::at_minimum(&model, &y, w, &central);
     let n_s = window[0].len();
     let window_scales = spec.sample_scales.and_then(|s| s.get(t_min..=t_max));
     let samples: Vec<FitReport> = (0..n_s)
@@ -239,7 +240,9 @@ pub(crate) fn fit_window(
                 w.rescaled(&f)
             });
             let w = own.as_ref().unwrap_or(w);
-            nonlinear::fit_without_covariance(&model, &y, w, &priors, &central.params, spec.fit)
+            let start = response.as_ref().map(|r| r.start(&y, w));
+            let start = start.as_deref().unwrap_or(&central.params);
+            nonlinear::fit_without_covariance(&model, &y, w, &priors, start, spec.fit)
         })
         .collect();
     let failed_samples = samples.iter().filter(|r| !r.converged).count();

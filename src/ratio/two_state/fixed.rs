@@ -288,6 +288,43 @@ impl<'a> Setup<'a> {
     }
 }
 
+/// The design of every resample, column-major one after the other (see
+/// [`Setup::sample_designs`]).
+#[derive(Default)]
+struct DesignCache {
+    values: Vec<f64>,
+    /// Values per design (`points x n_params`).
+    size: usize,
+}
+
+impl DesignCache {
+    /// The design of resample `k`, if cached.
+    fn get(&self, k: usize) -> Option<&[f64]> {
+        let start = k.checked_mul(self.size)?;
+        self.values.get(start..start.checked_add(self.size)?)
+    }
+}
+
+impl Setup<'_> {
+    /// [`Setup::design_into`] for every resample's gaps, kept for the real and the imaginary
+    /// fit (`points x n_params x resamples` values; empty without points).
+    fn sample_designs(&self) -> DesignCache {
+        let (rows, cols) = (self.points.len(), self.n_params());
+        let size = rows * cols;
+        let n_samples = self.source.gap.len();
+        if size == 0 {
+            return DesignCache::default();
+        }
+        let mut values = vec![0.0; size * n_samples];
+        let mut x = DMatrix::zeros(rows, cols);
+        for (k, chunk) in values.chunks_mut(size).enumerate() {
+            self.design_into(self.gaps(Some(k)), &mut x);
+            chunk.copy_from_slice(x.as_slice());
+        }
+        DesignCache { values, size }
+    }
+}
+
 /// Two-state fit of `ratio` with the gaps and amplitude ratios of `states` fixed per resample.
 pub fn two_state_fixed(
     ratio: &ChannelRatio,
@@ -297,10 +334,20 @@ pub fn two_state_fixed(
     let setup = Setup::new(ratio, states, settings)?;
     let what = format!("two-state fit of channel {}", ratio.key);
     let values: Vec<&ReIm> = setup.points.iter().map(|p| &p.value).collect();
-    let fill = |s, x: &mut DMatrix<f64>| setup.design_into(setup.gaps(s), x);
     // Two-point inputs without spread (fixed by hand, or a degenerate ensemble) give one
-    // design for every resample: factorised once.
-    let design = if setup.gaps_are_fixed() {
+    // design for every resample: factorised once. Otherwise the real and the imaginary fits
+    // use the same design per resample: filled once for both (same values, copied).
+    let fixed = setup.gaps_are_fixed();
+    let cache = if fixed {
+        DesignCache::default()
+    } else {
+        setup.sample_designs()
+    };
+    let fill = |s: Option<usize>, x: &mut DMatrix<f64>| match s.and_then(|k| cache.get(k)) {
+        Some(a) if a.len() == x.len() => x.copy_from_slice(a),
+        _ => setup.design_into(setup.gaps(s), x),
+    };
+    let design = if fixed {
         Design::Fixed(setup.design(setup.gaps(None)))
     } else {
         Design::PerSample {
