@@ -46,7 +46,13 @@ def main():
         ("tsep", "current", "projector", "pfx", "pfy", "pfz", "qx", "qy", "qz"),
         "tau",
     )
-    shutil.rmtree(dst, ignore_errors=True)
+    # Replace only an earlier output of this script (nothing but cfg*.h5 files): any other
+    # directory is refused, never deleted.
+    if os.path.isdir(dst):
+        foreign = [n for n in os.listdir(dst) if not (n.startswith("cfg") and n.endswith(".h5"))]
+        if foreign:
+            sys.exit(f"{dst} holds files this script did not write ({foreign[:3]}): refused")
+        shutil.rmtree(dst)
     os.makedirs(dst)
     for cfg in sorted(two):
         with h5py.File(os.path.join(dst, f"cfg{cfg}.h5"), "w", libver="v110") as f:
