@@ -11,6 +11,7 @@ each estimator received in the final values of the shells (and how often it was 
 import csv
 import math
 import os
+import random
 import sys
 
 import yaml
@@ -29,6 +30,26 @@ def truth_values(truth, spec):
         # (r2_ is r_ squared: the same pull, so counted once)
         out[(f"r_{ff}", None)] = math.sqrt(12.0) / m * a
     return out
+
+
+def seed_bootstrap_error(pulls, k, draws=2000):
+    """Standard error of the share of |pull| < k, resampling whole seeds with replacement.
+
+    The quantities of one seed come from the same ensemble and are correlated, so the
+    binomial error of the count understates the uncertainty of the share (common practice:
+    a cluster bootstrap over the independent units)."""
+    per_seed = {}
+    for _, p, seed in pulls:
+        inside, total = per_seed.get(seed, (0, 0))
+        per_seed[seed] = (inside + (abs(p) < k), total + 1)
+    counts = list(per_seed.values())
+    rng = random.Random(1)
+    shares = []
+    for _ in range(draws):
+        pick = [counts[rng.randrange(len(counts))] for _ in counts]
+        shares.append(sum(c[0] for c in pick) / sum(c[1] for c in pick))
+    mean = sum(shares) / draws
+    return math.sqrt(sum((x - mean) ** 2 for x in shares) / (draws - 1))
 
 
 def main():
@@ -75,21 +96,22 @@ def main():
                 if not (err > 0):
                     continue
                 pulls.append((q if not row["shell"] else f"{q} nq2={key[1]}",
-                              (float(row["value"]) - want[key]) / err))
+                              (float(row["value"]) - want[key]) / err, runs))
     n = len(pulls)
     if n == 0:
         print("no pulls")
         return 1
-    allp = [p for _, p in pulls]
+    allp = [p for _, p, _ in pulls]
     print(f"all: n {n}, mean pull {sum(allp) / n:+.2f}, "
           f"pull rms {math.sqrt(sum(p * p for p in allp) / n):.2f}")
     for k, expected in ((1, 0.6827), (2, 0.9545)):
-        inside = sum(1 for _, p in pulls if abs(p) < k)
+        inside = sum(1 for _, p, _ in pulls if abs(p) < k)
         sd = math.sqrt(expected * (1 - expected) / n)
         print(f"within {k} sigma: {inside}/{n} = {inside / n:.3f} "
+              f"+- {seed_bootstrap_error(pulls, k):.3f} seed bootstrap "
               f"(normal {expected:.3f} +- {sd:.3f} binomial)")
     by = {}
-    for q, p in pulls:
+    for q, p, _ in pulls:
         by.setdefault(q, []).append(p)
     print(f"{runs} runs; per quantity: n, within 1 sigma, within 2 sigma, mean pull, rms pull")
     for q in sorted(by):

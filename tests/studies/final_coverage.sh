@@ -12,7 +12,9 @@
 # tests/studies/strong_excited.mock.yaml is the same ensemble with strong excited states.
 # CONFIGS defaults to the spec's own count ("-" keeps it too).
 # Environment: FF_KEEP=DIR keeps every seed's data and run in DIR (else a temporary directory
-# is removed at the end); FF_SET="key=value ..." adds `--set` overrides to every run.
+# is removed at the end); FF_SET="key=value ..." adds `--set` overrides to every run;
+# FF_PIPELINE=FILE analyses with another pipeline (e.g. tests/studies/heavy_vector.pipeline.yaml
+# for tests/studies/heavy_vector.mock.yaml).
 #
 # Not part of the test suite (about 0.5 s per seed with a release build). Needs python3 with
 # PyYAML.
@@ -24,7 +26,7 @@ n=${2:-20}
 configs=${3:--}
 spec=${4:-$root/demo-data/nucleon.mock.yaml}
 base=${5:-9000}
-pipeline=$root/pipelines/nucleon-vector.yaml
+pipeline=${FF_PIPELINE:-$root/pipelines/nucleon-vector.yaml}
 prefix=ff-coverage
 edit='/currents: \[A1, A2, A3, A4\]/d' # vector insertions only
 # shellcheck source=tests/studies/mock_seeds.sh
