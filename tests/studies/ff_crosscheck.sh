@@ -13,7 +13,7 @@
 # strong excited states. CONFIGS "-" keeps the spec's count. Seeds are SEED_BASE+1 ..
 # SEED_BASE+N (default base 9000, the seeds of final_coverage.sh; use another base for a
 # fresh set). Environment as final_coverage.sh: FF_KEEP=DIR keeps the runs, FF_SET="key=value
-# ..." adds `--set` overrides. Not part of the test suite (well under a second per seed with a
+# ..." adds `--set` overrides, FF_PIPELINE=FILE another pipeline. Not part of the test suite (well under a second per seed with a
 # release build). Needs python3 with PyYAML. Other rules for the verdict can be scored offline
 # on kept runs: python3 tests/studies/ff_crossrule.py DIR [DIR ...].
 set -eu
@@ -24,7 +24,7 @@ n=${2:-10}
 configs=${3:--}
 spec=${4:-$root/demo-data/nucleon.mock.yaml}
 base=${5:-9000}
-pipeline=$root/pipelines/nucleon-vector.yaml
+pipeline=${FF_PIPELINE:-$root/pipelines/nucleon-vector.yaml}
 prefix=ff-xcheck
 edit='/currents: \[A1, A2, A3, A4\]/d' # vector insertions only
 # shellcheck source=tests/studies/mock_seeds.sh
