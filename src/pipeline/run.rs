@@ -67,7 +67,8 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
         spectrum_stage(plan, &two, &mut three, &rplan, &mut rec, &mut results)?;
     }
     if plan.runs(Stage::Ratio) {
-        ratio_stage(plan, &two, &three, &rplan, &mut rec, &mut results)?;
+        // The stage consumes the tables: no later stage reads the raw data.
+        ratio_stage(plan, two, three, &rplan, &mut rec, &mut results)?;
     }
     if plan.runs(Stage::Decomposition) {
         decomposition_stage(plan, &mut rec, &mut results)?;
@@ -110,11 +111,12 @@ fn spectrum_stage(
     Ok(())
 }
 
-/// The ratio and its excited-state estimators per channel.
+/// The ratio and its excited-state estimators per channel; the tables are dropped as the
+/// ratios are built ([`ratio::analyse_all_consuming`]).
 fn ratio_stage(
     plan: &Plan,
-    two: &TwoPointData,
-    three: &ThreePointData,
+    two: TwoPointData,
+    three: ThreePointData,
     rplan: &ResamplePlan,
     rec: &mut Recorder,
     results: &mut RunResults,
@@ -129,7 +131,7 @@ fn ratio_stage(
     }
     let obs = rec.observer;
     let channels = rec.stage("ratio", |_| {
-        ratio::analyse_all_with_progress(
+        ratio::analyse_all_consuming(
             three,
             two,
             rplan,
