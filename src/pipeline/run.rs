@@ -47,6 +47,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     let mut rec = Recorder::new(observer);
     let mut results = RunResults::new(spec.excited_states.final_method);
     let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+    super::memory::release_free_memory();
     results.data = Some(summary);
     let Prepared {
         mut two,
@@ -65,10 +66,12 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     }
     if plan.runs(Stage::Spectrum) {
         spectrum_stage(plan, &two, &mut three, &rplan, &mut rec, &mut results)?;
+        super::memory::release_free_memory();
     }
     if plan.runs(Stage::Ratio) {
         // The stage consumes the tables: no later stage reads the raw data.
         ratio_stage(plan, two, three, &rplan, &mut rec, &mut results)?;
+        super::memory::release_free_memory();
     }
     if plan.runs(Stage::Decomposition) {
         decomposition_stage(plan, &mut rec, &mut results)?;

@@ -161,7 +161,11 @@ pub fn build_ratios(
     settings: &RatioSettings,
 ) -> Result<BTreeMap<ChannelKey, ChannelRatio>> {
     check_bins(c3, c2, plan)?;
-    let mut two_point = TwoPointMeans::new(c2, plan, settings.two_point_smear.clone());
+    let mut two_point = TwoPointMeans::new(
+        TwoPointSource::Borrowed(c2),
+        plan,
+        settings.two_point_smear.clone(),
+    );
     let mut out: BTreeMap<ChannelKey, ChannelRatio> = BTreeMap::new();
     for (key3, series) in &c3.channels {
         let key = ChannelKey::of(key3);
@@ -289,16 +293,29 @@ fn check_series(series: &Series, n_bins: usize, tsep: u32, key: &ChannelKey) -> 
     Ok(())
 }
 
+/// The two-point table the means are taken from: borrowed, or owned and emptied as they are
+/// taken (each series is read once: its means are cached).
+pub(super) enum TwoPointSource<'a> {
+    /// The caller keeps the table.
+    Borrowed(&'a TwoPointData),
+    /// Each series is dropped once its means are taken.
+    Owned(TwoPointData),
+}
+
 /// Resampled means of the two-point functions, computed once per momentum.
 pub(super) struct TwoPointMeans<'a> {
-    c2: &'a TwoPointData,
+    c2: TwoPointSource<'a>,
     plan: &'a ResamplePlan,
     smear: Option<String>,
     cache: BTreeMap<Momentum, Arc<[Resampled]>>,
 }
 
 impl<'a> TwoPointMeans<'a> {
-    pub(super) fn new(c2: &'a TwoPointData, plan: &'a ResamplePlan, smear: Option<String>) -> Self {
+    pub(super) fn new(
+        c2: TwoPointSource<'a>,
+        plan: &'a ResamplePlan,
+        smear: Option<String>,
+    ) -> Self {
         TwoPointMeans {
             c2,
             plan,
@@ -354,7 +371,15 @@ impl<'a> TwoPointMeans<'a> {
                 smear: self.smear.clone(),
                 ops: None,
             };
-            let series = self.c2.channels.get(&key).ok_or_else(|| {
+            let taken;
+            let series = match &mut self.c2 {
+                TwoPointSource::Borrowed(c2) => c2.channels.get(&key),
+                TwoPointSource::Owned(c2) => {
+                    taken = c2.channels.remove(&key);
+                    taken.as_ref()
+                }
+            };
+            let series = series.ok_or_else(|| {
                 Error::analysis(
                     STAGE,
                     format!(

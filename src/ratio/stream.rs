@@ -3,7 +3,7 @@
 //! outputs read ([`super::RatioSummary`]) before the next channel on the same thread starts,
 //! so the resampled ratio of all channels never exists at once. [`analyse_all_consuming`]
 //! also takes ownership of the tables and drops each three-point series once its ratio is
-//! built and the two-point table once its means are taken: the run's peak memory is then the
+//! built and each two-point series once its means are taken: the run's peak memory is then the
 //! data, not the data plus their ratios (production mock, 1000 configurations: the ratio
 //! points alone are 147 MB, as much as the three-point data).
 //!
@@ -13,7 +13,7 @@
 //! channel order), whatever the number of threads.
 
 use super::analyse::{analyse_channel, ChannelResult};
-use super::build::{add_points, check_bins, TwoPointMeans};
+use super::build::{add_points, check_bins, TwoPointMeans, TwoPointSource};
 use super::{ChannelKey, ChannelRatio, Estimator, RatioSettings, TwoPointStates, STAGE};
 use crate::data::{Momentum, Series, ThreePointData, ThreePointKey, TwoPointData};
 use crate::resample::ResamplePlan;
@@ -46,12 +46,13 @@ pub fn analyse_all_with_progress(
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<BTreeMap<ChannelKey, ChannelResult>> {
     check_bins(c3, c2, plan)?;
-    let grouped = group(&c3.channels, c2, plan, settings);
+    let grouped = group(&c3.channels, TwoPointSource::Borrowed(c2), plan, settings);
     analyse_grouped(grouped, plan, states, settings, progress)
 }
 
-/// [`analyse_all_with_progress`] on tables it owns: the two-point table is dropped once the
-/// means the ratios divide by are taken, each three-point series once its ratio is built.
+/// [`analyse_all_with_progress`] on tables it owns: each two-point series is dropped once
+/// the means the ratios divide by are taken from it (the series no channel uses once all
+/// channels are grouped), each three-point series once its ratio is built.
 /// The same results, bit for bit.
 pub fn analyse_all_consuming(
     c3: ThreePointData,
@@ -62,8 +63,7 @@ pub fn analyse_all_consuming(
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<BTreeMap<ChannelKey, ChannelResult>> {
     check_bins(&c3, &c2, plan)?;
-    let grouped = group(c3.channels, &c2, plan, settings);
-    drop(c2);
+    let grouped = group(c3.channels, TwoPointSource::Owned(c2), plan, settings);
     analyse_grouped(grouped, plan, states, settings, progress)
 }
 
@@ -87,7 +87,7 @@ struct Grouped<S> {
 /// series by channel.
 fn group<K, S>(
     series: impl IntoIterator<Item = (K, S)>,
-    c2: &TwoPointData,
+    c2: TwoPointSource<'_>,
     plan: &ResamplePlan,
     settings: &RatioSettings,
 ) -> Grouped<S>
