@@ -981,6 +981,102 @@ fn results_do_not_depend_on_the_thread_count() {
     assert_eq!(run(1), run(3));
 }
 
+// The stage builds, fits and summarises one channel at a time (`analyse_all`) and, on tables
+// it owns, drops them as it goes (`analyse_all_consuming`); both must give what building every
+// ratio first and analysing each channel afterwards gives, bit for bit (exact equality is the
+// claim: the same operations on the same values), and the same at any thread count.
+#[test]
+fn channel_by_channel_stage_equals_building_every_ratio_first() {
+    let (twopt, chans) = two_state_setup();
+    let (c2, c3) = make_data(
+        &twopt,
+        &chans,
+        &[4, 6, 8],
+        12,
+        40,
+        Noise::Gaussian { seed: 21, rel: 0.1 },
+    );
+    let plan = ResamplePlan::jackknife(40);
+    let states = states_of(&twopt, &plan);
+    let settings = RatioSettings::default();
+    let expected: BTreeMap<ChannelKey, _> = build_ratios(&c3, &c2, &plan, &settings)
+        .unwrap()
+        .into_iter()
+        .map(|(k, r)| (k, analyse_channel(r, &states, &settings).unwrap()))
+        .collect();
+    let streamed = formfactory::ratio::analyse_all(&c3, &c2, &plan, &states, &settings).unwrap();
+    assert_eq!(streamed, expected);
+    for threads in [1, 3] {
+        let (c2, c3) = (c2.clone(), c3.clone());
+        let consumed = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| {
+                formfactory::ratio::analyse_all_consuming(
+                    c3,
+                    c2,
+                    &plan,
+                    &states,
+                    &settings,
+                    &|_, _| {},
+                )
+            })
+            .unwrap();
+        assert_eq!(consumed, expected);
+    }
+    // What the outputs keep of a ratio point: its central value and error.
+    let ratios = build_ratios(&c3, &c2, &plan, &settings).unwrap();
+    for (k, r) in &ratios {
+        let kept = &expected[k].ratio;
+        assert_eq!(kept.points.len(), r.points.len());
+        assert_eq!(kept.tseps(), vec![4, 6, 8]);
+        for (s, p) in kept.points.iter().zip(&r.points) {
+            assert_eq!((s.tsep, s.tau), (p.tsep, p.tau));
+            assert_eq!(s.re.central, p.value.re.central);
+            assert_eq!(s.im.error, p.value.im.error());
+        }
+    }
+}
+
+// When several series cannot be used, the channel-by-channel stage reports the one that
+// building every ratio in the table's key order (tsep first) meets first: a non-finite ratio
+// at tsep 4 before a malformed series at tsep 6, the malformed series before a non-finite
+// ratio at tsep 8.
+#[test]
+fn the_first_unusable_series_in_key_order_is_the_error() {
+    let (twopt, chans) = single_state_setup();
+    let (c2, c3) = make_data(&twopt, &chans, &[4, 6, 8], 12, 16, Noise::Antithetic(1e-3));
+    let plan = ResamplePlan::jackknife(16);
+    let states = states_of(&twopt, &plan);
+    let settings = RatioSettings::default();
+    let poisoned = |c3: &mut ThreePointData, ch: &Chan, tsep: u32| {
+        c3.channels.get_mut(&ch.key(tsep)).unwrap().re[0] = f64::NAN;
+    };
+    let (first, second) = (&chans[0], &chans[1]);
+    let mut c3_early = c3.clone();
+    poisoned(&mut c3_early, second, 4);
+    *c3_early.channels.get_mut(&first.key(6)).unwrap() = Series::zeros(9, 16);
+    let mut c3_late = c3_early.clone();
+    c3_late.channels.get_mut(&second.key(4)).unwrap().re[0] = 1.0;
+    poisoned(&mut c3_late, second, 8);
+    for (c3, expect) in [(c3_early, "not finite"), (c3_late, "tau outside [0, tsep]")] {
+        let built = analysis_message(build_ratios(&c3, &c2, &plan, &settings).unwrap_err());
+        assert!(built.contains(expect), "{built}");
+        let streamed = formfactory::ratio::analyse_all(&c3, &c2, &plan, &states, &settings);
+        assert_eq!(analysis_message(streamed.unwrap_err()), built);
+        let consumed = formfactory::ratio::analyse_all_consuming(
+            c3,
+            c2.clone(),
+            &plan,
+            &states,
+            &settings,
+            &|_, _| {},
+        );
+        assert_eq!(analysis_message(consumed.unwrap_err()), built);
+    }
+}
+
 // Real and imaginary parts are judged separately: a 5-sigma real difference does not flag an
 // imaginary part that agrees, and a part that is identical on every resample (a vanishing
 // imaginary part) is not a comparison at all, so it cannot be counted (analytic: jackknife

@@ -9,6 +9,7 @@
 
 mod data_checks;
 pub mod final_results;
+mod memory;
 mod observer;
 pub mod output;
 pub mod plan;

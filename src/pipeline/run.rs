@@ -47,6 +47,7 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     let mut rec = Recorder::new(observer);
     let mut results = RunResults::new(spec.excited_states.final_method);
     let (prepared, summary) = rec.stage("read", |rec| read_and_resample(plan, rec))?;
+    super::memory::release_free_memory();
     results.data = Some(summary);
     let Prepared {
         mut two,
@@ -65,9 +66,12 @@ fn compute_here(plan: &Plan, observer: &dyn Observer) -> Result<RunResults> {
     }
     if plan.runs(Stage::Spectrum) {
         spectrum_stage(plan, &two, &mut three, &rplan, &mut rec, &mut results)?;
+        super::memory::release_free_memory();
     }
     if plan.runs(Stage::Ratio) {
-        ratio_stage(plan, &two, &three, &rplan, &mut rec, &mut results)?;
+        // The stage consumes the tables: no later stage reads the raw data.
+        ratio_stage(plan, two, three, &rplan, &mut rec, &mut results)?;
+        super::memory::release_free_memory();
     }
     if plan.runs(Stage::Decomposition) {
         decomposition_stage(plan, &mut rec, &mut results)?;
@@ -110,11 +114,12 @@ fn spectrum_stage(
     Ok(())
 }
 
-/// The ratio and its excited-state estimators per channel.
+/// The ratio and its excited-state estimators per channel; the tables are dropped as the
+/// ratios are built ([`ratio::analyse_all_consuming`]).
 fn ratio_stage(
     plan: &Plan,
-    two: &TwoPointData,
-    three: &ThreePointData,
+    two: TwoPointData,
+    three: ThreePointData,
     rplan: &ResamplePlan,
     rec: &mut Recorder,
     results: &mut RunResults,
@@ -129,7 +134,7 @@ fn ratio_stage(
     }
     let obs = rec.observer;
     let channels = rec.stage("ratio", |_| {
-        ratio::analyse_all_with_progress(
+        ratio::analyse_all_consuming(
             three,
             two,
             rplan,

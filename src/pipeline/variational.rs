@@ -146,7 +146,8 @@ pub(super) fn compare(
         return Ok(out);
     }
     let states = two_point_states(&out.spectrum, rec);
-    let channels = ratio::analyse_all(&three, &two, rplan, &states, &spec.excited_states)?;
+    let channels =
+        ratio::analyse_all_consuming(three, two, rplan, &states, &spec.excited_states, &|_, _| {})?;
     if plan.runs(Stage::Decomposition) {
         let mut view = results.clone();
         view.spectrum = Some(out.spectrum.clone());

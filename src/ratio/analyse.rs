@@ -11,12 +11,10 @@ use super::plateau::{plateau, PlateauFit};
 use super::summation::{summation, SummationFit};
 use super::two_state::{two_state, TwoPointStates, TwoStateFit};
 use super::{
-    build_ratios, ChannelKey, ChannelRatio, Estimator, RatioSettings, ReIm, ReImFit, STAGE,
+    ChannelKey, ChannelRatio, Estimator, RatioSettings, RatioSummary, ReIm, ReImFit, STAGE,
 };
-use crate::data::{Momentum, ThreePointData, TwoPointData};
-use crate::resample::ResamplePlan;
+use crate::data::Momentum;
 use crate::{Error, Result};
-use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -25,8 +23,9 @@ use std::collections::BTreeMap;
 pub struct ChannelResult {
     /// The channel.
     pub key: ChannelKey,
-    /// The ratio at every `(tsep, tau)`.
-    pub ratio: ChannelRatio,
+    /// The ratio at every `(tsep, tau)`, summarised (central value and error; the resamples
+    /// are dropped once the fits are done).
+    pub ratio: RatioSummary,
     /// Plateau fits, one per separation that has points inside the `tau_cut` window.
     pub plateaus: Vec<PlateauFit>,
     /// Summation estimate, if it could run.
@@ -82,7 +81,7 @@ pub fn analyse_channel(
     let final_estimate = fit.value.clone();
     Ok(ChannelResult {
         key: ratio.key.clone(),
-        ratio,
+        ratio: ratio.summary(),
         plateaus,
         summation,
         two_state,
@@ -161,69 +160,4 @@ impl ChannelResult {
         out.extend(self.estimate(Estimator::TwoState));
         out
     }
-}
-
-/// Build the ratios of every channel and analyse each (channels in parallel; the results do
-/// not depend on the number of threads). The first failing channel's error is returned.
-pub fn analyse_all(
-    c3: &ThreePointData,
-    c2: &TwoPointData,
-    plan: &ResamplePlan,
-    states: &BTreeMap<Momentum, TwoPointStates>,
-    settings: &RatioSettings,
-) -> Result<BTreeMap<ChannelKey, ChannelResult>> {
-    analyse_all_with_progress(c3, c2, plan, states, settings, &|_, _| {})
-}
-
-/// [`analyse_all`], calling `progress(done, total)` as channels finish (in any order, from
-/// any thread; the results do not depend on it).
-pub fn analyse_all_with_progress(
-    c3: &ThreePointData,
-    c2: &TwoPointData,
-    plan: &ResamplePlan,
-    states: &BTreeMap<Momentum, TwoPointStates>,
-    settings: &RatioSettings,
-    progress: &(dyn Fn(usize, usize) + Sync),
-) -> Result<BTreeMap<ChannelKey, ChannelResult>> {
-    let ratios: Vec<ChannelRatio> = build_ratios(c3, c2, plan, settings)?
-        .into_values()
-        .collect();
-    let total = ratios.len();
-    let done = std::sync::atomic::AtomicUsize::new(0);
-    progress(0, total);
-    let results: Vec<Result<ChannelResult>> = ratios
-        .into_par_iter()
-        .map(|r| {
-            let out = analyse_channel(r, states, settings);
-            let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
-            progress(n, total);
-            out
-        })
-        .collect();
-    let channels: BTreeMap<ChannelKey, ChannelResult> = results
-        .into_iter()
-        .map(|r| r.map(|c| (c.key.clone(), c)))
-        .collect::<Result<_>>()?;
-    final_method_ran_somewhere(&channels, settings.final_method)?;
-    Ok(channels)
-}
-
-/// A final method that could run on no channel at all is a setting that does not fit the
-/// data (e.g. `summation` with one separation), not a channel's accident: an error that says
-/// why, with the first channel's reason.
-fn final_method_ran_somewhere(
-    channels: &BTreeMap<ChannelKey, ChannelResult>,
-    wanted: Estimator,
-) -> Result<()> {
-    if channels.is_empty() || channels.values().any(|c| wanted.selects(c.final_method)) {
-        return Ok(());
-    }
-    let first = channels.values().next().map(|c| c.notes.join("; "));
-    Err(Error::analysis(
-        STAGE,
-        format!(
-            "the final method `{wanted}` could not run on any channel ({})",
-            first.unwrap_or_default()
-        ),
-    ))
 }

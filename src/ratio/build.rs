@@ -15,8 +15,10 @@
 
 use super::lsq::CovarianceSetup;
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
-use crate::data::{momentum_text, Momentum, Series, ThreePointData, TwoPointData, TwoPointKey};
-use crate::resample::{ResamplePlan, Resampled};
+use crate::data::{
+    momentum_text, Momentum, Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey,
+};
+use crate::resample::{ResamplePlan, Resampled, Summary};
 use crate::{Error, Result};
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -81,11 +83,70 @@ impl ChannelRatio {
             .collect()
     }
 
+    /// Order the points by `(tsep, tau)` (a stable sort: points of equal `(tsep, tau)` keep
+    /// the order they were added in).
+    pub(super) fn sort_points(&mut self) {
+        self.points.sort_by_key(|p| (p.tsep, p.tau));
+    }
+
     /// The covariance setup of fits to this channel's points.
     pub(crate) fn covariance<'a>(&self, settings: &'a RatioSettings) -> CovarianceSetup<'a> {
         CovarianceSetup {
             options: &settings.covariance,
             n_bins: self.n_bins,
+        }
+    }
+}
+
+/// What the outputs read of one ratio point once the channel's fits are done: `(tsep, tau)`
+/// and each part's central value and error.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct PointSummary {
+    /// Source–sink separation.
+    pub tsep: u32,
+    /// Insertion time.
+    pub tau: u32,
+    /// The real part's summary.
+    pub re: Summary,
+    /// The imaginary part's summary.
+    pub im: Summary,
+}
+
+/// What a channel's ratio leaves behind once its fits are done (the resamples of its points
+/// are needed by the fits only, and at 1000 configurations would be as large as the raw
+/// three-point data): every point's summary and the negative-root counts.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct RatioSummary {
+    /// Point summaries ordered by `(tsep, tau)`, as [`ChannelRatio::points`].
+    pub points: Vec<PointSummary>,
+    /// Negative-root diagnostics.
+    pub negative_root: NegativeRootCount,
+}
+
+impl RatioSummary {
+    /// The separations present, ascending.
+    pub fn tseps(&self) -> Vec<u32> {
+        let mut t: Vec<u32> = self.points.iter().map(|p| p.tsep).collect();
+        t.dedup();
+        t
+    }
+}
+
+impl ChannelRatio {
+    /// The summary the outputs keep of this ratio.
+    pub fn summary(&self) -> RatioSummary {
+        RatioSummary {
+            points: self
+                .points
+                .iter()
+                .map(|p| PointSummary {
+                    tsep: p.tsep,
+                    tau: p.tau,
+                    re: p.value.re.summary(),
+                    im: p.value.im.summary(),
+                })
+                .collect(),
+            negative_root: self.negative_root,
         }
     }
 }
@@ -99,6 +160,33 @@ pub fn build_ratios(
     plan: &ResamplePlan,
     settings: &RatioSettings,
 ) -> Result<BTreeMap<ChannelKey, ChannelRatio>> {
+    check_bins(c3, c2, plan)?;
+    let mut two_point = TwoPointMeans::new(
+        TwoPointSource::Borrowed(c2),
+        plan,
+        settings.two_point_smear.clone(),
+    );
+    let mut out: BTreeMap<ChannelKey, ChannelRatio> = BTreeMap::new();
+    for (key3, series) in &c3.channels {
+        let key = ChannelKey::of(key3);
+        two_point.prepare(key3, series, &key)?;
+        let entry = out
+            .entry(key)
+            .or_insert_with_key(|key| two_point.empty_ratio(key));
+        add_points(entry, key3.tsep, series, plan, settings)?;
+    }
+    for ratio in out.values_mut() {
+        ratio.sort_points();
+    }
+    Ok(out)
+}
+
+/// Both tables must be on the plan's bins and on the same configurations.
+pub(super) fn check_bins(
+    c3: &ThreePointData,
+    c2: &TwoPointData,
+    plan: &ResamplePlan,
+) -> Result<()> {
     let n_bins = plan.n_bins();
     if c3.configs.len() != n_bins || c2.configs.len() != n_bins {
         return Err(Error::analysis(
@@ -118,74 +206,65 @@ pub fn build_ratios(
              both must share the same list",
         ));
     }
-    let mut two_point = TwoPointMeans::new(c2, plan, settings.two_point_smear.clone());
-    let mut out: BTreeMap<ChannelKey, ChannelRatio> = BTreeMap::new();
-    for (key3, series) in &c3.channels {
-        let key = ChannelKey::of(key3);
-        let tsep = key3.tsep;
-        check_series(series, n_bins, tsep, &key)?;
-        two_point.load(key.pf, tsep, &key)?;
-        two_point.load(key.source_momentum(), tsep, &key)?;
-        let c2f = two_point.shared(key.pf);
-        let c2i = two_point.shared(key.source_momentum());
-        let entry = out.entry(key.clone()).or_insert_with(|| ChannelRatio {
-            key: key.clone(),
-            points: Vec::new(),
-            negative_root: NegativeRootCount::default(),
-            n_bins,
-            c2_source: c2i.clone(),
-            c2_sink: c2f.clone(),
-        });
-        for tau in 0..=tsep {
-            let t = tau as usize;
-            let ts = tsep as usize;
-            let c3re = plan.mean(series.re_at(t));
-            let c3im = plan.mean(series.im_at(t));
-            let product = Resampled::combine(
-                &[
-                    &c2i[ts - t],
-                    &c2f[t],
-                    &c2f[ts],
-                    &c2f[ts - t],
-                    &c2i[t],
-                    &c2i[ts],
-                ],
-                |x| (x[0] * x[1] * x[2]) / (x[3] * x[4] * x[5]),
-            );
-            let negatives = usize::from(product.central < 0.0)
-                + product.samples.iter().filter(|&&x| x < 0.0).count();
-            if negatives > 0 {
-                entry.negative_root.samples += negatives;
-                entry.negative_root.points_affected += 1;
-                if settings.negative_root == NegativeRootPolicy::DropPoint && product.central < 0.0
-                {
-                    entry.negative_root.points_dropped += 1;
-                    continue;
-                }
+    Ok(())
+}
+
+/// Append the ratio at every `tau = 0..=tsep` of one three-point series (checked by
+/// [`TwoPointMeans::prepare`]) to its channel's ratio, whose two-point means it divides by.
+pub(super) fn add_points(
+    entry: &mut ChannelRatio,
+    tsep: u32,
+    series: &Series,
+    plan: &ResamplePlan,
+    settings: &RatioSettings,
+) -> Result<()> {
+    let (c2i, c2f) = (entry.c2_source.clone(), entry.c2_sink.clone());
+    let key = &entry.key;
+    for tau in 0..=tsep {
+        let t = tau as usize;
+        let ts = tsep as usize;
+        let c3re = plan.mean(series.re_at(t));
+        let c3im = plan.mean(series.im_at(t));
+        let product = Resampled::combine(
+            &[
+                &c2i[ts - t],
+                &c2f[t],
+                &c2f[ts],
+                &c2f[ts - t],
+                &c2i[t],
+                &c2i[ts],
+            ],
+            |x| (x[0] * x[1] * x[2]) / (x[3] * x[4] * x[5]),
+        );
+        let negatives = usize::from(product.central < 0.0)
+            + product.samples.iter().filter(|&&x| x < 0.0).count();
+        if negatives > 0 {
+            entry.negative_root.samples += negatives;
+            entry.negative_root.points_affected += 1;
+            if settings.negative_root == NegativeRootPolicy::DropPoint && product.central < 0.0 {
+                entry.negative_root.points_dropped += 1;
+                continue;
             }
-            let factor = Resampled::combine(&[&product, &c2f[ts]], |x| x[0].abs().sqrt() / x[1]);
-            let value = ReIm {
-                re: &c3re * &factor,
-                im: &c3im * &factor,
-            };
-            if !value.re.is_finite() || !value.im.is_finite() {
-                return Err(Error::analysis(
-                    STAGE,
-                    format!(
-                        "channel {key}, tsep {tsep}, tau {tau}: the ratio is not finite (a \
-                         two-point function at p_f={:?} or p_i={:?} is zero or not finite)",
-                        key.pf,
-                        key.source_momentum()
-                    ),
-                ));
-            }
-            entry.points.push(RatioPoint { tsep, tau, value });
         }
+        let factor = Resampled::combine(&[&product, &c2f[ts]], |x| x[0].abs().sqrt() / x[1]);
+        let value = ReIm {
+            re: &c3re * &factor,
+            im: &c3im * &factor,
+        };
+        if !value.re.is_finite() || !value.im.is_finite() {
+            return Err(Error::analysis(
+                STAGE,
+                format!(
+                    "channel {key}, tsep {tsep}, tau {tau}: the ratio is not finite (a \
+                     two-point function at p_f={:?} or p_i={:?} is zero or not finite)",
+                    key.pf,
+                    key.source_momentum()
+                ),
+            ));
+        }
+        entry.points.push(RatioPoint { tsep, tau, value });
     }
-    for ratio in out.values_mut() {
-        ratio.points.sort_by_key(|p| (p.tsep, p.tau));
-    }
-    Ok(out)
+    Ok(())
 }
 
 fn check_series(series: &Series, n_bins: usize, tsep: u32, key: &ChannelKey) -> Result<()> {
@@ -214,21 +293,60 @@ fn check_series(series: &Series, n_bins: usize, tsep: u32, key: &ChannelKey) -> 
     Ok(())
 }
 
+/// The two-point table the means are taken from: borrowed, or owned and emptied as they are
+/// taken (each series is read once: its means are cached).
+pub(super) enum TwoPointSource<'a> {
+    /// The caller keeps the table.
+    Borrowed(&'a TwoPointData),
+    /// Each series is dropped once its means are taken.
+    Owned(TwoPointData),
+}
+
 /// Resampled means of the two-point functions, computed once per momentum.
-struct TwoPointMeans<'a> {
-    c2: &'a TwoPointData,
+pub(super) struct TwoPointMeans<'a> {
+    c2: TwoPointSource<'a>,
     plan: &'a ResamplePlan,
     smear: Option<String>,
     cache: BTreeMap<Momentum, Arc<[Resampled]>>,
 }
 
 impl<'a> TwoPointMeans<'a> {
-    fn new(c2: &'a TwoPointData, plan: &'a ResamplePlan, smear: Option<String>) -> Self {
+    pub(super) fn new(
+        c2: TwoPointSource<'a>,
+        plan: &'a ResamplePlan,
+        smear: Option<String>,
+    ) -> Self {
         TwoPointMeans {
             c2,
             plan,
             smear,
             cache: BTreeMap::new(),
+        }
+    }
+
+    /// Check one three-point series of channel `key` and compute the two-point means at its
+    /// sink and source momenta (once per momentum), which must reach its `tsep`.
+    pub(super) fn prepare(
+        &mut self,
+        key3: &ThreePointKey,
+        series: &Series,
+        key: &ChannelKey,
+    ) -> Result<()> {
+        check_series(series, self.plan.n_bins(), key3.tsep, key)?;
+        self.load(key.pf, key3.tsep, key)?;
+        self.load(key.source_momentum(), key3.tsep, key)
+    }
+
+    /// A channel's ratio without points, sharing the two-point means at its momenta (after
+    /// [`Self::prepare`]).
+    pub(super) fn empty_ratio(&self, key: &ChannelKey) -> ChannelRatio {
+        ChannelRatio {
+            key: key.clone(),
+            points: Vec::new(),
+            negative_root: NegativeRootCount::default(),
+            n_bins: self.plan.n_bins(),
+            c2_source: self.shared(key.source_momentum()),
+            c2_sink: self.shared(key.pf),
         }
     }
 
@@ -253,7 +371,15 @@ impl<'a> TwoPointMeans<'a> {
                 smear: self.smear.clone(),
                 ops: None,
             };
-            let series = self.c2.channels.get(&key).ok_or_else(|| {
+            let taken;
+            let series = match &mut self.c2 {
+                TwoPointSource::Borrowed(c2) => c2.channels.get(&key),
+                TwoPointSource::Owned(c2) => {
+                    taken = c2.channels.remove(&key);
+                    taken.as_ref()
+                }
+            };
+            let series = series.ok_or_else(|| {
                 Error::analysis(
                     STAGE,
                     format!(

@@ -28,16 +28,18 @@
 //!
 //! [`build::build_ratios`] makes the ratio of every channel from binned data; optionally
 //! [`average::average_channels`] merges equivalent ones; [`analyse::analyse_channel`] runs every
-//! method on one channel ([`analyse::analyse_all`] does both steps for all channels, in
-//! parallel). The two-state fit needs, per momentum, a [`TwoPointStates`] (ground energy,
+//! method on one channel ([`analyse_all`] does both steps for all channels, one channel at a
+//! time per thread, in parallel; [`analyse_all_consuming`] also drops the tables as it goes).
+//! The two-state fit needs, per momentum, a [`TwoPointStates`] (ground energy,
 //! amplitude ratio `a = A_1/A_0`, gap `Delta = E_1 - E_0`, all resampled) from the spectrum
 //! stage.
 //!
 //! ## Output
 //!
 //! Per channel ([`ChannelKey`]: a three-point key without `tsep`), a [`ChannelResult`]:
-//! - `ratio`: the ratio at every `(tsep, tau)` ([`RatioPoint`], real and imaginary part
-//!   resampled) and the negative-root counts;
+//! - `ratio`: the ratio at every `(tsep, tau)` ([`RatioSummary`]: central value and error of
+//!   the real and imaginary part; the resampled [`RatioPoint`]s are dropped once the channel's
+//!   fits are done) and the negative-root counts;
 //! - `plateaus`: one [`PlateauFit`] per `tsep` (value, `tau` range, fit quality per part);
 //! - `summation`: [`SummationFit`] (the sums `S(tsep)`, slope = matrix element, intercept);
 //! - `two_state`: [`TwoStateFit`] (`M`, `c_i`, `c_f`, `c_if`, fitted gaps for the non-linear
@@ -72,15 +74,19 @@ pub mod formfactor_check;
 mod lsq;
 pub mod plateau;
 pub mod settings;
+mod stream;
 pub mod summation;
 pub mod two_state;
 
-pub use analyse::{analyse_all, analyse_all_with_progress, analyse_channel, ChannelResult};
-pub use build::{build_ratios, ChannelRatio, NegativeRootCount, RatioPoint};
+pub use analyse::{analyse_channel, ChannelResult};
+pub use build::{
+    build_ratios, ChannelRatio, NegativeRootCount, PointSummary, RatioPoint, RatioSummary,
+};
 pub use crosscheck::{CrossCheckRow, Flag};
 pub use estimator::Estimator;
 pub use plateau::PlateauFit;
 pub use settings::{NegativeRootPolicy, RatioSettings, TwoStateVariant};
+pub use stream::{analyse_all, analyse_all_consuming, analyse_all_with_progress};
 pub use summation::SummationFit;
 pub use two_state::{FittedGaps, TwoPointStates, TwoStateFit};
 

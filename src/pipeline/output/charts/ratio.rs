@@ -7,7 +7,7 @@ use super::figure::Figure;
 use super::style::{channel_stem, estimator_style, tsep_colour, DATA_COLOUR};
 use crate::pipeline::run::RunResults;
 use crate::pipeline::spec::Plot;
-use crate::ratio::{ChannelKey, ChannelResult, Estimator, ReIm};
+use crate::ratio::{ChannelKey, ChannelResult, Estimator, PointSummary, ReIm};
 use crate::report::plot::Marker;
 use crate::report::{value_error, Chart, Series};
 use crate::resample::Resampled;
@@ -94,13 +94,14 @@ fn ratio_chart(k: &ChannelKey, c: &ChannelResult, tau_cut: u32) -> Chart {
                 .push(band(String::new(), colour, x, pick(&pl.fit.value, re)));
         }
         let pts: Vec<_> = c.ratio.points.iter().filter(|p| p.tsep == tsep).collect();
+        let part = |p: &PointSummary| if re { p.re } else { p.im };
         chart.series.push(
             Series::points(
                 format!("t_{{sep}} = {tsep}"),
                 colour,
                 pts.iter().map(|p| p.tau as f64 - mid).collect(),
-                pts.iter().map(|p| pick(&p.value, re).central).collect(),
-                pts.iter().map(|p| pick(&p.value, re).error()).collect(),
+                pts.iter().map(|p| part(p).central).collect(),
+                pts.iter().map(|p| part(p).error).collect(),
             )
             .marker(Marker::Diamond)
             .offset(0.05 * i as f64),
