@@ -188,31 +188,6 @@ pub fn read_source(
     crate::io::on_common_configs(two, name, three, name, notes, opts)
 }
 
-/// Refuse settings whose resampled data would not fit in memory: one value per resample for
-/// the real and imaginary part of every data point of both tables, plus the resample plan.
-fn check_memory(plan: &Plan, two: &TwoPointData, three: &ThreePointData) -> Result<()> {
-    use crate::budget::product;
-    let r = &plan.spec.resampling;
-    let n_bins = (two.configs.len() / r.bin_size.max(1)) as u64;
-    let (n_samples, key) = match r.method {
-        spec::ResamplingMethod::Jackknife => (n_bins, "resampling.bin_size"),
-        spec::ResamplingMethod::Bootstrap => (r.samples as u64, "resampling.samples"),
-    };
-    let points: u64 = two
-        .channels
-        .values()
-        .chain(three.channels.values())
-        .map(|s| s.n_t as u64)
-        .sum();
-    let bytes =
-        product(&[n_samples, points, 2, 8]).saturating_add(product(&[n_samples, n_bins, 8]));
-    crate::budget::check(
-        &format!("{n_samples} resamples of {points} data points"),
-        bytes,
-    )
-    .map_err(|m| plan.error(key, m))
-}
-
 /// Rules that need the data: time ranges against the table, `tau_cut` against every
 /// `tsep`, one flavour per channel, and the two-point momenta every ratio divides by.
 pub(crate) fn check_data_rules(
@@ -221,7 +196,7 @@ pub(crate) fn check_data_rules(
     three: &ThreePointData,
 ) -> Result<()> {
     let spec = &plan.spec;
-    check_memory(plan, two, three)?;
+    memory::check_memory(plan, two, three)?;
     let hdf5 = std::path::Path::new("data.hdf5");
     let (twopt, threept) = match plan.hdf5 {
         Some(_) => (hdf5, hdf5),
