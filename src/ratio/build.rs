@@ -70,9 +70,7 @@ pub struct ChannelRatio {
 impl ChannelRatio {
     /// The separations present, ascending.
     pub fn tseps(&self) -> Vec<u32> {
-        let mut t: Vec<u32> = self.points.iter().map(|p| p.tsep).collect();
-        t.dedup();
-        t
+        distinct_tseps(self.points.iter().map(|p| p.tsep))
     }
 
     /// The points of separation `tsep` with `tau_cut <= tau <= tsep - tau_cut`.
@@ -126,10 +124,15 @@ pub struct RatioSummary {
 impl RatioSummary {
     /// The separations present, ascending.
     pub fn tseps(&self) -> Vec<u32> {
-        let mut t: Vec<u32> = self.points.iter().map(|p| p.tsep).collect();
-        t.dedup();
-        t
+        distinct_tseps(self.points.iter().map(|p| p.tsep))
     }
+}
+
+/// The distinct separations of points ordered by `(tsep, tau)`.
+fn distinct_tseps(tseps: impl Iterator<Item = u32>) -> Vec<u32> {
+    let mut t: Vec<u32> = tseps.collect();
+    t.dedup();
+    t
 }
 
 impl ChannelRatio {
