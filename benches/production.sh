@@ -5,6 +5,10 @@
 #
 #   benches/production.sh [CONFIGS] [JOBS]      (defaults: 1000 configurations, 2 threads)
 #
+# SIZE=full uses benches/production-full.mock.yaml instead (every current under every
+# projector: 3105 three-point channels, 2.44 GB of CSV at 1000 configurations, the size of
+# issue 14's measurements; the default spec has 705 channels and 0.7 GB).
+#
 # Environment: FORMFACTORY (binary; default target/release/formfactory, build it first with
 # `cargo build --release`), SCRATCH (default /tmp/formfactory-production), SOURCE (`csv`, the
 # default, or `packed`: the tables packed once with `formfactory pack` into
@@ -19,16 +23,21 @@ jobs=${2:-2}
 root=$(cd "$(dirname "$0")/.." && pwd)
 bin=${FORMFACTORY:-$root/target/release/formfactory}
 scratch=${SCRATCH:-/tmp/formfactory-production}
-data=$scratch/data-$configs
+size=${SIZE:-standard}
+case $size in
+    standard) spec=$root/benches/production.mock.yaml; currents="V1, V4"; tag=$configs ;;
+    full) spec=$root/benches/production-full.mock.yaml; currents="V1, V2, V3, V4"; tag=full-$configs ;;
+    *) echo "SIZE must be standard or full, not $size" >&2; exit 1 ;;
+esac
+data=$scratch/data-$tag
 mkdir -p "$scratch"
 if [ ! -x "$bin" ]; then
     echo "no binary at $bin; run cargo build --release first" >&2
     exit 1
 fi
 if [ ! -f "$data/threept.csv" ]; then
-    sed "s/^  configs: 1000$/  configs: $configs/" "$root/benches/production.mock.yaml" \
-        > "$scratch/spec-$configs.yaml"
-    "$bin" mock "$scratch/spec-$configs.yaml" --out "$data" > /dev/null
+    sed "s/^  configs: 1000$/  configs: $configs/" "$spec" > "$scratch/spec-$tag.yaml"
+    "$bin" mock "$scratch/spec-$tag.yaml" --out "$data" > /dev/null
 fi
 source=${SOURCE:-csv}
 case $source in
@@ -42,7 +51,7 @@ case $source in
     packed: $data/ensemble.packed.h5" ;;
     *) echo "SOURCE must be csv or packed, not $source" >&2; exit 1 ;;
 esac
-pipeline=$scratch/production-$configs-$source.yaml
+pipeline=$scratch/production-$tag-$source.yaml
 cat > "$pipeline" <<YAML
 ensemble:
   label: production-scale mock
@@ -62,7 +71,7 @@ spectrum:
   n_states: {from: 1, to: 2}
 ratio:
   tsep: [8, 10, 12, 14, 16]
-  currents: [V1, V4]
+  currents: [$currents]
 excited_states:
   methods: [plateau, summation, two_state]
   tau_cut: 2
