@@ -68,6 +68,9 @@ pub struct Weights {
     whitening: DMatrix<f64>,
     /// Condition number of the correlation matrix (1 for diagonal weights).
     condition: f64,
+    /// Every off-diagonal entry of `whitening` is exactly zero (uncorrelated weights, however
+    /// they were built): [`Weights::whiten`] then multiplies the diagonal only.
+    diagonal: bool,
 }
 
 impl Weights {
@@ -148,9 +151,11 @@ impl Weights {
                 w[(i, j)] /= s[j];
             }
         }
+        let diagonal = off_diagonal_zero(&w);
         Ok(Weights {
             whitening: w,
             condition,
+            diagonal,
         })
     }
 
@@ -169,6 +174,7 @@ impl Weights {
         Weights {
             whitening: w,
             condition: 1.0,
+            diagonal: true,
         }
     }
 
@@ -225,6 +231,16 @@ impl Weights {
         let len = self.len();
         let n = len.min(r.len()).min(out.len());
         let w = self.whitening.as_slice();
+        if self.diagonal && r[..n].iter().all(|v| v.is_finite()) {
+            // The triangular product's terms off the diagonal are all `0 * r[j] = +-0`, and a
+            // sum of signed zeros started from `+0` is `+0`: so `out[i] = 0 + W[i][i] r[i]`,
+            // the same bits. (A non-finite `r[j]` would make `0 * r[j]` NaN in every later
+            // row: the general product below keeps that.)
+            for (i, (o, x)) in out[..n].iter_mut().zip(&r[..n]).enumerate() {
+                *o = 0.0 + w[i * len + i] * x;
+            }
+            return;
+        }
         macro_rules! fixed {
             ($($k:literal)*) => {
                 match n {
@@ -282,6 +298,15 @@ impl Weights {
         self.whiten(r, &mut w);
         w.iter().map(|x| x * x).sum()
     }
+}
+
+/// True when every entry of `w` off its diagonal is exactly zero.
+fn off_diagonal_zero(w: &DMatrix<f64>) -> bool {
+    let n = w.nrows();
+    w.as_slice()
+        .iter()
+        .enumerate()
+        .all(|(k, v)| *v == 0.0 || k % n.max(1) == k / n.max(1))
 }
 
 /// `out[..n] = W r` for the `n x n` lower triangle of the column-major `w` (columns of `len`
@@ -358,6 +383,47 @@ mod tests {
                 assert_eq!(g.to_bits(), want.to_bits(), "n {n}, row {i}");
             }
         }
+    }
+
+    #[test]
+    fn diagonal_weights_whiten_bit_for_bit_as_the_triangular_product() {
+        // Definition as above (every W[i][j] r[j] for j <= i summed in order from +0): the
+        // diagonal shortcut must give the same bits, the sign of a zero and the NaN that a
+        // non-finite value spreads into later rows included.
+        for n in 1..=18 {
+            let cov =
+                DMatrix::from_fn(n, n, |i, j| if i == j { 0.3 + 0.2 * i as f64 } else { 0.0 });
+            let from_cov = Weights::from_covariance(&cov).unwrap();
+            let sigmas: Vec<f64> = (0..n).map(|i| (0.3 + 0.2 * i as f64).sqrt()).collect();
+            let scales: Vec<f64> = (0..n).map(|i| 1.0 + 0.01 * i as f64).collect();
+            for w in [
+                from_cov.clone(),
+                Weights::diagonal(&sigmas),
+                from_cov.rescaled(&scales),
+            ] {
+                assert!(w.diagonal, "n {n}");
+                for case in 0..3 {
+                    let mut r: Vec<f64> = (0..n).map(|i| (1.3 * i as f64 + 0.7).sin()).collect();
+                    match case {
+                        1 => r[0] = -0.0,
+                        2 => r[n / 2] = f64::INFINITY,
+                        _ => {}
+                    }
+                    let mut got = vec![0.0; n];
+                    w.whiten(&r, &mut got);
+                    for (i, g) in got.iter().enumerate() {
+                        let mut want = 0.0;
+                        for (j, rj) in r.iter().enumerate().take(i + 1) {
+                            want += w.matrix()[(i, j)] * rj;
+                        }
+                        assert_eq!(g.to_bits(), want.to_bits(), "n {n}, case {case}, row {i}");
+                    }
+                }
+            }
+        }
+        // Correlated weights never take the shortcut.
+        let cov = DMatrix::from_row_slice(2, 2, &[1.0, 0.5, 0.5, 1.0]);
+        assert!(!Weights::from_covariance(&cov).unwrap().diagonal);
     }
 
     #[test]
