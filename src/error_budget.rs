@@ -440,6 +440,45 @@ mod tests {
     }
 
     #[test]
+    fn late_two_state_value_with_the_full_shift_as_excited_state_error() {
+        // Analytic: the late two-state fit (1.25, shifts WIDE) is the value; the excited-state
+        // error is the full shift to the all-tsep fit, |1.2 - 1.25| = 0.05, with no noise
+        // subtracted (the shift's noise, 3/4 Σ (WIDE - NOISE)² = 0.13575, exceeds d² here);
+        // the summation 0.5 away does not enter. Per model: dipole shift 0.05, z-expansion
+        // shift 0.15 (2.55 against 2.4), so the error is sqrt((0.05² + 0.15²)/2).
+        let v = [
+            var(Estimator::plateau_at(12), "", 1.0, &NOISE),
+            var(Estimator::Summation, "", 0.7, &NOISE),
+            var(Estimator::TwoState, "", 1.2, &NOISE),
+            var(Estimator::TwoStateLate, "", 1.25, &WIDE),
+        ];
+        let b = final_value(&v, None).unwrap_or_else(|| panic!("no budget"));
+        assert_eq!(b.rule, Rule::Reference);
+        assert_eq!(b.value.central, 1.25);
+        assert!((b.excited_states - 0.05).abs() < 1e-12);
+        assert!((b.stat - (0.75f64 * 0.2).sqrt()).abs() < 1e-12);
+        let w: Vec<f64> = b.variants.iter().map(|w| w.weight).collect();
+        assert_eq!(w, vec![0.0, 0.0, 0.0, 1.0]);
+        assert!(b.variants[2]
+            .excluded
+            .as_deref()
+            .is_some_and(|r| r.starts_with("a check") && r.ends_with("from two_state_late")));
+        let v = [
+            var(Estimator::TwoState, "dipole", 2.0, &NOISE),
+            var(Estimator::TwoStateLate, "dipole", 2.05, &NOISE),
+            var(Estimator::TwoState, "z-expansion", 2.4, &NOISE),
+            var(Estimator::TwoStateLate, "z-expansion", 2.55, &NOISE),
+        ];
+        let b = final_value(&v, None).unwrap_or_else(|| panic!("no budget"));
+        assert!((b.value.central - 2.3).abs() < 1e-12);
+        let want = ((0.05f64.powi(2) + 0.15f64.powi(2)) / 2.0).sqrt();
+        assert!((b.excited_states - want).abs() < 1e-12);
+        // Pinned to the all-tsep fit: the late fit is not selected.
+        let b = final_value(&v, Some(Estimator::TwoState)).unwrap_or_else(|| panic!("no budget"));
+        assert!((b.value.central - 2.2).abs() < 1e-12);
+    }
+
+    #[test]
     fn a_difference_within_its_noise_adds_no_excited_state_error() {
         // d = 0.1 with shifts WIDE - NOISE: σ_d² = 3/4 (0.29² · 2 + 0.08² · 2) = 0.13575 > d²
         let v = [

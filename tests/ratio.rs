@@ -303,9 +303,15 @@ fn single_state_ratio_is_the_matrix_element_everywhere() {
         }
         let result = analyse_channel(ratio.clone(), &states, &settings).unwrap();
         assert_eq!(result.plateaus.len(), 3);
+        // The late two-state fit drops the smallest of the three separations.
+        let late = result.two_state_late.as_ref().unwrap();
+        assert_eq!(result.two_state.as_ref().unwrap().tseps, vec![6, 8, 10]);
+        assert_eq!(late.tseps, vec![8, 10]);
+        assert_eq!(late.n_points, 7 + 9); // tau_cut 1: tau 1..tsep-1
         let mut estimates = vec![
             result.summation.as_ref().unwrap().slope.value.clone(),
             result.two_state.as_ref().unwrap().m.value.clone(),
+            late.m.value.clone(),
             result.final_estimate.clone(),
         ];
         estimates.extend(result.plateaus.iter().map(|p| p.fit.value.clone()));
