@@ -409,7 +409,10 @@ fn check_figures_and_page(name: &str, out: &Path) {
         let reference = match of("two_state_late") {
             Some(late) => {
                 let shift = (num(t, "value") - num(late, "value")).abs();
-                assert!((exc - shift).abs() <= 1e-12 * shift.max(1e-300), "{name}: {f:?}");
+                assert!(
+                    (exc - shift).abs() <= 1e-12 * shift.max(1e-300),
+                    "{name}: {f:?}"
+                );
                 assert_eq!(num(t, "weight"), 0.0, "{name}: {f:?}");
                 late
             }

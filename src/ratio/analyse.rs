@@ -33,7 +33,8 @@ pub struct ChannelResult {
     /// Two-state estimate, if it could run.
     pub two_state: Option<TwoStateFit>,
     /// The two-state fit without its smallest separation ([`Estimator::TwoStateLate`]), when
-    /// the two-state fit ran on at least three separations.
+    /// `excited_states.two_state_late` asks for it and the two-state fit ran on at least three
+    /// separations.
     pub two_state_late: Option<TwoStateFit>,
     /// Every comparison between the methods.
     pub crosscheck: Vec<CrossCheckRow>,
@@ -169,11 +170,12 @@ struct Fits<'a> {
 const TWO_STATE_LATE_NOTE: &str = "two-state fit without its smallest separation";
 
 /// The settings of the [`Estimator::TwoStateLate`] fit: the two-state settings with
-/// `two_state_tsep_min` raised to the second-smallest separation `fit` used; `None` when
-/// `fit` used fewer than three separations (the late fit would have one only).
+/// `two_state_tsep_min` raised to the second-smallest separation `fit` used; `None` unless
+/// `excited_states.two_state_late` asks for it, or when `fit` used fewer than three
+/// separations (the late fit would have one only).
 fn late_settings(fit: &TwoStateFit, settings: &RatioSettings) -> Option<RatioSettings> {
     let second = *fit.tseps.get(1)?;
-    (fit.tseps.len() >= 3).then(|| RatioSettings {
+    (settings.two_state_late && fit.tseps.len() >= 3).then(|| RatioSettings {
         two_state_tsep_min: second,
         ..settings.clone()
     })

@@ -37,7 +37,8 @@ pub enum Estimator {
     /// The same two-state fit without its smallest separation (from the second-smallest
     /// `tsep` the two-state fit uses): the final value's reference, with the shift from
     /// [`Estimator::TwoState`] as its excited-state error (docs/methods.md §4). Runs with
-    /// `two_state` when that fit has at least three separations; not a setting of its own.
+    /// `two_state` when `excited_states.two_state_late` is set and that fit has at least three
+    /// separations.
     TwoStateLate,
 }
 
@@ -170,7 +171,7 @@ impl JsonSchema for Estimator {
             "An excited-state estimator: `plateau` (every separation; as the final choice the \
              largest separation with a fit), `plateau_tsep<N>` (the plateau at tsep = N), \
              `summation`, `two_state`, `two_state_late` (the two-state fit without its \
-             smallest separation; it runs with `two_state`)."
+             smallest separation; it runs with `two_state` when `two_state_late: true`)."
                 .into(),
         );
         schema.into()

@@ -157,6 +157,11 @@ pub struct RatioSettings {
     pub summation_tsep_min: u32,
     /// Smallest `tsep` used by the two-state fit (default 0: all).
     pub two_state_tsep_min: u32,
+    /// Also fit the two-state form without its smallest separation (`two_state_late`, when the
+    /// two-state fit has at least three); the final values then take that fit, with its shift
+    /// from the fit over every separation as the excited-state error (docs/methods.md §4).
+    /// Default false: the two-state value with the summation difference as that error.
+    pub two_state_late: bool,
     /// Two-state variant (default: fixed gaps).
     pub two_state: TwoStateVariant,
     /// Whether source and sink interpolators are identical, so that `c_i = c_f` is enforced
@@ -219,6 +224,7 @@ impl Default for RatioSettings {
             tau_cut: 1,
             summation_tsep_min: 0,
             two_state_tsep_min: 0,
+            two_state_late: false,
             two_state: TwoStateVariant::default(),
             identical_interpolators: true,
             two_point_smear: None,
