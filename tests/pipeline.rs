@@ -385,6 +385,13 @@ fn check_figures_and_page(name: &str, out: &Path) {
         // gevp-energies-p0.0.1.svg: named by momentum, never by index
         assert!(p.contains("-p"), "{name}: {p}");
     }
+    let (_, late) = check_final_rule(name, out);
+    assert_eq!(late, 0, "{name}: a late two-state fit without the setting");
+}
+
+/// Check the final-value rule of docs/methods.md §4 on every shell of a run; returns how many
+/// shells were checked and how many of them with the late two-state fit as the reference.
+fn check_final_rule(name: &str, out: &Path) -> (usize, usize) {
     // The final-value rule of docs/methods.md §4. With the two-state fit without its smallest
     // separation (`two_state_late`) the value is that fit's (the only variant with weight) and
     // the excited-state error of a form factor at a shell is the full shift |M_all − M_late|
@@ -393,7 +400,7 @@ fn check_figures_and_page(name: &str, out: &Path) {
     // difference; since σ_d ≤ σ_s + σ_t (triangle inequality), it lies between
     // sqrt(max(0, d² - (σ_s + σ_t)²)) and |d|.
     let variants = read_rows(&out.join("final_variants.csv"));
-    let mut checked = 0;
+    let (mut checked, mut late) = (0, 0);
     for f in read_rows(&out.join("final.csv")) {
         if f["shell"].is_empty() {
             continue;
@@ -407,14 +414,15 @@ fn check_figures_and_page(name: &str, out: &Path) {
         };
         let exc = num(&f, "error_excited_states");
         let reference = match of("two_state_late") {
-            Some(late) => {
-                let shift = (num(t, "value") - num(late, "value")).abs();
+            Some(late_row) => {
+                let shift = (num(t, "value") - num(late_row, "value")).abs();
                 assert!(
                     (exc - shift).abs() <= 1e-12 * shift.max(1e-300),
                     "{name}: {f:?}"
                 );
                 assert_eq!(num(t, "weight"), 0.0, "{name}: {f:?}");
-                late
+                late += 1;
+                late_row
             }
             None => {
                 let diff = (num(s, "value") - num(t, "value")).abs();
@@ -447,6 +455,28 @@ fn check_figures_and_page(name: &str, out: &Path) {
         checked > 0,
         "{name}: no shell with summation and two-state results"
     );
+    (checked, late)
+}
+
+#[test]
+fn late_two_state_rule_on_the_nucleon_demo() {
+    // With `excited_states.two_state_late: true` every shell of the nucleon demo (four
+    // separations) takes the late fit's value with the full shift as excited-state error;
+    // without it none does (check_figures_and_page covers the default run).
+    let dir = tempdir();
+    let out = dir.path().join("late");
+    run_example(
+        "nucleon-vector",
+        &out,
+        &[
+            "--set",
+            "excited_states.two_state_late=true",
+            "--set",
+            "output.plots=[]",
+        ],
+    );
+    let (checked, late) = check_final_rule("nucleon-vector, late", &out);
+    assert_eq!(late, checked, "every shell has the late fit");
 }
 
 #[test]
