@@ -97,6 +97,29 @@ fn set_with_unknown_path_is_refused_with_suggestion() {
 }
 
 #[test]
+fn two_state_late_needs_its_setting() {
+    // `two_state_late` is made only with `excited_states.two_state_late: true`: choosing it
+    // without the setting is refused with the key, with the setting it loads.
+    let dir = tempdir();
+    let p = edited(dir.path(), |t| t.to_string());
+    for (set, key) in [
+        ("excited_states.final_method=two_state_late", "final_method"),
+        ("final_value.pin=two_state_late", "final_value.pin"),
+    ] {
+        let e = load_err(&p, &[set]);
+        assert!(
+            e.contains(key) && e.contains("two_state_late: true"),
+            "{set}: {e}"
+        );
+        let sets = [
+            set.to_string(),
+            "excited_states.two_state_late=true".to_string(),
+        ];
+        assert!(pipeline::load(&p, &sets).is_ok(), "{set}");
+    }
+}
+
+#[test]
 fn out_of_range_values_quote_their_key() {
     let dir = tempdir();
     let p = edited(dir.path(), |t| {

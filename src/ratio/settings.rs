@@ -250,8 +250,25 @@ impl RatioSettings {
                 ),
             ));
         }
+        let late = Estimator::TwoStateLate;
+        if !self.two_state_late && (self.final_method == late || self.methods.contains(&late)) {
+            let key = if self.final_method == late {
+                "final_method"
+            } else {
+                "methods"
+            };
+            return Err(Invalid::new(
+                key,
+                "`two_state_late` is made only with `two_state_late: true` (and `two_state` among \
+                 the methods)",
+            ));
+        }
         let f = self.final_method;
-        if !self.methods.iter().any(|m| m.selects(f) || f.selects(*m)) {
+        if !self
+            .methods
+            .iter()
+            .any(|m| m.with_companions(f) || f.selects(*m))
+        {
             let run: Vec<String> = self.methods.iter().map(Estimator::to_string).collect();
             return Err(Invalid::new(
                 "final_method",
