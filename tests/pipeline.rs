@@ -97,6 +97,29 @@ fn set_with_unknown_path_is_refused_with_suggestion() {
 }
 
 #[test]
+fn two_state_late_needs_its_setting() {
+    // `two_state_late` is made only with `excited_states.two_state_late: true`: choosing it
+    // without the setting is refused with the key, with the setting it loads.
+    let dir = tempdir();
+    let p = edited(dir.path(), |t| t.to_string());
+    for (set, key) in [
+        ("excited_states.final_method=two_state_late", "final_method"),
+        ("final_value.pin=two_state_late", "final_value.pin"),
+    ] {
+        let e = load_err(&p, &[set]);
+        assert!(
+            e.contains(key) && e.contains("two_state_late: true"),
+            "{set}: {e}"
+        );
+        let sets = [
+            set.to_string(),
+            "excited_states.two_state_late=true".to_string(),
+        ];
+        assert!(pipeline::load(&p, &sets).is_ok(), "{set}");
+    }
+}
+
+#[test]
 fn out_of_range_values_quote_their_key() {
     let dir = tempdir();
     let p = edited(dir.path(), |t| {
@@ -385,13 +408,22 @@ fn check_figures_and_page(name: &str, out: &Path) {
         // gevp-energies-p0.0.1.svg: named by momentum, never by index
         assert!(p.contains("-p"), "{name}: {p}");
     }
-    // The final-value rule of docs/methods.md §4: next to the summation and two-state results
-    // the value is the two-state result (the only variant with weight) and the excited-state
-    // error of a form factor at a shell is sqrt(max(0, d² - σ_d²)) with d the difference of
-    // the two; since σ_d ≤ σ_s + σ_t (triangle inequality), it lies between
+    let (_, late) = check_final_rule(name, out);
+    assert_eq!(late, 0, "{name}: a late two-state fit without the setting");
+}
+
+/// Check the final-value rule of docs/methods.md §4 on every shell of a run; returns how many
+/// shells were checked and how many of them with the late two-state fit as the reference.
+fn check_final_rule(name: &str, out: &Path) -> (usize, usize) {
+    // The final-value rule of docs/methods.md §4. With the two-state fit without its smallest
+    // separation (`two_state_late`) the value is that fit's (the only variant with weight) and
+    // the excited-state error of a form factor at a shell is the full shift |M_all − M_late|
+    // to the two-state fit over every separation. Without it the value is the two-state
+    // result and the error sqrt(max(0, d² - σ_d²)) with d the summation − two-state
+    // difference; since σ_d ≤ σ_s + σ_t (triangle inequality), it lies between
     // sqrt(max(0, d² - (σ_s + σ_t)²)) and |d|.
     let variants = read_rows(&out.join("final_variants.csv"));
-    let mut checked = 0;
+    let (mut checked, mut late) = (0, 0);
     for f in read_rows(&out.join("final.csv")) {
         if f["shell"].is_empty() {
             continue;
@@ -403,20 +435,35 @@ fn check_figures_and_page(name: &str, out: &Path) {
         let (Some(s), Some(t)) = (of("summation"), of("two_state")) else {
             continue;
         };
-        let diff = (num(s, "value") - num(t, "value")).abs();
-        if !diff.is_finite() {
-            continue;
-        }
         let exc = num(&f, "error_excited_states");
-        let noise = num(s, "error") + num(t, "error");
-        let lower = (diff * diff - noise * noise).max(0.0).sqrt();
-        assert!(
-            exc <= diff * (1.0 + 1e-12) && exc >= lower * (1.0 - 1e-12),
-            "{name}: {f:?}"
-        );
-        assert_eq!(num(t, "weight"), 1.0, "{name}: {f:?}");
+        let reference = match of("two_state_late") {
+            Some(late_row) => {
+                let shift = (num(t, "value") - num(late_row, "value")).abs();
+                assert!(
+                    (exc - shift).abs() <= 1e-12 * shift.max(1e-300),
+                    "{name}: {f:?}"
+                );
+                assert_eq!(num(t, "weight"), 0.0, "{name}: {f:?}");
+                late += 1;
+                late_row
+            }
+            None => {
+                let diff = (num(s, "value") - num(t, "value")).abs();
+                if !diff.is_finite() {
+                    continue;
+                }
+                let noise = num(s, "error") + num(t, "error");
+                let lower = (diff * diff - noise * noise).max(0.0).sqrt();
+                assert!(
+                    exc <= diff * (1.0 + 1e-12) && exc >= lower * (1.0 - 1e-12),
+                    "{name}: {f:?}"
+                );
+                t
+            }
+        };
+        assert_eq!(num(reference, "weight"), 1.0, "{name}: {f:?}");
         assert_eq!(num(s, "weight"), 0.0, "{name}: {f:?}");
-        assert_eq!(num(&f, "value"), num(t, "value"), "{name}: {f:?}");
+        assert_eq!(num(&f, "value"), num(reference, "value"), "{name}: {f:?}");
         assert!(
             variants
                 .iter()
@@ -431,6 +478,28 @@ fn check_figures_and_page(name: &str, out: &Path) {
         checked > 0,
         "{name}: no shell with summation and two-state results"
     );
+    (checked, late)
+}
+
+#[test]
+fn late_two_state_rule_on_the_nucleon_demo() {
+    // With `excited_states.two_state_late: true` every shell of the nucleon demo (four
+    // separations) takes the late fit's value with the full shift as excited-state error;
+    // without it none does (check_figures_and_page covers the default run).
+    let dir = tempdir();
+    let out = dir.path().join("late");
+    run_example(
+        "nucleon-vector",
+        &out,
+        &[
+            "--set",
+            "excited_states.two_state_late=true",
+            "--set",
+            "output.plots=[]",
+        ],
+    );
+    let (checked, late) = check_final_rule("nucleon-vector, late", &out);
+    assert_eq!(late, checked, "every shell has the late fit");
 }
 
 #[test]

@@ -301,11 +301,24 @@ fn single_state_ratio_is_the_matrix_element_everywhere() {
             assert_relative_eq!(p.value.re.central, ch.m.0, max_relative = 1e-10);
             assert_relative_eq!(p.value.im.central, ch.m.1, max_relative = 1e-10);
         }
-        let result = analyse_channel(ratio.clone(), &states, &settings).unwrap();
+        let late_settings = RatioSettings {
+            two_state_late: true,
+            ..settings.clone()
+        };
+        let result = analyse_channel(ratio.clone(), &states, &late_settings).unwrap();
         assert_eq!(result.plateaus.len(), 3);
+        // The late two-state fit (asked for) drops the smallest of the three separations;
+        // without the setting it is not made.
+        let plain = analyse_channel(ratio.clone(), &states, &settings).unwrap();
+        assert!(plain.two_state_late.is_none());
+        let late = result.two_state_late.as_ref().unwrap();
+        assert_eq!(result.two_state.as_ref().unwrap().tseps, vec![6, 8, 10]);
+        assert_eq!(late.tseps, vec![8, 10]);
+        assert_eq!(late.n_points, 7 + 9); // tau_cut 1: tau 1..tsep-1
         let mut estimates = vec![
             result.summation.as_ref().unwrap().slope.value.clone(),
             result.two_state.as_ref().unwrap().m.value.clone(),
+            late.m.value.clone(),
             result.final_estimate.clone(),
         ];
         estimates.extend(result.plateaus.iter().map(|p| p.fit.value.clone()));

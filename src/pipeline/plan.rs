@@ -232,6 +232,12 @@ fn validate(plan: &Plan) -> Result<()> {
             );
         }
     }
+    if s.final_value.pin == Some(Estimator::TwoStateLate) && !s.excited_states.two_state_late {
+        return err(
+            "final_value.pin",
+            "`two_state_late` is made only with `excited_states.two_state_late: true`".into(),
+        );
+    }
     if s.excited_states.methods.contains(&Estimator::TwoState) && s.spectrum.n_states.to < 2 {
         return err("spectrum.n_states", "the two-state ratio fit needs the excited-state gap: let n_states reach 2, or drop two_state from excited_states.methods".into());
     }

@@ -9,7 +9,7 @@
 use super::crosscheck::{cross_check, CrossCheckRow};
 use super::plateau::{plateau, PlateauFit};
 use super::summation::{summation, SummationFit};
-use super::two_state::{two_state, TwoPointStates, TwoStateFit};
+use super::two_state::{two_state as two_state_fit, TwoPointStates, TwoStateFit};
 use super::{
     ChannelKey, ChannelRatio, Estimator, RatioSettings, RatioSummary, ReIm, ReImFit, STAGE,
 };
@@ -32,6 +32,10 @@ pub struct ChannelResult {
     pub summation: Option<SummationFit>,
     /// Two-state estimate, if it could run.
     pub two_state: Option<TwoStateFit>,
+    /// The two-state fit without its smallest separation ([`Estimator::TwoStateLate`]), when
+    /// `excited_states.two_state_late` asks for it and the two-state fit ran on at least three
+    /// separations.
+    pub two_state_late: Option<TwoStateFit>,
     /// Every comparison between the methods.
     pub crosscheck: Vec<CrossCheckRow>,
     /// The estimator that feeds the final result (a plateau with its `tsep`).
@@ -59,12 +63,25 @@ pub fn analyse_channel(
     let summation = summation(&ratio, settings)
         .map_err(|e| notes.push(e.to_string()))
         .ok();
-    let two_state = two_state(&ratio, states, settings)
+    let two_state = two_state_fit(&ratio, states, settings)
         .map_err(|e| notes.push(e.to_string()))
         .ok();
+    let two_state_late = two_state
+        .as_ref()
+        .and_then(|t| late_settings(t, settings))
+        .and_then(|late| {
+            two_state_fit(&ratio, states, &late)
+                .map_err(|e| notes.push(format!("{TWO_STATE_LATE_NOTE}: {e}")))
+                .ok()
+        });
     let crosscheck = cross_check(&plateaus, summation.as_ref(), two_state.as_ref());
-    let Some((final_method, fit)) = choose(&plateaus, &summation, &two_state, settings, &mut notes)
-    else {
+    let fits = Fits {
+        plateaus: &plateaus,
+        summation: &summation,
+        two_state: &two_state,
+        two_state_late: &two_state_late,
+    };
+    let Some((final_method, fit)) = choose(fits, settings, &mut notes) else {
         return Err(Error::analysis(
             STAGE,
             format!(
@@ -85,6 +102,7 @@ pub fn analyse_channel(
         plateaus,
         summation,
         two_state,
+        two_state_late,
         crosscheck,
         final_method,
         final_estimate,
@@ -97,14 +115,12 @@ pub fn analyse_channel(
 /// summation and the plateau at the largest `tsep`, with a note saying so. The channel's
 /// other estimates are unaffected: each method's form factors use the channels it ran on.
 fn choose<'a>(
-    plateaus: &'a [PlateauFit],
-    summation: &'a Option<SummationFit>,
-    two_state: &'a Option<TwoStateFit>,
+    fits: Fits<'a>,
     settings: &RatioSettings,
     notes: &mut Vec<String>,
 ) -> Option<(Estimator, &'a ReImFit)> {
     let wanted = settings.final_method;
-    if let Some(found) = pick(plateaus, summation, two_state, wanted) {
+    if let Some(found) = pick(fits, wanted) {
         return Some(found);
     }
     let fallback = [
@@ -113,7 +129,7 @@ fn choose<'a>(
         Estimator::Plateau { tsep: None },
     ]
     .into_iter()
-    .find_map(|e| pick(plateaus, summation, two_state, e))?;
+    .find_map(|e| pick(fits, e))?;
     notes.push(format!(
         "the final method `{wanted}` could not run, so `{}` stands in for it in this \
          channel's ratio plot",
@@ -124,29 +140,58 @@ fn choose<'a>(
 
 /// The fit of estimator `e` among a channel's fits, made concrete (`plateau`: the largest
 /// `tsep` with a fit).
-fn pick<'a>(
+fn pick(fits: Fits<'_>, e: Estimator) -> Option<(Estimator, &ReImFit)> {
+    match e {
+        Estimator::Plateau { tsep: None } => fits
+            .plateaus
+            .last()
+            .map(|p| (Estimator::plateau_at(p.tsep), &p.fit)),
+        Estimator::Plateau { tsep: Some(t) } => fits
+            .plateaus
+            .iter()
+            .find(|p| p.tsep == t)
+            .map(|p| (e, &p.fit)),
+        Estimator::Summation => fits.summation.as_ref().map(|s| (e, &s.slope)),
+        Estimator::TwoState => fits.two_state.as_ref().map(|t| (e, &t.m)),
+        Estimator::TwoStateLate => fits.two_state_late.as_ref().map(|t| (e, &t.m)),
+    }
+}
+
+/// A channel's fits, as [`pick`] looks them up.
+#[derive(Clone, Copy)]
+struct Fits<'a> {
     plateaus: &'a [PlateauFit],
     summation: &'a Option<SummationFit>,
     two_state: &'a Option<TwoStateFit>,
-    e: Estimator,
-) -> Option<(Estimator, &'a ReImFit)> {
-    match e {
-        Estimator::Plateau { tsep: None } => plateaus
-            .last()
-            .map(|p| (Estimator::plateau_at(p.tsep), &p.fit)),
-        Estimator::Plateau { tsep: Some(t) } => {
-            plateaus.iter().find(|p| p.tsep == t).map(|p| (e, &p.fit))
-        }
-        Estimator::Summation => summation.as_ref().map(|s| (e, &s.slope)),
-        Estimator::TwoState => two_state.as_ref().map(|t| (e, &t.m)),
-    }
+    two_state_late: &'a Option<TwoStateFit>,
+}
+
+/// Prefix of the note when the two-state fit without its smallest separation fails.
+const TWO_STATE_LATE_NOTE: &str = "two-state fit without its smallest separation";
+
+/// The settings of the [`Estimator::TwoStateLate`] fit: the two-state settings with
+/// `two_state_tsep_min` raised to the second-smallest separation `fit` used; `None` unless
+/// `excited_states.two_state_late` asks for it, or when `fit` used fewer than three
+/// separations (the late fit would have one only).
+fn late_settings(fit: &TwoStateFit, settings: &RatioSettings) -> Option<RatioSettings> {
+    let second = *fit.tseps.get(1)?;
+    (settings.two_state_late && fit.tseps.len() >= 3).then(|| RatioSettings {
+        two_state_tsep_min: second,
+        ..settings.clone()
+    })
 }
 
 impl ChannelResult {
     /// The fit of one estimator, with the estimator made concrete (`plateau` is the plateau
     /// at the largest `tsep` with a fit); `None` when it did not run on this channel.
     pub fn estimate(&self, e: Estimator) -> Option<(Estimator, &ReImFit)> {
-        pick(&self.plateaus, &self.summation, &self.two_state, e)
+        let fits = Fits {
+            plateaus: &self.plateaus,
+            summation: &self.summation,
+            two_state: &self.two_state,
+            two_state_late: &self.two_state_late,
+        };
+        pick(fits, e)
     }
 
     /// Every estimate that ran, in estimator order.
@@ -158,6 +203,7 @@ impl ChannelResult {
             .collect();
         out.extend(self.estimate(Estimator::Summation));
         out.extend(self.estimate(Estimator::TwoState));
+        out.extend(self.estimate(Estimator::TwoStateLate));
         out
     }
 }

@@ -34,9 +34,16 @@ pub enum Estimator {
     Summation,
     /// Two-state fit over all separations and insertion times.
     TwoState,
+    /// The same two-state fit without its smallest separation (from the second-smallest
+    /// `tsep` the two-state fit uses): the final value's reference, with the shift from
+    /// [`Estimator::TwoState`] as its excited-state error (docs/methods.md §4). Runs with
+    /// `two_state` when `excited_states.two_state_late` is set and that fit has at least three
+    /// separations.
+    TwoStateLate,
 }
 
 const PLATEAU_TSEP: &str = "plateau_tsep";
+const TWO_STATE_LATE: &str = "two_state_late";
 /// An older spelling of `plateau` as the final choice, still read.
 const PLATEAU_LARGEST: &str = "plateau_largest_tsep";
 
@@ -63,7 +70,8 @@ impl Estimator {
     }
 
     /// Whether a setting `self` selects the concrete estimator `other` (`plateau` selects
-    /// every plateau; anything else only itself).
+    /// every plateau; anything else only itself). [`Estimator::with_companions`] says which
+    /// estimators a method in `excited_states.methods` brings with it.
     pub fn selects(self, other: Estimator) -> bool {
         match (self, other) {
             (Estimator::Plateau { tsep: None }, Estimator::Plateau { .. }) => true,
@@ -71,8 +79,15 @@ impl Estimator {
         }
     }
 
+    /// Whether listing `self` in `excited_states.methods` produces `other`: what
+    /// [`Estimator::selects`] says, and `two_state` also brings its `two_state_late` fit.
+    pub fn with_companions(self, other: Estimator) -> bool {
+        self.selects(other) || (self == Estimator::TwoState && other == Estimator::TwoStateLate)
+    }
+
     /// The labels a user may write, for messages.
-    pub const VALID: &'static str = "plateau, plateau_tsep<N>, summation, two_state";
+    pub const VALID: &'static str =
+        "plateau, plateau_tsep<N>, summation, two_state, two_state_late";
 }
 
 impl fmt::Display for Estimator {
@@ -82,6 +97,7 @@ impl fmt::Display for Estimator {
             Estimator::Plateau { tsep: Some(t) } => write!(f, "{PLATEAU_TSEP}{t}"),
             Estimator::Summation => f.write_str("summation"),
             Estimator::TwoState => f.write_str("two_state"),
+            Estimator::TwoStateLate => f.write_str(TWO_STATE_LATE),
         }
     }
 }
@@ -111,6 +127,7 @@ impl FromStr for Estimator {
             "plateau" | PLATEAU_LARGEST => Ok(Estimator::Plateau { tsep: None }),
             "summation" => Ok(Estimator::Summation),
             "two_state" => Ok(Estimator::TwoState),
+            TWO_STATE_LATE => Ok(Estimator::TwoStateLate),
             _ => s
                 .strip_prefix(PLATEAU_TSEP)
                 .filter(|t| !t.is_empty() && t.bytes().all(|b| b.is_ascii_digit()))
@@ -144,7 +161,7 @@ impl JsonSchema for Estimator {
             instance_type: Some(InstanceType::String.into()),
             string: Some(Box::new(StringValidation {
                 pattern: Some(format!(
-                    "^(plateau|{PLATEAU_TSEP}[0-9]+|summation|two_state|{PLATEAU_LARGEST})$"
+                    "^(plateau|{PLATEAU_TSEP}[0-9]+|summation|two_state|{TWO_STATE_LATE}|{PLATEAU_LARGEST})$"
                 )),
                 ..Default::default()
             })),
@@ -153,7 +170,8 @@ impl JsonSchema for Estimator {
         schema.metadata().description = Some(
             "An excited-state estimator: `plateau` (every separation; as the final choice the \
              largest separation with a fit), `plateau_tsep<N>` (the plateau at tsep = N), \
-             `summation`, `two_state`."
+             `summation`, `two_state`, `two_state_late` (the two-state fit without its \
+             smallest separation; it runs with `two_state` when `two_state_late: true`)."
                 .into(),
         );
         schema.into()
@@ -172,6 +190,7 @@ mod tests {
             Estimator::plateau_at(10),
             Estimator::Summation,
             Estimator::TwoState,
+            Estimator::TwoStateLate,
         ];
         for e in all {
             assert_eq!(e.to_string().parse::<Estimator>(), Ok(e));

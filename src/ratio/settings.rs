@@ -157,6 +157,11 @@ pub struct RatioSettings {
     pub summation_tsep_min: u32,
     /// Smallest `tsep` used by the two-state fit (default 0: all).
     pub two_state_tsep_min: u32,
+    /// Also fit the two-state form without its smallest separation (`two_state_late`, when the
+    /// two-state fit has at least three); the final values then take that fit, with its shift
+    /// from the fit over every separation as the excited-state error (docs/methods.md §4).
+    /// Default false: the two-state value with the summation difference as that error.
+    pub two_state_late: bool,
     /// Two-state variant (default: fixed gaps).
     pub two_state: TwoStateVariant,
     /// Whether source and sink interpolators are identical, so that `c_i = c_f` is enforced
@@ -219,6 +224,7 @@ impl Default for RatioSettings {
             tau_cut: 1,
             summation_tsep_min: 0,
             two_state_tsep_min: 0,
+            two_state_late: false,
             two_state: TwoStateVariant::default(),
             identical_interpolators: true,
             two_point_smear: None,
@@ -244,8 +250,25 @@ impl RatioSettings {
                 ),
             ));
         }
+        let late = Estimator::TwoStateLate;
+        if !self.two_state_late && (self.final_method == late || self.methods.contains(&late)) {
+            let key = if self.final_method == late {
+                "final_method"
+            } else {
+                "methods"
+            };
+            return Err(Invalid::new(
+                key,
+                "`two_state_late` is made only with `two_state_late: true` (and `two_state` among \
+                 the methods)",
+            ));
+        }
         let f = self.final_method;
-        if !self.methods.iter().any(|m| m.selects(f) || f.selects(*m)) {
+        if !self
+            .methods
+            .iter()
+            .any(|m| m.with_companions(f) || f.selects(*m))
+        {
             let run: Vec<String> = self.methods.iter().map(Estimator::to_string).collect();
             return Err(Invalid::new(
                 "final_method",

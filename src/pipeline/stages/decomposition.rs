@@ -19,7 +19,7 @@ fn method_values(
     let mut out: BTreeMap<Estimator, Vec<ChannelValue>> = BTreeMap::new();
     for (k, c) in channels {
         for (e, fit) in c.estimates() {
-            if methods.iter().any(|m| m.selects(e)) {
+            if methods.iter().any(|m| m.with_companions(e)) {
                 out.entry(e).or_default().push(ChannelValue {
                     pf: k.pf,
                     q: k.q,

@@ -23,11 +23,12 @@ pub(super) fn tsep_colour(tsep: u32) -> usize {
 }
 
 /// Colour and marker of an estimator, the same in every chart and every run: two-state a
-/// blue circle, summation a vermillion square, every plateau a diamond in its separation's
+/// blue circle (without its smallest separation a blue triangle), summation a vermillion square, every plateau a diamond in its separation's
 /// colour (the plateau without a separation a green triangle).
 pub(super) fn estimator_style(e: Estimator) -> (usize, Marker) {
     match e {
         Estimator::TwoState => (0, Marker::Circle),
+        Estimator::TwoStateLate => (0, Marker::Triangle),
         Estimator::Summation => (1, Marker::Square),
         Estimator::Plateau { tsep: None } => (2, Marker::Triangle),
         Estimator::Plateau { tsep: Some(t) } => (tsep_colour(t), Marker::Diamond),
