@@ -110,6 +110,49 @@ impl Weights {
             ));
         }
         let s: Vec<f64> = d.iter().map(|v| v.sqrt()).collect();
+        if off_diagonal_zero(cov) {
+            if let Some(w) = Self::uncorrelated(&d, &s) {
+                return Ok(w);
+            }
+        }
+        Self::correlated(cov, &s)
+    }
+
+    /// [`Weights::from_covariance`] for a covariance without correlations, in `O(n)` instead
+    /// of the eigen-decomposition and Cholesky factorisation of an identity correlation
+    /// matrix: the same operations on the diagonal, so the same bits (unit test
+    /// `uncorrelated_covariances_give_the_general_paths_bits`). `None` when a diagonal of the
+    /// correlation matrix is not a finite positive number (variances so small that `s * s`
+    /// underflows): the general path judges those.
+    fn uncorrelated(d: &[f64], s: &[f64]) -> Option<Weights> {
+        let n = d.len();
+        let corr: Vec<f64> = d
+            .iter()
+            .zip(s)
+            .map(|(v, s)| 0.5 * (v + v) / (s * s))
+            .collect();
+        if corr.iter().any(|c| !c.is_finite() || *c <= 0.0) {
+            return None;
+        }
+        let (lmin, lmax) = corr.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), c| {
+            (lo.min(*c), hi.max(*c))
+        });
+        let mut w = DMatrix::zeros(n, n);
+        for (i, (c, s)) in corr.iter().zip(s).enumerate() {
+            // Cholesky of a diagonal: sqrt; its triangular inverse: the reciprocal.
+            w[(i, i)] = (1.0 / c.sqrt()) / s;
+        }
+        Some(Weights {
+            whitening: w,
+            condition: lmax / lmin,
+            diagonal: true,
+        })
+    }
+
+    /// [`Weights::from_covariance`] for any covariance (variances checked, `s` their square
+    /// roots): through the correlation matrix's eigenvalues and Cholesky factor.
+    fn correlated(cov: &DMatrix<f64>, s: &[f64]) -> Result<Weights> {
+        let n = cov.nrows();
         let corr = DMatrix::from_fn(n, n, |i, j| {
             0.5 * (cov[(i, j)] + cov[(j, i)]) / (s[i] * s[j])
         });
@@ -424,6 +467,30 @@ mod tests {
         // Correlated weights never take the shortcut.
         let cov = DMatrix::from_row_slice(2, 2, &[1.0, 0.5, 0.5, 1.0]);
         assert!(!Weights::from_covariance(&cov).unwrap().diagonal);
+    }
+
+    #[test]
+    fn uncorrelated_covariances_give_the_general_paths_bits() {
+        // The shortcut must reproduce the eigen/Cholesky path exactly (its definition), over
+        // variances spanning many orders of magnitude.
+        for n in [1, 2, 7, 45] {
+            let d: Vec<f64> = (0..n)
+                .map(|i| (1.7 + (3.1 * i as f64).sin()) * 10f64.powi((i as i32 * 37) % 41 - 20))
+                .collect();
+            let cov = DMatrix::from_fn(n, n, |i, j| if i == j { d[i] } else { 0.0 });
+            let s: Vec<f64> = d.iter().map(|v| v.sqrt()).collect();
+            let fast = Weights::from_covariance(&cov).unwrap();
+            let general = Weights::correlated(&cov, &s).unwrap();
+            assert!(fast.diagonal && general.diagonal, "n {n}");
+            for i in 0..n {
+                assert_eq!(
+                    fast.matrix()[(i, i)].to_bits(),
+                    general.matrix()[(i, i)].to_bits(),
+                    "n {n}, point {i}"
+                );
+            }
+            assert!((fast.condition_number() - general.condition_number()).abs() < 1e-12);
+        }
     }
 
     #[test]
