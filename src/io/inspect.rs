@@ -12,10 +12,15 @@
 use super::accumulator::Summary;
 use super::table::{display_name, open};
 use super::{threept, twopt};
-use crate::data::{norm2, sub, Momentum, ThreePointData, TwoPointData};
+use crate::data::{
+    norm2, sub, Momentum, Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey,
+};
 use crate::error::{Error, Result};
-use crate::resample::autocorr_check::{CheckedPoint, PointAutocorr, TAU_INT_WARN, WINDOW_S};
-use std::collections::BTreeSet;
+use crate::resample::autocorr_check::{
+    replaces_twopt_choice, threept_history, twopt_histories, CheckedPoint, PointAutocorr,
+    TAU_INT_WARN, WINDOW_S,
+};
+use std::collections::{BTreeMap, BTreeSet};
 use std::fmt::Write as _;
 use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
@@ -25,75 +30,218 @@ const SMALL_T: usize = 3;
 /// At most this many items are listed in one warning or summary line.
 const LIST_MAX: usize = 8;
 
-/// The data `formfactory inspect` describes, as read.
+/// What `formfactory inspect` describes: for each table read, its origin, size,
+/// configurations and channel keys, the warnings about each channel's values, and the
+/// Monte Carlo histories of the representative points (`resample::autocorr_check`). The
+/// values themselves are not kept: a packed file is walked one channel at a time into one
+/// reused buffer ([`read`]), so memory does not grow with the number of channels.
 pub struct Inspected {
-    two: Loaded<TwoPointData>,
-    three: Loaded<ThreePointData>,
+    two: Option<TwoScan>,
+    three: Option<ThreeScan>,
 }
 
 impl Inspected {
-    /// The two-point data, if any were read.
-    pub fn twopt(&self) -> Option<&TwoPointData> {
-        self.two.as_ref().map(|t| &t.1)
+    /// The representative points with their Monte Carlo histories, for the autocorrelation
+    /// check (`resample::autocorr_check::check_points`; the same points as `check` on the
+    /// whole data).
+    pub fn points(&self) -> Vec<(CheckedPoint<'_>, &[f64])> {
+        let mut points = Vec::new();
+        if let Some((key, histories)) = self.two.as_ref().and_then(|t| t.chosen.as_ref()) {
+            for (t, x) in histories {
+                points.push((CheckedPoint::TwoPoint { key, t: *t }, x.as_slice()));
+            }
+        }
+        if let Some((key, (tau, imaginary, x))) =
+            self.three.as_ref().and_then(|t| t.chosen.as_ref())
+        {
+            let point = CheckedPoint::ThreePoint {
+                key,
+                tau: *tau,
+                imaginary: *imaginary,
+            };
+            points.push((point, x.as_slice()));
+        }
+        points
+    }
+}
+
+/// What inspect keeps of a two-point table, filled channel by channel ([`TwoScan::add`]).
+struct TwoScan {
+    name: PathBuf,
+    /// The reader's count of rows, or `None` to count the values (HDF5 input).
+    summary: Option<Summary>,
+    configs: Vec<i64>,
+    /// Every channel: its number of time slices and the warnings about its values.
+    channels: BTreeMap<TwoPointKey, (usize, Vec<String>)>,
+    /// The channel whose points the autocorrelation check looks at, with their histories.
+    chosen: Option<(TwoPointKey, Vec<(usize, Vec<f64>)>)>,
+}
+
+impl TwoScan {
+    fn new(name: PathBuf, summary: Option<Summary>, configs: Vec<i64>) -> Self {
+        TwoScan {
+            name,
+            summary,
+            configs,
+            channels: BTreeMap::new(),
+            chosen: None,
+        }
     }
 
-    /// The three-point data, if any were read.
-    pub fn threept(&self) -> Option<&ThreePointData> {
-        self.three.as_ref().map(|t| &t.1)
+    /// Take what inspect needs of one channel (a later channel of an equal key replaces the
+    /// earlier, as in the data model's map).
+    fn add(&mut self, key: TwoPointKey, s: &Series) {
+        let warnings = twopt_warnings(&key, s);
+        if replaces_twopt_choice(&key, self.chosen.as_ref().map(|c| &c.0)) {
+            self.chosen = Some((key.clone(), twopt_histories(s)));
+        }
+        self.channels.insert(key, (s.n_t, warnings));
+    }
+
+    fn from_data(name: PathBuf, summary: Option<Summary>, d: TwoPointData) -> Self {
+        let mut scan = TwoScan::new(name, summary, d.configs);
+        for (key, s) in d.channels {
+            scan.add(key, &s);
+        }
+        scan
+    }
+
+    fn summary(&self) -> Summary {
+        self.summary.unwrap_or_else(|| {
+            let n = self.configs.len();
+            values_summary(self.channels.values().map(|(n_t, _)| n_t * n))
+        })
+    }
+}
+
+/// What inspect keeps of a three-point table, filled channel by channel.
+struct ThreeScan {
+    name: PathBuf,
+    /// As in [`TwoScan`].
+    summary: Option<Summary>,
+    configs: Vec<i64>,
+    /// Every channel with its number of time slices.
+    channels: BTreeMap<ThreePointKey, usize>,
+    /// The first channel in key order with its checked point `(tau, imaginary, history)`.
+    chosen: Option<(ThreePointKey, (usize, bool, Vec<f64>))>,
+}
+
+impl ThreeScan {
+    fn new(name: PathBuf, summary: Option<Summary>, configs: Vec<i64>) -> Self {
+        ThreeScan {
+            name,
+            summary,
+            configs,
+            channels: BTreeMap::new(),
+            chosen: None,
+        }
+    }
+
+    fn add(&mut self, key: ThreePointKey, s: &Series) {
+        if self.chosen.as_ref().is_none_or(|c| key <= c.0) {
+            self.chosen = Some((key.clone(), threept_history(s)));
+        }
+        self.channels.insert(key, s.n_t);
+    }
+
+    fn from_data(name: PathBuf, summary: Option<Summary>, d: ThreePointData) -> Self {
+        let mut scan = ThreeScan::new(name, summary, d.configs);
+        for (key, s) in d.channels {
+            scan.add(key, &s);
+        }
+        scan
+    }
+
+    fn summary(&self) -> Summary {
+        self.summary.unwrap_or_else(|| {
+            let n = self.configs.len();
+            values_summary(self.channels.values().map(|n_t| n_t * n))
+        })
+    }
+}
+
+/// The number of values in place of rows (HDF5 input has no rows).
+fn values_summary(per_channel: impl Iterator<Item = usize>) -> Summary {
+    Summary {
+        rows: per_channel.sum::<usize>() as u64,
+        sources: None,
     }
 }
 
 /// Read a data directory (`twopt.csv` and/or `threept.csv` inside), one table (its kind told
-/// by its header; `-` reads standard input) or a packed HDF5 file.
+/// by its header; `-` reads standard input) or a packed HDF5 file. A packed file is walked
+/// channel by channel (one channel's values in memory at a time); CSV tables are read whole
+/// first (their rows need not be grouped by channel), then scanned.
 pub fn read(path: &Path) -> Result<Inspected> {
+    if path != Path::new("-") && !path.is_dir() && super::hdf5::looks_like_hdf5(path) {
+        return stream_packed(path);
+    }
     let (two, three) = load(path)?;
-    Ok(Inspected { two, three })
+    Ok(Inspected {
+        two: two.map(|(name, d, s)| TwoScan::from_data(name, Some(s), d)),
+        three: three.map(|(name, d, s)| ThreeScan::from_data(name, Some(s), d)),
+    })
 }
 
 /// Data already read (e.g. from an HDF5 source), `name` standing for its origin.
 pub fn from_data(name: &Path, two: TwoPointData, three: ThreePointData) -> Inspected {
-    let (two, three) = loaded_pair(name, two, three);
-    Inspected { two, three }
+    Inspected {
+        two: Some(TwoScan::from_data(name.to_path_buf(), None, two)),
+        three: Some(ThreeScan::from_data(name.to_path_buf(), None, three)),
+    }
 }
 
-/// Both kinds of data from one origin, with the number of values in place of rows.
-fn loaded_pair(
-    name: &Path,
-    two: TwoPointData,
-    three: ThreePointData,
-) -> (Loaded<TwoPointData>, Loaded<ThreePointData>) {
-    let summary = |n: usize| Summary {
-        rows: n as u64,
-        sources: None,
-    };
-    let n2 = two.channels.values().map(|s| s.re.len()).sum();
-    let n3 = three.channels.values().map(|s| s.re.len()).sum();
-    (
-        Some((name.to_path_buf(), two, summary(n2))),
-        Some((name.to_path_buf(), three, summary(n3))),
-    )
+/// Walk a packed file one channel at a time (`hdf5::visit_packed`), keeping what
+/// [`Inspected`] holds; the same result as [`from_data`] on the whole file.
+fn stream_packed(path: &Path) -> Result<Inspected> {
+    struct Visit(TwoScan, ThreeScan);
+    impl super::hdf5::PackedVisitor for Visit {
+        fn configs(&mut self, configs: &[i64]) -> Result<()> {
+            self.0.configs = configs.to_vec();
+            self.1.configs = configs.to_vec();
+            Ok(())
+        }
+        fn twopt(&mut self, key: TwoPointKey, series: &mut Series) -> Result<()> {
+            self.0.add(key, series);
+            Ok(())
+        }
+        fn threept(&mut self, key: ThreePointKey, series: &mut Series) -> Result<()> {
+            self.1.add(key, series);
+            Ok(())
+        }
+    }
+    let name = path.to_path_buf();
+    let mut visit = Visit(
+        TwoScan::new(name.clone(), None, Vec::new()),
+        ThreeScan::new(name, None, Vec::new()),
+    );
+    super::hdf5::visit_packed(path, &mut visit)?;
+    Ok(Inspected {
+        two: Some(visit.0),
+        three: Some(visit.1),
+    })
 }
 
 /// The summary for the terminal, with warnings; `autocorr` is the autocorrelation check of
-/// the same data (`resample::autocorr_check::check`).
+/// the same data's [`Inspected::points`].
 pub fn render(data: &Inspected, autocorr: &[PointAutocorr]) -> String {
     let (two, three) = (&data.two, &data.three);
     let mut out = String::new();
     let mut warnings = Vec::new();
-    if let Some((name, data, summary)) = two {
-        describe_twopt(&mut out, name, data, summary);
-        check_twopt(data, &mut warnings);
-        config_gaps(&data.configs, name, &mut warnings);
+    if let Some(d) = two {
+        describe_twopt(&mut out, d);
+        warnings.extend(d.channels.values().flat_map(|(_, w)| w.iter().cloned()));
+        config_gaps(&d.configs, &d.name, &mut warnings);
     }
-    if let Some((name, data, summary)) = three {
-        describe_threept(&mut out, name, data, summary);
-        let same_configs = two.as_ref().is_some_and(|t| t.1.configs == data.configs);
+    if let Some(d) = three {
+        describe_threept(&mut out, d);
+        let same_configs = two.as_ref().is_some_and(|t| t.configs == d.configs);
         if !same_configs {
-            config_gaps(&data.configs, name, &mut warnings);
+            config_gaps(&d.configs, &d.name, &mut warnings);
         }
     }
-    if let (Some((n2, d2, _)), Some((n3, d3, _))) = (two, three) {
-        compare_tables(n2, d2, n3, d3, &mut warnings);
+    if let (Some(d2), Some(d3)) = (two, three) {
+        compare_tables(d2, d3, &mut warnings);
     }
     autocorrelation(&mut out, autocorr, &mut warnings);
     if warnings.is_empty() {
@@ -109,7 +257,7 @@ pub fn render(data: &Inspected, autocorr: &[PointAutocorr]) -> String {
 
 type Loaded<D> = Option<(PathBuf, D, Summary)>;
 
-/// Read what `path` names: a directory with the standard file names, or one table.
+/// Read what `path` names: a directory with the standard file names, or one CSV table.
 fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
     if path != Path::new("-") && path.is_dir() {
         let (p2, p3) = (path.join("twopt.csv"), path.join("threept.csv"));
@@ -132,10 +280,6 @@ fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
             None
         };
         return Ok((two, three));
-    }
-    if path != Path::new("-") && super::hdf5::looks_like_hdf5(path) {
-        let (d2, d3) = super::hdf5::read_packed(path)?;
-        return Ok(loaded_pair(path, d2, d3));
     }
     let name = display_name(path);
     let mut input = BufReader::new(open(path)?);
@@ -241,9 +385,9 @@ fn rows_line(out: &mut String, s: &Summary) {
     out.push('\n');
 }
 
-fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) {
-    let _ = writeln!(out, "two-point table: {}", name.display());
-    rows_line(out, s);
+fn describe_twopt(out: &mut String, d: &TwoScan) {
+    let _ = writeln!(out, "two-point table: {}", d.name.display());
+    rows_line(out, &d.summary());
     let _ = writeln!(out, "  configurations: {}", configs_line(&d.configs));
     let momenta: BTreeSet<(i32, Momentum)> = d
         .channels
@@ -255,7 +399,7 @@ fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) 
         .keys()
         .filter_map(|k| k.smear.as_deref())
         .collect();
-    let n_t = d.channels.values().next().map_or(0, |s| s.n_t);
+    let n_t = d.channels.values().next().map_or(0, |(n_t, _)| *n_t);
     let _ = writeln!(out, "  channels: {}, T = {n_t}", d.channels.len());
     let _ = writeln!(
         out,
@@ -266,9 +410,9 @@ fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) 
     let _ = writeln!(out, "  smear labels: {}", list(&smears));
 }
 
-fn describe_threept(out: &mut String, name: &Path, d: &ThreePointData, s: &Summary) {
-    let _ = writeln!(out, "three-point table: {}", name.display());
-    rows_line(out, s);
+fn describe_threept(out: &mut String, d: &ThreeScan) {
+    let _ = writeln!(out, "three-point table: {}", d.name.display());
+    rows_line(out, &d.summary());
     let _ = writeln!(out, "  configurations: {}", configs_line(&d.configs));
     let keys = d.channels.keys();
     let tseps: BTreeSet<u32> = keys.clone().map(|k| k.tsep).collect();
@@ -313,29 +457,29 @@ fn describe_threept(out: &mut String, name: &Path, d: &ThreePointData, s: &Summa
     );
 }
 
-/// Non-positive real parts at small `t`: the mean in any channel, single configurations at
-/// zero momentum.
-fn check_twopt(d: &TwoPointData, warnings: &mut Vec<String>) {
-    for (key, s) in &d.channels {
-        let name = super::describe_twopt(key);
-        for t in 0..s.n_t.min(SMALL_T) {
-            let re = s.re_at(t);
-            let mean = re.iter().sum::<f64>() / re.len().max(1) as f64;
-            if mean <= 0.0 {
+/// Non-positive real parts at small `t` in one channel: the mean in any channel, single
+/// configurations at zero momentum.
+fn twopt_warnings(key: &TwoPointKey, s: &Series) -> Vec<String> {
+    let mut warnings = Vec::new();
+    let name = super::describe_twopt(key);
+    for t in 0..s.n_t.min(SMALL_T) {
+        let re = s.re_at(t);
+        let mean = re.iter().sum::<f64>() / re.len().max(1) as f64;
+        if mean <= 0.0 {
+            warnings.push(format!(
+                "two-point {name}: mean Re C2 at t={t} is {mean:e} (<= 0); a two-point \
+                 function should be positive at small t - check sign or phase"
+            ));
+        } else if key.momentum == [0, 0, 0] {
+            let bad = re.iter().filter(|&&x| x <= 0.0).count();
+            if bad > 0 {
                 warnings.push(format!(
-                    "two-point {name}: mean Re C2 at t={t} is {mean:e} (<= 0); a two-point \
-                     function should be positive at small t - check sign or phase"
+                    "two-point {name}: {bad} configuration(s) have Re C2 <= 0 at t={t}"
                 ));
-            } else if key.momentum == [0, 0, 0] {
-                let bad = re.iter().filter(|&&x| x <= 0.0).count();
-                if bad > 0 {
-                    warnings.push(format!(
-                        "two-point {name}: {bad} configuration(s) have Re C2 <= 0 at t={t}"
-                    ));
-                }
             }
         }
     }
+    warnings
 }
 
 fn config_gaps(configs: &[i64], name: &Path, warnings: &mut Vec<String>) {
@@ -358,13 +502,8 @@ fn config_gaps(configs: &[i64], name: &Path, warnings: &mut Vec<String>) {
 }
 
 /// Configuration mismatch and three-point momenta without a two-point partner.
-fn compare_tables(
-    n2: &Path,
-    d2: &TwoPointData,
-    n3: &Path,
-    d3: &ThreePointData,
-    warnings: &mut Vec<String>,
-) {
+fn compare_tables(d2: &TwoScan, d3: &ThreeScan, warnings: &mut Vec<String>) {
+    let (n2, n3) = (&d2.name, &d3.name);
     if d2.configs != d3.configs {
         let only2 = super::difference(&d2.configs, &d3.configs);
         let only3 = super::difference(&d3.configs, &d2.configs);
