@@ -86,8 +86,11 @@ pub fn read_source(
 }
 
 /// Keep the first `t_extent` time slices of every two-point channel of a packed file.
-#[cfg(feature = "hdf5")]
-fn cut_time(mut two: TwoPointData, t_extent: Option<usize>, path: &Path) -> Result<TwoPointData> {
+pub(crate) fn cut_time(
+    mut two: TwoPointData,
+    t_extent: Option<usize>,
+    path: &Path,
+) -> Result<TwoPointData> {
     let Some(t) = t_extent else { return Ok(two) };
     for (k, s) in two.channels.iter_mut() {
         if s.n_t < t {
