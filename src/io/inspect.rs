@@ -586,3 +586,88 @@ pub(crate) fn point_name(p: &CheckedPoint) -> String {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::{Current, Projector};
+    use crate::resample::autocorr_check::{check, check_points};
+
+    /// Two-point channels at momenta (0,0,k) and (1,0,0), three-point channels at two
+    /// `tsep`; values varied by channel, time and configuration (some negative at t = 1).
+    fn data() -> (TwoPointData, ThreePointData) {
+        let n_cfg = 40;
+        let configs: Vec<i64> = (0..n_cfg as i64).collect();
+        let fill = |n_t: usize, seed: usize| {
+            let mut s = Series::zeros(n_t, n_cfg);
+            for (i, (re, im)) in s.re.iter_mut().zip(s.im.iter_mut()).enumerate() {
+                let x = ((i * 7919 + seed * 104729) % 1013) as f64 / 1013.0;
+                *re = if seed == 2 && i % 9 == 0 { -x } else { 0.5 + x };
+                *im = x - 0.5;
+            }
+            s
+        };
+        let mut two = TwoPointData {
+            configs: configs.clone(),
+            channels: BTreeMap::new(),
+        };
+        for (i, p) in [[1, 0, 0], [0, 0, 1], [0, 0, 0], [-1, 0, 0]]
+            .into_iter()
+            .enumerate()
+        {
+            let key = TwoPointKey {
+                momentum: p,
+                smear: None,
+                ops: None,
+            };
+            two.channels.insert(key, fill(12, i));
+        }
+        let mut three = ThreePointData {
+            configs,
+            channels: BTreeMap::new(),
+        };
+        for (i, tsep) in [8u32, 4, 6].into_iter().enumerate() {
+            let key = ThreePointKey {
+                tsep,
+                pf: [0, 0, 0],
+                q: [0, 0, i as i32],
+                current: Current::V4,
+                projector: Projector::Unpol,
+                flavor: None,
+                diagram: None,
+                ops: None,
+            };
+            three.channels.insert(key, fill(tsep as usize + 1, 10 + i));
+        }
+        (two, three)
+    }
+
+    /// The channels given one at a time in reverse key order (a reader's file order need not
+    /// be key order) give the text of the whole data, whose autocorrelation check is run on
+    /// the whole data as before streaming.
+    #[test]
+    fn channels_in_any_order_give_the_text_of_the_whole_data() {
+        let (two, three) = data();
+        let name = Path::new("x.h5");
+        let mut t = TwoScan::new(name.into(), None, two.configs.clone());
+        for (k, s) in two.channels.iter().rev() {
+            t.add(k.clone(), s);
+        }
+        let mut u = ThreeScan::new(name.into(), None, three.configs.clone());
+        for (k, s) in three.channels.iter().rev() {
+            u.add(k.clone(), s);
+        }
+        let streamed = Inspected {
+            two: Some(t),
+            three: Some(u),
+        };
+        let text = render(&streamed, &check_points(streamed.points()));
+        let autocorr = check(Some(&two), Some(&three));
+        let whole = render(&from_data(name, two.clone(), three.clone()), &autocorr);
+        assert_eq!(text, whole);
+        // the zero-momentum channel was chosen though it is neither first nor last
+        assert!(text.contains("Re C2 p=(0,0,0)"), "{text}");
+        assert!(text.contains("configuration(s) have Re C2 <= 0"), "{text}");
+        assert!(text.contains("rows: 1920"), "{text}");
+    }
+}

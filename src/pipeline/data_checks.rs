@@ -265,4 +265,58 @@ mod tests {
         let zero = ValueFacts::of(&series(vec![0.0; 2], vec![0.0; 2])).largest;
         assert!(check_scale(zero, p).is_ok());
     }
+
+    /// The checks on shapes and facts ([`Shapes`], fed one channel at a time as a packed
+    /// file's walk does) give the verdicts of the checks on the values.
+    #[test]
+    fn facts_give_the_verdicts_of_the_values() {
+        use crate::io::hdf5::PackedVisitor;
+        let key = |p: i32| TwoPointKey {
+            momentum: [0, 0, p],
+            smear: None,
+            ops: None,
+        };
+        let varied = |n_t: usize, n_cfg: usize| {
+            let re = (0..n_t * n_cfg).map(|i| 1.0 + i as f64 / 8.0).collect();
+            let im = (0..n_t * n_cfg).map(|i| -(i as f64) / 16.0).collect();
+            Series { n_cfg, n_t, re, im }
+        };
+        let mut constant = varied(3, 4);
+        constant.re.iter_mut().for_each(|v| *v = 2.5);
+        constant.im.iter_mut().for_each(|v| *v = 0.0);
+        let mut huge = varied(3, 4);
+        huge.im[5] = -1e150;
+        let cases = [
+            vec![varied(3, 4), varied(3, 4)],
+            vec![varied(3, 4), constant.clone()],
+            vec![huge, constant],
+        ];
+        let p = Path::new("data.hdf5");
+        for (i, series) in cases.into_iter().enumerate() {
+            let two = TwoPointData {
+                configs: (0..4).collect(),
+                channels: series
+                    .iter()
+                    .enumerate()
+                    .map(|(k, s)| (key(k as i32), s.clone()))
+                    .collect(),
+            };
+            let three = ThreePointData::default();
+            let mut shapes = Shapes::new(None);
+            shapes.configs(&two.configs).unwrap();
+            for (k, s) in &two.channels {
+                shapes.twopt(k.clone(), &mut s.clone()).unwrap();
+            }
+            assert!(shapes
+                .two
+                .channels
+                .values()
+                .all(|s| s.re.is_empty() && s.n_t == 3));
+            let on_values = check_values(&two, p, &three, p, None).map_err(|e| e.to_string());
+            let on_facts = check_values(&shapes.two, p, &three, p, Some(&shapes.facts))
+                .map_err(|e| e.to_string());
+            assert_eq!(on_values, on_facts, "case {i}");
+            assert_eq!(on_values.is_ok(), i == 0, "case {i}: {on_values:?}");
+        }
+    }
 }
