@@ -65,6 +65,12 @@ impl Inspected {
     }
 }
 
+/// The Monte Carlo histories of the checked two-point times, `(t, history)`.
+type Histories = Vec<(usize, Vec<f64>)>;
+
+/// The checked three-point point, `(tau, imaginary, history)`.
+type ThreePointHistory = (usize, bool, Vec<f64>);
+
 /// What inspect keeps of a two-point table, filled channel by channel ([`TwoScan::add`]).
 struct TwoScan {
     name: PathBuf,
@@ -74,7 +80,7 @@ struct TwoScan {
     /// Every channel: its number of time slices and the warnings about its values.
     channels: BTreeMap<TwoPointKey, (usize, Vec<String>)>,
     /// The channel whose points the autocorrelation check looks at, with their histories.
-    chosen: Option<(TwoPointKey, Vec<(usize, Vec<f64>)>)>,
+    chosen: Option<(TwoPointKey, Histories)>,
 }
 
 impl TwoScan {
@@ -123,7 +129,7 @@ struct ThreeScan {
     /// Every channel with its number of time slices.
     channels: BTreeMap<ThreePointKey, usize>,
     /// The first channel in key order with its checked point `(tau, imaginary, history)`.
-    chosen: Option<(ThreePointKey, (usize, bool, Vec<f64>))>,
+    chosen: Option<(ThreePointKey, ThreePointHistory)>,
 }
 
 impl ThreeScan {

@@ -49,7 +49,7 @@ pub fn schema_value() -> serde_json::Value {
 /// data and apply every data rule (tables, flavour combination, selections, binning, time
 /// ranges, momenta the ratio needs), computing nothing; returns a short summary.
 ///
-/// A packed file is walked one channel at a time ([`read_shapes`]) unless a flavour
+/// A packed file is walked one channel at a time (`read_shapes`) unless a flavour
 /// combination (`ratio.flavor`) or one operator's selection (`data.operator`) has to compute
 /// new channels from several read ones; then, and for CSV tables, the data are read whole.
 pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
