@@ -121,6 +121,6 @@ pub fn inspect(path: &Path) -> Result<String> {
     } else {
         io::inspect::read(path)?
     };
-    let autocorr = crate::resample::autocorr_check::check(data.twopt(), data.threept());
+    let autocorr = crate::resample::autocorr_check::check_points(data.points());
     Ok(io::inspect::render(&data, &autocorr))
 }

@@ -63,7 +63,10 @@ fn mapping_errors_name_the_setting() {
 #[cfg(feature = "hdf5")]
 mod with_library {
     use super::*;
-    use formfactory::data::{Current, Operators, Projector, ThreePointKey, TwoPointKey};
+    use formfactory::data::{
+        Current, Operators, Projector, Series, ThreePointData, ThreePointKey, TwoPointData,
+        TwoPointKey,
+    };
     use formfactory::io::hdf5::{read_packed, read_source, write_packed, Mapping};
     use std::collections::BTreeMap;
 
@@ -440,6 +443,249 @@ mod with_library {
         );
         assert!(o.status.success(), "{}", stderr(&o));
         assert!(stdout(&o).contains("momenta (6)"), "{}", stdout(&o));
+    }
+
+    /// Data with `n2` two-point and `n3` three-point channels on `n_cfg` configurations
+    /// (two-point `T = 16`, three-point `tsep` 4, 6, 8), seeded values; the two-point
+    /// channels at momenta (0,0,k), one of them negative at t = 1 on some configurations.
+    fn many_channels(n2: usize, n3: usize, n_cfg: usize) -> (TwoPointData, ThreePointData) {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(15);
+        let mut series = |n_t: usize| {
+            let mut s = Series::zeros(n_t, n_cfg);
+            for (v, w) in s.re.iter_mut().zip(s.im.iter_mut()) {
+                *v = rng.gen_range(0.5..1.5);
+                *w = rng.gen_range(-0.1..0.1);
+            }
+            s
+        };
+        let configs: Vec<i64> = (0..n_cfg as i64).map(|c| 10 + 2 * c).collect();
+        let mut two = TwoPointData {
+            configs: configs.clone(),
+            channels: BTreeMap::new(),
+        };
+        for k in 0..n2 {
+            let mut s = series(16);
+            if k == 0 {
+                for c in (0..n_cfg).step_by(7) {
+                    s.re[n_cfg + c] = -0.25;
+                }
+            }
+            two.channels.insert(key2([0, 0, k as i32], Some("SS")), s);
+        }
+        let mut three = ThreePointData {
+            configs,
+            channels: BTreeMap::new(),
+        };
+        for k in 0..n3 {
+            let mut key = key3([4, 6, 8][k % 3], Current::V4);
+            key.q = [0, 0, (k / 3) as i32];
+            let s = series(key.tsep as usize + 1);
+            three.channels.insert(key, s);
+        }
+        (two, three)
+    }
+
+    /// `inspect`'s text of what `data` holds, its autocorrelation check from `autocorr`.
+    fn render(
+        data: &formfactory::io::inspect::Inspected,
+        autocorr: &[formfactory::resample::autocorr_check::PointAutocorr],
+    ) -> String {
+        formfactory::io::inspect::render(data, autocorr)
+    }
+
+    #[test]
+    fn inspect_of_a_packed_file_streams_and_says_what_the_whole_data_say() {
+        use formfactory::resample::autocorr_check::{check, check_points};
+        let dir = tempdir();
+        let files = [
+            ("demo", repo_root().join("demo-data/pion.packed.h5")),
+            ("many", dir.path().join("many.h5")),
+            ("fixture", dir.path().join("fixture.h5")),
+        ];
+        let (two, three) = many_channels(24, 300, 200);
+        write_packed(&files[1].1, &two, &three).unwrap();
+        let (two, three, _) = read_source(&mapping(PERCFG), Some(8), &|_, _| {}).unwrap();
+        write_packed(&files[2].1, &two, &three).unwrap();
+        for (name, file) in &files {
+            // streamed: one channel at a time
+            let (streamed, peak) =
+                crate::common::alloc::peak_bytes(|| formfactory::io::inspect::read(file).unwrap());
+            let text = render(&streamed, &check_points(streamed.points()));
+            // loaded: the whole data, the autocorrelation check on the whole data
+            let ((two, three), whole) =
+                crate::common::alloc::peak_bytes(|| read_packed(file).unwrap());
+            let autocorr = check(Some(&two), Some(&three));
+            let loaded = formfactory::io::inspect::from_data(file, two.clone(), three.clone());
+            assert_eq!(text, render(&loaded, &autocorr), "{name}");
+            assert!(
+                text.contains("autocorrelation") && text.contains("tau="),
+                "{name}: {text}"
+            );
+            // Bounded: the walk holds one channel's values and the keys, not the data (the
+            // whole read's peak is the data, which the counter must see for this to mean
+            // anything).
+            let values: usize = two
+                .channels
+                .values()
+                .chain(three.channels.values())
+                .map(|s| 16 * s.re.len())
+                .sum();
+            assert!(whole >= values, "{name}: {whole} < {values}");
+            if *name == "many" {
+                assert!(
+                    text.contains("configuration(s) have Re C2 <= 0 at t=1"),
+                    "{text}"
+                );
+                assert!(
+                    peak < values / 20,
+                    "{name}: streamed inspect peaked at {peak} bytes for {values} bytes of values"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn check_of_a_packed_source_streams_and_gives_the_csv_verdicts() {
+        let dir = tempdir();
+        let pipeline =
+            std::fs::read_to_string(repo_root().join("pipelines/pion-vector-packed.yaml")).unwrap();
+        let packed_line = pipeline
+            .lines()
+            .find(|l| l.contains("packed:"))
+            .unwrap()
+            .to_string();
+        let csv = formfactory::io::read_dataset(
+            &repo_root().join("demo-data/pion/twopt.csv"),
+            Some(&repo_root().join("demo-data/pion/threept.csv")),
+            &Default::default(),
+        )
+        .unwrap();
+        let (two, three) = (csv.twopt, csv.threept.unwrap());
+        // The same data as the committed packed file, and three damaged copies: a constant
+        // three-point channel, a two-point value too large for its variance, a shorter time
+        // axis than `ensemble.T` asks for.
+        let mut constant = three.clone();
+        let c = constant.channels.values_mut().nth(5).unwrap();
+        c.re.iter_mut().for_each(|v| *v = 0.5);
+        c.im.iter_mut().for_each(|v| *v = 0.0);
+        let mut huge = two.clone();
+        huge.channels.values_mut().nth(2).unwrap().re[17] = 3e120;
+        // beyond t = 24 (at t = 40), which `ensemble.T = 24` cuts away on reading
+        let mut huge_late = two.clone();
+        huge_late.channels.values_mut().nth(2).unwrap().re[40 * 100 + 3] = 3e120;
+        let none: Vec<&str> = Vec::new();
+        // (case, data, --set, what the verdict says, whether the CSV path says the same)
+        let cases = [
+            (
+                "intact",
+                two.clone(),
+                three.clone(),
+                none.clone(),
+                "valid;",
+                true,
+            ),
+            (
+                "constant",
+                two.clone(),
+                constant,
+                none.clone(),
+                "does not fluctuate",
+                true,
+            ),
+            ("huge", huge, three.clone(), none.clone(), "overflow", true),
+            (
+                "tsep selection",
+                two.clone(),
+                three.clone(),
+                vec!["ratio.tsep=[9]"],
+                "valid;",
+                true,
+            ),
+            // the packed reader cuts the time axis to T (the CSV path asks T to match)
+            (
+                "short T",
+                two.clone(),
+                three.clone(),
+                vec!["ensemble.T=60"],
+                "has 48 time slices; the ensemble's T = 60 needs that many",
+                false,
+            ),
+            (
+                "cut T",
+                huge_late,
+                three.clone(),
+                vec!["ensemble.T=24"],
+                "valid;",
+                false,
+            ),
+        ];
+        for (name, two, three, sets, expect, same_as_csv) in cases {
+            let case = dir.path().join(name.replace(' ', "_"));
+            std::fs::create_dir_all(&case).unwrap();
+            let packed = case.join("ens.h5");
+            write_packed(&packed, &two, &three).unwrap();
+            formfactory::io::write_twopt(
+                &two,
+                std::fs::File::create(case.join("twopt.csv")).unwrap(),
+            )
+            .unwrap();
+            formfactory::io::write_threept(
+                &three,
+                std::fs::File::create(case.join("threept.csv")).unwrap(),
+            )
+            .unwrap();
+            let from_packed =
+                pipeline.replace(&packed_line, &format!("    packed: {}", packed.display()));
+            std::fs::write(case.join("packed.yaml"), &from_packed).unwrap();
+            let from_csv = pipeline.replace(
+                &format!("  hdf5:\n{packed_line}"),
+                &format!(
+                    "  twopt: {}\n  threept: {}",
+                    case.join("twopt.csv").display(),
+                    case.join("threept.csv").display()
+                ),
+            );
+            assert_ne!(from_csv, pipeline, "the pipeline's data section changed");
+            std::fs::write(case.join("csv.yaml"), &from_csv).unwrap();
+            let run = |yaml: &str| {
+                let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+                crate::common::alloc::peak_bytes(|| {
+                    formfactory::pipeline::check(&case.join(yaml), &sets)
+                })
+            };
+            let ((packed_verdict, peak), (csv_verdict, _)) = (run("packed.yaml"), run("csv.yaml"));
+            let values: usize = two
+                .channels
+                .values()
+                .chain(three.channels.values())
+                .map(|s| 16 * s.re.len())
+                .sum();
+            assert!(
+                peak < values / 4,
+                "{name}: check peaked at {peak} bytes for {values} bytes of values"
+            );
+            // The verdicts agree but for the name of the input (`data.hdf5` or the table).
+            let text = |r: formfactory::Result<String>, yaml: &str| {
+                let t = match r {
+                    Ok(s) => s,
+                    Err(e) => format!("error: {e}"),
+                };
+                let mut t = t.replace(&case.join(yaml).display().to_string(), "PIPELINE");
+                for table in ["twopt.csv", "threept.csv"] {
+                    t = t.replace(&case.join(table).display().to_string(), "data.hdf5");
+                }
+                t.replace(&packed.display().to_string(), "data.hdf5")
+            };
+            let (p, c) = (
+                text(packed_verdict, "packed.yaml"),
+                text(csv_verdict, "csv.yaml"),
+            );
+            assert!(p.contains(expect), "{name}: {p}");
+            if same_as_csv {
+                assert_eq!(p, c, "{name}");
+            }
+        }
     }
 
     #[test]

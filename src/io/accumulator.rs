@@ -110,6 +110,7 @@ pub(crate) struct Accumulator {
 }
 
 /// What became of the rows: source averaging and counts.
+#[derive(Clone, Copy, Debug)]
 pub(crate) struct Summary {
     /// Number of data rows read.
     pub rows: u64,

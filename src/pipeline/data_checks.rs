@@ -3,11 +3,102 @@
 //!
 //! Why it exists: both cases used to pass the reader and surface later as a "zero variance"
 //! fit error far from their cause, or as an empty result with exit code 0.
+//!
+//! Both checks need only two facts per channel ([`ValueFacts`]: the largest magnitude, and
+//! the value if it never changes), so `formfactory check` of a packed file takes them while
+//! it walks the file one channel at a time ([`Shapes`]) and keeps no values at all.
 
-use crate::data::{Series, ThreePointData, TwoPointData};
+use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::ratio::ChannelKey;
 use crate::{Error, Result};
+use std::collections::BTreeMap;
 use std::path::Path;
+
+/// What the value checks need of one channel.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct ValueFacts {
+    /// The largest magnitude of any real or imaginary part (0 for no values).
+    largest: f64,
+    /// The value (real, imaginary) if it is the same on every configuration at every time.
+    constant: Option<(f64, f64)>,
+}
+
+impl ValueFacts {
+    /// The facts of a series' values.
+    pub fn of(s: &Series) -> Self {
+        ValueFacts::of_parts(&s.re, &s.im)
+    }
+
+    /// The facts of the real parts `re` and imaginary parts `im` of one channel.
+    fn of_parts(re: &[f64], im: &[f64]) -> Self {
+        ValueFacts {
+            largest: re.iter().chain(im).fold(0.0_f64, |m, v| m.max(v.abs())),
+            constant: constant_value(re, im),
+        }
+    }
+}
+
+/// The value facts of every channel, taken while the data were read (see [`Shapes`]).
+#[derive(Debug, Default)]
+pub(crate) struct Facts {
+    two: BTreeMap<TwoPointKey, ValueFacts>,
+    three: BTreeMap<ThreePointKey, ValueFacts>,
+}
+
+/// A walk over a packed file that keeps the data's shape and no values: every channel as a
+/// series with its `n_t` and `n_cfg` and empty `re` / `im` (to be given only to checks that
+/// read keys, shapes and configurations), beside its [`ValueFacts`]. A two-point channel's
+/// facts cover its first `t_extent` time slices, what the reader's cut to the ensemble's `T`
+/// keeps.
+pub(crate) struct Shapes {
+    pub two: TwoPointData,
+    pub three: ThreePointData,
+    pub facts: Facts,
+    t_extent: Option<usize>,
+}
+
+impl Shapes {
+    pub fn new(t_extent: Option<usize>) -> Self {
+        Shapes {
+            two: TwoPointData::default(),
+            three: ThreePointData::default(),
+            facts: Facts::default(),
+            t_extent,
+        }
+    }
+}
+
+/// A series' shape without its values.
+fn shape_of(s: &Series) -> Series {
+    Series {
+        n_cfg: s.n_cfg,
+        n_t: s.n_t,
+        re: Vec::new(),
+        im: Vec::new(),
+    }
+}
+
+impl crate::io::hdf5::PackedVisitor for Shapes {
+    fn configs(&mut self, configs: &[i64]) -> Result<()> {
+        self.two.configs = configs.to_vec();
+        self.three.configs = configs.to_vec();
+        Ok(())
+    }
+
+    fn twopt(&mut self, key: TwoPointKey, s: &mut Series) -> Result<()> {
+        let kept = self.t_extent.map_or(s.n_t, |t| t.min(s.n_t)) * s.n_cfg;
+        let facts = ValueFacts::of_parts(&s.re[..kept], &s.im[..kept]);
+        self.facts.two.insert(key.clone(), facts);
+        self.two.channels.insert(key, shape_of(s));
+        Ok(())
+    }
+
+    fn threept(&mut self, key: ThreePointKey, s: &mut Series) -> Result<()> {
+        self.facts.three.insert(key.clone(), ValueFacts::of(s));
+        self.three.channels.insert(key, shape_of(s));
+        Ok(())
+    }
+}
 
 /// Values whose largest magnitude is below this underflow when squared and summed into a
 /// variance; above [`LARGEST_SCALE`] they overflow (double precision ranges over about
@@ -17,19 +108,37 @@ const SMALLEST_SCALE: f64 = 1e-100;
 const LARGEST_SCALE: f64 = 1e100;
 
 /// Refuse a table whose values are all tiny or huge, and a channel that is the same on every
-/// configuration at every time.
+/// configuration at every time. `facts` are the channels' [`ValueFacts`] when the data hold
+/// only shapes ([`Shapes`]); without them they are taken from the values.
 pub fn check_values(
     two: &TwoPointData,
     twopt_path: &Path,
     three: &ThreePointData,
     threept_path: &Path,
+    facts: Option<&Facts>,
 ) -> Result<()> {
-    let two_series = || two.channels.values();
-    let three_series = || three.channels.values();
-    check_scale(two_series(), twopt_path)?;
-    check_scale(three_series(), threept_path)?;
+    let two_facts = |key: &TwoPointKey, s: &Series| {
+        facts
+            .and_then(|f| f.two.get(key).copied())
+            .unwrap_or_else(|| ValueFacts::of(s))
+    };
+    let three_facts = |key: &ThreePointKey, s: &Series| {
+        facts
+            .and_then(|f| f.three.get(key).copied())
+            .unwrap_or_else(|| ValueFacts::of(s))
+    };
+    let largest =
+        |all: &mut dyn Iterator<Item = ValueFacts>| all.fold(0.0_f64, |m, f| m.max(f.largest));
+    check_scale(
+        largest(&mut two.channels.iter().map(|(k, s)| two_facts(k, s))),
+        twopt_path,
+    )?;
+    check_scale(
+        largest(&mut three.channels.iter().map(|(k, s)| three_facts(k, s))),
+        threept_path,
+    )?;
     for (key, s) in &two.channels {
-        if let Some(v) = constant_value(s) {
+        if let Some(v) = two_facts(key, s).constant {
             let smear = key
                 .smear
                 .as_deref()
@@ -43,7 +152,7 @@ pub fn check_values(
         }
     }
     for (key, s) in &three.channels {
-        if let Some(v) = constant_value(s) {
+        if let Some(v) = three_facts(key, s).constant {
             return Err(constant_error(
                 threept_path,
                 &format!(
@@ -75,18 +184,17 @@ fn constant_error(path: &Path, what: &str, v: (f64, f64), n_cfg: usize) -> Error
     }
 }
 
-/// The value of a series that is the same (real and imaginary part) on every configuration
-/// at every time, or `None` if anything varies.
-fn constant_value(s: &Series) -> Option<(f64, f64)> {
-    let (re0, im0) = (*s.re.first()?, *s.im.first()?);
-    let same = s.re.iter().all(|&x| x == re0) && s.im.iter().all(|&x| x == im0);
+/// The value of a series (real parts `re`, imaginary parts `im`) that is the same on every
+/// configuration at every time, or `None` if anything varies.
+fn constant_value(re: &[f64], im: &[f64]) -> Option<(f64, f64)> {
+    let (re0, im0) = (*re.first()?, *im.first()?);
+    let same = re.iter().all(|&x| x == re0) && im.iter().all(|&x| x == im0);
     same.then_some((re0, im0))
 }
 
-fn check_scale<'a>(series: impl Iterator<Item = &'a Series>, path: &Path) -> Result<()> {
-    let largest = series
-        .flat_map(|s| s.re.iter().chain(&s.im))
-        .fold(0.0_f64, |m, v| m.max(v.abs()));
+/// Refuse a table whose largest magnitude is `largest` if its variances would leave double
+/// precision.
+fn check_scale(largest: f64, path: &Path) -> Result<()> {
     let problem = if largest > LARGEST_SCALE {
         Some("overflow")
     } else if largest > 0.0 && largest < SMALLEST_SCALE {
@@ -124,20 +232,20 @@ mod tests {
     #[test]
     fn constant_needs_both_parts_constant() {
         assert_eq!(
-            constant_value(&series(vec![0.0; 4], vec![0.0; 4])),
+            ValueFacts::of(&series(vec![0.0; 4], vec![0.0; 4])).constant,
             Some((0.0, 0.0))
         );
         assert_eq!(
-            constant_value(&series(vec![2.0; 3], vec![1.0; 3])),
+            ValueFacts::of(&series(vec![2.0; 3], vec![1.0; 3])).constant,
             Some((2.0, 1.0))
         );
         // a purely imaginary channel with a zero real part carries signal
         assert_eq!(
-            constant_value(&series(vec![0.0; 3], vec![1.0, 2.0, 3.0])),
+            ValueFacts::of(&series(vec![0.0; 3], vec![1.0, 2.0, 3.0])).constant,
             None
         );
         assert_eq!(
-            constant_value(&series(vec![1.0, 1.0, 1.5], vec![0.0; 3])),
+            ValueFacts::of(&series(vec![1.0, 1.0, 1.5], vec![0.0; 3])).constant,
             None
         );
     }
@@ -145,16 +253,70 @@ mod tests {
     #[test]
     fn scale_limits() {
         let p = Path::new("t.csv");
-        let ok = [series(vec![1e-40, 3e-41], vec![0.0; 2])];
-        assert!(check_scale(ok.iter(), p).is_ok());
-        let tiny = [series(vec![1e-300, 2e-300], vec![0.0; 2])];
-        let e = check_scale(tiny.iter(), p).unwrap_err().to_string();
+        let ok = ValueFacts::of(&series(vec![1e-40, 3e-41], vec![0.0; 2])).largest;
+        assert!(check_scale(ok, p).is_ok());
+        let tiny = ValueFacts::of(&series(vec![1e-300, 2e-300], vec![0.0; 2])).largest;
+        let e = check_scale(tiny, p).unwrap_err().to_string();
         assert!(e.contains("underflow") && e.contains("t.csv"), "{e}");
-        let huge = [series(vec![1e200, 2e200], vec![0.0; 2])];
-        let e = check_scale(huge.iter(), p).unwrap_err().to_string();
+        let huge = ValueFacts::of(&series(vec![1e200, 2e200], vec![0.0; 2])).largest;
+        let e = check_scale(huge, p).unwrap_err().to_string();
         assert!(e.contains("overflow"), "{e}");
         // all zero is the constant-channel check's business, not a scale problem
-        let zero = [series(vec![0.0; 2], vec![0.0; 2])];
-        assert!(check_scale(zero.iter(), p).is_ok());
+        let zero = ValueFacts::of(&series(vec![0.0; 2], vec![0.0; 2])).largest;
+        assert!(check_scale(zero, p).is_ok());
+    }
+
+    /// The checks on shapes and facts ([`Shapes`], fed one channel at a time as a packed
+    /// file's walk does) give the verdicts of the checks on the values.
+    #[test]
+    fn facts_give_the_verdicts_of_the_values() {
+        use crate::io::hdf5::PackedVisitor;
+        let key = |p: i32| TwoPointKey {
+            momentum: [0, 0, p],
+            smear: None,
+            ops: None,
+        };
+        let varied = |n_t: usize, n_cfg: usize| {
+            let re = (0..n_t * n_cfg).map(|i| 1.0 + i as f64 / 8.0).collect();
+            let im = (0..n_t * n_cfg).map(|i| -(i as f64) / 16.0).collect();
+            Series { n_cfg, n_t, re, im }
+        };
+        let mut constant = varied(3, 4);
+        constant.re.iter_mut().for_each(|v| *v = 2.5);
+        constant.im.iter_mut().for_each(|v| *v = 0.0);
+        let mut huge = varied(3, 4);
+        huge.im[5] = -1e150;
+        let cases = [
+            vec![varied(3, 4), varied(3, 4)],
+            vec![varied(3, 4), constant.clone()],
+            vec![huge, constant],
+        ];
+        let p = Path::new("data.hdf5");
+        for (i, series) in cases.into_iter().enumerate() {
+            let two = TwoPointData {
+                configs: (0..4).collect(),
+                channels: series
+                    .iter()
+                    .enumerate()
+                    .map(|(k, s)| (key(k as i32), s.clone()))
+                    .collect(),
+            };
+            let three = ThreePointData::default();
+            let mut shapes = Shapes::new(None);
+            shapes.configs(&two.configs).unwrap();
+            for (k, s) in &two.channels {
+                shapes.twopt(k.clone(), &mut s.clone()).unwrap();
+            }
+            assert!(shapes
+                .two
+                .channels
+                .values()
+                .all(|s| s.re.is_empty() && s.n_t == 3));
+            let on_values = check_values(&two, p, &three, p, None).map_err(|e| e.to_string());
+            let on_facts = check_values(&shapes.two, p, &three, p, Some(&shapes.facts))
+                .map_err(|e| e.to_string());
+            assert_eq!(on_values, on_facts, "case {i}");
+            assert_eq!(on_values.is_ok(), i == 0, "case {i}: {on_values:?}");
+        }
     }
 }

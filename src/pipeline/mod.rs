@@ -48,12 +48,19 @@ pub fn schema_value() -> serde_json::Value {
 /// `formfactory check`: parse and validate the pipeline with its overrides, then read the
 /// data and apply every data rule (tables, flavour combination, selections, binning, time
 /// ranges, momenta the ratio needs), computing nothing; returns a short summary.
+///
+/// A packed file is walked one channel at a time (`read_shapes`) unless a flavour
+/// combination (`ratio.flavor`) or one operator's selection (`data.operator`) has to compute
+/// new channels from several read ones; then, and for CSV tables, the data are read whole.
 pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
     let plan = load(path, sets)?;
-    let ReadData { two, three, .. } = read_data(&plan)?;
+    let (ReadData { two, three, .. }, facts) = match read_shapes(&plan)? {
+        Some((ds, facts)) => (select(&plan, ds)?, Some(facts)),
+        None => (read_data(&plan)?, None),
+    };
     let report = crate::resample::binning::plan_bins(&two.configs, plan.spec.resampling.bin_size)
         .map_err(|e| plan.error("resampling.bin_size", e))?;
-    check_data_rules(&plan, &two, &three)?;
+    check_rules(&plan, &two, &three, facts.as_ref())?;
     Ok(format!(
         "{}: valid; stages up to `{}`; {} configurations in {} bins; {} two-point and {} three-point channels\n",
         path.display(),
@@ -68,11 +75,45 @@ pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
 /// Read both tables, form the flavour combination and keep the selected `tsep` and
 /// currents. Errors about a selection name its YAML key.
 pub fn read_data(plan: &Plan) -> Result<ReadData> {
+    let opts = ReadOptions {
+        keep_common_configs: plan.spec.data.keep_common_configs,
+    };
+    select(plan, read_source(plan, &opts, &|_, _| {})?)
+}
+
+/// The shapes of a packed source's channels with the facts the value checks need
+/// ([`data_checks::Shapes`]), read one channel at a time, on common configurations as
+/// [`read_source`] gives them; `None` when the source is not a packed file or when the
+/// selection needs the values (`ratio.flavor`, `data.operator`).
+fn read_shapes(plan: &Plan) -> Result<Option<(crate::io::Dataset, data_checks::Facts)>> {
     let spec = &plan.spec;
+    let packed = match plan.hdf5.as_ref().map(|m| &m.layout) {
+        Some(crate::io::hdf5::Layout::Packed(p)) => p,
+        _ => return Ok(None),
+    };
+    if !crate::io::hdf5::ENABLED || spec.ratio.flavor.is_some() || spec.data.operator.is_some() {
+        return Ok(None);
+    }
+    let t_extent = spec.ensemble.t.map(|t| t as usize);
+    let mut shapes = data_checks::Shapes::new(t_extent);
+    let as_plan_error = |e| match e {
+        crate::Error::Config { message } => plan.error("data.hdf5", message),
+        other => other,
+    };
+    crate::io::hdf5::visit_packed(packed, &mut shapes).map_err(as_plan_error)?;
+    let two = crate::io::hdf5::cut_time(shapes.two, t_extent, packed).map_err(as_plan_error)?;
+    let name = std::path::Path::new("data.hdf5");
     let opts = ReadOptions {
         keep_common_configs: spec.data.keep_common_configs,
     };
-    let ds = read_source(plan, &opts, &|_, _| {})?;
+    let ds = crate::io::on_common_configs(two, name, shapes.three, name, Vec::new(), &opts)?;
+    Ok(Some((ds, shapes.facts)))
+}
+
+/// Form the flavour combination and keep the selected operators, `tsep` and currents of
+/// what [`read_source`] read.
+fn select(plan: &Plan, ds: crate::io::Dataset) -> Result<ReadData> {
+    let spec = &plan.spec;
     let mut three = ds
         .threept
         .ok_or_else(|| plan.error("data.threept", "the three-point table could not be read"))?;
@@ -195,6 +236,16 @@ pub(crate) fn check_data_rules(
     two: &TwoPointData,
     three: &ThreePointData,
 ) -> Result<()> {
+    check_rules(plan, two, three, None)
+}
+
+/// [`check_data_rules`] on data that may hold only shapes, their values' facts in `facts`.
+fn check_rules(
+    plan: &Plan,
+    two: &TwoPointData,
+    three: &ThreePointData,
+    facts: Option<&data_checks::Facts>,
+) -> Result<()> {
     let spec = &plan.spec;
     memory::check_memory(plan, two, three)?;
     let hdf5 = std::path::Path::new("data.hdf5");
@@ -202,7 +253,7 @@ pub(crate) fn check_data_rules(
         Some(_) => (hdf5, hdf5),
         None => (plan.twopt.as_path(), plan.threept.as_path()),
     };
-    data_checks::check_values(two, twopt, three, threept)?;
+    data_checks::check_values(two, twopt, three, threept, facts)?;
     let n_t = two.channels.values().map(|s| s.n_t).min().unwrap_or(0);
     let data_t = two.channels.values().map(|s| s.n_t).max().unwrap_or(0);
     if let Some(t) = spec

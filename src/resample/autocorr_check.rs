@@ -6,7 +6,7 @@
 //! same points with their binning study ([`study`]) into its tables and report.
 
 use super::autocorr::{binning_study, gamma_method, AutocorrResult, BinningPoint, DEFAULT_S};
-use crate::data::{ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
+use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::error::Result;
 use std::collections::BTreeSet;
 
@@ -126,29 +126,67 @@ fn representative_points<'a>(
             .find(|(k, _)| k.momentum == [0, 0, 0])
             .or_else(|| d.channels.iter().next());
         if let Some((key, s)) = chosen {
-            let ts: BTreeSet<usize> = [1, s.n_t / 4, s.n_t / 2]
-                .into_iter()
-                .filter(|&t| t < s.n_t)
-                .collect();
-            for t in ts {
-                points.push((CheckedPoint::TwoPoint { key, t }, s.re_at(t).to_vec()));
+            for (t, x) in twopt_histories(s) {
+                points.push((CheckedPoint::TwoPoint { key, t }, x));
             }
         }
     }
-    if let Some(d) = three {
-        if let Some((key, s)) = d.channels.iter().next() {
-            let tau = s.n_t.saturating_sub(1) / 2;
-            let (re, im) = (s.re_at(tau), s.im_at(tau));
-            let size = |x: &[f64]| x.iter().sum::<f64>().abs();
-            let imaginary = size(im) > size(re);
-            let x = if imaginary { im } else { re };
-            let point = CheckedPoint::ThreePoint {
-                key,
-                tau,
-                imaginary,
-            };
-            points.push((point, x.to_vec()));
-        }
+    if let Some((key, s)) = three.and_then(|d| d.channels.iter().next()) {
+        let (tau, imaginary, x) = threept_history(s);
+        let point = CheckedPoint::ThreePoint {
+            key,
+            tau,
+            imaginary,
+        };
+        points.push((point, x));
     }
     points
+}
+
+/// Whether the two-point channel `key`, met after `chosen`, becomes the checked one: the
+/// first channel in key order at zero momentum, else the first channel (a later channel of
+/// an equal key replaces the earlier, as in a map). For readers that see channels one at a
+/// time, in any order.
+pub fn replaces_twopt_choice(key: &TwoPointKey, chosen: Option<&TwoPointKey>) -> bool {
+    let zero = |k: &TwoPointKey| k.momentum == [0, 0, 0];
+    match chosen {
+        None => true,
+        Some(c) => match (zero(key), zero(c)) {
+            (true, false) => true,
+            (false, true) => false,
+            _ => key <= c,
+        },
+    }
+}
+
+/// The Monte Carlo histories checked in the chosen two-point channel: the real part at
+/// `t = 1, T/4, T/2` (those below `T`, each once).
+pub fn twopt_histories(s: &Series) -> Vec<(usize, Vec<f64>)> {
+    let ts: BTreeSet<usize> = [1, s.n_t / 4, s.n_t / 2]
+        .into_iter()
+        .filter(|&t| t < s.n_t)
+        .collect();
+    ts.into_iter().map(|t| (t, s.re_at(t).to_vec())).collect()
+}
+
+/// The Monte Carlo history checked in the first three-point channel: `tau = (n_t - 1) / 2`
+/// in the part (real or imaginary) whose sum over configurations is larger in magnitude;
+/// returns `(tau, imaginary, history)`.
+pub fn threept_history(s: &Series) -> (usize, bool, Vec<f64>) {
+    let tau = s.n_t.saturating_sub(1) / 2;
+    let (re, im) = (s.re_at(tau), s.im_at(tau));
+    let size = |x: &[f64]| x.iter().sum::<f64>().abs();
+    let imaginary = size(im) > size(re);
+    let x = if imaginary { im } else { re };
+    (tau, imaginary, x.to_vec())
+}
+
+/// The integrated autocorrelation time of points already chosen (by a reader that streams
+/// the data, with [`replaces_twopt_choice`], [`twopt_histories`] and [`threept_history`]);
+/// [`check`] on the whole data gives the same.
+pub fn check_points<'a>(points: Vec<(CheckedPoint<'a>, &[f64])>) -> Vec<PointAutocorr<'a>> {
+    points
+        .into_iter()
+        .map(|(point, x)| PointAutocorr::of(point, x))
+        .collect()
 }

@@ -25,7 +25,7 @@ mod packed;
 
 pub use mapping::{Hdf5Source, Layout, Mapping};
 
-use crate::data::{ThreePointData, TwoPointData};
+use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use std::path::Path;
 
@@ -86,8 +86,11 @@ pub fn read_source(
 }
 
 /// Keep the first `t_extent` time slices of every two-point channel of a packed file.
-#[cfg(feature = "hdf5")]
-fn cut_time(mut two: TwoPointData, t_extent: Option<usize>, path: &Path) -> Result<TwoPointData> {
+pub(crate) fn cut_time(
+    mut two: TwoPointData,
+    t_extent: Option<usize>,
+    path: &Path,
+) -> Result<TwoPointData> {
     let Some(t) = t_extent else { return Ok(two) };
     for (k, s) in two.channels.iter_mut() {
         if s.n_t < t {
@@ -132,6 +135,32 @@ pub fn read_packed(path: &Path) -> Result<(TwoPointData, ThreePointData)> {
     #[cfg(not(feature = "hdf5"))]
     {
         let _ = path;
+        Err(not_enabled("reading a packed HDF5 file"))
+    }
+}
+
+/// What a walk over a packed file sees, in file order: the configurations once, then every
+/// two-point channel, then the three-point channels block by block (`tsep` ascending).
+pub trait PackedVisitor {
+    /// The file's configurations (checked: at least one, strictly ascending).
+    fn configs(&mut self, configs: &[i64]) -> Result<()>;
+    /// One two-point channel (values checked finite). The series is the walk's buffer: taking
+    /// its vectors leaves the walk to allocate fresh ones for the next channel.
+    fn twopt(&mut self, key: TwoPointKey, series: &mut Series) -> Result<()>;
+    /// One three-point channel, as [`PackedVisitor::twopt`].
+    fn threept(&mut self, key: ThreePointKey, series: &mut Series) -> Result<()>;
+}
+
+/// Walk a packed file written by [`write_packed`] channel by channel, holding one channel's
+/// values at a time (see [`PackedVisitor`]); checks and errors are those of [`read_packed`].
+pub fn visit_packed(path: &Path, visitor: &mut dyn PackedVisitor) -> Result<()> {
+    #[cfg(feature = "hdf5")]
+    {
+        packed::visit_packed(path, visitor)
+    }
+    #[cfg(not(feature = "hdf5"))]
+    {
+        let _ = (path, visitor);
         Err(not_enabled("reading a packed HDF5 file"))
     }
 }

@@ -19,7 +19,7 @@ mod read;
 mod values;
 mod write;
 
-pub use read::read_packed;
+pub use read::{read_packed, visit_packed};
 pub use write::write_packed;
 
 use crate::data::{ThreePointKey, TwoPointKey};

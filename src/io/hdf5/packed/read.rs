@@ -1,16 +1,66 @@
 //! Reading the packed file: the index and configurations are checked first, then each
 //! block's datasets (type, shape, size against the file) before any channel is read.
+//!
+//! Every read walks the channels one at a time through [`visit_packed`]: a [`Visitor`] sees
+//! each channel's series in a buffer that the walk keeps. [`read_packed`] takes the buffers
+//! (each channel keeps its own, as the data model needs); a streaming visitor (`inspect`,
+//! `check`) leaves them in place, so the next channel of the block is read into the same
+//! memory and the walk holds one channel's values at a time, whatever the number of channels.
 
 use super::values::{first_non_finite, ChannelValues};
 use super::{Index, FORMAT, VERSION};
-use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData};
+use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
 use crate::io::hdf5::dataset::{dataset_error, open_file};
+use crate::io::hdf5::PackedVisitor as Visitor;
 use std::collections::BTreeMap;
 use std::path::Path;
 
 /// Read a packed file.
 pub fn read_packed(path: &Path) -> Result<(TwoPointData, ThreePointData)> {
+    let mut load = Load::default();
+    visit_packed(path, &mut load)?;
+    Ok((load.two, load.three))
+}
+
+/// The visitor of [`read_packed`]: every channel keeps the buffers it was read into.
+#[derive(Default)]
+struct Load {
+    two: TwoPointData,
+    three: ThreePointData,
+}
+
+impl Visitor for Load {
+    fn configs(&mut self, configs: &[i64]) -> Result<()> {
+        self.two.configs = configs.to_vec();
+        self.three.configs = configs.to_vec();
+        Ok(())
+    }
+
+    fn twopt(&mut self, key: TwoPointKey, series: &mut Series) -> Result<()> {
+        self.two.channels.insert(key, take(series));
+        Ok(())
+    }
+
+    fn threept(&mut self, key: ThreePointKey, series: &mut Series) -> Result<()> {
+        self.three.channels.insert(key, take(series));
+        Ok(())
+    }
+}
+
+/// The series with its values, leaving empty vectors behind.
+fn take(s: &mut Series) -> Series {
+    Series {
+        n_cfg: s.n_cfg,
+        n_t: s.n_t,
+        re: std::mem::take(&mut s.re),
+        im: std::mem::take(&mut s.im),
+    }
+}
+
+/// Walk a packed file channel by channel (see [`Visitor`]). Channels of equal key are passed
+/// on as they come (the file's writer never repeats one; [`read_packed`] keeps the last).
+pub fn visit_packed(path: &Path, visitor: &mut dyn Visitor) -> Result<()> {
     let (f, len) = open_file(path)?;
     let index: Index = {
         let raw = read_exact::<u8>(&f, path, len, "formfactory")?;
@@ -40,76 +90,97 @@ pub fn read_packed(path: &Path) -> Result<(TwoPointData, ThreePointData)> {
             "must list at least one configuration in strictly ascending order",
         ));
     }
-    let mut two = TwoPointData {
-        configs: configs.clone(),
-        channels: BTreeMap::new(),
+    visitor.configs(&configs)?;
+    drop(configs);
+    let mut buffer = Series {
+        n_cfg,
+        n_t: 0,
+        re: Vec::new(),
+        im: Vec::new(),
     };
     if !index.twopt.is_empty() {
         let n_t = f
             .dataset("twopt/re")
             .map(|d| d.shape().get(1).copied().unwrap_or(0))
             .map_err(|e| dataset_error(path, "twopt/re", e))?;
-        let series = read_series(&f, path, len, "twopt", index.twopt.len(), n_t, n_cfg)?;
-        two.channels = index.twopt.into_iter().zip(series).collect();
+        let mut block = Block::open(&f, path, len, "twopt", index.twopt.len(), n_t, n_cfg)?;
+        for key in index.twopt {
+            block.next_channel(&mut buffer)?;
+            visitor.twopt(key, &mut buffer)?;
+        }
     }
-    let mut three = ThreePointData {
-        configs,
-        channels: BTreeMap::new(),
-    };
     let mut by_tsep: BTreeMap<u32, Vec<ThreePointKey>> = BTreeMap::new();
     for k in index.threept {
         by_tsep.entry(k.tsep).or_default().push(k);
     }
     for (tsep, keys) in by_tsep {
         let group = format!("threept/tsep{tsep}");
-        let series = read_series(&f, path, len, &group, keys.len(), tsep as usize + 1, n_cfg)?;
-        three.channels.extend(keys.into_iter().zip(series));
+        let n_t = tsep as usize + 1;
+        let mut block = Block::open(&f, path, len, &group, keys.len(), n_t, n_cfg)?;
+        for key in keys {
+            block.next_channel(&mut buffer)?;
+            visitor.threept(key, &mut buffer)?;
+        }
     }
-    Ok((two, three))
+    Ok(())
 }
 
-/// Read `group/re` and `group/im` of shape `[n, n_t, n_cfg]` into `n` series, each channel
-/// straight into the buffers its series keeps (see [`ChannelValues`]).
-fn read_series(
-    f: &hdf5::File,
-    path: &Path,
-    len: u64,
-    group: &str,
-    n: usize,
+/// The `re` and `im` datasets of one block, of shape `[n, n_t, n_cfg]`, read channel by
+/// channel (see [`ChannelValues`]).
+struct Block<'a> {
+    re: ChannelValues<'a>,
+    im: ChannelValues<'a>,
     n_t: usize,
-    n_cfg: usize,
-) -> Result<Vec<Series>> {
-    let shape = [n, n_t, n_cfg];
-    let names = [format!("{group}/re"), format!("{group}/im")];
-    let open = |name: &'_ str| -> Result<hdf5::Dataset> {
-        open_exact::<f64>(f, path, len, name, Some(&shape))
-    };
-    let mut re = ChannelValues::new(open(&names[0])?, n_t * n_cfg, len, path, &names[0])?;
-    let mut im = ChannelValues::new(open(&names[1])?, n_t * n_cfg, len, path, &names[1])?;
-    (0..n)
-        .map(|c| {
-            let s = Series {
-                n_cfg,
-                n_t,
-                re: re.next_channel()?,
-                im: im.next_channel()?,
-            };
-            for (values, name) in [(&s.re, &names[0]), (&s.im, &names[1])] {
-                if let Some(i) = first_non_finite(values) {
-                    return Err(dataset_error(
-                        path,
-                        name,
-                        format!(
-                            "non-finite value at channel {c}, time {}, configuration index {}",
-                            i / n_cfg,
-                            i % n_cfg
-                        ),
-                    ));
-                }
-            }
-            Ok(s)
+    /// The next channel's index.
+    next: usize,
+}
+
+impl<'a> Block<'a> {
+    fn open(
+        f: &hdf5::File,
+        path: &'a Path,
+        len: u64,
+        group: &str,
+        n: usize,
+        n_t: usize,
+        n_cfg: usize,
+    ) -> Result<Self> {
+        let shape = [n, n_t, n_cfg];
+        let [re, im] = [format!("{group}/re"), format!("{group}/im")].map(|name| {
+            open_exact::<f64>(f, path, len, &name, Some(&shape))
+                .and_then(|ds| ChannelValues::new(ds, n_t * n_cfg, len, path, name))
+        });
+        Ok(Block {
+            re: re?,
+            im: im?,
+            n_t,
+            next: 0,
         })
-        .collect()
+    }
+
+    /// Read the next channel into `s` (its vectors reused when they are large enough), its
+    /// values checked finite.
+    fn next_channel(&mut self, s: &mut Series) -> Result<()> {
+        let c = self.next;
+        self.next += 1;
+        s.n_t = self.n_t;
+        self.re.next_channel_into(&mut s.re)?;
+        self.im.next_channel_into(&mut s.im)?;
+        for (values, part) in [(&s.re, &self.re), (&s.im, &self.im)] {
+            if let Some(i) = first_non_finite(values) {
+                return Err(dataset_error(
+                    part.path(),
+                    part.name(),
+                    format!(
+                        "non-finite value at channel {c}, time {}, configuration index {}",
+                        i / s.n_cfg,
+                        i % s.n_cfg
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
 }
 
 /// Read a whole one-axis dataset of element type `T` (see [`open_exact`]).

@@ -24,7 +24,7 @@ pub struct ChannelValues<'a> {
     /// Channels read so far (the next channel's index).
     next: usize,
     path: &'a Path,
-    name: &'a str,
+    name: String,
 }
 
 enum How {
@@ -42,9 +42,9 @@ impl<'a> ChannelValues<'a> {
         size: usize,
         len: u64,
         path: &'a Path,
-        name: &'a str,
+        name: String,
     ) -> Result<Self> {
-        let err = |m: String| dataset_error(path, name, m);
+        let err = |m: String| dataset_error(path, &name, m);
         let how = match raw_offset(&ds) {
             Some(offset) => {
                 let n = ds.shape().first().copied().unwrap_or(0) as u64;
@@ -71,17 +71,33 @@ impl<'a> ChannelValues<'a> {
         })
     }
 
-    /// The values of the next channel, time-major.
-    pub fn next_channel(&mut self) -> Result<Vec<f64>> {
+    /// The file this reads.
+    pub fn path(&self) -> &Path {
+        self.path
+    }
+
+    /// The dataset this reads.
+    pub fn name(&self) -> &str {
+        &self.name
+    }
+
+    /// Read the values of the next channel, time-major, into `values`: into its memory when
+    /// it already holds a channel (a streaming reader's reused buffer), else into a fresh
+    /// zeroed allocation (which the system maps lazily, so no page is written twice).
+    pub fn next_channel_into(&mut self, values: &mut Vec<f64>) -> Result<()> {
         let c = self.next;
         self.next += 1;
-        let err = |m: String| dataset_error(self.path, self.name, m);
+        let err = |m: String| dataset_error(self.path, &self.name, m);
         match &mut self.how {
             How::Raw(file) => {
-                let mut values = vec![0.0; self.size];
-                read_le(file, &mut values)
-                    .map_err(|e| err(format!("cannot read channel {c}: {e}")))?;
-                Ok(values)
+                if values.len() != self.size {
+                    if values.capacity() >= self.size {
+                        values.resize(self.size, 0.0);
+                    } else {
+                        *values = vec![0.0; self.size];
+                    }
+                }
+                read_le(file, values).map_err(|e| err(format!("cannot read channel {c}: {e}")))
             }
             How::Library(ds) => {
                 use hdf5::SliceOrIndex;
@@ -90,17 +106,18 @@ impl<'a> ChannelValues<'a> {
                     SliceOrIndex::from(..),
                     SliceOrIndex::from(..),
                 ]);
-                let values = ds
+                let read = ds
                     .read_slice_2d::<f64, _>(slab)
                     .map_err(|e| err(format!("cannot read channel {c}: {e}")))?;
                 // A freshly read array is in standard order from its buffer's first element.
-                let (values, offset) = values.into_raw_vec_and_offset();
-                if offset.is_some_and(|o| o != 0) || values.len() != self.size {
+                let (read, offset) = read.into_raw_vec_and_offset();
+                if offset.is_some_and(|o| o != 0) || read.len() != self.size {
                     return Err(err(format!(
                         "channel {c} came back in an unexpected layout"
                     )));
                 }
-                Ok(values)
+                *values = read;
+                Ok(())
             }
         }
     }

@@ -9,91 +9,41 @@
 //! caller with `resample::autocorr_check` (the Gamma method with automatic windowing, U.
 //! Wolff, Comput. Phys. Commun. 156 (2004) 143) and only written here.
 
+mod scan;
+
+pub use scan::{from_data, read, Inspected};
+
 use super::accumulator::Summary;
-use super::table::{display_name, open};
-use super::{threept, twopt};
-use crate::data::{norm2, sub, Momentum, ThreePointData, TwoPointData};
-use crate::error::{Error, Result};
+use crate::data::{norm2, sub, Momentum};
 use crate::resample::autocorr_check::{CheckedPoint, PointAutocorr, TAU_INT_WARN, WINDOW_S};
+use scan::{ThreeScan, TwoScan};
 use std::collections::BTreeSet;
 use std::fmt::Write as _;
-use std::io::{BufRead, BufReader, Read};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
-/// Two-point values are checked for positivity at `t < SMALL_T`.
-const SMALL_T: usize = 3;
 /// At most this many items are listed in one warning or summary line.
 const LIST_MAX: usize = 8;
 
-/// The data `formfactory inspect` describes, as read.
-pub struct Inspected {
-    two: Loaded<TwoPointData>,
-    three: Loaded<ThreePointData>,
-}
-
-impl Inspected {
-    /// The two-point data, if any were read.
-    pub fn twopt(&self) -> Option<&TwoPointData> {
-        self.two.as_ref().map(|t| &t.1)
-    }
-
-    /// The three-point data, if any were read.
-    pub fn threept(&self) -> Option<&ThreePointData> {
-        self.three.as_ref().map(|t| &t.1)
-    }
-}
-
-/// Read a data directory (`twopt.csv` and/or `threept.csv` inside), one table (its kind told
-/// by its header; `-` reads standard input) or a packed HDF5 file.
-pub fn read(path: &Path) -> Result<Inspected> {
-    let (two, three) = load(path)?;
-    Ok(Inspected { two, three })
-}
-
-/// Data already read (e.g. from an HDF5 source), `name` standing for its origin.
-pub fn from_data(name: &Path, two: TwoPointData, three: ThreePointData) -> Inspected {
-    let (two, three) = loaded_pair(name, two, three);
-    Inspected { two, three }
-}
-
-/// Both kinds of data from one origin, with the number of values in place of rows.
-fn loaded_pair(
-    name: &Path,
-    two: TwoPointData,
-    three: ThreePointData,
-) -> (Loaded<TwoPointData>, Loaded<ThreePointData>) {
-    let summary = |n: usize| Summary {
-        rows: n as u64,
-        sources: None,
-    };
-    let n2 = two.channels.values().map(|s| s.re.len()).sum();
-    let n3 = three.channels.values().map(|s| s.re.len()).sum();
-    (
-        Some((name.to_path_buf(), two, summary(n2))),
-        Some((name.to_path_buf(), three, summary(n3))),
-    )
-}
-
 /// The summary for the terminal, with warnings; `autocorr` is the autocorrelation check of
-/// the same data (`resample::autocorr_check::check`).
+/// the same data's [`Inspected::points`].
 pub fn render(data: &Inspected, autocorr: &[PointAutocorr]) -> String {
     let (two, three) = (&data.two, &data.three);
     let mut out = String::new();
     let mut warnings = Vec::new();
-    if let Some((name, data, summary)) = two {
-        describe_twopt(&mut out, name, data, summary);
-        check_twopt(data, &mut warnings);
-        config_gaps(&data.configs, name, &mut warnings);
+    if let Some(d) = two {
+        describe_twopt(&mut out, d);
+        warnings.extend(d.channels.values().flat_map(|(_, w)| w.iter().cloned()));
+        config_gaps(&d.configs, &d.name, &mut warnings);
     }
-    if let Some((name, data, summary)) = three {
-        describe_threept(&mut out, name, data, summary);
-        let same_configs = two.as_ref().is_some_and(|t| t.1.configs == data.configs);
+    if let Some(d) = three {
+        describe_threept(&mut out, d);
+        let same_configs = two.as_ref().is_some_and(|t| t.configs == d.configs);
         if !same_configs {
-            config_gaps(&data.configs, name, &mut warnings);
+            config_gaps(&d.configs, &d.name, &mut warnings);
         }
     }
-    if let (Some((n2, d2, _)), Some((n3, d3, _))) = (two, three) {
-        compare_tables(n2, d2, n3, d3, &mut warnings);
+    if let (Some(d2), Some(d3)) = (two, three) {
+        compare_tables(d2, d3, &mut warnings);
     }
     autocorrelation(&mut out, autocorr, &mut warnings);
     if warnings.is_empty() {
@@ -105,77 +55,6 @@ pub fn render(data: &Inspected, autocorr: &[PointAutocorr]) -> String {
         }
     }
     out
-}
-
-type Loaded<D> = Option<(PathBuf, D, Summary)>;
-
-/// Read what `path` names: a directory with the standard file names, or one table.
-fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
-    if path != Path::new("-") && path.is_dir() {
-        let (p2, p3) = (path.join("twopt.csv"), path.join("threept.csv"));
-        if !p2.exists() && !p3.exists() {
-            return Err(Error::Table {
-                path: path.to_path_buf(),
-                message: "directory holds neither twopt.csv nor threept.csv".into(),
-            });
-        }
-        let two = if p2.exists() {
-            let (d, s) = twopt::read_with_summary(&p2)?;
-            Some((p2, d, s))
-        } else {
-            None
-        };
-        let three = if p3.exists() {
-            let (d, s) = threept::read_with_summary(&p3)?;
-            Some((p3, d, s))
-        } else {
-            None
-        };
-        return Ok((two, three));
-    }
-    if path != Path::new("-") && super::hdf5::looks_like_hdf5(path) {
-        let (d2, d3) = super::hdf5::read_packed(path)?;
-        return Ok(loaded_pair(path, d2, d3));
-    }
-    let name = display_name(path);
-    let mut input = BufReader::new(open(path)?);
-    let mut header = Vec::new();
-    // The header is read on its own to tell the table's kind; a line longer than any real
-    // header is not read whole (the reader reports it).
-    (&mut input)
-        .take(1 << 16)
-        .read_until(b'\n', &mut header)
-        .map_err(|e| Error::io(&name, e))?;
-    if header.is_empty() {
-        return Err(Error::Table {
-            path: name,
-            message: "the file is empty; expected a header line naming the columns of a \
-                      two- or three-point table"
-                .into(),
-        });
-    }
-    let names: Vec<String> = String::from_utf8_lossy(&header)
-        .trim_start_matches('\u{feff}')
-        .trim_end()
-        .split(',')
-        .map(|s| s.trim_matches('"').to_string())
-        .collect();
-    let has = |n: &str| names.iter().any(|x| x == n);
-    let whole = std::io::Cursor::new(header.clone()).chain(input);
-    if has("tau") || has("tsep") {
-        let (d, s) = threept::read_inner(whole, name.clone())?;
-        Ok((None, Some((name, d, s))))
-    } else if has("t") {
-        let (d, s) = twopt::read_inner(whole, name.clone())?;
-        Ok((Some((name, d, s)), None))
-    } else {
-        Err(Error::Table {
-            path: name,
-            message: "cannot tell the kind of table from its header: a two-point table has a \
-                      `t` column, a three-point table `tsep` and `tau` columns"
-                .into(),
-        })
-    }
 }
 
 fn list<T: std::fmt::Display>(items: impl IntoIterator<Item = T>) -> String {
@@ -241,9 +120,9 @@ fn rows_line(out: &mut String, s: &Summary) {
     out.push('\n');
 }
 
-fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) {
-    let _ = writeln!(out, "two-point table: {}", name.display());
-    rows_line(out, s);
+fn describe_twopt(out: &mut String, d: &TwoScan) {
+    let _ = writeln!(out, "two-point table: {}", d.name.display());
+    rows_line(out, &d.summary());
     let _ = writeln!(out, "  configurations: {}", configs_line(&d.configs));
     let momenta: BTreeSet<(i32, Momentum)> = d
         .channels
@@ -255,7 +134,7 @@ fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) 
         .keys()
         .filter_map(|k| k.smear.as_deref())
         .collect();
-    let n_t = d.channels.values().next().map_or(0, |s| s.n_t);
+    let n_t = d.channels.values().next().map_or(0, |(n_t, _)| *n_t);
     let _ = writeln!(out, "  channels: {}, T = {n_t}", d.channels.len());
     let _ = writeln!(
         out,
@@ -266,9 +145,9 @@ fn describe_twopt(out: &mut String, name: &Path, d: &TwoPointData, s: &Summary) 
     let _ = writeln!(out, "  smear labels: {}", list(&smears));
 }
 
-fn describe_threept(out: &mut String, name: &Path, d: &ThreePointData, s: &Summary) {
-    let _ = writeln!(out, "three-point table: {}", name.display());
-    rows_line(out, s);
+fn describe_threept(out: &mut String, d: &ThreeScan) {
+    let _ = writeln!(out, "three-point table: {}", d.name.display());
+    rows_line(out, &d.summary());
     let _ = writeln!(out, "  configurations: {}", configs_line(&d.configs));
     let keys = d.channels.keys();
     let tseps: BTreeSet<u32> = keys.clone().map(|k| k.tsep).collect();
@@ -313,31 +192,6 @@ fn describe_threept(out: &mut String, name: &Path, d: &ThreePointData, s: &Summa
     );
 }
 
-/// Non-positive real parts at small `t`: the mean in any channel, single configurations at
-/// zero momentum.
-fn check_twopt(d: &TwoPointData, warnings: &mut Vec<String>) {
-    for (key, s) in &d.channels {
-        let name = super::describe_twopt(key);
-        for t in 0..s.n_t.min(SMALL_T) {
-            let re = s.re_at(t);
-            let mean = re.iter().sum::<f64>() / re.len().max(1) as f64;
-            if mean <= 0.0 {
-                warnings.push(format!(
-                    "two-point {name}: mean Re C2 at t={t} is {mean:e} (<= 0); a two-point \
-                     function should be positive at small t - check sign or phase"
-                ));
-            } else if key.momentum == [0, 0, 0] {
-                let bad = re.iter().filter(|&&x| x <= 0.0).count();
-                if bad > 0 {
-                    warnings.push(format!(
-                        "two-point {name}: {bad} configuration(s) have Re C2 <= 0 at t={t}"
-                    ));
-                }
-            }
-        }
-    }
-}
-
 fn config_gaps(configs: &[i64], name: &Path, warnings: &mut Vec<String>) {
     let Some(step) = usual_step(configs) else {
         return;
@@ -358,13 +212,8 @@ fn config_gaps(configs: &[i64], name: &Path, warnings: &mut Vec<String>) {
 }
 
 /// Configuration mismatch and three-point momenta without a two-point partner.
-fn compare_tables(
-    n2: &Path,
-    d2: &TwoPointData,
-    n3: &Path,
-    d3: &ThreePointData,
-    warnings: &mut Vec<String>,
-) {
+fn compare_tables(d2: &TwoScan, d3: &ThreeScan, warnings: &mut Vec<String>) {
+    let (n2, n3) = (&d2.name, &d3.name);
     if d2.configs != d3.configs {
         let only2 = super::difference(&d2.configs, &d3.configs);
         let only3 = super::difference(&d3.configs, &d2.configs);
