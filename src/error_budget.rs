@@ -68,10 +68,14 @@ pub struct Variant {
 /// How the final value was chosen.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub enum Rule {
-    /// The reference estimator's value (two-state without its smallest separation, else
-    /// two-state, else summation; plateaus only when none exists), fit ranges and Q² models
-    /// averaged with equal weights.
-    Reference,
+    /// The reference estimator's value (two-state without its smallest separation when
+    /// `late`, else two-state, else summation; plateaus only when none exists), fit ranges and
+    /// Q² models averaged with equal weights.
+    Reference {
+        /// A two-state fit without its smallest separation was made
+        /// (`excited_states.two_state_late`).
+        late: bool,
+    },
     /// One estimator pinned by the user.
     Pinned(Estimator),
 }
@@ -79,8 +83,12 @@ pub enum Rule {
 impl std::fmt::Display for Rule {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
-            Rule::Reference => {
-                f.write_str("first of two_state_late, two_state, summation; Q² models averaged")
+            Rule::Reference { late: true } => f.write_str(
+                "two-state without its smallest tsep (else two-state, else summation) value, \
+                 Q² models averaged",
+            ),
+            Rule::Reference { late: false } => {
+                f.write_str("two-state (else summation) value, Q² models averaged")
             }
             Rule::Pinned(e) => write!(f, "pinned to {e}"),
         }
@@ -170,7 +178,11 @@ pub fn final_value(variants: &[Variant], pin: Option<Estimator>) -> Option<Budge
         None => {
             exclude_plateaus(&mut weighted);
             defer_to_reference(&mut weighted);
-            Rule::Reference
+            Rule::Reference {
+                late: variants
+                    .iter()
+                    .any(|v| v.estimator == Estimator::TwoStateLate),
+            }
         }
     };
     // model → estimator kind → fit ranges (indices of the used variants)
@@ -209,7 +221,7 @@ pub fn final_value(variants: &[Variant], pin: Option<Estimator>) -> Option<Budge
             }
         }
         excited_sq += match &rule {
-            Rule::Reference => excited_state_error(&weighted, model)
+            Rule::Reference { .. } => excited_state_error(&weighted, model)
                 .unwrap_or_else(|| spread(&kind_means))
                 .powi(2),
             Rule::Pinned(_) => spread(&kind_means).powi(2),
@@ -425,7 +437,8 @@ mod tests {
             var(Estimator::TwoState, "", 1.2, &NOISE),
         ];
         let b = final_value(&v, None).unwrap_or_else(|| panic!("no budget"));
-        assert_eq!(b.rule, Rule::Reference);
+        assert_eq!(b.rule, Rule::Reference { late: false });
+        assert!(!b.rule.to_string().contains("smallest"));
         assert!((b.value.central - 1.2).abs() < 1e-12);
         assert!((b.excited_states - (0.04f64 - 0.00075).sqrt()).abs() < 1e-12);
         assert!((b.stat - 0.00075f64.sqrt()).abs() < 1e-12);
@@ -457,7 +470,8 @@ mod tests {
             var(Estimator::TwoStateLate, "", 1.25, &WIDE),
         ];
         let b = final_value(&v, None).unwrap_or_else(|| panic!("no budget"));
-        assert_eq!(b.rule, Rule::Reference);
+        assert_eq!(b.rule, Rule::Reference { late: true });
+        assert!(b.rule.to_string().contains("smallest tsep"));
         assert_eq!(b.value.central, 1.25);
         assert!((b.excited_states - 0.05).abs() < 1e-12);
         assert!((b.stat - (0.75f64 * 0.2).sqrt()).abs() < 1e-12);

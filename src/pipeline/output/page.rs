@@ -138,7 +138,18 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
         ));
     };
     let rule = match &first.budget.rule {
-        crate::error_budget::Rule::Reference => "Each value is the two-state result (the \
+        crate::error_budget::Rule::Reference { late: true } => "Each value is the result of \
+             the two-state fit without its smallest source–sink separation (the two-state fit \
+             over every separation, else the summation, where it is missing), averaged with \
+             equal weights over the Q² models, written value(stat)(sys); the summation result \
+             and the plateaus are checks. The systematic error adds in quadrature the change \
+             of the two-state result when the smallest separation is added (exc), the spread \
+             of the plateau separations when plateaus make the value (fit), the spread of the \
+             Q² models (model) and the renormalization error (Z); final_variants.csv lists \
+             every variant with its weight or why it has none."
+            .to_string(),
+        crate::error_budget::Rule::Reference { late: false } => {
+            "Each value is the two-state result (the \
              summation result where there is no two-state fit), averaged with equal weights \
              over the Q² models, written value(stat)(sys); the summation result and the \
              plateaus are checks. The systematic error adds in quadrature the part of the \
@@ -146,7 +157,8 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
              explain (exc), the spread of the plateau separations when plateaus make the value \
              (fit), the spread of the Q² models (model) and the renormalization error (Z); \
              final_variants.csv lists every variant with its weight or why it has none."
-            .to_string(),
+                .to_string()
+        }
         crate::error_budget::Rule::Pinned(e) => format!(
             "The final values are pinned to the {e} estimator (final_value.pin); the \
              systematic error holds only the Q² model spread and the renormalization error."
