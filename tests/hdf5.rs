@@ -487,6 +487,15 @@ mod with_library {
     }
 
     /// `inspect`'s text of what `data` holds, its autocorrelation check from `autocorr`.
+    /// Bytes of the values (real and imaginary f64) both tables hold.
+    fn value_bytes(two: &TwoPointData, three: &ThreePointData) -> usize {
+        two.channels
+            .values()
+            .chain(three.channels.values())
+            .map(|s| 16 * s.re.len())
+            .sum()
+    }
+
     fn render(
         data: &formfactory::io::inspect::Inspected,
         autocorr: &[formfactory::resample::autocorr_check::PointAutocorr],
@@ -525,12 +534,7 @@ mod with_library {
             // Bounded: the walk holds one channel's values and the keys, not the data (the
             // whole read's peak is the data, which the counter must see for this to mean
             // anything).
-            let values: usize = two
-                .channels
-                .values()
-                .chain(three.channels.values())
-                .map(|s| 16 * s.re.len())
-                .sum();
+            let values = value_bytes(&two, &three);
             assert!(whole >= values, "{name}: {whole} < {values}");
             if *name == "many" {
                 assert!(
@@ -655,12 +659,7 @@ mod with_library {
                 })
             };
             let ((packed_verdict, peak), (csv_verdict, _)) = (run("packed.yaml"), run("csv.yaml"));
-            let values: usize = two
-                .channels
-                .values()
-                .chain(three.channels.values())
-                .map(|s| 16 * s.re.len())
-                .sum();
+            let values = value_bytes(&two, &three);
             assert!(
                 peak < values / 4,
                 "{name}: check peaked at {peak} bytes for {values} bytes of values"

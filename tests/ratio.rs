@@ -969,17 +969,26 @@ fn settings_read_from_yaml_with_defaults() {
     );
 }
 
-#[test]
-fn results_do_not_depend_on_the_thread_count() {
+/// The two-state truth on tsep 4, 6, 8 with 10 % Gaussian noise, `n_cfg` configurations.
+fn noisy_two_state_data(
+    n_cfg: usize,
+    seed: u64,
+) -> (BTreeMap<Momentum, TwoPt>, TwoPointData, ThreePointData) {
     let (twopt, chans) = two_state_setup();
     let (c2, c3) = make_data(
         &twopt,
         &chans,
         &[4, 6, 8],
         12,
-        60,
-        Noise::Gaussian { seed: 9, rel: 0.1 },
+        n_cfg,
+        Noise::Gaussian { seed, rel: 0.1 },
     );
+    (twopt, c2, c3)
+}
+
+#[test]
+fn results_do_not_depend_on_the_thread_count() {
+    let (twopt, c2, c3) = noisy_two_state_data(60, 9);
     let plan = ResamplePlan::bootstrap(60, 80, 1);
     let states = states_of(&twopt, &plan);
     let settings = RatioSettings::default();
@@ -1000,15 +1009,7 @@ fn results_do_not_depend_on_the_thread_count() {
 // claim: the same operations on the same values), and the same at any thread count.
 #[test]
 fn channel_by_channel_stage_equals_building_every_ratio_first() {
-    let (twopt, chans) = two_state_setup();
-    let (c2, c3) = make_data(
-        &twopt,
-        &chans,
-        &[4, 6, 8],
-        12,
-        40,
-        Noise::Gaussian { seed: 21, rel: 0.1 },
-    );
+    let (twopt, c2, c3) = noisy_two_state_data(40, 21);
     let plan = ResamplePlan::jackknife(40);
     let states = states_of(&twopt, &plan);
     let settings = RatioSettings::default();

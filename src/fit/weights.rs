@@ -384,6 +384,20 @@ mod tests {
     use super::*;
     use approx::assert_relative_eq;
 
+    /// `w.whiten(r)` equals, bit for bit, every `W[i][j] r[j]` for `j <= i` summed in order of
+    /// `j` from `+0` (the definition the kernels must follow).
+    fn assert_whitens_as_the_triangular_product(w: &Weights, r: &[f64], what: &str) {
+        let mut got = vec![0.0; r.len()];
+        w.whiten(r, &mut got);
+        for (i, g) in got.iter().enumerate() {
+            let mut want = 0.0;
+            for (j, rj) in r.iter().enumerate().take(i + 1) {
+                want += w.matrix()[(i, j)] * rj;
+            }
+            assert_eq!(g.to_bits(), want.to_bits(), "{what}, row {i}");
+        }
+    }
+
     #[test]
     fn whitening_reproduces_inverse_covariance() {
         // Identity W^T W = Cov^{-1} (definition of whitening).
@@ -416,15 +430,7 @@ mod tests {
             });
             let w = Weights::from_covariance(&cov).unwrap();
             let r: Vec<f64> = (0..n).map(|i| (1.3 * i as f64 + 0.7).sin()).collect();
-            let mut got = vec![0.0; n];
-            w.whiten(&r, &mut got);
-            for (i, g) in got.iter().enumerate() {
-                let mut want = 0.0;
-                for (j, rj) in r.iter().enumerate().take(i + 1) {
-                    want += w.matrix()[(i, j)] * rj;
-                }
-                assert_eq!(g.to_bits(), want.to_bits(), "n {n}, row {i}");
-            }
+            assert_whitens_as_the_triangular_product(&w, &r, &format!("n {n}"));
         }
     }
 
@@ -452,15 +458,11 @@ mod tests {
                         2 => r[n / 2] = f64::INFINITY,
                         _ => {}
                     }
-                    let mut got = vec![0.0; n];
-                    w.whiten(&r, &mut got);
-                    for (i, g) in got.iter().enumerate() {
-                        let mut want = 0.0;
-                        for (j, rj) in r.iter().enumerate().take(i + 1) {
-                            want += w.matrix()[(i, j)] * rj;
-                        }
-                        assert_eq!(g.to_bits(), want.to_bits(), "n {n}, case {case}, row {i}");
-                    }
+                    assert_whitens_as_the_triangular_product(
+                        &w,
+                        &r,
+                        &format!("n {n}, case {case}"),
+                    );
                 }
             }
         }
