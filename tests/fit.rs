@@ -502,3 +502,109 @@ fn qr_workspace_matches_certified_values_and_the_svd_fit() {
         .to_string();
     assert!(e.contains("rank deficient"), "{e}");
 }
+
+// Source: NIST StRD linear regression, Norris (certified coefficients). The normal-equation
+// solver of many small uncorrelated fits gives the certified line, and with row weights the
+// SVD fit's weighted solution; a weighted constant is the weighted mean (definition of the
+// weighted least-squares constant).
+#[test]
+fn uncorrelated_small_fits_match_certified_values_and_the_svd_fit() {
+    let (x, y) = data("Norris");
+    let n = y.len();
+    let design = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { x[i] });
+    let mut small = linear::Uncorrelated::new(n, 2).unwrap();
+    let mut p = [0.0; 2];
+    assert!(small.try_solve(&design, &y, &vec![1.0; n], &mut p));
+    let c = certified("Norris");
+    assert_relative_eq!(p[0], c["B0"].0, max_relative = 1e-9);
+    assert_relative_eq!(p[1], c["B1"].0, max_relative = 1e-9);
+
+    // Row weights r_i = 1/sigma_i: the SVD fit with diagonal weights, to 1e-12.
+    let sigmas: Vec<f64> = (0..n).map(|i| 0.5 + 0.1 * (i % 7) as f64).collect();
+    let r: Vec<f64> = sigmas.iter().map(|s| 1.0 / s).collect();
+    assert!(small.try_solve(&design, &y, &r, &mut p));
+    let svd = linear::fit(&design, &y, &Weights::diagonal(&sigmas), &[]).unwrap();
+    for (a, b) in p.iter().zip(&svd.params) {
+        assert_relative_eq!(*a, *b, max_relative = 1e-12);
+    }
+
+    // A two-state-like design of four columns (exponentials of two gaps), unequal weights:
+    // the SVD fit to 1e-12 relative.
+    let pts: Vec<(f64, f64)> = [8.0, 10.0, 12.0, 14.0, 16.0]
+        .iter()
+        .flat_map(|&ts: &f64| (2..=(ts as i32 - 2)).map(move |t| (ts, t as f64)))
+        .collect();
+    let m = pts.len();
+    let (gi, gf) = (0.31, 0.27);
+    let design = DMatrix::from_fn(m, 4, |i, j| {
+        let (ts, tau) = pts[i];
+        let (ei, ef) = ((-gi * tau).exp(), (-gf * (ts - tau)).exp());
+        [1.0, ei, ef, ei * ef][j] * (1.0 + 0.02 * tau / ts)
+    });
+    let yv: Vec<f64> = (0..m)
+        .map(|i| 1.2 - 0.3 * design[(i, 1)] + 0.2 * design[(i, 2)] + 0.001 * ((i * 7) % 5) as f64)
+        .collect();
+    let sig: Vec<f64> = (0..m)
+        .map(|i| 0.01 * (1.0 + 0.3 * (i % 4) as f64))
+        .collect();
+    let r: Vec<f64> = sig.iter().map(|s| 1.0 / s).collect();
+    let mut small = linear::Uncorrelated::new(m, 4).unwrap();
+    let mut p = [0.0; 4];
+    assert!(small.try_solve(&design, &yv, &r, &mut p));
+    let w = Weights::diagonal(&sig);
+    let svd = linear::fit(&design, &yv, &w, &[]).unwrap();
+    let mut qr = [0.0; 4];
+    linear::Workspace::new(m, 4)
+        .solve(&design, &yv, &w, &mut qr)
+        .unwrap();
+    // Norm-wise: the largest parameter sets the scale (a small one carries the absolute
+    // rounding of the others); the QR path's own distance from the SVD is the yardstick.
+    let dist = |x: &[f64]| {
+        x.iter()
+            .zip(&svd.params)
+            .map(|(a, b)| (a - b).abs())
+            .fold(0.0, f64::max)
+            / svd.params.iter().map(|v| v.abs()).fold(0.0, f64::max)
+    };
+    assert!(dist(&qr) < 1e-12, "{}", dist(&qr));
+    assert!(dist(&p) < 1e-12, "{}", dist(&p));
+
+    // A constant with weights r_i^2 is the weighted mean.
+    let vals = [1.0, 1.3, 0.8, 1.1];
+    let r = [1.0, 2.0, 0.5, 1.5];
+    let mut small = linear::Uncorrelated::new(4, 1).unwrap();
+    let mut c1 = [0.0];
+    assert!(small.try_solve(&DMatrix::from_element(4, 1, 1.0), &vals, &r, &mut c1));
+    let mean = vals.iter().zip(&r).map(|(v, r)| r * r * v).sum::<f64>()
+        / r.iter().map(|r| r * r).sum::<f64>();
+    assert_relative_eq!(c1[0], mean, max_relative = 1e-14);
+}
+
+// What the normal equations leave to the QR path: more than four parameters (Longley's
+// seven), a non-finite value, a rank-deficient or badly conditioned design (columns nearly
+// parallel, pivot span above MAX_PIVOT_SPAN), mismatched sizes.
+#[test]
+fn uncorrelated_small_fits_leave_hard_cases_to_qr() {
+    assert!(linear::Uncorrelated::new(16, 7).is_none());
+    assert!(linear::Uncorrelated::new(16, 0).is_none());
+    assert!(linear::Uncorrelated::new(2, 3).is_none());
+    let mut small = linear::Uncorrelated::new(5, 2).unwrap();
+    let mut p = [0.0; 2];
+    let ones = [1.0; 5];
+    let line = DMatrix::from_fn(5, 2, |i, j| if j == 0 { 1.0 } else { i as f64 });
+    let mut bad = [1.0, 2.0, 3.0, 4.0, 5.0];
+    assert!(small.try_solve(&line, &bad, &ones, &mut p));
+    bad[2] = f64::NAN;
+    assert!(!small.try_solve(&line, &bad, &ones, &mut p));
+    let mut r = ones;
+    r[1] = f64::INFINITY;
+    assert!(!small.try_solve(&line, &[1.0; 5], &r, &mut p));
+    let parallel = DMatrix::from_fn(5, 2, |i, _| i as f64 + 1.0);
+    assert!(!small.try_solve(&parallel, &[1.0; 5], &ones, &mut p));
+    // Columns differing by 1e-6 relative: condition about 1e6, above the span.
+    let near = DMatrix::from_fn(5, 2, |i, j| {
+        (i as f64 + 1.0) * (1.0 + 1e-6 * (j * i) as f64)
+    });
+    assert!(!small.try_solve(&near, &[1.0; 5], &ones, &mut p));
+    assert!(!small.try_solve(&line, &[1.0; 4], &ones, &mut p));
+}

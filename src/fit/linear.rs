@@ -299,6 +299,149 @@ impl Workspace {
     }
 }
 
+/// Many small weighted least-squares fits with uncorrelated weights (at most
+/// [`Uncorrelated::MAX_PARAMS`] parameters): the plateau, summation and fixed-gap two-state
+/// fits of every resample, each with its own row weights. Each is solved by the normal
+/// equations of the column-scaled whitened design, `B^T B x = B^T c` with `B = diag(r) A` and
+/// `c = diag(r) y`, by Cholesky, followed by one step of iterative refinement on the residual
+/// (the corrected semi-normal equations of Björck, "Numerical Methods for Least Squares
+/// Problems", SIAM 1996, §2.2.5 and §6.6.5), in one pass over the rows. That is accurate to
+/// about the condition number of `B` times the machine epsilon as long as the squared
+/// condition number times the epsilon stays well below one, so a fit whose column-scaled
+/// Cholesky pivots span more than [`Uncorrelated::MAX_PIVOT_SPAN`] (or with anything not
+/// finite) is left to [`Workspace`]'s QR, which also decides and words every error: the
+/// results agree with it to rounding (unit tests below).
+#[derive(Clone, Debug)]
+pub struct Uncorrelated {
+    n: usize,
+    k: usize,
+    /// The whitened design `B`, column-major, kept for the refinement.
+    b: Vec<f64>,
+    /// The whitened data `c`.
+    c: Vec<f64>,
+}
+
+impl Uncorrelated {
+    /// Most parameters handled (the two-state fit's four).
+    pub const MAX_PARAMS: usize = 4;
+    /// Largest ratio of the column-scaled Cholesky pivots (a condition number of the scaled
+    /// design) solved here; above it the QR path decides.
+    pub const MAX_PIVOT_SPAN: f64 = 1e4;
+
+    /// Buffers for `n` points and `k` parameters; `None` unless `1 <= k <= MAX_PARAMS` and
+    /// `n >= k`.
+    pub fn new(n: usize, k: usize) -> Option<Uncorrelated> {
+        ((1..=Self::MAX_PARAMS).contains(&k) && n >= k).then(|| Uncorrelated {
+            n,
+            k,
+            b: vec![0.0; n * k],
+            c: vec![0.0; n],
+        })
+    }
+
+    /// Solve `min sum_i (r_i (design x - y)_i)^2` into `out`; `false` (with `out` unspecified)
+    /// when the fit is left to the QR path: sizes that do not match, a non-finite value, a
+    /// singular or badly conditioned scaled design.
+    pub fn try_solve(
+        &mut self,
+        design: &DMatrix<f64>,
+        y: &[f64],
+        row_weights: &[f64],
+        out: &mut [f64],
+    ) -> bool {
+        let n = self.n;
+        if design.shape() != (n, self.k)
+            || y.len() != n
+            || row_weights.len() != n
+            || out.len() != self.k
+        {
+            return false;
+        }
+        match self.k {
+            1 => self.solve_k::<1>(design.as_slice(), y, row_weights, out),
+            2 => self.solve_k::<2>(design.as_slice(), y, row_weights, out),
+            3 => self.solve_k::<3>(design.as_slice(), y, row_weights, out),
+            4 => self.solve_k::<4>(design.as_slice(), y, row_weights, out),
+            _ => false,
+        }
+    }
+
+    fn solve_k<const K: usize>(
+        &mut self,
+        a: &[f64],
+        y: &[f64],
+        r: &[f64],
+        out: &mut [f64],
+    ) -> bool {
+        let n = self.n;
+        // One pass over the rows: B, c, the upper triangle of B^T B and B^T c.
+        let mut g = [[0.0f64; K]; K];
+        let mut h = [0.0f64; K];
+        for i in 0..n {
+            let ri = r[i];
+            let mut row = [0.0f64; K];
+            for (j, v) in row.iter_mut().enumerate() {
+                *v = ri * a[j * n + i];
+                self.b[j * n + i] = *v;
+            }
+            let ci = ri * y[i];
+            self.c[i] = ci;
+            for j in 0..K {
+                h[j] += row[j] * ci;
+                for l in j..K {
+                    g[j][l] += row[j] * row[l];
+                }
+            }
+        }
+        // Column scaling to unit diagonal, then Cholesky of the scaled Gram matrix.
+        let mut scale = [0.0f64; K];
+        for (j, s) in scale.iter_mut().enumerate() {
+            let d = g[j][j];
+            if !(d > 0.0 && d.is_finite()) {
+                return false;
+            }
+            *s = d.sqrt();
+        }
+        let gram = nalgebra::SMatrix::<f64, K, K>::from_fn(|j, l| {
+            let (p, q) = if j <= l { (j, l) } else { (l, j) };
+            g[p][q] / (scale[p] * scale[q])
+        });
+        let Some(chol) = gram.cholesky() else {
+            return false;
+        };
+        let pivots = chol.l_dirty().diagonal();
+        let (lo, hi) = pivots.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &p| {
+            (lo.min(p), hi.max(p))
+        });
+        if !(lo > 0.0 && hi.is_finite() && lo * Self::MAX_PIVOT_SPAN >= hi) {
+            return false;
+        }
+        let rhs = nalgebra::SVector::<f64, K>::from_fn(|j, _| h[j] / scale[j]);
+        let z = chol.solve(&rhs);
+        let mut x = [0.0f64; K];
+        for j in 0..K {
+            x[j] = z[j] / scale[j];
+        }
+        // One refinement step: the residual in the original (whitened) rows.
+        let mut h2 = [0.0f64; K];
+        for i in 0..n {
+            let mut res = self.c[i];
+            for (j, xj) in x.iter().enumerate() {
+                res -= self.b[j * n + i] * xj;
+            }
+            for (j, hj) in h2.iter_mut().enumerate() {
+                *hj += self.b[j * n + i] * res;
+            }
+        }
+        let rhs = nalgebra::SVector::<f64, K>::from_fn(|j, _| h2[j] / scale[j]);
+        let dz = chol.solve(&rhs);
+        for (j, o) in out.iter_mut().enumerate() {
+            *o = x[j] + dz[j] / scale[j];
+        }
+        out.iter().all(|v| v.is_finite())
+    }
+}
+
 /// Correlated constant fit `y_i = c` (the plateau, docs/methods.md §4).
 pub fn constant(y: &[f64], w: &Weights) -> Result<LinearFit> {
     fit(&DMatrix::from_element(y.len(), 1, 1.0), y, w, &[])

@@ -264,6 +264,13 @@ impl Weights {
         self.condition
     }
 
+    /// The diagonal of `W` when the weights are uncorrelated (every entry of `W` off its
+    /// diagonal exactly zero), else `None`.
+    pub fn diagonal_factors(&self) -> Option<Vec<f64>> {
+        self.diagonal
+            .then(|| self.whitening.diagonal().iter().copied().collect())
+    }
+
     /// The whitening matrix `W` (`W^T W = Cov^{-1}`).
     pub fn matrix(&self) -> &DMatrix<f64> {
         &self.whitening

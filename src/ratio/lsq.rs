@@ -146,7 +146,10 @@ pub(crate) fn fit_resampled(
 }
 
 /// Every resample solved on its own (buffers allocated once per fit), its design and data
-/// rows divided by its scales when given.
+/// rows divided by its scales when given. Uncorrelated weights with at most four parameters
+/// (every fit of the stage with the default weights) go through [`linear::Uncorrelated`]'s
+/// normal equations; a fit it leaves, and correlated weights, through [`linear::Workspace`]'s
+/// QR, which decides every error.
 fn per_sample(
     points: &[Resampled],
     design: &Design<'_>,
@@ -155,30 +158,53 @@ fn per_sample(
     what: &str,
 ) -> Result<Vec<Vec<f64>>> {
     let params = design.n_params();
+    let n = points.len();
     let n_samples = points.first().map_or(0, Resampled::len);
     let mut per_param = vec![Vec::with_capacity(n_samples); params];
-    let mut y = vec![0.0; points.len()];
-    let mut a = DMatrix::zeros(points.len(), params);
+    let mut y = vec![0.0; n];
+    let mut a = DMatrix::zeros(n, params);
+    if let Design::Fixed(fixed) = design {
+        a.copy_from(fixed);
+    }
     let mut x = vec![0.0; params];
-    let mut work = linear::Workspace::new(points.len(), params);
+    let mut qr = linear::Workspace::new(n, params);
+    let mut scaled = (DMatrix::zeros(0, 0), Vec::new());
+    let mut fast = w
+        .diagonal_factors()
+        .and_then(|d| linear::Uncorrelated::new(n, params).map(|f| (f, d, vec![0.0; n])));
     for s in 0..n_samples {
         for (y, p) in y.iter_mut().zip(points) {
             *y = p.samples[s];
         }
-        match design {
-            Design::Fixed(fixed) => a.copy_from(fixed),
-            Design::PerSample { fill, .. } => fill(Some(s), &mut a),
+        if let Design::PerSample { fill, .. } = design {
+            fill(Some(s), &mut a);
         }
-        if let Some(scales) = scales {
-            for (i, point_scales) in scales.iter().enumerate() {
-                let f = 1.0 / point_scales[s];
-                y[i] *= f;
-                for c in 0..params {
-                    a[(i, c)] *= f;
+        let solved = fast.as_mut().is_some_and(|(solver, d, r)| {
+            match scales {
+                Some(scales) => {
+                    for ((r, d), point_scales) in r.iter_mut().zip(d.iter()).zip(scales) {
+                        *r = d * (1.0 / point_scales[s]);
+                    }
+                }
+                None => r.copy_from_slice(d),
+            }
+            solver.try_solve(&a, &y, r, &mut x)
+        });
+        if !solved {
+            let (a_s, y_s) = &mut scaled;
+            a_s.clone_from(&a);
+            y_s.clone_from(&y);
+            if let Some(scales) = scales {
+                for (i, point_scales) in scales.iter().enumerate() {
+                    let f = 1.0 / point_scales[s];
+                    y_s[i] *= f;
+                    for c in 0..params {
+                        a_s[(i, c)] *= f;
+                    }
                 }
             }
+            qr.solve(a_s, y_s, w, &mut x).map_err(wrap(what))?;
         }
-        work.solve(&a, &y, w, &mut x).map_err(wrap(what))?;
         for (out, v) in per_param.iter_mut().zip(&x) {
             out.push(*v);
         }
