@@ -228,8 +228,8 @@ pub(super) fn add_points(
         let ts = tsep as usize;
         let c3re = plan.mean(series.re_at(t));
         let c3im = plan.mean(series.im_at(t));
-        let product = Resampled::combine(
-            &[
+        let product = Resampled::combine_array(
+            [
                 &c2i[ts - t],
                 &c2f[t],
                 &c2f[ts],
@@ -249,7 +249,7 @@ pub(super) fn add_points(
                 continue;
             }
         }
-        let factor = Resampled::combine(&[&product, &c2f[ts]], |x| x[0].abs().sqrt() / x[1]);
+        let factor = Resampled::combine_array([&product, &c2f[ts]], |x| x[0].abs().sqrt() / x[1]);
         let value = ReIm {
             re: &c3re * &factor,
             im: &c3im * &factor,

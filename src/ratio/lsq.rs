@@ -14,7 +14,9 @@
 use super::{FitQuality, ReIm, ReImFit, STAGE};
 use crate::fit::{linear, Weights};
 use crate::resample::covariance::{estimate_with_bins, CovarianceOptions};
-use crate::resample::{ResamplePlan, Resampled, Scheme};
+#[cfg(test)]
+use crate::resample::ResamplePlan;
+use crate::resample::{stable_mean, Resampled, Scheme};
 use crate::{Error, Result};
 use nalgebra::DMatrix;
 
@@ -76,23 +78,52 @@ pub(crate) fn jackknife_sample_scales(points: &[Resampled]) -> Option<Vec<Vec<f6
         return None;
     }
     let n = first.len();
-    let plan = ResamplePlan::jackknife(n);
-    let k = n as f64 - 1.0;
+    let mut pseudo = vec![0.0; n];
     let per_point: Vec<Vec<f64>> = points
         .iter()
-        .map(|p| {
-            let pseudo: Vec<f64> = p
-                .samples
-                .iter()
-                .map(|x| p.central + k * (p.central - x))
-                .collect();
-            plan.sample_error_scales(&pseudo)
-        })
+        .map(|p| pseudo_value_scales(p, &mut pseudo))
         .collect();
     let finite = per_point
         .iter()
         .all(|s| s.len() == n && s.iter().all(|v| v.is_finite() && *v > 0.0));
     finite.then_some(per_point)
+}
+
+/// [`ResamplePlan::sample_error_scales`] of the jackknife pseudo-values of `p` (`pseudo`: a
+/// buffer of one value per sample), the same operations in one function: the pseudo-values'
+/// mean, their leave-one-out variances about it, and the variance of all of them
+/// (`sum (x - m)^2 / (n - 1)`, the same sum of the same squares as the leave-one-out formula's
+/// `Q`), so the same bits (unit test below).
+fn pseudo_value_scales(p: &Resampled, pseudo: &mut [f64]) -> Vec<f64> {
+    let n = p.samples.len();
+    let k = n as f64 - 1.0;
+    for (y, x) in pseudo.iter_mut().zip(&p.samples) {
+        *y = p.central + k * (p.central - x);
+    }
+    let m = stable_mean(pseudo);
+    let q: f64 = pseudo.iter().map(|v| (v - m) * (v - m)).sum();
+    let s2 = q / k;
+    if s2.is_nan() || s2 <= 0.0 {
+        return pseudo
+            .iter()
+            .map(|v| {
+                let d = v - m;
+                let var = ((q - d * d - d * d / k) / (k - 1.0)).max(0.0);
+                if var.is_nan() {
+                    var
+                } else {
+                    1.0
+                }
+            })
+            .collect();
+    }
+    pseudo
+        .iter()
+        .map(|v| {
+            let d = v - m;
+            (((q - d * d - d * d / k) / (k - 1.0)).max(0.0) / s2).sqrt()
+        })
+        .collect()
 }
 
 /// Fit `points` with `design`, weights `w` (their correlations frozen). With `scales` (per
@@ -298,6 +329,16 @@ mod tests {
         let points: Vec<Resampled> = data.iter().map(|x| plan.mean(x)).collect();
         // Identity: the jackknife pseudo-values of a mean are its bins.
         let scales = jackknife_sample_scales(&points).expect("jackknife scales");
+        // The fused computation gives the plan's scales of the pseudo-values bit for bit.
+        for (s, p) in scales.iter().zip(&points) {
+            let pseudo: Vec<f64> = p
+                .samples
+                .iter()
+                .map(|x| p.central + (n as f64 - 1.0) * (p.central - x))
+                .collect();
+            let want = plan.sample_error_scales(&pseudo);
+            assert!(s.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits()));
+        }
         for (s, x) in scales.iter().zip(&data) {
             for (a, b) in s.iter().zip(plan.sample_error_scales(x)) {
                 assert_relative_eq!(*a, b, max_relative = 1e-9);

@@ -30,4 +30,5 @@ pub mod robust;
 pub mod value;
 
 pub use plan::{Part, ResamplePlan};
+pub(crate) use value::stable_mean;
 pub use value::{covariance_of, fmt_value_error, Resampled, Scheme, Summary};

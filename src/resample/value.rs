@@ -254,6 +254,25 @@ impl Resampled {
         Resampled::new(central, samples, first.scheme)
     }
 
+    /// [`Resampled::combine`] for a fixed number of values, `f` taking them as an array: the
+    /// same values bit for bit (the same operations per sample), without a gather buffer or
+    /// bounds checks in the loop.
+    pub fn combine_array<const N: usize>(
+        values: [&Resampled; N],
+        f: impl Fn([f64; N]) -> f64,
+    ) -> Resampled {
+        let first = values[0];
+        let n = first.samples.len();
+        debug_assert!(values.iter().all(|v| v.samples.len() == n));
+        if values.iter().any(|v| v.samples.len() != n) {
+            return first.mismatched();
+        }
+        let central = f(values.map(|v| v.central));
+        let columns = values.map(|v| &v.samples[..n]);
+        let samples = (0..n).map(|s| f(columns.map(|c| c[s]))).collect();
+        Resampled::new(central, samples, first.scheme)
+    }
+
     /// [`Resampled::combine`] after checking that `values` is non-empty and shares one scheme
     /// and sample count; `what` names the values in the error message.
     pub fn try_combine(

@@ -242,48 +242,53 @@ impl<'a> Setup<'a> {
     }
 
     /// [`Setup::design`] written into `x` (`points` rows, [`Setup::n_params`] columns) without
-    /// allocating. `e^{-Delta t}` is evaluated once per integer time up to the largest `tsep`
-    /// (when that fits [`EXP_TABLE`]), not once per use: the same values bit for bit, since
-    /// `tau`, `tsep` and `tsep - tau` are the same integers either way.
+    /// allocating. `e^{-Delta t}` and the two-point factors `1 + a e^{-Delta t}` of `F2` are
+    /// evaluated once per integer time up to the largest `tsep` (when that fits
+    /// [`EXP_TABLE`]), not once per use: the same values bit for bit, since `tau`, `tsep` and
+    /// `tsep - tau` are the same integers either way and every factor is the same operation
+    /// on the same exponential.
     pub fn design_into(&self, g: Gaps, x: &mut DMatrix<f64>) {
         let t_max = self.points.iter().map(|p| p.tsep).max().unwrap_or(0) as usize;
         let tabulated = t_max < EXP_TABLE && self.points.iter().all(|p| p.tau <= p.tsep);
-        let (mut table_i, mut table_f) = ([0.0; EXP_TABLE], [0.0; EXP_TABLE]);
-        if tabulated {
-            for t in 0..=t_max {
-                table_i[t] = (-g.d_i * t as f64).exp();
-                table_f[t] = (-g.d_f * t as f64).exp();
+        if !tabulated {
+            let exp_i = |t: f64| (-g.d_i * t).exp();
+            let exp_f = |t: f64| (-g.d_f * t).exp();
+            for (row, p) in self.points.iter().enumerate() {
+                let (tsep, tau) = (p.tsep as f64, p.tau as f64);
+                let f = f2_with(tsep, tau, g, exp_i, exp_f);
+                self.write_row(x, row, f, exp_i(tau), exp_f(tsep - tau));
             }
+            return;
         }
-        // `t` is a whole number in 0..=t_max here (a time or a difference of two).
-        let exp_i = |t: f64| {
-            if tabulated {
-                table_i[t as usize]
-            } else {
-                (-g.d_i * t).exp()
-            }
-        };
-        let exp_f = |t: f64| {
-            if tabulated {
-                table_f[t as usize]
-            } else {
-                (-g.d_f * t).exp()
-            }
-        };
+        let (mut e_i, mut e_f) = ([0.0; EXP_TABLE], [0.0; EXP_TABLE]);
+        let (mut c_i, mut c_f) = ([0.0; EXP_TABLE], [0.0; EXP_TABLE]);
+        for t in 0..=t_max {
+            e_i[t] = (-g.d_i * t as f64).exp();
+            e_f[t] = (-g.d_f * t as f64).exp();
+            c_i[t] = 1.0 + g.a_i * e_i[t];
+            c_f[t] = 1.0 + g.a_f * e_f[t];
+        }
         for (row, p) in self.points.iter().enumerate() {
-            let (tsep, tau) = (p.tsep as f64, p.tau as f64);
-            let f = f2_with(tsep, tau, g, exp_i, exp_f);
-            let ei = exp_i(tau);
-            let ef = exp_f(tsep - tau);
-            x[(row, 0)] = f;
-            if self.symmetric {
-                x[(row, 1)] = f * (ei + ef);
-                x[(row, 2)] = f * ei * ef;
-            } else {
-                x[(row, 1)] = f * ei;
-                x[(row, 2)] = f * ef;
-                x[(row, 3)] = f * ei * ef;
-            }
+            let (ts, tau) = (p.tsep as usize, p.tau as usize);
+            let d = ts - tau;
+            // f2_with's expression, term for term.
+            let root = (c_i[d] * c_f[tau] * c_f[ts]) / (c_f[d] * c_i[tau] * c_i[ts]);
+            let f = root.abs().sqrt() / c_f[ts];
+            self.write_row(x, row, f, e_i[tau], e_f[d]);
+        }
+    }
+
+    /// Row `row` of the design: `F2 * (1, e_i, e_f, e_i e_f)`, or `F2 * (1, e_i + e_f, e_i e_f)`
+    /// when symmetric.
+    fn write_row(&self, x: &mut DMatrix<f64>, row: usize, f: f64, ei: f64, ef: f64) {
+        x[(row, 0)] = f;
+        if self.symmetric {
+            x[(row, 1)] = f * (ei + ef);
+            x[(row, 2)] = f * ei * ef;
+        } else {
+            x[(row, 1)] = f * ei;
+            x[(row, 2)] = f * ef;
+            x[(row, 3)] = f * ei * ef;
         }
     }
 }
