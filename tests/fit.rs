@@ -608,3 +608,59 @@ fn uncorrelated_small_fits_leave_hard_cases_to_qr() {
     assert!(!small.try_solve(&near, &[1.0; 5], &ones, &mut p));
     assert!(!small.try_solve(&line, &[1.0; 4], &ones, &mut p));
 }
+
+// Source: NIST StRD linear regression, Norris (certified coefficients), as above: every
+// resample of a fixed design solved at once gives, for resamples with equal weights, the
+// certified line, and for resamples with their own weights the per-resample solver's values
+// (itself checked against the SVD fit above) to rounding; a resample it cannot take (a NaN
+// datum) is marked for the QR path and the others are unaffected.
+#[test]
+fn fixed_design_batch_matches_certified_values_and_the_per_resample_solver() {
+    let (x, y) = data("Norris");
+    let n = y.len();
+    let design = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { x[i] });
+    let m = 6;
+    // Point i in resample s: y_i shifted by a small, irregular amount (resample 0: y itself).
+    let ys: Vec<Vec<f64>> = (0..n)
+        .map(|i| {
+            (0..m)
+                .map(|s| y[i] + 0.01 * s as f64 * (((i * 7 + s * 3) % 5) as f64 - 2.0))
+                .collect()
+        })
+        .collect();
+    let rs: Vec<Vec<f64>> = (0..n)
+        .map(|i| {
+            (0..m)
+                .map(|s| {
+                    if s == 0 {
+                        1.0
+                    } else {
+                        1.0 + 0.05 * ((i + s) % 4) as f64
+                    }
+                })
+                .collect()
+        })
+        .collect();
+    let mut ys_bad = ys.clone();
+    ys_bad[3][4] = f64::NAN;
+    let yrefs: Vec<&[f64]> = ys_bad.iter().map(Vec::as_slice).collect();
+    let rrefs: Vec<&[f64]> = rs.iter().map(Vec::as_slice).collect();
+    let mut out = vec![Vec::new(); 2];
+    let solved = linear::solve_fixed_uncorrelated(&design, &yrefs, &rrefs, &mut out);
+    assert_eq!(solved, vec![true, true, true, true, false, true]);
+    let c = certified("Norris");
+    assert_relative_eq!(out[0][0], c["B0"].0, max_relative = 1e-9);
+    assert_relative_eq!(out[1][0], c["B1"].0, max_relative = 1e-9);
+    let mut one = linear::Uncorrelated::new(n, 2).unwrap();
+    for s in [1, 2, 3, 5] {
+        let yv: Vec<f64> = ys.iter().map(|v| v[s]).collect();
+        let rv: Vec<f64> = rs.iter().map(|v| v[s]).collect();
+        let mut p = [0.0; 2];
+        assert!(one.try_solve(&design, &yv, &rv, &mut p));
+        assert_relative_eq!(out[0][s], p[0], max_relative = 1e-11);
+        assert_relative_eq!(out[1][s], p[1], max_relative = 1e-12);
+    }
+    // Sizes that do not match leave every resample to the caller.
+    let solved = linear::solve_fixed_uncorrelated(&design, &yrefs[1..], &rrefs[1..], &mut out);
+    assert!(solved.iter().all(|ok| !ok));
+}

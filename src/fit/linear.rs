@@ -393,35 +393,9 @@ impl Uncorrelated {
                 }
             }
         }
-        // Column scaling to unit diagonal, then Cholesky of the scaled Gram matrix.
-        let mut scale = [0.0f64; K];
-        for (j, s) in scale.iter_mut().enumerate() {
-            let d = g[j][j];
-            if !(d > 0.0 && d.is_finite()) {
-                return false;
-            }
-            *s = d.sqrt();
-        }
-        let gram = nalgebra::SMatrix::<f64, K, K>::from_fn(|j, l| {
-            let (p, q) = if j <= l { (j, l) } else { (l, j) };
-            g[p][q] / (scale[p] * scale[q])
-        });
-        let Some(chol) = gram.cholesky() else {
+        let Some((chol, scale, x)) = factor_and_solve::<K>(&g, &h) else {
             return false;
         };
-        let pivots = chol.l_dirty().diagonal();
-        let (lo, hi) = pivots.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &p| {
-            (lo.min(p), hi.max(p))
-        });
-        if !(lo > 0.0 && hi.is_finite() && lo * Self::MAX_PIVOT_SPAN >= hi) {
-            return false;
-        }
-        let rhs = nalgebra::SVector::<f64, K>::from_fn(|j, _| h[j] / scale[j]);
-        let z = chol.solve(&rhs);
-        let mut x = [0.0f64; K];
-        for j in 0..K {
-            x[j] = z[j] / scale[j];
-        }
         // One refinement step: the residual in the original (whitened) rows.
         let mut h2 = [0.0f64; K];
         for i in 0..n {
@@ -440,6 +414,163 @@ impl Uncorrelated {
         }
         out.iter().all(|v| v.is_finite())
     }
+}
+
+/// Every resample of a fit whose design is the same for all of them and whose uncorrelated
+/// weights differ per resample (the plateau and summation fits of a jackknife run, each
+/// resample weighting its points by its own errors): [`Uncorrelated`]'s normal equations and
+/// refinement step for all resamples at once. `y[i]` holds point `i`'s value in every
+/// resample, `r[i]` its row weight in every resample (all of one length `m`); on return
+/// `out[j][s]` is parameter `j` of resample `s` where `solved[s]` is true. A resample left
+/// unsolved (the cases [`Uncorrelated::try_solve`] leaves, or sizes that do not match) is for
+/// the caller's QR path. The sums over points run in point order, the same for every
+/// resample, so results do not depend on how work is split.
+pub fn solve_fixed_uncorrelated(
+    design: &DMatrix<f64>,
+    y: &[&[f64]],
+    r: &[&[f64]],
+    out: &mut [Vec<f64>],
+) -> Vec<bool> {
+    let m = y.first().map_or(0, |v| v.len());
+    let (n, k) = design.shape();
+    let fits = y.len() == n
+        && r.len() == n
+        && out.len() == k
+        && y.iter().chain(r).all(|v| v.len() == m)
+        && n >= k;
+    if !fits {
+        return vec![false; m];
+    }
+    for o in out.iter_mut() {
+        o.clear();
+        o.resize(m, 0.0);
+    }
+    match k {
+        1 => fixed_batch::<1>(design, y, r, out),
+        2 => fixed_batch::<2>(design, y, r, out),
+        3 => fixed_batch::<3>(design, y, r, out),
+        4 => fixed_batch::<4>(design, y, r, out),
+        _ => vec![false; m],
+    }
+}
+
+/// [`solve_fixed_uncorrelated`] for `K` parameters: the Gram matrices `sum_i r_i^2 a_i a_i^T`
+/// and right-hand sides of every resample accumulated point by point (one pass of `axpy`s
+/// over the resamples), then per resample [`Uncorrelated`]'s column scaling, Cholesky and pivot
+/// check, then one refinement pass over the points.
+fn fixed_batch<const K: usize>(
+    design: &DMatrix<f64>,
+    y: &[&[f64]],
+    r: &[&[f64]],
+    out: &mut [Vec<f64>],
+) -> Vec<bool> {
+    let m = y[0].len();
+    let n = design.nrows();
+    let pairs: Vec<(usize, usize)> = (0..K).flat_map(|j| (j..K).map(move |l| (j, l))).collect();
+    let mut gram = vec![vec![0.0; m]; pairs.len()];
+    let mut rhs = vec![vec![0.0; m]; K];
+    let mut w = vec![0.0; m];
+    let mut wy = vec![0.0; m];
+    for i in 0..n {
+        for ((w, wy), (ri, yi)) in w.iter_mut().zip(wy.iter_mut()).zip(r[i].iter().zip(y[i])) {
+            *w = ri * ri;
+            *wy = *w * yi;
+        }
+        for (g, &(j, l)) in gram.iter_mut().zip(&pairs) {
+            let p = design[(i, j)] * design[(i, l)];
+            g.iter_mut().zip(&w).for_each(|(g, w)| *g += w * p);
+        }
+        for (h, j) in rhs.iter_mut().zip(0..K) {
+            let a = design[(i, j)];
+            h.iter_mut().zip(&wy).for_each(|(h, wy)| *h += wy * a);
+        }
+    }
+    type Factor<const K: usize> = (nalgebra::Cholesky<f64, nalgebra::Const<K>>, [f64; K]);
+    let mut factors: Vec<Option<Factor<K>>> = Vec::with_capacity(m);
+    for s in 0..m {
+        let mut g = [[0.0f64; K]; K];
+        for (e, &(j, l)) in pairs.iter().enumerate() {
+            g[j][l] = gram[e][s];
+        }
+        let h: [f64; K] = std::array::from_fn(|j| rhs[j][s]);
+        let solved = factor_and_solve::<K>(&g, &h);
+        if let Some((_, _, x)) = &solved {
+            for (o, xj) in out.iter_mut().zip(x) {
+                o[s] = *xj;
+            }
+        }
+        factors.push(solved.map(|(chol, scale, _)| (chol, scale)));
+    }
+    // One refinement step: B^T (c - B x) = sum_i r_i^2 a_i (y_i - a_i . x), per resample.
+    for h in rhs.iter_mut() {
+        h.iter_mut().for_each(|v| *v = 0.0);
+    }
+    let mut res = vec![0.0; m];
+    for i in 0..n {
+        let a: [f64; K] = std::array::from_fn(|j| design[(i, j)]);
+        for (s, (res, (ri, yi))) in res.iter_mut().zip(r[i].iter().zip(y[i])).enumerate() {
+            let mut v = *yi;
+            for (j, aj) in a.iter().enumerate() {
+                v -= aj * out[j][s];
+            }
+            *res = ri * ri * v;
+        }
+        for (h, aj) in rhs.iter_mut().zip(a) {
+            h.iter_mut().zip(&res).for_each(|(h, res)| *h += res * aj);
+        }
+    }
+    let mut solved = vec![false; m];
+    for (s, f) in factors.iter().enumerate() {
+        let Some((chol, scale)) = f else {
+            continue;
+        };
+        let v = nalgebra::SVector::<f64, K>::from_fn(|j, _| rhs[j][s] / scale[j]);
+        let dz = chol.solve(&v);
+        let mut finite = true;
+        for (j, o) in out.iter_mut().enumerate() {
+            o[s] += dz[j] / scale[j];
+            finite &= o[s].is_finite();
+        }
+        solved[s] = finite;
+    }
+    solved
+}
+
+/// Column scaling, Cholesky and pivot check of the Gram matrix `g` (upper triangle), and the
+/// solution for right-hand side `h`: what [`Uncorrelated::try_solve`] does before its
+/// refinement. `None` where it leaves the fit to QR.
+fn factor_and_solve<const K: usize>(
+    g: &[[f64; K]; K],
+    h: &[f64; K],
+) -> Option<(
+    nalgebra::Cholesky<f64, nalgebra::Const<K>>,
+    [f64; K],
+    [f64; K],
+)> {
+    let mut scale = [0.0f64; K];
+    for (j, s) in scale.iter_mut().enumerate() {
+        let d = g[j][j];
+        if !(d > 0.0 && d.is_finite()) {
+            return None;
+        }
+        *s = d.sqrt();
+    }
+    let gram = nalgebra::SMatrix::<f64, K, K>::from_fn(|j, l| {
+        let (p, q) = if j <= l { (j, l) } else { (l, j) };
+        g[p][q] / (scale[p] * scale[q])
+    });
+    let chol = gram.cholesky()?;
+    let pivots = chol.l_dirty().diagonal();
+    let (lo, hi) = pivots.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &p| {
+        (lo.min(p), hi.max(p))
+    });
+    if !(lo > 0.0 && hi.is_finite() && lo * Uncorrelated::MAX_PIVOT_SPAN >= hi) {
+        return None;
+    }
+    let rhs = nalgebra::SVector::<f64, K>::from_fn(|j, _| h[j] / scale[j]);
+    let z = chol.solve(&rhs);
+    let x = std::array::from_fn(|j| z[j] / scale[j]);
+    Some((chol, scale, x))
 }
 
 /// Correlated constant fit `y_i = c` (the plateau, docs/methods.md §4).

@@ -200,10 +200,43 @@ fn per_sample(
     let mut x = vec![0.0; params];
     let mut qr = linear::Workspace::new(n, params);
     let mut scaled = (DMatrix::zeros(0, 0), Vec::new());
+    // A fixed design (plateau, summation) with uncorrelated weights and scales: every
+    // resample at once; only those it leaves go through the loop below.
+    let batch = match (design, scales, w.diagonal_factors()) {
+        (Design::Fixed(fixed), Some(scales), Some(d))
+            if params <= linear::Uncorrelated::MAX_PARAMS =>
+        {
+            let r: Vec<Vec<f64>> = scales
+                .iter()
+                .zip(&d)
+                .map(|(sc, d)| sc.iter().map(|v| d * (1.0 / v)).collect())
+                .collect();
+            let ys: Vec<&[f64]> = points.iter().map(|p| p.samples.as_slice()).collect();
+            let rs: Vec<&[f64]> = r.iter().map(Vec::as_slice).collect();
+            let solved = linear::solve_fixed_uncorrelated(fixed, &ys, &rs, &mut per_param);
+            Some(solved)
+        }
+        _ => None,
+    };
+    if let Some(solved) = &batch {
+        if solved.len() == n_samples && solved.iter().all(|&ok| ok) {
+            return Ok(per_param);
+        }
+        // The resamples left to the loop below are written in place.
+        for out in per_param.iter_mut() {
+            out.resize(n_samples, 0.0);
+        }
+    }
     let mut fast = w
         .diagonal_factors()
         .and_then(|d| linear::Uncorrelated::new(n, params).map(|f| (f, d, vec![0.0; n])));
     for s in 0..n_samples {
+        if batch
+            .as_ref()
+            .is_some_and(|solved| solved.get(s) == Some(&true))
+        {
+            continue;
+        }
         for (y, p) in y.iter_mut().zip(points) {
             *y = p.samples[s];
         }
@@ -237,7 +270,10 @@ fn per_sample(
             qr.solve(a_s, y_s, w, &mut x).map_err(wrap(what))?;
         }
         for (out, v) in per_param.iter_mut().zip(&x) {
-            out.push(*v);
+            match batch {
+                Some(_) => out[s] = *v,
+                None => out.push(*v),
+            }
         }
     }
     Ok(per_param)
