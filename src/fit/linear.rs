@@ -485,8 +485,7 @@ fn fixed_batch<const K: usize>(
             h.iter_mut().zip(&wy).for_each(|(h, wy)| *h += wy * a);
         }
     }
-    type Factor<const K: usize> = (nalgebra::Cholesky<f64, nalgebra::Const<K>>, [f64; K]);
-    let mut factors: Vec<Option<Factor<K>>> = Vec::with_capacity(m);
+    let mut factors: Vec<Option<(SmallCholesky<K>, [f64; K])>> = Vec::with_capacity(m);
     for s in 0..m {
         let mut g = [[0.0f64; K]; K];
         for (e, &(j, l)) in pairs.iter().enumerate() {
@@ -536,17 +535,16 @@ fn fixed_batch<const K: usize>(
     solved
 }
 
+/// The Cholesky factor of a `K x K` scaled Gram matrix.
+type SmallCholesky<const K: usize> = nalgebra::Cholesky<f64, nalgebra::Const<K>>;
+
 /// Column scaling, Cholesky and pivot check of the Gram matrix `g` (upper triangle), and the
 /// solution for right-hand side `h`: what [`Uncorrelated::try_solve`] does before its
 /// refinement. `None` where it leaves the fit to QR.
 fn factor_and_solve<const K: usize>(
     g: &[[f64; K]; K],
     h: &[f64; K],
-) -> Option<(
-    nalgebra::Cholesky<f64, nalgebra::Const<K>>,
-    [f64; K],
-    [f64; K],
-)> {
+) -> Option<(SmallCholesky<K>, [f64; K], [f64; K])> {
     let mut scale = [0.0f64; K];
     for (j, s) in scale.iter_mut().enumerate() {
         let d = g[j][j];
