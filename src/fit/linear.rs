@@ -315,7 +315,7 @@ impl Workspace {
 pub struct Uncorrelated {
     n: usize,
     k: usize,
-    /// The whitened design `B`, column-major, kept for the refinement.
+    /// The whitened design `B`, row-major, kept for the refinement.
     b: Vec<f64>,
     /// The whitened data `c`.
     c: Vec<f64>,
@@ -374,20 +374,30 @@ impl Uncorrelated {
         out: &mut [f64],
     ) -> bool {
         let n = self.n;
+        // B row-major (one row of K per point), so the passes below run over whole rows.
+        for (j, column) in a.chunks_exact(n).take(K).enumerate() {
+            for (row, v) in self.b.chunks_exact_mut(K).zip(column) {
+                row[j] = *v;
+            }
+        }
         // One pass over the rows: B, c, the upper triangle of B^T B and B^T c.
         let mut g = [[0.0f64; K]; K];
         let mut h = [0.0f64; K];
-        for i in 0..n {
-            let ri = r[i];
-            let mut row = [0.0f64; K];
-            for (j, v) in row.iter_mut().enumerate() {
-                *v = ri * a[j * n + i];
-                self.b[j * n + i] = *v;
+        for ((row, c), (ri, yi)) in self
+            .b
+            .chunks_exact_mut(K)
+            .zip(self.c.iter_mut())
+            .zip(r.iter().zip(y))
+        {
+            let Ok(row) = <&mut [f64; K]>::try_from(row) else {
+                return false;
+            };
+            for v in row.iter_mut() {
+                *v *= ri;
             }
-            let ci = ri * y[i];
-            self.c[i] = ci;
+            *c = ri * yi;
             for j in 0..K {
-                h[j] += row[j] * ci;
+                h[j] += row[j] * *c;
                 for l in j..K {
                     g[j][l] += row[j] * row[l];
                 }
@@ -398,13 +408,16 @@ impl Uncorrelated {
         };
         // One refinement step: the residual in the original (whitened) rows.
         let mut h2 = [0.0f64; K];
-        for i in 0..n {
-            let mut res = self.c[i];
-            for (j, xj) in x.iter().enumerate() {
-                res -= self.b[j * n + i] * xj;
+        for (row, c) in self.b.chunks_exact(K).zip(&self.c) {
+            let Ok(row) = <&[f64; K]>::try_from(row) else {
+                return false;
+            };
+            let mut res = *c;
+            for (bj, xj) in row.iter().zip(&x) {
+                res -= bj * xj;
             }
-            for (j, hj) in h2.iter_mut().enumerate() {
-                *hj += self.b[j * n + i] * res;
+            for (hj, bj) in h2.iter_mut().zip(row) {
+                *hj += bj * res;
             }
         }
         let rhs = nalgebra::SVector::<f64, K>::from_fn(|j, _| h2[j] / scale[j]);
