@@ -14,6 +14,7 @@ often it does. Rules (value; excited-state error), `d = M_all − M_late`, `σ_d
 error:
   default    two-state; excess of the summation − two-state difference over its noise
   late_stat  late; none (the late fit's statistical error alone)
+  late_excess late; sqrt(max(0, d² − σ_d²)) (the shift beyond its noise)
   late_full  late; |d|                (excited_states.two_state_late: true)
   late_max   late; max(|d|, σ_d)
   late_quad  late; sqrt(d² + σ_d²)
@@ -51,7 +52,7 @@ def analytic_factor(b, rho=RHO):
     return math.sqrt(2 * (0.5 + lag1 / (1 - rho ** b)))
 
 
-RULES = ['default', 'late_stat', 'late_full', 'late_max', 'late_quad']
+RULES = ['default', 'late_stat', 'late_excess', 'late_full', 'late_max', 'late_quad']
 SCALINGS = ['run', 'analytic', 'tq', 'tv']
 
 
@@ -128,7 +129,8 @@ def budget(variants, rule, scale=1.0, t=None):
                 d = ts[0] - late[0]
                 sd = jk_err(np.asarray(ts[1]) - s) * scale
                 e = {'late_full': abs(d), 'late_max': max(abs(d), sd),
-                     'late_quad': math.hypot(d, sd), 'late_stat': 0.0}[rule]
+                     'late_quad': math.hypot(d, sd), 'late_stat': 0.0,
+                     'late_excess': math.sqrt(max(0.0, d * d - sd * sd))}[rule]
         else:
             others = [o for o in (ts, su) if o is not None and o is not ref]
             e = max((math.sqrt(max(0.0, (o[0] - ref[0]) ** 2
