@@ -53,6 +53,7 @@
 
 mod accumulator;
 mod blocks;
+mod by_channel;
 mod digest;
 pub mod hdf5;
 pub mod inspect;
@@ -66,6 +67,7 @@ mod threept;
 mod twopt;
 mod write;
 
+pub use by_channel::{threept_by_channel, twopt_by_channel, ByChannel};
 pub use digest::FileDigest;
 pub use open::{not_a_regular_file, open_regular, read_text_file, MAX_SPEC_BYTES};
 pub use threept::{read_threept, read_threept_from};
