@@ -1,5 +1,6 @@
 //! The channel-by-channel scan behind `formfactory inspect`: what the text needs of each
-//! table, taken one channel at a time so that a packed file is never held whole.
+//! table, taken one channel at a time so that neither a packed file nor a CSV table grouped
+//! by channel is held whole.
 
 use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
@@ -18,8 +19,9 @@ const SMALL_T: usize = 3;
 /// What `formfactory inspect` describes: for each table read, its origin, size,
 /// configurations and channel keys, the warnings about each channel's values, and the
 /// Monte Carlo histories of the representative points (`resample::autocorr_check`). The
-/// values themselves are not kept: a packed file is walked one channel at a time into one
-/// reused buffer ([`read`]), so memory does not grow with the number of channels.
+/// values themselves are not kept: a packed file and a CSV table grouped by channel are read
+/// one channel at a time into one reused buffer ([`read`]), so memory does not grow with the
+/// data.
 pub struct Inspected {
     pub(super) two: Option<TwoScan>,
     pub(super) three: Option<ThreeScan>,
