@@ -39,7 +39,9 @@
 //! - The path `-` reads standard input.
 //!
 //! Writers ([`write_twopt`], [`write_threept`]) produce deterministic output that reads back
-//! to the same data. [`inspect`] summarises a data directory or table for the terminal.
+//! to the same data. [`inspect`] summarises a data directory or table for the terminal;
+//! it and `formfactory check` read a table one channel at a time ([`twopt_by_channel`],
+//! [`threept_by_channel`]) with the errors of the whole read.
 //!
 //! # Speed
 //! A row that continues the previous row's channel is matched on the raw bytes of its key
