@@ -115,12 +115,29 @@ pub fn convert(input: &Path, out: &Path, force: bool) -> Result<()> {
 pub fn inspect(path: &Path) -> Result<String> {
     let is_yaml = path.extension().is_some_and(|e| e == "yaml" || e == "yml");
     let data = if is_yaml {
-        let ds = read_input(path, &|_, _| {})?;
-        let three = ds.threept.unwrap_or_default();
-        io::inspect::from_data(path, ds.twopt, three)
+        inspect_pipeline(path)?
     } else {
         io::inspect::read(path)?
     };
     let autocorr = crate::resample::autocorr_check::check_points(data.points());
     Ok(io::inspect::render(&data, &autocorr))
+}
+
+/// What `inspect` shows of a pipeline's data: CSV tables read one channel at a time
+/// ([`io::inspect::read_tables`]) unless one comes from standard input or only the
+/// configurations common to both are kept; an HDF5 source, and those, read whole.
+fn inspect_pipeline(path: &Path) -> Result<io::inspect::Inspected> {
+    let plan = crate::pipeline::load(path, &[])?;
+    let opts = ReadOptions {
+        keep_common_configs: plan.spec.data.keep_common_configs,
+    };
+    let stdin = Path::new("-");
+    if plan.hdf5.is_none() && plan.twopt != stdin && plan.threept != stdin {
+        if let Some(data) = io::inspect::read_tables(path, &plan.twopt, &plan.threept, &opts)? {
+            return Ok(data);
+        }
+    }
+    let ds = crate::pipeline::read_source(&plan, &opts, &|_, _| {})?;
+    let three = ds.threept.unwrap_or_default();
+    Ok(io::inspect::from_data(path, ds.twopt, three))
 }

@@ -7,6 +7,7 @@ mod campaign;
 mod cli;
 mod closure;
 mod csv_blocks;
+mod csv_stream;
 mod data_checks;
 mod defaults;
 mod docs;

@@ -39,7 +39,9 @@
 //! - The path `-` reads standard input.
 //!
 //! Writers ([`write_twopt`], [`write_threept`]) produce deterministic output that reads back
-//! to the same data. [`inspect`] summarises a data directory or table for the terminal.
+//! to the same data. [`inspect`] summarises a data directory or table for the terminal;
+//! it and `formfactory check` read a table one channel at a time ([`twopt_by_channel`],
+//! [`threept_by_channel`]) with the errors of the whole read.
 //!
 //! # Speed
 //! A row that continues the previous row's channel is matched on the raw bytes of its key
@@ -53,6 +55,7 @@
 
 mod accumulator;
 mod blocks;
+mod by_channel;
 mod digest;
 pub mod hdf5;
 pub mod inspect;
@@ -66,6 +69,7 @@ mod threept;
 mod twopt;
 mod write;
 
+pub use by_channel::{threept_by_channel, twopt_by_channel, ByChannel};
 pub use digest::FileDigest;
 pub use open::{not_a_regular_file, open_regular, read_text_file, MAX_SPEC_BYTES};
 pub use threept::{read_threept, read_threept_from};

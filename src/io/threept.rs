@@ -3,7 +3,7 @@
 //! Time-axis rule: each channel (one `tsep`) has every insertion time `tau = 0..=tsep` for
 //! every configuration; `tau` outside `[0, tsep]` is an error at its row.
 
-use super::accumulator::{key_order, Accumulator, Summary};
+use super::accumulator::{key_order, Accumulator, Summary, Visit};
 use super::blocks::{open_rows, push_label, LocalKeys, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
@@ -100,35 +100,13 @@ fn current_names() -> String {
 }
 
 pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePointData, Summary)> {
-    let (header, rows) = open_rows(input, file, SCHEMA)?;
-    header.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
-    let parser = Parser {
-        with_source: header.index[SOURCE].is_some(),
-        with_flavor: header.index[FLAVOR].is_some(),
-        with_diagram: header.index[DIAGRAM].is_some(),
-    };
-    let mut acc = Accumulator::new(parser.with_source);
-    let mut keys: Vec<ThreePointKey> = Vec::new();
-    rows.for_each_batch(&header, &parser, |batch| {
-        batch.merge(&mut acc, &mut keys, &header, |k, tau| {
-            format!("three-point {} tau={tau}", super::describe_threept(k))
-        })
-    })?;
-    let file = header.file.clone();
+    let (acc, keys, file) = gather(input, file, None)?;
     if keys.is_empty() {
         return Err(no_data_rows(file));
     }
     let order = key_order(&keys);
     let n_t = |id: u32| keys[id as usize].tsep as usize + 1;
-    let done = acc.finish(&order, n_t, |id, tau, config, line| Error::Table {
-        path: file.clone(),
-        message: format!(
-            "missing row: three-point {} tau={tau} has no value for configuration {config} \
-             (channel first seen at line {line}); every channel needs tau = 0..=tsep for \
-             every configuration",
-            super::describe_threept(&keys[id as usize])
-        ),
-    })?;
+    let done = acc.finish(&order, n_t, missing_row(&file, &keys))?;
     let n_cfg = done.configs.len();
     let channels: BTreeMap<ThreePointKey, Series> = keys
         .into_iter()
@@ -145,6 +123,81 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(ThreePoint
         },
         done.summary,
     ))
+}
+
+/// Read a three-point table grouped by channel, handing each channel to `visit` when the
+/// next begins, with the errors of [`read_inner`]; `None` when the table is not grouped (as
+/// `twopt::read_grouped`).
+pub(crate) fn read_grouped<R: Read>(
+    input: R,
+    file: PathBuf,
+    visit: Visit<ThreePointKey>,
+) -> Result<Option<(Vec<i64>, Summary)>> {
+    let (acc, keys, file) = gather(input, file, Some(&mut *visit))?;
+    if acc.reappeared() {
+        return Ok(None);
+    }
+    if keys.is_empty() {
+        return Err(no_data_rows(file));
+    }
+    let order = key_order(&keys);
+    let n_t = |id: u32| keys[id as usize].tsep as usize + 1;
+    let missing = missing_row(&file, &keys);
+    let done = acc.finish_grouped(&order, n_t, missing, &mut |&id, s| {
+        visit(&keys[id as usize], s)
+    })?;
+    Ok(Some(done))
+}
+
+/// Read the rows of a table into an accumulator (its channels' keys by channel id, the
+/// file's name); with `visit`, a grouped one (as `twopt::gather`).
+fn gather<R: Read>(
+    input: R,
+    file: PathBuf,
+    mut visit: Option<Visit<ThreePointKey>>,
+) -> Result<(Accumulator, Vec<ThreePointKey>, PathBuf)> {
+    let (header, rows) = open_rows(input, file, SCHEMA)?;
+    header.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
+    let parser = Parser {
+        with_source: header.index[SOURCE].is_some(),
+        with_flavor: header.index[FLAVOR].is_some(),
+        with_diagram: header.index[DIAGRAM].is_some(),
+    };
+    let mut acc = match visit {
+        Some(_) => Accumulator::grouped(parser.with_source),
+        None => Accumulator::new(parser.with_source),
+    };
+    let mut keys: Vec<ThreePointKey> = Vec::new();
+    let read = rows.for_each_batch(&header, &parser, |batch| {
+        batch.merge(&mut acc, &mut keys, &header, |k, tau| {
+            format!("three-point {} tau={tau}", super::describe_threept(k))
+        })?;
+        match visit.as_mut() {
+            Some(v) => acc.close_ready(&mut |&id, s| v(&keys[id as usize], s)),
+            None => Ok(()),
+        }
+    });
+    if !acc.reappeared() {
+        read?;
+    }
+    Ok((acc, keys, header.file))
+}
+
+/// The error of the first missing value `(channel, tau, configuration, first line of the
+/// channel)`.
+fn missing_row<'a>(
+    file: &'a Path,
+    keys: &'a [ThreePointKey],
+) -> impl Fn(u32, usize, i64, u64) -> Error + 'a {
+    move |id, tau, config, line| Error::Table {
+        path: file.to_path_buf(),
+        message: format!(
+            "missing row: three-point {} tau={tau} has no value for configuration {config} \
+             (channel first seen at line {line}); every channel needs tau = 0..=tsep for \
+             every configuration",
+            super::describe_threept(&keys[id as usize])
+        ),
+    }
 }
 
 /// What the three-point table's header says about its rows.

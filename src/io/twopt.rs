@@ -3,7 +3,7 @@
 //! Time-axis rule: `T = max t + 1` over the whole table, and every channel must have every
 //! `t = 0..T-1` for every configuration.
 
-use super::accumulator::{key_order, Accumulator, Summary};
+use super::accumulator::{key_order, Accumulator, Summary, Visit};
 use super::blocks::{open_rows, push_label, LocalKeys, RowParser};
 use super::digest::{FileDigest, Hashing};
 use super::key_cache::KeyCache;
@@ -66,41 +66,18 @@ pub(crate) fn read_hashed(path: &Path) -> Result<(TwoPointData, Summary, FileDig
 }
 
 pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointData, Summary)> {
-    let (header, rows) = open_rows(input, file, SCHEMA)?;
-    header.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
-    let parser = Parser {
-        with_source: header.index[SOURCE].is_some(),
-        with_smear: header.index[SMEAR].is_some(),
-    };
-    let mut acc = Accumulator::new(parser.with_source);
-    let mut keys: Vec<TwoPointKey> = Vec::new();
-    let mut max_t: Option<u32> = None;
-    rows.for_each_batch(&header, &parser, |batch| {
-        max_t = max_t.max(batch.rows.iter().map(|r| r.t).max());
-        batch.merge(&mut acc, &mut keys, &header, |k, t| {
-            format!("two-point {} t={t}", super::describe_twopt(k))
-        })
-    })?;
-    let file = header.file.clone();
+    let Gathered {
+        acc,
+        keys,
+        file,
+        max_t,
+    } = gather(input, file, None)?;
     let Some(max_t) = max_t else {
         return Err(no_data_rows(file));
     };
     let n_t = max_t as usize + 1;
     let order = key_order(&keys);
-    let done = acc.finish(
-        &order,
-        |_| n_t,
-        |id, t, config, line| Error::Table {
-            path: file.clone(),
-            message: format!(
-                "missing row: two-point {} t={t} has no value for configuration {config} \
-                 (channel first seen at line {line}); every channel needs t = 0..{} \
-                 (T = max t + 1) for every configuration",
-                super::describe_twopt(&keys[id as usize]),
-                n_t - 1
-            ),
-        },
-    )?;
+    let done = acc.finish(&order, |_| n_t, missing_row(&file, &keys, n_t))?;
     let n_cfg = done.configs.len();
     let channels: BTreeMap<TwoPointKey, Series> = keys
         .into_iter()
@@ -114,6 +91,105 @@ pub(crate) fn read_inner<R: Read>(input: R, file: PathBuf) -> Result<(TwoPointDa
         },
         done.summary,
     ))
+}
+
+/// Read a two-point table grouped by channel, handing each channel to `visit` when the next
+/// begins (one channel's values in memory at a time, see `accumulator/grouped.rs`), with
+/// the errors of [`read_inner`]; returns the configurations and the summary, or `None` when
+/// a channel reappears after another (the table is not grouped; read it whole instead).
+pub(crate) fn read_grouped<R: Read>(
+    input: R,
+    file: PathBuf,
+    visit: Visit<TwoPointKey>,
+) -> Result<Option<(Vec<i64>, Summary)>> {
+    let Gathered {
+        acc,
+        keys,
+        file,
+        max_t,
+    } = gather(input, file, Some(&mut *visit))?;
+    if acc.reappeared() {
+        return Ok(None);
+    }
+    let Some(max_t) = max_t else {
+        return Err(no_data_rows(file));
+    };
+    let n_t = max_t as usize + 1;
+    let order = key_order(&keys);
+    let missing = missing_row(&file, &keys, n_t);
+    let done = acc.finish_grouped(&order, |_| n_t, missing, &mut |&id, s| {
+        visit(&keys[id as usize], s)
+    })?;
+    Ok(Some(done))
+}
+
+/// The rows of a table in the accumulator, its channels' keys by channel id.
+struct Gathered {
+    acc: Accumulator,
+    keys: Vec<TwoPointKey>,
+    file: PathBuf,
+    /// The largest `t` of any row.
+    max_t: Option<u32>,
+}
+
+/// Read the rows of a table into an accumulator; with `visit`, a grouped one whose closed
+/// channels `visit` sees. A grouped read that met a channel again stops there without error
+/// (see [`Accumulator::reappeared`]).
+fn gather<R: Read>(
+    input: R,
+    file: PathBuf,
+    mut visit: Option<Visit<TwoPointKey>>,
+) -> Result<Gathered> {
+    let (header, rows) = open_rows(input, file, SCHEMA)?;
+    header.check_paired(SINK_OP, SOURCE_OP, SCHEMA)?;
+    let parser = Parser {
+        with_source: header.index[SOURCE].is_some(),
+        with_smear: header.index[SMEAR].is_some(),
+    };
+    let mut acc = match visit {
+        Some(_) => Accumulator::grouped(parser.with_source),
+        None => Accumulator::new(parser.with_source),
+    };
+    let mut keys: Vec<TwoPointKey> = Vec::new();
+    let mut max_t: Option<u32> = None;
+    let read = rows.for_each_batch(&header, &parser, |batch| {
+        max_t = max_t.max(batch.rows.iter().map(|r| r.t).max());
+        batch.merge(&mut acc, &mut keys, &header, |k, t| {
+            format!("two-point {} t={t}", super::describe_twopt(k))
+        })?;
+        match visit.as_mut() {
+            Some(v) => acc.close_ready(&mut |&id, s| v(&keys[id as usize], s)),
+            None => Ok(()),
+        }
+    });
+    if !acc.reappeared() {
+        read?;
+    }
+    Ok(Gathered {
+        acc,
+        keys,
+        file: header.file,
+        max_t,
+    })
+}
+
+/// The error of the first missing value `(channel, t, configuration, first line of the
+/// channel)` of a table with `n_t` time slices.
+fn missing_row<'a>(
+    file: &'a Path,
+    keys: &'a [TwoPointKey],
+    n_t: usize,
+) -> impl Fn(u32, usize, i64, u64) -> Error + 'a {
+    move |id, t, config, line| Error::Table {
+        path: file.to_path_buf(),
+        message: format!(
+            "missing row: two-point {} t={t} has no value for configuration {config} \
+             (channel first seen at line {line}); every channel needs t = 0..{} \
+             (T = max t + 1) for every configuration",
+            super::describe_twopt(&keys[id as usize]),
+            n_t - 1
+        ),
+    }
 }
 
 /// What the two-point table's header says about its rows.

@@ -68,6 +68,22 @@ impl Shapes {
     }
 }
 
+impl Shapes {
+    /// The shapes of a two-point and a three-point table read one after the other, each into
+    /// its own [`Shapes`], on their own configurations.
+    pub fn of_tables(
+        two: crate::io::ByChannel<Shapes>,
+        three: crate::io::ByChannel<Shapes>,
+    ) -> Self {
+        let mut shapes = two.state;
+        shapes.two.configs = two.configs;
+        shapes.three = three.state.three;
+        shapes.three.configs = three.configs;
+        shapes.facts.three = three.state.facts.three;
+        shapes
+    }
+}
+
 /// A series' shape without its values.
 fn shape_of(s: &Series) -> Series {
     Series {

@@ -49,9 +49,11 @@ pub fn schema_value() -> serde_json::Value {
 /// data and apply every data rule (tables, flavour combination, selections, binning, time
 /// ranges, momenta the ratio needs), computing nothing; returns a short summary.
 ///
-/// A packed file is walked one channel at a time (`read_shapes`) unless a flavour
-/// combination (`ratio.flavor`) or one operator's selection (`data.operator`) has to compute
-/// new channels from several read ones; then, and for CSV tables, the data are read whole.
+/// A packed file and CSV tables are walked one channel at a time (`read_shapes`) unless a
+/// flavour combination (`ratio.flavor`) or one operator's selection (`data.operator`) has to
+/// compute new channels from several read ones; then, for other HDF5 sources, for tables
+/// from standard input and for CSV tables whose configurations differ under
+/// `data.keep_common_configs`, the data are read whole.
 pub fn check(path: &std::path::Path, sets: &[String]) -> Result<String> {
     let plan = load(path, sets)?;
     let (ReadData { two, three, .. }, facts) = match read_shapes(&plan)? {
@@ -81,17 +83,21 @@ pub fn read_data(plan: &Plan) -> Result<ReadData> {
     select(plan, read_source(plan, &opts, &|_, _| {})?)
 }
 
-/// The shapes of a packed source's channels with the facts the value checks need
-/// ([`data_checks::Shapes`]), read one channel at a time, on common configurations as
-/// [`read_source`] gives them; `None` when the source is not a packed file or when the
-/// selection needs the values (`ratio.flavor`, `data.operator`).
+/// The shapes of a packed source's or the CSV tables' channels with the facts the value
+/// checks need ([`data_checks::Shapes`]), read one channel at a time, on common
+/// configurations as [`read_source`] gives them; `None` when the source is another HDF5
+/// source or when the selection needs the values (`ratio.flavor`, `data.operator`).
 fn read_shapes(plan: &Plan) -> Result<Option<(crate::io::Dataset, data_checks::Facts)>> {
     let spec = &plan.spec;
+    if spec.ratio.flavor.is_some() || spec.data.operator.is_some() {
+        return Ok(None);
+    }
     let packed = match plan.hdf5.as_ref().map(|m| &m.layout) {
+        None => return csv_shapes(plan),
         Some(crate::io::hdf5::Layout::Packed(p)) => p,
         _ => return Ok(None),
     };
-    if !crate::io::hdf5::ENABLED || spec.ratio.flavor.is_some() || spec.data.operator.is_some() {
+    if !crate::io::hdf5::ENABLED {
         return Ok(None);
     }
     let t_extent = spec.ensemble.t.map(|t| t as usize);
@@ -107,6 +113,41 @@ fn read_shapes(plan: &Plan) -> Result<Option<(crate::io::Dataset, data_checks::F
         keep_common_configs: spec.data.keep_common_configs,
     };
     let ds = crate::io::on_common_configs(two, name, shapes.three, name, Vec::new(), &opts)?;
+    Ok(Some((ds, shapes.facts)))
+}
+
+/// [`read_shapes`] of CSV tables: each read one channel at a time (the whole read's
+/// errors, in its order); `None` when a table comes from standard input or when the tables
+/// cover different configurations and `data.keep_common_configs` keeps the common ones
+/// (the values would have to be cut to them first).
+fn csv_shapes(plan: &Plan) -> Result<Option<(crate::io::Dataset, data_checks::Facts)>> {
+    use crate::io::hdf5::PackedVisitor;
+    let stdin = std::path::Path::new("-");
+    if plan.twopt == stdin || plan.threept == stdin {
+        return Ok(None);
+    }
+    let init = || data_checks::Shapes::new(None);
+    let two =
+        crate::io::twopt_by_channel(&plan.twopt, init, |s, k, series| s.twopt(k.clone(), series))?;
+    let three = crate::io::threept_by_channel(&plan.threept, init, |s, k, series| {
+        s.threept(k.clone(), series)
+    })?;
+    let keep_common_configs = plan.spec.data.keep_common_configs;
+    if keep_common_configs && two.configs != three.configs {
+        return Ok(None);
+    }
+    let shapes = data_checks::Shapes::of_tables(two, three);
+    let opts = ReadOptions {
+        keep_common_configs,
+    };
+    let ds = crate::io::on_common_configs(
+        shapes.two,
+        &plan.twopt,
+        shapes.three,
+        &plan.threept,
+        Vec::new(),
+        &opts,
+    )?;
     Ok(Some((ds, shapes.facts)))
 }
 

@@ -11,7 +11,7 @@
 
 mod scan;
 
-pub use scan::{from_data, read, Inspected};
+pub use scan::{from_data, read, read_tables, Inspected};
 
 use super::accumulator::Summary;
 use crate::data::{norm2, sub, Momentum};

@@ -1,5 +1,6 @@
 //! The channel-by-channel scan behind `formfactory inspect`: what the text needs of each
-//! table, taken one channel at a time so that a packed file is never held whole.
+//! table, taken one channel at a time so that neither a packed file nor a CSV table grouped
+//! by channel is held whole.
 
 use crate::data::{Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey};
 use crate::error::{Error, Result};
@@ -18,8 +19,9 @@ const SMALL_T: usize = 3;
 /// What `formfactory inspect` describes: for each table read, its origin, size,
 /// configurations and channel keys, the warnings about each channel's values, and the
 /// Monte Carlo histories of the representative points (`resample::autocorr_check`). The
-/// values themselves are not kept: a packed file is walked one channel at a time into one
-/// reused buffer ([`read`]), so memory does not grow with the number of channels.
+/// values themselves are not kept: a packed file and a CSV table grouped by channel are read
+/// one channel at a time into one reused buffer ([`read`]), so memory does not grow with the
+/// data.
 pub struct Inspected {
     pub(super) two: Option<TwoScan>,
     pub(super) three: Option<ThreeScan>,
@@ -160,18 +162,109 @@ fn values_summary(per_channel: impl Iterator<Item = usize>) -> Summary {
 }
 
 /// Read a data directory (`twopt.csv` and/or `threept.csv` inside), one table (its kind told
-/// by its header; `-` reads standard input) or a packed HDF5 file. A packed file is walked
-/// channel by channel (one channel's values in memory at a time); CSV tables are read whole
-/// first (their rows need not be grouped by channel), then scanned.
+/// by its header; `-` reads standard input) or a packed HDF5 file, one channel at a time
+/// (`hdf5::visit_packed`, `io::twopt_by_channel`): the values of one channel in memory at a
+/// time, unless a CSV table is not grouped by channel or comes from standard input (then it
+/// is read whole first, as before).
 pub fn read(path: &Path) -> Result<Inspected> {
-    if path != Path::new("-") && !path.is_dir() && crate::io::hdf5::looks_like_hdf5(path) {
+    if path == Path::new("-") {
+        // standard input cannot be read again should the table turn out not to be grouped
+        let (two, three) = load(path)?;
+        return Ok(Inspected {
+            two: two.map(|(name, d, s)| TwoScan::from_data(name, Some(s), d)),
+            three: three.map(|(name, d, s)| ThreeScan::from_data(name, Some(s), d)),
+        });
+    }
+    if !path.is_dir() && crate::io::hdf5::looks_like_hdf5(path) {
         return stream_packed(path);
     }
-    let (two, three) = load(path)?;
-    Ok(Inspected {
-        two: two.map(|(name, d, s)| TwoScan::from_data(name, Some(s), d)),
-        three: three.map(|(name, d, s)| ThreeScan::from_data(name, Some(s), d)),
-    })
+    let (p2, p3) = match path.is_dir() {
+        true => {
+            let (p2, p3) = (path.join("twopt.csv"), path.join("threept.csv"));
+            if !p2.exists() && !p3.exists() {
+                return Err(no_tables(path));
+            }
+            (p2.exists().then_some(p2), p3.exists().then_some(p3))
+        }
+        false => match table_kind(path, &mut BufReader::new(open(path)?))?.0 {
+            Kind::Two => (Some(path.to_path_buf()), None),
+            Kind::Three => (None, Some(path.to_path_buf())),
+        },
+    };
+    let (two, three) = (
+        p2.map(|p| stream_twopt(&p, &p, true)).transpose()?,
+        p3.map(|p| stream_threept(&p, &p, true)).transpose()?,
+    );
+    Ok(Inspected { two, three })
+}
+
+/// The two CSV tables of a pipeline's `data` section, read one channel at a time, with
+/// `name` (the pipeline file) as their origin and values counted in place of rows, as
+/// [`from_data`] on what `io::read_dataset` reads. `None` when the tables cover different
+/// configurations and `opts` keeps the common ones (the values must then be cut to them:
+/// read the data whole); tables on different configurations otherwise give
+/// `io::read_dataset`'s error.
+pub fn read_tables(
+    name: &Path,
+    twopt: &Path,
+    threept: &Path,
+    opts: &crate::io::ReadOptions,
+) -> Result<Option<Inspected>> {
+    let mut two = stream_twopt(twopt, name, false)?;
+    let mut three = stream_threept(threept, name, false)?;
+    if two.configs != three.configs {
+        // only the configurations matter to the rule (and to its message)
+        let two_data = TwoPointData {
+            configs: two.configs.clone(),
+            channels: BTreeMap::new(),
+        };
+        let three_data = ThreePointData {
+            configs: three.configs.clone(),
+            channels: BTreeMap::new(),
+        };
+        crate::io::on_common_configs(two_data, twopt, three_data, threept, Vec::new(), opts)?;
+        return Ok(None);
+    }
+    two.summary = None;
+    three.summary = None;
+    Ok(Some(Inspected {
+        two: Some(two),
+        three: Some(three),
+    }))
+}
+
+/// A two-point table read one channel at a time into what inspect keeps, under `name`;
+/// `rows` keeps the reader's row count (else values are counted).
+fn stream_twopt(path: &Path, name: &Path, rows: bool) -> Result<TwoScan> {
+    let init = || TwoScan::new(name.to_path_buf(), None, Vec::new());
+    let read = crate::io::twopt_by_channel(path, init, |scan, key, s| {
+        scan.add(key.clone(), s);
+        Ok(())
+    })?;
+    let mut scan = read.state;
+    scan.configs = read.configs;
+    scan.summary = rows.then_some(read.summary);
+    Ok(scan)
+}
+
+/// A three-point table read one channel at a time, as [`stream_twopt`].
+fn stream_threept(path: &Path, name: &Path, rows: bool) -> Result<ThreeScan> {
+    let init = || ThreeScan::new(name.to_path_buf(), None, Vec::new());
+    let read = crate::io::threept_by_channel(path, init, |scan, key, s| {
+        scan.add(key.clone(), s);
+        Ok(())
+    })?;
+    let mut scan = read.state;
+    scan.configs = read.configs;
+    scan.summary = rows.then_some(read.summary);
+    Ok(scan)
+}
+
+fn no_tables(path: &Path) -> Error {
+    Error::Table {
+        path: path.to_path_buf(),
+        message: "directory holds neither twopt.csv nor threept.csv".into(),
+    }
 }
 
 /// Data already read (e.g. from an HDF5 source), `name` standing for its origin.
@@ -215,36 +308,37 @@ fn stream_packed(path: &Path) -> Result<Inspected> {
 
 type Loaded<D> = Option<(PathBuf, D, Summary)>;
 
-/// Read what `path` names: a directory with the standard file names, or one CSV table.
+/// Read one CSV table whole (standard input, which cannot be read twice).
 fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
-    if path != Path::new("-") && path.is_dir() {
-        let (p2, p3) = (path.join("twopt.csv"), path.join("threept.csv"));
-        if !p2.exists() && !p3.exists() {
-            return Err(Error::Table {
-                path: path.to_path_buf(),
-                message: "directory holds neither twopt.csv nor threept.csv".into(),
-            });
-        }
-        let two = if p2.exists() {
-            let (d, s) = twopt::read_with_summary(&p2)?;
-            Some((p2, d, s))
-        } else {
-            None
-        };
-        let three = if p3.exists() {
-            let (d, s) = threept::read_with_summary(&p3)?;
-            Some((p3, d, s))
-        } else {
-            None
-        };
-        return Ok((two, three));
-    }
     let name = display_name(path);
     let mut input = BufReader::new(open(path)?);
+    let (kind, header) = table_kind(path, &mut input)?;
+    let whole = std::io::Cursor::new(header).chain(input);
+    match kind {
+        Kind::Three => {
+            let (d, s) = threept::read_inner(whole, name.clone())?;
+            Ok((None, Some((name, d, s))))
+        }
+        Kind::Two => {
+            let (d, s) = twopt::read_inner(whole, name.clone())?;
+            Ok((Some((name, d, s)), None))
+        }
+    }
+}
+
+/// The kind of a table.
+enum Kind {
+    Two,
+    Three,
+}
+
+/// The kind of the table `path` told by its header, read from `input` (returned with it).
+fn table_kind(path: &Path, input: &mut impl BufRead) -> Result<(Kind, Vec<u8>)> {
+    let name = display_name(path);
     let mut header = Vec::new();
     // The header is read on its own to tell the table's kind; a line longer than any real
     // header is not read whole (the reader reports it).
-    (&mut input)
+    input
         .take(1 << 16)
         .read_until(b'\n', &mut header)
         .map_err(|e| Error::io(&name, e))?;
@@ -263,13 +357,10 @@ fn load(path: &Path) -> Result<(Loaded<TwoPointData>, Loaded<ThreePointData>)> {
         .map(|s| s.trim_matches('"').to_string())
         .collect();
     let has = |n: &str| names.iter().any(|x| x == n);
-    let whole = std::io::Cursor::new(header.clone()).chain(input);
     if has("tau") || has("tsep") {
-        let (d, s) = threept::read_inner(whole, name.clone())?;
-        Ok((None, Some((name, d, s))))
+        Ok((Kind::Three, header))
     } else if has("t") {
-        let (d, s) = twopt::read_inner(whole, name.clone())?;
-        Ok((Some((name, d, s)), None))
+        Ok((Kind::Two, header))
     } else {
         Err(Error::Table {
             path: name,

@@ -1,6 +1,11 @@
 //! The accumulator of the CSV readers: it interns channels and configurations, averages
 //! sources, detects duplicate rows and, at the end, checks that every channel has every
-//! time slice for every configuration. Its memory follows the rows it has seen.
+//! time slice for every configuration. Its memory follows the rows it has seen; a grouped
+//! read (`grouped.rs`) hands each channel over when the next begins and keeps none.
+
+mod grouped;
+
+pub(crate) use grouped::Visit;
 
 use crate::error::{Error, Location, Result};
 use std::collections::{HashMap, HashSet};
@@ -8,7 +13,7 @@ use std::collections::{HashMap, HashSet};
 /// Sum of the rows seen for one (channel, time, configuration): 16 bytes, the size of the
 /// values it becomes, so the read holds no more than twice the table's values. A cell no row
 /// has reached holds [`Cell::EMPTY`] in `re`; how many rows a cell holds beyond the first is
-/// kept aside ([`Accumulator`]'s `extra_rows`), which only tables with a `source` column have.
+/// kept aside (the channel's `extra_rows`), which only tables with a `source` column have.
 #[derive(Clone, Copy)]
 struct Cell {
     re: f64,
@@ -43,9 +48,32 @@ struct Channel {
     overflow: HashMap<(u32, u32), Cell>,
     rows: usize,
     first_line: u64,
+    /// `(t, cfg, source)` seen, when the table has a `source` column.
+    sources: HashSet<(u32, u32, i64)>,
+    /// Rows beyond the first averaged into a `(t, cfg)` (sources).
+    extra_rows: HashMap<(u32, u32), u32>,
 }
 
 impl Channel {
+    fn new(first_line: u64) -> Self {
+        Channel {
+            cells: Vec::new(),
+            overflow: HashMap::new(),
+            rows: 0,
+            first_line,
+            sources: HashSet::new(),
+            extra_rows: HashMap::new(),
+        }
+    }
+
+    /// The number of rows averaged into the cell `(t, cfg)`.
+    fn count(&self, t: usize, cfg: usize) -> u32 {
+        match self.extra_rows.is_empty() {
+            true => 1,
+            false => 1 + self.extra_rows.get(&(t as u32, cfg as u32)).unwrap_or(&0),
+        }
+    }
+
     /// Time slices the dense part may span after `rows` rows.
     fn dense_limit(rows: usize) -> usize {
         2 * rows + 1024
@@ -102,11 +130,12 @@ pub(crate) struct Accumulator {
     /// Configuration numbers in first-seen order.
     configs: Vec<i64>,
     last_cfg: u32,
-    /// `(channel, t, cfg, source)` seen, when the table has a `source` column.
-    sources: Option<HashSet<(u32, u32, u32, i64)>>,
-    /// Rows beyond the first averaged into a `(channel, t, cfg)` (sources).
-    extra_rows: HashMap<(u32, u32, u32), u32>,
+    /// Whether the table has a `source` column (rows of one point are then averaged).
+    with_source: bool,
     rows: u64,
+    /// The state of a grouped read ([`Accumulator::grouped`]), `None` when every channel is
+    /// kept to the end.
+    grouped: Option<grouped::Grouped>,
 }
 
 /// What became of the rows: source averaging and counts.
@@ -127,6 +156,7 @@ pub(crate) struct Finished {
 }
 
 impl Accumulator {
+    /// An accumulator that keeps every channel until [`Accumulator::finish`].
     pub fn new(with_source: bool) -> Self {
         Accumulator {
             ids: HashMap::new(),
@@ -134,9 +164,9 @@ impl Accumulator {
             cfg_ids: HashMap::new(),
             configs: Vec::new(),
             last_cfg: 0,
-            sources: with_source.then(HashSet::new),
-            extra_rows: HashMap::new(),
+            with_source,
             rows: 0,
+            grouped: None,
         }
     }
 
@@ -149,12 +179,10 @@ impl Accumulator {
     pub fn add_channel(&mut self, key: &[u8], line: u64) -> u32 {
         let id = self.channels.len() as u32;
         self.ids.insert(key.to_vec(), id);
-        self.channels.push(Channel {
-            cells: Vec::new(),
-            overflow: HashMap::new(),
-            rows: 0,
-            first_line: line,
-        });
+        self.channels.push(Channel::new(line));
+        if let Some(g) = &mut self.grouped {
+            g.opened(id);
+        }
         id
     }
 
@@ -189,11 +217,21 @@ impl Accumulator {
         describe: impl FnOnce() -> String,
     ) -> Result<()> {
         self.rows += 1;
+        if let Some(g) = &mut self.grouped {
+            if !g.continues(id) {
+                return Err(grouped::reappeared(location()));
+            }
+        }
         let cfg = self.config_index(config);
-        let cell = self.channels[id as usize].cell(t, cfg);
-        let duplicate = match (&mut self.sources, source) {
-            (Some(seen), Some(s)) => !seen.insert((id, t, cfg, s)),
-            _ => !cell.is_empty(),
+        let chan = &mut self.channels[id as usize];
+        let new_source = match (self.with_source, source) {
+            (true, Some(s)) => Some(chan.sources.insert((t, cfg, s))),
+            _ => None,
+        };
+        let cell = chan.cell(t, cfg);
+        let duplicate = match new_source {
+            Some(new) => !new,
+            None => !cell.is_empty(),
         };
         if duplicate {
             let what = match source {
@@ -213,7 +251,7 @@ impl Accumulator {
         } else {
             cell.re += re;
             cell.im += im;
-            *self.extra_rows.entry((id, t, cfg)).or_insert(0) += 1;
+            *chan.extra_rows.entry((t, cfg)).or_insert(0) += 1;
         }
         Ok(())
     }
@@ -227,32 +265,19 @@ impl Accumulator {
         n_t: impl Fn(u32) -> usize,
         missing: impl Fn(u32, usize, i64, u64) -> Error,
     ) -> Result<Finished> {
-        // The duplicate check is done; its set (one entry per row) goes before the values grow.
-        let with_sources = self.sources.take().is_some();
-        let mut sorted: Vec<(i64, usize)> = self
-            .configs
-            .iter()
-            .enumerate()
-            .map(|(i, &c)| (c, i))
-            .collect();
-        sorted.sort_unstable();
+        // The duplicate check is done; its sets (one entry per row) go before the values grow.
+        for chan in &mut self.channels {
+            chan.sources = HashSet::new();
+        }
+        let sorted = sorted_configs(&self.configs);
         let n_cfg = sorted.len();
         let mut values: Vec<(Vec<f64>, Vec<f64>)> =
             vec![(Vec::new(), Vec::new()); self.channels.len()];
         let (mut smin, mut smax) = (u32::MAX, 0u32);
-        let averaged = !self.extra_rows.is_empty();
         for &id in order {
             // Each channel's cells are released once its values are out, so the cells and
             // the values of the whole table are never held at once.
-            let chan = std::mem::replace(
-                &mut self.channels[id as usize],
-                Channel {
-                    cells: Vec::new(),
-                    overflow: HashMap::new(),
-                    rows: 0,
-                    first_line: 0,
-                },
-            );
+            let chan = std::mem::replace(&mut self.channels[id as usize], Channel::new(0));
             let nt = n_t(id);
             // Reserve only once the channel is known to reach its last time slice, so a
             // corrupt time value cannot trigger a huge allocation before the gap is found.
@@ -269,10 +294,7 @@ impl Accumulator {
                     if cell.is_empty() {
                         return Err(missing(id, t, config, chan.first_line));
                     }
-                    let count = match averaged {
-                        true => 1 + self.extra_rows.get(&(id, t as u32, i as u32)).unwrap_or(&0),
-                        false => 1,
-                    };
+                    let count = chan.count(t, i);
                     smin = smin.min(count);
                     smax = smax.max(count);
                     let n = f64::from(count);
@@ -285,12 +307,25 @@ impl Accumulator {
         Ok(Finished {
             configs: sorted.into_iter().map(|(c, _)| c).collect(),
             values,
-            summary: Summary {
-                rows: self.rows,
-                sources: with_sources.then(|| (smin.min(smax), smax)),
-            },
+            summary: self.summary(smin, smax),
         })
     }
+
+    /// The summary of the rows read, `smin` and `smax` the extremes of the rows averaged per
+    /// value.
+    fn summary(&self, smin: u32, smax: u32) -> Summary {
+        Summary {
+            rows: self.rows,
+            sources: self.with_source.then(|| (smin.min(smax), smax)),
+        }
+    }
+}
+
+/// The configurations `(number, first-seen index)` in ascending order of number.
+fn sorted_configs(configs: &[i64]) -> Vec<(i64, usize)> {
+    let mut sorted: Vec<(i64, usize)> = configs.iter().enumerate().map(|(i, &c)| (c, i)).collect();
+    sorted.sort_unstable();
+    sorted
 }
 
 /// Channel ids `0..keys.len()` ordered by their keys, the order of the output map.
