@@ -11,6 +11,7 @@
 
 pub mod linear;
 pub mod nonlinear;
+mod normal_equations;
 mod response;
 mod weights;
 
