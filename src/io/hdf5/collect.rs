@@ -38,7 +38,7 @@ struct Chan {
 }
 
 /// Channels of one kind.
-struct Acc<K> {
+pub(super) struct Acc<K> {
     chans: BTreeMap<K, Chan>,
     n_cfg: usize,
 }
@@ -53,7 +53,7 @@ impl<K: Ord + Clone> Acc<K> {
 
     /// Add block rows for configurations `cfgs` (indices into the configuration list).
     #[allow(clippy::too_many_arguments)]
-    fn add(
+    pub(super) fn add(
         &mut self,
         key: K,
         block: &Block,
@@ -64,23 +64,44 @@ impl<K: Ord + Clone> Acc<K> {
         name: &str,
         describe: impl Fn(&K) -> String,
     ) -> Result<()> {
+        let n_t = block.n_t;
+        let value = |row: usize, t: usize| (block.re[row * n_t + t], block.im[row * n_t + t]);
+        self.add_with(key, n_t, cfgs, source, caps, file, name, describe, value)
+    }
+
+    /// Add the rows of a dataset with `n_t` time slices for configurations `cfgs`; `value(row,
+    /// t)` is the (real, imaginary) pair of a row and time slice. The sums run in the same
+    /// order whoever supplies the values, so every way of reading gives the same bits.
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn add_with(
+        &mut self,
+        key: K,
+        n_t: usize,
+        cfgs: &[usize],
+        source: Option<i64>,
+        caps: &Captures,
+        file: &Path,
+        name: &str,
+        describe: impl Fn(&K) -> String,
+        value: impl Fn(usize, usize) -> (f64, f64),
+    ) -> Result<()> {
         let n_cfg = self.n_cfg;
         let chan = self.chans.entry(key.clone()).or_insert_with(|| Chan {
-            n_t: block.n_t,
-            re: vec![0.0; n_cfg * block.n_t],
-            im: vec![0.0; n_cfg * block.n_t],
+            n_t,
+            re: vec![0.0; n_cfg * n_t],
+            im: vec![0.0; n_cfg * n_t],
             count: vec![0; n_cfg],
             sources: vec![Vec::new(); n_cfg],
             caps: caps.clone(),
             first: (file.to_path_buf(), name.to_string()),
         });
-        if chan.n_t != block.n_t {
+        if chan.n_t != n_t {
             return Err(dataset_error(
                 file,
                 name,
                 format!(
                     "has {} time slices where {} `{}` has {}; every dataset of a channel needs the same length",
-                    block.n_t,
+                    n_t,
                     chan.first.0.display(),
                     chan.first.1,
                     chan.n_t
@@ -107,10 +128,10 @@ impl<K: Ord + Clone> Acc<K> {
                 chan.sources[c].push(s);
             }
             chan.count[c] += 1;
-            let n_t = block.n_t;
             for t in 0..n_t {
-                chan.re[c * n_t + t] += block.re[row * n_t + t];
-                chan.im[c * n_t + t] += block.im[row * n_t + t];
+                let (re, im) = value(row, t);
+                chan.re[c * n_t + t] += re;
+                chan.im[c * n_t + t] += im;
             }
         }
         Ok(())
@@ -156,7 +177,8 @@ impl<K: Ord + Clone> Acc<K> {
 }
 
 /// Which kind a dataset path belongs to.
-enum Kind {
+#[derive(Clone)]
+pub(super) enum Kind {
     Two(TwoPointKey),
     Three(ThreePointKey),
 }
@@ -165,13 +187,42 @@ enum Kind {
 /// longer two-point time axes are cut to it (without it every two-point dataset keeps its
 /// full length, which must then agree).
 pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> Result<Collected> {
+    read_with(m, t_extent, progress, Mode::Auto).map(|(c, _)| c)
+}
+
+/// Which walk reads the files.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(super) enum Mode {
+    /// The fast walk ([`super::fast`]); this module's walk when the fast one declines.
+    Auto,
+    /// The fast walk only (an error when it declines; for tests).
+    #[cfg_attr(not(test), allow(dead_code))]
+    Fast,
+    /// This module's walk only (for tests).
+    #[cfg_attr(not(test), allow(dead_code))]
+    Exact,
+}
+
+/// [`read_mapped`] with a choice of walk; also returns the fast walk's counts when it read
+/// the files.
+///
+/// The fast walk reads the common layouts at less cost per dataset; it declines a file (and
+/// the read starts again with this module's walk, from the first file) at anything it does
+/// not handle exactly as this walk would and at every error, so the data, the notes and every
+/// error message are this walk's.
+pub(super) fn read_with(
+    m: &Mapping,
+    t_extent: Option<usize>,
+    progress: Progress,
+    mode: Mode,
+) -> Result<(Collected, Option<super::fast::Counts>)> {
     let (Some(two_tpl), Some(three_tpl)) = (&m.twopt, &m.threept) else {
         return Err(Error::config(
             "data.hdf5: the dataset templates are missing",
         ));
     };
     let (files, configs, config_axis) = layout_files(m)?;
-    let mut walk = Walk {
+    let new_walk = || Walk {
         m,
         two_tpl,
         three_tpl,
@@ -183,28 +234,18 @@ pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> 
         ignored: 0,
         types: TypeCache::default(),
     };
-    let mut first_paths: Option<(PathBuf, usize)> = None;
-    for (i, (path, file_caps)) in files.iter().enumerate() {
-        let (names, seen) = walk.file(path, file_caps, &configs)?;
-        match &first_paths {
-            None => first_paths = Some((path.clone(), seen)),
-            Some((first, first_seen)) => {
-                if seen < *first_seen {
-                    return Err(missing_error(
-                        path,
-                        file_caps,
-                        &names,
-                        first,
-                        two_tpl,
-                        three_tpl,
-                        &walk.two,
-                        &walk.three,
-                    ));
-                }
-            }
+    let fast = if mode == Mode::Exact {
+        None
+    } else {
+        super::fast::walk(new_walk(), &files, &configs, progress)
+    };
+    let (walk, counts) = match fast {
+        Some((walk, counts)) => (walk, Some(counts)),
+        None if mode == Mode::Fast => {
+            return Err(Error::config("the fast walk declined these files"));
         }
-        progress(i + 1, files.len());
-    }
+        None => (exact_walk(new_walk(), &files, &configs, progress)?, None),
+    };
     if walk.n_datasets == 0 {
         return Err(Error::Table {
             path: files[0].0.clone(),
@@ -216,22 +257,56 @@ pub fn read_mapped(m: &Mapping, t_extent: Option<usize>, progress: Progress) -> 
         });
     }
     walk.finish(&files[0].0, files.len(), configs)
+        .map(|c| (c, counts))
+}
+
+/// Walk every file with this module's walk: list each file's datasets, then read those that
+/// match a template.
+fn exact_walk<'a>(
+    mut walk: Walk<'a>,
+    files: &[(PathBuf, Captures)],
+    configs: &[i64],
+    progress: Progress,
+) -> Result<Walk<'a>> {
+    let mut first_paths: Option<(PathBuf, usize)> = None;
+    for (i, (path, file_caps)) in files.iter().enumerate() {
+        let (names, seen) = walk.file(path, file_caps, configs)?;
+        match &first_paths {
+            None => first_paths = Some((path.clone(), seen)),
+            Some((first, first_seen)) => {
+                if seen < *first_seen {
+                    return Err(missing_error(
+                        path,
+                        file_caps,
+                        &names,
+                        first,
+                        walk.two_tpl,
+                        walk.three_tpl,
+                        &walk.two,
+                        &walk.three,
+                    ));
+                }
+            }
+        }
+        progress(i + 1, files.len());
+    }
+    Ok(walk)
 }
 
 /// The state of one walk over the files of a mapping: the templates, the channels gathered
 /// so far and the counts for the notes.
-struct Walk<'a> {
+pub(super) struct Walk<'a> {
     m: &'a Mapping,
-    two_tpl: &'a Template,
-    three_tpl: &'a Template,
-    t_extent: Option<usize>,
-    config_axis: bool,
-    two: Acc<TwoPointKey>,
-    three: Acc<ThreePointKey>,
-    n_datasets: usize,
-    ignored: usize,
-    /// The dataset type seen last (see [`TypeCache`]).
-    types: TypeCache,
+    pub(super) two_tpl: &'a Template,
+    pub(super) three_tpl: &'a Template,
+    pub(super) t_extent: Option<usize>,
+    pub(super) config_axis: bool,
+    pub(super) two: Acc<TwoPointKey>,
+    pub(super) three: Acc<ThreePointKey>,
+    pub(super) n_datasets: usize,
+    pub(super) ignored: usize,
+    /// The dataset types seen so far (see [`TypeCache`]).
+    pub(super) types: TypeCache,
 }
 
 impl Walk<'_> {
@@ -245,19 +320,7 @@ impl Walk<'_> {
     ) -> Result<(Vec<String>, usize)> {
         let (h5, len) = open_file(path)?;
         let names = dataset_paths(&h5, path)?;
-        let n_cfg = configs.len();
-        // Rows of each dataset: every configuration (configuration axis) or this file's one.
-        let (rows, axis): (Vec<usize>, Option<usize>) = if self.config_axis {
-            ((0..n_cfg).collect(), Some(n_cfg))
-        } else {
-            let f = Fields {
-                file: file_caps,
-                dataset: &Vec::new(),
-                fixed: &self.m.fixed,
-            };
-            let c = f.config().unwrap_or_default();
-            (vec![configs.binary_search(&c).unwrap_or_default()], None)
-        };
+        let (rows, axis) = self.rows(file_caps, configs);
         let file = OpenFile {
             h5: &h5,
             path,
@@ -288,32 +351,7 @@ impl Walk<'_> {
         } else {
             return Ok(false);
         };
-        let fields = Fields {
-            file: file.caps,
-            dataset: &caps,
-            fixed: &self.m.fixed,
-        };
-        let bad = |e: String| dataset_error(file.path, name, e);
-        let kind = if is_two {
-            Kind::Two(fields.twopt_key().map_err(bad)?)
-        } else {
-            Kind::Three(fields.threept_key().map_err(bad)?)
-        };
-        let source = fields.source().map_err(bad)?;
-        if let Some(c) = fields.get("config").filter(|_| !self.config_axis) {
-            // A `{config}` in the dataset path must agree with the file's.
-            let fc = Fields {
-                file: file.caps,
-                dataset: &Vec::new(),
-                fixed: &self.m.fixed,
-            };
-            if fc.get("config") != Some(c) {
-                return Err(bad(format!(
-                    "names configuration {c} inside the file of configuration {}",
-                    fc.get("config").unwrap_or("?")
-                )));
-            }
-        }
+        let (kind, source) = self.channel(file.caps, file.path, name, &caps, is_two)?;
         let (h5, path, len, axis, rows) = (file.h5, file.path, file.len, file.axis, file.rows);
         match kind {
             Kind::Two(key) => {
@@ -329,6 +367,63 @@ impl Walk<'_> {
             }
         }
         Ok(true)
+    }
+
+    /// The channel key and source position of dataset `name` (of file `path`, whose path gave
+    /// `file_caps`) that matched a template with captures `caps`; a `{config}` in the dataset
+    /// path must agree with the file's.
+    pub(super) fn channel(
+        &self,
+        file_caps: &Captures,
+        path: &Path,
+        name: &str,
+        caps: &Captures,
+        is_two: bool,
+    ) -> Result<(Kind, Option<i64>)> {
+        let fields = Fields {
+            file: file_caps,
+            dataset: caps,
+            fixed: &self.m.fixed,
+        };
+        let bad = |e: String| dataset_error(path, name, e);
+        let kind = if is_two {
+            Kind::Two(fields.twopt_key().map_err(bad)?)
+        } else {
+            Kind::Three(fields.threept_key().map_err(bad)?)
+        };
+        let source = fields.source().map_err(bad)?;
+        if let Some(c) = fields.get("config").filter(|_| !self.config_axis) {
+            // A `{config}` in the dataset path must agree with the file's.
+            let fc = Fields {
+                file: file_caps,
+                dataset: &Vec::new(),
+                fixed: &self.m.fixed,
+            };
+            if fc.get("config") != Some(c) {
+                return Err(bad(format!(
+                    "names configuration {c} inside the file of configuration {}",
+                    fc.get("config").unwrap_or("?")
+                )));
+            }
+        }
+        Ok((kind, source))
+    }
+
+    /// The rows of each dataset of a file: every configuration (configuration axis, then also
+    /// returned as the axis length) or the one its path names.
+    pub(super) fn rows(&self, file_caps: &Captures, configs: &[i64]) -> (Vec<usize>, Option<usize>) {
+        let n_cfg = configs.len();
+        if self.config_axis {
+            ((0..n_cfg).collect(), Some(n_cfg))
+        } else {
+            let f = Fields {
+                file: file_caps,
+                dataset: &Vec::new(),
+                fixed: &self.m.fixed,
+            };
+            let c = f.config().unwrap_or_default();
+            (vec![configs.binary_search(&c).unwrap_or_default()], None)
+        }
     }
 
     /// Average the gathered channels into the data model and write the notes. `first` is
@@ -390,11 +485,11 @@ struct OpenFile<'a> {
     axis: Option<usize>,
 }
 
-fn describe_two(k: &TwoPointKey) -> String {
+pub(super) fn describe_two(k: &TwoPointKey) -> String {
     format!("two-point {}", crate::io::describe_twopt(k))
 }
 
-fn describe_three(k: &ThreePointKey) -> String {
+pub(super) fn describe_three(k: &ThreePointKey) -> String {
     format!("three-point {}", crate::io::describe_threept(k))
 }
 

@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 pub type FileList = Vec<(PathBuf, Captures)>;
 
 /// Deepest group nesting walked (a damaged file may link a group into itself).
-const MAX_DEPTH: usize = 32;
+pub(super) const MAX_DEPTH: usize = 32;
 
 /// The files of a (non-packed) layout with their placeholder values, the configuration
 /// numbers in ascending order, and whether datasets hold a configuration axis.

@@ -19,6 +19,8 @@ mod collect;
 #[cfg(feature = "hdf5")]
 mod dataset;
 #[cfg(feature = "hdf5")]
+mod fast;
+#[cfg(feature = "hdf5")]
 mod files;
 #[cfg(feature = "hdf5")]
 mod packed;

@@ -1,0 +1,515 @@
+//! The fast walk over the files of a mapping: what `formfactory pack` (and every run from
+//! per-configuration files) spends its time in, at less cost per dataset than libhdf5's own
+//! minimum of opening each dataset by name and reading it (`benches/hdf5_minimum.c`).
+//!
+//! Why it exists: at production size there are millions of small datasets and the cost is
+//! per dataset, not per byte. Per file it reads the bytes once into a reused buffer and lets
+//! the library open an in-memory copy (the core driver: no system call per object header);
+//! it lists each group's links once (`H5Literate`) and opens each object by the address its
+//! link holds (`H5Oopen_by_addr`: no name lookup, and the object's kind comes with the open
+//! instead of a query per name); a dataset's type is compared with the types seen before
+//! (`H5Tequal`), its shape and size checked as in `dataset.rs`, and when its file type equals
+//! the memory type (no conversion) and it is stored contiguously, its values are taken from
+//! the file's bytes at the offset the library reports instead of a library read; the values
+//! go straight into their channel from one reused buffer. Template matches are kept per
+//! dataset path, so files after the first match nothing again.
+//!
+//! It is exact or it declines: a new type, chunked or compact storage go through the
+//! per-dataset reader of `dataset.rs` (on the same open file); a soft or external link, a
+//! name that is not UTF-8, a nesting deeper than the walk in `files.rs` allows, and every
+//! error make it decline, and the caller (`collect::read_with`) reads the files again with
+//! its own walk, which gives the data, notes and error messages it always gave. So where this
+//! walk finishes, the result is the one that walk would have given, bit for bit (both add
+//! the values in the same order through `Acc::add_with`).
+
+use super::collect::{describe_three, describe_two, Kind, Walk};
+use super::dataset::{block_shape, has_signature, read_block, TypeCache};
+use super::files::MAX_DEPTH;
+use super::template::Captures;
+use hdf5_sys::h5::{haddr_t, herr_t, hsize_t, H5_index_t, H5_iter_order_t, HADDR_UNDEF};
+use hdf5_sys::h5i::{hid_t, H5I_type_t};
+use std::collections::HashMap;
+use std::ffi::{c_char, c_void, CStr};
+use std::path::{Path, PathBuf};
+
+/// Files up to this size are read into memory once and opened from there; larger ones (one
+/// file holding a whole ensemble) are opened from disk and read with one library read per
+/// dataset.
+const IN_MEMORY_LIMIT: u64 = 256 << 20;
+
+/// How the datasets of a finished fast walk were read (for tests and measurements).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Counts {
+    /// Files read into memory and opened from there.
+    pub in_memory: usize,
+    /// Datasets whose values were taken from the file's bytes.
+    pub copied: usize,
+    /// Datasets read with one library read (a type the library converts, or a large file).
+    pub library: usize,
+    /// Datasets read by the per-dataset reader of `dataset.rs` (a type not seen before,
+    /// chunked or compact storage).
+    pub per_dataset: usize,
+}
+
+/// The fast walk leaves the files to the exact walk (see the module documentation).
+struct Declined;
+
+type Step<T> = std::result::Result<T, Declined>;
+
+/// Walk every file; `None` when the walk declines (the caller then reads with its own walk).
+pub(super) fn walk<'a>(
+    mut walk: Walk<'a>,
+    files: &[(PathBuf, Captures)],
+    configs: &[i64],
+    progress: super::collect::Progress,
+) -> Option<(Walk<'a>, Counts)> {
+    let mut fast = Fast::default();
+    let mut first_seen = None;
+    for (i, (path, file_caps)) in files.iter().enumerate() {
+        let seen = hdf5::sync::sync(|| fast.file(&mut walk, path, file_caps, configs)).ok()?;
+        match first_seen {
+            None => first_seen = Some(seen),
+            // A file with fewer matching datasets than the first: the exact walk names the
+            // missing one and the nearest existing path.
+            Some(first) if seen < first => return None,
+            Some(_) => {}
+        }
+        progress(i + 1, files.len());
+    }
+    Some((walk, fast.work.counts))
+}
+
+/// The walk's reused buffers.
+#[derive(Default)]
+struct Fast {
+    /// The path of the object being visited (`/group/name`).
+    path: String,
+    work: Work,
+}
+
+#[derive(Default)]
+struct Work {
+    /// The bytes of the file being walked (when it is held in memory).
+    image: Vec<u8>,
+    /// The values of the dataset being read, real and imaginary parts interleaved.
+    values: Vec<f64>,
+    /// The same, as read from single-precision data.
+    singles: Vec<f32>,
+    /// Dataset path -> what it matched, if anything.
+    matches: HashMap<String, Option<Matched>>,
+    counts: Counts,
+}
+
+/// A dataset path that matched a template.
+struct Matched {
+    /// Whether it matched the two-point template.
+    is_two: bool,
+    caps: Captures,
+    /// Its channel and source position, when they depend on the dataset path alone (the
+    /// file path names the configuration only, the dataset path does not).
+    channel: Option<(Kind, Option<i64>)>,
+}
+
+/// One open file and where its datasets' rows go.
+struct FileCtx<'a> {
+    h5: &'a hdf5::File,
+    path: &'a Path,
+    len: u64,
+    caps: &'a Captures,
+    rows: &'a [usize],
+    axis: Option<usize>,
+    in_memory: bool,
+}
+
+impl Fast {
+    /// Walk one file; returns how many datasets matched a template. The caller holds the
+    /// library lock.
+    fn file(
+        &mut self,
+        walk: &mut Walk,
+        path: &Path,
+        file_caps: &Captures,
+        configs: &[i64],
+    ) -> Step<usize> {
+        use std::io::Read;
+        let mut f = crate::io::open_regular(path).map_err(|_| Declined)?;
+        let len = f.metadata().map_err(|_| Declined)?.len();
+        let in_memory = len <= IN_MEMORY_LIMIT;
+        let image = &mut self.work.image;
+        image.clear();
+        let h5 = if in_memory {
+            f.read_to_end(image).map_err(|_| Declined)?;
+            if image.len() as u64 != len || !has_signature(image) {
+                return Err(Declined);
+            }
+            drop(f);
+            hdf5::File::with_options()
+                .with_fapl(|p| p.core_filebacked(false))
+                .open(path)
+                .map_err(|_| Declined)?
+        } else {
+            drop(f);
+            super::dataset::open_file(path).map_err(|_| Declined)?.0
+        };
+        let (rows, axis) = walk.rows(file_caps, configs);
+        let ctx = FileCtx {
+            h5: &h5,
+            path,
+            len,
+            caps: file_caps,
+            rows: &rows,
+            axis,
+            in_memory,
+        };
+        self.path.clear();
+        let mut seen = 0;
+        self.group(walk, &ctx, h5.id(), 0, &mut seen)?;
+        walk.n_datasets += seen;
+        self.work.counts.in_memory += usize::from(in_memory);
+        Ok(seen)
+    }
+
+    /// Visit the objects of group `group` (at depth `depth`) in the order of the exact walk
+    /// (`files::dataset_paths`: by name, groups entered where they stand).
+    fn group(
+        &mut self,
+        walk: &mut Walk,
+        ctx: &FileCtx,
+        group: hid_t,
+        depth: usize,
+        seen: &mut usize,
+    ) -> Step<()> {
+        if depth > MAX_DEPTH {
+            return Err(Declined);
+        }
+        let links = Links::of(group)?;
+        let prefix = self.path.len();
+        for link in &links.items {
+            self.path.truncate(prefix);
+            self.path.push('/');
+            self.path.push_str(links.name(link));
+            // Soft, external and user-defined links resolve by name: the exact walk's.
+            let addr = link.addr.ok_or(Declined)?;
+            // SAFETY: `group` is an open group (or file) of the file the link was listed
+            // from, and `addr` the object header address its hard link holds.
+            let object = Id::new(unsafe { hdf5_sys::h5o::H5Oopen_by_addr(group, addr) }, Id::OBJECT)?;
+            // SAFETY: `object` is an identifier the walk holds open.
+            match unsafe { hdf5_sys::h5i::H5Iget_type(object.id) } {
+                H5I_type_t::H5I_GROUP => self.group(walk, ctx, object.id, depth + 1, seen)?,
+                H5I_type_t::H5I_DATASET => {
+                    if self.work.dataset(walk, ctx, object.id, &self.path)? {
+                        *seen += 1;
+                    } else {
+                        walk.ignored += 1;
+                    }
+                }
+                H5I_type_t::H5I_BADID => return Err(Declined),
+                _ => {}
+            }
+        }
+        self.path.truncate(prefix);
+        Ok(())
+    }
+}
+
+impl Work {
+    /// Match dataset `name` (open as `id`) against the templates and, when it matches, read
+    /// it into its channel. Returns whether it matched.
+    fn dataset(&mut self, walk: &mut Walk, ctx: &FileCtx, id: hid_t, name: &str) -> Step<bool> {
+        if !self.matches.contains_key(name) {
+            let found = if let Some(c) = walk.two_tpl.matches(name) {
+                Some((true, c))
+            } else {
+                walk.three_tpl.matches(name).map(|c| (false, c))
+            };
+            let matched = found.map(|(is_two, caps)| Matched {
+                is_two,
+                caps,
+                channel: None,
+            });
+            self.matches.insert(name.to_string(), matched);
+        }
+        let Some(Some(matched)) = self.matches.get_mut(name) else {
+            return Ok(false);
+        };
+        let (kind, source) = match &matched.channel {
+            Some(channel) => channel.clone(),
+            None => {
+                let channel = walk
+                    .channel(ctx.caps, ctx.path, name, &matched.caps, matched.is_two)
+                    .map_err(|_| Declined)?;
+                let by_path_alone = ctx.caps.iter().all(|(n, _)| *n == "config")
+                    && matched.caps.iter().all(|(n, _)| *n != "config");
+                if by_path_alone {
+                    matched.channel = Some(channel.clone());
+                }
+                channel
+            }
+        };
+        let caps = &matched.caps;
+        let need = match &kind {
+            Kind::Two(_) => walk.t_extent,
+            Kind::Three(key) => Some(key.tsep as usize + 1),
+        };
+        let raw = read_raw(
+            &walk.types,
+            ctx,
+            id,
+            need,
+            &self.image,
+            &mut self.values,
+            &mut self.singles,
+            &mut self.counts,
+        )?;
+        let Some((n_t, keep)) = raw else {
+            // A type not seen before, or storage that needs the creation properties: the
+            // per-dataset reader, on the same open file.
+            let block = read_block(ctx.h5, ctx.path, ctx.len, name, ctx.axis, need, &mut walk.types)
+                .map_err(|_| Declined)?;
+            self.counts.per_dataset += 1;
+            let added = match kind {
+                Kind::Two(key) => walk.two.add(
+                    key, &block, ctx.rows, source, caps, ctx.path, name, describe_two,
+                ),
+                Kind::Three(key) => walk.three.add(
+                    key, &block, ctx.rows, source, caps, ctx.path, name, describe_three,
+                ),
+            };
+            return added.map(|()| true).map_err(|_| Declined);
+        };
+        let v = &self.values;
+        let value = |row: usize, t: usize| {
+            let i = 2 * (row * n_t + t);
+            (v[i], v[i + 1])
+        };
+        let added = match kind {
+            Kind::Two(key) => walk.two.add_with(
+                key, keep, ctx.rows, source, caps, ctx.path, name, describe_two, value,
+            ),
+            Kind::Three(key) => walk.three.add_with(
+                key, keep, ctx.rows, source, caps, ctx.path, name, describe_three, value,
+            ),
+        };
+        added.map(|()| true).map_err(|_| Declined)
+    }
+}
+
+/// Read dataset `id` into `values` (real and imaginary parts interleaved, rows x `n_t`) with
+/// the checks of `dataset::read_block`; returns `(n_t, time slices kept)`, or `None` when the
+/// per-dataset reader must read it (a type not in `types`, storage without a file offset).
+#[allow(clippy::too_many_arguments)]
+fn read_raw(
+    types: &TypeCache,
+    ctx: &FileCtx,
+    id: hid_t,
+    need: Option<usize>,
+    image: &[u8],
+    values: &mut Vec<f64>,
+    singles: &mut Vec<f32>,
+    counts: &mut Counts,
+) -> Step<Option<(usize, usize)>> {
+    use hdf5_sys::{h5d, h5s};
+    // SAFETY (every call below): `id` is a dataset the walk holds open; the type and space
+    // identifiers are closed by their guards; buffers are sized as stated at each call.
+    let dtype = Id::new(unsafe { h5d::H5Dget_type(id) }, Id::TYPE)?;
+    let Some(known) = types.find_raw(dtype.id) else {
+        return Ok(None);
+    };
+    let space = Id::new(unsafe { h5d::H5Dget_space(id) }, Id::SPACE)?;
+    let rank = unsafe { h5s::H5Sget_simple_extent_ndims(space.id) };
+    let rank = usize::try_from(rank).map_err(|_| Declined)?;
+    let mut dims: [hsize_t; 32] = [0; 32];
+    if rank > dims.len() {
+        return Err(Declined);
+    }
+    // `dims` holds 32 values, at least `rank`.
+    if rank > 0
+        && unsafe {
+            h5s::H5Sget_simple_extent_dims(space.id, dims.as_mut_ptr(), std::ptr::null_mut())
+        } < 0
+    {
+        return Err(Declined);
+    }
+    let mut shape = [0usize; 32];
+    for (s, &d) in shape.iter_mut().zip(&dims[..rank]) {
+        *s = usize::try_from(d).map_err(|_| Declined)?;
+    }
+    let shape = &shape[..rank];
+    let (rows, n_t) = block_shape(shape, &known.storage, ctx.axis).map_err(|_| Declined)?;
+    // The size against the file, as `dataset::check_size` does for a dataset with an offset.
+    let bytes = shape
+        .iter()
+        .try_fold(known.elem as u64, |acc, &d| acc.checked_mul(d as u64))
+        .ok_or(Declined)?;
+    let offset: haddr_t = unsafe { h5d::H5Dget_offset(id) };
+    if offset == HADDR_UNDEF {
+        return Ok(None);
+    }
+    if bytes > ctx.len.saturating_sub(offset) {
+        return Err(Declined);
+    }
+    let keep = need.unwrap_or(n_t);
+    if n_t < keep {
+        return Err(Declined);
+    }
+    let single = known.storage.single();
+    let width: usize = if single { 4 } else { 8 };
+    let floats = 2 * rows * n_t;
+    let mem = known.mem_size;
+    if bytes != (floats * width) as u64 || (mem != width && mem != 2 * width) {
+        return Err(Declined);
+    }
+    values.clear();
+    if known.exact && ctx.in_memory {
+        // The library would copy these bytes unchanged (file type = memory type).
+        let start = usize::try_from(offset).map_err(|_| Declined)?;
+        let raw = image
+            .get(start..start.saturating_add(floats * width))
+            .ok_or(Declined)?;
+        if single {
+            values.extend(raw.chunks_exact(4).map(|b| {
+                let mut a = [0u8; 4];
+                a.copy_from_slice(b);
+                f64::from(f32::from_ne_bytes(a))
+            }));
+        } else {
+            values.extend(raw.chunks_exact(8).map(|b| {
+                let mut a = [0u8; 8];
+                a.copy_from_slice(b);
+                f64::from_ne_bytes(a)
+            }));
+        }
+        counts.copied += 1;
+    } else {
+        use hdf5_sys::{h5p::H5P_DEFAULT, h5s::H5S_ALL};
+        // `values` / `singles` hold `floats` values: the whole dataset in the memory type
+        // (one float, or a pair of them per element), checked above.
+        let status = if single {
+            singles.clear();
+            singles.resize(floats, 0.0);
+            let s = unsafe {
+                h5d::H5Dread(id, known.mem.id(), H5S_ALL, H5S_ALL, H5P_DEFAULT, singles.as_mut_ptr().cast())
+            };
+            values.extend(singles.iter().map(|&x| f64::from(x)));
+            s
+        } else {
+            values.resize(floats, 0.0);
+            unsafe {
+                h5d::H5Dread(id, known.mem.id(), H5S_ALL, H5S_ALL, H5P_DEFAULT, values.as_mut_ptr().cast())
+            }
+        };
+        if status < 0 {
+            return Err(Declined);
+        }
+        counts.library += 1;
+    }
+    for r in 0..rows {
+        let row = &values[2 * r * n_t..2 * (r * n_t + keep)];
+        if !row.iter().all(|x| x.is_finite()) {
+            return Err(Declined);
+        }
+    }
+    Ok(Some((n_t, keep)))
+}
+
+/// An identifier the walk opened, closed when dropped.
+struct Id {
+    id: hid_t,
+    close: unsafe extern "C" fn(hid_t) -> herr_t,
+}
+
+impl Id {
+    const OBJECT: unsafe extern "C" fn(hid_t) -> herr_t = hdf5_sys::h5o::H5Oclose;
+    const TYPE: unsafe extern "C" fn(hid_t) -> herr_t = hdf5_sys::h5t::H5Tclose;
+    const SPACE: unsafe extern "C" fn(hid_t) -> herr_t = hdf5_sys::h5s::H5Sclose;
+
+    /// Take ownership of `id`, the result of an open; a negative one is a failed open.
+    fn new(id: hid_t, close: unsafe extern "C" fn(hid_t) -> herr_t) -> Step<Id> {
+        if id < 0 {
+            Err(Declined)
+        } else {
+            Ok(Id { id, close })
+        }
+    }
+}
+
+impl Drop for Id {
+    fn drop(&mut self) {
+        // SAFETY: the identifier is open and owned here. A close of an identifier the walk
+        // opened read-only has nothing to flush; its status leaves nothing to act on.
+        let _status = unsafe { (self.close)(self.id) };
+    }
+}
+
+/// The links of one group, in the library's name order.
+#[derive(Default)]
+struct Links {
+    names: String,
+    items: Vec<Link>,
+}
+
+struct Link {
+    start: usize,
+    end: usize,
+    /// The object header address of a hard link.
+    addr: Option<haddr_t>,
+}
+
+impl Links {
+    /// List the links of `group` (one `H5Literate` by name, the order of the exact walk).
+    fn of(group: hid_t) -> Step<Links> {
+        let mut links = Links::default();
+        // SAFETY: `group` is open; the callback only appends to `links`, passed as its data
+        // pointer and alive for the whole call.
+        #[allow(deprecated)] // deprecated from 1.12, where it stays the address-based form
+        let status = unsafe {
+            hdf5_sys::h5l::H5Literate1(
+                group,
+                H5_index_t::H5_INDEX_NAME,
+                H5_iter_order_t::H5_ITER_NATIVE,
+                std::ptr::null_mut(),
+                Some(collect_link),
+                (&mut links as *mut Links).cast(),
+            )
+        };
+        if status < 0 {
+            return Err(Declined);
+        }
+        Ok(links)
+    }
+
+    fn name(&self, link: &Link) -> &str {
+        self.names.get(link.start..link.end).unwrap_or_default()
+    }
+}
+
+/// `H5Literate` callback: append the link's name and, for a hard link, its address. A name
+/// that is not UTF-8 stops the iteration (the walk declines).
+unsafe extern "C" fn collect_link(
+    _group: hid_t,
+    name: *const c_char,
+    info: *const hdf5_sys::h5l::H5L_info1_t,
+    data: *mut c_void,
+) -> herr_t {
+    if name.is_null() || info.is_null() || data.is_null() {
+        return -1;
+    }
+    // SAFETY: the library passes a NUL-terminated name, the link's info and the data
+    // pointer given to `H5Literate1` (a `Links` borrowed mutably for the call).
+    let (name, mut info, links) =
+        unsafe { (CStr::from_ptr(name), *info, &mut *data.cast::<Links>()) };
+    let Ok(name) = name.to_str() else {
+        return -1;
+    };
+    let addr = (info.type_ == hdf5_sys::h5l::H5L_type_t::H5L_TYPE_HARD)
+        // SAFETY: the union holds the address for a hard link.
+        .then(|| unsafe { *info.u.address() });
+    let start = links.names.len();
+    links.names.push_str(name);
+    links.items.push(Link {
+        start,
+        end: links.names.len(),
+        addr,
+    });
+    0
+}
