@@ -411,7 +411,11 @@ impl Walk<'_> {
 
     /// The rows of each dataset of a file: every configuration (configuration axis, then also
     /// returned as the axis length) or the one its path names.
-    pub(super) fn rows(&self, file_caps: &Captures, configs: &[i64]) -> (Vec<usize>, Option<usize>) {
+    pub(super) fn rows(
+        &self,
+        file_caps: &Captures,
+        configs: &[i64],
+    ) -> (Vec<usize>, Option<usize>) {
         let n_cfg = configs.len();
         if self.config_axis {
             ((0..n_cfg).collect(), Some(n_cfg))

@@ -56,7 +56,11 @@ pub fn has_signature(bytes: &[u8]) -> bool {
         if sig == SIGNATURE {
             return true;
         }
-        offset = if offset == 0 { 512 } else { offset.saturating_mul(2) };
+        offset = if offset == 0 {
+            512
+        } else {
+            offset.saturating_mul(2)
+        };
     }
     false
 }

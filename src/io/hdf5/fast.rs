@@ -192,7 +192,10 @@ impl Fast {
             let addr = link.addr.ok_or(Declined)?;
             // SAFETY: `group` is an open group (or file) of the file the link was listed
             // from, and `addr` the object header address its hard link holds.
-            let object = Id::new(unsafe { hdf5_sys::h5o::H5Oopen_by_addr(group, addr) }, Id::OBJECT)?;
+            let object = Id::new(
+                unsafe { hdf5_sys::h5o::H5Oopen_by_addr(group, addr) },
+                Id::OBJECT,
+            )?;
             // SAFETY: `object` is an identifier the walk holds open.
             match unsafe { hdf5_sys::h5i::H5Iget_type(object.id) } {
                 H5I_type_t::H5I_GROUP => self.group(walk, ctx, object.id, depth + 1, seen)?,
@@ -264,15 +267,37 @@ impl Work {
         let Some((n_t, keep)) = raw else {
             // A type not seen before, or storage that needs the creation properties: the
             // per-dataset reader, on the same open file.
-            let block = read_block(ctx.h5, ctx.path, ctx.len, name, ctx.axis, need, &mut walk.types)
-                .map_err(|_| Declined)?;
+            let block = read_block(
+                ctx.h5,
+                ctx.path,
+                ctx.len,
+                name,
+                ctx.axis,
+                need,
+                &mut walk.types,
+            )
+            .map_err(|_| Declined)?;
             self.counts.per_dataset += 1;
             let added = match kind {
                 Kind::Two(key) => walk.two.add(
-                    key, &block, ctx.rows, source, caps, ctx.path, name, describe_two,
+                    key,
+                    &block,
+                    ctx.rows,
+                    source,
+                    caps,
+                    ctx.path,
+                    name,
+                    describe_two,
                 ),
                 Kind::Three(key) => walk.three.add(
-                    key, &block, ctx.rows, source, caps, ctx.path, name, describe_three,
+                    key,
+                    &block,
+                    ctx.rows,
+                    source,
+                    caps,
+                    ctx.path,
+                    name,
+                    describe_three,
                 ),
             };
             return added.map(|()| true).map_err(|_| Declined);
@@ -284,10 +309,26 @@ impl Work {
         };
         let added = match kind {
             Kind::Two(key) => walk.two.add_with(
-                key, keep, ctx.rows, source, caps, ctx.path, name, describe_two, value,
+                key,
+                keep,
+                ctx.rows,
+                source,
+                caps,
+                ctx.path,
+                name,
+                describe_two,
+                value,
             ),
             Kind::Three(key) => walk.three.add_with(
-                key, keep, ctx.rows, source, caps, ctx.path, name, describe_three, value,
+                key,
+                keep,
+                ctx.rows,
+                source,
+                caps,
+                ctx.path,
+                name,
+                describe_three,
+                value,
             ),
         };
         added.map(|()| true).map_err(|_| Declined)
@@ -388,14 +429,28 @@ fn read_raw(
             singles.clear();
             singles.resize(floats, 0.0);
             let s = unsafe {
-                h5d::H5Dread(id, known.mem.id(), H5S_ALL, H5S_ALL, H5P_DEFAULT, singles.as_mut_ptr().cast())
+                h5d::H5Dread(
+                    id,
+                    known.mem.id(),
+                    H5S_ALL,
+                    H5S_ALL,
+                    H5P_DEFAULT,
+                    singles.as_mut_ptr().cast(),
+                )
             };
             values.extend(singles.iter().map(|&x| f64::from(x)));
             s
         } else {
             values.resize(floats, 0.0);
             unsafe {
-                h5d::H5Dread(id, known.mem.id(), H5S_ALL, H5S_ALL, H5P_DEFAULT, values.as_mut_ptr().cast())
+                h5d::H5Dread(
+                    id,
+                    known.mem.id(),
+                    H5S_ALL,
+                    H5S_ALL,
+                    H5P_DEFAULT,
+                    values.as_mut_ptr().cast(),
+                )
             }
         };
         if status < 0 {
@@ -512,4 +567,237 @@ unsafe extern "C" fn collect_link(
         addr,
     });
     0
+}
+
+#[cfg(test)]
+mod tests {
+    //! The fast walk against the exact walk on the h5py fixtures (`tests/fixtures/hdf5`,
+    //! written by `make_fixtures.py`) and on copies changed by the library: where the fast walk
+    //! finishes it must give the exact walk's data bit for bit and its notes, and the counts
+    //! show which of its ways read each dataset.
+
+    use super::super::collect::{read_mapped, read_with, Collected, Mode};
+    use super::super::mapping::{Hdf5Source, Mapping};
+    use super::Counts;
+    use crate::data::Series;
+    use std::path::{Path, PathBuf};
+
+    fn fixtures() -> PathBuf {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/hdf5")
+    }
+
+    fn mapping(dir: &Path, yaml: &str) -> Mapping {
+        let src: Hdf5Source = serde_yaml_ng::from_str(yaml).unwrap();
+        src.resolve(dir, "data.hdf5").unwrap()
+    }
+
+    const PERCFG: &str =
+        "{files: 'percfg/conf{config}.h5', twopt: '/2pt/{smear}/p{px}_{py}_{pz}', \
+        threept: '/3pt/tsep{tsep}/{current}/{projector}/pf{pfx}{pfy}{pfz}_q{qx}_{qy}_{qz}'}";
+    const FIXED: &str =
+        "fixed: {projector: unpol, pfx: '0', pfy: '0', pfz: '0', qx: '0', qy: '0', qz: '1'}";
+
+    fn bits(s: &Series) -> (usize, usize, Vec<u64>, Vec<u64>) {
+        let b = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect();
+        (s.n_t, s.n_cfg, b(&s.re), b(&s.im))
+    }
+
+    fn assert_same(fast: &Collected, exact: &Collected) {
+        assert_eq!(fast.notes, exact.notes);
+        assert_eq!(fast.twopt.configs, exact.twopt.configs);
+        assert_eq!(fast.threept.configs, exact.threept.configs);
+        let two = |c: &Collected| -> Vec<_> {
+            c.twopt
+                .channels
+                .iter()
+                .map(|(k, s)| (k.clone(), bits(s)))
+                .collect()
+        };
+        let three = |c: &Collected| -> Vec<_> {
+            c.threept
+                .channels
+                .iter()
+                .map(|(k, s)| (k.clone(), bits(s)))
+                .collect()
+        };
+        assert_eq!(two(fast), two(exact));
+        assert_eq!(three(fast), three(exact));
+        assert!(!fast.twopt.channels.is_empty() && !fast.threept.channels.is_empty());
+    }
+
+    /// Read `m` with both walks; the fast one must finish with the exact one's result.
+    fn both(m: &Mapping, t: Option<usize>) -> (Collected, Counts) {
+        let (fast, counts) = read_with(m, t, &|_, _| {}, Mode::Fast).unwrap();
+        let (exact, none) = read_with(m, t, &|_, _| {}, Mode::Exact).unwrap();
+        assert!(none.is_none());
+        assert_same(&fast, &exact);
+        let counts = counts.unwrap();
+        let n = counts.copied + counts.library + counts.per_dataset;
+        assert!(
+            fast.notes[0].starts_with(&format!("read {n} datasets")),
+            "{:?}",
+            fast.notes
+        );
+        (fast, counts)
+    }
+
+    #[test]
+    fn the_fast_walk_gives_the_exact_walks_data_on_every_fixture_layout() {
+        // percfg: 4 files x (6 two-point + 4 three-point) datasets in nested groups, four file
+        // types (f64 little- and big-endian, f32, complex128 as compound {r, i}); each type's
+        // first dataset goes through the per-dataset reader, the big-endian ones are converted
+        // by the library, every other one is taken from the file's bytes.
+        let (_, counts) = both(&mapping(&fixtures(), PERCFG), Some(8));
+        let want = Counts {
+            in_memory: 4,
+            copied: 29,
+            library: 7,
+            per_dataset: 4,
+        };
+        assert_eq!(counts, want);
+        // Source positions in the path, averaged.
+        let sources = format!(
+            "{{files: 'sources/conf{{config}}.h5', twopt: '/src{{source}}/p{{px}}_{{py}}_{{pz}}', \
+             threept: '/src{{source}}/c3/tsep{{tsep}}_{{current}}', {FIXED}}}"
+        );
+        both(&mapping(&fixtures(), &sources), None);
+        // One file with a configuration axis: chunked + gzip two-point data (no file offset:
+        // the per-dataset reader, which checks the creation properties), contiguous
+        // three-point data (the first through the per-dataset reader, a new type).
+        let onefile = format!(
+            "{{file: onefile.h5, configs: /configs, twopt: '/c2/p{{px}}{{py}}{{pz}}', \
+             threept: '/c3/tsep{{tsep}}/{{current}}', {FIXED}}}"
+        );
+        let (_, counts) = both(&mapping(&fixtures(), &onefile), Some(8));
+        let want = Counts {
+            in_memory: 1,
+            copied: 1,
+            library: 0,
+            per_dataset: 4,
+        };
+        assert_eq!(counts, want);
+        // Operator labels in the path, three levels of groups.
+        let operators = format!(
+            "{{files: 'operators/conf{{config}}.h5', \
+             twopt: '/2pt/p{{px}}_{{py}}_{{pz}}/snk_{{sink_op}}/src_{{source_op}}', \
+             threept: '/3pt/tsep{{tsep}}/{{current}}/snk_{{sink_op}}/src_{{source_op}}', {FIXED}}}"
+        );
+        both(&mapping(&fixtures(), &operators), None);
+    }
+
+    /// Copies of the four percfg files in a fresh directory.
+    fn percfg_copy() -> tempfile::TempDir {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::create_dir(dir.path().join("percfg")).unwrap();
+        for cfg in [100, 104, 108, 112] {
+            let name = format!("percfg/conf{cfg}.h5");
+            std::fs::copy(fixtures().join(&name), dir.path().join(&name)).unwrap();
+        }
+        dir
+    }
+
+    #[test]
+    fn an_extra_unrelated_dataset_is_ignored_as_before() {
+        let dir = percfg_copy();
+        {
+            let f = hdf5::File::open_rw(dir.path().join("percfg/conf104.h5")).unwrap();
+            let extra = f
+                .new_dataset::<f64>()
+                .shape(4)
+                .create("/2pt/extra")
+                .unwrap();
+            extra.write_raw(&[1.0, 2.0, 3.0, 4.0]).unwrap();
+            f.new_dataset::<f64>().shape(2).create("/zzz").unwrap();
+        }
+        let (fast, counts) = both(&mapping(dir.path(), PERCFG), Some(8));
+        assert_eq!(counts.copied + counts.library + counts.per_dataset, 40);
+        // /meta/note in every file, and the two new datasets.
+        assert!(
+            fast.notes
+                .iter()
+                .any(|n| n == "ignored 6 dataset(s) that match neither dataset template"),
+            "{:?}",
+            fast.notes
+        );
+    }
+
+    #[test]
+    fn a_soft_link_makes_the_fast_walk_decline_and_the_read_is_the_exact_walks() {
+        let dir = percfg_copy();
+        {
+            let f = hdf5::File::open_rw(dir.path().join("percfg/conf108.h5")).unwrap();
+            f.link_soft("/2pt/SS/p0_0_0", "/alias").unwrap();
+        }
+        let m = mapping(dir.path(), PERCFG);
+        assert!(read_with(&m, Some(8), &|_, _| {}, Mode::Fast).is_err());
+        let (auto, counts) = read_with(&m, Some(8), &|_, _| {}, Mode::Auto).unwrap();
+        assert!(counts.is_none(), "the exact walk read the files");
+        let (exact, _) = read_with(&m, Some(8), &|_, _| {}, Mode::Exact).unwrap();
+        assert_same(&auto, &exact);
+        // The link is followed by the exact walk: a fifth dataset matching no template.
+        assert!(
+            auto.notes
+                .iter()
+                .any(|n| n == "ignored 5 dataset(s) that match neither dataset template"),
+            "{:?}",
+            auto.notes
+        );
+    }
+
+    #[test]
+    fn a_missing_dataset_makes_the_fast_walk_decline_and_is_named_with_the_nearest_path() {
+        let m = mapping(&fixtures(), &PERCFG.replace("percfg/", "missing/"));
+        assert!(read_with(&m, Some(8), &|_, _| {}, Mode::Fast).is_err());
+        let e = read_mapped(&m, Some(8), &|_, _| {})
+            .err()
+            .unwrap()
+            .to_string();
+        assert!(e.contains("conf104.h5"), "{e}");
+        assert!(e.contains("`/2pt/SP/p0_0_1` is missing"), "{e}");
+        assert!(e.contains("nearest existing path: `/2pt/SP/p0_0_0`"), "{e}");
+        // The same when the file lacking it is larger than the first (an unrelated extra
+        // dataset), so that the count of matching datasets tells it apart, not the size.
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::create_dir(dir.path().join("missing")).unwrap();
+        for cfg in [100, 104, 108, 112] {
+            let name = format!("missing/conf{cfg}.h5");
+            std::fs::copy(fixtures().join(&name), dir.path().join(&name)).unwrap();
+        }
+        {
+            let f = hdf5::File::open_rw(dir.path().join("missing/conf104.h5")).unwrap();
+            f.new_dataset::<f64>()
+                .shape(2)
+                .create("/2pt/SP/unrelated")
+                .unwrap();
+        }
+        let m = mapping(dir.path(), &PERCFG.replace("percfg/", "missing/"));
+        let e = read_mapped(&m, Some(8), &|_, _| {})
+            .err()
+            .unwrap()
+            .to_string();
+        assert!(
+            e.contains("conf104.h5") && e.contains("`/2pt/SP/p0_0_1` is missing"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn errors_are_the_exact_walks() {
+        // A time axis too short: the fast walk declines at the first three-point dataset and
+        // the exact walk reports it, naming file and dataset.
+        let m = mapping(&fixtures(), PERCFG);
+        let auto = read_mapped(&m, Some(12), &|_, _| {})
+            .err()
+            .unwrap()
+            .to_string();
+        let exact = read_with(&m, Some(12), &|_, _| {}, Mode::Exact)
+            .err()
+            .unwrap()
+            .to_string();
+        assert_eq!(auto, exact);
+        assert!(
+            auto.contains("has 10 time slices; 12 are needed") && auto.contains("conf100.h5"),
+            "{auto}"
+        );
+    }
 }
