@@ -39,7 +39,10 @@ struct Chan {
 
 /// Channels of one kind.
 pub(super) struct Acc<K> {
-    chans: BTreeMap<K, Chan>,
+    /// Channel key -> its place in `slots`.
+    chans: BTreeMap<K, usize>,
+    /// The channels in the order they were first seen.
+    slots: Vec<Chan>,
     n_cfg: usize,
 }
 
@@ -47,8 +50,41 @@ impl<K: Ord + Clone> Acc<K> {
     fn new(n_cfg: usize) -> Self {
         Acc {
             chans: BTreeMap::new(),
+            slots: Vec::new(),
             n_cfg,
         }
+    }
+
+    /// The channels in key order.
+    fn channels(&self) -> impl Iterator<Item = &Chan> {
+        self.chans.values().filter_map(|&i| self.slots.get(i))
+    }
+
+    /// The place of channel `key`; a new channel (with `n_t` time slices, first seen as
+    /// dataset `name` of `file` with captures `caps`) is created empty.
+    pub(super) fn slot(
+        &mut self,
+        key: &K,
+        n_t: usize,
+        caps: &Captures,
+        file: &Path,
+        name: &str,
+    ) -> usize {
+        if let Some(&i) = self.chans.get(key) {
+            return i;
+        }
+        let n_cfg = self.n_cfg;
+        self.slots.push(Chan {
+            n_t,
+            re: vec![0.0; n_cfg * n_t],
+            im: vec![0.0; n_cfg * n_t],
+            count: vec![0; n_cfg],
+            sources: vec![Vec::new(); n_cfg],
+            caps: caps.clone(),
+            first: (file.to_path_buf(), name.to_string()),
+        });
+        self.chans.insert(key.clone(), self.slots.len() - 1);
+        self.slots.len() - 1
     }
 
     /// Add block rows for configurations `cfgs` (indices into the configuration list).
@@ -85,16 +121,27 @@ impl<K: Ord + Clone> Acc<K> {
         describe: impl Fn(&K) -> String,
         value: impl Fn(usize, usize) -> (f64, f64),
     ) -> Result<()> {
-        let n_cfg = self.n_cfg;
-        let chan = self.chans.entry(key.clone()).or_insert_with(|| Chan {
-            n_t,
-            re: vec![0.0; n_cfg * n_t],
-            im: vec![0.0; n_cfg * n_t],
-            count: vec![0; n_cfg],
-            sources: vec![Vec::new(); n_cfg],
-            caps: caps.clone(),
-            first: (file.to_path_buf(), name.to_string()),
-        });
+        let slot = self.slot(&key, n_t, caps, file, name);
+        self.add_at(slot, &key, n_t, cfgs, source, file, name, describe, value)
+    }
+
+    /// [`Acc::add_with`] for the channel at `slot` (from [`Acc::slot`] for `key`).
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn add_at(
+        &mut self,
+        slot: usize,
+        key: &K,
+        n_t: usize,
+        cfgs: &[usize],
+        source: Option<i64>,
+        file: &Path,
+        name: &str,
+        describe: impl Fn(&K) -> String,
+        value: impl Fn(usize, usize) -> (f64, f64),
+    ) -> Result<()> {
+        let Some(chan) = self.slots.get_mut(slot) else {
+            return Err(dataset_error(file, name, "internal error: no such channel"));
+        };
         if chan.n_t != n_t {
             return Err(dataset_error(
                 file,
@@ -120,7 +167,7 @@ impl<K: Ord + Clone> Acc<K> {
                     name,
                     format!(
                         "duplicate data: {} at configuration index {c}{what} was already read",
-                        describe(&key)
+                        describe(key)
                     ),
                 ));
             }
@@ -146,7 +193,11 @@ impl<K: Ord + Clone> Acc<K> {
     ) -> Result<(BTreeMap<K, Series>, (u32, u32))> {
         let mut out = BTreeMap::new();
         let (mut lo, mut hi) = (u32::MAX, 0);
-        for (key, chan) in self.chans {
+        let mut slots: Vec<Option<Chan>> = self.slots.into_iter().map(Some).collect();
+        for (key, i) in self.chans {
+            let Some(chan) = slots.get_mut(i).and_then(Option::take) else {
+                continue;
+            };
             let n_cfg = self.n_cfg;
             if let Some(c) = chan.count.iter().position(|&n| n == 0) {
                 return Err(Error::Table {
@@ -521,10 +572,9 @@ fn missing_error(
         })
     };
     let expected = two
-        .chans
-        .values()
+        .channels()
         .map(|c| expect(two_tpl, &c.caps))
-        .chain(three.chans.values().map(|c| expect(three_tpl, &c.caps)))
+        .chain(three.channels().map(|c| expect(three_tpl, &c.caps)))
         .find(|p| !present.contains(p.as_str()));
     let message = match expected {
         Some(p) => {

@@ -65,13 +65,19 @@ pub fn has_signature(bytes: &[u8]) -> bool {
     false
 }
 
-/// Open `path` for reading after checking that it is an HDF5 file. Returns the file and its
-/// size in bytes.
-pub fn open_file(path: &Path) -> Result<(hdf5::File, u64)> {
-    use std::io::{Read, Seek, SeekFrom};
+/// Check that `path` is a regular file holding the HDF5 signature (where [`has_signature`]
+/// looks) without the library; returns its size in bytes.
+pub fn check_signature(path: &Path) -> Result<u64> {
     // Only a regular file: a FIFO would make the open wait forever.
     let mut f = crate::io::open_regular(path)?;
     let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
+    find_signature(&mut f, len, path)?;
+    Ok(len)
+}
+
+/// [`check_signature`] of the open file `f` (of `len` bytes, at `path`).
+pub fn find_signature(f: &mut std::fs::File, len: u64, path: &Path) -> Result<()> {
+    use std::io::{Read, Seek, SeekFrom};
     let mut found = false;
     let mut offset = 0u64;
     while offset + 8 <= len {
@@ -91,6 +97,13 @@ pub fn open_file(path: &Path) -> Result<(hdf5::File, u64)> {
             message: "not an HDF5 file (no HDF5 signature); expected correlators written by an HDF5 library".into(),
         });
     }
+    Ok(())
+}
+
+/// Open `path` for reading after checking that it is an HDF5 file. Returns the file and its
+/// size in bytes.
+pub fn open_file(path: &Path) -> Result<(hdf5::File, u64)> {
+    let len = check_signature(path)?;
     let file = hdf5::File::open(path).map_err(|e| Error::Table {
         path: path.to_path_buf(),
         message: format!("cannot open as HDF5 (damaged or truncated?): {e}"),

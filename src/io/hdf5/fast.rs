@@ -4,7 +4,10 @@
 //!
 //! Why it exists: at production size there are millions of small datasets and the cost is
 //! per dataset, not per byte. Per file it reads the bytes once into a reused buffer and lets
-//! the library open an in-memory copy (the core driver: no system call per object header);
+//! the library open an in-memory copy (the core driver: no system call per object header),
+//! with each object's metadata evicted from the library's cache when the object is closed
+//! (each is read once; a small cache is cheaper to use, and the file's close has nothing left
+//! to tear down);
 //! it lists each group's links once (`H5Literate`) and opens each object by the address its
 //! link holds (`H5Oopen_by_addr`: no name lookup, and the object's kind comes with the open
 //! instead of a query per name); a dataset's type is compared with the types seen before
@@ -105,9 +108,17 @@ struct Matched {
     /// Whether it matched the two-point template.
     is_two: bool,
     caps: Captures,
-    /// Its channel and source position, when they depend on the dataset path alone (the
-    /// file path names the configuration only, the dataset path does not).
-    channel: Option<(Kind, Option<i64>)>,
+    /// Its channel, when it depends on the dataset path alone (the file path names the
+    /// configuration only, the dataset path does not).
+    channel: Option<Channel>,
+}
+
+/// The channel of a dataset path.
+struct Channel {
+    kind: Kind,
+    source: Option<i64>,
+    /// Its place in the accumulator of its kind, once known.
+    slot: Option<usize>,
 }
 
 /// One open file and where its datasets' rows go.
@@ -144,12 +155,16 @@ impl Fast {
             }
             drop(f);
             hdf5::File::with_options()
-                .with_fapl(|p| p.core_filebacked(false))
+                .with_fapl(|p| p.core_filebacked(false).evict_on_close(true))
                 .open(path)
                 .map_err(|_| Declined)?
         } else {
+            super::dataset::find_signature(&mut f, len, path).map_err(|_| Declined)?;
             drop(f);
-            super::dataset::open_file(path).map_err(|_| Declined)?.0
+            hdf5::File::with_options()
+                .with_fapl(|p| p.evict_on_close(true))
+                .open(path)
+                .map_err(|_| Declined)?
         };
         let (rows, axis) = walk.rows(file_caps, configs);
         let ctx = FileCtx {
@@ -219,7 +234,14 @@ impl Work {
     /// Match dataset `name` (open as `id`) against the templates and, when it matches, read
     /// it into its channel. Returns whether it matched.
     fn dataset(&mut self, walk: &mut Walk, ctx: &FileCtx, id: hid_t, name: &str) -> Step<bool> {
-        if !self.matches.contains_key(name) {
+        let Work {
+            image,
+            values,
+            singles,
+            matches,
+            counts,
+        } = self;
+        if !matches.contains_key(name) {
             let found = if let Some(c) = walk.two_tpl.matches(name) {
                 Some((true, c))
             } else {
@@ -230,40 +252,45 @@ impl Work {
                 caps,
                 channel: None,
             });
-            self.matches.insert(name.to_string(), matched);
+            matches.insert(name.to_string(), matched);
         }
-        let Some(Some(matched)) = self.matches.get_mut(name) else {
+        let Some(Some(Matched {
+            is_two,
+            caps,
+            channel,
+        })) = matches.get_mut(name)
+        else {
             return Ok(false);
         };
-        let (kind, source) = match &matched.channel {
-            Some(channel) => channel.clone(),
-            None => {
-                let channel = walk
-                    .channel(ctx.caps, ctx.path, name, &matched.caps, matched.is_two)
+        let by_path_alone = ctx.caps.iter().all(|(n, _)| *n == "config")
+            && caps.iter().all(|(n, _)| *n != "config");
+        let fresh;
+        let (kind, source, slot) = if by_path_alone {
+            if channel.is_none() {
+                let (kind, source) = walk
+                    .channel(ctx.caps, ctx.path, name, caps, *is_two)
                     .map_err(|_| Declined)?;
-                let by_path_alone = ctx.caps.iter().all(|(n, _)| *n == "config")
-                    && matched.caps.iter().all(|(n, _)| *n != "config");
-                if by_path_alone {
-                    matched.channel = Some(channel.clone());
-                }
-                channel
+                *channel = Some(Channel {
+                    kind,
+                    source,
+                    slot: None,
+                });
             }
+            let Some(Channel { kind, source, slot }) = channel else {
+                return Err(Declined);
+            };
+            (&*kind, *source, Some(slot))
+        } else {
+            fresh = walk
+                .channel(ctx.caps, ctx.path, name, caps, *is_two)
+                .map_err(|_| Declined)?;
+            (&fresh.0, fresh.1, None)
         };
-        let caps = &matched.caps;
-        let need = match &kind {
+        let need = match kind {
             Kind::Two(_) => walk.t_extent,
             Kind::Three(key) => Some(key.tsep as usize + 1),
         };
-        let raw = read_raw(
-            &walk.types,
-            ctx,
-            id,
-            need,
-            &self.image,
-            &mut self.values,
-            &mut self.singles,
-            &mut self.counts,
-        )?;
+        let raw = read_raw(&walk.types, ctx, id, need, image, values, singles, counts)?;
         let Some((n_t, keep)) = raw else {
             // A type not seen before, or storage that needs the creation properties: the
             // per-dataset reader, on the same open file.
@@ -277,61 +304,91 @@ impl Work {
                 &mut walk.types,
             )
             .map_err(|_| Declined)?;
-            self.counts.per_dataset += 1;
+            counts.per_dataset += 1;
+            let (rows, path) = (ctx.rows, ctx.path);
             let added = match kind {
                 Kind::Two(key) => walk.two.add(
-                    key,
+                    key.clone(),
                     &block,
-                    ctx.rows,
+                    rows,
                     source,
                     caps,
-                    ctx.path,
+                    path,
                     name,
                     describe_two,
                 ),
                 Kind::Three(key) => walk.three.add(
-                    key,
+                    key.clone(),
                     &block,
-                    ctx.rows,
+                    rows,
                     source,
                     caps,
-                    ctx.path,
+                    path,
                     name,
                     describe_three,
                 ),
             };
             return added.map(|()| true).map_err(|_| Declined);
         };
-        let v = &self.values;
+        let v = &*values;
         let value = |row: usize, t: usize| {
             let i = 2 * (row * n_t + t);
             (v[i], v[i + 1])
         };
+        let new = Dataset {
+            n_t: keep,
+            caps,
+            source,
+            ctx,
+            name,
+        };
         let added = match kind {
-            Kind::Two(key) => walk.two.add_with(
-                key,
-                keep,
-                ctx.rows,
-                source,
-                caps,
-                ctx.path,
-                name,
-                describe_two,
-                value,
-            ),
-            Kind::Three(key) => walk.three.add_with(
-                key,
-                keep,
-                ctx.rows,
-                source,
-                caps,
-                ctx.path,
-                name,
-                describe_three,
-                value,
-            ),
+            Kind::Two(key) => new.add(&mut walk.two, key, slot, describe_two, value),
+            Kind::Three(key) => new.add(&mut walk.three, key, slot, describe_three, value),
         };
         added.map(|()| true).map_err(|_| Declined)
+    }
+}
+
+/// A dataset read by the fast walk, on its way into its channel.
+struct Dataset<'a> {
+    /// Time slices kept.
+    n_t: usize,
+    caps: &'a Captures,
+    source: Option<i64>,
+    ctx: &'a FileCtx<'a>,
+    name: &'a str,
+}
+
+impl Dataset<'_> {
+    /// Add the values to channel `key` of `acc`, whose place `slot` keeps between files
+    /// (when the channel depends on the dataset path alone).
+    fn add<K: Ord + Clone>(
+        self,
+        acc: &mut super::collect::Acc<K>,
+        key: &K,
+        slot: Option<&mut Option<usize>>,
+        describe: impl Fn(&K) -> String,
+        value: impl Fn(usize, usize) -> (f64, f64),
+    ) -> crate::error::Result<()> {
+        let (ctx, name) = (self.ctx, self.name);
+        let mut place = || acc.slot(key, self.n_t, self.caps, ctx.path, name);
+        let i = match slot {
+            Some(Some(i)) => *i,
+            Some(cached) => *cached.insert(place()),
+            None => place(),
+        };
+        acc.add_at(
+            i,
+            key,
+            self.n_t,
+            ctx.rows,
+            self.source,
+            ctx.path,
+            name,
+            describe,
+            value,
+        )
     }
 }
 
