@@ -25,14 +25,14 @@
 //! walk finishes, the result is the one that walk would have given, bit for bit (both add
 //! the values in the same order through `Acc::add_with`).
 
-use super::collect::{describe_three, describe_two, Kind, Walk};
-use super::dataset::{block_shape, has_signature, read_block, TypeCache};
+use super::dataset::read_block;
 use super::files::MAX_DEPTH;
+use super::open::{find_signature, has_signature};
+use super::raw::{read_raw, Counts, Declined, Id, Links, Step, Stored};
 use super::template::Captures;
-use hdf5_sys::h5::{haddr_t, herr_t, hsize_t, H5_index_t, H5_iter_order_t, HADDR_UNDEF};
+use super::walk::{describe_three, describe_two, Acc, Kind, Progress, Walk};
 use hdf5_sys::h5i::{hid_t, H5I_type_t};
 use std::collections::HashMap;
-use std::ffi::{c_char, c_void, CStr};
 use std::path::{Path, PathBuf};
 
 /// Files up to this size are read into memory once and opened from there; larger ones (one
@@ -40,31 +40,12 @@ use std::path::{Path, PathBuf};
 /// dataset.
 const IN_MEMORY_LIMIT: u64 = 256 << 20;
 
-/// How the datasets of a finished fast walk were read (for tests and measurements).
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
-pub struct Counts {
-    /// Files read into memory and opened from there.
-    pub in_memory: usize,
-    /// Datasets whose values were taken from the file's bytes.
-    pub copied: usize,
-    /// Datasets read with one library read (a type the library converts, or a large file).
-    pub library: usize,
-    /// Datasets read by the per-dataset reader of `dataset.rs` (a type not seen before,
-    /// chunked or compact storage).
-    pub per_dataset: usize,
-}
-
-/// The fast walk leaves the files to the exact walk (see the module documentation).
-struct Declined;
-
-type Step<T> = std::result::Result<T, Declined>;
-
 /// Walk every file; `None` when the walk declines (the caller then reads with its own walk).
 pub(super) fn walk<'a>(
     mut walk: Walk<'a>,
     files: &[(PathBuf, Captures)],
     configs: &[i64],
-    progress: super::collect::Progress,
+    progress: Progress,
 ) -> Option<(Walk<'a>, Counts)> {
     let mut fast = Fast::default();
     let mut first_seen = None;
@@ -159,7 +140,7 @@ impl Fast {
                 .open(path)
                 .map_err(|_| Declined)?
         } else {
-            super::dataset::find_signature(&mut f, len, path).map_err(|_| Declined)?;
+            find_signature(&mut f, len, path).map_err(|_| Declined)?;
             drop(f);
             hdf5::File::with_options()
                 .with_fapl(|p| p.evict_on_close(true))
@@ -290,7 +271,12 @@ impl Work {
             Kind::Two(_) => walk.t_extent,
             Kind::Three(key) => Some(key.tsep as usize + 1),
         };
-        let raw = read_raw(&walk.types, ctx, id, need, image, values, singles, counts)?;
+        let stored = Stored {
+            len: ctx.len,
+            axis: ctx.axis,
+            image: ctx.in_memory.then_some(image.as_slice()),
+        };
+        let raw = read_raw(&walk.types, &stored, id, need, values, singles, counts)?;
         let Some((n_t, keep)) = raw else {
             // A type not seen before, or storage that needs the creation properties: the
             // per-dataset reader, on the same open file.
@@ -365,7 +351,7 @@ impl Dataset<'_> {
     /// (when the channel depends on the dataset path alone).
     fn add<K: Ord + Clone>(
         self,
-        acc: &mut super::collect::Acc<K>,
+        acc: &mut Acc<K>,
         key: &K,
         slot: Option<&mut Option<usize>>,
         describe: impl Fn(&K) -> String,
@@ -392,240 +378,6 @@ impl Dataset<'_> {
     }
 }
 
-/// Read dataset `id` into `values` (real and imaginary parts interleaved, rows x `n_t`) with
-/// the checks of `dataset::read_block`; returns `(n_t, time slices kept)`, or `None` when the
-/// per-dataset reader must read it (a type not in `types`, storage without a file offset).
-#[allow(clippy::too_many_arguments)]
-fn read_raw(
-    types: &TypeCache,
-    ctx: &FileCtx,
-    id: hid_t,
-    need: Option<usize>,
-    image: &[u8],
-    values: &mut Vec<f64>,
-    singles: &mut Vec<f32>,
-    counts: &mut Counts,
-) -> Step<Option<(usize, usize)>> {
-    use hdf5_sys::{h5d, h5s};
-    // SAFETY (every call below): `id` is a dataset the walk holds open; the type and space
-    // identifiers are closed by their guards; buffers are sized as stated at each call.
-    let dtype = Id::new(unsafe { h5d::H5Dget_type(id) }, Id::TYPE)?;
-    let Some(known) = types.find_raw(dtype.id) else {
-        return Ok(None);
-    };
-    let space = Id::new(unsafe { h5d::H5Dget_space(id) }, Id::SPACE)?;
-    let rank = unsafe { h5s::H5Sget_simple_extent_ndims(space.id) };
-    let rank = usize::try_from(rank).map_err(|_| Declined)?;
-    let mut dims: [hsize_t; 32] = [0; 32];
-    if rank > dims.len() {
-        return Err(Declined);
-    }
-    // `dims` holds 32 values, at least `rank`.
-    if rank > 0
-        && unsafe {
-            h5s::H5Sget_simple_extent_dims(space.id, dims.as_mut_ptr(), std::ptr::null_mut())
-        } < 0
-    {
-        return Err(Declined);
-    }
-    let mut shape = [0usize; 32];
-    for (s, &d) in shape.iter_mut().zip(&dims[..rank]) {
-        *s = usize::try_from(d).map_err(|_| Declined)?;
-    }
-    let shape = &shape[..rank];
-    let (rows, n_t) = block_shape(shape, &known.storage, ctx.axis).map_err(|_| Declined)?;
-    // The size against the file, as `dataset::check_size` does for a dataset with an offset.
-    let bytes = shape
-        .iter()
-        .try_fold(known.elem as u64, |acc, &d| acc.checked_mul(d as u64))
-        .ok_or(Declined)?;
-    let offset: haddr_t = unsafe { h5d::H5Dget_offset(id) };
-    if offset == HADDR_UNDEF {
-        return Ok(None);
-    }
-    if bytes > ctx.len.saturating_sub(offset) {
-        return Err(Declined);
-    }
-    let keep = need.unwrap_or(n_t);
-    if n_t < keep {
-        return Err(Declined);
-    }
-    let single = known.storage.single();
-    let width: usize = if single { 4 } else { 8 };
-    let floats = 2 * rows * n_t;
-    let mem = known.mem_size;
-    if bytes != (floats * width) as u64 || (mem != width && mem != 2 * width) {
-        return Err(Declined);
-    }
-    values.clear();
-    if known.exact && ctx.in_memory {
-        // The library would copy these bytes unchanged (file type = memory type).
-        let start = usize::try_from(offset).map_err(|_| Declined)?;
-        let raw = image
-            .get(start..start.saturating_add(floats * width))
-            .ok_or(Declined)?;
-        if single {
-            values.extend(raw.chunks_exact(4).map(|b| {
-                let mut a = [0u8; 4];
-                a.copy_from_slice(b);
-                f64::from(f32::from_ne_bytes(a))
-            }));
-        } else {
-            values.extend(raw.chunks_exact(8).map(|b| {
-                let mut a = [0u8; 8];
-                a.copy_from_slice(b);
-                f64::from_ne_bytes(a)
-            }));
-        }
-        counts.copied += 1;
-    } else {
-        use hdf5_sys::{h5p::H5P_DEFAULT, h5s::H5S_ALL};
-        // `values` / `singles` hold `floats` values: the whole dataset in the memory type
-        // (one float, or a pair of them per element), checked above.
-        let status = if single {
-            singles.clear();
-            singles.resize(floats, 0.0);
-            let s = unsafe {
-                h5d::H5Dread(
-                    id,
-                    known.mem.id(),
-                    H5S_ALL,
-                    H5S_ALL,
-                    H5P_DEFAULT,
-                    singles.as_mut_ptr().cast(),
-                )
-            };
-            values.extend(singles.iter().map(|&x| f64::from(x)));
-            s
-        } else {
-            values.resize(floats, 0.0);
-            unsafe {
-                h5d::H5Dread(
-                    id,
-                    known.mem.id(),
-                    H5S_ALL,
-                    H5S_ALL,
-                    H5P_DEFAULT,
-                    values.as_mut_ptr().cast(),
-                )
-            }
-        };
-        if status < 0 {
-            return Err(Declined);
-        }
-        counts.library += 1;
-    }
-    for r in 0..rows {
-        let row = &values[2 * r * n_t..2 * (r * n_t + keep)];
-        if !row.iter().all(|x| x.is_finite()) {
-            return Err(Declined);
-        }
-    }
-    Ok(Some((n_t, keep)))
-}
-
-/// An identifier the walk opened, closed when dropped.
-struct Id {
-    id: hid_t,
-    close: unsafe extern "C" fn(hid_t) -> herr_t,
-}
-
-impl Id {
-    const OBJECT: unsafe extern "C" fn(hid_t) -> herr_t = hdf5_sys::h5o::H5Oclose;
-    const TYPE: unsafe extern "C" fn(hid_t) -> herr_t = hdf5_sys::h5t::H5Tclose;
-    const SPACE: unsafe extern "C" fn(hid_t) -> herr_t = hdf5_sys::h5s::H5Sclose;
-
-    /// Take ownership of `id`, the result of an open; a negative one is a failed open.
-    fn new(id: hid_t, close: unsafe extern "C" fn(hid_t) -> herr_t) -> Step<Id> {
-        if id < 0 {
-            Err(Declined)
-        } else {
-            Ok(Id { id, close })
-        }
-    }
-}
-
-impl Drop for Id {
-    fn drop(&mut self) {
-        // SAFETY: the identifier is open and owned here. A close of an identifier the walk
-        // opened read-only has nothing to flush; its status leaves nothing to act on.
-        let _status = unsafe { (self.close)(self.id) };
-    }
-}
-
-/// The links of one group, in the library's name order.
-#[derive(Default)]
-struct Links {
-    names: String,
-    items: Vec<Link>,
-}
-
-struct Link {
-    start: usize,
-    end: usize,
-    /// The object header address of a hard link.
-    addr: Option<haddr_t>,
-}
-
-impl Links {
-    /// List the links of `group` (one `H5Literate` by name, the order of the exact walk).
-    fn of(group: hid_t) -> Step<Links> {
-        let mut links = Links::default();
-        // SAFETY: `group` is open; the callback only appends to `links`, passed as its data
-        // pointer and alive for the whole call.
-        #[allow(deprecated)] // deprecated from 1.12, where it stays the address-based form
-        let status = unsafe {
-            hdf5_sys::h5l::H5Literate1(
-                group,
-                H5_index_t::H5_INDEX_NAME,
-                H5_iter_order_t::H5_ITER_NATIVE,
-                std::ptr::null_mut(),
-                Some(collect_link),
-                (&mut links as *mut Links).cast(),
-            )
-        };
-        if status < 0 {
-            return Err(Declined);
-        }
-        Ok(links)
-    }
-
-    fn name(&self, link: &Link) -> &str {
-        self.names.get(link.start..link.end).unwrap_or_default()
-    }
-}
-
-/// `H5Literate` callback: append the link's name and, for a hard link, its address. A name
-/// that is not UTF-8 stops the iteration (the walk declines).
-unsafe extern "C" fn collect_link(
-    _group: hid_t,
-    name: *const c_char,
-    info: *const hdf5_sys::h5l::H5L_info1_t,
-    data: *mut c_void,
-) -> herr_t {
-    if name.is_null() || info.is_null() || data.is_null() {
-        return -1;
-    }
-    // SAFETY: the library passes a NUL-terminated name, the link's info and the data
-    // pointer given to `H5Literate1` (a `Links` borrowed mutably for the call).
-    let (name, mut info, links) =
-        unsafe { (CStr::from_ptr(name), *info, &mut *data.cast::<Links>()) };
-    let Ok(name) = name.to_str() else {
-        return -1;
-    };
-    let addr = (info.type_ == hdf5_sys::h5l::H5L_type_t::H5L_TYPE_HARD)
-        // SAFETY: the union holds the address for a hard link.
-        .then(|| unsafe { *info.u.address() });
-    let start = links.names.len();
-    links.names.push_str(name);
-    links.items.push(Link {
-        start,
-        end: links.names.len(),
-        addr,
-    });
-    0
-}
-
 #[cfg(test)]
 mod tests {
     //! The fast walk against the exact walk on the h5py fixtures (`tests/fixtures/hdf5`,
@@ -633,9 +385,10 @@ mod tests {
     //! finishes it must give the exact walk's data bit for bit and its notes, and the counts
     //! show which of its ways read each dataset.
 
-    use super::super::collect::{read_mapped, read_with, Collected, Mode};
+    use super::super::collect::{read_mapped, read_with, Mode};
     use super::super::mapping::{Hdf5Source, Mapping};
-    use super::Counts;
+    use super::super::raw::Counts;
+    use super::super::walk::Collected;
     use crate::data::Series;
     use std::path::{Path, PathBuf};
 

@@ -1,8 +1,9 @@
 //! Finding what a mapping reads: the files a per-configuration template names, the
 //! configuration list of a layout, and every dataset path inside a file.
 
-use super::dataset::{dataset_error, open_file};
+use super::dataset::dataset_error;
 use super::mapping::{Fields, Layout, Mapping};
+use super::open::open_file;
 use super::template::{Captures, Template};
 use crate::error::{Error, Result};
 use std::collections::BTreeSet;

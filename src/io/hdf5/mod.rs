@@ -23,7 +23,13 @@ mod fast;
 #[cfg(feature = "hdf5")]
 mod files;
 #[cfg(feature = "hdf5")]
+mod open;
+#[cfg(feature = "hdf5")]
 mod packed;
+#[cfg(feature = "hdf5")]
+mod raw;
+#[cfg(feature = "hdf5")]
+mod walk;
 
 pub use mapping::{Hdf5Source, Layout, Mapping};
 
