@@ -45,42 +45,6 @@ pub fn dataset_error(file: &Path, name: &str, message: impl std::fmt::Display) -
     }
 }
 
-/// The HDF5 signature, at offset 0 or a power of two from 512 (after a user block).
-const SIGNATURE: &[u8; 8] = b"\x89HDF\r\n\x1a\n";
-
-/// Open `path` for reading after checking that it is an HDF5 file. Returns the file and its
-/// size in bytes.
-pub fn open_file(path: &Path) -> Result<(hdf5::File, u64)> {
-    use std::io::{Read, Seek, SeekFrom};
-    // Only a regular file: a FIFO would make the open wait forever.
-    let mut f = crate::io::open_regular(path)?;
-    let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
-    let mut found = false;
-    let mut offset = 0u64;
-    while offset + 8 <= len {
-        let mut sig = [0u8; 8];
-        f.seek(SeekFrom::Start(offset))
-            .and_then(|_| f.read_exact(&mut sig))
-            .map_err(|e| Error::io(path, e))?;
-        if &sig == SIGNATURE {
-            found = true;
-            break;
-        }
-        offset = if offset == 0 { 512 } else { offset * 2 };
-    }
-    if !found {
-        return Err(Error::Table {
-            path: path.to_path_buf(),
-            message: "not an HDF5 file (no HDF5 signature); expected correlators written by an HDF5 library".into(),
-        });
-    }
-    let file = hdf5::File::open(path).map_err(|e| Error::Table {
-        path: path.to_path_buf(),
-        message: format!("cannot open as HDF5 (damaged or truncated?): {e}"),
-    })?;
-    Ok((file, len))
-}
-
 macro_rules! complex_types {
     ($( $name:ident, $t:ty, $re:literal, $im:literal; )*) => {
         $(
@@ -117,7 +81,7 @@ complex_types! {
 
 /// How the complex values of a dataset are stored.
 #[derive(Clone, Copy)]
-enum Storage {
+pub enum Storage {
     /// Float array with a trailing axis of length 2.
     Pairs { single: bool },
     /// Compound with two float fields (real name, imaginary name).
@@ -126,6 +90,15 @@ enum Storage {
         im: &'static str,
         single: bool,
     },
+}
+
+impl Storage {
+    /// Whether the values are single precision.
+    pub fn single(self) -> bool {
+        match self {
+            Storage::Pairs { single } | Storage::Compound { single, .. } => single,
+        }
+    }
 }
 
 fn float_single(t: &TypeDescriptor) -> Option<bool> {
@@ -184,42 +157,80 @@ fn storage_of(t: &TypeDescriptor) -> std::result::Result<Storage, String> {
     }
 }
 
-/// The file type of the datasets read last, what it was found to hold and the memory type it
-/// is read as. Correlator files repeat one type for thousands of datasets: comparing a
-/// dataset's type with this one (`H5Tequal`) costs far less than describing the type and
-/// building the memory type again for every dataset.
+/// The file types of the datasets read recently, what each was found to hold and the memory
+/// type it is read as. Correlator files repeat a few types for thousands of datasets:
+/// comparing a dataset's type with these (`H5Tequal`) costs far less than describing the type
+/// and building the memory type again for every dataset.
 #[derive(Default)]
 pub struct TypeCache {
-    last: Option<KnownType>,
+    /// Most recently used last; at most [`TypeCache::MAX`] entries.
+    known: Vec<KnownType>,
 }
 
-struct KnownType {
-    file: hdf5::Datatype,
-    storage: Storage,
-    mem: hdf5::Datatype,
+/// A file type seen before.
+pub struct KnownType {
+    /// The file type.
+    pub file: hdf5::Datatype,
+    /// How it stores complex numbers.
+    pub storage: Storage,
+    /// The memory type the values are read as.
+    pub mem: hdf5::Datatype,
+    /// Its size in bytes.
+    pub mem_size: usize,
+    /// The size of one element of the file type in bytes.
+    pub elem: usize,
+    /// Whether the file type equals the memory type (`H5Tequal`): the library would copy the
+    /// stored bytes unchanged, so they may be taken straight from the file's bytes.
+    pub exact: bool,
 }
 
 impl TypeCache {
-    /// The storage and memory type of `dtype`, described only when it differs from the last.
+    /// Types kept.
+    const MAX: usize = 8;
+
+    /// The storage and memory type of `dtype`, described only when it differs from the
+    /// types seen before.
     fn get(&mut self, dtype: hdf5::Datatype) -> std::result::Result<&KnownType, TypeError> {
-        if !self.last.as_ref().is_some_and(|known| known.file == dtype) {
-            let desc = dtype.to_descriptor().map_err(TypeError::Library)?;
-            let storage = storage_of(&desc).map_err(TypeError::Refused)?;
-            let mem = match storage {
-                Storage::Pairs { single: false } => hdf5::Datatype::from_type::<f64>(),
-                Storage::Pairs { single: true } => hdf5::Datatype::from_type::<f32>(),
-                Storage::Compound { re, im, single } => compound_mem_type(re, im, single),
+        let found = self.known.iter().rposition(|known| known.file == dtype);
+        let index = match found {
+            Some(i) => i,
+            None => {
+                let desc = dtype.to_descriptor().map_err(TypeError::Library)?;
+                let storage = storage_of(&desc).map_err(TypeError::Refused)?;
+                let mem = match storage {
+                    Storage::Pairs { single: false } => hdf5::Datatype::from_type::<f64>(),
+                    Storage::Pairs { single: true } => hdf5::Datatype::from_type::<f32>(),
+                    Storage::Compound { re, im, single } => compound_mem_type(re, im, single),
+                }
+                .map_err(TypeError::Library)?;
+                if self.known.len() == Self::MAX {
+                    self.known.remove(0);
+                }
+                self.known.push(KnownType {
+                    mem_size: mem.size(),
+                    elem: dtype.size(),
+                    exact: mem == dtype,
+                    file: dtype,
+                    storage,
+                    mem,
+                });
+                self.known.len() - 1
             }
-            .map_err(TypeError::Library)?;
-            self.last = Some(KnownType {
-                file: dtype,
-                storage,
-                mem,
-            });
-        }
-        self.last
-            .as_ref()
+        };
+        self.known
+            .get(index)
             .ok_or_else(|| TypeError::Refused("no type".into()))
+    }
+
+    /// The known type equal to the library's datatype `id` (`H5Tequal`), if any; the caller
+    /// holds the library lock.
+    pub fn find_raw(&self, id: hdf5_sys::h5i::hid_t) -> Option<&KnownType> {
+        // SAFETY: `id` is a datatype identifier the caller holds open, and `known.file` is an
+        // open datatype; H5Tequal only reads both (a negative result, an error, is "no").
+        self.known
+            .iter()
+            .rev()
+            .find(|known| unsafe { hdf5_sys::h5t::H5Tequal(known.file.id(), id) } > 0)
     }
 }
 
@@ -250,7 +261,7 @@ pub fn read_block(
     let storage = known.storage;
     let shape = ds.shape();
     let (rows, n_t) = block_shape(&shape, &storage, config_axis).map_err(err)?;
-    check_size(&ds, known.file.size() as u64, &shape, file_len).map_err(err)?;
+    check_size(&ds, known.elem as u64, &shape, file_len).map_err(err)?;
     let keep = n_need.unwrap_or(n_t);
     if n_t < keep {
         return Err(err(format!("has {n_t} time slices; {keep} are needed")));
@@ -261,7 +272,7 @@ pub fn read_block(
 
 /// Check the dataset's axes against the layout (`(time[, 2])` per configuration, or
 /// `(configuration, time[, 2])` with `config_axis`); returns (rows, time slices).
-fn block_shape(
+pub fn block_shape(
     shape: &[usize],
     storage: &Storage,
     config_axis: Option<usize>,
@@ -354,10 +365,7 @@ fn read_values(
     mem: &hdf5::Datatype,
     floats: usize,
 ) -> hdf5::Result<Vec<f64>> {
-    let single = match storage {
-        Storage::Pairs { single } | Storage::Compound { single, .. } => single,
-    };
-    if single {
+    if storage.single() {
         Ok(read_all::<f32>(ds, mem, floats)?
             .into_iter()
             .map(f64::from)

@@ -1,8 +1,9 @@
 //! Finding what a mapping reads: the files a per-configuration template names, the
 //! configuration list of a layout, and every dataset path inside a file.
 
-use super::dataset::{dataset_error, open_file};
+use super::dataset::dataset_error;
 use super::mapping::{Fields, Layout, Mapping};
+use super::open::open_file;
 use super::template::{Captures, Template};
 use crate::error::{Error, Result};
 use std::collections::BTreeSet;
@@ -12,7 +13,7 @@ use std::path::{Path, PathBuf};
 pub type FileList = Vec<(PathBuf, Captures)>;
 
 /// Deepest group nesting walked (a damaged file may link a group into itself).
-const MAX_DEPTH: usize = 32;
+pub(super) const MAX_DEPTH: usize = 32;
 
 /// The files of a (non-packed) layout with their placeholder values, the configuration
 /// numbers in ascending order, and whether datasets hold a configuration axis.

@@ -19,9 +19,17 @@ mod collect;
 #[cfg(feature = "hdf5")]
 mod dataset;
 #[cfg(feature = "hdf5")]
+mod fast;
+#[cfg(feature = "hdf5")]
 mod files;
 #[cfg(feature = "hdf5")]
+mod open;
+#[cfg(feature = "hdf5")]
 mod packed;
+#[cfg(feature = "hdf5")]
+mod raw;
+#[cfg(feature = "hdf5")]
+mod walk;
 
 pub use mapping::{Hdf5Source, Layout, Mapping};
 
