@@ -13,6 +13,7 @@
 //! [`NegativeRootPolicy`] and counted per channel; a non-finite ratio (a two-point function
 //! that is zero) is an error naming the channel.
 
+use super::factors::Factors;
 use super::lsq::CovarianceSetup;
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
 use crate::data::{
@@ -170,13 +171,14 @@ pub fn build_ratios(
         settings.two_point_smear.clone(),
     );
     let mut out: BTreeMap<ChannelKey, ChannelRatio> = BTreeMap::new();
+    let factors = Factors::default();
     for (key3, series) in &c3.channels {
         let key = ChannelKey::of(key3);
         two_point.prepare(key3, series, &key)?;
         let entry = out
             .entry(key)
             .or_insert_with_key(|key| two_point.empty_ratio(key));
-        add_points(entry, key3.tsep, series, plan, settings)?;
+        add_points(entry, key3.tsep, series, plan, settings, &factors)?;
     }
     for ratio in out.values_mut() {
         ratio.sort_points();
@@ -220,39 +222,32 @@ pub(super) fn add_points(
     series: &Series,
     plan: &ResamplePlan,
     settings: &RatioSettings,
+    factors: &Factors,
 ) -> Result<()> {
     let (c2i, c2f) = (entry.c2_source.clone(), entry.c2_sink.clone());
     let key = &entry.key;
-    for tau in 0..=tsep {
+    let row = factors.get((key.source_momentum(), key.pf), tsep, &c2i, &c2f);
+    let Some(row) = row.get() else {
+        return Err(Error::analysis(
+            STAGE,
+            format!("channel {key}, tsep {tsep}: the two-point factors are missing"),
+        ));
+    };
+    for (tau, point) in (0..=tsep).zip(row) {
         let t = tau as usize;
-        let ts = tsep as usize;
-        let c3re = plan.mean(series.re_at(t));
-        let c3im = plan.mean(series.im_at(t));
-        let product = Resampled::combine_array(
-            [
-                &c2i[ts - t],
-                &c2f[t],
-                &c2f[ts],
-                &c2f[ts - t],
-                &c2i[t],
-                &c2i[ts],
-            ],
-            |x| (x[0] * x[1] * x[2]) / (x[3] * x[4] * x[5]),
-        );
-        let negatives = usize::from(product.central < 0.0)
-            + product.samples.iter().filter(|&&x| x < 0.0).count();
-        if negatives > 0 {
-            entry.negative_root.samples += negatives;
+        if point.negatives > 0 {
+            entry.negative_root.samples += point.negatives;
             entry.negative_root.points_affected += 1;
-            if settings.negative_root == NegativeRootPolicy::DropPoint && product.central < 0.0 {
+            if settings.negative_root == NegativeRootPolicy::DropPoint && point.central_negative {
                 entry.negative_root.points_dropped += 1;
                 continue;
             }
         }
-        let factor = Resampled::combine_array([&product, &c2f[ts]], |x| x[0].abs().sqrt() / x[1]);
+        let c3re = plan.mean(series.re_at(t));
+        let c3im = plan.mean(series.im_at(t));
         let value = ReIm {
-            re: &c3re * &factor,
-            im: &c3im * &factor,
+            re: &c3re * &point.factor,
+            im: &c3im * &point.factor,
         };
         if !value.re.is_finite() || !value.im.is_finite() {
             return Err(Error::analysis(

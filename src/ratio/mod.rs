@@ -70,6 +70,7 @@ pub mod average;
 pub mod build;
 pub mod crosscheck;
 pub mod estimator;
+mod factors;
 pub mod formfactor_check;
 mod lsq;
 pub mod plateau;

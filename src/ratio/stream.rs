@@ -14,6 +14,7 @@
 
 use super::analyse::{analyse_channel, ChannelResult};
 use super::build::{add_points, check_bins, TwoPointMeans, TwoPointSource};
+use super::factors::Factors;
 use super::{ChannelKey, ChannelRatio, Estimator, RatioSettings, TwoPointStates, STAGE};
 use crate::data::{Momentum, Series, ThreePointData, ThreePointKey, TwoPointData};
 use crate::resample::ResamplePlan;
@@ -143,13 +144,14 @@ fn analyse_grouped<S: Borrow<Series> + Send>(
     let checks_passed = failed.is_none();
     let total = channels.len();
     let done = AtomicUsize::new(0);
+    let factors = Factors::default();
     progress(0, total);
     let outcomes: Vec<Outcome> = channels
         .into_par_iter()
         .map(|input| {
             let ChannelInput { mut ratio, series } = input;
             for (i, tsep, s) in series {
-                if let Err(e) = add_points(&mut ratio, tsep, s.borrow(), plan, settings) {
+                if let Err(e) = add_points(&mut ratio, tsep, s.borrow(), plan, settings, &factors) {
                     return Outcome::BuildFailed(i, e);
                 }
             }
