@@ -227,13 +227,7 @@ pub(super) fn add_points(
     let (c2i, c2f) = (entry.c2_source.clone(), entry.c2_sink.clone());
     let key = &entry.key;
     let row = factors.get((key.source_momentum(), key.pf), tsep, &c2i, &c2f);
-    let Some(row) = row.get() else {
-        return Err(Error::analysis(
-            STAGE,
-            format!("channel {key}, tsep {tsep}: the two-point factors are missing"),
-        ));
-    };
-    for (tau, point) in (0..=tsep).zip(row) {
+    for (tau, point) in (0..=tsep).zip(row.iter()) {
         let t = tau as usize;
         if point.negatives > 0 {
             entry.negative_root.samples += point.negatives;

@@ -21,8 +21,8 @@ pub(super) struct PointFactor {
     pub factor: Resampled,
 }
 
-/// The factors of one `(p_i, p_f, tsep)`, one per `tau = 0..=tsep`.
-type Row = Arc<OnceLock<Vec<PointFactor>>>;
+/// The factors of one `(p_i, p_f, tsep)`, one per `tau = 0..=tsep`, once computed.
+type Row = Arc<OnceLock<Arc<[PointFactor]>>>;
 
 /// The factors of every `(p_i, p_f, tsep)` a stage has met, shared between its threads.
 #[derive(Default)]
@@ -40,15 +40,14 @@ impl Factors {
         tsep: u32,
         c2i: &[Resampled],
         c2f: &[Resampled],
-    ) -> Arc<OnceLock<Vec<PointFactor>>> {
+    ) -> Arc<[PointFactor]> {
         let row = {
             // A poisoned lock only means another thread panicked while inserting: the map
             // itself is still whole.
             let mut rows = self.rows.lock().unwrap_or_else(|e| e.into_inner());
             rows.entry((pi, pf, tsep)).or_default().clone()
         };
-        row.get_or_init(|| compute(tsep, c2i, c2f));
-        row
+        row.get_or_init(|| compute(tsep, c2i, c2f).into()).clone()
     }
 }
 
@@ -110,7 +109,7 @@ mod tests {
         let b = cache.get((pi, pf), 6, &c2i, &c2f);
         assert!(Arc::ptr_eq(&a, &b));
         assert!(!Arc::ptr_eq(&a, &cache.get((pi, pf), 4, &c2i, &c2f)));
-        let row = a.get().expect("computed");
+        let row = &a;
         assert_eq!(row.len(), 7);
         let (ts, t) = (6usize, 2usize);
         let want = |i: &[f64], f: &[f64]| {

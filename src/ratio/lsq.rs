@@ -5,8 +5,10 @@
 //! In a jackknife run each resample weights its points by its own errors (the variances
 //! rescaled by the spread of the jackknife pseudo-values it keeps, as the spectrum stage does
 //! with its bins), because weights estimated from few bins vary with the data and frozen ones
-//! leave that variation out of the error; every resample is then solved on its own, by QR in
-//! buffers allocated once per fit ([`linear::Workspace`]). Bootstrap samples have no per-bin
+//! leave that variation out of the error; every resample is then solved on its own, by the
+//! normal equations for uncorrelated weights ([`linear::Uncorrelated`], a fixed design for all
+//! resamples at once) and by QR otherwise or where those leave it ([`linear::Workspace`]), in
+//! buffers allocated once per fit. Bootstrap samples have no per-bin
 //! values to rescale by: their weights stay frozen, and a design that is the same for every
 //! resample (plateau, summation) is factorised once and applied to all resamples as one
 //! product ([`linear::FixedDesign`]).
@@ -178,9 +180,11 @@ pub(crate) fn fit_resampled(
 
 /// Every resample solved on its own (buffers allocated once per fit), its design and data
 /// rows divided by its scales when given. Uncorrelated weights with at most four parameters
-/// (every fit of the stage with the default weights) go through [`linear::Uncorrelated`]'s
-/// normal equations; a fit it leaves, and correlated weights, through [`linear::Workspace`]'s
-/// QR, which decides every error.
+/// (every fit of the stage with the default weights) go through the normal equations: a fixed
+/// design (plateau, summation) with scales for all resamples at once
+/// ([`linear::solve_fixed_uncorrelated`]), otherwise per resample ([`linear::Uncorrelated`]);
+/// a resample they leave, and correlated weights, go through [`linear::Workspace`]'s QR, which
+/// decides every error.
 fn per_sample(
     points: &[Resampled],
     design: &Design<'_>,
@@ -191,7 +195,30 @@ fn per_sample(
     let params = design.n_params();
     let n = points.len();
     let n_samples = points.first().map_or(0, Resampled::len);
-    let mut per_param = vec![Vec::with_capacity(n_samples); params];
+    let mut per_param = vec![vec![0.0; n_samples]; params];
+    // The whitening diagonal of uncorrelated weights, for fits the normal equations take.
+    let diagonal = w
+        .diagonal_factors()
+        .filter(|_| params <= linear::Uncorrelated::MAX_PARAMS);
+    // Row weight of point `i` in resample `s`: its whitening factor over its scale there.
+    let row_weight = |d: &[f64], i: usize, s: usize| match scales {
+        Some(scales) => d[i] * (1.0 / scales[i][s]),
+        None => d[i],
+    };
+    let solved = match (design, scales, &diagonal) {
+        (Design::Fixed(fixed), Some(_), Some(d)) => {
+            let r: Vec<Vec<f64>> = (0..n)
+                .map(|i| (0..n_samples).map(|s| row_weight(d, i, s)).collect())
+                .collect();
+            let ys: Vec<&[f64]> = points.iter().map(|p| p.samples.as_slice()).collect();
+            let rs: Vec<&[f64]> = r.iter().map(Vec::as_slice).collect();
+            linear::solve_fixed_uncorrelated(fixed, &ys, &rs, &mut per_param)
+        }
+        _ => vec![false; n_samples],
+    };
+    if solved.len() == n_samples && solved.iter().all(|&ok| ok) {
+        return Ok(per_param);
+    }
     let mut y = vec![0.0; n];
     let mut a = DMatrix::zeros(n, params);
     if let Design::Fixed(fixed) = design {
@@ -200,61 +227,23 @@ fn per_sample(
     let mut x = vec![0.0; params];
     let mut qr = linear::Workspace::new(n, params);
     let mut scaled = (DMatrix::zeros(0, 0), Vec::new());
-    // A fixed design (plateau, summation) with uncorrelated weights and scales: every
-    // resample at once; only those it leaves go through the loop below.
-    let batch = match (design, scales, w.diagonal_factors()) {
-        (Design::Fixed(fixed), Some(scales), Some(d))
-            if params <= linear::Uncorrelated::MAX_PARAMS =>
-        {
-            let r: Vec<Vec<f64>> = scales
-                .iter()
-                .zip(&d)
-                .map(|(sc, d)| sc.iter().map(|v| d * (1.0 / v)).collect())
-                .collect();
-            let ys: Vec<&[f64]> = points.iter().map(|p| p.samples.as_slice()).collect();
-            let rs: Vec<&[f64]> = r.iter().map(Vec::as_slice).collect();
-            let solved = linear::solve_fixed_uncorrelated(fixed, &ys, &rs, &mut per_param);
-            Some(solved)
-        }
-        _ => None,
-    };
-    if let Some(solved) = &batch {
-        if solved.len() == n_samples && solved.iter().all(|&ok| ok) {
-            return Ok(per_param);
-        }
-        // The resamples left to the loop below are written in place.
-        for out in per_param.iter_mut() {
-            out.resize(n_samples, 0.0);
-        }
-    }
-    let mut fast = w
-        .diagonal_factors()
+    let mut fast = diagonal
+        .as_ref()
         .and_then(|d| linear::Uncorrelated::new(n, params).map(|f| (f, d, vec![0.0; n])));
-    for s in 0..n_samples {
-        if batch
-            .as_ref()
-            .is_some_and(|solved| solved.get(s) == Some(&true))
-        {
-            continue;
-        }
+    for s in (0..n_samples).filter(|&s| solved.get(s) != Some(&true)) {
         for (y, p) in y.iter_mut().zip(points) {
             *y = p.samples[s];
         }
         if let Design::PerSample { fill, .. } = design {
             fill(Some(s), &mut a);
         }
-        let solved = fast.as_mut().is_some_and(|(solver, d, r)| {
-            match scales {
-                Some(scales) => {
-                    for ((r, d), point_scales) in r.iter_mut().zip(d.iter()).zip(scales) {
-                        *r = d * (1.0 / point_scales[s]);
-                    }
-                }
-                None => r.copy_from_slice(d),
+        let done = fast.as_mut().is_some_and(|(solver, d, r)| {
+            for (i, r) in r.iter_mut().enumerate() {
+                *r = row_weight(d, i, s);
             }
             solver.try_solve(&a, &y, r, &mut x)
         });
-        if !solved {
+        if !done {
             let (a_s, y_s) = &mut scaled;
             a_s.clone_from(&a);
             y_s.clone_from(&y);
@@ -270,10 +259,7 @@ fn per_sample(
             qr.solve(a_s, y_s, w, &mut x).map_err(wrap(what))?;
         }
         for (out, v) in per_param.iter_mut().zip(&x) {
-            match batch {
-                Some(_) => out[s] = *v,
-                None => out.push(*v),
-            }
+            out[s] = *v;
         }
     }
     Ok(per_param)

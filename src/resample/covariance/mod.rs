@@ -177,15 +177,7 @@ fn diagonal_estimate(
     let n = values[0].len();
     let d = values.len();
     let scheme = values[0].scheme;
-    let scale = if scheme == Scheme::Jackknife {
-        n as f64 - 1.0
-    } else {
-        1.0
-    };
-    let norm = match scheme {
-        Scheme::Jackknife => 1.0 / (n as f64 * (n as f64 - 1.0)),
-        Scheme::Bootstrap => 1.0 / (n as f64 - 1.0),
-    };
+    let (scale, norm) = (deviation_scale(n, scheme), product_norm(n, scheme));
     let mut variances = Vec::with_capacity(d);
     for (i, v) in values.iter().enumerate() {
         let mean = v.sample_mean();
@@ -274,11 +266,7 @@ fn check_inputs(values: &[Resampled], opts: &CovarianceOptions, n_bins: usize) -
 /// zero variance.
 fn sample_covariance(y: &DMatrix<f64>, scheme: Scheme) -> Result<DMatrix<f64>> {
     let (n, d) = y.shape();
-    let norm = match scheme {
-        Scheme::Jackknife => 1.0 / (n as f64 * (n as f64 - 1.0)),
-        Scheme::Bootstrap => 1.0 / (n as f64 - 1.0),
-    };
-    let full = y.transpose() * y * norm;
+    let full = y.transpose() * y * product_norm(n, scheme);
     if let Some(i) = (0..d).find(|&i| full[(i, i)] <= 0.0) {
         return Err(zero_variance(i, d));
     }
@@ -339,12 +327,29 @@ fn diagnose(
     warnings
 }
 
+/// The factor of each sample's deviation from the sample mean: `n - 1` for the jackknife
+/// (whose samples lie `n - 1` times closer together than the bins), 1 for the bootstrap.
+fn deviation_scale(n: usize, scheme: Scheme) -> f64 {
+    match scheme {
+        Scheme::Jackknife => n as f64 - 1.0,
+        Scheme::Bootstrap => 1.0,
+    }
+}
+
+/// The normalisation of a sum of products of scaled deviations over `n` samples:
+/// `1/(n (n-1))` for the jackknife, `1/(n-1)` for the bootstrap.
+fn product_norm(n: usize, scheme: Scheme) -> f64 {
+    match scheme {
+        Scheme::Jackknife => 1.0 / (n as f64 * (n as f64 - 1.0)),
+        Scheme::Bootstrap => 1.0 / (n as f64 - 1.0),
+    }
+}
+
 /// Deviation matrix `y` (`n × d`): per-configuration-like deviations of every sample.
 fn deviations(values: &[Resampled]) -> DMatrix<f64> {
     // safe: the caller has run `check_compatible` (non-empty, one plan).
     let n = values[0].len();
-    let jack = values[0].scheme == Scheme::Jackknife;
-    let scale = if jack { n as f64 - 1.0 } else { 1.0 };
+    let scale = deviation_scale(n, values[0].scheme);
     let means: Vec<f64> = values.iter().map(Resampled::sample_mean).collect();
     DMatrix::from_fn(n, values.len(), |k, i| {
         (values[i].samples[k] - means[i]) * scale
