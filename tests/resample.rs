@@ -13,7 +13,9 @@ use formfactory::resample::covariance::{
     ShrinkageTarget,
 };
 use formfactory::resample::inflation::{self, Inflation};
-use formfactory::resample::{fmt_value_error, Part, ResamplePlan, Resampled, Scheme};
+use formfactory::resample::{
+    covariance_of, fmt_value_error, Part, ResamplePlan, Resampled, Scheme,
+};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::path::PathBuf;
@@ -325,6 +327,23 @@ fn resampled_helpers() {
     let s = j.summary();
     assert_eq!(s.n_samples, 4);
     assert_relative_eq!(s.error, j.error());
+    // summary() and variance() compute the samples' mean once; they must give the bits of
+    // the definitions they stand for (covariance of the samples with themselves, the
+    // bias-corrected value and the mean computed on their own).
+    let irregular: Vec<f64> = (0..1001)
+        .map(|i| (i as f64 * 0.37).sin() * 1e-3 + 0.8)
+        .collect();
+    for scheme in [Scheme::Jackknife, Scheme::Bootstrap] {
+        let v = Resampled::new(0.8, irregular.clone(), scheme);
+        let by_definition = covariance_of(&v.samples, &v.samples, scheme);
+        assert_eq!(v.variance().to_bits(), by_definition.to_bits());
+        let s = v.summary();
+        assert_eq!(s.error.to_bits(), by_definition.sqrt().to_bits());
+        assert_eq!(s.bias_corrected.to_bits(), v.bias_corrected().to_bits());
+        assert_eq!(s.sample_mean.to_bits(), v.sample_mean().to_bits());
+    }
+    let single = Resampled::new(1.0, vec![1.0], Scheme::Jackknife).summary();
+    assert!(single.error.is_nan());
 }
 
 #[test]

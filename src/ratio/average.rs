@@ -71,11 +71,7 @@ pub fn average_channels(
                 re = &re + &(&v.re * (*sign / n));
                 im = &im + &(&v.im * (*sign / n));
             }
-            RatioPoint {
-                tsep: p.tsep,
-                tau: p.tau,
-                value: ReIm { re, im },
-            }
+            RatioPoint::new(p.tsep, p.tau, ReIm { re, im })
         })
         .collect();
     let mut negative_root = NegativeRootCount::default();

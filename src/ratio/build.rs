@@ -14,7 +14,7 @@
 //! that is zero) is an error naming the channel.
 
 use super::factors::Factors;
-use super::lsq::CovarianceSetup;
+use super::lsq::{CovarianceSetup, PointScales};
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
 use crate::data::{
     momentum_text, Momentum, Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey,
@@ -34,6 +34,21 @@ pub struct RatioPoint {
     pub tau: u32,
     /// Real and imaginary parts of the ratio.
     pub value: ReIm,
+    /// The jackknife scales of `value`, kept for the channel's fits of this point.
+    #[serde(skip)]
+    pub(crate) scales: PointScales,
+}
+
+impl RatioPoint {
+    /// The ratio `value` at `(tsep, tau)`.
+    pub fn new(tsep: u32, tau: u32, value: ReIm) -> Self {
+        RatioPoint {
+            tsep,
+            tau,
+            value,
+            scales: PointScales::default(),
+        }
+    }
 }
 
 /// How often the product under the root was negative in one channel.
@@ -254,7 +269,7 @@ pub(super) fn add_points(
                 ),
             ));
         }
-        entry.points.push(RatioPoint { tsep, tau, value });
+        entry.points.push(RatioPoint::new(tsep, tau, value));
     }
     Ok(())
 }

@@ -21,6 +21,7 @@ use crate::resample::ResamplePlan;
 use crate::resample::{stable_mean, Resampled, Scheme};
 use crate::{Error, Result};
 use nalgebra::DMatrix;
+use std::sync::OnceLock;
 
 /// How the covariance of fitted points is estimated.
 #[derive(Clone, Copy, Debug)]
@@ -75,20 +76,57 @@ impl Design<'_> {
 /// [`ResamplePlan::sample_error_scales`] of them. `None` for bootstrap samples (no per-bin
 /// values to take them from) and when a scale is not finite.
 pub(crate) fn jackknife_sample_scales(points: &[Resampled]) -> Option<Vec<Vec<f64>>> {
-    let first = points.first()?;
-    if first.scheme != Scheme::Jackknife || first.len() < 3 {
+    let n = points.first()?.len();
+    let mut pseudo = vec![0.0; n];
+    points
+        .iter()
+        .map(|p| point_scales(p, &mut pseudo).filter(|s| s.len() == n))
+        .collect()
+}
+
+/// One point's part of [`jackknife_sample_scales`]: `None` for bootstrap samples, fewer than
+/// three samples, or a scale that is not finite and positive.
+fn point_scales(p: &Resampled, pseudo: &mut Vec<f64>) -> Option<Vec<f64>> {
+    if p.scheme != Scheme::Jackknife || p.len() < 3 {
         return None;
     }
-    let n = first.len();
-    let mut pseudo = vec![0.0; n];
-    let per_point: Vec<Vec<f64>> = points
-        .iter()
-        .map(|p| pseudo_value_scales(p, &mut pseudo))
-        .collect();
-    let finite = per_point
-        .iter()
-        .all(|s| s.len() == n && s.iter().all(|v| v.is_finite() && *v > 0.0));
-    finite.then_some(per_point)
+    pseudo.resize(p.len(), 0.0);
+    let s = pseudo_value_scales(p, pseudo);
+    s.iter().all(|v| v.is_finite() && *v > 0.0).then_some(s)
+}
+
+/// A ratio point's [`jackknife_sample_scales`], real and imaginary part, computed when the
+/// first fit asks for them and kept for the channel's other fits of the same point (the
+/// plateau at its separation and the two-state fits). A cache: it takes no part in the
+/// point's equality.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct PointScales {
+    re: OnceLock<Option<Vec<f64>>>,
+    im: OnceLock<Option<Vec<f64>>>,
+}
+
+impl PartialEq for PointScales {
+    fn eq(&self, _: &Self) -> bool {
+        true
+    }
+}
+
+impl PointScales {
+    fn get(&self, part: Part, value: &ReIm) -> Option<&[f64]> {
+        let (cell, v) = match part {
+            Part::Re => (&self.re, &value.re),
+            Part::Im => (&self.im, &value.im),
+        };
+        cell.get_or_init(|| point_scales(v, &mut Vec::new()))
+            .as_deref()
+    }
+}
+
+/// The real or the imaginary part of a fit.
+#[derive(Clone, Copy)]
+enum Part {
+    Re,
+    Im,
 }
 
 /// [`ResamplePlan::sample_error_scales`] of the jackknife pseudo-values of `p` (`pseudo`: a
@@ -138,7 +176,7 @@ pub(crate) fn fit_resampled(
     points: &[Resampled],
     design: &Design<'_>,
     w: &Weights,
-    scales: Option<&[Vec<f64>]>,
+    scales: Option<&[&[f64]]>,
     what: &str,
 ) -> Result<(Vec<Resampled>, FitQuality)> {
     let y: Vec<f64> = points.iter().map(|p| p.central).collect();
@@ -189,7 +227,7 @@ fn per_sample(
     points: &[Resampled],
     design: &Design<'_>,
     w: &Weights,
-    scales: Option<&[Vec<f64>]>,
+    scales: Option<&[&[f64]]>,
     what: &str,
 ) -> Result<Vec<Vec<f64>>> {
     let params = design.n_params();
@@ -268,16 +306,22 @@ fn per_sample(
 /// Fit the real and the imaginary parts of `points` separately with the same design (see
 /// [`fit_resampled`]). A part that is exactly zero on every point and sample (data without an
 /// imaginary part, say) gives exactly zero parameters without a fit: its covariance is zero.
-/// Returns the parameters and, in a [`ReImFit`], the first of them with the fit qualities and
-/// the covariance warnings.
+/// `cached`, one per point, keeps the points' jackknife scales for other fits of the same
+/// points (`None`: computed for this fit alone). Returns the parameters and, in a [`ReImFit`],
+/// the first of them with the fit qualities and the covariance warnings.
 pub(crate) fn fit_re_im(
     points: &[&ReIm],
+    cached: Option<&[&PointScales]>,
     design: Design<'_>,
     cov: CovarianceSetup<'_>,
     what: &str,
 ) -> Result<(Vec<ReIm>, ReImFit)> {
     let mut warnings = Vec::new();
-    let mut part = |values: Vec<Resampled>, name: &str| -> Result<(Vec<Resampled>, FitQuality)> {
+    let mut part = |part: Part| -> Result<(Vec<Resampled>, FitQuality)> {
+        let (values, name): (Vec<Resampled>, _) = match part {
+            Part::Re => (points.iter().map(|p| p.re.clone()).collect(), "real"),
+            Part::Im => (points.iter().map(|p| p.im.clone()).collect(), "imaginary"),
+        };
         let what = format!("{what} ({name} part)");
         let k = design.n_params();
         let n = values.len();
@@ -306,11 +350,27 @@ pub(crate) fn fit_re_im(
         warnings.extend(warn.into_iter().map(|m| format!("{what}: {m}")));
         // Each jackknife resample weights its points by its own errors (as the spectrum
         // stage); bootstrap samples have no per-bin values to take them from.
-        let scales = jackknife_sample_scales(&values);
+        let owned;
+        let scales: Option<Vec<&[f64]>> = match cached {
+            Some(cached) if cached.len() == n => {
+                let len = values.first().map_or(0, Resampled::len);
+                cached
+                    .iter()
+                    .zip(points)
+                    .map(|(c, p)| c.get(part, p).filter(|s| s.len() == len))
+                    .collect()
+            }
+            _ => {
+                owned = jackknife_sample_scales(&values);
+                owned
+                    .as_ref()
+                    .map(|s| s.iter().map(Vec::as_slice).collect())
+            }
+        };
         fit_resampled(&values, &design, &w, scales.as_deref(), &what)
     };
-    let (re, quality_re) = part(points.iter().map(|p| p.re.clone()).collect(), "real")?;
-    let (im, quality_im) = part(points.iter().map(|p| p.im.clone()).collect(), "imaginary")?;
+    let (re, quality_re) = part(Part::Re)?;
+    let (im, quality_im) = part(Part::Im)?;
     let params: Vec<ReIm> = re
         .into_iter()
         .zip(im)
@@ -334,6 +394,7 @@ pub(crate) fn fit_re_im(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::resample::covariance::CovarianceOptions;
     use approx::assert_relative_eq;
 
     fn bins(seed: u64, n: usize) -> Vec<f64> {
@@ -372,13 +433,15 @@ mod tests {
         // Scales of 1 give the factorised (frozen-weight) fit.
         let ones = vec![vec![1.0; n]; 4];
         let (frozen, _) = fit_resampled(&points, &design, &w, None, "test").unwrap();
+        let ones: Vec<&[f64]> = ones.iter().map(Vec::as_slice).collect();
         let (same, _) = fit_resampled(&points, &design, &w, Some(&ones), "test").unwrap();
         for (a, b) in frozen[0].samples.iter().zip(&same[0].samples) {
             assert_relative_eq!(*a, *b, max_relative = 1e-12);
         }
         // With its own scales, sample j of a constant fit is the weighted mean with weights
         // 1/(sigma_i s_ij)^2 (definition of the weighted least-squares constant).
-        let (own, _) = fit_resampled(&points, &design, &w, Some(&scales), "test").unwrap();
+        let own_scales: Vec<&[f64]> = scales.iter().map(Vec::as_slice).collect();
+        let (own, _) = fit_resampled(&points, &design, &w, Some(&own_scales), "test").unwrap();
         for (j, fitted) in own[0].samples.iter().enumerate() {
             let wts: Vec<f64> = errors
                 .iter()
@@ -396,5 +459,46 @@ mod tests {
         // Bootstrap samples: no scales.
         let boot = ResamplePlan::bootstrap(n, 20, 1);
         assert!(jackknife_sample_scales(&[boot.mean(&data[0])]).is_none());
+    }
+
+    // The cache is an optimisation only: a fit with cached scales, and a second fit reusing
+    // them, give the bits of a fit that computes them itself.
+    #[test]
+    fn cached_scales_give_the_same_fit_bit_for_bit() {
+        let n = 11;
+        let plan = ResamplePlan::jackknife(n);
+        let points: Vec<ReIm> = (0..5)
+            .map(|k| ReIm {
+                re: plan.mean(&bins(k, n)),
+                im: plan.mean(&bins(k + 7, n)),
+            })
+            .collect();
+        let refs: Vec<&ReIm> = points.iter().collect();
+        let caches = vec![PointScales::default(); points.len()];
+        let cached: Vec<&PointScales> = caches.iter().collect();
+        let options = CovarianceOptions::default();
+        let cov = CovarianceSetup {
+            options: &options,
+            n_bins: n,
+        };
+        let line = || Design::Fixed(DMatrix::from_fn(5, 2, |i, j| (i * j) as f64 + 1.0));
+        let bits = |fit: &[ReIm]| -> Vec<u64> {
+            fit.iter()
+                .flat_map(|p| {
+                    let (re, im) = (&p.re, &p.im);
+                    let all = re.samples.iter().chain(&im.samples);
+                    [re.central, im.central].into_iter().chain(all.copied())
+                })
+                .map(f64::to_bits)
+                .collect()
+        };
+        let (plain, _) = fit_re_im(&refs, None, line(), cov, "test").unwrap();
+        let (first, _) = fit_re_im(&refs, Some(&cached), line(), cov, "test").unwrap();
+        let (again, _) = fit_re_im(&refs, Some(&cached), line(), cov, "test").unwrap();
+        assert!(caches
+            .iter()
+            .all(|c| c.re.get().is_some_and(Option::is_some)));
+        assert_eq!(bits(&plain), bits(&first));
+        assert_eq!(bits(&plain), bits(&again));
     }
 }

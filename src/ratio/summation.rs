@@ -69,6 +69,7 @@ pub fn summation(ratio: &ChannelRatio, settings: &RatioSettings) -> Result<Summa
     let what = format!("summation for channel {}", ratio.key);
     let (params, mut slope) = fit_re_im(
         &refs,
+        None,
         Design::Fixed(design),
         ratio.covariance(settings),
         &what,

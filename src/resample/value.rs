@@ -101,9 +101,13 @@ impl Resampled {
         self.variance().sqrt()
     }
 
-    /// Variance appropriate to the scheme (NaN with fewer than two samples).
+    /// Variance appropriate to the scheme (NaN with fewer than two samples): the
+    /// [`covariance_of`] the samples with themselves, their mean computed once.
     pub fn variance(&self) -> f64 {
-        covariance_of(&self.samples, &self.samples, self.scheme)
+        if self.samples.len() < 2 {
+            return f64::NAN;
+        }
+        variance_about(&self.samples, stable_mean(&self.samples), self.scheme)
     }
 
     /// Covariance with another value of the same scheme and length (NaN when the lengths
@@ -119,11 +123,12 @@ impl Resampled {
 
     /// Bias-corrected estimate: `N c - (N-1) mean` (jackknife), `2 c - mean` (bootstrap).
     pub fn bias_corrected(&self) -> f64 {
-        let n = self.samples.len() as f64;
-        match self.scheme {
-            Scheme::Jackknife => n * self.central - (n - 1.0) * self.sample_mean(),
-            Scheme::Bootstrap => 2.0 * self.central - self.sample_mean(),
-        }
+        bias_corrected_with(
+            self.central,
+            self.sample_mean(),
+            self.samples.len(),
+            self.scheme,
+        )
     }
 
     /// Estimated bias of the central value: `central - bias_corrected()`, i.e.
@@ -132,14 +137,23 @@ impl Resampled {
         self.central - self.bias_corrected()
     }
 
-    /// Central value, error, bias-corrected value and sample count in one record.
+    /// Central value, error, bias-corrected value and sample count in one record: the same
+    /// numbers as [`Self::error`], [`Self::bias_corrected`] and [`Self::sample_mean`], the
+    /// samples' mean computed once for all three.
     pub fn summary(&self) -> Summary {
+        let n = self.samples.len();
+        let mean = self.sample_mean();
+        let error = if n < 2 {
+            f64::NAN
+        } else {
+            variance_about(&self.samples, mean, self.scheme).sqrt()
+        };
         Summary {
             central: self.central,
-            error: self.error(),
-            bias_corrected: self.bias_corrected(),
-            sample_mean: self.sample_mean(),
-            n_samples: self.samples.len(),
+            error,
+            bias_corrected: bias_corrected_with(self.central, mean, n, self.scheme),
+            sample_mean: mean,
+            n_samples: n,
             scheme: self.scheme,
         }
     }
@@ -360,9 +374,32 @@ pub fn covariance_of(a: &[f64], b: &[f64], scheme: Scheme) -> f64 {
     let ma = stable_mean(a);
     let mb = stable_mean(b);
     let s: f64 = a.iter().zip(b).map(|(x, y)| (x - ma) * (y - mb)).sum();
+    product_sum_norm(s, n, scheme)
+}
+
+/// [`covariance_of`] `a` with itself given its [`stable_mean`] `mean` (the same operations,
+/// so the same bits); `a` has at least two samples.
+fn variance_about(a: &[f64], mean: f64, scheme: Scheme) -> f64 {
+    let s: f64 = a.iter().map(|x| (x - mean) * (x - mean)).sum();
+    product_sum_norm(s, a.len(), scheme)
+}
+
+/// A sum of `n` products of deviations from the mean turned into a (co)variance: the
+/// jackknife's `(n-1)/n` or the bootstrap's `1/(n-1)`.
+fn product_sum_norm(s: f64, n: usize, scheme: Scheme) -> f64 {
     match scheme {
         Scheme::Jackknife => s * (n as f64 - 1.0) / n as f64,
         Scheme::Bootstrap => s / (n as f64 - 1.0),
+    }
+}
+
+/// The bias-corrected estimate from the central value and the samples' mean (see
+/// [`Resampled::bias_corrected`]).
+fn bias_corrected_with(central: f64, mean: f64, n: usize, scheme: Scheme) -> f64 {
+    let n = n as f64;
+    match scheme {
+        Scheme::Jackknife => n * central - (n - 1.0) * mean,
+        Scheme::Bootstrap => 2.0 * central - mean,
     }
 }
 

@@ -360,7 +360,14 @@ pub fn two_state_fixed(
             fill: &fill,
         }
     };
-    let (params, m) = fit_re_im(&values, design, ratio.covariance(settings), &what)?;
+    let cached: Vec<_> = setup.points.iter().map(|p| &p.scales).collect();
+    let (params, m) = fit_re_im(
+        &values,
+        Some(&cached),
+        design,
+        ratio.covariance(settings),
+        &what,
+    )?;
     let mut it = params.into_iter().skip(1);
     let missing = || Error::analysis(STAGE, format!("{what}: missing parameters"));
     let c_i = it.next().ok_or_else(missing)?;
@@ -433,11 +440,7 @@ mod tests {
         };
         let points: Vec<RatioPoint> = [(8u32, 2u32), (8, 6), (12, 3), (16, 8), (16, 14)]
             .iter()
-            .map(|&(tsep, tau)| RatioPoint {
-                tsep,
-                tau,
-                value: value(),
-            })
+            .map(|&(tsep, tau)| RatioPoint::new(tsep, tau, value()))
             .collect();
         let states = TwoPointStates {
             energy: Resampled::constant(0.5, 3, Scheme::Jackknife),
