@@ -23,7 +23,7 @@
 //! [`sample_autocorrelation`] computes that convention.
 
 use super::binning::bin_values;
-use super::value::stable_mean;
+use super::value::{stable_mean, stable_means, MEANS_AT_ONCE};
 use crate::{Error, Result};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -304,24 +304,47 @@ pub fn pooled_gamma_method(chains: &[&[f64]], s: f64) -> Result<PooledAutocorr> 
     let n = chains.first().map_or(0, |c| c.len());
     // Each chain's mean and its first LAGS normalised Γ_c(t)/Γ_c(0) in one pass, on the worker
     // threads; the first failing chain (in order) decides the error, as a loop would.
-    let first = chains
-        .par_iter()
-        .with_min_len(64)
-        .map_init(Vec::new, |dev, c| {
-            if c.len() != n {
-                return Err(Error::analysis(
-                    "autocorrelation",
-                    format!("chains of {} and {n} values cannot be pooled", c.len()),
-                ));
-            }
-            let mean = check_chain(c)?;
-            let lags = gammas_about(c, mean, 0, dev);
-            Ok((lags[0] > 0.0).then(|| {
-                let g0 = lags[0];
-                (*c, mean, g0, lags.map(|g| g / g0))
-            }))
+    let first: Vec<Result<Option<Kept>>> = chains
+        .par_chunks(MEANS_AT_ONCE)
+        .with_min_len(16)
+        .map_init(Vec::new, |dev, group| {
+            let means: Vec<Result<f64>> = match group {
+                // Plain chains (full length, finite) have their means taken together.
+                [a, b, c, d]
+                    if n >= MIN_LENGTH
+                        && group.iter().all(|c| c.len() == n && all_finite(c)) =>
+                {
+                    stable_means([a, b, c, d]).into_iter().map(Ok).collect()
+                }
+                _ => group
+                    .iter()
+                    .map(|c| {
+                        if c.len() != n {
+                            return Err(Error::analysis(
+                                "autocorrelation",
+                                format!("chains of {} and {n} values cannot be pooled", c.len()),
+                            ));
+                        }
+                        check_chain(c)
+                    })
+                    .collect(),
+            };
+            group
+                .iter()
+                .zip(means)
+                .map(|(c, mean)| {
+                    let mean = mean?;
+                    let lags = gammas_about(c, mean, 0, dev);
+                    Ok((lags[0] > 0.0).then(|| {
+                        let g0 = lags[0];
+                        (*c, mean, g0, lags.map(|g| g / g0))
+                    }))
+                })
+                .collect::<Vec<_>>()
         })
-        .collect::<Result<Vec<_>>>()?;
+        .flatten_iter()
+        .collect();
+    let first = first.into_iter().collect::<Result<Vec<_>>>()?;
     let kept: Vec<_> = first.into_iter().flatten().collect();
     if kept.is_empty() {
         return Err(constant_chain());
@@ -356,6 +379,15 @@ pub fn pooled_gamma_method(chains: &[&[f64]], s: f64) -> Result<PooledAutocorr> 
         chains: kept.len(),
         warnings: w.warnings,
     })
+}
+
+/// A chain kept by [`pooled_gamma_method`]: its values, mean, `Γ(0)` and first
+/// normalised `Γ(t)/Γ(0)`.
+type Kept<'a> = (&'a [f64], f64, f64, [f64; LAGS]);
+
+/// Whether every value is finite (no early exit, so the loop vectorises).
+fn all_finite(x: &[f64]) -> bool {
+    x.iter().fold(true, |ok, v| ok & v.is_finite())
 }
 
 /// Lags computed together by [`gammas_about`]: a typical window is a few lags, and each
@@ -458,6 +490,29 @@ mod tests {
                     let t = from + j;
                     let want = if t < n { gamma_about(&x, mean, t) } else { 0.0 };
                     assert_eq!(g.to_bits(), want.to_bits(), "n = {n}, t = {t}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn means_taken_together_equal_stable_mean_bit_for_bit() {
+        // Interleaving the sums of several chains must not change any chain's bits, with a
+        // large common offset (where the second pass matters) and with unequal lengths.
+        use crate::resample::value::{stable_mean, stable_means};
+        let chain = |k: usize, n: usize| -> Vec<f64> {
+            (0..n)
+                .map(|i| 1e6 + ((i * (17 + k) % 101) as f64 * 0.37).sin() * (k + 1) as f64)
+                .collect()
+        };
+        for n in [1, 2, 10, 333] {
+            for longer_last in [0, 1] {
+                let xs: Vec<Vec<f64>> = (0..4)
+                    .map(|k| chain(k, n + usize::from(k == 3) * longer_last))
+                    .collect();
+                let got = stable_means([&xs[0], &xs[1], &xs[2], &xs[3]]);
+                for (x, g) in xs.iter().zip(got) {
+                    assert_eq!(g.to_bits(), stable_mean(x).to_bits(), "n = {n}");
                 }
             }
         }
