@@ -10,11 +10,11 @@
 
 use super::accumulator::Accumulator;
 use super::key_cache::KeyCache;
+pub(crate) use super::key_cache::{push_label, LocalKeys};
 use super::row::{Header, ParsedRow, Row};
 use super::table::{Column, TableReader};
 use crate::error::{Error, Location, Result};
 use rayon::prelude::*;
-use std::collections::HashMap;
 use std::io::{Chain, Cursor, Read};
 use std::path::{Path, PathBuf};
 
@@ -24,46 +24,6 @@ const BLOCK: usize = 1 << 20;
 const BATCH: usize = 4;
 /// Rows per batch on the general CSV path.
 const CSV_BATCH: usize = 1 << 16;
-
-/// The channel keys a batch has met, in first-seen order, each with its byte encoding.
-pub(crate) struct LocalKeys<K> {
-    list: Vec<(K, Vec<u8>)>,
-    ids: HashMap<Vec<u8>, u32>,
-}
-
-impl<K> Default for LocalKeys<K> {
-    fn default() -> Self {
-        LocalKeys {
-            list: Vec::new(),
-            ids: HashMap::new(),
-        }
-    }
-}
-
-impl<K> LocalKeys<K> {
-    /// The local index of the key encoded as `enc`, registering `make()` when new.
-    pub fn id(&mut self, enc: &[u8], make: impl FnOnce() -> K) -> u32 {
-        if let Some(&id) = self.ids.get(enc) {
-            return id;
-        }
-        let id = self.list.len() as u32;
-        self.list.push((make(), enc.to_vec()));
-        self.ids.insert(enc.to_vec(), id);
-        id
-    }
-
-    /// The key of local index `id`.
-    pub fn get(&self, id: u32) -> &K {
-        &self.list[id as usize].0
-    }
-}
-
-/// Append `label` to a channel-key encoding, length first (so no two label lists share an
-/// encoding).
-pub(crate) fn push_label(enc: &mut Vec<u8>, label: &str) {
-    enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
-    enc.extend_from_slice(label.as_bytes());
-}
 
 /// A table's row parser, run on any thread.
 pub(crate) trait RowParser: Sync {

@@ -23,7 +23,8 @@
 //! [`sample_autocorrelation`] computes that convention.
 
 use super::binning::bin_values;
-use super::value::{stable_mean, stable_means, MEANS_AT_ONCE};
+use super::means::{stable_means, MEANS_AT_ONCE};
+use super::value::stable_mean;
 use crate::{Error, Result};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -311,8 +312,7 @@ pub fn pooled_gamma_method(chains: &[&[f64]], s: f64) -> Result<PooledAutocorr> 
             let means: Vec<Result<f64>> = match group {
                 // Plain chains (full length, finite) have their means taken together.
                 [a, b, c, d]
-                    if n >= MIN_LENGTH
-                        && group.iter().all(|c| c.len() == n && all_finite(c)) =>
+                    if n >= MIN_LENGTH && group.iter().all(|c| c.len() == n && all_finite(c)) =>
                 {
                     stable_means([a, b, c, d]).into_iter().map(Ok).collect()
                 }
@@ -454,7 +454,7 @@ pub fn binning_study(x: &[f64], max_bin: usize) -> Vec<BinningPoint> {
 
 #[cfg(test)]
 mod tests {
-    use super::{deviations, gamma_about, gamma_at, gammas_about, LAGS};
+    use super::{deviations, gamma_about, gamma_at, gammas_about};
 
     #[test]
     fn gamma_about_the_mean_equals_gamma_of_stored_deviations_bit_for_bit() {
@@ -499,7 +499,8 @@ mod tests {
     fn means_taken_together_equal_stable_mean_bit_for_bit() {
         // Interleaving the sums of several chains must not change any chain's bits, with a
         // large common offset (where the second pass matters) and with unequal lengths.
-        use crate::resample::value::{stable_mean, stable_means};
+        use crate::resample::means::stable_means;
+        use crate::resample::value::stable_mean;
         let chain = |k: usize, n: usize| -> Vec<f64> {
             (0..n)
                 .map(|i| 1e6 + ((i * (17 + k) % 101) as f64 * 0.37).sin() * (k + 1) as f64)

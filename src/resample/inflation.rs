@@ -21,7 +21,8 @@
 //! more than its error (`auto`), whenever it exceeds 1/2 (`always`, the default), or never.
 
 use super::autocorr::{pooled_gamma_method, PooledAutocorr, DEFAULT_S};
-use super::value::{stable_mean, stable_means, MEANS_AT_ONCE};
+use super::means::{stable_means, MEANS_AT_ONCE};
+use super::value::stable_mean;
 use crate::data::{Series, ThreePointData, TwoPointData};
 use rayon::prelude::*;
 use schemars::JsonSchema;

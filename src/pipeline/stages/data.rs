@@ -133,9 +133,7 @@ impl BackgroundDigests {
 
     /// The digests taken (a failed thread gives none; the manifest hashes those files).
     fn finish(self) -> Vec<crate::io::FileDigest> {
-        self.0
-            .and_then(|t| t.join().ok())
-            .unwrap_or_default()
+        self.0.and_then(|t| t.join().ok()).unwrap_or_default()
     }
 }
 
