@@ -284,7 +284,7 @@ impl Accumulator {
         // channel's cells are released once its values are out, so the cells and the values
         // of the whole table are never held at once. The first gap in `order` is reported,
         // as a loop over the channels would.
-        let done: Vec<Result<(u32, Vec<f64>, Vec<f64>, u32, u32)>> = in_order
+        let done: Vec<Result<Averaged>> = in_order
             .into_par_iter()
             .map(|(id, chan)| {
                 let nt = n_t(id);
@@ -312,16 +312,22 @@ impl Accumulator {
                         im.push(cell.im / n);
                     }
                 }
-                Ok((id, re, im, smin, smax))
+                Ok(Averaged {
+                    id,
+                    re,
+                    im,
+                    smin,
+                    smax,
+                })
             })
             .collect();
         let mut values: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); slots.len()];
         let (mut smin, mut smax) = (u32::MAX, 0u32);
         for channel in done {
-            let (id, re, im, lo, hi) = channel?;
-            smin = smin.min(lo);
-            smax = smax.max(hi);
-            values[id as usize] = (re, im);
+            let c = channel?;
+            smin = smin.min(c.smin);
+            smax = smax.max(c.smax);
+            values[c.id as usize] = (c.re, c.im);
         }
         Ok(Finished {
             configs: sorted.into_iter().map(|(c, _)| c).collect(),
@@ -338,6 +344,16 @@ impl Accumulator {
             sources: self.with_source.then(|| (smin.min(smax), smax)),
         }
     }
+}
+
+/// One channel's values from [`Accumulator::finish`], with the fewest and most rows averaged
+/// into one of them.
+struct Averaged {
+    id: u32,
+    re: Vec<f64>,
+    im: Vec<f64>,
+    smin: u32,
+    smax: u32,
 }
 
 /// The configurations `(number, first-seen index)` in ascending order of number.
