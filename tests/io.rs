@@ -800,19 +800,60 @@ fn key_fields_are_compared_with_their_boundaries() {
 // Reference: the manifest's streaming SHA-256 of the whole file (report::manifest::sha256_file,
 // checked against the FIPS 180-4 test vectors in its unit tests); the digest taken while
 // reading must be the same, with the same size.
+// One worker thread hashes inline; more use the read-ahead thread: both are checked.
 #[test]
 fn tables_are_hashed_while_read() {
     let root = crate::common::repo_root();
     let two = root.join("demo-data/pion/twopt.csv");
     let three = root.join("demo-data/pion/threept.csv");
-    let ds = io::read_dataset(&two, Some(&three), &io::ReadOptions::default()).unwrap();
-    assert_eq!(ds.digests.len(), 2);
-    for (d, p) in ds.digests.iter().zip([&two, &three]) {
-        let (sha, bytes) = formfactory::report::manifest::sha256_file(p).unwrap();
-        assert_eq!((&d.path, &d.sha256, d.bytes), (p, &sha, bytes));
+    for threads in [1, 3] {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            let ds = io::read_dataset(&two, Some(&three), &io::ReadOptions::default()).unwrap();
+            assert_eq!(ds.digests.len(), 2);
+            for (d, p) in ds.digests.iter().zip([&two, &three]) {
+                let (sha, bytes) = formfactory::report::manifest::sha256_file(p).unwrap();
+                assert_eq!((&d.path, &d.sha256, d.bytes), (p, &sha, bytes), "{threads}");
+            }
+            let one = f("twopt_sources.csv");
+            let ds = io::read_dataset(&one, None, &io::ReadOptions::default()).unwrap();
+            let (sha, _) = formfactory::report::manifest::sha256_file(&one).unwrap();
+            assert_eq!(ds.digests[0].sha256, sha);
+        });
     }
-    let one = f("twopt_sources.csv");
-    let ds = io::read_dataset(&one, None, &io::ReadOptions::default()).unwrap();
-    let (sha, _) = formfactory::report::manifest::sha256_file(&one).unwrap();
-    assert_eq!(ds.digests[0].sha256, sha);
+}
+
+// A read that stops at a bad row while the read-ahead thread is ahead of it gives the row's
+// error (file, line, column), the same with one worker thread and with several.
+#[test]
+fn a_hashed_read_that_stops_early_reports_its_row() {
+    let root = crate::common::repo_root();
+    let text = std::fs::read_to_string(root.join("demo-data/pion/threept.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    lines[99] = lines[99].replacen(",V", ",X", 1);
+    let dir = tempfile::tempdir().unwrap();
+    let bad = dir.path().join("threept.csv");
+    std::fs::write(&bad, lines.join("\n") + "\n").unwrap();
+    let two = root.join("demo-data/pion/twopt.csv");
+    let errors: Vec<String> = [1, 3]
+        .into_iter()
+        .map(|threads| {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            pool.install(|| {
+                io::read_dataset(&two, Some(&bad), &io::ReadOptions::default())
+                    .err()
+                    .map(|e| e.to_string())
+                    .unwrap_or_default()
+            })
+        })
+        .collect();
+    assert!(errors[0].contains(":100:"), "{}", errors[0]);
+    assert!(errors[0].contains("unknown current"), "{}", errors[0]);
+    assert_eq!(errors[0], errors[1]);
 }

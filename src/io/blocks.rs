@@ -10,11 +10,11 @@
 
 use super::accumulator::Accumulator;
 use super::key_cache::KeyCache;
+pub(crate) use super::key_cache::{push_label, LocalKeys};
 use super::row::{Header, ParsedRow, Row};
 use super::table::{Column, TableReader};
 use crate::error::{Error, Location, Result};
 use rayon::prelude::*;
-use std::collections::HashMap;
 use std::io::{Chain, Cursor, Read};
 use std::path::{Path, PathBuf};
 
@@ -24,46 +24,6 @@ const BLOCK: usize = 1 << 20;
 const BATCH: usize = 4;
 /// Rows per batch on the general CSV path.
 const CSV_BATCH: usize = 1 << 16;
-
-/// The channel keys a batch has met, in first-seen order, each with its byte encoding.
-pub(crate) struct LocalKeys<K> {
-    list: Vec<(K, Vec<u8>)>,
-    ids: HashMap<Vec<u8>, u32>,
-}
-
-impl<K> Default for LocalKeys<K> {
-    fn default() -> Self {
-        LocalKeys {
-            list: Vec::new(),
-            ids: HashMap::new(),
-        }
-    }
-}
-
-impl<K> LocalKeys<K> {
-    /// The local index of the key encoded as `enc`, registering `make()` when new.
-    pub fn id(&mut self, enc: &[u8], make: impl FnOnce() -> K) -> u32 {
-        if let Some(&id) = self.ids.get(enc) {
-            return id;
-        }
-        let id = self.list.len() as u32;
-        self.list.push((make(), enc.to_vec()));
-        self.ids.insert(enc.to_vec(), id);
-        id
-    }
-
-    /// The key of local index `id`.
-    pub fn get(&self, id: u32) -> &K {
-        &self.list[id as usize].0
-    }
-}
-
-/// Append `label` to a channel-key encoding, length first (so no two label lists share an
-/// encoding).
-pub(crate) fn push_label(enc: &mut Vec<u8>, label: &str) {
-    enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
-    enc.extend_from_slice(label.as_bytes());
-}
 
 /// A table's row parser, run on any thread.
 pub(crate) trait RowParser: Sync {
@@ -140,7 +100,9 @@ impl<K: Clone> Batch<K> {
 /// A block of whole lines, the line number of its first, and room for its parsed rows
 /// (allocated by the reading thread, so the workers' allocator arenas stay small).
 struct Block {
+    /// The block is `bytes[..len]` (the storage may be longer, reused from earlier blocks).
     bytes: Vec<u8>,
+    len: usize,
     first_line: u64,
     rows: Vec<ParsedRow>,
 }
@@ -152,6 +114,9 @@ pub(crate) enum Rows<R: Read> {
         input: R,
         carry: Vec<u8>,
         next_line: u64,
+        /// Buffers of parsed blocks, filled again by the next blocks (no fresh memory, and
+        /// no growth while a block is read).
+        free: Vec<Vec<u8>>,
     },
     /// The general CSV reader.
     Csv(Box<TableReader<Chain<Cursor<Vec<u8>>, R>>>),
@@ -191,6 +156,7 @@ pub(crate) fn open_rows<R: Read>(
                     input,
                     carry,
                     next_line: 2,
+                    free: Vec::new(),
                 },
             ))
         }
@@ -217,7 +183,7 @@ impl<R: Read> Rows<R> {
         // error of an earlier batch is reported before a read error of a later one.
         let mut parsed: Vec<Batch<P::Key>> = Vec::new();
         while !pending.is_empty() {
-            let mut fresh: Vec<Batch<P::Key>> = Vec::new();
+            let mut fresh: Vec<(Batch<P::Key>, Vec<u8>)> = Vec::new();
             let mut merged = Ok(());
             let mut next = Ok(Vec::new());
             rayon::in_place_scope(|s| {
@@ -233,7 +199,13 @@ impl<R: Read> Rows<R> {
                 }
             });
             merged?;
-            parsed = fresh;
+            parsed = Vec::with_capacity(fresh.len());
+            for (batch, buffer) in fresh {
+                parsed.push(batch);
+                if let Rows::Blocks { free, .. } = &mut rows {
+                    free.push(buffer);
+                }
+            }
             match next {
                 Ok(blocks) => pending = blocks,
                 Err(e) => {
@@ -265,43 +237,57 @@ impl<R: Read> Rows<R> {
                 input,
                 carry,
                 next_line,
+                free,
             } = self
             else {
                 break;
             };
-            let mut bytes = std::mem::take(carry);
+            // `buf` is storage whose first `len` bytes are the block; recycled storage is
+            // already initialised, so reading into it costs no clearing pass.
+            let mut buf = free.pop().unwrap_or_default();
+            let mut len = carry.len();
+            if buf.len() < len {
+                buf.resize(len, 0);
+            }
+            buf[..len].copy_from_slice(carry);
+            carry.clear();
             let mut eof = false;
-            while bytes.len() < BLOCK && !eof {
-                let want = BLOCK - bytes.len();
-                eof = fill(input, &mut bytes, want, &header.file)?;
+            while len < BLOCK && !eof {
+                let want = BLOCK - len;
+                eof = fill_at(input, &mut buf, &mut len, want, &header.file)?;
             }
             // Cut at the last line end; a line longer than a block makes the block longer.
             let end = loop {
                 if eof {
-                    break bytes.len();
+                    break len;
                 }
-                match memchr::memrchr(b'\n', &bytes) {
+                match memchr::memrchr(b'\n', &buf[..len]) {
                     Some(nl) => break nl + 1,
-                    None => eof = fill(input, &mut bytes, BLOCK, &header.file)?,
+                    None => eof = fill_at(input, &mut buf, &mut len, BLOCK, &header.file)?,
                 }
             };
-            *carry = bytes.split_off(end);
-            if bytes.is_empty() {
+            carry.extend_from_slice(&buf[end..len]);
+            len = end;
+            if len == 0 {
+                free.push(buf);
                 break;
             }
-            if !is_plain(&bytes) {
-                bytes.append(carry);
+            let bytes = &buf[..len];
+            if !is_plain(bytes) {
+                buf.truncate(len);
+                buf.append(carry);
                 let first_line = *next_line;
                 if let Rows::Blocks { input, .. } = std::mem::replace(self, Rows::Taken) {
-                    let rest = Cursor::new(bytes).chain(input);
+                    let rest = Cursor::new(buf).chain(input);
                     *self = Rows::Csv(Box::new(TableReader::resume(rest, header, first_line)));
                 }
                 break;
             }
-            let lines = memchr::memchr_iter(b'\n', &bytes).count() as u64
+            let lines = memchr::memchr_iter(b'\n', bytes).count() as u64
                 + u64::from(bytes.last() != Some(&b'\n'));
             out.push(Block {
-                bytes,
+                bytes: buf,
+                len,
                 first_line: *next_line,
                 rows: Vec::with_capacity(lines as usize),
             });
@@ -311,9 +297,13 @@ impl<R: Read> Rows<R> {
     }
 }
 
-/// Parse the lines of a plain block.
-fn parse_block<P: RowParser>(block: Block, header: &Header, parser: &P) -> Batch<P::Key> {
-    let bytes = &block.bytes;
+/// Parse the lines of a plain block; its buffer comes back for the next block.
+fn parse_block<P: RowParser>(
+    block: Block,
+    header: &Header,
+    parser: &P,
+) -> (Batch<P::Key>, Vec<u8>) {
+    let bytes = &block.bytes[..block.len];
     let mut batch = Batch {
         keys: LocalKeys::default(),
         rows: block.rows,
@@ -371,7 +361,7 @@ fn parse_block<P: RowParser>(block: Block, header: &Header, parser: &P) -> Batch
         error = finish(bytes.len(), field_start, &mut bounds, line);
     }
     batch.error = error;
-    batch
+    (batch, block.bytes)
 }
 
 /// Call `f(i, is_newline)` for every `,` and `\n` of `bytes` in order, eight bytes at a time
@@ -446,6 +436,30 @@ fn fill<R: Read>(input: &mut R, buf: &mut Vec<u8>, max: usize, file: &Path) -> R
         .read_to_end(buf)
         .map_err(|e| Error::io(file, e))?;
     Ok(n < max)
+}
+
+/// Read up to `max` more bytes into `buf` after its first `len` (which grows by the bytes
+/// read), growing the storage only when it is too short; `true` at the end of the input.
+fn fill_at<R: Read>(
+    input: &mut R,
+    buf: &mut Vec<u8>,
+    len: &mut usize,
+    max: usize,
+    file: &Path,
+) -> Result<bool> {
+    let want = *len + max;
+    if buf.len() < want {
+        buf.resize(want, 0);
+    }
+    while *len < want {
+        match input.read(&mut buf[*len..want]) {
+            Ok(0) => return Ok(true),
+            Ok(n) => *len += n,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+            Err(e) => return Err(Error::io(file, e)),
+        }
+    }
+    Ok(false)
 }
 
 /// A line without its `\r` before the line end.

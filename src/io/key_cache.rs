@@ -1,8 +1,10 @@
 //! The cache that recognises a row continuing the previous row's channel, so that long tables
-//! grouped by channel parse their key fields once per channel, not once per row.
+//! grouped by channel parse their key fields once per channel, not once per row, and the
+//! channel keys a batch of rows has met ([`LocalKeys`]).
 
 use super::row::Row;
 use crate::error::Result;
+use std::collections::HashMap;
 
 /// The raw bytes of a row's key columns, kept so that a row continuing the previous row's
 /// channel (the usual case in long tables) skips parsing its key fields again. Key columns
@@ -111,4 +113,44 @@ fn runs(rd: &Row, cols: &[usize]) -> Vec<(usize, usize)> {
         }
     }
     out
+}
+
+/// The channel keys a batch has met, in first-seen order, each with its byte encoding.
+pub(crate) struct LocalKeys<K> {
+    pub(super) list: Vec<(K, Vec<u8>)>,
+    ids: HashMap<Vec<u8>, u32>,
+}
+
+impl<K> Default for LocalKeys<K> {
+    fn default() -> Self {
+        LocalKeys {
+            list: Vec::new(),
+            ids: HashMap::new(),
+        }
+    }
+}
+
+impl<K> LocalKeys<K> {
+    /// The local index of the key encoded as `enc`, registering `make()` when new.
+    pub fn id(&mut self, enc: &[u8], make: impl FnOnce() -> K) -> u32 {
+        if let Some(&id) = self.ids.get(enc) {
+            return id;
+        }
+        let id = self.list.len() as u32;
+        self.list.push((make(), enc.to_vec()));
+        self.ids.insert(enc.to_vec(), id);
+        id
+    }
+
+    /// The key of local index `id`.
+    pub fn get(&self, id: u32) -> &K {
+        &self.list[id as usize].0
+    }
+}
+
+/// Append `label` to a channel-key encoding, length first (so no two label lists share an
+/// encoding).
+pub(crate) fn push_label(enc: &mut Vec<u8>, label: &str) {
+    enc.extend_from_slice(&(label.len() as u32).to_le_bytes());
+    enc.extend_from_slice(label.as_bytes());
 }

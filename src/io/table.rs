@@ -20,7 +20,7 @@ pub(crate) fn display_name(path: &Path) -> PathBuf {
 }
 
 /// Open a path for reading, `-` meaning standard input.
-pub(crate) fn open(path: &Path) -> Result<Box<dyn Read>> {
+pub(crate) fn open(path: &Path) -> Result<Box<dyn Read + Send>> {
     if path == Path::new("-") {
         Ok(Box::new(std::io::stdin()))
     } else {

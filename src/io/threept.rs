@@ -84,11 +84,11 @@ pub(crate) fn read_with_summary(path: &Path) -> Result<(ThreePointData, Summary)
 
 /// [`read_with_summary`] plus the digest of the bytes read (for the run manifest).
 pub(crate) fn read_hashed(path: &Path) -> Result<(ThreePointData, Summary, FileDigest)> {
-    let mut input = Hashing::new(open(path)?);
+    let mut input = Hashing::new(open(path)?).map_err(|e| Error::io(path, e))?;
     let (data, summary) = read_inner(&mut input, display_name(path))?;
     // The reader stops at the end of the input; anything it left unread still counts.
-    std::io::copy(&mut input, &mut std::io::sink()).map_err(|e| Error::io(path, e))?;
-    Ok((data, summary, input.finish(path)))
+    let digest = input.finish(path).map_err(|e| Error::io(path, e))?;
+    Ok((data, summary, digest))
 }
 
 fn current_names() -> String {

@@ -23,8 +23,10 @@
 //! [`sample_autocorrelation`] computes that convention.
 
 use super::binning::bin_values;
+use super::means::{stable_means, MEANS_AT_ONCE};
 use super::value::stable_mean;
 use crate::{Error, Result};
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 /// Wolff's recommended default for the windowing factor `S`.
@@ -301,38 +303,131 @@ pub fn pooled_gamma_method(chains: &[&[f64]], s: f64) -> Result<PooledAutocorr> 
         ));
     }
     let n = chains.first().map_or(0, |c| c.len());
-    let mut devs = Vec::with_capacity(chains.len());
-    for c in chains {
-        if c.len() != n {
-            return Err(Error::analysis(
-                "autocorrelation",
-                format!("chains of {} and {n} values cannot be pooled", c.len()),
-            ));
-        }
-        let mean = check_chain(c)?;
-        let g0 = gamma_about(c, mean, 0);
-        if g0 > 0.0 {
-            devs.push((*c, mean, g0));
-        }
-    }
-    if devs.is_empty() {
+    // Each chain's mean and its first LAGS normalised Γ_c(t)/Γ_c(0) in one pass, on the worker
+    // threads; the first failing chain (in order) decides the error, as a loop would.
+    let first: Vec<Result<Option<Kept>>> = chains
+        .par_chunks(MEANS_AT_ONCE)
+        .with_min_len(16)
+        .map_init(Vec::new, |dev, group| {
+            let means: Vec<Result<f64>> = match group {
+                // Plain chains (full length, finite) have their means taken together.
+                [a, b, c, d]
+                    if n >= MIN_LENGTH && group.iter().all(|c| c.len() == n && all_finite(c)) =>
+                {
+                    stable_means([a, b, c, d]).into_iter().map(Ok).collect()
+                }
+                _ => group
+                    .iter()
+                    .map(|c| {
+                        if c.len() != n {
+                            return Err(Error::analysis(
+                                "autocorrelation",
+                                format!("chains of {} and {n} values cannot be pooled", c.len()),
+                            ));
+                        }
+                        check_chain(c)
+                    })
+                    .collect(),
+            };
+            group
+                .iter()
+                .zip(means)
+                .map(|(c, mean)| {
+                    let mean = mean?;
+                    let lags = gammas_about(c, mean, 0, dev);
+                    Ok((lags[0] > 0.0).then(|| {
+                        let g0 = lags[0];
+                        (*c, mean, g0, lags.map(|g| g / g0))
+                    }))
+                })
+                .collect::<Vec<_>>()
+        })
+        .flatten_iter()
+        .collect();
+    let first = first.into_iter().collect::<Result<Vec<_>>>()?;
+    let kept: Vec<_> = first.into_iter().flatten().collect();
+    if kept.is_empty() {
         return Err(constant_chain());
     }
-    let k = devs.len() as f64;
+    let k = kept.len() as f64;
+    // ρ̄(t) summed over the chains in their order, so the bits do not depend on the threads.
+    let pooled = |rho: &dyn Fn(usize) -> f64| (0..kept.len()).map(rho).sum::<f64>() / k;
+    // Lags beyond the first LAGS, computed LAGS at a time when the window asks for them.
+    let mut later: Vec<[f64; LAGS]> = Vec::new();
+    let mut later_from = LAGS;
     let w = windowed(n, s, |t| {
-        devs.iter()
-            .map(|(c, mean, g0)| gamma_about(c, *mean, t) / g0)
-            .sum::<f64>()
-            / k
+        if t < LAGS {
+            return pooled(&|c| kept[c].3[t]);
+        }
+        if t < later_from || t >= later_from + LAGS || later.is_empty() {
+            later_from = t;
+            later = kept
+                .par_iter()
+                .with_min_len(64)
+                .map_init(Vec::new, |dev, (c, mean, g0, _)| {
+                    gammas_about(c, *mean, t, dev).map(|g| g / g0)
+                })
+                .collect();
+        }
+        pooled(&|c| later[c][t - later_from])
     })?;
     Ok(PooledAutocorr {
         tau_int: w.tau_int,
         tau_int_error: w.tau_int_error,
         window: w.window,
         n,
-        chains: devs.len(),
+        chains: kept.len(),
         warnings: w.warnings,
     })
+}
+
+/// A chain kept by [`pooled_gamma_method`]: its values, mean, `Γ(0)` and first
+/// normalised `Γ(t)/Γ(0)`.
+type Kept<'a> = (&'a [f64], f64, f64, [f64; LAGS]);
+
+/// Whether every value is finite (no early exit, so the loop vectorises).
+fn all_finite(x: &[f64]) -> bool {
+    x.iter().fold(true, |ok, v| ok & v.is_finite())
+}
+
+/// Lags computed together by [`gammas_about`]: a typical window is a few lags, and each
+/// chain is then read once.
+const LAGS: usize = 8;
+
+/// `Γ(t)` of `x` about `mean` for `t = from..from + LAGS` (zero where `t >= N`), bit for bit
+/// [`gamma_about`] at each lag: the same products, summed in the same order (`-0.0 + p` is
+/// `p`, as `Iterator::sum` starts), but one pass over the chain for all the lags. `dev` is
+/// scratch memory for the deviations.
+fn gammas_about(x: &[f64], mean: f64, from: usize, dev: &mut Vec<f64>) -> [f64; LAGS] {
+    let n = x.len();
+    dev.clear();
+    dev.extend(x.iter().map(|v| v - mean));
+    let mut sums = [-0.0f64; LAGS];
+    // Rows `i` where every lag has a partner `i + t < n`: no test per product.
+    let full = n.saturating_sub(from + LAGS - 1);
+    for i in 0..full {
+        let di = dev[i];
+        let partners = &dev[i + from..i + from + LAGS];
+        for (s, d) in sums.iter_mut().zip(partners) {
+            *s += di * d;
+        }
+    }
+    for i in full..n {
+        let di = dev[i];
+        for (j, s) in sums.iter_mut().enumerate() {
+            if let Some(d) = dev.get(i + from + j) {
+                *s += di * d;
+            }
+        }
+    }
+    let mut out = [0.0; LAGS];
+    for (j, (o, s)) in out.iter_mut().zip(sums).enumerate() {
+        let t = from + j;
+        if t < n {
+            *o = s / (n - t) as f64;
+        }
+    }
+    out
 }
 
 /// Error of the mean versus bin size, `b = 1..=max_bin`, stopping before fewer than two bins
@@ -359,7 +454,7 @@ pub fn binning_study(x: &[f64], max_bin: usize) -> Vec<BinningPoint> {
 
 #[cfg(test)]
 mod tests {
-    use super::{deviations, gamma_about, gamma_at};
+    use super::{deviations, gamma_about, gamma_at, gammas_about};
 
     #[test]
     fn gamma_about_the_mean_equals_gamma_of_stored_deviations_bit_for_bit() {
@@ -376,6 +471,51 @@ mod tests {
                 gamma_at(&dev, t).to_bits(),
                 "t = {t}"
             );
+        }
+    }
+
+    #[test]
+    fn lags_in_one_pass_equal_gamma_about_bit_for_bit() {
+        // The pooled Gamma method takes LAGS lags per pass; each must be the one-lag sum
+        // (its products summed in the same order), including lags at and beyond the end.
+        for n in [1, 7, 8, 9, 23, 97] {
+            let x: Vec<f64> = (0..n)
+                .map(|i| ((i * 53 % 89) as f64 * 0.021).cos() * 1e3 - 0.5 * i as f64)
+                .collect();
+            let mean = x.iter().sum::<f64>() / n as f64;
+            let mut dev = Vec::new();
+            for from in [0, 1, 5, 16, 90] {
+                let lags = gammas_about(&x, mean, from, &mut dev);
+                for (j, g) in lags.iter().enumerate() {
+                    let t = from + j;
+                    let want = if t < n { gamma_about(&x, mean, t) } else { 0.0 };
+                    assert_eq!(g.to_bits(), want.to_bits(), "n = {n}, t = {t}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn means_taken_together_equal_stable_mean_bit_for_bit() {
+        // Interleaving the sums of several chains must not change any chain's bits, with a
+        // large common offset (where the second pass matters) and with unequal lengths.
+        use crate::resample::means::stable_means;
+        use crate::resample::value::stable_mean;
+        let chain = |k: usize, n: usize| -> Vec<f64> {
+            (0..n)
+                .map(|i| 1e6 + ((i * (17 + k) % 101) as f64 * 0.37).sin() * (k + 1) as f64)
+                .collect()
+        };
+        for n in [1, 2, 10, 333] {
+            for longer_last in [0, 1] {
+                let xs: Vec<Vec<f64>> = (0..4)
+                    .map(|k| chain(k, n + usize::from(k == 3) * longer_last))
+                    .collect();
+                let got = stable_means([&xs[0], &xs[1], &xs[2], &xs[3]]);
+                for (x, g) in xs.iter().zip(got) {
+                    assert_eq!(g.to_bits(), stable_mean(x).to_bits(), "n = {n}");
+                }
+            }
         }
     }
 }

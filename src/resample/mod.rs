@@ -19,12 +19,14 @@
 //! - [`covariance`]: full, diagonal and Ledoit–Wolf shrinkage covariance with an eigenvalue cut.
 //! - [`autocorr`]: the Gamma method and binning studies.
 //! - [`inflation`]: autocorrelation left in the bins, and the errors widened for it.
+//! - `means`: the stable means of several time series at once (the same bits as one by one).
 
 pub mod autocorr;
 pub mod autocorr_check;
 pub mod binning;
 pub mod covariance;
 pub mod inflation;
+mod means;
 pub mod plan;
 pub mod robust;
 pub mod value;

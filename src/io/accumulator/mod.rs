@@ -8,6 +8,7 @@ mod grouped;
 pub(crate) use grouped::Visit;
 
 use crate::error::{Error, Location, Result};
+use rayon::prelude::*;
 use std::collections::{HashMap, HashSet};
 
 /// Sum of the rows seen for one (channel, time, configuration): 16 bytes, the size of the
@@ -262,8 +263,8 @@ impl Accumulator {
     pub fn finish(
         mut self,
         order: &[u32],
-        n_t: impl Fn(u32) -> usize,
-        missing: impl Fn(u32, usize, i64, u64) -> Error,
+        n_t: impl Fn(u32) -> usize + Sync,
+        missing: impl Fn(u32, usize, i64, u64) -> Error + Sync,
     ) -> Result<Finished> {
         // The duplicate check is done; its sets (one entry per row) go before the values grow.
         for chan in &mut self.channels {
@@ -271,38 +272,62 @@ impl Accumulator {
         }
         let sorted = sorted_configs(&self.configs);
         let n_cfg = sorted.len();
-        let mut values: Vec<(Vec<f64>, Vec<f64>)> =
-            vec![(Vec::new(), Vec::new()); self.channels.len()];
-        let (mut smin, mut smax) = (u32::MAX, 0u32);
-        for &id in order {
-            // Each channel's cells are released once its values are out, so the cells and
-            // the values of the whole table are never held at once.
-            let chan = std::mem::replace(&mut self.channels[id as usize], Channel::new(0));
-            let nt = n_t(id);
-            // Reserve only once the channel is known to reach its last time slice, so a
-            // corrupt time value cannot trigger a huge allocation before the gap is found.
-            let cap = if chan.cells.len() == nt {
-                nt * n_cfg
-            } else {
-                0
-            };
-            let mut re = Vec::with_capacity(cap);
-            let mut im = Vec::with_capacity(cap);
-            for t in 0..nt {
-                for &(config, i) in &sorted {
-                    let cell = chan.get(t, i).unwrap_or_default();
-                    if cell.is_empty() {
-                        return Err(missing(id, t, config, chan.first_line));
+        let mut slots: Vec<Option<Channel>> = std::mem::take(&mut self.channels)
+            .into_iter()
+            .map(Some)
+            .collect();
+        let in_order: Vec<(u32, Channel)> = order
+            .iter()
+            .filter_map(|&id| Some((id, slots.get_mut(id as usize)?.take()?)))
+            .collect();
+        // Channels in parallel, each alone (the same values whatever the threads); each
+        // channel's cells are released once its values are out, so the cells and the values
+        // of the whole table are never held at once. The first gap in `order` is reported,
+        // as a loop over the channels would.
+        let done: Vec<Result<Averaged>> = in_order
+            .into_par_iter()
+            .map(|(id, chan)| {
+                let nt = n_t(id);
+                // Reserve only once the channel is known to reach its last time slice, so a
+                // corrupt time value cannot trigger a huge allocation before the gap is found.
+                let cap = if chan.cells.len() == nt {
+                    nt * n_cfg
+                } else {
+                    0
+                };
+                let mut re = Vec::with_capacity(cap);
+                let mut im = Vec::with_capacity(cap);
+                let (mut smin, mut smax) = (u32::MAX, 0u32);
+                for t in 0..nt {
+                    for &(config, i) in &sorted {
+                        let cell = chan.get(t, i).unwrap_or_default();
+                        if cell.is_empty() {
+                            return Err(missing(id, t, config, chan.first_line));
+                        }
+                        let count = chan.count(t, i);
+                        smin = smin.min(count);
+                        smax = smax.max(count);
+                        let n = f64::from(count);
+                        re.push(cell.re / n);
+                        im.push(cell.im / n);
                     }
-                    let count = chan.count(t, i);
-                    smin = smin.min(count);
-                    smax = smax.max(count);
-                    let n = f64::from(count);
-                    re.push(cell.re / n);
-                    im.push(cell.im / n);
                 }
-            }
-            values[id as usize] = (re, im);
+                Ok(Averaged {
+                    id,
+                    re,
+                    im,
+                    smin,
+                    smax,
+                })
+            })
+            .collect();
+        let mut values: Vec<(Vec<f64>, Vec<f64>)> = vec![(Vec::new(), Vec::new()); slots.len()];
+        let (mut smin, mut smax) = (u32::MAX, 0u32);
+        for channel in done {
+            let c = channel?;
+            smin = smin.min(c.smin);
+            smax = smax.max(c.smax);
+            values[c.id as usize] = (c.re, c.im);
         }
         Ok(Finished {
             configs: sorted.into_iter().map(|(c, _)| c).collect(),
@@ -319,6 +344,16 @@ impl Accumulator {
             sources: self.with_source.then(|| (smin.min(smax), smax)),
         }
     }
+}
+
+/// One channel's values from [`Accumulator::finish`], with the fewest and most rows averaged
+/// into one of them.
+struct Averaged {
+    id: u32,
+    re: Vec<f64>,
+    im: Vec<f64>,
+    smin: u32,
+    smax: u32,
 }
 
 /// The configurations `(number, first-seen index)` in ascending order of number.

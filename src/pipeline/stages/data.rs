@@ -28,8 +28,9 @@ pub(in crate::pipeline) fn read_and_resample(
     rec: &mut Recorder,
 ) -> Result<(Prepared, DataSummary)> {
     let spec = &plan.spec;
+    let digests = BackgroundDigests::start(plan);
     let read = crate::pipeline::read_data(plan)?;
-    let (two, three, notes, input_digests) = (read.two, read.three, read.notes, read.digests);
+    let (two, three, notes, mut input_digests) = (read.two, read.three, read.notes, read.digests);
     crate::pipeline::check_data_rules(plan, &two, &three)?;
     let n_configs = two.configs.len();
     if !read.dropped_configs.is_empty() {
@@ -66,6 +67,7 @@ pub(in crate::pipeline) fn read_and_resample(
             config_list(&report.dropped_configs)
         ));
     }
+    input_digests.extend(digests.finish());
     let n_bins = report.n_bins;
     let rplan = match spec.resampling.method {
         ResamplingMethod::Jackknife => ResamplePlan::jackknife(n_bins),
@@ -95,6 +97,44 @@ pub(in crate::pipeline) fn read_and_resample(
         plan: rplan,
     };
     Ok((prepared, summary))
+}
+
+/// The digests (for the run manifest) of an HDF5 source's files, which the library reads
+/// and nothing hashes on the way: taken on a thread of their own while the stage reads and
+/// resamples, when the run has more than one worker thread (with one, the manifest hashes
+/// them when it is written, as it does for any input without a digest). A file that cannot
+/// be hashed here is left to the manifest, which reports the error.
+struct BackgroundDigests(Option<std::thread::JoinHandle<Vec<crate::io::FileDigest>>>);
+
+impl BackgroundDigests {
+    fn start(plan: &Plan) -> Self {
+        if plan.hdf5.is_none() || rayon::current_num_threads() < 2 {
+            return BackgroundDigests(None);
+        }
+        let files = plan.input_files();
+        let thread = std::thread::Builder::new()
+            .name("digest".into())
+            .spawn(move || {
+                files
+                    .into_iter()
+                    .filter_map(|path| {
+                        let (sha256, bytes) = crate::report::manifest::sha256_file(&path).ok()?;
+                        Some(crate::io::FileDigest {
+                            path,
+                            bytes,
+                            sha256,
+                        })
+                    })
+                    .collect()
+            });
+        // A thread that cannot start leaves the hashing to the manifest.
+        BackgroundDigests(thread.ok())
+    }
+
+    /// The digests taken (a failed thread gives none; the manifest hashes those files).
+    fn finish(self) -> Vec<crate::io::FileDigest> {
+        self.0.and_then(|t| t.join().ok()).unwrap_or_default()
+    }
 }
 
 /// The autocorrelation study of the representative points, on the unbinned data.
