@@ -9,6 +9,7 @@ use crate::data::{Current, Momentum, Projector};
 use crate::kinematics::factors::{coefficients, FormFactor};
 use crate::kinematics::setup::KinematicSetup;
 use crate::kinematics::OnShell;
+use crate::resample::Resampled;
 use nalgebra::Complex;
 use rayon::prelude::*;
 use std::collections::HashMap;
@@ -21,11 +22,17 @@ type Key = (Momentum, Momentum, Current, Projector);
 /// The coefficients of every form factor at one sample, or why they could not be computed.
 pub(super) type Coefficients = Result<Vec<Complex<f64>>, String>;
 
-/// Coefficients per channel and resample, filled on first use. One cache belongs to one
-/// [`KinematicSetup`]: pass the same setup to every decomposition that shares it.
+/// Q² of a channel per resample (sink momentum, momentum transfer), or why it could not be
+/// computed.
+type Q2 = Result<Arc<Resampled>, String>;
+
+/// Coefficients per channel and resample, and Q² per channel momenta, filled on first use.
+/// One cache belongs to one [`KinematicSetup`]: pass the same setup to every decomposition
+/// that shares it.
 #[derive(Default)]
 pub struct CoefficientCache {
     samples: Mutex<HashMap<Key, Arc<Vec<Coefficients>>>>,
+    q2: Mutex<HashMap<(Momentum, Momentum), Q2>>,
 }
 
 impl CoefficientCache {
@@ -63,6 +70,20 @@ impl CoefficientCache {
             .collect();
         let computed = Arc::new(computed);
         self.lock().insert(key, Arc::clone(&computed));
+        computed
+    }
+
+    /// Q² of the channel with sink momentum `pf` and momentum transfer `q`, per resample
+    /// ([`KinematicSetup::q2`]), computed on first use: every shell of every method that
+    /// holds the channel reads the same value.
+    pub(super) fn q2(&self, setup: &KinematicSetup, pf: Momentum, q: Momentum) -> Q2 {
+        // A panic elsewhere cannot leave the map half-written: entries are inserted whole.
+        let lock = || self.q2.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(found) = lock().get(&(pf, q)) {
+            return found.clone();
+        }
+        let computed = setup.q2(pf, q).map(Arc::new).map_err(|e| e.to_string());
+        lock().insert((pf, q), computed.clone());
         computed
     }
 

@@ -11,6 +11,7 @@
 //! of that shell.
 
 mod cache;
+mod resamples;
 mod settings;
 mod shells;
 mod solve;

@@ -11,6 +11,7 @@
 //! The numeric solve then keeps only as many singular directions as the on-shell system has.
 
 use super::cache::{channel_coefficients, coefficients_at, CoefficientCache, Coefficients};
+use super::resamples::{FastSolver, RowSource};
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
@@ -54,12 +55,9 @@ pub(super) fn solve_shell(
             names(system.unknowns.iter().map(|&j| all[j]))
         ));
     }
-    let per_sample = (0..n)
-        .into_par_iter()
-        .map(|s| system.solve(Some(s), rank).map(|(g, ..)| g))
-        .collect::<Outcome<Vec<_>>>()?;
+    let per_sample = system.solve_resamples(n, rank)?;
     let (form_factors, undetermined) = system.form_factors(&g0, &per_sample, &determined);
-    let q2 = system.q2()?;
+    let q2 = system.q2(cache)?;
     let dof = system.rows.len() - (system.unknowns.len() - n_null);
     Ok(ShellResult {
         label: String::new(),
@@ -287,16 +285,72 @@ impl<'a> ShellSystem<'a> {
         Ok((g, chi2, smax / kept_min, determined, null.len()))
     }
 
-    /// The determined form factors (central value `g0` and one solution per resample), and
-    /// the undetermined ones.
+    /// The solutions of all `n` resamples, resample by resample (`unknowns.len()` values
+    /// each). With as many directions kept as unknowns, each resample is solved by the normal
+    /// equations when its conditioning allows ([`FastSolver`]), otherwise (and with fewer
+    /// directions kept) by [`Self::solve`]'s SVD. The first error in resample order is
+    /// returned, so the outcome does not depend on the number of threads.
+    fn solve_resamples(&self, n: usize, rank: usize) -> Outcome<Vec<f64>> {
+        let k = self.unknowns.len();
+        let fast = (rank == k).then(|| self.fast_solver()).flatten();
+        let mut out = vec![0.0; n * k];
+        let failed: Vec<Option<String>> = out
+            .par_chunks_mut(k.max(1))
+            .enumerate()
+            .map_init(
+                || fast.as_ref().and_then(FastSolver::buffers),
+                |buffers, (s, o)| {
+                    if let (Some(f), Some(b)) = (&fast, buffers.as_mut()) {
+                        if f.solve(s, b, o) {
+                            return None;
+                        }
+                    }
+                    match self.solve(Some(s), rank) {
+                        Ok((g, ..)) if g.len() == o.len() => {
+                            o.copy_from_slice(g.as_slice());
+                            None
+                        }
+                        Ok(_) => Some(format!("resample {s}: the solve gave a wrong size")),
+                        Err(e) => Some(e),
+                    }
+                },
+            )
+            .collect();
+        match failed.into_iter().flatten().next() {
+            Some(e) => Err(e),
+            None => Ok(out),
+        }
+    }
+
+    /// The normal-equations solver over this shell's rows; `None` when it does not apply
+    /// (the SVD path then solves every resample).
+    fn fast_solver(&self) -> Option<FastSolver<'_>> {
+        let rows = self
+            .rows
+            .iter()
+            .zip(&self.data)
+            .map(|(&(ci, imag), d)| {
+                self.per_sample.get(&ci).map(|c| RowSource {
+                    coefficients: c.as_slice(),
+                    imag,
+                    data: &d.samples,
+                })
+            })
+            .collect::<Option<Vec<_>>>()?;
+        FastSolver::new(rows, &self.unknowns, &self.w)
+    }
+
+    /// The determined form factors (central value `g0` and the solutions of every resample,
+    /// `per_sample[s * k + col]` for `k` unknowns), and the undetermined ones.
     fn form_factors(
         &self,
         g0: &DVector<f64>,
-        per_sample: &[DVector<f64>],
+        per_sample: &[f64],
         determined: &[bool],
     ) -> (Vec<(FormFactor, Resampled)>, Vec<FormFactor>) {
+        let k = self.unknowns.len().max(1);
         let samples: Vec<Vec<f64>> = (0..self.unknowns.len())
-            .map(|col| per_sample.iter().map(|g| g[col]).collect())
+            .map(|col| per_sample.chunks_exact(k).map(|g| g[col]).collect())
             .collect();
         let scheme = self.setup.mass.scheme;
         let form_factors = self
@@ -317,18 +371,15 @@ impl<'a> ShellSystem<'a> {
         (form_factors, undetermined)
     }
 
-    /// Q² of the shell: the mean over its used channels, per resample; refused when timelike.
-    fn q2(&self) -> Outcome<Resampled> {
+    /// Q² of the shell: the mean over its used channels, per resample (each channel's from
+    /// `cache`); refused when timelike.
+    fn q2(&self, cache: &CoefficientCache) -> Outcome<Resampled> {
         let q2s = self
             .used
             .iter()
-            .map(|&ci| {
-                self.setup
-                    .q2(self.members[ci].pf, self.members[ci].q)
-                    .map_err(|e| e.to_string())
-            })
+            .map(|&ci| cache.q2(self.setup, self.members[ci].pf, self.members[ci].q))
             .collect::<Outcome<Vec<_>>>()?;
-        let refs: Vec<&Resampled> = q2s.iter().collect();
+        let refs: Vec<&Resampled> = q2s.iter().map(|q| &**q).collect();
         let q2 = Resampled::try_combine(&refs, "Q² of the shell's channels", |v| {
             v.iter().sum::<f64>() / v.len() as f64
         })
