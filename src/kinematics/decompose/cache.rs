@@ -6,6 +6,7 @@
 
 use super::ChannelValue;
 use crate::data::{Current, Momentum, Projector};
+use crate::kinematics::expansion::Expansion;
 use crate::kinematics::factors::{coefficients, FormFactor};
 use crate::kinematics::setup::KinematicSetup;
 use crate::kinematics::OnShell;
@@ -43,7 +44,9 @@ impl CoefficientCache {
 
     /// The coefficients of `c` at every one of `n` resamples (in parallel on first use, in
     /// sample order). A resample whose kinematics equal the central ones reuses `central`,
-    /// computed from the same numbers.
+    /// computed from the same numbers; the others evaluate the channel's traces expanded in
+    /// the energies and the mass ([`Expansion`], computed once here), or, where there is no
+    /// trace to expand (spin 0), compute the coefficients directly.
     pub(super) fn samples(
         &self,
         setup: &KinematicSetup,
@@ -56,6 +59,11 @@ impl CoefficientCache {
         if let Some(found) = self.lock().get(&key) {
             return Arc::clone(found);
         }
+        let expansion = setup
+            .on_shell(c.pf, c.q, None)
+            .ok()
+            .and_then(|k0| Expansion::new(setup.hadron, c.projector, c.current, &k0))
+            .filter(|_| FormFactor::of(setup.hadron, c.current.kind()) == all);
         let computed: Vec<Coefficients> = (0..n)
             .into_par_iter()
             .map(|s| {
@@ -64,7 +72,10 @@ impl CoefficientCache {
                     .map_err(|e| e.to_string())?;
                 match central {
                     Some((k0, kc0)) if *k0 == k => Ok(kc0.clone()),
-                    _ => channel_coefficients(setup, all, c, Some(s)),
+                    _ => match expansion.as_ref().and_then(|e| e.evaluate(&k)) {
+                        Some(kc) => Ok(kc),
+                        None => Ok(coefficients_at(setup, all, c, &k)),
+                    },
                 }
             })
             .collect();
