@@ -14,6 +14,7 @@ use crate::resample::Resampled;
 use nalgebra::Complex;
 use rayon::prelude::*;
 use std::collections::HashMap;
+use std::hash::Hash;
 use std::sync::{Arc, Mutex};
 
 /// What the coefficients of a channel depend on besides the setup: sink momentum, momentum
@@ -33,7 +34,25 @@ type Q2 = Result<Arc<Resampled>, String>;
 #[derive(Default)]
 pub struct CoefficientCache {
     samples: Mutex<HashMap<Key, Arc<Vec<Coefficients>>>>,
+    central: Mutex<HashMap<Key, Coefficients>>,
+    on_shell: Mutex<HashMap<Key, Vec<Complex<f64>>>>,
     q2: Mutex<HashMap<(Momentum, Momentum), Q2>>,
+}
+
+/// The value of `key` in `map`, computed by `compute` on first use.
+fn memo<K: Eq + Hash, V: Clone>(
+    map: &Mutex<HashMap<K, V>>,
+    key: K,
+    compute: impl FnOnce() -> V,
+) -> V {
+    // A panic elsewhere cannot leave the map half-written: entries are inserted whole.
+    let lock = || map.lock().unwrap_or_else(|e| e.into_inner());
+    if let Some(found) = lock().get(&key) {
+        return found.clone();
+    }
+    let computed = compute();
+    lock().insert(key, computed.clone());
+    computed
 }
 
 impl CoefficientCache {
@@ -59,17 +78,16 @@ impl CoefficientCache {
         if let Some(found) = self.lock().get(&key) {
             return Arc::clone(found);
         }
-        let expansion = setup
-            .on_shell(c.pf, c.q, None)
+        let kinematics = setup.channel(c.pf, c.q).map_err(|e| e.to_string());
+        let expansion = kinematics
+            .as_ref()
             .ok()
-            .and_then(|k0| Expansion::new(setup.hadron, c.projector, c.current, &k0))
+            .and_then(|k| Expansion::new(setup.hadron, c.projector, c.current, &k.at(None)))
             .filter(|_| FormFactor::of(setup.hadron, c.current.kind()) == all);
         let computed: Vec<Coefficients> = (0..n)
             .into_par_iter()
             .map(|s| {
-                let k = setup
-                    .on_shell(c.pf, c.q, Some(s))
-                    .map_err(|e| e.to_string())?;
+                let k = kinematics.as_ref().map_err(|e| e.clone())?.at(Some(s));
                 match central {
                     Some((k0, kc0)) if *k0 == k => Ok(kc0.clone()),
                     _ => match expansion.as_ref().and_then(|e| e.evaluate(&k)) {
@@ -88,14 +106,37 @@ impl CoefficientCache {
     /// ([`KinematicSetup::q2`]), computed on first use: every shell of every method that
     /// holds the channel reads the same value.
     pub(super) fn q2(&self, setup: &KinematicSetup, pf: Momentum, q: Momentum) -> Q2 {
-        // A panic elsewhere cannot leave the map half-written: entries are inserted whole.
-        let lock = || self.q2.lock().unwrap_or_else(|e| e.into_inner());
-        if let Some(found) = lock().get(&(pf, q)) {
-            return found.clone();
-        }
-        let computed = setup.q2(pf, q).map(Arc::new).map_err(|e| e.to_string());
-        lock().insert((pf, q), computed.clone());
-        computed
+        memo(&self.q2, (pf, q), || {
+            setup.q2(pf, q).map(Arc::new).map_err(|e| e.to_string())
+        })
+    }
+
+    /// The coefficients of `c` on the central value ([`channel_coefficients`]), computed on
+    /// first use: every method's shell structure and central solve read them.
+    pub(super) fn central(
+        &self,
+        setup: &KinematicSetup,
+        all: &[FormFactor],
+        c: &ChannelValue,
+    ) -> Coefficients {
+        let key = (c.pf, c.q, c.current, c.projector);
+        memo(&self.central, key, || {
+            channel_coefficients(setup, all, c, None)
+        })
+    }
+
+    /// The coefficients of `c` at `on`, the channel's on-shell kinematics at the central
+    /// mass (the same for every call with one setup: the rank decision of every method's
+    /// shell), computed on first use.
+    pub(super) fn on_shell(
+        &self,
+        setup: &KinematicSetup,
+        all: &[FormFactor],
+        c: &ChannelValue,
+        on: &OnShell,
+    ) -> Vec<Complex<f64>> {
+        let key = (c.pf, c.q, c.current, c.projector);
+        memo(&self.on_shell, key, || coefficients_at(setup, all, c, on))
     }
 
     fn lock(&self) -> std::sync::MutexGuard<'_, HashMap<Key, Arc<Vec<Coefficients>>>> {

@@ -10,7 +10,7 @@
 //! a condition number of a few hundred and a meaningless solution above any fixed threshold.
 //! The numeric solve then keeps only as many singular directions as the on-shell system has.
 
-use super::cache::{channel_coefficients, coefficients_at, CoefficientCache, Coefficients};
+use super::cache::{CoefficientCache, Coefficients};
 use super::resamples::{FastSolver, RowSource};
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
@@ -46,8 +46,9 @@ pub(super) fn solve_shell(
 ) -> Outcome<ShellResult> {
     let all = FormFactor::of(setup.hadron, kind);
     check_shell(members, kind, setup, all)?;
-    let system = ShellSystem::new(members, setup, all, weights, phases)?.with_samples(cache, n);
-    let rank = system.on_shell_rank()?;
+    let system =
+        ShellSystem::new(members, setup, all, weights, phases, cache)?.with_samples(cache, n);
+    let rank = system.on_shell_rank(cache)?;
     let (g0, chi2, condition, determined, n_null) = system.solve(None, rank)?;
     if !determined.iter().any(|d| *d) {
         return Err(format!(
@@ -123,8 +124,9 @@ impl<'a> ShellSystem<'a> {
         all: &'a [FormFactor],
         weights: Weighting,
         phases: &BTreeMap<Current, Complex<f64>>,
+        cache: &CoefficientCache,
     ) -> Outcome<Self> {
-        let coeffs = |c: &ChannelValue, s: Option<usize>| channel_coefficients(setup, all, c, s);
+        let coeffs = |c: &ChannelValue| cache.central(setup, all, c);
         let (rows, used, unknowns) = structure(members, all.len(), coeffs)?;
         let data = row_data(&rows, members, phases);
         let w = whitening(&data, &rows, members, weights)?;
@@ -132,7 +134,7 @@ impl<'a> ShellSystem<'a> {
         for &ci in &used {
             let c = members[ci];
             let k = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
-            central.insert(ci, (k, coeffs(c, None)?));
+            central.insert(ci, (k, coeffs(c)?));
         }
         Ok(ShellSystem {
             members,
@@ -191,7 +193,7 @@ impl<'a> ShellSystem<'a> {
     /// The rank of the coefficient matrix on shell: continuum energies at the central mass,
     /// each row scaled to unit length, singular values above [`SINGULAR_THRESHOLD`] of the
     /// largest.
-    fn on_shell_rank(&self) -> Outcome<usize> {
+    fn on_shell_rank(&self, coefficients: &CoefficientCache) -> Outcome<usize> {
         let mass = self.setup.mass.central;
         let mut k = DMatrix::zeros(self.rows.len(), self.unknowns.len());
         let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
@@ -201,7 +203,7 @@ impl<'a> ShellSystem<'a> {
             on.ei = continuum_energy(mass, on.pi);
             cache.insert(
                 ci,
-                coefficients_at(self.setup, self.all, self.members[ci], &on),
+                coefficients.on_shell(self.setup, self.all, self.members[ci], &on),
             );
         }
         for (r, &(ci, imag)) in self.rows.iter().enumerate() {
@@ -407,13 +409,13 @@ impl<'a> ShellSystem<'a> {
 fn structure(
     members: &[&ChannelValue],
     n_all: usize,
-    coeffs: impl Fn(&ChannelValue, Option<usize>) -> Outcome<Vec<Complex<f64>>>,
+    coeffs: impl Fn(&ChannelValue) -> Outcome<Vec<Complex<f64>>>,
 ) -> Outcome<(Vec<Row>, Vec<usize>, Vec<usize>)> {
     let mut rows: Vec<Row> = Vec::new();
     let mut used: Vec<usize> = Vec::new();
     let mut active = vec![false; n_all];
     for (ci, c) in members.iter().enumerate() {
-        let k = coeffs(c, None)?;
+        let k = coeffs(c)?;
         let mut kept = false;
         for imag in [false, true] {
             let part = |z: &Complex<f64>| if imag { z.im } else { z.re };
