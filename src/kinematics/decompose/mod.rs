@@ -12,6 +12,7 @@
 
 mod cache;
 mod resamples;
+mod rows;
 mod settings;
 mod shells;
 mod solve;

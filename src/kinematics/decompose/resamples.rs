@@ -155,6 +155,89 @@ fn well_conditioned<const K: usize>(b: &DMatrix<f64>) -> bool {
 mod tests {
     use super::*;
 
+    // Source: NIST StRD linear regression, Norris (tests/fixtures/fit; certified B0, B1).
+    // The design is (1, x / 512) so that the system lies inside the condition limit (the
+    // power of two keeps the data exact: the certified slope becomes 512 B1), given as the
+    // real parts of the coefficients of two resamples; unit weights.
+    #[test]
+    fn norris_through_the_per_resample_solver() {
+        let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/fit");
+        let read = |name: &str| std::fs::read_to_string(format!("{dir}/{name}")).expect(name);
+        let points: Vec<(f64, f64)> = read("Norris.csv")
+            .lines()
+            .skip(1)
+            .filter_map(|l| {
+                let (x, y) = l.split_once(',')?;
+                Some((x.trim().parse().ok()?, y.trim().parse().ok()?))
+            })
+            .collect();
+        assert_eq!(points.len(), 36);
+        let certified = read("Norris.certified.csv");
+        let value = |name: &str| -> f64 {
+            certified
+                .lines()
+                .find_map(|l| {
+                    let mut f = l.split(',');
+                    (f.next()? == name).then(|| f.next()?.trim().parse().ok())?
+                })
+                .expect(name)
+        };
+        let coefficients: Vec<Vec<Coefficients>> = points
+            .iter()
+            .map(|(x, _)| {
+                let row = vec![Complex::new(1.0, 0.0), Complex::new(x / 512.0, 0.0)];
+                vec![Ok(row.clone()), Ok(row)]
+            })
+            .collect();
+        let data: Vec<[f64; 2]> = points.iter().map(|(_, y)| [*y, *y]).collect();
+        let rows = coefficients
+            .iter()
+            .zip(&data)
+            .map(|(c, d)| RowSource {
+                coefficients: c,
+                imag: false,
+                data: d,
+            })
+            .collect();
+        let weights = Weights::unit(points.len());
+        let solver = FastSolver::new(rows, &[0, 1], &weights).expect("2 unknowns");
+        let mut buffers = solver.buffers().expect("buffers");
+        for s in 0..2 {
+            let mut out = [0.0; 2];
+            assert!(solver.solve(s, &mut buffers, &mut out));
+            let b0 = value("B0");
+            let b1 = 512.0 * value("B1");
+            assert!((out[0] - b0).abs() <= 1e-9 * b0.abs(), "{out:?}");
+            assert!((out[1] - b1).abs() <= 1e-9 * b1.abs(), "{out:?}");
+        }
+        // Imaginary parts, zero everywhere, make the matrix zero: left to the SVD path, as
+        // is a resample whose coefficients could not be computed.
+        let zero: Vec<RowSource> = coefficients
+            .iter()
+            .zip(&data)
+            .map(|(c, d)| RowSource {
+                coefficients: c,
+                imag: true,
+                data: d,
+            })
+            .collect();
+        let weights = Weights::unit(36);
+        let solver = FastSolver::new(zero, &[0, 1], &weights).expect("2 unknowns");
+        let mut out = [0.0; 2];
+        assert!(!solver.solve(0, &mut buffers, &mut out));
+        let failed: Vec<Coefficients> = vec![Err("no energy".into()), Err("no energy".into())];
+        let rows: Vec<RowSource> = (0..36)
+            .map(|i| RowSource {
+                coefficients: if i == 3 { &failed } else { &coefficients[i] },
+                imag: false,
+                data: &data[i],
+            })
+            .collect();
+        let solver = FastSolver::new(rows, &[0, 1], &weights).expect("2 unknowns");
+        assert!(!solver.solve(0, &mut buffers, &mut out));
+        assert!(FastSolver::new(Vec::new(), &[0, 1], &Weights::unit(0)).is_none());
+    }
+
     #[test]
     fn the_condition_test_follows_the_singular_values() {
         // Columns (1, 0, 0) and (1, t, 0): Gram matrix [[1, 1], [1, 1 + t^2]], condition

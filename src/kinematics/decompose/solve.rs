@@ -12,6 +12,7 @@
 
 use super::cache::{CoefficientCache, Coefficients};
 use super::resamples::{FastSolver, RowSource};
+use super::rows::{row_data, structure, Row};
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
@@ -26,9 +27,6 @@ use std::collections::BTreeMap;
 use std::sync::Arc;
 
 type Outcome<T> = std::result::Result<T, String>;
-
-/// One real equation: channel index and real (false) or imaginary (true) part.
-type Row = (usize, bool);
 
 /// The solve at one sample: the form factors of the unknowns, chi², the condition number,
 /// which unknowns are determined, and the number of undetermined directions.
@@ -403,76 +401,6 @@ impl<'a> ShellSystem<'a> {
     }
 }
 
-/// Structure from the central kinematics: which parts carry information (the rows), which
-/// channels have a row, which of the `n_all` form factors are constrained at all (the
-/// unknowns); refused with too few equations.
-fn structure(
-    members: &[&ChannelValue],
-    n_all: usize,
-    coeffs: impl Fn(&ChannelValue) -> Outcome<Vec<Complex<f64>>>,
-) -> Outcome<(Vec<Row>, Vec<usize>, Vec<usize>)> {
-    let mut rows: Vec<Row> = Vec::new();
-    let mut used: Vec<usize> = Vec::new();
-    let mut active = vec![false; n_all];
-    for (ci, c) in members.iter().enumerate() {
-        let k = coeffs(c)?;
-        let mut kept = false;
-        for imag in [false, true] {
-            let part = |z: &Complex<f64>| if imag { z.im } else { z.re };
-            if k.iter().any(|z| part(z) != 0.0) {
-                rows.push((ci, imag));
-                kept = true;
-                for (a, z) in active.iter_mut().zip(&k) {
-                    *a |= part(z) != 0.0;
-                }
-            }
-        }
-        if kept {
-            used.push(ci);
-        }
-    }
-    let unknowns: Vec<usize> = (0..n_all).filter(|&j| active[j]).collect();
-    if unknowns.is_empty() {
-        return Err(format!(
-            "all {} channels have vanishing coefficients",
-            members.len()
-        ));
-    }
-    if rows.len() < unknowns.len() {
-        return Err(format!(
-            "{} real equations for {} form factors: add channels (other projectors or momenta)",
-            rows.len(),
-            unknowns.len()
-        ));
-    }
-    Ok((rows, used, unknowns))
-}
-
-/// Data with the phase convention applied, one resampled value per row.
-fn row_data(
-    rows: &[Row],
-    members: &[&ChannelValue],
-    phases: &BTreeMap<Current, Complex<f64>>,
-) -> Vec<Resampled> {
-    rows.iter()
-        .map(|&(ci, imag)| {
-            let c = members[ci];
-            let ph = phases
-                .get(&c.current)
-                .copied()
-                .unwrap_or(Complex::new(1.0, 0.0));
-            c.re.zip_map(&c.im, |re, im| {
-                let z = ph * Complex::new(re, im);
-                if imag {
-                    z.im
-                } else {
-                    z.re
-                }
-            })
-        })
-        .collect()
-}
-
 fn names(list: impl Iterator<Item = FormFactor>) -> String {
     list.map(|f| f.name()).collect::<Vec<_>>().join(", ")
 }
@@ -502,4 +430,173 @@ fn whitening(
             data[0].len()
         )
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::{Momentum, Projector};
+    use crate::kinematics::factors::{coefficients, Hadron};
+    use crate::kinematics::momentum::lattice_momentum;
+    use crate::kinematics::setup::Energies;
+    use crate::resample::Scheme;
+
+    const L: usize = 24;
+    const N: usize = 9;
+
+    /// Exact channel values of the shell `nf2=0 ni2=1 nq2=1` (sink at rest, `q = (0,0,1)`):
+    /// V1..V4 under every projector, `Pi = sum_k K_k G_k` with the trace coefficients at each
+    /// sample's kinematics and `G_E = 1.1 - 0.02 s`, `G_M = 4.5 + 0.03 s` on sample `s`.
+    fn exact(st: &KinematicSetup, pf: Momentum, q: Momentum) -> Vec<ChannelValue> {
+        let truth = |s: Option<usize>| {
+            let x = s.map_or(-1.0, |s| s as f64);
+            [1.1 - 0.02 * x, 4.5 + 0.03 * x]
+        };
+        let mut out = Vec::new();
+        for current in [Current::V1, Current::V2, Current::V3, Current::V4] {
+            for projector in [1, 2, 3]
+                .map(Projector::Pol)
+                .into_iter()
+                .chain([Projector::Unpol])
+            {
+                let value = |s: Option<usize>| -> Complex<f64> {
+                    let k = st.on_shell(pf, q, s).expect("kinematics");
+                    let g = truth(s);
+                    coefficients(Hadron::Spin1Half, projector, current, &k)
+                        .iter()
+                        .zip(g)
+                        .map(|((_, kc), g)| kc * g)
+                        .sum()
+                };
+                let samples: Vec<Complex<f64>> = (0..N).map(|s| value(Some(s))).collect();
+                let part = |f: fn(&Complex<f64>) -> f64| {
+                    Resampled::new(
+                        f(&value(None)),
+                        samples.iter().map(f).collect(),
+                        Scheme::Jackknife,
+                    )
+                };
+                out.push(ChannelValue {
+                    pf,
+                    q,
+                    current,
+                    projector,
+                    re: part(|z| z.re),
+                    im: part(|z| z.im),
+                });
+            }
+        }
+        out
+    }
+
+    // A resample whose system is badly conditioned (its source energy a thousand times the
+    // others, so the G_M coefficients nearly vanish against G_E's) is left by the normal
+    // equations to the SVD, which solves it; the others are solved by the normal equations,
+    // and every resample agrees with its own SVD solve and with the exact form factors.
+    #[test]
+    fn a_badly_conditioned_resample_goes_to_the_svd() {
+        let mass = Resampled::new(
+            0.5,
+            (0..N).map(|s| 0.5 + 0.001 * s as f64).collect(),
+            Scheme::Jackknife,
+        );
+        let (pf, q) = ([0, 0, 0], [0, 0, 1]);
+        let mut fitted = BTreeMap::new();
+        for n in [[0, 0, 0], [0, 0, -1]] {
+            let p = lattice_momentum(n, L, [0.0; 3]);
+            let mut e = mass.map(|m| continuum_energy(m, p));
+            if n != [0, 0, 0] {
+                e.samples[5] *= 1e3;
+            }
+            fitted.insert(n, e);
+        }
+        let st = KinematicSetup {
+            hadron: Hadron::Spin1Half,
+            l: L,
+            twist_sink: [0.0; 3],
+            twist_source: [0.0; 3],
+            mass,
+            energies: Energies::Fitted(fitted),
+            spacing_fm: None,
+        };
+        let channels = exact(&st, pf, q);
+        let members: Vec<&ChannelValue> = channels.iter().collect();
+        let all = FormFactor::of(Hadron::Spin1Half, CurrentKind::Vector);
+        let cache = CoefficientCache::new();
+        let phases = BTreeMap::new();
+        let system = ShellSystem::new(&members, &st, all, Weighting::Diagonal, &phases, &cache)
+            .expect("shell")
+            .with_samples(&cache, N);
+        let rank = system.on_shell_rank(&cache).expect("rank");
+        assert_eq!(rank, 2);
+        let fast = system.fast_solver().expect("two unknowns");
+        let mut buffers = fast.buffers().expect("buffers");
+        let mut out = [0.0; 2];
+        let declined: Vec<usize> = (0..N)
+            .filter(|&s| !fast.solve(s, &mut buffers, &mut out))
+            .collect();
+        assert_eq!(declined, [5]);
+        let solved = system.solve_resamples(N, rank).expect("every resample");
+        for (s, g) in solved.chunks_exact(2).enumerate() {
+            let (svd, ..) = system.solve(Some(s), rank).expect("svd");
+            let want = [1.1 - 0.02 * s as f64, 4.5 + 0.03 * s as f64];
+            for col in 0..2 {
+                assert!((g[col] - svd[col]).abs() <= 1e-12 * svd[col].abs(), "{s}");
+                assert!((g[col] - want[col]).abs() <= 1e-9 * want[col], "{s}");
+            }
+        }
+    }
+
+    // A resample with a non-finite energy cannot be solved: the shell is refused with the
+    // SVD path's message naming the first such resample in resample order.
+    #[test]
+    fn the_first_unsolvable_resample_is_named() {
+        let mass = Resampled::new(0.5, vec![0.5; N], Scheme::Jackknife);
+        let (pf, q) = ([0, 0, 0], [0, 0, 1]);
+        let st = KinematicSetup {
+            hadron: Hadron::Spin1Half,
+            l: L,
+            twist_sink: [0.0; 3],
+            twist_source: [0.0; 3],
+            mass: mass.clone(),
+            energies: Energies::Fitted(BTreeMap::new()),
+            spacing_fm: None,
+        };
+        let mut fitted = BTreeMap::new();
+        for n in [[0, 0, 0], [0, 0, -1]] {
+            let p = lattice_momentum(n, L, [0.0; 3]);
+            fitted.insert(n, mass.map(|m| continuum_energy(m, p)));
+        }
+        let good = KinematicSetup {
+            energies: Energies::Fitted(fitted.clone()),
+            ..st.clone()
+        };
+        let channels = exact(&good, pf, q);
+        for (n, e) in fitted.iter_mut() {
+            if *n != [0, 0, 0] {
+                e.samples[7] = f64::NAN;
+                e.samples[3] = f64::NAN;
+            }
+        }
+        let bad = KinematicSetup {
+            energies: Energies::Fitted(fitted),
+            ..st
+        };
+        let members: Vec<&ChannelValue> = channels.iter().collect();
+        let kind = CurrentKind::Vector;
+        let result = solve_shell(
+            &members,
+            kind,
+            &bad,
+            Weighting::Diagonal,
+            &BTreeMap::new(),
+            N,
+            &CoefficientCache::new(),
+        );
+        let reason = result.expect_err("refused");
+        assert!(
+            reason.contains("resample 3") && reason.contains("non-finite"),
+            "{reason}"
+        );
+    }
 }
