@@ -123,8 +123,19 @@ pub fn coefficients(
         Hadron::Spin0 => spin0(projector, current, k),
         Hadron::Spin1Half => spin_half(projector, current, k),
     };
-    let scale = out.iter().map(|(_, c)| c.norm()).fold(1.0_f64, f64::max);
-    for (_, c) in &mut out {
+    let mut values: Vec<Complex<f64>> = out.iter().map(|(_, c)| *c).collect();
+    clean(&mut values);
+    for ((_, c), v) in out.iter_mut().zip(values) {
+        *c = v;
+    }
+    out
+}
+
+/// Set the parts of `values` (the coefficients of one channel) below [`CLEAN`] times the
+/// largest modulus (or 1) to exactly zero.
+pub(super) fn clean(values: &mut [Complex<f64>]) {
+    let scale = values.iter().map(|c| c.norm()).fold(1.0_f64, f64::max);
+    for c in values {
         if c.re.abs() < CLEAN * scale {
             c.re = 0.0;
         }
@@ -132,7 +143,6 @@ pub fn coefficients(
             c.im = 0.0;
         }
     }
-    out
 }
 
 /// `Pi(V_mu) = -i (P_f + P_i)_mu F / (2 sqrt(E_f E_i))`.
@@ -158,7 +168,7 @@ fn four_vector(p: [f64; 3], e: f64) -> [Complex<f64>; 4] {
     ]
 }
 
-fn projector_matrix(projector: Projector) -> Option<M4> {
+pub(super) fn projector_matrix(projector: Projector) -> Option<M4> {
     let c = clifford();
     let unpol = (M4::identity() + c.g[3]) * Complex::new(0.5, 0.0);
     match projector {

@@ -15,6 +15,7 @@
 
 mod decompose;
 mod dirac;
+mod expansion;
 mod factors;
 mod momentum;
 mod phase;

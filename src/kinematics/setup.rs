@@ -108,6 +108,43 @@ pub struct KinematicSetup {
     pub spacing_fm: Option<f64>,
 }
 
+/// The energy at one momentum: a fitted one per sample, or the dispersion relation on the
+/// sample's mass.
+#[derive(Clone, Copy, Debug)]
+enum Energy<'a> {
+    Fitted(&'a Resampled),
+    Dispersion(Dispersion),
+}
+
+/// One channel's momenta and the sources of its energies, resolved once: its on-shell
+/// kinematics at any sample ([`KinematicSetup::channel`]).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct ChannelKinematics<'a> {
+    mass: &'a Resampled,
+    pf: [f64; 3],
+    pi: [f64; 3],
+    ef: Energy<'a>,
+    ei: Energy<'a>,
+}
+
+impl ChannelKinematics<'_> {
+    /// On-shell kinematics at sample `s` (`None`: central value).
+    pub(crate) fn at(&self, s: Option<usize>) -> OnShell {
+        let mass = at(self.mass, s);
+        let energy = |e: Energy<'_>, p: [f64; 3]| match e {
+            Energy::Fitted(r) => at(r, s),
+            Energy::Dispersion(d) => d.energy(mass, p),
+        };
+        OnShell {
+            mass,
+            pf: self.pf,
+            pi: self.pi,
+            ef: energy(self.ef, self.pf),
+            ei: energy(self.ei, self.pi),
+        }
+    }
+}
+
 /// Value of `r` at sample `s`, or the central value for `None`.
 pub(crate) fn at(r: &Resampled, s: Option<usize>) -> f64 {
     s.map_or(r.central, |i| r.samples[i])
@@ -160,39 +197,45 @@ impl KinematicSetup {
         Ok(n)
     }
 
-    fn energy(&self, n: Momentum, p: [f64; 3], s: Option<usize>) -> Result<f64> {
+    /// Where the energy at integer momentum `n` comes from.
+    fn energy(&self, n: Momentum) -> Result<Energy<'_>> {
         match &self.energies {
-            Energies::Fitted(map) => map.get(&n).map(|e| at(e, s)).ok_or_else(|| {
+            Energies::Fitted(map) => map.get(&n).map(Energy::Fitted).ok_or_else(|| {
                 Error::analysis(
                     "kinematics",
                     format!("no fitted energy for momentum {n:?}; fit the two-point function there or use a dispersion relation"),
                 )
             }),
-            Energies::Dispersion(d) => Ok(d.energy(at(&self.mass, s), p)),
+            Energies::Dispersion(d) => Ok(Energy::Dispersion(*d)),
         }
+    }
+
+    /// The kinematics of a channel with sink momentum `pf` and momentum transfer `q`
+    /// (integer, source `pf - q`), its energies looked up once for all samples.
+    pub(crate) fn channel(&self, pf: Momentum, q: Momentum) -> Result<ChannelKinematics<'_>> {
+        let ni = sub(pf, q);
+        Ok(ChannelKinematics {
+            mass: &self.mass,
+            pf: lattice_momentum(pf, self.l, self.twist_sink),
+            pi: lattice_momentum(ni, self.l, self.twist_source),
+            ef: self.energy(pf)?,
+            ei: self.energy(ni)?,
+        })
     }
 
     /// On-shell kinematics of a channel with sink momentum `pf` and momentum transfer `q`
     /// (integer, source `pf - q`), at sample `s` (`None`: central value).
     pub fn on_shell(&self, pf: Momentum, q: Momentum, s: Option<usize>) -> Result<OnShell> {
-        let ni = sub(pf, q);
-        let pfv = lattice_momentum(pf, self.l, self.twist_sink);
-        let piv = lattice_momentum(ni, self.l, self.twist_source);
-        Ok(OnShell {
-            mass: at(&self.mass, s),
-            pf: pfv,
-            pi: piv,
-            ef: self.energy(pf, pfv, s)?,
-            ei: self.energy(ni, piv, s)?,
-        })
+        Ok(self.channel(pf, q)?.at(s))
     }
 
     /// Q² of a channel in lattice units, per resample.
     pub fn q2(&self, pf: Momentum, q: Momentum) -> Result<Resampled> {
-        let central = q_squared(&self.on_shell(pf, q, None)?);
+        let k = self.channel(pf, q)?;
+        let central = q_squared(&k.at(None));
         let samples = (0..self.mass.len())
-            .map(|s| self.on_shell(pf, q, Some(s)).map(|k| q_squared(&k)))
-            .collect::<Result<Vec<f64>>>()?;
+            .map(|s| q_squared(&k.at(Some(s))))
+            .collect();
         Ok(Resampled::new(central, samples, self.mass.scheme))
     }
 }

@@ -6,12 +6,15 @@
 
 use super::ChannelValue;
 use crate::data::{Current, Momentum, Projector};
+use crate::kinematics::expansion::Expansion;
 use crate::kinematics::factors::{coefficients, FormFactor};
 use crate::kinematics::setup::KinematicSetup;
 use crate::kinematics::OnShell;
+use crate::resample::Resampled;
 use nalgebra::Complex;
 use rayon::prelude::*;
 use std::collections::HashMap;
+use std::hash::Hash;
 use std::sync::{Arc, Mutex};
 
 /// What the coefficients of a channel depend on besides the setup: sink momentum, momentum
@@ -21,11 +24,35 @@ type Key = (Momentum, Momentum, Current, Projector);
 /// The coefficients of every form factor at one sample, or why they could not be computed.
 pub(super) type Coefficients = Result<Vec<Complex<f64>>, String>;
 
-/// Coefficients per channel and resample, filled on first use. One cache belongs to one
-/// [`KinematicSetup`]: pass the same setup to every decomposition that shares it.
+/// Q² of a channel per resample (sink momentum, momentum transfer), or why it could not be
+/// computed.
+type Q2 = Result<Arc<Resampled>, String>;
+
+/// Coefficients per channel and resample, and Q² per channel momenta, filled on first use.
+/// One cache belongs to one [`KinematicSetup`]: pass the same setup to every decomposition
+/// that shares it.
 #[derive(Default)]
 pub struct CoefficientCache {
     samples: Mutex<HashMap<Key, Arc<Vec<Coefficients>>>>,
+    central: Mutex<HashMap<Key, Coefficients>>,
+    on_shell: Mutex<HashMap<Key, Vec<Complex<f64>>>>,
+    q2: Mutex<HashMap<(Momentum, Momentum), Q2>>,
+}
+
+/// The value of `key` in `map`, computed by `compute` on first use.
+fn memo<K: Eq + Hash, V: Clone>(
+    map: &Mutex<HashMap<K, V>>,
+    key: K,
+    compute: impl FnOnce() -> V,
+) -> V {
+    // A panic elsewhere cannot leave the map half-written: entries are inserted whole.
+    let lock = || map.lock().unwrap_or_else(|e| e.into_inner());
+    if let Some(found) = lock().get(&key) {
+        return found.clone();
+    }
+    let computed = compute();
+    lock().insert(key, computed.clone());
+    computed
 }
 
 impl CoefficientCache {
@@ -36,7 +63,9 @@ impl CoefficientCache {
 
     /// The coefficients of `c` at every one of `n` resamples (in parallel on first use, in
     /// sample order). A resample whose kinematics equal the central ones reuses `central`,
-    /// computed from the same numbers.
+    /// computed from the same numbers; the others evaluate the channel's traces expanded in
+    /// the energies and the mass ([`Expansion`], computed once here), or, where there is no
+    /// trace to expand (spin 0), compute the coefficients directly.
     pub(super) fn samples(
         &self,
         setup: &KinematicSetup,
@@ -49,21 +78,65 @@ impl CoefficientCache {
         if let Some(found) = self.lock().get(&key) {
             return Arc::clone(found);
         }
+        let kinematics = setup.channel(c.pf, c.q).map_err(|e| e.to_string());
+        let expansion = kinematics
+            .as_ref()
+            .ok()
+            .and_then(|k| Expansion::new(setup.hadron, c.projector, c.current, &k.at(None)))
+            .filter(|_| FormFactor::of(setup.hadron, c.current.kind()) == all);
         let computed: Vec<Coefficients> = (0..n)
             .into_par_iter()
             .map(|s| {
-                let k = setup
-                    .on_shell(c.pf, c.q, Some(s))
-                    .map_err(|e| e.to_string())?;
+                let k = kinematics.as_ref().map_err(|e| e.clone())?.at(Some(s));
                 match central {
                     Some((k0, kc0)) if *k0 == k => Ok(kc0.clone()),
-                    _ => channel_coefficients(setup, all, c, Some(s)),
+                    _ => match expansion.as_ref().and_then(|e| e.evaluate(&k)) {
+                        Some(kc) => Ok(kc),
+                        None => Ok(coefficients_at(setup, all, c, &k)),
+                    },
                 }
             })
             .collect();
         let computed = Arc::new(computed);
         self.lock().insert(key, Arc::clone(&computed));
         computed
+    }
+
+    /// Q² of the channel with sink momentum `pf` and momentum transfer `q`, per resample
+    /// ([`KinematicSetup::q2`]), computed on first use: every shell of every method that
+    /// holds the channel reads the same value.
+    pub(super) fn q2(&self, setup: &KinematicSetup, pf: Momentum, q: Momentum) -> Q2 {
+        memo(&self.q2, (pf, q), || {
+            setup.q2(pf, q).map(Arc::new).map_err(|e| e.to_string())
+        })
+    }
+
+    /// The coefficients of `c` on the central value ([`channel_coefficients`]), computed on
+    /// first use: every method's shell structure and central solve read them.
+    pub(super) fn central(
+        &self,
+        setup: &KinematicSetup,
+        all: &[FormFactor],
+        c: &ChannelValue,
+    ) -> Coefficients {
+        let key = (c.pf, c.q, c.current, c.projector);
+        memo(&self.central, key, || {
+            channel_coefficients(setup, all, c, None)
+        })
+    }
+
+    /// The coefficients of `c` at `on`, the channel's on-shell kinematics at the central
+    /// mass (the same for every call with one setup: the rank decision of every method's
+    /// shell), computed on first use.
+    pub(super) fn on_shell(
+        &self,
+        setup: &KinematicSetup,
+        all: &[FormFactor],
+        c: &ChannelValue,
+        on: &OnShell,
+    ) -> Vec<Complex<f64>> {
+        let key = (c.pf, c.q, c.current, c.projector);
+        memo(&self.on_shell, key, || coefficients_at(setup, all, c, on))
     }
 
     fn lock(&self) -> std::sync::MutexGuard<'_, HashMap<Key, Arc<Vec<Coefficients>>>> {

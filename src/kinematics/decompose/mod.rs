@@ -11,6 +11,8 @@
 //! of that shell.
 
 mod cache;
+mod resamples;
+mod rows;
 mod settings;
 mod shells;
 mod solve;

@@ -10,7 +10,9 @@
 //! a condition number of a few hundred and a meaningless solution above any fixed threshold.
 //! The numeric solve then keeps only as many singular directions as the on-shell system has.
 
-use super::cache::{channel_coefficients, coefficients_at, CoefficientCache, Coefficients};
+use super::cache::{CoefficientCache, Coefficients};
+use super::resamples::{FastSolver, RowSource};
+use super::rows::{row_data, structure, Row};
 use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
@@ -25,9 +27,6 @@ use std::collections::BTreeMap;
 use std::sync::Arc;
 
 type Outcome<T> = std::result::Result<T, String>;
-
-/// One real equation: channel index and real (false) or imaginary (true) part.
-type Row = (usize, bool);
 
 /// The solve at one sample: the form factors of the unknowns, chi², the condition number,
 /// which unknowns are determined, and the number of undetermined directions.
@@ -45,8 +44,9 @@ pub(super) fn solve_shell(
 ) -> Outcome<ShellResult> {
     let all = FormFactor::of(setup.hadron, kind);
     check_shell(members, kind, setup, all)?;
-    let system = ShellSystem::new(members, setup, all, weights, phases)?.with_samples(cache, n);
-    let rank = system.on_shell_rank()?;
+    let system =
+        ShellSystem::new(members, setup, all, weights, phases, cache)?.with_samples(cache, n);
+    let rank = system.on_shell_rank(cache)?;
     let (g0, chi2, condition, determined, n_null) = system.solve(None, rank)?;
     if !determined.iter().any(|d| *d) {
         return Err(format!(
@@ -54,12 +54,9 @@ pub(super) fn solve_shell(
             names(system.unknowns.iter().map(|&j| all[j]))
         ));
     }
-    let per_sample = (0..n)
-        .into_par_iter()
-        .map(|s| system.solve(Some(s), rank).map(|(g, ..)| g))
-        .collect::<Outcome<Vec<_>>>()?;
+    let per_sample = system.solve_resamples(n, rank)?;
     let (form_factors, undetermined) = system.form_factors(&g0, &per_sample, &determined);
-    let q2 = system.q2()?;
+    let q2 = system.q2(cache)?;
     let dof = system.rows.len() - (system.unknowns.len() - n_null);
     Ok(ShellResult {
         label: String::new(),
@@ -125,8 +122,9 @@ impl<'a> ShellSystem<'a> {
         all: &'a [FormFactor],
         weights: Weighting,
         phases: &BTreeMap<Current, Complex<f64>>,
+        cache: &CoefficientCache,
     ) -> Outcome<Self> {
-        let coeffs = |c: &ChannelValue, s: Option<usize>| channel_coefficients(setup, all, c, s);
+        let coeffs = |c: &ChannelValue| cache.central(setup, all, c);
         let (rows, used, unknowns) = structure(members, all.len(), coeffs)?;
         let data = row_data(&rows, members, phases);
         let w = whitening(&data, &rows, members, weights)?;
@@ -134,7 +132,7 @@ impl<'a> ShellSystem<'a> {
         for &ci in &used {
             let c = members[ci];
             let k = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
-            central.insert(ci, (k, coeffs(c, None)?));
+            central.insert(ci, (k, coeffs(c)?));
         }
         Ok(ShellSystem {
             members,
@@ -193,7 +191,7 @@ impl<'a> ShellSystem<'a> {
     /// The rank of the coefficient matrix on shell: continuum energies at the central mass,
     /// each row scaled to unit length, singular values above [`SINGULAR_THRESHOLD`] of the
     /// largest.
-    fn on_shell_rank(&self) -> Outcome<usize> {
+    fn on_shell_rank(&self, coefficients: &CoefficientCache) -> Outcome<usize> {
         let mass = self.setup.mass.central;
         let mut k = DMatrix::zeros(self.rows.len(), self.unknowns.len());
         let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
@@ -203,7 +201,7 @@ impl<'a> ShellSystem<'a> {
             on.ei = continuum_energy(mass, on.pi);
             cache.insert(
                 ci,
-                coefficients_at(self.setup, self.all, self.members[ci], &on),
+                coefficients.on_shell(self.setup, self.all, self.members[ci], &on),
             );
         }
         for (r, &(ci, imag)) in self.rows.iter().enumerate() {
@@ -287,16 +285,72 @@ impl<'a> ShellSystem<'a> {
         Ok((g, chi2, smax / kept_min, determined, null.len()))
     }
 
-    /// The determined form factors (central value `g0` and one solution per resample), and
-    /// the undetermined ones.
+    /// The solutions of all `n` resamples, resample by resample (`unknowns.len()` values
+    /// each). With as many directions kept as unknowns, each resample is solved by the normal
+    /// equations when its conditioning allows ([`FastSolver`]), otherwise (and with fewer
+    /// directions kept) by [`Self::solve`]'s SVD. The first error in resample order is
+    /// returned, so the outcome does not depend on the number of threads.
+    fn solve_resamples(&self, n: usize, rank: usize) -> Outcome<Vec<f64>> {
+        let k = self.unknowns.len();
+        let fast = (rank == k).then(|| self.fast_solver()).flatten();
+        let mut out = vec![0.0; n * k];
+        let failed: Vec<Option<String>> = out
+            .par_chunks_mut(k.max(1))
+            .enumerate()
+            .map_init(
+                || fast.as_ref().and_then(FastSolver::buffers),
+                |buffers, (s, o)| {
+                    if let (Some(f), Some(b)) = (&fast, buffers.as_mut()) {
+                        if f.solve(s, b, o) {
+                            return None;
+                        }
+                    }
+                    match self.solve(Some(s), rank) {
+                        Ok((g, ..)) if g.len() == o.len() => {
+                            o.copy_from_slice(g.as_slice());
+                            None
+                        }
+                        Ok(_) => Some(format!("resample {s}: the solve gave a wrong size")),
+                        Err(e) => Some(e),
+                    }
+                },
+            )
+            .collect();
+        match failed.into_iter().flatten().next() {
+            Some(e) => Err(e),
+            None => Ok(out),
+        }
+    }
+
+    /// The normal-equations solver over this shell's rows; `None` when it does not apply
+    /// (the SVD path then solves every resample).
+    fn fast_solver(&self) -> Option<FastSolver<'_>> {
+        let rows = self
+            .rows
+            .iter()
+            .zip(&self.data)
+            .map(|(&(ci, imag), d)| {
+                self.per_sample.get(&ci).map(|c| RowSource {
+                    coefficients: c.as_slice(),
+                    imag,
+                    data: &d.samples,
+                })
+            })
+            .collect::<Option<Vec<_>>>()?;
+        FastSolver::new(rows, &self.unknowns, &self.w)
+    }
+
+    /// The determined form factors (central value `g0` and the solutions of every resample,
+    /// `per_sample[s * k + col]` for `k` unknowns), and the undetermined ones.
     fn form_factors(
         &self,
         g0: &DVector<f64>,
-        per_sample: &[DVector<f64>],
+        per_sample: &[f64],
         determined: &[bool],
     ) -> (Vec<(FormFactor, Resampled)>, Vec<FormFactor>) {
+        let k = self.unknowns.len().max(1);
         let samples: Vec<Vec<f64>> = (0..self.unknowns.len())
-            .map(|col| per_sample.iter().map(|g| g[col]).collect())
+            .map(|col| per_sample.chunks_exact(k).map(|g| g[col]).collect())
             .collect();
         let scheme = self.setup.mass.scheme;
         let form_factors = self
@@ -317,18 +371,15 @@ impl<'a> ShellSystem<'a> {
         (form_factors, undetermined)
     }
 
-    /// Q² of the shell: the mean over its used channels, per resample; refused when timelike.
-    fn q2(&self) -> Outcome<Resampled> {
+    /// Q² of the shell: the mean over its used channels, per resample (each channel's from
+    /// `cache`); refused when timelike.
+    fn q2(&self, cache: &CoefficientCache) -> Outcome<Resampled> {
         let q2s = self
             .used
             .iter()
-            .map(|&ci| {
-                self.setup
-                    .q2(self.members[ci].pf, self.members[ci].q)
-                    .map_err(|e| e.to_string())
-            })
+            .map(|&ci| cache.q2(self.setup, self.members[ci].pf, self.members[ci].q))
             .collect::<Outcome<Vec<_>>>()?;
-        let refs: Vec<&Resampled> = q2s.iter().collect();
+        let refs: Vec<&Resampled> = q2s.iter().map(|q| &**q).collect();
         let q2 = Resampled::try_combine(&refs, "Q² of the shell's channels", |v| {
             v.iter().sum::<f64>() / v.len() as f64
         })
@@ -348,76 +399,6 @@ impl<'a> ShellSystem<'a> {
         }
         Ok(q2)
     }
-}
-
-/// Structure from the central kinematics: which parts carry information (the rows), which
-/// channels have a row, which of the `n_all` form factors are constrained at all (the
-/// unknowns); refused with too few equations.
-fn structure(
-    members: &[&ChannelValue],
-    n_all: usize,
-    coeffs: impl Fn(&ChannelValue, Option<usize>) -> Outcome<Vec<Complex<f64>>>,
-) -> Outcome<(Vec<Row>, Vec<usize>, Vec<usize>)> {
-    let mut rows: Vec<Row> = Vec::new();
-    let mut used: Vec<usize> = Vec::new();
-    let mut active = vec![false; n_all];
-    for (ci, c) in members.iter().enumerate() {
-        let k = coeffs(c, None)?;
-        let mut kept = false;
-        for imag in [false, true] {
-            let part = |z: &Complex<f64>| if imag { z.im } else { z.re };
-            if k.iter().any(|z| part(z) != 0.0) {
-                rows.push((ci, imag));
-                kept = true;
-                for (a, z) in active.iter_mut().zip(&k) {
-                    *a |= part(z) != 0.0;
-                }
-            }
-        }
-        if kept {
-            used.push(ci);
-        }
-    }
-    let unknowns: Vec<usize> = (0..n_all).filter(|&j| active[j]).collect();
-    if unknowns.is_empty() {
-        return Err(format!(
-            "all {} channels have vanishing coefficients",
-            members.len()
-        ));
-    }
-    if rows.len() < unknowns.len() {
-        return Err(format!(
-            "{} real equations for {} form factors: add channels (other projectors or momenta)",
-            rows.len(),
-            unknowns.len()
-        ));
-    }
-    Ok((rows, used, unknowns))
-}
-
-/// Data with the phase convention applied, one resampled value per row.
-fn row_data(
-    rows: &[Row],
-    members: &[&ChannelValue],
-    phases: &BTreeMap<Current, Complex<f64>>,
-) -> Vec<Resampled> {
-    rows.iter()
-        .map(|&(ci, imag)| {
-            let c = members[ci];
-            let ph = phases
-                .get(&c.current)
-                .copied()
-                .unwrap_or(Complex::new(1.0, 0.0));
-            c.re.zip_map(&c.im, |re, im| {
-                let z = ph * Complex::new(re, im);
-                if imag {
-                    z.im
-                } else {
-                    z.re
-                }
-            })
-        })
-        .collect()
 }
 
 fn names(list: impl Iterator<Item = FormFactor>) -> String {
@@ -449,4 +430,173 @@ fn whitening(
             data[0].len()
         )
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::{Momentum, Projector};
+    use crate::kinematics::factors::{coefficients, Hadron};
+    use crate::kinematics::momentum::lattice_momentum;
+    use crate::kinematics::setup::Energies;
+    use crate::resample::Scheme;
+
+    const L: usize = 24;
+    const N: usize = 9;
+
+    /// Exact channel values of the shell `nf2=0 ni2=1 nq2=1` (sink at rest, `q = (0,0,1)`):
+    /// V1..V4 under every projector, `Pi = sum_k K_k G_k` with the trace coefficients at each
+    /// sample's kinematics and `G_E = 1.1 - 0.02 s`, `G_M = 4.5 + 0.03 s` on sample `s`.
+    fn exact(st: &KinematicSetup, pf: Momentum, q: Momentum) -> Vec<ChannelValue> {
+        let truth = |s: Option<usize>| {
+            let x = s.map_or(-1.0, |s| s as f64);
+            [1.1 - 0.02 * x, 4.5 + 0.03 * x]
+        };
+        let mut out = Vec::new();
+        for current in [Current::V1, Current::V2, Current::V3, Current::V4] {
+            for projector in [1, 2, 3]
+                .map(Projector::Pol)
+                .into_iter()
+                .chain([Projector::Unpol])
+            {
+                let value = |s: Option<usize>| -> Complex<f64> {
+                    let k = st.on_shell(pf, q, s).expect("kinematics");
+                    let g = truth(s);
+                    coefficients(Hadron::Spin1Half, projector, current, &k)
+                        .iter()
+                        .zip(g)
+                        .map(|((_, kc), g)| kc * g)
+                        .sum()
+                };
+                let samples: Vec<Complex<f64>> = (0..N).map(|s| value(Some(s))).collect();
+                let part = |f: fn(&Complex<f64>) -> f64| {
+                    Resampled::new(
+                        f(&value(None)),
+                        samples.iter().map(f).collect(),
+                        Scheme::Jackknife,
+                    )
+                };
+                out.push(ChannelValue {
+                    pf,
+                    q,
+                    current,
+                    projector,
+                    re: part(|z| z.re),
+                    im: part(|z| z.im),
+                });
+            }
+        }
+        out
+    }
+
+    // A resample whose system is badly conditioned (its source energy a thousand times the
+    // others, so the G_M coefficients nearly vanish against G_E's) is left by the normal
+    // equations to the SVD, which solves it; the others are solved by the normal equations,
+    // and every resample agrees with its own SVD solve and with the exact form factors.
+    #[test]
+    fn a_badly_conditioned_resample_goes_to_the_svd() {
+        let mass = Resampled::new(
+            0.5,
+            (0..N).map(|s| 0.5 + 0.001 * s as f64).collect(),
+            Scheme::Jackknife,
+        );
+        let (pf, q) = ([0, 0, 0], [0, 0, 1]);
+        let mut fitted = BTreeMap::new();
+        for n in [[0, 0, 0], [0, 0, -1]] {
+            let p = lattice_momentum(n, L, [0.0; 3]);
+            let mut e = mass.map(|m| continuum_energy(m, p));
+            if n != [0, 0, 0] {
+                e.samples[5] *= 1e3;
+            }
+            fitted.insert(n, e);
+        }
+        let st = KinematicSetup {
+            hadron: Hadron::Spin1Half,
+            l: L,
+            twist_sink: [0.0; 3],
+            twist_source: [0.0; 3],
+            mass,
+            energies: Energies::Fitted(fitted),
+            spacing_fm: None,
+        };
+        let channels = exact(&st, pf, q);
+        let members: Vec<&ChannelValue> = channels.iter().collect();
+        let all = FormFactor::of(Hadron::Spin1Half, CurrentKind::Vector);
+        let cache = CoefficientCache::new();
+        let phases = BTreeMap::new();
+        let system = ShellSystem::new(&members, &st, all, Weighting::Diagonal, &phases, &cache)
+            .expect("shell")
+            .with_samples(&cache, N);
+        let rank = system.on_shell_rank(&cache).expect("rank");
+        assert_eq!(rank, 2);
+        let fast = system.fast_solver().expect("two unknowns");
+        let mut buffers = fast.buffers().expect("buffers");
+        let mut out = [0.0; 2];
+        let declined: Vec<usize> = (0..N)
+            .filter(|&s| !fast.solve(s, &mut buffers, &mut out))
+            .collect();
+        assert_eq!(declined, [5]);
+        let solved = system.solve_resamples(N, rank).expect("every resample");
+        for (s, g) in solved.chunks_exact(2).enumerate() {
+            let (svd, ..) = system.solve(Some(s), rank).expect("svd");
+            let want = [1.1 - 0.02 * s as f64, 4.5 + 0.03 * s as f64];
+            for col in 0..2 {
+                assert!((g[col] - svd[col]).abs() <= 1e-12 * svd[col].abs(), "{s}");
+                assert!((g[col] - want[col]).abs() <= 1e-9 * want[col], "{s}");
+            }
+        }
+    }
+
+    // A resample with a non-finite energy cannot be solved: the shell is refused with the
+    // SVD path's message naming the first such resample in resample order.
+    #[test]
+    fn the_first_unsolvable_resample_is_named() {
+        let mass = Resampled::new(0.5, vec![0.5; N], Scheme::Jackknife);
+        let (pf, q) = ([0, 0, 0], [0, 0, 1]);
+        let st = KinematicSetup {
+            hadron: Hadron::Spin1Half,
+            l: L,
+            twist_sink: [0.0; 3],
+            twist_source: [0.0; 3],
+            mass: mass.clone(),
+            energies: Energies::Fitted(BTreeMap::new()),
+            spacing_fm: None,
+        };
+        let mut fitted = BTreeMap::new();
+        for n in [[0, 0, 0], [0, 0, -1]] {
+            let p = lattice_momentum(n, L, [0.0; 3]);
+            fitted.insert(n, mass.map(|m| continuum_energy(m, p)));
+        }
+        let good = KinematicSetup {
+            energies: Energies::Fitted(fitted.clone()),
+            ..st.clone()
+        };
+        let channels = exact(&good, pf, q);
+        for (n, e) in fitted.iter_mut() {
+            if *n != [0, 0, 0] {
+                e.samples[7] = f64::NAN;
+                e.samples[3] = f64::NAN;
+            }
+        }
+        let bad = KinematicSetup {
+            energies: Energies::Fitted(fitted),
+            ..st
+        };
+        let members: Vec<&ChannelValue> = channels.iter().collect();
+        let kind = CurrentKind::Vector;
+        let result = solve_shell(
+            &members,
+            kind,
+            &bad,
+            Weighting::Diagonal,
+            &BTreeMap::new(),
+            N,
+            &CoefficientCache::new(),
+        );
+        let reason = result.expect_err("refused");
+        assert!(
+            reason.contains("resample 3") && reason.contains("non-finite"),
+            "{reason}"
+        );
+    }
 }
