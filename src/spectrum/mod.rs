@@ -52,7 +52,7 @@ mod rest_mass;
 pub mod settings;
 mod window;
 
-pub use average::{AverageRow, ModelAverage};
+pub use average::{AverageRow, ExcitedAverage, ModelAverage};
 pub use correlator::fit_correlator;
 pub use dispersion::DispersionRow;
 pub use settings::{
@@ -121,14 +121,22 @@ impl MomentumSpectrum {
         &self.energies[0]
     }
 
-    /// `E_1 - E_0` of the best multi-state fit.
+    /// `E_1 - E_0`: the model average over the included multi-state fits
+    /// ([`average::ExcitedAverage`]); when none is included, that of the fallback fit in
+    /// `excited` (a physical but unresolved multi-state fit).
     pub fn gap(&self) -> Option<Resampled> {
+        if let Some(x) = &self.average.excited {
+            return Some(x.gap.clone());
+        }
         let f = self.excited.as_ref()?;
         Some(&f.energies[1] - &f.energies[0])
     }
 
-    /// `A_1 / A_0` of the best multi-state fit.
+    /// `A_1 / A_0`, from the same source as [`Self::gap`].
     pub fn amplitude_ratio(&self) -> Option<Resampled> {
+        if let Some(x) = &self.average.excited {
+            return Some(x.amplitude_ratio.clone());
+        }
         let f = self.excited.as_ref()?;
         Some(&f.amplitudes[1] / &f.amplitudes[0])
     }
