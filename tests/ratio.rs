@@ -307,9 +307,13 @@ fn single_state_ratio_is_the_matrix_element_everywhere() {
         };
         let result = analyse_channel(ratio.clone(), &states, &late_settings).unwrap();
         assert_eq!(result.plateaus.len(), 3);
-        // The late two-state fit (asked for) drops the smallest of the three separations;
-        // without the setting it is not made.
-        let plain = analyse_channel(ratio.clone(), &states, &settings).unwrap();
+        // The late two-state fit (made by default) drops the smallest of the three
+        // separations; with the setting off it is not made.
+        let off = RatioSettings {
+            two_state_late: false,
+            ..settings.clone()
+        };
+        let plain = analyse_channel(ratio.clone(), &states, &off).unwrap();
         assert!(plain.two_state_late.is_none());
         let late = result.two_state_late.as_ref().unwrap();
         assert_eq!(result.two_state.as_ref().unwrap().tseps, vec![6, 8, 10]);

@@ -16,6 +16,8 @@ use std::collections::BTreeMap;
 /// then of every derived quantity; `pin` fixes one estimator.
 pub fn final_results(results: &RunResults, pin: Option<Estimator>) -> Vec<FinalRow> {
     let mut out = Vec::new();
+    // The statistical errors' degrees of freedom come from the bins (error_budget: Student t).
+    let bins = results.data.as_ref().map(|d| d.n_bins);
     let shells = shells(results);
     let mut ff_rows = Vec::new();
     for ((ff, shell), idx) in shells {
@@ -29,7 +31,7 @@ pub fn final_results(results: &RunResults, pin: Option<Estimator>) -> Vec<FinalR
                 z_relative: relative(r.value.error_z, r.value.value.central),
             })
             .collect();
-        if let Some(b) = error_budget::final_value(&variants, pin) {
+        if let Some(b) = error_budget::final_value(&variants, pin, bins) {
             let r = rows[0];
             ff_rows.push(FinalRow {
                 quantity: ff.name().to_string(),
@@ -68,7 +70,7 @@ pub fn final_results(results: &RunResults, pin: Option<Estimator>) -> Vec<FinalR
                 }
             })
             .collect();
-        if let Some(b) = error_budget::final_value(&variants, pin) {
+        if let Some(b) = error_budget::final_value(&variants, pin, bins) {
             out.push(FinalRow {
                 quantity: quantity.to_string(),
                 shell: None,

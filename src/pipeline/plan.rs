@@ -235,7 +235,9 @@ fn validate(plan: &Plan) -> Result<()> {
     if s.final_value.pin == Some(Estimator::TwoStateLate) && !s.excited_states.two_state_late {
         return err(
             "final_value.pin",
-            "`two_state_late` is made only with `excited_states.two_state_late: true`".into(),
+            "`two_state_late` is made only with `excited_states.two_state_late: true` (the \
+             default, turned off here)"
+                .into(),
         );
     }
     if s.excited_states.methods.contains(&Estimator::TwoState) && s.spectrum.n_states.to < 2 {

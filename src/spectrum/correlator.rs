@@ -256,7 +256,8 @@ fn window_fits(
     Ok(fits)
 }
 
-/// The highest-weight fit, and the highest-weight fit with at least two states.
+/// The highest-weight fit, and the highest-weight fit with at least two states (the excited
+/// state the later stages take is the average over the multi-state fits, `average.excited`).
 fn choose_fits(
     name: &str,
     fits: &[WindowFit],

@@ -99,28 +99,27 @@ pub(super) fn signal_t_max(
     (cap, None)
 }
 
-/// The rest frame's first gap as its best multi-state fit found it, to be carried to the moving
-/// frames (`SpectrumSettings::rest_frame_gap_width`).
+/// The rest frame's first gap as its model average over the multi-state fits found it
+/// ([`super::ExcitedAverage`]), to be carried to the moving frames
+/// (`SpectrumSettings::rest_frame_gap_width`).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub(super) struct RestGap {
-    /// Ground energy of that fit.
+    /// Ground energy averaged over those fits.
     e0: f64,
-    /// First excited energy of that fit.
+    /// First excited energy averaged over those fits.
     e1: f64,
     /// Resampled error of `ln(E_1 - E_0)`.
     log_gap_error: f64,
 }
 
-/// The rest frame's gap, when its best multi-state fit is in the model average (weight above
-/// zero: physical and resolved) and the gap is positive on the central fit.
+/// The rest frame's gap, when some multi-state fit is in its model average (physical and
+/// resolved) and the averaged gap is positive.
 pub(super) fn rest_gap(rest: &MomentumSpectrum) -> Option<RestGap> {
-    let fit = rest.excited.as_ref().filter(|f| f.weight > 0.0)?;
-    let (e0, e1) = (fit.energies.first()?, fit.energies.get(1)?);
-    let log_gap = Resampled::combine(&[e0, e1], |x| (x[1] - x[0]).ln());
+    let x = rest.average.excited.as_ref()?;
     let out = RestGap {
-        e0: e0.central,
-        e1: e1.central,
-        log_gap_error: log_gap.error(),
+        e0: x.ground_energy.central,
+        e1: x.energy.central,
+        log_gap_error: x.gap.map(f64::ln).error(),
     };
     (out.e1 > out.e0 && out.log_gap_error.is_finite()).then_some(out)
 }

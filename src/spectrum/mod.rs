@@ -16,11 +16,14 @@
 //!   momentum, the dispersion energy when the settings ask for it); `energies[n >= 1]`,
 //!   `amplitudes[n >= 1]`: the excited states of the highest-weight fit.
 //! - `chosen`: the highest-weight fit (window, states, chi2/dof, p, its own energies and
-//!   amplitudes); `excited`: the highest-weight fit with at least two states, the source of
-//!   [`MomentumSpectrum::gap`] and [`MomentumSpectrum::amplitude_ratio`] (both from one fit, so
-//!   `a = A1/A0` and `Delta = E1 - E0` are mutually consistent, as the two-state ratio fit
-//!   needs).
-//! - `average`: the full model-average table (every `t_min` × number of states with weights).
+//!   amplitudes); `excited`: the highest-weight fit with at least two states (shown in the
+//!   tables, and the fallback of [`MomentumSpectrum::gap`] and
+//!   [`MomentumSpectrum::amplitude_ratio`] when no multi-state fit is included).
+//! - `average`: the full model-average table (every `t_min` × number of states with weights)
+//!   and `average.excited`, the first excited state averaged over the included multi-state
+//!   fits: the source of [`MomentumSpectrum::gap`] and [`MomentumSpectrum::amplitude_ratio`]
+//!   (each fit's own difference and ratio averaged, so `a = A1/A0` and `Delta = E1 - E0` stay
+//!   mutually consistent, as the two-state ratio fit needs).
 //!
 //! The amplitudes are those of `C(t) = sum_n A_n e^{-E_n t}` (periodic form: times
 //! `e^{-E t} + e^{-E (T - t)}`), i.e. `|Z_n|^2 / (2 E_n)` in the usual normalisation.
@@ -52,7 +55,7 @@ mod rest_mass;
 pub mod settings;
 mod window;
 
-pub use average::{AverageRow, ModelAverage};
+pub use average::{AverageRow, ExcitedAverage, ModelAverage};
 pub use correlator::fit_correlator;
 pub use dispersion::DispersionRow;
 pub use settings::{
@@ -121,14 +124,22 @@ impl MomentumSpectrum {
         &self.energies[0]
     }
 
-    /// `E_1 - E_0` of the best multi-state fit.
+    /// `E_1 - E_0`: the model average over the included multi-state fits
+    /// ([`average::ExcitedAverage`]); when none is included, that of the fallback fit in
+    /// `excited` (a physical but unresolved multi-state fit).
     pub fn gap(&self) -> Option<Resampled> {
+        if let Some(x) = &self.average.excited {
+            return Some(x.gap.clone());
+        }
         let f = self.excited.as_ref()?;
         Some(&f.energies[1] - &f.energies[0])
     }
 
-    /// `A_1 / A_0` of the best multi-state fit.
+    /// `A_1 / A_0`, from the same source as [`Self::gap`].
     pub fn amplitude_ratio(&self) -> Option<Resampled> {
+        if let Some(x) = &self.average.excited {
+            return Some(x.amplitude_ratio.clone());
+        }
         let f = self.excited.as_ref()?;
         Some(&f.amplitudes[1] / &f.amplitudes[0])
     }

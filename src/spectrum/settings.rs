@@ -156,12 +156,14 @@ pub struct SpectrumSettings {
     /// Ground-energy priors per momentum, keyed `"nx,ny,nz"`; they replace the carried prior.
     pub ground_energy_by_momentum: BTreeMap<String, Prior>,
     /// Moving frames take the prior of their first log-gap `ln(E_1 - E_0)` from the rest
-    /// frame's fitted spectrum: both rest-frame energies of its best multi-state fit carried by
+    /// frame's fitted spectrum: both rest-frame energies averaged over its multi-state fits
+    /// (docs/methods.md §2) carried by
     /// the dispersion relation of `prior_frames` (continuum unless `lattice_dispersion`), with
     /// this width in the log-gap, the rest-frame log-gap error added in quadrature. Default
     /// 0.3 (a gap known to about 35 %, room for states whose dispersion differs); `null` keeps
     /// `priors.log_gap` at every momentum, as does `prior_frames: rest_only`. Used only where
-    /// the rest frame has a resolved multi-state fit; the run notes the carried gaps.
+    /// the rest frame has a resolved multi-state fit in its average; the run notes the carried
+    /// gaps.
     pub rest_frame_gap_width: Option<f64>,
     /// Range of the number of states (1 to 3).
     pub n_states: IntRange,

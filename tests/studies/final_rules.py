@@ -10,12 +10,14 @@ derived_samples.csv as src/error_budget.rs does (reference estimator per Q² mod
 averaged with equal weights, the model spread as the Q² model error, statistical error from the
 jackknife resamples of the combination); the script first checks that the shipped rule
 reproduces the written final.csv (value to 1e-9, total error to 1e-6 relative) and prints how
-often it does. Rules (value; excited-state error), `d = M_all − M_late`, `σ_d` its resampled
-error:
+often it does (either the current rule or that of the binaries before December 3, cov13b).
+Rules (value; excited-state error), `d = M_all − M_late`, `σ_d` its resampled error:
   default    two-state; excess of the summation − two-state difference over its noise
+             (with `two_state_late: false`)
   late_stat  late; none (the late fit's statistical error alone)
-  late_excess late; sqrt(max(0, d² − σ_d²)) (the shift beyond its noise)
-  late_full  late; |d|                (excited_states.two_state_late: true)
+  late_excess late; sqrt(max(0, d² − σ_d²)) (the shift beyond its noise; with `tq` the
+             shipped default since December 3)
+  late_full  late; |d|                (the opt-in rule before December 3)
   late_max   late; max(|d|, σ_d)
   late_quad  late; sqrt(d² + σ_d²)
 each with the statistical error as resampled (`run`), scaled to the analytic inflation of an
@@ -23,7 +25,7 @@ AR(1) chain with ρ = 0.3 in the run's bins (`analytic`: `analytic_factor` over 
 a diagnostic for the heavy mock, whose data are exactly that), or multiplied by a Student-t
 factor for ν = bins − 1 degrees of freedom: `tq` = t_ν⁻¹(Φ(2)) / 2 (±2σ a 95.45 % interval),
 `tv` = sqrt(ν / (ν − 2)) (unit pull variance). Printed per rule: the share within 1 and 2σ
-with its standard error from resampling whole seeds, pull rms and mean pull.
+and the pull rms, each with its standard error from resampling whole seeds, and the mean pull.
 Jackknife runs only. Needs python3 with numpy and PyYAML.
 """
 import csv
@@ -164,14 +166,15 @@ def report(name, pulls):
     seeds = np.array([s for _, s in pulls])
     groups = [np.where(seeds == s)[0] for s in np.unique(seeds)]
     rng = random.Random(1)
-    b1, b2 = [], []
+    b1, b2, br = [], [], []
     for _ in range(1000):
         pick = np.concatenate([groups[rng.randrange(len(groups))] for _ in groups])
         b1.append(np.mean(np.abs(p[pick]) < 1))
         b2.append(np.mean(np.abs(p[pick]) < 2))
+        br.append(math.sqrt(np.mean(p[pick] ** 2)))
     print(f'{name} n {len(p):5d}  1σ {100 * np.mean(np.abs(p) < 1):5.1f} ± {100 * np.std(b1):.1f}  '
           f'2σ {100 * np.mean(np.abs(p) < 2):5.1f} ± {100 * np.std(b2):.1f}  '
-          f'rms {math.sqrt(np.mean(p * p)):.2f}  mean {p.mean():+.2f}')
+          f'rms {math.sqrt(np.mean(p * p)):.2f} ± {np.std(br):.2f}  mean {p.mean():+.2f}')
 
 
 def main():
@@ -196,12 +199,18 @@ def main():
         for key, truth in want.items():
             if key not in data or key not in written:
                 continue
-            shipped = budget(data[key], 'late_full' if 'smallest' in written[key][2] else 'default')
-            if shipped:
+            # The shipped rule: since December 3 (cov13b) the late value with the excess shift
+            # and Student-t statistical errors; runs of older binaries used the full shift
+            # (late fit asked for) or no late fit, without the t factor. Either counts.
+            late = 'smallest' in written[key][2]
+            shipped = [budget(data[key], rule, 1.0, t) for rule, t in
+                       ([('late_excess', 'tq'), ('late_full', None)] if late
+                        else [('default', 'tq'), ('default', None)])]
+            if shipped[0]:
                 compared += 1
                 value, total, _ = written[key]
-                reproduced += (abs(shipped[0] - value) <= 1e-9 * max(1.0, abs(value))
-                               and abs(shipped[1] - total) <= 1e-6 * total)
+                reproduced += any(abs(b[0] - value) <= 1e-9 * max(1.0, abs(value))
+                                  and abs(b[1] - total) <= 1e-6 * total for b in shipped if b)
             for rule, scaling in pulls:
                 scale = analytic_factor(bin_size) / factor if scaling == 'analytic' and factor else 1.0
                 b = budget(data[key], rule, scale, scaling if scaling in ('tq', 'tv') else None)

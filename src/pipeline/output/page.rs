@@ -143,7 +143,8 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
              over every separation, else the summation, where it is missing), averaged with \
              equal weights over the Q² models, written value(stat)(sys); the summation result \
              and the plateaus are checks. The systematic error adds in quadrature the change \
-             of the two-state result when the smallest separation is added (exc), the spread \
+             of the two-state result when the smallest separation is added, the part of it \
+             that its own statistical error does not explain (exc), the spread \
              of the plateau separations when plateaus make the value (fit), the spread of the \
              Q² models (model) and the renormalization error (Z); final_variants.csv lists \
              every variant with its weight or why it has none."
@@ -156,13 +157,26 @@ fn final_results(results: &RunResults, tables: &Tables, figures: &[Rendered]) ->
              summation − two-state difference that its own statistical error does not \
              explain (exc), the spread of the plateau separations when plateaus make the value \
              (fit), the spread of the Q² models (model) and the renormalization error (Z); \
-             final_variants.csv lists every variant with its weight or why it has none."
+             final_variants.csv lists every variant with its weight or why it has none \
+             (excited_states.two_state_late: false; by default the two-state fit without its \
+             smallest separation gives the value)."
                 .to_string()
         }
         crate::error_budget::Rule::Pinned(e) => format!(
             "The final values are pinned to the {e} estimator (final_value.pin); the \
              systematic error holds only the Q² model spread and the renormalization error."
         ),
+    };
+    let rule = match results.data.as_ref().map(|d| d.n_bins) {
+        Some(bins) if first.budget.student_t != 1.0 => format!(
+            "{rule} The statistical error (stat) is the resampled error times {:.3}, the \
+             Student-t factor for {bins} bins ({} degrees of freedom): with an error estimated \
+             from so few bins, value ± 2 stat is then a 95.45 % interval, as for a normal \
+             distribution (docs/methods.md §4).",
+            first.budget.student_t,
+            bins - 1
+        ),
+        _ => rule,
     };
     let mut blocks = vec![
         Block::Paragraph(rule),

@@ -32,7 +32,8 @@ pub(in crate::pipeline) fn skip_dropped_momenta(
 }
 
 /// What the two-state ratio fit needs from the spectrum: per momentum the ground energy,
-/// the amplitude ratio and the gap of the best multi-state fit.
+/// the amplitude ratio and the gap averaged over the multi-state fits
+/// ([`crate::spectrum::ExcitedAverage`]).
 ///
 /// A resample on which that fit jumped to another solution (its amplitude ratio or gap
 /// outside [`Resampled::inlier_band`], e.g. a tiny spurious "ground" state below the real one

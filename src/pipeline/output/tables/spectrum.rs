@@ -8,7 +8,10 @@ use crate::Result;
 
 /// `spectrum`: energies per momentum and state. `source` says where each row comes from:
 /// `model_average` (the ground state; the fit columns then describe the highest-weight fit of
-/// the average) or `best_multi_state_fit` (excited states, from that one fit).
+/// the average), `multi_state_average` (the first excited state averaged over the included
+/// multi-state fits, as the ratio stage takes it; the fit columns describe the highest-weight
+/// of them) or `best_multi_state_fit` (higher states, or the first when no multi-state fit is
+/// included: from that one fit).
 pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
     let mut t = Table::new(
         name,
@@ -22,10 +25,20 @@ pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
     };
     for (p, m) in &sp.per_momentum {
         for (n, e) in m.energies.iter().enumerate() {
+            let averaged = m.average.excited.as_ref().filter(|_| n == 1);
             let (source, fit) = if n == 0 {
                 ("model_average", Some(&m.chosen))
+            } else if averaged.is_some() {
+                ("multi_state_average", m.excited.as_ref())
             } else {
                 ("best_multi_state_fit", m.excited.as_ref())
+            };
+            let (e, err) = match averaged {
+                Some(x) => (&x.energy, x.energy.error()),
+                // The model average's error is its Jay–Neil error; a single fit's excited
+                // energy is quoted like every fit's, without the resamples that jumped.
+                None if n == 0 => (e, e.error()),
+                None => (e, e.robust_error()),
             };
             let int = |f: fn(&ChosenFit) -> usize| {
                 fit.map_or(Cell::Float(f64::NAN), |x| Cell::from(f(x)))
@@ -38,9 +51,7 @@ pub(super) fn energies(name: &str, results: &RunResults) -> Result<Table> {
                 Cell::from(n),
                 Cell::Text(source.into()),
                 float(e.central),
-                // The model average's error is its Jay–Neil error; an excited energy is one
-                // fit's, quoted like every fit's without the resamples that jumped.
-                float(if n == 0 { e.error() } else { e.robust_error() }),
+                float(err),
                 int(|f| f.t_min),
                 int(|f| f.t_max),
                 int(|f| f.n_states),
