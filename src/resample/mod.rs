@@ -27,10 +27,12 @@ pub mod binning;
 pub mod covariance;
 pub mod inflation;
 mod means;
+pub mod notation;
 pub mod plan;
 pub mod robust;
 pub mod value;
 
+pub use notation::fmt_value_error;
 pub use plan::{Part, ResamplePlan};
 pub(crate) use value::stable_mean;
-pub use value::{covariance_of, fmt_value_error, Resampled, Scheme, Summary};
+pub use value::{covariance_of, Resampled, Scheme, Summary};
