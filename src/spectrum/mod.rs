@@ -63,11 +63,13 @@ pub use settings::{
 };
 pub use window::WindowFit;
 
-use crate::data::{Momentum, TwoPointData};
+use crate::data::{Momentum, Series, TwoPointData};
 use crate::error::{Error, Result};
 use crate::resample::{ResamplePlan, Resampled, Scheme};
 use serde::Serialize;
+use rayon::prelude::*;
 use std::collections::BTreeMap;
+use std::sync::atomic::{AtomicUsize, Ordering};
 
 /// Summary of one fit singled out from the model average.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -225,6 +227,42 @@ pub fn resample_series(
         .collect())
 }
 
+/// The rest frame.
+const REST_FRAME: Momentum = [0, 0, 0];
+
+/// One momentum's fits: its resamples (an error there ends the stage), then
+/// [`fit_correlator`] with the first-gap prior carried from the rest frame's spectrum
+/// `rest_gap`, and the warnings it gave.
+fn fit_momentum(
+    p: Momentum,
+    series: &Series,
+    plan: &ResamplePlan,
+    settings: &SpectrumSettings,
+    rest_gap: Option<&frames::RestGap>,
+) -> Result<(Result<MomentumSpectrum>, Vec<String>)> {
+    let corr = resample_series(series, plan)?;
+    // A jackknife run is its own weighting; a bootstrap run adds a jackknife over the bins.
+    let jackknife = match plan.scheme() {
+        Scheme::Jackknife => None,
+        Scheme::Bootstrap => Some(resample_series(
+            series,
+            &ResamplePlan::jackknife(plan.n_bins()),
+        )?),
+    };
+    let weighting = jackknife.as_deref().unwrap_or(&corr);
+    // Every resample's fit weights its points by the spread of its own bins.
+    let scales: Vec<Vec<f64>> = (0..series.n_t)
+        .map(|t| plan.sample_error_scales(series.re_at(t)))
+        .collect();
+    let mut local = frames::momentum_settings(p, settings);
+    if let (Some(rest), Some(width)) = (rest_gap, settings.rest_frame_gap_width) {
+        local.priors.first_log_gap = frames::carried_gap_prior(p, rest, width, settings);
+    }
+    let mut warnings = Vec::new();
+    let fitted = fit_correlator(p, &corr, weighting, Some(&scales), &local, &mut warnings);
+    Ok((fitted, warnings))
+}
+
 /// The spectrum stage: fit every momentum of `data` (already binned) on the resamples of
 /// `plan`, then the dispersion check and, if asked, dispersion energies.
 pub fn run(
@@ -248,44 +286,44 @@ pub fn run_with_progress(
     let mut per_momentum = BTreeMap::new();
     let mut dropped = Vec::new();
     let channels = select_channels(data, settings.smear.as_deref())?;
-    // The rest frame first: its spectrum gives the moving frames their first-gap prior.
-    let order = channels
-        .iter()
-        .filter(|(p, _)| **p == [0, 0, 0])
-        .chain(channels.iter().filter(|(p, _)| **p != [0, 0, 0]));
+    let total = channels.len();
+    let done = AtomicUsize::new(0);
+    let fit = |p: Momentum, series: &Series, rest_gap: Option<&frames::RestGap>| {
+        let out = fit_momentum(p, series, plan, settings, rest_gap);
+        progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+        out
+    };
+    progress(0, total);
+    // The rest frame first: its spectrum gives the moving frames their first-gap prior. The
+    // moving frames then run side by side and are taken in momentum order, so the result
+    // (warnings and their order included) is that of fitting them one after another.
     let mut rest_gap = None;
-    for (i, (&p, series)) in order.enumerate() {
-        progress(i, channels.len());
-        let corr = resample_series(series, plan)?;
-        // A jackknife run is its own weighting; a bootstrap run adds a jackknife over the bins.
-        let jackknife = match plan.scheme() {
-            Scheme::Jackknife => None,
-            Scheme::Bootstrap => Some(resample_series(
-                series,
-                &ResamplePlan::jackknife(plan.n_bins()),
-            )?),
-        };
-        let weighting = jackknife.as_deref().unwrap_or(&corr);
-        // Every resample's fit weights its points by the spread of its own bins.
-        let scales: Vec<Vec<f64>> = (0..series.n_t)
-            .map(|t| plan.sample_error_scales(series.re_at(t)))
-            .collect();
-        let mut local = frames::momentum_settings(p, settings);
-        if let (Some(rest), Some(width)) = (&rest_gap, settings.rest_frame_gap_width) {
-            local.priors.first_log_gap = frames::carried_gap_prior(p, rest, width, settings);
-        }
-        match fit_correlator(p, &corr, weighting, Some(&scales), &local, &mut warnings) {
+    if let Some(series) = channels.get(&REST_FRAME) {
+        let (fitted, notes) = fit(REST_FRAME, series, None)?;
+        warnings.extend(notes);
+        let s = fitted?;
+        rest_gap = frames::rest_gap(&s);
+        per_momentum.insert(REST_FRAME, s);
+    }
+    let moving: Vec<(Momentum, &Series)> = channels
+        .iter()
+        .filter(|(p, _)| **p != REST_FRAME)
+        .map(|(p, s)| (*p, *s))
+        .collect();
+    let fitted: Vec<_> = moving
+        .par_iter()
+        .map(|&(p, series)| fit(p, series, rest_gap.as_ref()))
+        .collect();
+    for ((p, _), outcome) in moving.iter().zip(fitted) {
+        let (fitted, notes) = outcome?;
+        warnings.extend(notes);
+        match fitted {
             Ok(s) => {
-                if p == [0, 0, 0] {
-                    rest_gap = frames::rest_gap(&s);
-                }
-                per_momentum.insert(p, s);
+                per_momentum.insert(*p, s);
             }
-            Err(e) if p != [0, 0, 0] => dropped.push((p, e.to_string())),
-            Err(e) => return Err(e),
+            Err(e) => dropped.push((*p, e.to_string())),
         }
     }
-    progress(channels.len(), channels.len());
     let notes = [
         frames::prior_frames_note(settings),
         frames::gap_prior_note(rest_gap.as_ref(), settings),
