@@ -66,8 +66,8 @@ pub use window::WindowFit;
 use crate::data::{Momentum, Series, TwoPointData};
 use crate::error::{Error, Result};
 use crate::resample::{ResamplePlan, Resampled, Scheme};
-use serde::Serialize;
 use rayon::prelude::*;
+use serde::Serialize;
 use std::collections::BTreeMap;
 use std::sync::atomic::{AtomicUsize, Ordering};
 

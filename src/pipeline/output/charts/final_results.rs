@@ -41,14 +41,16 @@ fn chart(r: &FinalRow) -> Figure {
         title: format!("{what}: variants and weights"),
         x_label: "variant".into(),
         y_label: axis_label(&r.quantity, &r.unit),
-        size: (800, 400),
+        // wide enough that the legend column holds a variant, its weight or why it has none
+        size: (960, 400),
         integer_x: true,
         ..Chart::default()
     };
     let n = b.variants.len() as f64;
     let (v, t) = (b.value.central, b.total());
     chart.series.push(Series::band(
-        format!("final, total error ({})", b.rule),
+        // the rule itself is stated above the budget table
+        "final value, total error".to_string(),
         FINAL_COLOUR,
         vec![0.5, n + 0.5],
         vec![v - t, v - t],
@@ -58,7 +60,7 @@ fn chart(r: &FinalRow) -> Figure {
         let name = format!("{} {}", w.variant.estimator, w.variant.model);
         let name = name.trim_end();
         let label = match &w.excluded {
-            Some(why) => format!("{name}: excluded, {why}"),
+            Some(why) => format!("{name}: {}", legend_reason(why)),
             None => format!("{name}: weight {:.2}", w.weight),
         };
         let (colour, marker) = estimator_style(w.variant.estimator);
@@ -74,4 +76,30 @@ fn chart(r: &FinalRow) -> Figure {
         );
     }
     Figure::new(Plot::FinalVariants, name, chart)
+}
+
+/// Why a variant has no weight, as short as the legend column needs: the budget's reason
+/// without a repeated estimator name, `sigma` as `σ`.
+fn legend_reason(why: &str) -> String {
+    why.strip_prefix("plateau: ")
+        .unwrap_or(why)
+        .replace(" sigma ", "σ ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::legend_reason;
+
+    #[test]
+    fn reasons_are_shortened_for_the_legend() {
+        assert_eq!(
+            legend_reason("a check, 0.5 sigma from two_state_late"),
+            "a check, 0.5σ from two_state_late"
+        );
+        assert_eq!(
+            legend_reason("plateau: a check, not averaged"),
+            "a check, not averaged"
+        );
+        assert_eq!(legend_reason("not finite"), "not finite");
+    }
 }
