@@ -142,6 +142,22 @@ const SMALLEST_SCALE: f64 = 1e-100;
 /// See [`SMALLEST_SCALE`].
 const LARGEST_SCALE: f64 = 1e100;
 
+/// Each channel's [`ValueFacts`] in channel order: the `known` ones where given, else taken
+/// from the values, channels in parallel (each alone, so the same facts whatever the threads).
+fn facts_in_order<K: Ord + Sync>(
+    channels: &BTreeMap<K, Series>,
+    known: Option<&BTreeMap<K, ValueFacts>>,
+) -> Vec<ValueFacts> {
+    channels
+        .par_iter()
+        .map(|(key, s)| {
+            known
+                .and_then(|k| k.get(key).copied())
+                .unwrap_or_else(|| ValueFacts::of(s))
+        })
+        .collect()
+}
+
 /// Refuse a table whose values are all tiny or huge, and a channel that is the same on every
 /// configuration at every time. `facts` are the channels' [`ValueFacts`] when the data hold
 /// only shapes ([`Shapes`]); without them they are taken from the values.
@@ -152,26 +168,9 @@ pub fn check_values(
     threept_path: &Path,
     facts: Option<&Facts>,
 ) -> Result<()> {
-    // Each channel's facts once, channels in parallel (each alone: the same facts whatever
-    // the threads), then the checks in channel order.
-    let two_facts: Vec<ValueFacts> = two
-        .channels
-        .par_iter()
-        .map(|(key, s)| {
-            facts
-                .and_then(|f| f.two.get(key).copied())
-                .unwrap_or_else(|| ValueFacts::of(s))
-        })
-        .collect();
-    let three_facts: Vec<ValueFacts> = three
-        .channels
-        .par_iter()
-        .map(|(key, s)| {
-            facts
-                .and_then(|f| f.three.get(key).copied())
-                .unwrap_or_else(|| ValueFacts::of(s))
-        })
-        .collect();
+    // Each channel's facts once, then the checks in channel order.
+    let two_facts = facts_in_order(&two.channels, facts.map(|f| &f.two));
+    let three_facts = facts_in_order(&three.channels, facts.map(|f| &f.three));
     let largest = |all: &[ValueFacts]| all.iter().fold(0.0_f64, |m, f| m.max(f.largest));
     check_scale(largest(&two_facts), twopt_path)?;
     check_scale(largest(&three_facts), threept_path)?;
