@@ -1007,6 +1007,42 @@ fn results_do_not_depend_on_the_thread_count() {
     assert_eq!(run(1), run(3));
 }
 
+// The late two-state fit (without the smallest separation) takes its per-resample designs from
+// the full fit's rows (`two_state_with_late`); it must equal the same fit made on its own with
+// its settings, bit for bit (exact equality is the claim: the same values, copied), here with
+// gaps that differ per resample so that every resample has its own design.
+#[test]
+fn late_two_state_fit_with_shared_designs_equals_the_fit_on_its_own() {
+    let (twopt, c2, c3) = noisy_two_state_data(60, 11);
+    let plan = ResamplePlan::jackknife(60);
+    let mut states = states_of(&twopt, &plan);
+    for (i, st) in states.values_mut().enumerate() {
+        let n = st.gap.len();
+        st.gap.samples = (0..n)
+            .map(|j| st.gap.central * (1.0 + 1e-3 * ((j * (i + 3)) % 11) as f64))
+            .collect();
+        st.amp_ratio.samples = (0..n)
+            .map(|j| st.amp_ratio.central * (1.0 - 2e-3 * ((j * (i + 5)) % 7) as f64))
+            .collect();
+    }
+    let settings = RatioSettings::default();
+    assert!(settings.two_state_late);
+    let ratios = build_ratios(&c3, &c2, &plan, &settings).unwrap();
+    let late = RatioSettings {
+        two_state_tsep_min: 6,
+        ..settings.clone()
+    };
+    for ratio in ratios.into_values() {
+        let alone = two_state::two_state(&ratio, &states, &late).unwrap();
+        let result = analyse_channel(ratio, &states, &settings).unwrap();
+        let shared = result
+            .two_state_late
+            .expect("a late fit on three separations");
+        assert_eq!(shared.tseps, vec![6, 8]);
+        assert_eq!(shared, alone);
+    }
+}
+
 // The stage builds, fits and summarises one channel at a time (`analyse_all`) and, on tables
 // it owns, drops them as it goes (`analyse_all_consuming`); both must give what building every
 // ratio first and analysing each channel afterwards gives, bit for bit (exact equality is the

@@ -9,7 +9,7 @@
 use super::crosscheck::{cross_check, CrossCheckRow};
 use super::plateau::{plateau, PlateauFit};
 use super::summation::{summation, SummationFit};
-use super::two_state::{two_state as two_state_fit, TwoPointStates, TwoStateFit};
+use super::two_state::{two_state_with_late, TwoPointStates, TwoStateFit};
 use super::{
     ChannelKey, ChannelRatio, Estimator, RatioSettings, RatioSummary, ReIm, ReImFit, STAGE,
 };
@@ -63,17 +63,13 @@ pub fn analyse_channel(
     let summation = summation(&ratio, settings)
         .map_err(|e| notes.push(e.to_string()))
         .ok();
-    let two_state = two_state_fit(&ratio, states, settings)
-        .map_err(|e| notes.push(e.to_string()))
-        .ok();
-    let two_state_late = two_state
-        .as_ref()
-        .and_then(|t| late_settings(t, settings))
-        .and_then(|late| {
-            two_state_fit(&ratio, states, &late)
-                .map_err(|e| notes.push(format!("{TWO_STATE_LATE_NOTE}: {e}")))
-                .ok()
-        });
+    let (two_state, late) =
+        two_state_with_late(&ratio, states, settings, |t| late_settings(t, settings));
+    let two_state = two_state.map_err(|e| notes.push(e.to_string())).ok();
+    let two_state_late = late.and_then(|r| {
+        r.map_err(|e| notes.push(format!("{TWO_STATE_LATE_NOTE}: {e}")))
+            .ok()
+    });
     let crosscheck = cross_check(&plateaus, summation.as_ref(), two_state.as_ref());
     let fits = Fits {
         plateaus: &plateaus,

@@ -18,6 +18,7 @@
 //! The floating-gap and joint variants ([`super::floating`], [`super::joint`]) build on the
 //! types and the fixed-gap solution of this module.
 
+use super::designs::DesignCache;
 use crate::data::Momentum;
 use crate::ratio::lsq::{fit_re_im, Design};
 use crate::ratio::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
@@ -293,43 +294,6 @@ impl<'a> Setup<'a> {
     }
 }
 
-/// The design of every resample, column-major one after the other (see
-/// [`Setup::sample_designs`]).
-#[derive(Default)]
-struct DesignCache {
-    values: Vec<f64>,
-    /// Values per design (`points x n_params`).
-    size: usize,
-}
-
-impl DesignCache {
-    /// The design of resample `k`, if cached.
-    fn get(&self, k: usize) -> Option<&[f64]> {
-        let start = k.checked_mul(self.size)?;
-        self.values.get(start..start.checked_add(self.size)?)
-    }
-}
-
-impl Setup<'_> {
-    /// [`Setup::design_into`] for every resample's gaps, kept for the real and the imaginary
-    /// fit (`points x n_params x resamples` values; empty without points).
-    fn sample_designs(&self) -> DesignCache {
-        let (rows, cols) = (self.points.len(), self.n_params());
-        let size = rows * cols;
-        let n_samples = self.source.gap.len();
-        if size == 0 {
-            return DesignCache::default();
-        }
-        let mut values = vec![0.0; size * n_samples];
-        let mut x = DMatrix::zeros(rows, cols);
-        for (k, chunk) in values.chunks_mut(size).enumerate() {
-            self.design_into(self.gaps(Some(k)), &mut x);
-            chunk.copy_from_slice(x.as_slice());
-        }
-        DesignCache { values, size }
-    }
-}
-
 /// Two-state fit of `ratio` with the gaps and amplitude ratios of `states` fixed per resample.
 pub fn two_state_fixed(
     ratio: &ChannelRatio,
@@ -337,22 +301,81 @@ pub fn two_state_fixed(
     settings: &RatioSettings,
 ) -> Result<TwoStateFit> {
     let setup = Setup::new(ratio, states, settings)?;
+    let designs = setup.designs();
+    fit_setup(&setup, ratio, settings, &designs, 0)
+}
+
+/// [`two_state_fixed`], then, when `late` gives settings for it from that fit, the fit
+/// without the smallest separation. The second fit's points are the first's without those of
+/// its smallest separation (points are ordered by `(tsep, tau)`), and a design row depends
+/// only on its `(tsep, tau)` and the resample's gaps, so the second fit takes its
+/// per-resample designs from the first's rows below those points: the same values bit for
+/// bit, computed once.
+pub(crate) fn two_state_fixed_and_late(
+    ratio: &ChannelRatio,
+    states: &BTreeMap<Momentum, TwoPointStates>,
+    settings: &RatioSettings,
+    late: impl FnOnce(&TwoStateFit) -> Option<RatioSettings>,
+) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
+    let setup = match Setup::new(ratio, states, settings) {
+        Ok(s) => s,
+        Err(e) => return (Err(e), None),
+    };
+    let designs = setup.designs();
+    let first = fit_setup(&setup, ratio, settings, &designs, 0);
+    let second = first.as_ref().ok().and_then(late).map(|late| {
+        let late_setup = Setup::new(ratio, states, &late)?;
+        let skip = setup.points.len().saturating_sub(late_setup.points.len());
+        let tail = setup.points.get(skip..).unwrap_or_default();
+        let is_tail = tail.len() == late_setup.points.len()
+            && tail
+                .iter()
+                .zip(&late_setup.points)
+                .all(|(a, b)| std::ptr::eq(*a, *b));
+        if is_tail {
+            fit_setup(&late_setup, ratio, &late, &designs, skip)
+        } else {
+            fit_setup(&late_setup, ratio, &late, &late_setup.designs(), 0)
+        }
+    });
+    (first, second)
+}
+
+impl Setup<'_> {
+    /// [`Setup::design_into`] for every resample's gaps, kept for the real and the imaginary
+    /// fit and the fit without the smallest separation; none when every resample has the
+    /// central gaps (one design, factorised once).
+    fn designs(&self) -> DesignCache {
+        if self.gaps_are_fixed() {
+            return DesignCache::default();
+        }
+        let (rows, cols) = (self.points.len(), self.n_params());
+        DesignCache::compute(rows, cols, self.source.gap.len(), |k, x| {
+            self.design_into(self.gaps(Some(k)), x)
+        })
+    }
+}
+
+/// The fit of `setup`'s points, its per-resample designs taken from `designs` without their
+/// first `skip` rows (computed afresh where `designs` has none of that shape).
+fn fit_setup(
+    setup: &Setup<'_>,
+    ratio: &ChannelRatio,
+    settings: &RatioSettings,
+    designs: &DesignCache,
+    skip: usize,
+) -> Result<TwoStateFit> {
     let what = format!("two-state fit of channel {}", ratio.key);
     let values: Vec<&ReIm> = setup.points.iter().map(|p| &p.value).collect();
     // Two-point inputs without spread (fixed by hand, or a degenerate ensemble) give one
     // design for every resample: factorised once. Otherwise the real and the imaginary fits
     // use the same design per resample: filled once for both (same values, copied).
-    let fixed = setup.gaps_are_fixed();
-    let cache = if fixed {
-        DesignCache::default()
-    } else {
-        setup.sample_designs()
+    let fill = |s: Option<usize>, x: &mut DMatrix<f64>| {
+        if !s.is_some_and(|k| designs.copy_rows(k, skip, x)) {
+            setup.design_into(setup.gaps(s), x)
+        }
     };
-    let fill = |s: Option<usize>, x: &mut DMatrix<f64>| match s.and_then(|k| cache.get(k)) {
-        Some(a) if a.len() == x.len() => x.copy_from_slice(a),
-        _ => setup.design_into(setup.gaps(s), x),
-    };
-    let design = if fixed {
+    let design = if setup.gaps_are_fixed() {
         Design::Fixed(setup.design(setup.gaps(None)))
     } else {
         Design::PerSample {
@@ -384,41 +407,11 @@ pub fn two_state_fixed(
         c_f,
         c_if,
         symmetric: setup.symmetric,
-        tseps: setup.tseps,
+        tseps: setup.tseps.clone(),
         n_points: setup.points.len(),
         gaps: None,
         shape,
     })
-}
-
-/// Test helper shared by the two-state fit models.
-#[cfg(test)]
-pub(crate) mod jacobian_check {
-    use crate::fit::Model;
-    use approx::assert_relative_eq;
-    use nalgebra::DMatrix;
-
-    /// Assert that `model`'s analytic Jacobian at `params` matches central finite
-    /// differences (step 1e-6; common practice).
-    pub(crate) fn assert_jacobian_matches(model: &impl Model, params: &[f64]) {
-        let (n, k) = (model.n_points(), model.n_params());
-        assert_eq!(params.len(), k);
-        let mut jac = DMatrix::zeros(n, k);
-        model.jacobian(params, &mut jac);
-        let (mut up, mut down) = (vec![0.0; n], vec![0.0; n]);
-        for j in 0..k {
-            let h = 1e-6;
-            let mut p = params.to_vec();
-            p[j] += h;
-            model.eval(&p, &mut up);
-            p[j] -= 2.0 * h;
-            model.eval(&p, &mut down);
-            for i in 0..n {
-                let fd = (up[i] - down[i]) / (2.0 * h);
-                assert_relative_eq!(jac[(i, j)], fd, epsilon = 1e-7, max_relative = 1e-6);
-            }
-        }
-    }
 }
 
 #[cfg(test)]

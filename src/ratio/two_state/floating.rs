@@ -467,7 +467,7 @@ impl Model for FloatingGapModel {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ratio::two_state::fixed::jacobian_check::assert_jacobian_matches;
+    use crate::ratio::two_state::jacobian_check::assert_jacobian_matches;
 
     fn times() -> Vec<(f64, f64)> {
         [

@@ -211,7 +211,7 @@ pub fn two_state_joint(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ratio::two_state::fixed::jacobian_check::assert_jacobian_matches;
+    use crate::ratio::two_state::jacobian_check::assert_jacobian_matches;
 
     #[test]
     fn jacobian_matches_finite_differences() {

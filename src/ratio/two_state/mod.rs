@@ -4,8 +4,11 @@
 //! two-point functions (`joint`). This module only dispatches; the dependencies point one
 //! way, `joint → floating → fixed`.
 
+mod designs;
 mod fixed;
 mod floating;
+#[cfg(test)]
+mod jacobian_check;
 mod joint;
 
 pub use fixed::{two_state_fixed, FittedGaps, Gaps, TwoPointStates, TwoStateFit};
@@ -30,4 +33,25 @@ pub fn two_state(
             joint::two_state_joint(ratio, states, settings, t_min, t_max)
         }
     }
+}
+
+/// [`two_state`], then, when `late` gives settings for it from that fit, the same variant
+/// again with those settings (the fit without the smallest separation). The fixed-gap
+/// variant shares its per-resample designs between the two fits.
+pub fn two_state_with_late(
+    ratio: &ChannelRatio,
+    states: &BTreeMap<Momentum, TwoPointStates>,
+    settings: &RatioSettings,
+    late: impl FnOnce(&TwoStateFit) -> Option<RatioSettings>,
+) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
+    if settings.two_state == TwoStateVariant::FixedGaps {
+        return fixed::two_state_fixed_and_late(ratio, states, settings, late);
+    }
+    let first = two_state(ratio, states, settings);
+    let second = first
+        .as_ref()
+        .ok()
+        .and_then(late)
+        .map(|s| two_state(ratio, states, &s));
+    (first, second)
 }
