@@ -715,6 +715,42 @@ mod with_library {
     }
 
     #[test]
+    fn damaged_compound_types_are_clean_errors() {
+        // Two damaged files the fuzzer found (tests/fixtures/hdf5/damaged/README.md), each read
+        // by the binary in its own process, since the first one killed it with a signal.
+        let dir = tempfile::tempdir().unwrap();
+        let pipeline = dir.path().join("p.yaml");
+        std::fs::write(
+            &pipeline,
+            "ensemble: {L: 24, T: 8, spacing_fm: 0.09, pion_mass: 0.14, hadron: spin1half}\n\
+             data:\n  hdf5:\n    files: 'conf{config}.h5'\n    \
+             twopt: '/2pt/{smear}/p{px}_{py}_{pz}'\n    \
+             threept: '/3pt/tsep{tsep}/{current}/{projector}/pf{pfx}{pfy}{pfz}_q{qx}_{qy}_{qz}'\n",
+        )
+        .unwrap();
+        for (file, want) in [
+            (
+                "compound_offset.h5",
+                "has field \"i\" of 8 bytes at offset 33554440, past its end",
+            ),
+            (
+                "compound_name.h5",
+                "compound type with fields [\"\u{fffd}\", \"i\"] is not a complex number",
+            ),
+        ] {
+            std::fs::copy(
+                fixture(&format!("hdf5/damaged/{file}")),
+                dir.path().join("conf100.h5"),
+            )
+            .unwrap();
+            let o = formfactory(dir.path(), &["check", pipeline.to_str().unwrap()]);
+            let e = stderr(&o);
+            assert_eq!(o.status.code(), Some(1), "{file}: {e}");
+            assert!(e.contains("conf100.h5") && e.contains(want), "{file}: {e}");
+        }
+    }
+
+    #[test]
     fn fuzz_corrupted_files_give_errors_never_crashes() {
         // 1000 random corruptions (truncation, bit flips, random bytes) of an h5py
         // per-configuration file and of a packed file, each read by the binary in its own

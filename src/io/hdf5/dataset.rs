@@ -121,7 +121,29 @@ fn storage_of(t: &TypeDescriptor) -> std::result::Result<Storage, String> {
             ))
         }
         TypeDescriptor::Compound(c) => {
-            let names: Vec<&str> = c.fields.iter().map(|f| f.name.as_str()).collect();
+            // The bindings take field names from the file without checking that they are
+            // UTF-8; a damaged name is shown with replacement characters (formatting the raw
+            // name could panic).
+            let names: Vec<String> = c
+                .fields
+                .iter()
+                .map(|f| String::from_utf8_lossy(f.name.as_bytes()).into_owned())
+                .collect();
+            // A field that reaches past the end of its compound value would make the library
+            // read outside each value: refuse it before any read (libhdf5 1.10 does not check).
+            if let Some((f, name)) = c.fields.iter().zip(&names).find(|(f, _)| {
+                f.offset
+                    .checked_add(f.ty.size())
+                    .is_none_or(|end| end > c.size)
+            }) {
+                return Err(format!(
+                    "compound type of {} bytes has field {name:?} of {} bytes at offset {}, past \
+                     its end: the file is damaged",
+                    c.size,
+                    f.ty.size(),
+                    f.offset
+                ));
+            }
             let spellings = || {
                 COMPLEX_FIELDS
                     .iter()
