@@ -445,6 +445,26 @@ mod with_library {
         assert!(stdout(&o).contains("momenta (6)"), "{}", stdout(&o));
     }
 
+    #[test]
+    fn a_pipeline_named_without_a_directory_finds_its_files() {
+        // `check p.yaml` in the pipeline's own directory: the file template is relative to an
+        // empty directory name, which is the working directory (it found no file before).
+        let dir = tempfile::tempdir().unwrap();
+        let demo = repo_root().join("demo-data/pion-hdf5");
+        for entry in std::fs::read_dir(&demo).unwrap() {
+            let path = entry.unwrap().path();
+            std::fs::copy(&path, dir.path().join(path.file_name().unwrap())).unwrap();
+        }
+        let text = std::fs::read_to_string(repo_root().join("pipelines/pion-vector-hdf5.yaml"))
+            .unwrap()
+            .replace("../demo-data/pion-hdf5/cfg{config}.h5", "cfg{config}.h5");
+        assert!(text.contains("files: cfg{config}.h5"));
+        std::fs::write(dir.path().join("p.yaml"), text).unwrap();
+        let o = formfactory(dir.path(), &["check", "p.yaml"]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        assert!(stdout(&o).contains("100 configurations"), "{}", stdout(&o));
+    }
+
     /// Data with `n2` two-point and `n3` three-point channels on `n_cfg` configurations
     /// (two-point `T = 16`, three-point `tsep` 4, 6, 8), seeded values; the two-point
     /// channels at momenta (0,0,k), one of them negative at t = 1 on some configurations.

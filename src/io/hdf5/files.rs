@@ -51,6 +51,13 @@ pub fn layout_files(m: &Mapping) -> Result<(FileList, Vec<i64>, bool)> {
 /// the values of their placeholders.
 pub fn list_files(base: &Path, tpl: &Template) -> Result<FileList> {
     let text = tpl.text();
+    // A pipeline given as a bare file name has an empty base: the working directory (which
+    // `read_dir` must be told as `.`).
+    let base = if base.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        base
+    };
     let mut found: Vec<(PathBuf, Captures)> = vec![(
         if text.starts_with('/') {
             PathBuf::from("/")
