@@ -63,8 +63,7 @@ pub fn analyse_channel(
     let summation = summation(&ratio, settings)
         .map_err(|e| notes.push(e.to_string()))
         .ok();
-    let (two_state, late) =
-        two_state_with_late(&ratio, states, settings, |t| late_settings(t, settings));
+    let (two_state, late) = two_state_with_late(&ratio, states, settings);
     let two_state = two_state.map_err(|e| notes.push(e.to_string())).ok();
     let two_state_late = late.and_then(|r| {
         r.map_err(|e| notes.push(format!("{TWO_STATE_LATE_NOTE}: {e}")))
@@ -164,18 +163,6 @@ struct Fits<'a> {
 
 /// Prefix of the note when the two-state fit without its smallest separation fails.
 const TWO_STATE_LATE_NOTE: &str = "two-state fit without its smallest separation";
-
-/// The settings of the [`Estimator::TwoStateLate`] fit: the two-state settings with
-/// `two_state_tsep_min` raised to the second-smallest separation `fit` used; `None` unless
-/// `excited_states.two_state_late` asks for it, or when `fit` used fewer than three
-/// separations (the late fit would have one only).
-fn late_settings(fit: &TwoStateFit, settings: &RatioSettings) -> Option<RatioSettings> {
-    let second = *fit.tseps.get(1)?;
-    (settings.two_state_late && fit.tseps.len() >= 3).then(|| RatioSettings {
-        two_state_tsep_min: second,
-        ..settings.clone()
-    })
-}
 
 impl ChannelResult {
     /// The fit of one estimator, with the estimator made concrete (`plateau` is the plateau

@@ -300,22 +300,20 @@ pub fn two_state_fixed(
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
 ) -> Result<TwoStateFit> {
-    let setup = Setup::new(ratio, states, settings)?;
-    let designs = setup.designs();
-    fit_setup(&setup, ratio, settings, &designs, 0)
+    two_state_fixed_and_late(ratio, states, settings, false).0
 }
 
-/// [`two_state_fixed`], then, when `late` gives settings for it from that fit, the fit
-/// without the smallest separation. The second fit's points are the first's without those of
-/// its smallest separation (points are ordered by `(tsep, tau)`), and a design row depends
-/// only on its `(tsep, tau)` and the resample's gaps, so the second fit takes its
-/// per-resample designs from the first's rows below those points: the same values bit for
-/// bit, computed once.
+/// [`two_state_fixed`] and, when `late` and the fit used at least three separations, the
+/// same fit without its smallest separation. Points are ordered by `(tsep, tau)`, so the
+/// second fit's points are the first's after those of the smallest separation, and a design
+/// row depends only on its `(tsep, tau)` and the resample's gaps: the second fit takes its
+/// per-resample designs from the first's rows below those points (the same values bit for
+/// bit, computed once).
 pub(crate) fn two_state_fixed_and_late(
     ratio: &ChannelRatio,
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
-    late: impl FnOnce(&TwoStateFit) -> Option<RatioSettings>,
+    late: bool,
 ) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
     let setup = match Setup::new(ratio, states, settings) {
         Ok(s) => s,
@@ -323,22 +321,37 @@ pub(crate) fn two_state_fixed_and_late(
     };
     let designs = setup.designs();
     let first = fit_setup(&setup, ratio, settings, &designs, 0);
-    let second = first.as_ref().ok().and_then(late).map(|late| {
-        let late_setup = Setup::new(ratio, states, &late)?;
-        let skip = setup.points.len().saturating_sub(late_setup.points.len());
-        let tail = setup.points.get(skip..).unwrap_or_default();
-        let is_tail = tail.len() == late_setup.points.len()
-            && tail
-                .iter()
-                .zip(&late_setup.points)
-                .all(|(a, b)| std::ptr::eq(*a, *b));
-        if is_tail {
-            fit_setup(&late_setup, ratio, &late, &designs, skip)
-        } else {
-            fit_setup(&late_setup, ratio, &late, &late_setup.designs(), 0)
-        }
-    });
+    let second = (late && first.is_ok())
+        .then(|| setup.without_smallest_tsep())
+        .flatten()
+        .map(|(late_setup, skip)| fit_setup(&late_setup, ratio, settings, &designs, skip));
     (first, second)
+}
+
+impl<'a> Setup<'a> {
+    /// This setup without the points of its smallest separation, and how many points that
+    /// leaves out; `None` with fewer than three separations (the rest would be one only).
+    fn without_smallest_tsep(&self) -> Option<(Setup<'a>, usize)> {
+        let smallest = *self.tseps.first()?;
+        if self.tseps.len() < 3 {
+            return None;
+        }
+        let skip = self
+            .points
+            .iter()
+            .take_while(|p| p.tsep == smallest)
+            .count();
+        Some((
+            Setup {
+                points: self.points[skip..].to_vec(),
+                tseps: self.tseps[1..].to_vec(),
+                source: self.source,
+                sink: self.sink,
+                symmetric: self.symmetric,
+            },
+            skip,
+        ))
+    }
 }
 
 impl Setup<'_> {

@@ -35,23 +35,34 @@ pub fn two_state(
     }
 }
 
-/// [`two_state`], then, when `late` gives settings for it from that fit, the same variant
-/// again with those settings (the fit without the smallest separation). The fixed-gap
-/// variant shares its per-resample designs between the two fits.
+/// [`two_state`] and, when `excited_states.two_state_late` asks for it and that fit used at
+/// least three separations, the same variant without the smallest separation
+/// ([`crate::ratio::Estimator::TwoStateLate`]). The fixed-gap variant shares its per-resample
+/// designs between the two fits.
 pub fn two_state_with_late(
     ratio: &ChannelRatio,
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
-    late: impl FnOnce(&TwoStateFit) -> Option<RatioSettings>,
 ) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
     if settings.two_state == TwoStateVariant::FixedGaps {
-        return fixed::two_state_fixed_and_late(ratio, states, settings, late);
+        return fixed::two_state_fixed_and_late(ratio, states, settings, settings.two_state_late);
     }
     let first = two_state(ratio, states, settings);
     let second = first
         .as_ref()
         .ok()
-        .and_then(late)
-        .map(|s| two_state(ratio, states, &s));
+        .and_then(|fit| late_settings(fit, settings))
+        .map(|late| two_state(ratio, states, &late));
     (first, second)
+}
+
+/// The settings of the late fit after `fit`: `two_state_tsep_min` raised to the second
+/// separation `fit` used; `None` unless `excited_states.two_state_late` asks for it, or when
+/// `fit` used fewer than three separations (the late fit would have one only).
+fn late_settings(fit: &TwoStateFit, settings: &RatioSettings) -> Option<RatioSettings> {
+    let second = *fit.tseps.get(1)?;
+    (settings.two_state_late && fit.tseps.len() >= 3).then(|| RatioSettings {
+        two_state_tsep_min: second,
+        ..settings.clone()
+    })
 }
