@@ -131,8 +131,6 @@ pub struct Budget {
     /// Statistical error: the resampled error of the weighted combination times
     /// [`Budget::student_t`].
     pub stat: f64,
-    /// The resampled error of the weighted combination, before the Student-t factor.
-    pub stat_resampled: f64,
     /// The Student-t factor of the statistical error ([`student_t_factor`]; 1 when the number
     /// of bins is not known).
     pub student_t: f64,
@@ -293,7 +291,6 @@ pub fn final_value(
     let student_t = bins.map_or(1.0, student_t_factor);
     Some(Budget {
         stat: student_t * value.error(),
-        stat_resampled: value.error(),
         student_t,
         excited_states: (excited_sq / n_models as f64).sqrt(),
         fit_range: (fit_range_sq / n_fit_groups as f64).sqrt(),
@@ -391,22 +388,12 @@ fn defer_to_reference(weighted: &mut [Weighted]) {
 /// else [`excess_difference`]. `None` without a second controlled estimator.
 fn excited_state_error(weighted: &[Weighted], model: &str) -> Option<f64> {
     let r = reference_of(weighted, model)?;
-    if weighted[r].variant.estimator != Estimator::TwoStateLate {
-        return excess_difference(weighted, model, r);
+    if weighted[r].variant.estimator == Estimator::TwoStateLate {
+        // the shift of the two-state result when its smallest separation is added
+        excess_difference(weighted, model, r, |e| e == Estimator::TwoState)
+    } else {
+        excess_difference(weighted, model, r, controls_excited_states)
     }
-    let all = weighted.iter().find(|w| {
-        w.variant.model == model
-            && w.variant.estimator == Estimator::TwoState
-            && w.variant.value.is_finite()
-    })?;
-    let d = all
-        .variant
-        .value
-        .try_zip_map(&weighted[r].variant.value, "excited-state error", |a, b| {
-            a - b
-        })
-        .ok()?;
-    Some(excess(&d))
 }
 
 /// `sqrt(max(0, d² − σ_d²))`: the part of a difference its own resampled error does not explain.
@@ -414,11 +401,16 @@ fn excess(d: &Resampled) -> f64 {
     (d.central.powi(2) - d.error().powi(2)).max(0.0).sqrt()
 }
 
-/// The part of the difference between the reference result `r` and the other controlled
-/// estimator (summation − two-state) that its own statistical error does not explain,
-/// `sqrt(max(0, d² − σ_d²))` with `σ_d` from the resamples of the difference (the largest
-/// such part when there are several); `None` without such a pair.
-fn excess_difference(weighted: &[Weighted], model: &str, r: usize) -> Option<f64> {
+/// The part of the difference between the reference result `r` and another estimator of the
+/// same model that `accept`s (e.g. summation − two-state) that its own statistical error does
+/// not explain, `sqrt(max(0, d² − σ_d²))` with `σ_d` from the resamples of the difference (the
+/// largest such part when there are several); `None` without such a pair.
+fn excess_difference(
+    weighted: &[Weighted],
+    model: &str,
+    r: usize,
+    accept: impl Fn(Estimator) -> bool,
+) -> Option<f64> {
     let reference = &weighted[r].variant.value;
     weighted
         .iter()
@@ -426,7 +418,7 @@ fn excess_difference(weighted: &[Weighted], model: &str, r: usize) -> Option<f64
         .filter(|(i, w)| {
             *i != r
                 && w.variant.model == model
-                && controls_excited_states(w.variant.estimator)
+                && accept(w.variant.estimator)
                 && w.variant.value.is_finite()
         })
         .filter_map(|(_, w)| {
@@ -599,14 +591,14 @@ mod tests {
         let b = final_value(&v, None, Some(25)).unwrap_or_else(|| panic!("no budget"));
         let resampled = (0.75f64 * 0.2).sqrt();
         let exc = (0.25f64 - 0.13575).sqrt();
-        assert!((b.stat_resampled - resampled).abs() < 1e-12);
+        assert!((b.value.error() - resampled).abs() < 1e-12);
         assert!((b.student_t - student_t_factor(25)).abs() < 1e-15);
         assert!((b.stat - student_t_factor(25) * resampled).abs() < 1e-12);
         assert!((b.excited_states - exc).abs() < 1e-12);
         assert!((b.total() - b.stat.hypot(exc)).abs() < 1e-12);
         let unscaled = final_value(&v, None, None).unwrap_or_else(|| panic!("no budget"));
         assert_eq!(unscaled.student_t, 1.0);
-        assert_eq!(unscaled.stat, unscaled.stat_resampled);
+        assert_eq!(unscaled.stat, unscaled.value.error());
     }
 
     #[test]

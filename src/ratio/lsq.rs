@@ -18,7 +18,7 @@ use crate::fit::{linear, Weights};
 use crate::resample::covariance::{estimate_with_bins, CovarianceOptions};
 #[cfg(test)]
 use crate::resample::ResamplePlan;
-use crate::resample::{stable_mean, Resampled, Scheme};
+use crate::resample::{stable_mean, Part, Resampled, Scheme};
 use crate::{Error, Result};
 use nalgebra::DMatrix;
 use std::sync::OnceLock;
@@ -113,20 +113,13 @@ impl PartialEq for PointScales {
 
 impl PointScales {
     fn get(&self, part: Part, value: &ReIm) -> Option<&[f64]> {
-        let (cell, v) = match part {
-            Part::Re => (&self.re, &value.re),
-            Part::Im => (&self.im, &value.im),
+        let cell = match part {
+            Part::Re => &self.re,
+            Part::Im => &self.im,
         };
-        cell.get_or_init(|| point_scales(v, &mut Vec::new()))
+        cell.get_or_init(|| point_scales(value.part(part), &mut Vec::new()))
             .as_deref()
     }
-}
-
-/// The real or the imaginary part of a fit.
-#[derive(Clone, Copy)]
-enum Part {
-    Re,
-    Im,
 }
 
 /// [`ResamplePlan::sample_error_scales`] of the jackknife pseudo-values of `p` (`pseudo`: a
@@ -318,9 +311,10 @@ pub(crate) fn fit_re_im(
 ) -> Result<(Vec<ReIm>, ReImFit)> {
     let mut warnings = Vec::new();
     let mut part = |part: Part| -> Result<(Vec<Resampled>, FitQuality)> {
-        let (values, name): (Vec<Resampled>, _) = match part {
-            Part::Re => (points.iter().map(|p| p.re.clone()).collect(), "real"),
-            Part::Im => (points.iter().map(|p| p.im.clone()).collect(), "imaginary"),
+        let values: Vec<Resampled> = points.iter().map(|p| p.part(part).clone()).collect();
+        let name = match part {
+            Part::Re => "real",
+            Part::Im => "imaginary",
         };
         let what = format!("{what} ({name} part)");
         let k = design.n_params();

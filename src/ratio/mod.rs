@@ -92,7 +92,7 @@ pub use summation::SummationFit;
 pub use two_state::{FittedGaps, TwoPointStates, TwoStateFit};
 
 use crate::data::ThreePointKey;
-use crate::resample::Resampled;
+use crate::resample::{Part, Resampled};
 use serde::Serialize;
 use std::fmt;
 
@@ -181,6 +181,14 @@ pub struct ReIm {
 }
 
 impl ReIm {
+    /// The real or the imaginary part.
+    pub fn part(&self, part: Part) -> &Resampled {
+        match part {
+            Part::Re => &self.re,
+            Part::Im => &self.im,
+        }
+    }
+
     /// Apply `f` to both parts.
     pub fn map_parts(&self, f: impl Fn(&Resampled) -> Resampled) -> ReIm {
         ReIm {

@@ -227,9 +227,6 @@ pub fn resample_series(
         .collect())
 }
 
-/// The rest frame.
-const REST_FRAME: Momentum = [0, 0, 0];
-
 /// One momentum's fits: its resamples (an error there ends the stage), then
 /// [`fit_correlator`] with the first-gap prior carried from the rest frame's spectrum
 /// `rest_gap`, and the warnings it gave.
@@ -298,16 +295,16 @@ pub fn run_with_progress(
     // moving frames then run side by side and are taken in momentum order, so the result
     // (warnings and their order included) is that of fitting them one after another.
     let mut rest_gap = None;
-    if let Some(series) = channels.get(&REST_FRAME) {
-        let (fitted, notes) = fit(REST_FRAME, series, None)?;
+    if let Some(series) = channels.get(&rest_mass::REST) {
+        let (fitted, notes) = fit(rest_mass::REST, series, None)?;
         warnings.extend(notes);
         let s = fitted?;
         rest_gap = frames::rest_gap(&s);
-        per_momentum.insert(REST_FRAME, s);
+        per_momentum.insert(rest_mass::REST, s);
     }
     let moving: Vec<(Momentum, &Series)> = channels
         .iter()
-        .filter(|(p, _)| **p != REST_FRAME)
+        .filter(|(p, _)| **p != rest_mass::REST)
         .map(|(p, s)| (*p, *s))
         .collect();
     let fitted: Vec<_> = moving
@@ -350,7 +347,7 @@ pub fn run_with_progress(
     let mut dispersion = Vec::new();
     match (settings.l_extent, &mass) {
         (Some(_), Some(m)) => {
-            for (p, s) in per_momentum.iter().filter(|(p, _)| **p != [0, 0, 0]) {
+            for (p, s) in per_momentum.iter().filter(|(p, _)| **p != rest_mass::REST) {
                 if let Some(pl) = settings.lattice_momentum(*p) {
                     dispersion.push(dispersion::check(*p, pl, &s.energies[0], m));
                 }
