@@ -123,19 +123,24 @@ pub fn coefficients(
         Hadron::Spin0 => spin0(projector, current, k),
         Hadron::Spin1Half => spin_half(projector, current, k),
     };
-    let mut values: Vec<Complex<f64>> = out.iter().map(|(_, c)| *c).collect();
-    clean(&mut values);
-    for ((_, c), v) in out.iter_mut().zip(values) {
-        *c = v;
-    }
+    clean_by(&mut out, |(_, c)| c);
     out
 }
 
 /// Set the parts of `values` (the coefficients of one channel) below [`CLEAN`] times the
 /// largest modulus (or 1) to exactly zero.
 pub(super) fn clean(values: &mut [Complex<f64>]) {
-    let scale = values.iter().map(|c| c.norm()).fold(1.0_f64, f64::max);
-    for c in values {
+    clean_by(values, |c| c);
+}
+
+/// [`clean`] of the coefficients `part` finds in `items`.
+fn clean_by<T>(items: &mut [T], part: impl Fn(&mut T) -> &mut Complex<f64>) {
+    let scale = items
+        .iter_mut()
+        .map(|t| part(t).norm())
+        .fold(1.0_f64, f64::max);
+    for t in items {
+        let c = part(t);
         if c.re.abs() < CLEAN * scale {
             c.re = 0.0;
         }

@@ -75,31 +75,28 @@ impl CoefficientCache {
         n: usize,
     ) -> Arc<Vec<Coefficients>> {
         let key = (c.pf, c.q, c.current, c.projector);
-        if let Some(found) = self.lock().get(&key) {
-            return Arc::clone(found);
-        }
-        let kinematics = setup.channel(c.pf, c.q).map_err(|e| e.to_string());
-        let expansion = kinematics
-            .as_ref()
-            .ok()
-            .and_then(|k| Expansion::new(setup.hadron, c.projector, c.current, &k.at(None)))
-            .filter(|_| FormFactor::of(setup.hadron, c.current.kind()) == all);
-        let computed: Vec<Coefficients> = (0..n)
-            .into_par_iter()
-            .map(|s| {
-                let k = kinematics.as_ref().map_err(|e| e.clone())?.at(Some(s));
-                match central {
-                    Some((k0, kc0)) if *k0 == k => Ok(kc0.clone()),
-                    _ => match expansion.as_ref().and_then(|e| e.evaluate(&k)) {
-                        Some(kc) => Ok(kc),
-                        None => Ok(coefficients_at(setup, all, c, &k)),
-                    },
-                }
-            })
-            .collect();
-        let computed = Arc::new(computed);
-        self.lock().insert(key, Arc::clone(&computed));
-        computed
+        memo(&self.samples, key, || {
+            let kinematics = setup.channel(c.pf, c.q).map_err(|e| e.to_string());
+            let expansion = kinematics
+                .as_ref()
+                .ok()
+                .and_then(|k| Expansion::new(setup.hadron, c.projector, c.current, &k.at(None)))
+                .filter(|_| FormFactor::of(setup.hadron, c.current.kind()) == all);
+            let computed: Vec<Coefficients> = (0..n)
+                .into_par_iter()
+                .map(|s| {
+                    let k = kinematics.as_ref().map_err(|e| e.clone())?.at(Some(s));
+                    match central {
+                        Some((k0, kc0)) if *k0 == k => Ok(kc0.clone()),
+                        _ => match expansion.as_ref().and_then(|e| e.evaluate(&k)) {
+                            Some(kc) => Ok(kc),
+                            None => Ok(coefficients_at(setup, all, c, &k)),
+                        },
+                    }
+                })
+                .collect();
+            Arc::new(computed)
+        })
     }
 
     /// Q² of the channel with sink momentum `pf` and momentum transfer `q`, per resample
@@ -137,11 +134,6 @@ impl CoefficientCache {
     ) -> Vec<Complex<f64>> {
         let key = (c.pf, c.q, c.current, c.projector);
         memo(&self.on_shell, key, || coefficients_at(setup, all, c, on))
-    }
-
-    fn lock(&self) -> std::sync::MutexGuard<'_, HashMap<Key, Arc<Vec<Coefficients>>>> {
-        // A panic elsewhere cannot leave the map half-written: entries are inserted whole.
-        self.samples.lock().unwrap_or_else(|e| e.into_inner())
     }
 }
 

@@ -1,7 +1,7 @@
 //! Every resample of a shell whose channels determine all its form factors: the whitened
 //! system solved by the normal equations ([`Uncorrelated`]: Cholesky of the column-scaled Gram
 //! matrix and one refinement step, Björck's corrected semi-normal equations) in buffers
-//! allocated once per thread, instead of an SVD per resample.
+//! reused over the resamples a thread takes, instead of an SVD per resample.
 //!
 //! The SVD of [`super::solve`] cuts a singular direction only below [`SINGULAR_THRESHOLD`]
 //! (1e-8) of the largest; when the whitened matrix's condition number is at most
@@ -46,6 +46,8 @@ pub(super) struct FastSolver<'a> {
     /// Indices of the unknowns among the current's form factors (columns).
     unknowns: &'a [usize],
     weights: &'a Weights,
+    /// The solver's buffers of this size, copied into each thread's [`Buffers`].
+    solver: Uncorrelated,
 }
 
 /// Buffers of one thread: the coefficient matrix, the data, their whitened forms, unit row
@@ -69,26 +71,29 @@ impl<'a> FastSolver<'a> {
         unknowns: &'a [usize],
         weights: &'a Weights,
     ) -> Option<Self> {
-        let fits =
-            weights.len() == rows.len() && Uncorrelated::new(rows.len(), unknowns.len()).is_some();
-        fits.then_some(FastSolver {
+        if weights.len() != rows.len() {
+            return None;
+        }
+        let solver = Uncorrelated::new(rows.len(), unknowns.len())?;
+        Some(FastSolver {
             rows,
             unknowns,
             weights,
+            solver,
         })
     }
 
-    /// Buffers for one thread.
-    pub(super) fn buffers(&self) -> Option<Buffers> {
+    /// Buffers for one thread's resamples.
+    pub(super) fn buffers(&self) -> Buffers {
         let (n, k) = (self.rows.len(), self.unknowns.len());
-        Some(Buffers {
+        Buffers {
             design: DMatrix::zeros(n, k),
             y: vec![0.0; n],
             whitened: DMatrix::zeros(n, k),
             wy: vec![0.0; n],
             ones: vec![1.0; n],
-            solver: Uncorrelated::new(n, k)?,
-        })
+            solver: self.solver.clone(),
+        }
     }
 
     /// Solve resample `s` into `out` (one value per unknown); `false` (with `out`
@@ -201,7 +206,7 @@ mod tests {
             .collect();
         let weights = Weights::unit(points.len());
         let solver = FastSolver::new(rows, &[0, 1], &weights).expect("2 unknowns");
-        let mut buffers = solver.buffers().expect("buffers");
+        let mut buffers = solver.buffers();
         for s in 0..2 {
             let mut out = [0.0; 2];
             assert!(solver.solve(s, &mut buffers, &mut out));

@@ -298,7 +298,7 @@ impl<'a> ShellSystem<'a> {
             .par_chunks_mut(k.max(1))
             .enumerate()
             .map_init(
-                || fast.as_ref().and_then(FastSolver::buffers),
+                || fast.as_ref().map(FastSolver::buffers),
                 |buffers, (s, o)| {
                     if let (Some(f), Some(b)) = (&fast, buffers.as_mut()) {
                         if f.solve(s, b, o) {
@@ -530,7 +530,7 @@ mod tests {
         let rank = system.on_shell_rank(&cache).expect("rank");
         assert_eq!(rank, 2);
         let fast = system.fast_solver().expect("two unknowns");
-        let mut buffers = fast.buffers().expect("buffers");
+        let mut buffers = fast.buffers();
         let mut out = [0.0; 2];
         let declined: Vec<usize> = (0..N)
             .filter(|&s| !fast.solve(s, &mut buffers, &mut out))
