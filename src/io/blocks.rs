@@ -431,11 +431,10 @@ fn csv_batch<R: Read, P: RowParser>(
 
 /// Read up to `max` more bytes onto `buf`; `true` at the end of the input.
 fn fill<R: Read>(input: &mut R, buf: &mut Vec<u8>, max: usize, file: &Path) -> Result<bool> {
-    let n = input
-        .take(max as u64)
-        .read_to_end(buf)
-        .map_err(|e| Error::io(file, e))?;
-    Ok(n < max)
+    let mut len = buf.len();
+    let end = fill_at(input, buf, &mut len, max, file)?;
+    buf.truncate(len);
+    Ok(end)
 }
 
 /// Read up to `max` more bytes into `buf` after its first `len` (which grows by the bytes

@@ -102,10 +102,15 @@ impl Resampled {
     /// Variance appropriate to the scheme (NaN with fewer than two samples): the
     /// [`covariance_of`] the samples with themselves, their mean computed once.
     pub fn variance(&self) -> f64 {
+        self.variance_with_mean(self.sample_mean())
+    }
+
+    /// [`Self::variance`] about the samples' `mean`, already computed.
+    fn variance_with_mean(&self, mean: f64) -> f64 {
         if self.samples.len() < 2 {
             return f64::NAN;
         }
-        variance_about(&self.samples, stable_mean(&self.samples), self.scheme)
+        variance_about(&self.samples, mean, self.scheme)
     }
 
     /// Covariance with another value of the same scheme and length (NaN when the lengths
@@ -141,14 +146,9 @@ impl Resampled {
     pub fn summary(&self) -> Summary {
         let n = self.samples.len();
         let mean = self.sample_mean();
-        let error = if n < 2 {
-            f64::NAN
-        } else {
-            variance_about(&self.samples, mean, self.scheme).sqrt()
-        };
         Summary {
             central: self.central,
-            error,
+            error: self.variance_with_mean(mean).sqrt(),
             bias_corrected: bias_corrected_with(self.central, mean, n, self.scheme),
             sample_mean: mean,
             n_samples: n,

@@ -112,6 +112,10 @@ impl BackgroundDigests {
             return BackgroundDigests(None);
         }
         let files = plan.input_files();
+        if files.is_empty() {
+            // per-configuration files: too many to hash (the manifest records the template)
+            return BackgroundDigests(None);
+        }
         let thread = std::thread::Builder::new()
             .name("digest".into())
             .spawn(move || {
