@@ -9,7 +9,7 @@
 use super::crosscheck::{cross_check, CrossCheckRow};
 use super::plateau::{plateau, PlateauFit};
 use super::summation::{summation, SummationFit};
-use super::two_state::{two_state_with_late, TwoPointStates, TwoStateFit};
+use super::two_state::{two_state_with_late, DesignMemo, TwoPointStates, TwoStateFit};
 use super::{
     ChannelKey, ChannelRatio, Estimator, RatioSettings, RatioSummary, ReIm, ReImFit, STAGE,
 };
@@ -52,6 +52,17 @@ pub fn analyse_channel(
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
 ) -> Result<ChannelResult> {
+    analyse_channel_with(ratio, states, settings, &mut DesignMemo::new(states))
+}
+
+/// [`analyse_channel`] with the two-state designs of the previous channel kept in `memo` (a
+/// channel of the same momenta and points reuses them; the results are the same bits).
+pub(crate) fn analyse_channel_with(
+    ratio: ChannelRatio,
+    states: &BTreeMap<Momentum, TwoPointStates>,
+    settings: &RatioSettings,
+    memo: &mut DesignMemo<'_>,
+) -> Result<ChannelResult> {
     let mut notes = Vec::new();
     let mut plateaus = Vec::new();
     for tsep in ratio.tseps() {
@@ -63,7 +74,7 @@ pub fn analyse_channel(
     let summation = summation(&ratio, settings)
         .map_err(|e| notes.push(e.to_string()))
         .ok();
-    let (two_state, late) = two_state_with_late(&ratio, states, settings);
+    let (two_state, late) = two_state_with_late(&ratio, states, settings, memo);
     let two_state = two_state.map_err(|e| notes.push(e.to_string())).ok();
     let two_state_late = late.and_then(|r| {
         r.map_err(|e| notes.push(format!("{TWO_STATE_LATE_NOTE}: {e}")))

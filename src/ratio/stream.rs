@@ -12,9 +12,10 @@
 //! series in the table's key order) and analysing afterwards (the first failing channel in
 //! channel order), whatever the number of threads.
 
-use super::analyse::{analyse_channel, ChannelResult};
+use super::analyse::{analyse_channel_with, ChannelResult};
 use super::build::{add_points, check_bins, TwoPointMeans, TwoPointSource};
 use super::factors::Factors;
+use super::two_state::DesignMemo;
 use super::{ChannelKey, ChannelRatio, Estimator, RatioSettings, TwoPointStates, STAGE};
 use crate::data::{Momentum, Series, ThreePointData, ThreePointKey, TwoPointData};
 use crate::resample::ResamplePlan;
@@ -146,23 +147,30 @@ fn analyse_grouped<S: Borrow<Series> + Send>(
     let done = AtomicUsize::new(0);
     let factors = Factors::default();
     progress(0, total);
+    // Each piece of work keeps the last channel's two-state designs for the next (channels of
+    // one momentum pair are neighbours in channel order); the results do not depend on it.
     let outcomes: Vec<Outcome> = channels
         .into_par_iter()
-        .map(|input| {
-            let ChannelInput { mut ratio, series } = input;
-            for (i, tsep, s) in series {
-                if let Err(e) = add_points(&mut ratio, tsep, s.borrow(), plan, settings, &factors) {
-                    return Outcome::BuildFailed(i, e);
+        .map_init(
+            || DesignMemo::new(states),
+            |memo, input| {
+                let ChannelInput { mut ratio, series } = input;
+                for (i, tsep, s) in series {
+                    if let Err(e) =
+                        add_points(&mut ratio, tsep, s.borrow(), plan, settings, &factors)
+                    {
+                        return Outcome::BuildFailed(i, e);
+                    }
                 }
-            }
-            ratio.sort_points();
-            if !checks_passed {
-                return Outcome::NotAnalysed;
-            }
-            let out = analyse_channel(ratio, states, settings).map(Box::new);
-            progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
-            Outcome::Analysed(out)
-        })
+                ratio.sort_points();
+                if !checks_passed {
+                    return Outcome::NotAnalysed;
+                }
+                let out = analyse_channel_with(ratio, states, settings, memo).map(Box::new);
+                progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+                Outcome::Analysed(out)
+            },
+        )
         .collect();
     let first_build_error = outcomes
         .iter()

@@ -18,7 +18,7 @@
 //! The floating-gap and joint variants ([`super::floating`], [`super::joint`]) build on the
 //! types and the fixed-gap solution of this module.
 
-use super::designs::DesignCache;
+use super::designs::{DesignCache, DesignMemo};
 use crate::data::Momentum;
 use crate::ratio::lsq::{fit_re_im, Design};
 use crate::ratio::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
@@ -300,7 +300,7 @@ pub fn two_state_fixed(
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
 ) -> Result<TwoStateFit> {
-    two_state_fixed_and_late(ratio, states, settings, false).0
+    two_state_fixed_and_late(ratio, states, settings, false, &mut DesignMemo::new(states)).0
 }
 
 /// [`two_state_fixed`] and, when `late` and the fit used at least three separations, the
@@ -308,23 +308,25 @@ pub fn two_state_fixed(
 /// second fit's points are the first's after those of the smallest separation, and a design
 /// row depends only on its `(tsep, tau)` and the resample's gaps: the second fit takes its
 /// per-resample designs from the first's rows below those points (the same values bit for
-/// bit, computed once).
+/// bit, computed once). `memo` keeps the designs for the next channel of the same momenta and
+/// points.
 pub(crate) fn two_state_fixed_and_late(
     ratio: &ChannelRatio,
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
     late: bool,
+    memo: &mut DesignMemo<'_>,
 ) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
     let setup = match Setup::new(ratio, states, settings) {
         Ok(s) => s,
         Err(e) => return (Err(e), None),
     };
-    let designs = setup.designs();
-    let first = fit_setup(&setup, ratio, settings, &designs, 0);
+    let designs = memo.designs(&setup, states, ratio.key.source_momentum(), ratio.key.pf);
+    let first = fit_setup(&setup, ratio, settings, designs, 0);
     let second = (late && first.is_ok())
         .then(|| setup.without_smallest_tsep())
         .flatten()
-        .map(|(late_setup, skip)| fit_setup(&late_setup, ratio, settings, &designs, skip));
+        .map(|(late_setup, skip)| fit_setup(&late_setup, ratio, settings, designs, skip));
     (first, second)
 }
 
@@ -358,7 +360,7 @@ impl Setup<'_> {
     /// [`Setup::design_into`] for every resample's gaps, kept for the real and the imaginary
     /// fit and the fit without the smallest separation; none when every resample has the
     /// central gaps (one design, factorised once).
-    fn designs(&self) -> DesignCache {
+    pub(super) fn designs(&self) -> DesignCache {
         if self.gaps_are_fixed() {
             return DesignCache::default();
         }

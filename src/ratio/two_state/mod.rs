@@ -11,6 +11,7 @@ mod floating;
 mod jacobian_check;
 mod joint;
 
+pub use designs::DesignMemo;
 pub use fixed::{two_state_fixed, FittedGaps, Gaps, TwoPointStates, TwoStateFit};
 
 use super::{ChannelRatio, RatioSettings, TwoStateVariant};
@@ -38,14 +39,16 @@ pub fn two_state(
 /// [`two_state`] and, when `excited_states.two_state_late` asks for it and that fit used at
 /// least three separations, the same variant without the smallest separation
 /// ([`crate::ratio::Estimator::TwoStateLate`]). The fixed-gap variant shares its per-resample
-/// designs between the two fits.
+/// designs between the two fits, and through `memo` with the next channel of the same momenta.
 pub fn two_state_with_late(
     ratio: &ChannelRatio,
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
+    memo: &mut DesignMemo<'_>,
 ) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
     if settings.two_state == TwoStateVariant::FixedGaps {
-        return fixed::two_state_fixed_and_late(ratio, states, settings, settings.two_state_late);
+        let late = settings.two_state_late;
+        return fixed::two_state_fixed_and_late(ratio, states, settings, late, memo);
     }
     let first = two_state(ratio, states, settings);
     let second = first
