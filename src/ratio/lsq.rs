@@ -15,7 +15,10 @@
 
 use super::{FitQuality, ReIm, ReImFit, STAGE};
 use crate::fit::{linear, Weights};
-use crate::resample::covariance::{estimate_with_bins, CovarianceOptions};
+use crate::resample::covariance::{
+    diagonal_from_variances, diagonal_variance, estimate_with_bins, CovarianceKind,
+    CovarianceOptions,
+};
 #[cfg(test)]
 use crate::resample::ResamplePlan;
 use crate::resample::{stable_mean, Part, Resampled, Scheme};
@@ -75,7 +78,7 @@ impl Design<'_> {
 /// bins themselves; for a derived quantity, such as the ratio, its linearised value per bin):
 /// [`ResamplePlan::sample_error_scales`] of them. `None` for bootstrap samples (no per-bin
 /// values to take them from) and when a scale is not finite.
-pub(crate) fn jackknife_sample_scales(points: &[Resampled]) -> Option<Vec<Vec<f64>>> {
+pub(crate) fn jackknife_sample_scales(points: &[&Resampled]) -> Option<Vec<Vec<f64>>> {
     let n = points.first()?.len();
     let mut pseudo = vec![0.0; n];
     points
@@ -95,14 +98,21 @@ fn point_scales(p: &Resampled, pseudo: &mut Vec<f64>) -> Option<Vec<f64>> {
     s.iter().all(|v| v.is_finite() && *v > 0.0).then_some(s)
 }
 
-/// A ratio point's [`jackknife_sample_scales`], real and imaginary part, computed when the
-/// first fit asks for them and kept for the channel's other fits of the same point (the
-/// plateau at its separation and the two-state fits). A cache: it takes no part in the
-/// point's equality.
+/// What the fits of a ratio point keep of it, real and imaginary part, computed when the first
+/// fit asks and kept for the channel's other fits of the same point (the plateau at its
+/// separation and the two-state fits): its [`jackknife_sample_scales`] and its diagonal
+/// variance ([`diagonal_variance`], `None` when the point is not finite). A cache: it takes no
+/// part in the point's equality.
 #[derive(Clone, Debug, Default)]
 pub(crate) struct PointScales {
-    re: OnceLock<Option<Vec<f64>>>,
-    im: OnceLock<Option<Vec<f64>>>,
+    re: PartCache,
+    im: PartCache,
+}
+
+#[derive(Clone, Debug, Default)]
+struct PartCache {
+    scales: OnceLock<Option<Vec<f64>>>,
+    variance: OnceLock<Option<f64>>,
 }
 
 impl PartialEq for PointScales {
@@ -112,14 +122,65 @@ impl PartialEq for PointScales {
 }
 
 impl PointScales {
-    fn get(&self, part: Part, value: &ReIm) -> Option<&[f64]> {
-        let cell = match part {
+    fn part(&self, part: Part) -> &PartCache {
+        match part {
             Part::Re => &self.re,
             Part::Im => &self.im,
-        };
-        cell.get_or_init(|| point_scales(value.part(part), &mut Vec::new()))
+        }
+    }
+
+    fn get(&self, part: Part, value: &ReIm) -> Option<&[f64]> {
+        self.part(part)
+            .scales
+            .get_or_init(|| point_scales(value.part(part), &mut Vec::new()))
             .as_deref()
     }
+
+    /// The diagonal variance of a finite point, `None` for a point that is not finite.
+    fn variance(&self, part: Part, value: &ReIm) -> Option<f64> {
+        *self.part(part).variance.get_or_init(|| {
+            let v = value.part(part);
+            v.is_finite().then(|| diagonal_variance(v))
+        })
+    }
+}
+
+/// Weights for the points of one part from their kept variances: the estimate
+/// [`weights`] makes of a diagonal covariance, bit for bit, without a pass over the samples
+/// per fit. `None` (the caller takes [`weights`], which words the error) unless the
+/// covariance is diagonal without an eigenvalue cut and the points pass its input checks (one
+/// resampling of at least two samples, as many bins as jackknife samples, finite, positive
+/// variances).
+fn weights_from_kept(
+    points: &[&ReIm],
+    cached: &[&PointScales],
+    part: Part,
+    cov: CovarianceSetup<'_>,
+) -> Option<(Weights, Vec<String>)> {
+    let opts = cov.options;
+    if !matches!(opts.kind, CovarianceKind::Diagonal) || opts.eigen_cut.is_some() {
+        return None;
+    }
+    let first = points.first()?.part(part);
+    let (n, scheme) = (first.len(), first.scheme);
+    let bins_ok = n >= 2 && cov.n_bins >= 2 && (scheme != Scheme::Jackknife || cov.n_bins == n);
+    if !bins_ok || cached.len() != points.len() {
+        return None;
+    }
+    let variances = points
+        .iter()
+        .zip(cached)
+        .map(|(p, c)| {
+            let v = p.part(part);
+            (v.len() == n && v.scheme == scheme)
+                .then(|| c.variance(part, p))
+                .flatten()
+                .filter(|&var| var > 0.0)
+        })
+        .collect::<Option<Vec<f64>>>()?;
+    let est = diagonal_from_variances(variances, opts, cov.n_bins);
+    let w = Weights::from_covariance(&est.matrix).ok()?;
+    Some((w, est.warnings))
 }
 
 /// [`ResamplePlan::sample_error_scales`] of the jackknife pseudo-values of `p` (`pseudo`: a
@@ -166,7 +227,7 @@ fn pseudo_value_scales(p: &Resampled, pseudo: &mut [f64]) -> Vec<f64> {
 /// design is factorised once for all resamples. Returns one resampled value per parameter and
 /// the quality of the central fit.
 pub(crate) fn fit_resampled(
-    points: &[Resampled],
+    points: &[&Resampled],
     design: &Design<'_>,
     w: &Weights,
     scales: Option<&[&[f64]]>,
@@ -217,7 +278,7 @@ pub(crate) fn fit_resampled(
 /// a resample they leave, and correlated weights, go through [`linear::Workspace`]'s QR, which
 /// decides every error.
 fn per_sample(
-    points: &[Resampled],
+    points: &[&Resampled],
     design: &Design<'_>,
     w: &Weights,
     scales: Option<&[&[f64]]>,
@@ -225,7 +286,7 @@ fn per_sample(
 ) -> Result<Vec<Vec<f64>>> {
     let params = design.n_params();
     let n = points.len();
-    let n_samples = points.first().map_or(0, Resampled::len);
+    let n_samples = points.first().map_or(0, |p| p.len());
     let mut per_param = vec![vec![0.0; n_samples]; params];
     // The whitening diagonal of uncorrelated weights, for fits the normal equations take.
     let diagonal = w
@@ -311,7 +372,7 @@ pub(crate) fn fit_re_im(
 ) -> Result<(Vec<ReIm>, ReImFit)> {
     let mut warnings = Vec::new();
     let mut part = |part: Part| -> Result<(Vec<Resampled>, FitQuality)> {
-        let values: Vec<Resampled> = points.iter().map(|p| p.part(part).clone()).collect();
+        let values: Vec<&Resampled> = points.iter().map(|p| p.part(part)).collect();
         let name = match part {
             Part::Re => "real",
             Part::Im => "imaginary",
@@ -340,14 +401,21 @@ pub(crate) fn fit_re_im(
                 },
             ));
         }
-        let (w, warn) = weights(&values, cov, &what)?;
+        let kept = cached.and_then(|c| weights_from_kept(points, c, part, cov));
+        let (w, warn) = match kept {
+            Some(kept) => kept,
+            None => {
+                let owned: Vec<Resampled> = values.iter().map(|&v| v.clone()).collect();
+                weights(&owned, cov, &what)?
+            }
+        };
         warnings.extend(warn.into_iter().map(|m| format!("{what}: {m}")));
         // Each jackknife resample weights its points by its own errors (as the spectrum
         // stage); bootstrap samples have no per-bin values to take them from.
         let owned;
         let scales: Option<Vec<&[f64]>> = match cached {
             Some(cached) if cached.len() == n => {
-                let len = values.first().map_or(0, Resampled::len);
+                let len = values.first().map_or(0, |p| p.len());
                 cached
                     .iter()
                     .zip(points)
@@ -403,7 +471,8 @@ mod tests {
         let n = 9;
         let plan = ResamplePlan::jackknife(n);
         let data: Vec<Vec<f64>> = (0..4).map(|k| bins(k, n)).collect();
-        let points: Vec<Resampled> = data.iter().map(|x| plan.mean(x)).collect();
+        let owned: Vec<Resampled> = data.iter().map(|x| plan.mean(x)).collect();
+        let points: Vec<&Resampled> = owned.iter().collect();
         // Identity: the jackknife pseudo-values of a mean are its bins.
         let scales = jackknife_sample_scales(&points).expect("jackknife scales");
         // The fused computation gives the plan's scales of the pseudo-values bit for bit.
@@ -421,7 +490,7 @@ mod tests {
                 assert_relative_eq!(*a, b, max_relative = 1e-9);
             }
         }
-        let errors: Vec<f64> = points.iter().map(Resampled::error).collect();
+        let errors: Vec<f64> = points.iter().map(|p| p.error()).collect();
         let w = Weights::diagonal(&errors);
         let design = Design::Fixed(DMatrix::from_element(4, 1, 1.0));
         // Scales of 1 give the factorised (frozen-weight) fit.
@@ -452,7 +521,7 @@ mod tests {
         }
         // Bootstrap samples: no scales.
         let boot = ResamplePlan::bootstrap(n, 20, 1);
-        assert!(jackknife_sample_scales(&[boot.mean(&data[0])]).is_none());
+        assert!(jackknife_sample_scales(&[&boot.mean(&data[0])]).is_none());
     }
 
     // The cache is an optimisation only: a fit with cached scales, and a second fit reusing
@@ -468,13 +537,6 @@ mod tests {
             })
             .collect();
         let refs: Vec<&ReIm> = points.iter().collect();
-        let caches = vec![PointScales::default(); points.len()];
-        let cached: Vec<&PointScales> = caches.iter().collect();
-        let options = CovarianceOptions::default();
-        let cov = CovarianceSetup {
-            options: &options,
-            n_bins: n,
-        };
         let line = || Design::Fixed(DMatrix::from_fn(5, 2, |i, j| (i * j) as f64 + 1.0));
         let bits = |fit: &[ReIm]| -> Vec<u64> {
             fit.iter()
@@ -486,13 +548,91 @@ mod tests {
                 .map(f64::to_bits)
                 .collect()
         };
-        let (plain, _) = fit_re_im(&refs, None, line(), cov, "test").unwrap();
-        let (first, _) = fit_re_im(&refs, Some(&cached), line(), cov, "test").unwrap();
-        let (again, _) = fit_re_im(&refs, Some(&cached), line(), cov, "test").unwrap();
-        assert!(caches
-            .iter()
-            .all(|c| c.re.get().is_some_and(Option::is_some)));
-        assert_eq!(bits(&plain), bits(&first));
-        assert_eq!(bits(&plain), bits(&again));
+        // The stage's default (diagonal, variances kept too) and a full covariance.
+        let diagonal = CovarianceOptions {
+            kind: CovarianceKind::Diagonal,
+            eigen_cut: None,
+        };
+        for options in [diagonal, CovarianceOptions::default()] {
+            let caches = vec![PointScales::default(); points.len()];
+            let cached: Vec<&PointScales> = caches.iter().collect();
+            let cov = CovarianceSetup {
+                options: &options,
+                n_bins: n,
+            };
+            let (plain, _) = fit_re_im(&refs, None, line(), cov, "test").unwrap();
+            let (first, _) = fit_re_im(&refs, Some(&cached), line(), cov, "test").unwrap();
+            let (again, _) = fit_re_im(&refs, Some(&cached), line(), cov, "test").unwrap();
+            assert!(caches
+                .iter()
+                .all(|c| c.re.scales.get().is_some_and(Option::is_some)));
+            let kept_variances = caches
+                .iter()
+                .all(|c| c.im.variance.get().is_some_and(Option::is_some));
+            assert_eq!(kept_variances, options == diagonal);
+            assert_eq!(bits(&plain), bits(&first));
+            assert_eq!(bits(&plain), bits(&again));
+        }
+    }
+
+    // The kept variances give the weights and warnings of the covariance estimate itself
+    // (the diagonal estimate of `resample::covariance`), bit for bit; anything that estimate
+    // would refuse is left to it.
+    #[test]
+    fn kept_variances_give_the_estimates_weights_or_leave_it_the_error() {
+        let n = 7;
+        let plan = ResamplePlan::jackknife(n);
+        let mut points: Vec<ReIm> = (0..4)
+            .map(|k| ReIm {
+                re: plan.mean(&bins(k, n)),
+                im: plan.mean(&bins(k + 3, n)),
+            })
+            .collect();
+        let options = CovarianceOptions {
+            kind: CovarianceKind::Diagonal,
+            eigen_cut: None,
+        };
+        let cov = CovarianceSetup {
+            options: &options,
+            n_bins: n,
+        };
+        let check = |points: &[ReIm]| {
+            let refs: Vec<&ReIm> = points.iter().collect();
+            let caches = vec![PointScales::default(); points.len()];
+            let cached: Vec<&PointScales> = caches.iter().collect();
+            [Part::Re, Part::Im].map(|part| {
+                let owned: Vec<Resampled> = points.iter().map(|p| p.part(part).clone()).collect();
+                let direct = weights(&owned, cov, "test").ok();
+                let kept = weights_from_kept(&refs, &cached, part, cov);
+                if let (Some((wd, md)), Some((wk, mk))) = (&direct, &kept) {
+                    let bits =
+                        |w: &Weights| w.matrix().iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                    assert_eq!(bits(wd), bits(wk));
+                    assert_eq!(md, mk);
+                }
+                (direct.is_some(), kept.is_some())
+            })
+        };
+        assert_eq!(check(&points), [(true, true), (true, true)]);
+        // A constant point (zero variance) and a non-finite one: the estimate's errors.
+        points[1].re = Resampled::constant(2.0, n, Scheme::Jackknife);
+        points[2].im.samples[3] = f64::NAN;
+        assert_eq!(check(&points), [(false, false), (false, false)]);
+        // Other estimates (a full covariance, an eigenvalue cut) are not taken from kept
+        // variances.
+        let cut = CovarianceOptions {
+            eigen_cut: Some(1e-3),
+            ..options
+        };
+        let refs: Vec<&ReIm> = points[..1].iter().collect();
+        let caches = [PointScales::default()];
+        let cached: Vec<&PointScales> = caches.iter().collect();
+        for other in [cut, CovarianceOptions::default()] {
+            let other = CovarianceSetup {
+                options: &other,
+                n_bins: n,
+            };
+            assert!(weights_from_kept(&refs, &cached, Part::Re, other).is_none());
+        }
     }
 }

@@ -135,7 +135,14 @@ mod tests {
 
     fn point(tsep: u32, tau: u32) -> RatioPoint {
         let v = resampled(1.0, 0.0);
-        RatioPoint::new(tsep, tau, ReIm { re: v.clone(), im: v })
+        RatioPoint::new(
+            tsep,
+            tau,
+            ReIm {
+                re: v.clone(),
+                im: v,
+            },
+        )
     }
 
     // The memo's designs are the channel's own (the definition of the cache), kept while the
@@ -143,8 +150,9 @@ mod tests {
     #[test]
     fn memo_keeps_designs_for_the_same_key_only() {
         let (p0, p1) = ([0, 0, 0], [1, 0, 0]);
-        let map: BTreeMap<Momentum, TwoPointStates> =
-            [(p0, states(0.3)), (p1, states(0.45))].into_iter().collect();
+        let map: BTreeMap<Momentum, TwoPointStates> = [(p0, states(0.3)), (p1, states(0.45))]
+            .into_iter()
+            .collect();
         let points: Vec<RatioPoint> = [(8, 2), (8, 6), (10, 3), (10, 5), (12, 4)]
             .iter()
             .map(|&(t, tau)| point(t, tau))
@@ -165,7 +173,11 @@ mod tests {
         let fewer = memo.designs(&setup(p1, 4), &map, p1, p0);
         assert_eq!(fewer.values, own(&setup(p1, 4)), "other points: recomputed");
         let other = memo.designs(&setup(p0, 4), &map, p0, p0);
-        assert_eq!(other.values, own(&setup(p0, 4)), "other momentum: recomputed");
+        assert_eq!(
+            other.values,
+            own(&setup(p0, 4)),
+            "other momentum: recomputed"
+        );
         assert_ne!(own(&setup(p0, 4)), own(&setup(p1, 4)));
         // A memo made for another map of states never hands out its designs.
         let copy = map.clone();

@@ -174,27 +174,45 @@ fn diagonal_estimate(
     opts: &CovarianceOptions,
     n_bins: usize,
 ) -> Result<CovarianceEstimate> {
-    let n = values[0].len();
     let d = values.len();
-    let scheme = values[0].scheme;
-    let (scale, norm) = (deviation_scale(n, scheme), product_norm(n, scheme));
     let mut variances = Vec::with_capacity(d);
     for (i, v) in values.iter().enumerate() {
-        let mean = v.sample_mean();
-        let sum: f64 = v
-            .samples
-            .iter()
-            .map(|x| {
-                let y = (x - mean) * scale;
-                y * y
-            })
-            .sum();
-        let var = sum * norm;
+        let var = diagonal_variance(v);
         if var <= 0.0 {
             return Err(zero_variance(i, d));
         }
         variances.push(var);
     }
+    Ok(diagonal_from_variances(variances, opts, n_bins))
+}
+
+/// One value's variance as [`estimate_with_bins`] computes it for a diagonal covariance (its
+/// samples' deviations from their mean, normalised for the resampling scheme). A caller that
+/// keeps it per value gets the same estimate from [`diagonal_from_variances`].
+pub fn diagonal_variance(v: &Resampled) -> f64 {
+    let n = v.len();
+    let (scale, norm) = (deviation_scale(n, v.scheme), product_norm(n, v.scheme));
+    let mean = v.sample_mean();
+    let sum: f64 = v
+        .samples
+        .iter()
+        .map(|x| {
+            let y = (x - mean) * scale;
+            y * y
+        })
+        .sum();
+    sum * norm
+}
+
+/// The diagonal estimate of [`estimate_with_bins`] from its variances ([`diagonal_variance`]
+/// of each value, all positive; values that pass its input checks, with no eigenvalue cut),
+/// with its condition number and warnings.
+pub fn diagonal_from_variances(
+    variances: Vec<f64>,
+    opts: &CovarianceOptions,
+    n_bins: usize,
+) -> CovarianceEstimate {
+    let d = variances.len();
     let (lo, hi) = variances
         .iter()
         .fold((f64::INFINITY, 0.0f64), |(lo, hi), &v| {
@@ -208,13 +226,13 @@ fn diagonal_estimate(
         f64::INFINITY
     };
     let warnings = diagnose(condition_number, opts, false, n_bins, d);
-    Ok(CovarianceEstimate {
+    CovarianceEstimate {
         matrix: DMatrix::from_diagonal(&nalgebra::DVector::from_vec(variances)),
         condition_number,
         shrinkage: None,
         n_eigen_cut: 0,
         warnings,
-    })
+    }
 }
 
 /// Refuse what no covariance can be estimated from: one plan, at least two samples and
