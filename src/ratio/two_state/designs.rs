@@ -4,11 +4,9 @@
 //! points (channels are ordered by sink momentum and momentum transfer, so the currents and
 //! projectors of one momentum pair follow each other).
 
-use super::fixed::Setup;
-use super::TwoPointStates;
 use crate::data::Momentum;
 use nalgebra::DMatrix;
-use std::collections::BTreeMap;
+use std::marker::PhantomData;
 
 /// The design of every resample, column-major one after the other.
 #[derive(Default)]
@@ -41,7 +39,7 @@ impl DesignCache {
     }
 
     /// The design of resample `k`, if cached.
-    fn get(&self, k: usize) -> Option<&[f64]> {
+    pub(super) fn get(&self, k: usize) -> Option<&[f64]> {
         let start = k.checked_mul(self.size)?;
         self.values.get(start..start.checked_add(self.size)?)
     }
@@ -68,120 +66,51 @@ impl DesignCache {
 /// and sink momenta, the same `(tsep, tau)` points and the same symmetry: a design row depends
 /// on nothing else (its `(tsep, tau)` and the two-point gaps and amplitude ratios at the two
 /// momenta, per resample), so the kept designs are the ones that channel would compute, bit
-/// for bit. One memo serves one map of two-point states (a fit with another map computes its
-/// own designs).
+/// for bit. One memo serves one map of two-point states, the one it was made for (a fit with
+/// another map computes its own designs); it cannot outlive that map.
 pub struct DesignMemo<'s> {
-    states: &'s BTreeMap<Momentum, TwoPointStates>,
-    last: Option<(MemoKey, DesignCache)>,
+    /// The address of the map of two-point states this memo serves.
+    states: usize,
+    last: Option<(DesignKey, DesignCache)>,
+    map: PhantomData<&'s ()>,
 }
 
 /// What a channel's designs depend on besides the two-point states.
 #[derive(PartialEq)]
-struct MemoKey {
-    source: Momentum,
-    sink: Momentum,
-    symmetric: bool,
-    points: Vec<(u32, u32)>,
+pub(super) struct DesignKey {
+    /// Source momentum.
+    pub source: Momentum,
+    /// Sink momentum.
+    pub sink: Momentum,
+    /// Whether `c_i = c_f` is enforced (three columns instead of four).
+    pub symmetric: bool,
+    /// The fitted `(tsep, tau)` points, in order.
+    pub points: Vec<(u32, u32)>,
 }
 
 impl<'s> DesignMemo<'s> {
     /// An empty memo for fits with the two-point parameters of `states`.
-    pub fn new(states: &'s BTreeMap<Momentum, TwoPointStates>) -> Self {
-        DesignMemo { states, last: None }
+    pub fn new<T>(states: &'s T) -> Self {
+        DesignMemo {
+            states: std::ptr::from_ref(states) as usize,
+            last: None,
+            map: PhantomData,
+        }
     }
 
-    /// The designs of `setup` (a channel with these `source` and `sink` momenta, fitted with
-    /// `states`): the kept ones when the last channel had the same key, else computed and kept.
-    pub(super) fn designs(
+    /// The designs of a channel with `key`, fitted with `states`: the kept ones when the last
+    /// channel had the same key and states, else `compute()`d and kept.
+    pub(super) fn designs<T>(
         &mut self,
-        setup: &Setup<'_>,
-        states: &BTreeMap<Momentum, TwoPointStates>,
-        source: Momentum,
-        sink: Momentum,
+        states: &T,
+        key: DesignKey,
+        compute: impl FnOnce() -> DesignCache,
     ) -> &DesignCache {
-        let key = MemoKey {
-            source,
-            sink,
-            symmetric: setup.symmetric,
-            points: setup.points.iter().map(|p| (p.tsep, p.tau)).collect(),
-        };
-        let same_states = std::ptr::eq(self.states, states);
+        let same_states = std::ptr::from_ref(states) as usize == self.states;
         let kept = same_states && self.last.as_ref().is_some_and(|(k, _)| *k == key);
         if !kept {
             self.last = None;
         }
-        &self.last.get_or_insert_with(|| (key, setup.designs())).1
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-    use crate::ratio::{RatioPoint, ReIm};
-    use crate::resample::{Resampled, Scheme};
-
-    fn resampled(central: f64, step: f64) -> Resampled {
-        let samples = (0..5).map(|k| central + step * k as f64).collect();
-        Resampled::new(central, samples, Scheme::Jackknife)
-    }
-
-    fn states(gap: f64) -> TwoPointStates {
-        TwoPointStates {
-            energy: resampled(0.5, 0.001),
-            amp_ratio: resampled(0.8, 0.01),
-            gap: resampled(gap, 0.002),
-        }
-    }
-
-    fn point(tsep: u32, tau: u32) -> RatioPoint {
-        let v = resampled(1.0, 0.0);
-        RatioPoint::new(
-            tsep,
-            tau,
-            ReIm {
-                re: v.clone(),
-                im: v,
-            },
-        )
-    }
-
-    // The memo's designs are the channel's own (the definition of the cache), kept while the
-    // key stays the same and recomputed when the momenta or the points change.
-    #[test]
-    fn memo_keeps_designs_for_the_same_key_only() {
-        let (p0, p1) = ([0, 0, 0], [1, 0, 0]);
-        let map: BTreeMap<Momentum, TwoPointStates> = [(p0, states(0.3)), (p1, states(0.45))]
-            .into_iter()
-            .collect();
-        let points: Vec<RatioPoint> = [(8, 2), (8, 6), (10, 3), (10, 5), (12, 4)]
-            .iter()
-            .map(|&(t, tau)| point(t, tau))
-            .collect();
-        let setup = |source: Momentum, n: usize| Setup {
-            points: points[..n].iter().collect(),
-            tseps: vec![8, 10, 12],
-            source: &map[&source],
-            sink: &map[&p0],
-            symmetric: false,
-        };
-        let own = |s: &Setup<'_>| s.designs().values;
-        let mut memo = DesignMemo::new(&map);
-        let first = memo.designs(&setup(p1, 5), &map, p1, p0).values.as_ptr();
-        let again = memo.designs(&setup(p1, 5), &map, p1, p0);
-        assert_eq!(again.values.as_ptr(), first, "same key: kept");
-        assert_eq!(again.values, own(&setup(p1, 5)));
-        let fewer = memo.designs(&setup(p1, 4), &map, p1, p0);
-        assert_eq!(fewer.values, own(&setup(p1, 4)), "other points: recomputed");
-        let other = memo.designs(&setup(p0, 4), &map, p0, p0);
-        assert_eq!(
-            other.values,
-            own(&setup(p0, 4)),
-            "other momentum: recomputed"
-        );
-        assert_ne!(own(&setup(p0, 4)), own(&setup(p1, 4)));
-        // A memo made for another map of states never hands out its designs.
-        let copy = map.clone();
-        let foreign = memo.designs(&setup(p0, 4), &copy, p0, p0).values.clone();
-        assert_eq!(foreign, own(&setup(p0, 4)));
+        &self.last.get_or_insert_with(|| (key, compute())).1
     }
 }

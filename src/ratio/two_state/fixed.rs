@@ -18,7 +18,7 @@
 //! The floating-gap and joint variants ([`super::floating`], [`super::joint`]) build on the
 //! types and the fixed-gap solution of this module.
 
-use super::designs::{DesignCache, DesignMemo};
+use super::designs::{DesignCache, DesignKey, DesignMemo};
 use crate::data::Momentum;
 use crate::ratio::lsq::{fit_re_im, Design};
 use crate::ratio::{ChannelRatio, RatioPoint, RatioSettings, ReIm, ReImFit, STAGE};
@@ -321,7 +321,7 @@ pub(crate) fn two_state_fixed_and_late(
         Ok(s) => s,
         Err(e) => return (Err(e), None),
     };
-    let designs = memo.designs(&setup, states, ratio.key.source_momentum(), ratio.key.pf);
+    let designs = memo.designs(states, setup.design_key(ratio), || setup.designs());
     let first = fit_setup(&setup, ratio, settings, designs, 0);
     let second = (late && first.is_ok())
         .then(|| setup.without_smallest_tsep())
@@ -357,10 +357,21 @@ impl<'a> Setup<'a> {
 }
 
 impl Setup<'_> {
+    /// What the designs of this setup of `ratio`'s points depend on besides the two-point
+    /// states ([`DesignMemo`]).
+    fn design_key(&self, ratio: &ChannelRatio) -> DesignKey {
+        DesignKey {
+            source: ratio.key.source_momentum(),
+            sink: ratio.key.pf,
+            symmetric: self.symmetric,
+            points: self.points.iter().map(|p| (p.tsep, p.tau)).collect(),
+        }
+    }
+
     /// [`Setup::design_into`] for every resample's gaps, kept for the real and the imaginary
     /// fit and the fit without the smallest separation; none when every resample has the
     /// central gaps (one design, factorised once).
-    pub(super) fn designs(&self) -> DesignCache {
+    fn designs(&self) -> DesignCache {
         if self.gaps_are_fixed() {
             return DesignCache::default();
         }
@@ -485,5 +496,73 @@ mod tests {
                 }
             }
         }
+    }
+
+    fn resampled(central: f64, step: f64) -> Resampled {
+        let samples = (0..5).map(|k| central + step * k as f64).collect();
+        Resampled::new(central, samples, Scheme::Jackknife)
+    }
+
+    // The memo's designs are the channel's own (the definition of the cache), kept while the
+    // key stays the same and recomputed when the momenta or the points change.
+    #[test]
+    fn memo_keeps_designs_for_the_same_key_only() {
+        let states = |gap: f64| TwoPointStates {
+            energy: resampled(0.5, 0.001),
+            amp_ratio: resampled(0.8, 0.01),
+            gap: resampled(gap, 0.002),
+        };
+        let (p0, p1): (Momentum, Momentum) = ([0, 0, 0], [1, 0, 0]);
+        let map: BTreeMap<Momentum, TwoPointStates> = [(p0, states(0.3)), (p1, states(0.45))]
+            .into_iter()
+            .collect();
+        let v = resampled(1.0, 0.0);
+        let points: Vec<RatioPoint> = [(8, 2), (8, 6), (10, 3), (10, 5), (12, 4)]
+            .iter()
+            .map(|&(t, tau)| {
+                RatioPoint::new(
+                    t,
+                    tau,
+                    ReIm {
+                        re: v.clone(),
+                        im: v.clone(),
+                    },
+                )
+            })
+            .collect();
+        let setup = |source: Momentum, n: usize| Setup {
+            points: points[..n].iter().collect(),
+            tseps: vec![8, 10, 12],
+            source: &map[&source],
+            sink: &map[&p0],
+            symmetric: false,
+        };
+        let key = |source: Momentum, n: usize| DesignKey {
+            source,
+            sink: p0,
+            symmetric: false,
+            points: points[..n].iter().map(|p| (p.tsep, p.tau)).collect(),
+        };
+        let own = |s: &Setup<'_>| s.designs().get(4).map(<[f64]>::to_vec);
+        let at = |d: &DesignCache| d.get(4).map(<[f64]>::to_vec);
+        let mut memo = DesignMemo::new(&map);
+        let first = memo.designs(&map, key(p1, 5), || setup(p1, 5).designs());
+        let first_ptr = first.get(0).map(<[f64]>::as_ptr);
+        assert_eq!(at(first), own(&setup(p1, 5)));
+        let again = memo.designs(&map, key(p1, 5), || panic!("same key: must be kept"));
+        assert_eq!(again.get(0).map(<[f64]>::as_ptr), first_ptr);
+        let fewer = memo.designs(&map, key(p1, 4), || setup(p1, 4).designs());
+        assert_eq!(at(fewer), own(&setup(p1, 4)), "other points: recomputed");
+        let other = memo.designs(&map, key(p0, 4), || setup(p0, 4).designs());
+        assert_eq!(at(other), own(&setup(p0, 4)), "other momentum: recomputed");
+        assert_ne!(own(&setup(p0, 4)), own(&setup(p1, 4)));
+        // A memo made for another map of states never hands out its designs.
+        let copy = map.clone();
+        let mut computed = false;
+        memo.designs(&copy, key(p0, 4), || {
+            computed = true;
+            setup(p0, 4).designs()
+        });
+        assert!(computed);
     }
 }
