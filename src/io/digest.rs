@@ -51,7 +51,7 @@ struct Ahead {
     pos: usize,
     /// The end of the input was reached (or an error passed on).
     done: bool,
-    thread: Option<std::thread::JoinHandle<(sha2::Sha256, u64)>>,
+    thread: std::thread::JoinHandle<(sha2::Sha256, u64)>,
 }
 
 impl<R: Read + Send + 'static> Hashing<R> {
@@ -75,11 +75,15 @@ impl<R: Read + Send + 'static> Hashing<R> {
         std::io::copy(&mut self, &mut std::io::sink())?;
         let (hasher, bytes) = match self.how {
             How::Here { hasher, bytes, .. } => (hasher, bytes),
-            How::Ahead(mut a) => {
-                let thread = a.thread.take();
-                drop(a);
+            How::Ahead(Ahead {
+                thread,
+                chunks,
+                spare,
+                ..
+            }) => {
+                // The channels close first: a thread that still waits on them ends.
+                drop((chunks, spare));
                 thread
-                    .ok_or_else(|| std::io::Error::other("the hashing thread is gone"))?
                     .join()
                     .map_err(|_| std::io::Error::other("the hashing thread failed"))?
             }
@@ -134,7 +138,7 @@ impl Ahead {
             current: Vec::new(),
             pos: 0,
             done: false,
-            thread: Some(thread),
+            thread,
         })
     }
 }

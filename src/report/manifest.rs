@@ -150,11 +150,20 @@ impl Manifest {
 
 /// SHA-256 of a file, streamed in 64 KiB blocks: (lower-case hex digest, size in bytes).
 pub fn sha256_file(path: &Path) -> Result<(String, u64)> {
+    sha256_file_unless(path, || false).map(|d| d.unwrap_or_default())
+}
+
+/// [`sha256_file`], abandoned (`Ok(None)`) as soon as `stop()` says so; it is asked before
+/// every block (a background hash whose run has failed need not read the file to its end).
+pub fn sha256_file_unless(path: &Path, stop: impl Fn() -> bool) -> Result<Option<(String, u64)>> {
     let mut file = File::open(path).map_err(|e| Error::io(path, e))?;
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 64 * 1024];
     let mut total = 0u64;
     loop {
+        if stop() {
+            return Ok(None);
+        }
         let n = match file.read(&mut buf) {
             Ok(0) => break,
             Ok(n) => n,
@@ -164,7 +173,7 @@ pub fn sha256_file(path: &Path) -> Result<(String, u64)> {
         hasher.update(&buf[..n]);
         total += n as u64;
     }
-    Ok((hex(&hasher.finalize()), total))
+    Ok(Some((hex(&hasher.finalize()), total)))
 }
 
 /// SHA-256 of a byte string, lower-case hex.
@@ -252,6 +261,16 @@ mod tests {
             "cdc76e5c9914fb9281a1c7e284d73e67f1809a48a497200e046d39ccc7112cd0"
         );
         assert_eq!(n, 1_000_000);
+        // Asked to stop after four blocks, the hash is abandoned there.
+        let asked = std::cell::Cell::new(0);
+        let stop = || {
+            asked.set(asked.get() + 1);
+            asked.get() > 4
+        };
+        assert_eq!(sha256_file_unless(&p, stop).unwrap(), None);
+        assert_eq!(asked.get(), 5, "stopped at the fifth of 16 blocks");
+        let whole = sha256_file_unless(&p, || false).unwrap();
+        assert_eq!(whole, Some((digest, n)));
     }
 
     #[test]

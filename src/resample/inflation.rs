@@ -21,8 +21,7 @@
 //! more than its error (`auto`), whenever it exceeds 1/2 (`always`, the default), or never.
 
 use super::autocorr::{pooled_gamma_method, PooledAutocorr, DEFAULT_S};
-use super::means::{stable_means, MEANS_AT_ONCE};
-use super::value::stable_mean;
+use super::means::{stable_means_of, MEANS_AT_ONCE};
 use crate::data::{Series, ThreePointData, TwoPointData};
 use rayon::prelude::*;
 use schemars::JsonSchema;
@@ -177,10 +176,7 @@ pub fn inflate(series: &mut Series, factor: f64) {
         let mut slices: Vec<&mut [f64]> = part.chunks_mut(n).collect();
         for group in slices.chunks_mut(MEANS_AT_ONCE) {
             // The means of a whole group at once (the same bits as one by one).
-            let means: Vec<f64> = match group {
-                [a, b, c, d] => stable_means([a, b, c, d]).to_vec(),
-                _ => group.iter().map(|s| stable_mean(s)).collect(),
-            };
+            let means = stable_means_of(group);
             for (slice, m) in group.iter_mut().zip(means) {
                 for v in slice.iter_mut() {
                     *v = m + factor * (*v - m);

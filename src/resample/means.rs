@@ -37,5 +37,14 @@ pub(crate) fn stable_means(xs: [&[f64]; MEANS_AT_ONCE]) -> [f64; MEANS_AT_ONCE] 
     out
 }
 
+/// [`stable_mean`] of every slice of `group` (at most [`MEANS_AT_ONCE`] of them), together by
+/// [`stable_means`] when there are that many, else one by one: the same bits either way.
+pub(crate) fn stable_means_of<S: AsRef<[f64]>>(group: &[S]) -> Vec<f64> {
+    match group {
+        [a, b, c, d] => stable_means([a.as_ref(), b.as_ref(), c.as_ref(), d.as_ref()]).to_vec(),
+        _ => group.iter().map(|s| stable_mean(s.as_ref())).collect(),
+    }
+}
+
 /// Slices averaged together by [`stable_means`].
 pub(crate) const MEANS_AT_ONCE: usize = 4;

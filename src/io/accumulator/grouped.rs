@@ -159,23 +159,8 @@ impl Accumulator {
             let s = &mut g.series;
             s.re.clear();
             s.im.clear();
-            let (mut smin, mut smax) = g.counts;
-            let mut gap = None;
-            'times: for t in 0..n_t {
-                for &(config, i) in &g.sorted {
-                    let cell = chan.get(t, i).unwrap_or_default();
-                    if cell.is_empty() {
-                        gap = Some((t, config));
-                        break 'times;
-                    }
-                    let count = chan.count(t, i);
-                    smin = smin.min(count);
-                    smax = smax.max(count);
-                    let n = f64::from(count);
-                    s.re.push(cell.re / n);
-                    s.im.push(cell.im / n);
-                }
-            }
+            let mut counts = g.counts;
+            let gap = chan.average_into(n_t, &g.sorted, (&mut s.re, &mut s.im), &mut counts);
             g.closed[id as usize] = Some(Closed {
                 known: g.sorted.len(),
                 gap,
@@ -184,7 +169,7 @@ impl Accumulator {
             });
             drop(chan);
             if gap.is_none() {
-                g.counts = (smin, smax);
+                g.counts = counts;
                 s.n_t = n_t;
                 s.n_cfg = g.sorted.len();
                 visit(&id, s)?;

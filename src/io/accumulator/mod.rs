@@ -121,6 +121,34 @@ impl Channel {
             None => self.overflow.get(&(t as u32, cfg as u32)).copied(),
         }
     }
+
+    /// Append the averaged values of time slices `0..n_t`, time-major, configurations in the
+    /// order of `sorted` (`(number, first-seen index)`), to `re` and `im`, widening `counts`
+    /// (fewest, most rows averaged into one value) by each cell's; stops at the first empty
+    /// cell, whose `(t, configuration number)` it returns.
+    fn average_into(
+        &self,
+        n_t: usize,
+        sorted: &[(i64, usize)],
+        (re, im): (&mut Vec<f64>, &mut Vec<f64>),
+        counts: &mut (u32, u32),
+    ) -> Option<(usize, i64)> {
+        for t in 0..n_t {
+            for &(config, i) in sorted {
+                let cell = self.get(t, i).unwrap_or_default();
+                if cell.is_empty() {
+                    return Some((t, config));
+                }
+                let count = self.count(t, i);
+                counts.0 = counts.0.min(count);
+                counts.1 = counts.1.max(count);
+                let n = f64::from(count);
+                re.push(cell.re / n);
+                im.push(cell.im / n);
+            }
+        }
+        None
+    }
 }
 
 /// Collects rows into channels and checks the one-row-per-point rule.
@@ -297,21 +325,13 @@ impl Accumulator {
                 };
                 let mut re = Vec::with_capacity(cap);
                 let mut im = Vec::with_capacity(cap);
-                let (mut smin, mut smax) = (u32::MAX, 0u32);
-                for t in 0..nt {
-                    for &(config, i) in &sorted {
-                        let cell = chan.get(t, i).unwrap_or_default();
-                        if cell.is_empty() {
-                            return Err(missing(id, t, config, chan.first_line));
-                        }
-                        let count = chan.count(t, i);
-                        smin = smin.min(count);
-                        smax = smax.max(count);
-                        let n = f64::from(count);
-                        re.push(cell.re / n);
-                        im.push(cell.im / n);
-                    }
+                let mut counts = (u32::MAX, 0u32);
+                if let Some((t, config)) =
+                    chan.average_into(nt, &sorted, (&mut re, &mut im), &mut counts)
+                {
+                    return Err(missing(id, t, config, chan.first_line));
                 }
+                let (smin, smax) = counts;
                 Ok(Averaged {
                     id,
                     re,

@@ -103,26 +103,35 @@ pub(in crate::pipeline) fn read_and_resample(
 /// and nothing hashes on the way: taken on a thread of their own while the stage reads and
 /// resamples, when the run has more than one worker thread (with one, the manifest hashes
 /// them when it is written, as it does for any input without a digest). A file that cannot
-/// be hashed here is left to the manifest, which reports the error.
-struct BackgroundDigests(Option<std::thread::JoinHandle<Vec<crate::io::FileDigest>>>);
+/// be hashed here is left to the manifest, which reports the error. Dropped without
+/// [`BackgroundDigests::finish`] (the stage failed), the thread stops at its next block.
+struct BackgroundDigests {
+    thread: Option<std::thread::JoinHandle<Vec<crate::io::FileDigest>>>,
+    stop: std::sync::Arc<std::sync::atomic::AtomicBool>,
+}
 
 impl BackgroundDigests {
     fn start(plan: &Plan) -> Self {
+        let stop = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+        let none = |stop| BackgroundDigests { thread: None, stop };
         if plan.hdf5.is_none() || rayon::current_num_threads() < 2 {
-            return BackgroundDigests(None);
+            return none(stop);
         }
         let files = plan.input_files();
         if files.is_empty() {
             // per-configuration files: too many to hash (the manifest records the template)
-            return BackgroundDigests(None);
+            return none(stop);
         }
+        let stopped = std::sync::Arc::clone(&stop);
         let thread = std::thread::Builder::new()
             .name("digest".into())
             .spawn(move || {
+                let stop = || stopped.load(std::sync::atomic::Ordering::Relaxed);
                 files
                     .into_iter()
                     .filter_map(|path| {
-                        let (sha256, bytes) = crate::report::manifest::sha256_file(&path).ok()?;
+                        let (sha256, bytes) =
+                            crate::report::manifest::sha256_file_unless(&path, stop).ok()??;
                         Some(crate::io::FileDigest {
                             path,
                             bytes,
@@ -132,12 +141,24 @@ impl BackgroundDigests {
                     .collect()
             });
         // A thread that cannot start leaves the hashing to the manifest.
-        BackgroundDigests(thread.ok())
+        BackgroundDigests {
+            thread: thread.ok(),
+            stop,
+        }
     }
 
     /// The digests taken (a failed thread gives none; the manifest hashes those files).
-    fn finish(self) -> Vec<crate::io::FileDigest> {
-        self.0.and_then(|t| t.join().ok()).unwrap_or_default()
+    fn finish(mut self) -> Vec<crate::io::FileDigest> {
+        self.thread
+            .take()
+            .and_then(|t| t.join().ok())
+            .unwrap_or_default()
+    }
+}
+
+impl Drop for BackgroundDigests {
+    fn drop(&mut self) {
+        self.stop.store(true, std::sync::atomic::Ordering::Relaxed);
     }
 }
 
