@@ -16,6 +16,7 @@
 use super::window::WindowFit;
 use crate::resample::Resampled;
 use serde::Serialize;
+use std::borrow::Cow;
 
 /// One row of the model-average table.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -301,26 +302,27 @@ fn excited_average(
         return None;
     }
     let w = weights_of_included(fits, t_min_first, &multi);
-    // Fits of weight zero take no part in `average`; their entries are only placeholders.
-    let pick = |f: &WindowFit, m: bool, g: fn(&WindowFit) -> Resampled| {
-        if m {
-            g(f)
-        } else {
-            f.energies[0].clone()
-        }
-    };
-    let per_fit = |g: fn(&WindowFit) -> Resampled| -> Vec<Resampled> {
-        fits.iter()
+    // Fits of weight zero take no part in `average`; their entries are only placeholders
+    // (borrowed: the ground energy every fit has).
+    let per_fit = |g: fn(&WindowFit) -> Cow<'_, Resampled>| -> Resampled {
+        let values: Vec<Cow<'_, Resampled>> = fits
+            .iter()
             .zip(&multi)
-            .map(|(f, &m)| pick(f, m, g))
-            .collect()
+            .map(|(f, &m)| {
+                if m {
+                    g(f)
+                } else {
+                    Cow::Borrowed(&f.energies[0])
+                }
+            })
+            .collect();
+        average(&values.iter().map(AsRef::as_ref).collect::<Vec<_>>(), &w).0
     };
-    let avg = |v: Vec<Resampled>| average(&v.iter().collect::<Vec<_>>(), &w).0;
     Some(ExcitedAverage {
-        ground_energy: avg(per_fit(|f| f.energies[0].clone())),
-        energy: avg(per_fit(|f| f.energies[1].clone())),
-        gap: avg(per_fit(|f| &f.energies[1] - &f.energies[0])),
-        amplitude_ratio: avg(per_fit(|f| &f.amplitudes[1] / &f.amplitudes[0])),
+        ground_energy: per_fit(|f| Cow::Borrowed(&f.energies[0])),
+        energy: per_fit(|f| Cow::Borrowed(&f.energies[1])),
+        gap: per_fit(|f| Cow::Owned(&f.energies[1] - &f.energies[0])),
+        amplitude_ratio: per_fit(|f| Cow::Owned(&f.amplitudes[1] / &f.amplitudes[0])),
         n_fits,
     })
 }

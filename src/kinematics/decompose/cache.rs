@@ -8,6 +8,7 @@ use super::ChannelValue;
 use crate::data::{Current, Momentum, Projector};
 use crate::kinematics::expansion::Expansion;
 use crate::kinematics::factors::{coefficients, FormFactor};
+use crate::kinematics::momentum::continuum_energy;
 use crate::kinematics::setup::KinematicSetup;
 use crate::kinematics::OnShell;
 use crate::resample::Resampled;
@@ -35,7 +36,7 @@ type Q2 = Result<Arc<Resampled>, String>;
 pub struct CoefficientCache {
     samples: Mutex<HashMap<Key, Arc<Vec<Coefficients>>>>,
     central: Mutex<HashMap<Key, Coefficients>>,
-    on_shell: Mutex<HashMap<Key, Vec<Complex<f64>>>>,
+    on_shell: Mutex<HashMap<Key, Coefficients>>,
     q2: Mutex<HashMap<(Momentum, Momentum), Q2>>,
 }
 
@@ -69,19 +70,18 @@ impl CoefficientCache {
     pub(super) fn samples(
         &self,
         setup: &KinematicSetup,
-        all: &[FormFactor],
         c: &ChannelValue,
         central: Option<&(OnShell, Vec<Complex<f64>>)>,
         n: usize,
     ) -> Arc<Vec<Coefficients>> {
         let key = (c.pf, c.q, c.current, c.projector);
+        let all = form_factors(setup, c);
         memo(&self.samples, key, || {
             let kinematics = setup.channel(c.pf, c.q).map_err(|e| e.to_string());
             let expansion = kinematics
                 .as_ref()
                 .ok()
-                .and_then(|k| Expansion::new(setup.hadron, c.projector, c.current, &k.at(None)))
-                .filter(|_| FormFactor::of(setup.hadron, c.current.kind()) == all);
+                .and_then(|k| Expansion::new(setup.hadron, c.projector, c.current, &k.at(None)));
             let computed: Vec<Coefficients> = (0..n)
                 .into_par_iter()
                 .map(|s| {
@@ -110,31 +110,32 @@ impl CoefficientCache {
 
     /// The coefficients of `c` on the central value ([`channel_coefficients`]), computed on
     /// first use: every method's shell structure and central solve read them.
-    pub(super) fn central(
-        &self,
-        setup: &KinematicSetup,
-        all: &[FormFactor],
-        c: &ChannelValue,
-    ) -> Coefficients {
+    pub(super) fn central(&self, setup: &KinematicSetup, c: &ChannelValue) -> Coefficients {
         let key = (c.pf, c.q, c.current, c.projector);
         memo(&self.central, key, || {
-            channel_coefficients(setup, all, c, None)
+            channel_coefficients(setup, form_factors(setup, c), c, None)
         })
     }
 
-    /// The coefficients of `c` at `on`, the channel's on-shell kinematics at the central
-    /// mass (the same for every call with one setup: the rank decision of every method's
-    /// shell), computed on first use.
-    pub(super) fn on_shell(
-        &self,
-        setup: &KinematicSetup,
-        all: &[FormFactor],
-        c: &ChannelValue,
-        on: &OnShell,
-    ) -> Vec<Complex<f64>> {
+    /// The coefficients of `c` on shell: its central kinematics with the continuum energies
+    /// of the central mass at its momenta (the rank decision of every method's shell),
+    /// computed on first use.
+    pub(super) fn on_shell(&self, setup: &KinematicSetup, c: &ChannelValue) -> Coefficients {
         let key = (c.pf, c.q, c.current, c.projector);
-        memo(&self.on_shell, key, || coefficients_at(setup, all, c, on))
+        memo(&self.on_shell, key, || {
+            let mut on = setup.on_shell(c.pf, c.q, None).map_err(|e| e.to_string())?;
+            let mass = setup.mass.central;
+            on.ef = continuum_energy(mass, on.pf);
+            on.ei = continuum_energy(mass, on.pi);
+            Ok(coefficients_at(setup, form_factors(setup, c), c, &on))
+        })
     }
+}
+
+/// The form factors of `c`'s current for the setup's hadron, in the order of the
+/// coefficients: everything the cached values depend on besides the key and the setup.
+fn form_factors(setup: &KinematicSetup, c: &ChannelValue) -> &'static [FormFactor] {
+    FormFactor::of(setup.hadron, c.current.kind())
 }
 
 /// The coefficients of every form factor of `all` in channel `c` at sample `s`.

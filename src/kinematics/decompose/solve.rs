@@ -17,7 +17,7 @@ use super::{ChannelValue, ShellResult, NULL_OVERLAP, SINGULAR_THRESHOLD};
 use crate::data::{sub, Current, CurrentKind};
 use crate::fit::{Weighting, Weights};
 use crate::kinematics::factors::FormFactor;
-use crate::kinematics::momentum::{continuum_energy, q2_to_gev2};
+use crate::kinematics::momentum::q2_to_gev2;
 use crate::kinematics::setup::{at, KinematicSetup};
 use crate::kinematics::OnShell;
 use crate::resample::Resampled;
@@ -124,7 +124,7 @@ impl<'a> ShellSystem<'a> {
         phases: &BTreeMap<Current, Complex<f64>>,
         cache: &CoefficientCache,
     ) -> Outcome<Self> {
-        let coeffs = |c: &ChannelValue| cache.central(setup, all, c);
+        let coeffs = |c: &ChannelValue| cache.central(setup, c);
         let (rows, used, unknowns) = structure(members, all.len(), coeffs)?;
         let data = row_data(&rows, members, phases);
         let w = whitening(&data, &rows, members, weights)?;
@@ -153,7 +153,7 @@ impl<'a> ShellSystem<'a> {
         for &ci in &self.used {
             let c = self.members[ci];
             let central = self.central.get(&ci);
-            let samples = cache.samples(self.setup, self.all, c, central, n);
+            let samples = cache.samples(self.setup, c, central, n);
             self.per_sample.insert(ci, samples);
         }
         self
@@ -192,17 +192,10 @@ impl<'a> ShellSystem<'a> {
     /// each row scaled to unit length, singular values above [`SINGULAR_THRESHOLD`] of the
     /// largest.
     fn on_shell_rank(&self, coefficients: &CoefficientCache) -> Outcome<usize> {
-        let mass = self.setup.mass.central;
         let mut k = DMatrix::zeros(self.rows.len(), self.unknowns.len());
         let mut cache: BTreeMap<usize, Vec<Complex<f64>>> = BTreeMap::new();
         for &ci in &self.used {
-            let (mut on, _) = self.central[&ci].clone();
-            on.ef = continuum_energy(mass, on.pf);
-            on.ei = continuum_energy(mass, on.pi);
-            cache.insert(
-                ci,
-                coefficients.on_shell(self.setup, self.all, self.members[ci], &on),
-            );
+            cache.insert(ci, coefficients.on_shell(self.setup, self.members[ci])?);
         }
         for (r, &(ci, imag)) in self.rows.iter().enumerate() {
             let kc = &cache[&ci];
@@ -437,7 +430,7 @@ mod tests {
     use super::*;
     use crate::data::{Momentum, Projector};
     use crate::kinematics::factors::{coefficients, Hadron};
-    use crate::kinematics::momentum::lattice_momentum;
+    use crate::kinematics::momentum::{continuum_energy, lattice_momentum};
     use crate::kinematics::setup::Energies;
     use crate::resample::Scheme;
 
