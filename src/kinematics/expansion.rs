@@ -17,8 +17,8 @@
 //! the closed forms and Ward identities in `tests/kinematics.rs`).
 
 use super::dirac::{clifford, propagator_numerator, M4};
-use super::factors::{clean, projector_matrix};
-use super::momentum::{q_squared, OnShell};
+use super::factors::{clean, projector_matrix, pseudoscalar_factor, sachs, trace_norm};
+use super::momentum::OnShell;
 use super::Hadron;
 use crate::data::{Current, CurrentKind, Projector};
 use nalgebra::Complex;
@@ -91,7 +91,7 @@ impl Expansion {
         let (m, ef, ei) = (k.mass, k.ef, k.ei);
         let u = [1.0, ef, m];
         let v = [1.0, ei, m];
-        let norm = 4.0 * (ef * ei * (ef + m) * (ei + m)).sqrt();
+        let norm = trace_norm(ef, ei, m);
         let trace = |i: usize| -> Option<Complex<f64>> {
             let t = self.traces.get(i)?;
             let mut sum = Complex::new(0.0, 0.0);
@@ -107,8 +107,7 @@ impl Expansion {
             CurrentKind::Vector => {
                 let f1 = trace(0)?;
                 let f2 = -(trace(1)? + trace(2)? * (ef - ei)) / two_m;
-                let tau = q_squared(k) / (4.0 * m * m);
-                vec![(f1 - f2) / (1.0 + tau), (f1 * tau + f2) / (1.0 + tau)]
+                sachs(f1, f2, k).to_vec()
             }
             CurrentKind::Axial => {
                 let mu = self.current.indices()[0] - 1;
@@ -117,7 +116,7 @@ impl Expansion {
                 } else {
                     Complex::new(self.pf[mu] - self.pi[mu], 0.0)
                 };
-                vec![trace(0)?, trace(1)? * (-I * q_mu / two_m)]
+                vec![trace(0)?, trace(1)? * pseudoscalar_factor(q_mu, two_m)]
             }
             CurrentKind::Scalar | CurrentKind::Pseudoscalar | CurrentKind::Tensor => {
                 vec![trace(0)?]

@@ -183,6 +183,29 @@ pub(super) fn projector_matrix(projector: Projector) -> Option<M4> {
     }
 }
 
+/// The trace's normalisation `4 sqrt(E_f E_i (E_f + m)(E_i + m))` (the module documentation).
+pub(super) fn trace_norm(ef: f64, ei: f64, m: f64) -> f64 {
+    4.0 * (ef * ei * (ef + m) * (ei + m)).sqrt()
+}
+
+/// The coefficients of `(G_E, G_M)` from those of the Dirac and Pauli form factors, `k1` of
+/// `F1` and `k2` of `F2`: with `F1 = (G_E + tau G_M)/(1 + tau)`, `F2 = (G_M - G_E)/(1 + tau)`
+/// and `tau = Q²/(4m²)`, `Pi = k1 F1 + k2 F2 = (k1 - k2)/(1 + tau) G_E + (k1 tau + k2)/(1 + tau) G_M`.
+pub(super) fn sachs(k1: Complex<f64>, k2: Complex<f64>, k: &OnShell) -> [Complex<f64>; 2] {
+    let m = k.mass;
+    let tau = q_squared(k) / (4.0 * m * m);
+    [(k1 - k2) / (1.0 + tau), (k1 * tau + k2) / (1.0 + tau)]
+}
+
+/// The factor `-i q_mu / 2m` of the induced pseudoscalar's vertex `gamma_5 (-i q_mu / 2m)`
+/// (`two_m` is `2m`, as a real or a complex number).
+pub(super) fn pseudoscalar_factor<D>(q_mu: Complex<f64>, two_m: D) -> Complex<f64>
+where
+    Complex<f64>: std::ops::Div<D, Output = Complex<f64>>,
+{
+    -I * q_mu / two_m
+}
+
 fn spin_half(
     projector: Projector,
     current: Current,
@@ -197,7 +220,7 @@ fn spin_half(
     let q: [Complex<f64>; 4] = [0, 1, 2, 3].map(|i| pf[i] - pi[i]);
     let left = gamma_proj * propagator_numerator(&pf, m);
     let right = propagator_numerator(&pi, m);
-    let norm = 4.0 * (k.ef * k.ei * (k.ef + m) * (k.ei + m)).sqrt();
+    let norm = trace_norm(k.ef, k.ei, m);
     let trace = |vertex: M4| (left * vertex * right).trace() / norm;
     let idx = current.indices();
     let two_m = Complex::new(2.0 * m, 0.0);
@@ -208,18 +231,14 @@ fn spin_half(
             let f1 = trace(c.g[mu]);
             let sig_q = (0..4).fold(M4::zeros(), |acc, nu| acc + c.sigma[mu][nu] * q[nu]);
             let f2 = trace(-sig_q / two_m);
-            // Pi = K1 F1 + K2 F2 with F1 = (GE + tau GM)/(1 + tau), F2 = (GM - GE)/(1 + tau).
-            let tau = q_squared(k) / (4.0 * m * m);
-            vec![
-                (FormFactor::GE, (f1 - f2) / (1.0 + tau)),
-                (FormFactor::GM, (f1 * tau + f2) / (1.0 + tau)),
-            ]
+            let [ge, gm] = sachs(f1, f2, k);
+            vec![(FormFactor::GE, ge), (FormFactor::GM, gm)]
         }
         CurrentKind::Axial => {
             let mu = idx[0] - 1;
             vec![
                 (FormFactor::GA, trace(c.g[mu] * c.g5)),
-                (FormFactor::GP, trace(c.g5 * (-I * q[mu] / two_m))),
+                (FormFactor::GP, trace(c.g5 * pseudoscalar_factor(q[mu], two_m))),
             ]
         }
         CurrentKind::Scalar => vec![(FormFactor::GS, trace(M4::identity()))],
