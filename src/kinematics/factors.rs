@@ -238,7 +238,10 @@ fn spin_half(
             let mu = idx[0] - 1;
             vec![
                 (FormFactor::GA, trace(c.g[mu] * c.g5)),
-                (FormFactor::GP, trace(c.g5 * pseudoscalar_factor(q[mu], two_m))),
+                (
+                    FormFactor::GP,
+                    trace(c.g5 * pseudoscalar_factor(q[mu], two_m)),
+                ),
             ]
         }
         CurrentKind::Scalar => vec![(FormFactor::GS, trace(M4::identity()))],
