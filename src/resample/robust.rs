@@ -102,7 +102,7 @@ mod tests {
             let mut s = x.to_vec();
             s.sort_by(f64::total_cmp);
             let m = s.len() / 2;
-            if s.len() % 2 == 0 {
+            if s.len().is_multiple_of(2) {
                 0.5 * (s[m - 1] + s[m])
             } else {
                 s[m]
