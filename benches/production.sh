@@ -13,7 +13,8 @@
 # `cargo build --release`), SCRATCH (default /tmp/formfactory-production), SOURCE (`csv`, the
 # default, or `packed`: the tables packed once with `formfactory pack` into
 # SCRATCH/data-CONFIGS/ensemble.packed.h5 and the runs read that; needs a binary built with
-# `--features hdf5`). The generated data
+# `--features hdf5`; the script then also times `inspect` of the packed file, which reads every
+# channel, against `cat` of it). The generated data
 # are kept in SCRATCH and reused by later runs of the same size. CPU time is user + system time
 # of the whole process; per-stage figures are differences between consecutive prefixes, so
 # they are noisy on a loaded machine: compare before/after runs made side by side.
@@ -126,4 +127,15 @@ echo "data stage (read, bin, resample, including process start): " \
     "$(echo "scale=1; $bytes / 1000000 / $read_wall" | bc) MB/s and" \
     "$(echo "scale=2; $rows / 1000000 / $read_wall" | bc) M rows/s per wall second," \
     "$(echo "scale=1; $bytes / 1000000 / $read_cpu" | bc) MB/s per CPU second"
+if [ "$source" = packed ]; then
+    # Reading the packed file against `cat` of it (page cache warm): `inspect` reads every
+    # channel's values into one reused buffer; the mean of five runs of each, side by side.
+    packed_file=$data/ensemble.packed.h5
+    t=$scratch/time-read
+    /usr/bin/time -f "%e" -o "$t" bash -c 'for _ in 1 2 3 4 5; do cat "$0" > /dev/null; done' "$packed_file"
+    cat_s=$(echo "scale=4; $(cat "$t") / 5" | bc)
+    /usr/bin/time -f "%e" -o "$t" bash -c 'for _ in 1 2 3 4 5; do "$1" inspect "$0" > /dev/null; done' "$packed_file" "$bin"
+    inspect_s=$(echo "scale=4; $(cat "$t") / 5" | bc)
+    echo "reading the packed file: inspect $inspect_s s, cat $cat_s s (mean of 5 each)"
+fi
 echo "load average after: $(cut -d' ' -f1-3 /proc/loadavg)"
