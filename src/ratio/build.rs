@@ -14,7 +14,7 @@
 //! that is zero) is an error naming the channel.
 
 use super::factors::Factors;
-use super::lsq::{CovarianceSetup, PointScales};
+use super::lsq::{CovarianceSetup, PointKept};
 use super::{ChannelKey, NegativeRootPolicy, RatioSettings, ReIm, STAGE};
 use crate::data::{
     momentum_text, Momentum, Series, ThreePointData, ThreePointKey, TwoPointData, TwoPointKey,
@@ -34,9 +34,10 @@ pub struct RatioPoint {
     pub tau: u32,
     /// Real and imaginary parts of the ratio.
     pub value: ReIm,
-    /// The jackknife scales of `value`, kept for the channel's fits of this point.
+    /// What the channel's fits of this point keep of `value` (its jackknife scales and
+    /// diagonal variance).
     #[serde(skip)]
-    pub(crate) scales: PointScales,
+    pub(crate) kept: PointKept,
 }
 
 impl RatioPoint {
@@ -46,7 +47,7 @@ impl RatioPoint {
             tsep,
             tau,
             value,
-            scales: PointScales::default(),
+            kept: PointKept::default(),
         }
     }
 }

@@ -104,7 +104,7 @@ fn point_scales(p: &Resampled, pseudo: &mut Vec<f64>) -> Option<Vec<f64>> {
 /// variance ([`diagonal_variance`], `None` when the point is not finite). A cache: it takes no
 /// part in the point's equality.
 #[derive(Clone, Debug, Default)]
-pub(crate) struct PointScales {
+pub(crate) struct PointKept {
     re: PartCache,
     im: PartCache,
 }
@@ -115,13 +115,13 @@ struct PartCache {
     variance: OnceLock<Option<f64>>,
 }
 
-impl PartialEq for PointScales {
+impl PartialEq for PointKept {
     fn eq(&self, _: &Self) -> bool {
         true
     }
 }
 
-impl PointScales {
+impl PointKept {
     fn part(&self, part: Part) -> &PartCache {
         match part {
             Part::Re => &self.re,
@@ -153,7 +153,7 @@ impl PointScales {
 /// variances).
 fn weights_from_kept(
     points: &[&ReIm],
-    cached: &[&PointScales],
+    cached: &[&PointKept],
     part: Part,
     cov: CovarianceSetup<'_>,
 ) -> Option<(Weights, Vec<String>)> {
@@ -365,7 +365,7 @@ fn per_sample(
 /// the first of them with the fit qualities and the covariance warnings.
 pub(crate) fn fit_re_im(
     points: &[&ReIm],
-    cached: Option<&[&PointScales]>,
+    cached: Option<&[&PointKept]>,
     design: Design<'_>,
     cov: CovarianceSetup<'_>,
     what: &str,
@@ -554,8 +554,8 @@ mod tests {
             eigen_cut: None,
         };
         for options in [diagonal, CovarianceOptions::default()] {
-            let caches = vec![PointScales::default(); points.len()];
-            let cached: Vec<&PointScales> = caches.iter().collect();
+            let caches = vec![PointKept::default(); points.len()];
+            let cached: Vec<&PointKept> = caches.iter().collect();
             let cov = CovarianceSetup {
                 options: &options,
                 n_bins: n,
@@ -598,8 +598,8 @@ mod tests {
         };
         let check = |points: &[ReIm]| {
             let refs: Vec<&ReIm> = points.iter().collect();
-            let caches = vec![PointScales::default(); points.len()];
-            let cached: Vec<&PointScales> = caches.iter().collect();
+            let caches = vec![PointKept::default(); points.len()];
+            let cached: Vec<&PointKept> = caches.iter().collect();
             [Part::Re, Part::Im].map(|part| {
                 let owned: Vec<Resampled> = points.iter().map(|p| p.part(part).clone()).collect();
                 let direct = weights(&owned, cov, "test").ok();
@@ -625,8 +625,8 @@ mod tests {
             ..options
         };
         let refs: Vec<&ReIm> = points[..1].iter().collect();
-        let caches = [PointScales::default()];
-        let cached: Vec<&PointScales> = caches.iter().collect();
+        let caches = [PointKept::default()];
+        let cached: Vec<&PointKept> = caches.iter().collect();
         for other in [cut, CovarianceOptions::default()] {
             let other = CovarianceSetup {
                 options: &other,

@@ -38,7 +38,7 @@ pub fn plateau(ratio: &ChannelRatio, tsep: u32, settings: &RatioSettings) -> Res
     let values: Vec<_> = points.iter().map(|p| &p.value).collect();
     let n = values.len();
     let what = format!("plateau of channel {}, tsep {tsep}", ratio.key);
-    let cached: Vec<_> = points.iter().map(|p| &p.scales).collect();
+    let cached: Vec<_> = points.iter().map(|p| &p.kept).collect();
     let (_, fit) = fit_re_im(
         &values,
         Some(&cached),

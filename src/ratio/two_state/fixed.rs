@@ -409,7 +409,7 @@ fn fit_setup(
             fill: &fill,
         }
     };
-    let cached: Vec<_> = setup.points.iter().map(|p| &p.scales).collect();
+    let cached: Vec<_> = setup.points.iter().map(|p| &p.kept).collect();
     let (params, m) = fit_re_im(
         &values,
         Some(&cached),
