@@ -800,7 +800,7 @@ fn key_fields_are_compared_with_their_boundaries() {
 // Reference: the manifest's streaming SHA-256 of the whole file (report::manifest::sha256_file,
 // checked against the FIPS 180-4 test vectors in its unit tests); the digest taken while
 // reading must be the same, with the same size.
-// One worker thread hashes inline; more use the read-ahead thread: both are checked.
+// The digest must not depend on the number of worker threads: one and three are checked.
 #[test]
 fn tables_are_hashed_while_read() {
     let root = crate::common::repo_root();
@@ -826,8 +826,8 @@ fn tables_are_hashed_while_read() {
     }
 }
 
-// A read that stops at a bad row while the read-ahead thread is ahead of it gives the row's
-// error (file, line, column), the same with one worker thread and with several.
+// A read that stops at a bad row while its hashing reader is part way through the file gives
+// the row's error (file, line, column), the same with one worker thread and with several.
 #[test]
 fn a_hashed_read_that_stops_early_reports_its_row() {
     let root = crate::common::repo_root();

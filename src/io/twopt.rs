@@ -58,7 +58,7 @@ pub(crate) fn read_with_summary(path: &Path) -> Result<(TwoPointData, Summary)> 
 
 /// [`read_with_summary`] plus the digest of the bytes read (for the run manifest).
 pub(crate) fn read_hashed(path: &Path) -> Result<(TwoPointData, Summary, FileDigest)> {
-    let mut input = Hashing::new(open(path)?).map_err(|e| Error::io(path, e))?;
+    let mut input = Hashing::new(open(path)?);
     let (data, summary) = read_inner(&mut input, display_name(path))?;
     // The reader stops at the end of the input; anything it left unread still counts.
     let digest = input.finish(path).map_err(|e| Error::io(path, e))?;
