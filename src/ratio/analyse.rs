@@ -61,7 +61,7 @@ pub(crate) fn analyse_channel_with(
     ratio: ChannelRatio,
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
-    memo: &mut DesignMemo<'_>,
+    memo: &mut DesignMemo<'_, BTreeMap<Momentum, TwoPointStates>>,
 ) -> Result<ChannelResult> {
     let mut notes = Vec::new();
     let mut plateaus = Vec::new();

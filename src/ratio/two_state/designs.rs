@@ -6,7 +6,6 @@
 
 use crate::data::Momentum;
 use nalgebra::DMatrix;
-use std::marker::PhantomData;
 
 /// The design of every resample, column-major one after the other.
 #[derive(Default)]
@@ -68,11 +67,10 @@ impl DesignCache {
 /// momenta, per resample), so the kept designs are the ones that channel would compute, bit
 /// for bit. One memo serves one map of two-point states, the one it was made for (a fit with
 /// another map computes its own designs); it cannot outlive that map.
-pub struct DesignMemo<'s> {
-    /// The address of the map of two-point states this memo serves.
-    states: usize,
+pub struct DesignMemo<'s, T> {
+    /// The map of two-point states this memo serves.
+    states: &'s T,
     last: Option<(DesignKey, DesignCache)>,
-    map: PhantomData<&'s ()>,
 }
 
 /// What a channel's designs depend on besides the two-point states.
@@ -88,25 +86,21 @@ pub(super) struct DesignKey {
     pub points: Vec<(u32, u32)>,
 }
 
-impl<'s> DesignMemo<'s> {
+impl<'s, T> DesignMemo<'s, T> {
     /// An empty memo for fits with the two-point parameters of `states`.
-    pub fn new<T>(states: &'s T) -> Self {
-        DesignMemo {
-            states: std::ptr::from_ref(states) as usize,
-            last: None,
-            map: PhantomData,
-        }
+    pub fn new(states: &'s T) -> Self {
+        DesignMemo { states, last: None }
     }
 
     /// The designs of a channel with `key`, fitted with `states`: the kept ones when the last
     /// channel had the same key and states, else `compute()`d and kept.
-    pub(super) fn designs<T>(
+    pub(super) fn designs(
         &mut self,
         states: &T,
         key: DesignKey,
         compute: impl FnOnce() -> DesignCache,
     ) -> &DesignCache {
-        let same_states = std::ptr::from_ref(states) as usize == self.states;
+        let same_states = std::ptr::eq(states, self.states);
         let kept = same_states && self.last.as_ref().is_some_and(|(k, _)| *k == key);
         if !kept {
             self.last = None;

@@ -315,7 +315,7 @@ pub(crate) fn two_state_fixed_and_late(
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
     late: bool,
-    memo: &mut DesignMemo<'_>,
+    memo: &mut DesignMemo<'_, BTreeMap<Momentum, TwoPointStates>>,
 ) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
     let setup = match Setup::new(ratio, states, settings) {
         Ok(s) => s,

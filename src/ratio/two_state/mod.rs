@@ -44,7 +44,7 @@ pub fn two_state_with_late(
     ratio: &ChannelRatio,
     states: &BTreeMap<Momentum, TwoPointStates>,
     settings: &RatioSettings,
-    memo: &mut DesignMemo<'_>,
+    memo: &mut DesignMemo<'_, BTreeMap<Momentum, TwoPointStates>>,
 ) -> (Result<TwoStateFit>, Option<Result<TwoStateFit>>) {
     if settings.two_state == TwoStateVariant::FixedGaps {
         let late = settings.two_state_late;
